@@ -1,0 +1,190 @@
+//! The exponential-diode peak detector with capacitive hold and a DC load RL.
+//!
+//! The DC current balance Is·(exp(−Vo/(n·Vt))·I0(Vpk/(n·Vt)) − 1) = Vo/RL, divided by Is,
+//! depends on Is and RL only through V_L = Is·RL. Taking logs gives a form that never
+//! overflows: ln(1 + Vo/V_L) + Vo/(n·Vt) = ln I0(Vpk/(n·Vt)). Both sides rise monotonically,
+//! so either direction is a one-dimensional bracketed root.
+
+use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
+use crate::numeric::{levenberg_marquardt, solve_bracketed, solve_increasing};
+use crate::special::{ln_i0, thermal_voltage};
+use crate::units::{watts_to_dbm, Power};
+
+/// Limits of the diode fit: ideality factor n and V_L in volts.
+const N_BOUNDS: (f64, f64) = (0.5, 5.0);
+const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
+
+/// A diode peak detector with ideality `n`, V_L = Is·RL, at temperature `kelvin`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DiodeDetector {
+    n: f64,
+    vl: f64,
+    kelvin: f64,
+    ohms: f64,
+    n_vt: f64,
+    span: (f64, f64),
+}
+
+/// A diode fit and how it went.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DiodeFit {
+    /// The fitted detector.
+    pub detector: DiodeDetector,
+    /// Levenberg–Marquardt iterations used.
+    pub iterations: usize,
+    /// Parameters that ended on a bound of the search, by name.
+    pub at_bound: Vec<&'static str>,
+}
+
+impl DiodeDetector {
+    /// A detector with known parameters; `vl` may be infinite (open circuit). `ohms` is the
+    /// impedance the input power is stated at; `span` the calibrated input span in dBm.
+    pub fn new(n: f64, vl: f64, kelvin: f64, ohms: f64, span: (f64, f64)) -> Self {
+        DiodeDetector {
+            n,
+            vl,
+            kelvin,
+            ohms,
+            n_vt: n * thermal_voltage(kelvin),
+            span,
+        }
+    }
+
+    /// Ideality factor n.
+    pub fn n(&self) -> f64 {
+        self.n
+    }
+    /// V_L = Is·RL in volts.
+    pub fn vl(&self) -> f64 {
+        self.vl
+    }
+    /// Junction temperature in kelvin.
+    pub fn kelvin(&self) -> f64 {
+        self.kelvin
+    }
+
+    /// Output volts for an RF peak voltage at the diode.
+    pub fn output_for_peak(&self, vpk: f64) -> f64 {
+        let c = ln_i0(vpk / self.n_vt);
+        if c <= 0.0 {
+            return 0.0;
+        }
+        let open_circuit = c * self.n_vt;
+        if self.vl.is_infinite() {
+            return open_circuit;
+        }
+        let balance = |vo: f64| (vo / self.vl).ln_1p() + vo / self.n_vt - c;
+        // ln(1 + Vo/V_L) ≥ 0, so the open-circuit output bounds the loaded one; the margin
+        // keeps the bracket when V_L is so large that the two agree to rounding.
+        solve_bracketed(balance, 0.0, open_circuit * (1.0 + 1e-9)).unwrap_or(f64::NAN)
+    }
+
+    /// RF peak voltage at the diode for an output in volts; 0 for an output at or below 0.
+    pub fn peak_for_output(&self, vo: f64) -> f64 {
+        if vo <= 0.0 {
+            return 0.0;
+        }
+        let c = (vo / self.vl).ln_1p() + vo / self.n_vt;
+        // ln I0(x) ≤ x, so the root lies at or above c.
+        let x =
+            solve_increasing(|x| ln_i0(x) - c, c, c + 2.0 * c.sqrt() + 10.0).unwrap_or(f64::NAN);
+        x * self.n_vt
+    }
+
+    /// Fits n and ln V_L to at least four points by Levenberg–Marquardt on the dB residuals.
+    pub fn fit(points: &[CalPoint], kelvin: f64, ohms: f64) -> Result<DiodeFit, ModelError> {
+        let sorted = ordered_points(points, ModelKind::Diode)?;
+        if let Some(index) = points.iter().position(|p| p.volts <= 0.0) {
+            return Err(ModelError::NonPositiveOutput {
+                index,
+                volts: points[index].volts,
+                model: ModelKind::Diode,
+            });
+        }
+        let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
+        let model = |p: [f64; 2]| DiodeDetector::new(p[0], p[1].exp(), kelvin, ohms, span);
+        let residuals = |p: [f64; 2], out: &mut [f64]| {
+            let det = model(p);
+            for (slot, point) in out.iter_mut().zip(&sorted) {
+                *slot = det.dbm_at(point.volts) - point.dbm;
+            }
+            out.iter().all(|r| r.is_finite())
+        };
+        let bounds = [N_BOUNDS, (VL_BOUNDS.0.ln(), VL_BOUNDS.1.ln())];
+        // Several valleys can exist; descending from the best few grid points finds the
+        // deepest one.
+        let fit = best_starts(&residuals, sorted.len())
+            .into_iter()
+            .map(|start| levenberg_marquardt(&residuals, sorted.len(), start, bounds))
+            .min_by(|a, b| a.sse.total_cmp(&b.sse))
+            .expect("the grid always yields a start");
+        if !fit.converged || !fit.sse.is_finite() {
+            return Err(ModelError::FitFailed {
+                model: ModelKind::Diode,
+                reason: format!(
+                    "no convergence after {} iterations (RMS error {:.3} dB); check that all \
+                     points come from one detector and ADC set-up, or use the table model",
+                    fit.iterations,
+                    (fit.sse / sorted.len() as f64).sqrt()
+                ),
+            });
+        }
+        let near = |v: f64, bound: f64| (v - bound).abs() <= 1e-6 * (1.0 + bound.abs());
+        let mut at_bound = Vec::new();
+        if near(fit.params[0], N_BOUNDS.0) || near(fit.params[0], N_BOUNDS.1) {
+            at_bound.push("n");
+        }
+        if near(fit.params[1], bounds[1].0) || near(fit.params[1], bounds[1].1) {
+            at_bound.push("vl");
+        }
+        Ok(DiodeFit {
+            detector: model(fit.params),
+            iterations: fit.iterations,
+            at_bound,
+        })
+    }
+}
+
+/// The best few points of a coarse grid of starting values, one per ideality factor.
+fn best_starts(residuals: &impl Fn([f64; 2], &mut [f64]) -> bool, count: usize) -> Vec<[f64; 2]> {
+    let mut scratch = vec![0.0; count];
+    let mut per_n: Vec<([f64; 2], f64)> = Vec::new();
+    for n in [1.0, 1.1, 1.3, 1.6, 2.0, 3.0] {
+        let mut best = ([n, 0.1f64.ln()], f64::INFINITY);
+        for decade in -5..=3 {
+            let p = [n, (10f64.powi(decade)).ln()];
+            if residuals(p, &mut scratch) {
+                let sse: f64 = scratch.iter().map(|r| r * r).sum();
+                if sse < best.1 {
+                    best = (p, sse);
+                }
+            }
+        }
+        per_n.push(best);
+    }
+    per_n.sort_by(|a, b| a.1.total_cmp(&b.1));
+    per_n.into_iter().take(4).map(|(p, _)| p).collect()
+}
+
+impl Detector for DiodeDetector {
+    fn kind(&self) -> ModelKind {
+        ModelKind::Diode
+    }
+
+    fn dbm_at(&self, volts: f64) -> f64 {
+        let vpk = self.peak_for_output(volts);
+        if vpk <= 0.0 {
+            return f64::NEG_INFINITY;
+        }
+        watts_to_dbm(Power::from_vpk(vpk, self.ohms).watts())
+    }
+
+    fn volts_at(&self, dbm: f64) -> f64 {
+        let vpk = Power::from_dbm(dbm).volts(self.ohms, crate::units::VoltageForm::Peak);
+        self.output_for_peak(vpk)
+    }
+
+    fn span_dbm(&self) -> (f64, f64) {
+        self.span
+    }
+}

@@ -1,0 +1,272 @@
+//! Detector models: each maps detector output volts to detector-input dBm and back, and
+//! knows the span of input levels it was calibrated over.
+//!
+//! Three models share one trait: a calibration table interpolated by PCHIP ([`table`]), a
+//! logarithmic-amplifier line ([`log_amp`]) and the exponential-diode peak detector
+//! ([`diode`]). Fits and their residuals live here too, since they belong to the model.
+
+pub mod diode;
+pub mod log_amp;
+pub mod table;
+
+use std::fmt;
+
+use thiserror::Error;
+
+pub use diode::DiodeDetector;
+pub use log_amp::LogAmpDetector;
+pub use table::{Axis, TableDetector};
+
+/// Which model a profile uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ModelKind {
+    /// Calibration points interpolated by PCHIP.
+    Table,
+    /// A log-amp detector: volts linear in dBm.
+    Log,
+    /// An exponential-diode peak detector.
+    Diode,
+}
+
+impl ModelKind {
+    /// The name used in profiles and on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            ModelKind::Table => "table",
+            ModelKind::Log => "log",
+            ModelKind::Diode => "diode",
+        }
+    }
+
+    /// The model for a name, if it is one.
+    pub fn from_name(name: &str) -> Option<Self> {
+        [ModelKind::Table, ModelKind::Log, ModelKind::Diode]
+            .into_iter()
+            .find(|kind| kind.name() == name)
+    }
+
+    /// The fewest calibration points the model can be built from.
+    pub fn min_points(self) -> usize {
+        match self {
+            ModelKind::Table => 2,
+            ModelKind::Log => 3,
+            ModelKind::Diode => 4,
+        }
+    }
+}
+
+impl fmt::Display for ModelKind {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+/// One calibration point: the level applied at the detector input and the volts it gave.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CalPoint {
+    /// Applied level at the detector input, dBm.
+    pub dbm: f64,
+    /// Detector output, volts.
+    pub volts: f64,
+}
+
+/// Why a model could not be built from its points or parameters.
+#[derive(Debug, Error, Clone, PartialEq)]
+pub enum ModelError {
+    /// Not enough points for the model.
+    #[error("the {model} model needs at least {need} calibration points; {got} given")]
+    TooFewPoints {
+        /// The model.
+        model: ModelKind,
+        /// How many it needs.
+        need: usize,
+        /// How many there were.
+        got: usize,
+    },
+    /// Two points at the same applied level.
+    #[error("points {first} and {second} are at the same applied level ({dbm:.3} dBm)")]
+    DuplicateLevel {
+        /// Index of the first.
+        first: usize,
+        /// Index of the second.
+        second: usize,
+        /// The level.
+        dbm: f64,
+    },
+    /// The detector output does not move one way only as the applied level rises.
+    #[error(
+        "point {index} breaks the monotone order: at {dbm:.3} dBm the output is {volts:.6} V, \
+         which does not continue the trend of the neighbouring levels; \
+         re-measure it or delete it"
+    )]
+    NotMonotone {
+        /// Index of the offending point.
+        index: usize,
+        /// Its level.
+        dbm: f64,
+        /// Its output.
+        volts: f64,
+    },
+    /// A point with zero or negative output where the model needs it positive.
+    #[error(
+        "point {index} reads {volts:.6} V, at or below zero; the {model} model needs a positive \
+         detector output (check the ADC zero offset)"
+    )]
+    NonPositiveOutput {
+        /// Index of the point.
+        index: usize,
+        /// Its output.
+        volts: f64,
+        /// The model.
+        model: ModelKind,
+    },
+    /// A fit that did not converge or gave unusable parameters.
+    #[error("the {model} fit failed: {reason}")]
+    FitFailed {
+        /// The model.
+        model: ModelKind,
+        /// What happened and what to try.
+        reason: String,
+    },
+}
+
+/// A detector model: output volts to input dBm and back, over a calibrated span.
+pub trait Detector: fmt::Debug + Send + Sync {
+    /// Which model this is.
+    fn kind(&self) -> ModelKind;
+    /// Detector-input dBm for a detector output in volts, continuing the model beyond the
+    /// calibrated span; −∞ where the output is below anything the model can produce.
+    fn dbm_at(&self, volts: f64) -> f64;
+    /// Detector output volts for a detector-input level in dBm.
+    fn volts_at(&self, dbm: f64) -> f64;
+    /// The calibrated span of input levels, (lowest, highest) dBm.
+    fn span_dbm(&self) -> (f64, f64);
+}
+
+/// Each point's error in dB: the model's dBm for the point's volts minus the applied dBm.
+pub fn residuals_db(detector: &dyn Detector, points: &[CalPoint]) -> Vec<f64> {
+    points
+        .iter()
+        .map(|p| detector.dbm_at(p.volts) - p.dbm)
+        .collect()
+}
+
+/// Root-mean-square of a set of errors.
+pub fn rms(errors: &[f64]) -> f64 {
+    if errors.is_empty() {
+        return 0.0;
+    }
+    (errors.iter().map(|e| e * e).sum::<f64>() / errors.len() as f64).sqrt()
+}
+
+/// The points ordered by applied level, after checking the count, duplicates and
+/// monotone output; indices in errors refer to the order given.
+pub(crate) fn ordered_points(
+    points: &[CalPoint],
+    model: ModelKind,
+) -> Result<Vec<CalPoint>, ModelError> {
+    if points.len() < model.min_points() {
+        return Err(ModelError::TooFewPoints {
+            model,
+            need: model.min_points(),
+            got: points.len(),
+        });
+    }
+    let mut order: Vec<usize> = (0..points.len()).collect();
+    order.sort_by(|&a, &b| points[a].dbm.total_cmp(&points[b].dbm));
+    for pair in order.windows(2) {
+        let (a, b) = (pair[0], pair[1]);
+        if points[a].dbm == points[b].dbm {
+            return Err(ModelError::DuplicateLevel {
+                first: a.min(b),
+                second: a.max(b),
+                dbm: points[a].dbm,
+            });
+        }
+    }
+    let rising = points[order[order.len() - 1]].volts > points[order[0]].volts;
+    for pair in order.windows(2) {
+        let (a, b) = (pair[0], pair[1]);
+        let step_ok = if rising {
+            points[b].volts > points[a].volts
+        } else {
+            points[b].volts < points[a].volts
+        };
+        if !step_ok {
+            let index = out_of_order_index(points, &order, a, b);
+            return Err(ModelError::NotMonotone {
+                index,
+                dbm: points[index].dbm,
+                volts: points[index].volts,
+            });
+        }
+    }
+    Ok(order.iter().map(|&i| points[i]).collect())
+}
+
+/// Of two neighbours out of order, the one that disagrees with the overall trend most.
+fn out_of_order_index(points: &[CalPoint], order: &[usize], a: usize, b: usize) -> usize {
+    let first = points[order[0]].volts;
+    let last = points[order[order.len() - 1]].volts;
+    let expected = |i: usize| {
+        let rank = order.iter().position(|&j| j == i).unwrap_or(0) as f64;
+        first + (last - first) * rank / (order.len() - 1) as f64
+    };
+    let off = |i: usize| (points[i].volts - expected(i)).abs();
+    if off(a) > off(b) {
+        a
+    } else {
+        b
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pt(dbm: f64, volts: f64) -> CalPoint {
+        CalPoint { dbm, volts }
+    }
+
+    #[test]
+    fn ordering_sorts_by_level_and_accepts_falling_outputs() {
+        let got = ordered_points(
+            &[pt(0.0, 1.0), pt(-10.0, 1.5), pt(10.0, 0.5)],
+            ModelKind::Log,
+        )
+        .unwrap();
+        assert_eq!(
+            got.iter().map(|p| p.dbm).collect::<Vec<_>>(),
+            [-10.0, 0.0, 10.0]
+        );
+    }
+
+    #[test]
+    fn a_point_against_the_trend_is_named() {
+        let points = [
+            pt(-20.0, 0.1),
+            pt(-10.0, 0.2),
+            pt(0.0, 0.15),
+            pt(10.0, 0.8),
+            pt(20.0, 1.6),
+        ];
+        let err = ordered_points(&points, ModelKind::Table).unwrap_err();
+        assert!(
+            matches!(err, ModelError::NotMonotone { index: 2, .. }),
+            "{err:?}"
+        );
+    }
+
+    #[test]
+    fn duplicate_levels_are_refused() {
+        let err = ordered_points(&[pt(0.0, 1.0), pt(0.0, 1.1)], ModelKind::Table).unwrap_err();
+        assert!(matches!(
+            err,
+            ModelError::DuplicateLevel {
+                first: 0,
+                second: 1,
+                ..
+            }
+        ));
+    }
+}

@@ -1,0 +1,25 @@
+//! dbtrail's measurement domain: from raw ADC counts of a diode or log-amp RF detector to
+//! calibrated power at the reference plane, with the profiles that describe a detector.
+//!
+//! The pipeline stages, each in its own module:
+//! - [`units`]: quantities with units (power, RF voltage, frequency, duration, dB);
+//! - [`adc`]: counts to volts at the detector output, and the clip test;
+//! - [`detector`]: detector models (table, log-amp, diode) and their fits;
+//! - [`correction`]: frequency correction and the offset of what sits in front;
+//! - [`calibration`]: the chain that turns one count into a flagged reading;
+//! - [`profile`]: TOML profiles, validated with file, line and field in every message;
+//! - [`points`]: the calibration points CSV that `fit` reads.
+//!
+//! Nothing here touches a terminal or a serial port.
+#![forbid(unsafe_code)]
+
+pub mod adc;
+pub mod calibration;
+pub mod correction;
+pub mod detector;
+pub mod numeric;
+pub mod pchip;
+pub mod points;
+pub mod profile;
+pub mod special;
+pub mod units;
