@@ -1,1 +1,228 @@
+//! The calibration chain: one ADC count in, one flagged reading out.
+//!
+//! counts → detector volts (ADC, divider, zero) → detector-input dBm (detector model)
+//! → reference-plane dBm (+ frequency correction + offset). Nothing is extrapolated
+//! silently: a reading outside the calibrated span carries a flag, and below the span its
+//! value is the span's low end, to be shown as "below X dBm".
 
+use std::fmt;
+use std::sync::Arc;
+
+use bitflags::bitflags;
+
+use crate::adc::Adc;
+use crate::detector::Detector;
+use crate::profile::{Limits, Profile};
+use crate::units::dbm_to_watts;
+
+bitflags! {
+    /// What is doubtful or dangerous about a reading.
+    #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+    pub struct Flags: u16 {
+        /// The ADC was at or near full scale: the true level may be higher.
+        const ADC_CLIP = 1 << 0;
+        /// Below the calibrated span: the value is an upper bound.
+        const BELOW_SPAN = 1 << 1;
+        /// Above the calibrated span: the value is extrapolated.
+        const ABOVE_SPAN = 1 << 2;
+        /// The frequency lies outside the correction table; its end value was used.
+        const FREQ_OUTSIDE = 1 << 3;
+        /// Over the detector's safe input level.
+        const OVER_DETECTOR_MAX = 1 << 4;
+        /// Over the rated power at the reference plane (load or attenuator rating).
+        const OVER_RATED = 1 << 5;
+    }
+}
+
+impl Flags {
+    /// Short names, for logs and status lines.
+    pub fn names(self) -> Vec<&'static str> {
+        const NAMES: [(Flags, &str); 6] = [
+            (Flags::ADC_CLIP, "clip"),
+            (Flags::BELOW_SPAN, "below"),
+            (Flags::ABOVE_SPAN, "above"),
+            (Flags::FREQ_OUTSIDE, "freq-outside"),
+            (Flags::OVER_DETECTOR_MAX, "over-detector-max"),
+            (Flags::OVER_RATED, "over-rated"),
+        ];
+        NAMES
+            .iter()
+            .filter(|(flag, _)| self.contains(*flag))
+            .map(|(_, name)| *name)
+            .collect()
+    }
+}
+
+/// One calibrated sample.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Reading {
+    /// The raw (or averaged) count.
+    pub counts: f64,
+    /// Detector output volts.
+    pub volts: f64,
+    /// Level at the detector input, dBm.
+    pub detector_dbm: f64,
+    /// Level at the reference plane, dBm (the span's low end when below the span).
+    pub dbm: f64,
+    /// What is doubtful about it.
+    pub flags: Flags,
+}
+
+impl Reading {
+    /// Power at the reference plane in watts.
+    pub fn watts(&self) -> f64 {
+        dbm_to_watts(self.dbm)
+    }
+}
+
+/// The reading as a person should see it: "12.34 dBm", "below −30.00 dBm", "above …".
+impl fmt::Display for Reading {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.flags.contains(Flags::BELOW_SPAN) {
+            write!(f, "below {:.2} dBm", self.dbm)
+        } else if self.flags.contains(Flags::ABOVE_SPAN) {
+            write!(f, "above span: ~{:.2} dBm", self.dbm)
+        } else {
+            write!(f, "{:.2} dBm", self.dbm)
+        }
+    }
+}
+
+/// A profile made ready for one frequency and offset.
+#[derive(Debug, Clone)]
+pub struct Calibration {
+    adc: Adc,
+    detector: Arc<dyn Detector>,
+    freq_hz: f64,
+    correction_db: f64,
+    offset_db: f64,
+    fixed_flags: Flags,
+    /// Detector volts at the low and the high end of the span.
+    span_volts: (f64, f64),
+    limits: Limits,
+}
+
+impl Calibration {
+    /// Prepares `profile` for `freq_hz` (the profile's reference frequency when None) with
+    /// `extra_offset_db` added to the profile's offset.
+    pub fn new(profile: &Profile, freq_hz: Option<f64>, extra_offset_db: f64) -> Self {
+        let freq_hz = freq_hz.unwrap_or(profile.reference_hz);
+        let correction = profile
+            .frequency_correction
+            .as_ref()
+            .map(|table| table.at(freq_hz));
+        let offset = profile.offset.at(freq_hz);
+        let outside = correction.is_some_and(|c| c.outside) || offset.outside;
+        let detector = Arc::clone(&profile.model.detector);
+        let (lo, hi) = detector.span_dbm();
+        let span_volts = (detector.volts_at(lo), detector.volts_at(hi));
+        Calibration {
+            adc: profile.adc.clone(),
+            detector,
+            freq_hz,
+            correction_db: correction.map_or(0.0, |c| c.db),
+            offset_db: offset.db + extra_offset_db,
+            fixed_flags: if outside {
+                Flags::FREQ_OUTSIDE
+            } else {
+                Flags::empty()
+            },
+            span_volts,
+            limits: profile.limits,
+        }
+    }
+
+    /// The frequency in use, Hz.
+    pub fn freq_hz(&self) -> f64 {
+        self.freq_hz
+    }
+    /// Frequency correction in use, dB (true minus indicated).
+    pub fn correction_db(&self) -> f64 {
+        self.correction_db
+    }
+    /// Total offset in use, dB.
+    pub fn offset_db(&self) -> f64 {
+        self.offset_db
+    }
+    /// The ADC front end.
+    pub fn adc(&self) -> &Adc {
+        &self.adc
+    }
+    /// The detector model.
+    pub fn detector(&self) -> &dyn Detector {
+        self.detector.as_ref()
+    }
+    /// Flags that hold for every reading at this set-up (frequency outside the table).
+    pub fn fixed_flags(&self) -> Flags {
+        self.fixed_flags
+    }
+
+    /// Reference-plane dBm for a detector-input dBm.
+    pub fn to_reference(&self, detector_dbm: f64) -> f64 {
+        detector_dbm + self.correction_db + self.offset_db
+    }
+
+    /// The calibrated span at the reference plane, (lowest, highest) dBm.
+    pub fn span_dbm(&self) -> (f64, f64) {
+        let (lo, hi) = self.detector.span_dbm();
+        (self.to_reference(lo), self.to_reference(hi))
+    }
+
+    /// The count that a reference-plane level would read (for simulation and resolution).
+    pub fn counts_for(&self, reference_dbm: f64) -> f64 {
+        let detector_dbm = reference_dbm - self.correction_db - self.offset_db;
+        self.adc.counts(self.detector.volts_at(detector_dbm))
+    }
+
+    /// Resolution at a reference-plane level: dB per ADC count.
+    pub fn db_per_count(&self, reference_dbm: f64) -> f64 {
+        let counts = self.counts_for(reference_dbm);
+        let step = |c: f64| self.detector.dbm_at(self.adc.volts(c));
+        (step(counts + 0.5) - step(counts - 0.5)).abs()
+    }
+
+    /// Calibrates one (possibly fractional) count.
+    pub fn reading(&self, counts: f64) -> Reading {
+        let volts = self.adc.volts(counts);
+        let mut flags = self.fixed_flags | self.range_flags(volts);
+        if self.adc.is_clipped(counts) {
+            flags |= Flags::ADC_CLIP;
+        }
+        let (span_lo, _) = self.detector.span_dbm();
+        let detector_dbm = if flags.contains(Flags::BELOW_SPAN) {
+            span_lo
+        } else {
+            self.detector.dbm_at(volts)
+        };
+        let dbm = self.to_reference(detector_dbm);
+        if self.limits.detector_max_dbm.is_some_and(|max| detector_dbm > max) {
+            flags |= Flags::OVER_DETECTOR_MAX;
+        }
+        if self.limits.reference_max_dbm.is_some_and(|max| dbm > max) {
+            flags |= Flags::OVER_RATED;
+        }
+        Reading {
+            counts,
+            volts,
+            detector_dbm,
+            dbm,
+            flags,
+        }
+    }
+
+    fn range_flags(&self, volts: f64) -> Flags {
+        let (at_lo, at_hi) = self.span_volts;
+        // A sliver of tolerance so the span's own end points count as inside.
+        let slack = 1e-9 * (at_hi - at_lo).abs();
+        let rising = at_hi > at_lo;
+        let below = if rising { volts < at_lo - slack } else { volts > at_lo + slack };
+        let above = if rising { volts > at_hi + slack } else { volts < at_hi - slack };
+        if below {
+            Flags::BELOW_SPAN
+        } else if above {
+            Flags::ABOVE_SPAN
+        } else {
+            Flags::empty()
+        }
+    }
+}

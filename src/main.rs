@@ -1,1 +1,7 @@
-fn main() {}
+//! The `dbtrail` command: a thin layer of command-line parsing over the library.
+
+mod cli;
+
+fn main() -> std::process::ExitCode {
+    cli::run()
+}

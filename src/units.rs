@@ -36,10 +36,20 @@ pub enum UnitError {
         expected: &'static str,
     },
     /// NaN or an infinity.
-    #[error("`{input}` is not a finite number")]
+    #[error("`{input}` is not a finite number; expected {expected}")]
     NotFinite {
         /// The text as typed.
         input: String,
+        /// What would have been accepted.
+        expected: &'static str,
+    },
+    /// A number with no unit where one is needed.
+    #[error("`{input}` has no unit; accepted: {expected}")]
+    NoUnit {
+        /// The text as typed.
+        input: String,
+        /// What would have been accepted.
+        expected: String,
     },
     /// A unit this kind of quantity does not take.
     #[error("unknown unit `{unit}` in `{input}`{hint}; accepted: {expected}")]
@@ -54,12 +64,14 @@ pub enum UnitError {
         expected: String,
     },
     /// A quantity that must be positive was zero or negative.
-    #[error("`{input}` must be greater than zero{why}")]
+    #[error("`{input}` must be greater than zero{why}; expected {expected}")]
     NotPositive {
         /// The text as typed.
         input: String,
         /// Why, starting with ": " or empty.
         why: &'static str,
+        /// What would have been accepted.
+        expected: &'static str,
     },
 }
 
@@ -189,6 +201,7 @@ fn split_number<'a>(text: &'a str, expected: &'static str) -> Result<(f64, &'a s
     if unsigned.starts_with("nan") || unsigned.starts_with("inf") {
         return Err(UnitError::NotFinite {
             input: trimmed.to_string(),
+            expected,
         });
     }
     let end = number_end(trimmed.as_bytes());
@@ -200,6 +213,7 @@ fn split_number<'a>(text: &'a str, expected: &'static str) -> Result<(f64, &'a s
     if !value.is_finite() {
         return Err(UnitError::NotFinite {
             input: trimmed.to_string(),
+            expected,
         });
     }
     Ok((value, trimmed[end..].trim()))
@@ -280,9 +294,11 @@ fn prefix_hint(prefix: &str, unit: &str) -> String {
 pub fn parse_level(text: &str, allow_dc: bool) -> Result<Level, UnitError> {
     let text = normalise(text);
     let expected = if allow_dc {
-        "a level such as -10dBm, 2.5mW, 0.5Vpk or 1.25Vdc"
+        "a level in dBm, dBW, W, mW, uW (µW), nW, pW, or Vrms, Vpk, Vpp (m and u/µ prefixes), \
+         or Vdc (the DC equal to the RF peak), e.g. -10dBm, 2.5mW, 0.5Vpk, 1.25Vdc"
     } else {
-        "a level such as -10dBm, 2.5mW or 0.5Vpk"
+        "a level in dBm, dBW, W, mW, uW (µW), nW, pW, or Vrms, Vpk, Vpp (m and u/µ prefixes), \
+         e.g. -10dBm, 2.5mW, 350mVpp"
     };
     let (value, unit) = split_number(&text, expected)?;
     let accepted = || {
@@ -298,7 +314,7 @@ pub fn parse_level(text: &str, allow_dc: bool) -> Result<Level, UnitError> {
         "dbw" => Level::Dbw(value),
         _ => parse_linear_level(&text, value, unit, allow_dc, accepted)?,
     };
-    check_positive(&text, level)?;
+    check_positive(&text, level, expected)?;
     Ok(level)
 }
 
@@ -310,7 +326,10 @@ fn parse_linear_level(
     accepted: impl Fn() -> String,
 ) -> Result<Level, UnitError> {
     if unit.is_empty() {
-        return Err(unknown(text, unit, "a level needs its unit", accepted()));
+        return Err(UnitError::NoUnit {
+            input: text.trim().to_string(),
+            expected: accepted(),
+        });
     }
     if let Some(prefix) = unit.strip_suffix(['W', 'w']) {
         let scale = small_prefix(prefix)
@@ -349,14 +368,14 @@ fn split_volt_unit(unit: &str) -> Option<(&str, &str)> {
     Some((&unit[..at], &unit[at + 1..]))
 }
 
-fn check_positive(text: &str, level: Level) -> Result<(), UnitError> {
+fn check_positive(text: &str, level: Level, expected: &'static str) -> Result<(), UnitError> {
     let (value, why) = match level {
         Level::Dbm(_) | Level::Dbw(_) => return Ok(()),
         Level::Watts(w) => (
             w,
             ": a power in watts is never zero or negative (use dBm for small levels)",
         ),
-        Level::Volts { volts, .. } => (volts, ": an RF voltage is a magnitude, greater than zero"),
+        Level::Volts { volts, .. } => (volts, ": an RF voltage is a magnitude"),
     };
     if value > 0.0 {
         Ok(())
@@ -364,6 +383,7 @@ fn check_positive(text: &str, level: Level) -> Result<(), UnitError> {
         Err(UnitError::NotPositive {
             input: text.trim().to_string(),
             why,
+            expected,
         })
     }
 }
@@ -371,7 +391,8 @@ fn check_positive(text: &str, level: Level) -> Result<(), UnitError> {
 /// Parses a frequency such as `14.2MHz`, `433 MHz`, `2.4GHz`, `10k` or plain Hz; in hertz.
 pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
     let text = normalise(text);
-    let (value, unit) = split_number(&text, "a frequency such as 14.2MHz")?;
+    let expected = "a frequency such as 14.2MHz, 433 MHz, 10k or 2.4GHz";
+    let (value, unit) = split_number(&text, expected)?;
     let scale = match unit {
         "m" => {
             let hint = "write M or MHz for megahertz (a lone m reads like a wavelength band)";
@@ -393,6 +414,7 @@ pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
         Err(UnitError::NotPositive {
             input: text.trim().to_string(),
             why: "",
+            expected,
         })
     }
 }
@@ -412,6 +434,7 @@ pub fn parse_duration(text: &str) -> Result<Duration, UnitError> {
             return Err(UnitError::NotPositive {
                 input: text.trim().to_string(),
                 why: ": a duration cannot be negative",
+                expected,
             });
         }
         let unit_len = after
@@ -431,6 +454,7 @@ pub fn parse_duration(text: &str) -> Result<Duration, UnitError> {
     }
     Duration::try_from_secs_f64(seconds).map_err(|_| UnitError::NotFinite {
         input: text.trim().to_string(),
+        expected,
     })
 }
 

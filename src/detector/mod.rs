@@ -161,7 +161,7 @@ pub fn rms(errors: &[f64]) -> f64 {
 
 /// The points ordered by applied level, after checking the count, duplicates and
 /// monotone output; indices in errors refer to the order given.
-pub(crate) fn ordered_points(
+pub fn ordered_points(
     points: &[CalPoint],
     model: ModelKind,
 ) -> Result<Vec<CalPoint>, ModelError> {

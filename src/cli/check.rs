@@ -1,0 +1,30 @@
+//! `dbtrail check`: validate a profile and summarise what it can measure.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+use dbtrail::calibration::Calibration;
+use dbtrail::profile::load_profile;
+
+use super::{emit, parse_frequency_arg, summary, BadInput, Failure};
+
+#[derive(clap::Args)]
+pub struct Args {
+    /// The profile file (TOML)
+    profile: PathBuf,
+    /// Frequency in use, e.g. 145.5MHz (default: the profile's reference frequency)
+    #[arg(long, value_parser = parse_frequency_arg)]
+    freq: Option<f64>,
+}
+
+pub fn run(args: Args) -> Result<(), Failure> {
+    let profile = load_profile(&args.profile)
+        .with_context(|| "check the profile and run `dbtrail check` again")
+        .bad_input()?;
+    let cal = Calibration::new(&profile, args.freq, 0.0);
+    let mut text = summary::setup(&profile, &cal);
+    text.push_str(&summary::resolution(&cal));
+    text.push_str(&summary::residuals(&profile));
+    text.push_str(&format!("\n{} is valid.\n", args.profile.display()));
+    emit(&text)
+}

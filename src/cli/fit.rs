@@ -1,0 +1,181 @@
+//! `dbtrail fit`: fit a detector model to a points CSV and write the profile.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use anyhow::{anyhow, Context};
+use dbtrail::calibration::Calibration;
+use dbtrail::points::{read_points, PointRow};
+use dbtrail::profile::raw::{FreqValue, RawAdc, RawModel, RawProfile};
+use dbtrail::profile::{parse_profile, render_profile, Profile, ProfileError};
+use dbtrail::units::DEFAULT_OHMS;
+
+use super::{emit, parse_frequency_arg, parse_ohms, summary, BadInput, Failure, Runtime};
+
+#[derive(clap::Args)]
+pub struct Args {
+    /// Points file: CSV with header `applied,counts`
+    points: PathBuf,
+    /// Detector model to fit
+    #[arg(long, value_parser = ["table", "diode", "log"])]
+    model: String,
+    /// ADC resolution in bits (1 to 24)
+    #[arg(long)]
+    adc_bits: i64,
+    /// ADC reference voltage, volts
+    #[arg(long)]
+    vref: f64,
+    /// Divider ratio: detector volts / ADC pin volts
+    #[arg(long, default_value_t = 1.0)]
+    divider: f64,
+    /// Reference impedance in ohms
+    #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms)]
+    ohms: f64,
+    /// Frequency the points were measured at, e.g. 10MHz
+    #[arg(long, default_value = "10MHz", value_parser = parse_frequency_arg)]
+    freq: f64,
+    /// Profile name (default: the output file's stem)
+    #[arg(long)]
+    name: Option<String>,
+    /// Where to write the profile
+    #[arg(long)]
+    out: PathBuf,
+    /// Overwrite the output file if it exists
+    #[arg(long)]
+    force: bool,
+}
+
+pub fn run(args: Args) -> Result<(), Failure> {
+    let origin = args.points.display().to_string();
+    let bytes = std::fs::read(&args.points)
+        .with_context(|| format!("cannot read points file {origin}; check the path"))
+        .bad_input()?;
+    let rows = read_points(&bytes, &origin).bad_input()?;
+    let raw = raw_profile(&args, &rows);
+    let profile = validate(&raw, &rows, &origin).bad_input()?;
+    let raw = with_fitted_params(raw, &profile);
+    let header = format!(
+        "Written by dbtrail fit from {origin}.\nApplied levels are at the detector input, measured at {}.",
+        dbtrail::units::format_frequency(args.freq)
+    );
+    let text = render_profile(&raw, &header)
+        .context("cannot render the profile as TOML")
+        .runtime()?;
+    write_new(&args.out, &text, args.force)?;
+    let cal = Calibration::new(&profile, None, 0.0);
+    let mut report = summary::setup(&profile, &cal);
+    report.push_str(&summary::residuals(&profile));
+    report.push_str(&format!("\nWrote {}.\n", args.out.display()));
+    emit(&report)
+}
+
+fn raw_profile(args: &Args, rows: &[PointRow]) -> RawProfile {
+    let name = args.name.clone().unwrap_or_else(|| {
+        args.out
+            .file_stem()
+            .map_or("detector".into(), |s| s.to_string_lossy().into_owned())
+    });
+    RawProfile {
+        name,
+        description: None,
+        ohms: Some(args.ohms),
+        reference_frequency: FreqValue::Hz(args.freq),
+        adc: RawAdc {
+            bits: args.adc_bits,
+            vref: args.vref,
+            divider: Some(args.divider),
+            zero_counts: None,
+            clip_margin: None,
+        },
+        model: RawModel {
+            kind: args.model.clone(),
+            axis: None,
+            temperature: None,
+            n: None,
+            vl: None,
+            slope: None,
+            intercept: None,
+            points: rows.iter().map(|r| r.point.clone()).collect(),
+        },
+        frequency_correction: None,
+        offset: None,
+        limits: None,
+    }
+}
+
+/// Runs the profile through the same validation as a file, with point problems pointed
+/// back at the CSV line they came from.
+fn validate(raw: &RawProfile, rows: &[PointRow], origin: &str) -> anyhow::Result<Profile> {
+    let text = render_profile(raw, "").context("cannot render the profile as TOML")?;
+    match parse_profile(&text, "(fit)") {
+        Ok(profile) => Ok(profile),
+        Err(ProfileError::Invalid { problems, .. }) => {
+            let lines: Vec<String> = problems
+                .iter()
+                .map(|p| match point_index(&p.field) {
+                    Some(i) if i < rows.len() => format!("{origin}:{}: {}", rows[i].line, p.message),
+                    _ => format!("{}: {}", option_name(&p.field), p.message),
+                })
+                .collect();
+            Err(anyhow!("cannot fit these points:\n  {}", lines.join("\n  ")))
+        }
+        Err(e) => Err(e.into()),
+    }
+}
+
+/// `model.points[3].counts` → 3.
+fn point_index(field: &str) -> Option<usize> {
+    let rest = field.strip_prefix("model.points[")?;
+    rest[..rest.find(']')?].parse().ok()
+}
+
+/// The command-line option a profile field came from.
+fn option_name(field: &str) -> String {
+    match field {
+        "adc.bits" => "--adc-bits".into(),
+        "adc.vref" => "--vref".into(),
+        "adc.divider" => "--divider".into(),
+        "ohms" => "--ohms".into(),
+        "reference_frequency" => "--freq".into(),
+        "name" => "--name".into(),
+        "model.points" => "points".into(),
+        other => other.into(),
+    }
+}
+
+/// The raw profile with the fitted parameters written in, so the file keeps them.
+fn with_fitted_params(mut raw: RawProfile, profile: &Profile) -> RawProfile {
+    let model = &profile.model;
+    raw.model.slope = model.param("slope");
+    raw.model.intercept = model.param("intercept");
+    raw.model.n = model.param("n");
+    raw.model.vl = model.param("vl");
+    raw
+}
+
+/// Writes a new file, refusing to replace one unless `force`.
+fn write_new(path: &Path, text: &str, force: bool) -> Result<(), Failure> {
+    let mut options = std::fs::OpenOptions::new();
+    options.write(true);
+    if force {
+        options.create(true).truncate(true);
+    } else {
+        options.create_new(true);
+    }
+    let mut file = match options.open(path) {
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+            return Err(anyhow!(
+                "{} already exists; choose another --out or add --force to overwrite it",
+                path.display()
+            ))
+            .bad_input();
+        }
+        other => other
+            .with_context(|| format!("cannot create {}", path.display()))
+            .runtime()?,
+    };
+    file.write_all(text.as_bytes())
+        .and_then(|()| file.sync_all())
+        .with_context(|| format!("cannot write {}", path.display()))
+        .runtime()
+}

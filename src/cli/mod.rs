@@ -1,0 +1,116 @@
+//! Command-line definition and dispatch; each subcommand lives in its own module.
+//! Exit codes: 0 success, 1 runtime failure, 2 bad usage or bad input.
+
+mod check;
+mod convert;
+mod fit;
+mod summary;
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// How a command failed, which decides the exit code.
+#[derive(Debug)]
+pub enum Failure {
+    /// The user's input was wrong: exit 2.
+    BadInput(anyhow::Error),
+    /// Something went wrong while running: exit 1.
+    Runtime(anyhow::Error),
+}
+
+/// Marks an error as the user's input being wrong.
+pub trait BadInput<T> {
+    /// Wraps the error as bad input.
+    fn bad_input(self) -> Result<T, Failure>;
+}
+
+impl<T, E: Into<anyhow::Error>> BadInput<T> for Result<T, E> {
+    fn bad_input(self) -> Result<T, Failure> {
+        self.map_err(|e| Failure::BadInput(e.into()))
+    }
+}
+
+/// Marks an error as a failure while running.
+pub trait Runtime<T> {
+    /// Wraps the error as a runtime failure.
+    fn runtime(self) -> Result<T, Failure>;
+}
+
+impl<T, E: Into<anyhow::Error>> Runtime<T> for Result<T, E> {
+    fn runtime(self) -> Result<T, Failure> {
+        self.map_err(|e| Failure::Runtime(e.into()))
+    }
+}
+
+#[derive(Parser)]
+#[command(
+    name = "dbtrail",
+    version,
+    about = "Calibrated RF power from low-cost diode and log-amp detectors",
+    after_help = SAFETY_NOTE
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+const SAFETY_NOTE: &str = "Safety: RF power can burn and exposure has limits; keep within the ratings of \
+loads, attenuators and detectors; transmit only as your licence and local regulations allow. \
+Local codes and licensed practice come first.";
+
+#[derive(Subcommand)]
+enum Command {
+    /// Show a power or voltage level in every form: dBm, dBW, W, Vrms, Vpk, Vpp.
+    Convert(convert::Args),
+    /// Validate a detector profile and summarise its span, resolution and fit.
+    Check(check::Args),
+    /// Fit a detector model to a points CSV and write a profile.
+    Fit(fit::Args),
+}
+
+/// Parses the command line, runs the command and turns the outcome into an exit code.
+pub fn run() -> ExitCode {
+    let cli = Cli::parse();
+    let outcome = match cli.command {
+        Command::Convert(args) => convert::run(args),
+        Command::Check(args) => check::run(args),
+        Command::Fit(args) => fit::run(args),
+    };
+    match outcome {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(Failure::BadInput(e)) => report(&e, 2),
+        Err(Failure::Runtime(e)) => report(&e, 1),
+    }
+}
+
+fn report(error: &anyhow::Error, code: u8) -> ExitCode {
+    eprintln!("dbtrail: error: {error:#}");
+    ExitCode::from(code)
+}
+
+/// Writes command output to stdout; a closed pipe (`| head`) is not an error.
+pub fn emit(text: &str) -> Result<(), Failure> {
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(Failure::Runtime(anyhow::Error::new(e).context("cannot write to standard output")))
+        }
+        _ => Ok(()),
+    }
+}
+
+/// Parses a reference impedance given on the command line.
+pub fn parse_ohms(text: &str) -> Result<f64, String> {
+    let trimmed = text.trim().trim_end_matches(['Ω', 'Ω']).trim_end_matches("ohms").trim_end_matches("ohm");
+    match trimmed.trim().parse::<f64>() {
+        Ok(r) if r.is_finite() && r > 0.0 => Ok(r),
+        _ => Err(format!("`{text}` is not an impedance; give a positive number of ohms, e.g. 50 or 75")),
+    }
+}
+
+/// clap adapter for a frequency such as `145.5MHz`.
+pub fn parse_frequency_arg(text: &str) -> Result<f64, String> {
+    dbtrail::units::parse_frequency(text).map_err(|e| e.to_string())
+}

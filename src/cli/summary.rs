@@ -1,0 +1,126 @@
+//! Text that `check` and `fit` both print: a profile's set-up, its span and resolution,
+//! and the residuals of its fit.
+
+use std::fmt::Write;
+
+use dbtrail::calibration::Calibration;
+use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
+use dbtrail::profile::Profile;
+use dbtrail::units::{format_frequency, format_signed_db, Si};
+
+/// The model line: which model and its parameters.
+fn model_line(profile: &Profile) -> String {
+    let model = &profile.model;
+    let source = if model.fitted_at_load { "fitted at load" } else { "from the profile" };
+    let count = profile.points.len();
+    let raw = &profile.raw.model;
+    match model.kind {
+        ModelKind::Table => format!(
+            "table of {count} points, PCHIP on {} axis",
+            model.axis.map_or("log-volts", |a| a.name())
+        ),
+        ModelKind::Log => format!(
+            "log-amp, {source} over {count} points: slope {:.3} mV/dB, intercept {:.2} dBm",
+            model.param("slope").unwrap_or(f64::NAN) * 1e3,
+            model.param("intercept").unwrap_or(f64::NAN)
+        ),
+        ModelKind::Diode => format!(
+            "diode peak detector, {source} over {count} points: n = {:.4}, V_L = Is·RL = {}, T = {} K",
+            model.param("n").unwrap_or(f64::NAN),
+            Si::new(model.param("vl").unwrap_or(f64::NAN), "V"),
+            raw.temperature.unwrap_or(300.0)
+        ),
+    }
+}
+
+/// The set-up block: model, ADC, frequency, offset, span and limits.
+pub fn setup(profile: &Profile, cal: &Calibration) -> String {
+    let mut out = String::new();
+    let adc = cal.adc();
+    let (lo, hi) = cal.span_dbm();
+    let (dlo, dhi) = cal.detector().span_dbm();
+    let _ = writeln!(out, "{}{}", profile.name, if profile.description.is_empty() { String::new() } else { format!(": {}", profile.description) });
+    let _ = writeln!(out, "  model      {}", model_line(profile));
+    for note in &profile.model.notes {
+        let _ = writeln!(out, "  note       {note}");
+    }
+    let _ = writeln!(
+        out,
+        "  ADC        {} bits, vref {} V, divider {}, zero {} counts; clip at {:.0} counts or more",
+        adc.bits(),
+        adc.vref(),
+        adc.divider(),
+        adc.zero_counts(),
+        adc.clip_threshold()
+    );
+    let _ = writeln!(out, "  impedance  {} Ω", profile.ohms);
+    let outside = if cal.fixed_flags().is_empty() { "" } else { " (outside the table: end value used)" };
+    let _ = writeln!(
+        out,
+        "  frequency  {} (curve taken at {}): correction {}, offset {}{outside}",
+        format_frequency(cal.freq_hz()),
+        format_frequency(profile.reference_hz),
+        format_signed_db(cal.correction_db()),
+        format_signed_db(cal.offset_db())
+    );
+    let _ = writeln!(
+        out,
+        "  span       {lo:+.2} to {hi:+.2} dBm at the reference plane ({dlo:+.2} to {dhi:+.2} dBm at the detector)"
+    );
+    let limits = &profile.limits;
+    let limit = |v: Option<f64>| v.map_or("none".to_string(), |v| format!("{v:+.1} dBm"));
+    let _ = writeln!(
+        out,
+        "  limits     detector safe input {}; reference-plane rating {}",
+        limit(limits.detector_max_dbm),
+        limit(limits.reference_max_dbm)
+    );
+    out
+}
+
+/// dB per ADC count at evenly spaced levels across the span.
+pub fn resolution(cal: &Calibration) -> String {
+    let (lo, hi) = cal.span_dbm();
+    let mut out = String::from("\nResolution across the span\n  reference dBm     counts   dB per count\n");
+    for i in 0..6 {
+        let level = lo + (hi - lo) * f64::from(i) / 5.0;
+        let _ = writeln!(out, "  {level:>13.2} {:>10.1} {:>14.3}", cal.counts_for(level), cal.db_per_count(level));
+    }
+    out
+}
+
+/// Each point's error under the model, and the RMS; for a table, the leave-one-out error.
+pub fn residuals(profile: &Profile) -> String {
+    let errors = profile.residuals_db();
+    let detector = profile.model.detector.as_ref();
+    let table = profile.model.kind == ModelKind::Table;
+    let loo = profile.model.axis.map(|axis| leave_one_out_db(&profile.cal_points(), axis));
+    let mut out = String::from("\nCalibration points (at the detector; error = model minus applied)\n");
+    out.push_str("  applied          counts    model dBm   error dB");
+    out.push_str(if table { "   if left out\n" } else { "\n" });
+    for (i, point) in profile.points.iter().enumerate() {
+        let _ = write!(
+            out,
+            "  {:<14} {:>8.2} {:>12.3} {:>+10.3}",
+            point.applied,
+            point.counts,
+            detector.dbm_at(point.volts),
+            errors[i]
+        );
+        if let Some(loo) = &loo {
+            let _ = write!(out, "   {}", loo[i].map_or("(end)".to_string(), |e| format!("{e:+.3}")));
+        }
+        out.push('\n');
+    }
+    if table {
+        let interior: Vec<f64> = loo.iter().flatten().flatten().copied().collect();
+        let _ = writeln!(
+            out,
+            "  The table passes through every point; leaving each interior point out gives an RMS of {:.3} dB,\n  an estimate of the error between points.",
+            rms(&interior)
+        );
+    } else {
+        let _ = writeln!(out, "  RMS error {:.3} dB over {} points", rms(&errors), errors.len());
+    }
+    out
+}

@@ -1,0 +1,310 @@
+//! Detector profiles: TOML files that describe one detector and its set-up (ADC, model and
+//! calibration points, frequency correction, offset, limits), loaded in two stages: serde
+//! reads the raw fields ([`raw`]), then validation checks every value and builds the model,
+//! reporting each problem with its file, line, column and field ([`locate`]).
+
+pub mod locate;
+pub mod raw;
+mod validate;
+
+use std::fmt;
+use std::path::Path;
+use std::sync::Arc;
+
+use thiserror::Error;
+
+use crate::adc::Adc;
+use crate::correction::{FreqTable, Offset};
+use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind};
+use crate::units::Level;
+use locate::{line_col, Located};
+pub use raw::RawProfile;
+
+/// The largest profile file read; anything bigger is not a profile.
+pub const MAX_PROFILE_BYTES: usize = 1 << 20;
+
+/// One thing wrong with a profile, and where.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Problem {
+    /// 1-based line.
+    pub line: usize,
+    /// 1-based column.
+    pub column: usize,
+    /// The field, e.g. `model.points[2].counts`, or `(file)`.
+    pub field: String,
+    /// What is wrong and what to do.
+    pub message: String,
+}
+
+/// Why a profile could not be used.
+#[derive(Debug, Error)]
+pub enum ProfileError {
+    /// The file could not be read.
+    #[error("cannot read profile {path}: {source}")]
+    Io {
+        /// The path.
+        path: String,
+        /// What the OS said.
+        source: std::io::Error,
+    },
+    /// The file was read but is not a valid profile.
+    #[error("{}", render_problems(origin, problems))]
+    Invalid {
+        /// The file name or other origin.
+        origin: String,
+        /// Every problem found.
+        problems: Vec<Problem>,
+    },
+}
+
+fn render_problems(origin: &str, problems: &[Problem]) -> String {
+    let mut out = format!(
+        "profile {origin} is not valid ({} problem{}):",
+        problems.len(),
+        if problems.len() == 1 { "" } else { "s" }
+    );
+    for p in problems {
+        out.push_str(&format!(
+            "\n  {origin}:{}:{}: {}: {}",
+            p.line, p.column, p.field, p.message
+        ));
+    }
+    out.push_str("\n  (every field is described in docs/profiles.md)");
+    out
+}
+
+/// The detector model a profile built.
+#[derive(Debug, Clone)]
+pub struct Model {
+    /// Which model.
+    pub kind: ModelKind,
+    /// The model itself.
+    pub detector: Arc<dyn Detector>,
+    /// The table axis, for the table model.
+    pub axis: Option<Axis>,
+    /// True when the parameters were fitted at load because the profile did not give them.
+    pub fitted_at_load: bool,
+    /// Remarks about the fit worth showing (a parameter on its bound, for instance).
+    pub notes: Vec<String>,
+    /// The model's parameters by their profile field names (`slope`, `intercept`, `n`, `vl`).
+    pub params: Vec<(&'static str, f64)>,
+}
+
+impl Model {
+    /// A parameter by its profile field name.
+    pub fn param(&self, name: &str) -> Option<f64> {
+        self.params.iter().find(|(n, _)| *n == name).map(|(_, v)| *v)
+    }
+}
+
+/// One calibration point of a profile.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ProfilePoint {
+    /// The applied level as written.
+    pub applied: String,
+    /// The applied level, parsed.
+    pub level: Level,
+    /// The applied level at the detector input, dBm.
+    pub dbm: f64,
+    /// Mean ADC counts.
+    pub counts: f64,
+    /// Detector output volts for those counts.
+    pub volts: f64,
+}
+
+/// Safe levels from the profile.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Limits {
+    /// The detector's safe maximum input, dBm at the detector.
+    pub detector_max_dbm: Option<f64>,
+    /// The rated maximum at the reference plane, dBm.
+    pub reference_max_dbm: Option<f64>,
+}
+
+/// A validated profile, ready to build a [`crate::calibration::Calibration`].
+#[derive(Debug, Clone)]
+pub struct Profile {
+    /// Short name.
+    pub name: String,
+    /// What it is for.
+    pub description: String,
+    /// Reference impedance, ohms.
+    pub ohms: f64,
+    /// The frequency the detector curve was measured at, Hz.
+    pub reference_hz: f64,
+    /// The ADC front end.
+    pub adc: Adc,
+    /// The detector model.
+    pub model: Model,
+    /// The calibration points.
+    pub points: Vec<ProfilePoint>,
+    /// Frequency correction (true minus indicated), if any.
+    pub frequency_correction: Option<FreqTable>,
+    /// Offset of what sits in front of the detector.
+    pub offset: Offset,
+    /// Safe levels.
+    pub limits: Limits,
+    /// The fields as written.
+    pub raw: RawProfile,
+}
+
+impl Profile {
+    /// The points as the models take them.
+    pub fn cal_points(&self) -> Vec<CalPoint> {
+        self.points
+            .iter()
+            .map(|p| CalPoint {
+                dbm: p.dbm,
+                volts: p.volts,
+            })
+            .collect()
+    }
+
+    /// Each point's error in dB under the model.
+    pub fn residuals_db(&self) -> Vec<f64> {
+        residuals_db(self.model.detector.as_ref(), &self.cal_points())
+    }
+}
+
+/// Reads and validates a profile file.
+pub fn load_profile(path: &Path) -> Result<Profile, ProfileError> {
+    let origin = path.display().to_string();
+    let bytes = std::fs::read(path).map_err(|source| ProfileError::Io {
+        path: origin.clone(),
+        source,
+    })?;
+    parse_profile_bytes(&bytes, &origin)
+}
+
+/// Validates a profile given as bytes; `origin` names it in messages.
+pub fn parse_profile_bytes(bytes: &[u8], origin: &str) -> Result<Profile, ProfileError> {
+    let whole_file = |message: String| ProfileError::Invalid {
+        origin: origin.to_string(),
+        problems: vec![Problem {
+            line: 1,
+            column: 1,
+            field: "(file)".into(),
+            message,
+        }],
+    };
+    if bytes.len() > MAX_PROFILE_BYTES {
+        return Err(whole_file(format!(
+            "the file is {} bytes; a profile is at most {} bytes: is this the right file?",
+            bytes.len(),
+            MAX_PROFILE_BYTES
+        )));
+    }
+    let text = std::str::from_utf8(bytes).map_err(|e| {
+        let (line, column) = line_col(&String::from_utf8_lossy(bytes), e.valid_up_to());
+        ProfileError::Invalid {
+            origin: origin.to_string(),
+            problems: vec![Problem {
+                line,
+                column,
+                field: "(file)".into(),
+                message: "bytes that are not UTF-8 text: a profile is a TOML text file".into(),
+            }],
+        }
+    })?;
+    parse_profile(text, origin)
+}
+
+/// Validates a profile given as text; `origin` names it in messages.
+pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> {
+    let invalid = |problems: Vec<Problem>| ProfileError::Invalid {
+        origin: origin.to_string(),
+        problems,
+    };
+    if text.trim().is_empty() {
+        return Err(invalid(vec![Problem {
+            line: 1,
+            column: 1,
+            field: "(file)".into(),
+            message: "the profile is empty; start from one in profiles/".into(),
+        }]));
+    }
+    let doc = Located::parse(text).map_err(|e| {
+        let (line, column) = line_col(text, e.span().map_or(0, |s| s.start));
+        invalid(vec![Problem {
+            line,
+            column,
+            field: "(syntax)".into(),
+            message: format!("not valid TOML: {}", e.message().trim()),
+        }])
+    })?;
+    let unknown = doc.unknown_keys();
+    if !unknown.is_empty() {
+        let problems = unknown
+            .into_iter()
+            .map(|(path, span, message)| {
+                let (line, column) = doc.line_col(span.start);
+                Problem {
+                    line,
+                    column,
+                    field: path.to_string(),
+                    message,
+                }
+            })
+            .collect();
+        return Err(invalid(problems));
+    }
+    let raw: RawProfile = toml::from_str(text).map_err(|e| {
+        let at = e.span().map_or(0, |s| s.start);
+        let (line, column) = doc.line_col(at);
+        invalid(vec![Problem {
+            line,
+            column,
+            field: doc.path_at(at).to_string(),
+            message: friendly_serde_message(e.message()),
+        }])
+    })?;
+    validate::validate(raw).map_err(|found| {
+        let mut problems: Vec<Problem> = found
+            .into_iter()
+            .map(|(path, message)| {
+                let (line, column) = doc.line_col(doc.span_of(&path).start);
+                Problem {
+                    line,
+                    column,
+                    field: path.to_string(),
+                    message,
+                }
+            })
+            .collect();
+        problems.sort_by_key(|p| (p.line, p.column));
+        invalid(problems)
+    })
+}
+
+/// serde's wording, with the type names a person writing TOML knows.
+fn friendly_serde_message(message: &str) -> String {
+    let message = message
+        .trim()
+        .replace("expected f64", "expected a number")
+        .replace("expected i64", "expected a whole number")
+        .replace("expected u64", "expected a whole number, 0 or more")
+        .replace("expected a string", "expected text in quotes");
+    if let Some(field) = message.strip_prefix("missing field ") {
+        return format!("missing field {field}; it is required here");
+    }
+    message
+}
+
+/// A profile as TOML text, with `header` lines written as comments above it.
+pub fn render_profile(raw: &RawProfile, header: &str) -> Result<String, toml::ser::Error> {
+    let mut out = String::new();
+    for line in header.lines() {
+        out.push_str("# ");
+        out.push_str(line);
+        out.push('\n');
+    }
+    out.push('\n');
+    out.push_str(&toml::to_string(raw)?);
+    Ok(out)
+}
+
+impl fmt::Display for Problem {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}:{}: {}: {}", self.line, self.column, self.field, self.message)
+    }
+}

@@ -1,0 +1,394 @@
+//! The second stage of loading: every value of a raw profile checked, the detector model
+//! built, and each problem tied to its field path.
+
+use std::sync::Arc;
+
+use super::locate::{did_you_mean, FieldPath};
+use super::raw::{RawAdc, RawFreqPoint, RawModel, RawProfile};
+use super::{Limits, Model, Profile, ProfilePoint};
+use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
+use crate::correction::{FreqTable, Offset, TableError};
+use crate::detector::{
+    ordered_points, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
+    ModelKind, TableDetector,
+};
+use crate::units::{parse_level, DEFAULT_OHMS};
+
+type Found = Vec<(FieldPath, String)>;
+
+/// Collects problems as they are found, so a profile reports all of them at once.
+#[derive(Default)]
+struct Checker {
+    found: Found,
+}
+
+impl Checker {
+    fn fail(&mut self, path: FieldPath, message: impl Into<String>) {
+        self.found.push((path, message.into()));
+    }
+
+    /// `value` if it is finite and `ok` holds for it; else a problem saying `want`.
+    fn number(&mut self, path: FieldPath, value: f64, ok: impl Fn(f64) -> bool, want: &str) -> Option<f64> {
+        if value.is_finite() && ok(value) {
+            Some(value)
+        } else if !value.is_finite() {
+            self.fail(path, format!("{value} is not a finite number; {want}"));
+            None
+        } else {
+            self.fail(path, format!("{value} is out of range; {want}"));
+            None
+        }
+    }
+}
+
+pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
+    let mut check = Checker::default();
+    if raw.name.trim().is_empty() {
+        check.fail(FieldPath::key("name"), "the name is empty; give the profile a short name");
+    }
+    let ohms = check.number(
+        FieldPath::key("ohms"),
+        raw.ohms.unwrap_or(DEFAULT_OHMS),
+        |v| v > 0.0,
+        "the reference impedance must be greater than 0 ohms (usually 50)",
+    );
+    let reference_hz = match raw.reference_frequency.hz() {
+        Ok(hz) => Some(hz),
+        Err(e) => {
+            check.fail(FieldPath::key("reference_frequency"), e.to_string());
+            None
+        }
+    };
+    let adc = check_adc(&mut check, &raw.adc);
+    let frequency_correction = raw.frequency_correction.as_ref().and_then(|table| {
+        freq_table(&mut check, &FieldPath::key("frequency_correction").then("points"), &table.points)
+    });
+    let offset = check_offset(&mut check, &raw);
+    let limits = check_limits(&mut check, &raw);
+    let model_and_points = match (adc.as_ref(), ohms) {
+        (Some(adc), Some(ohms)) => check_model(&mut check, &raw.model, adc, ohms),
+        _ => None,
+    };
+    match (ohms, reference_hz, adc, model_and_points, offset, check.found.is_empty()) {
+        (Some(ohms), Some(reference_hz), Some(adc), Some((model, points)), Some(offset), true) => {
+            Ok(Profile {
+                name: raw.name.trim().to_string(),
+                description: raw.description.clone().unwrap_or_default(),
+                ohms,
+                reference_hz,
+                adc,
+                model,
+                points,
+                frequency_correction,
+                offset,
+                limits,
+                raw,
+            })
+        }
+        _ => Err(check.found),
+    }
+}
+
+fn check_adc(check: &mut Checker, raw: &RawAdc) -> Option<Adc> {
+    let at = |field: &str| FieldPath::key("adc").then(field);
+    let bits = if (1..=24).contains(&raw.bits) {
+        Some(raw.bits as u8)
+    } else {
+        check.fail(at("bits"), format!("{} bits is out of range; an ADC has 1 to 24 bits", raw.bits));
+        None
+    };
+    let vref = check.number(at("vref"), raw.vref, |v| v > 0.0, "the reference voltage must be above 0 V");
+    let divider = check.number(
+        at("divider"),
+        raw.divider.unwrap_or(1.0),
+        |v| v > 0.0,
+        "the divider ratio (detector volts / ADC pin volts) must be above 0; 1 when there is none",
+    );
+    let clip_margin = check.number(
+        at("clip_margin"),
+        raw.clip_margin.unwrap_or(DEFAULT_CLIP_MARGIN),
+        |v| (0.0..0.5).contains(&v),
+        "the clip margin is a fraction of full scale from 0 to below 0.5 (default 0.005)",
+    );
+    let bits = bits?;
+    let full_scale = f64::from((1u32 << bits) - 1);
+    let zero_counts = check.number(
+        at("zero_counts"),
+        raw.zero_counts.unwrap_or(0.0),
+        |v| (0.0..full_scale).contains(&v),
+        &format!("the zero offset must be from 0 to below full scale ({full_scale} counts)"),
+    );
+    Some(Adc::new(bits, vref?, divider?, zero_counts?, clip_margin?))
+}
+
+fn freq_table(check: &mut Checker, path: &FieldPath, rows: &[RawFreqPoint]) -> Option<FreqTable> {
+    let mut parsed = Vec::with_capacity(rows.len());
+    for (i, row) in rows.iter().enumerate() {
+        match row.freq.hz() {
+            Ok(hz) => parsed.push((hz, row.db)),
+            Err(e) => check.fail(path.at(i).then("freq"), e.to_string()),
+        }
+    }
+    if parsed.len() != rows.len() {
+        return None;
+    }
+    FreqTable::new(parsed)
+        .map_err(|e| {
+            let field = match e {
+                TableError::Empty => path.clone(),
+                TableError::BadDb { index } => path.at(index).then("db"),
+                TableError::BadFrequency { index, .. } | TableError::NotIncreasing { index, .. } => {
+                    path.at(index).then("freq")
+                }
+            };
+            check.fail(field, e.to_string());
+        })
+        .ok()
+}
+
+fn check_offset(check: &mut Checker, raw: &RawProfile) -> Option<Offset> {
+    let path = FieldPath::key("offset");
+    match raw.offset.as_ref().map(|o| (o.db, o.points.as_deref())) {
+        None | Some((None, None)) => Some(Offset::Fixed(0.0)),
+        Some((Some(db), None)) => check
+            .number(path.then("db"), db, |_| true, "the offset is a dB figure")
+            .map(Offset::Fixed),
+        Some((None, Some(rows))) => freq_table(check, &path.then("points"), rows).map(Offset::Table),
+        Some((Some(_), Some(_))) => {
+            check.fail(path, "give either `db` (a fixed offset) or `points` (a table), not both");
+            None
+        }
+    }
+}
+
+fn check_limits(check: &mut Checker, raw: &RawProfile) -> Limits {
+    let Some(limits) = raw.limits.as_ref() else {
+        return Limits::default();
+    };
+    let path = FieldPath::key("limits");
+    let mut level = |field: &str, value: Option<f64>| {
+        value.and_then(|v| check.number(path.then(field), v, |_| true, "a limit is a level in dBm"))
+    };
+    Limits {
+        detector_max_dbm: level("detector_max_dbm", limits.detector_max_dbm),
+        reference_max_dbm: level("reference_max_dbm", limits.reference_max_dbm),
+    }
+}
+
+fn check_model(
+    check: &mut Checker,
+    raw: &RawModel,
+    adc: &Adc,
+    ohms: f64,
+) -> Option<(Model, Vec<ProfilePoint>)> {
+    let path = FieldPath::key("model");
+    let Some(kind) = ModelKind::from_name(&raw.kind) else {
+        let names = ["table", "log", "diode"];
+        let hint = did_you_mean(&raw.kind, &names).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
+        check.fail(path.then("kind"), format!("unknown model `{}`; {hint}choose table, log or diode", raw.kind));
+        return None;
+    };
+    check_fields_belong(check, raw, kind);
+    let points = check_points(check, raw, adc, ohms, kind)?;
+    let cal: Vec<CalPoint> = points.iter().map(|p| CalPoint { dbm: p.dbm, volts: p.volts }).collect();
+    let built = match kind {
+        ModelKind::Table => build_table(check, raw, &cal),
+        ModelKind::Log => build_log(check, raw, &cal),
+        ModelKind::Diode => build_diode(check, raw, &cal, ohms),
+    };
+    built.map(|model| (model, points))
+}
+
+/// Fields that only some models take must not appear with the others.
+fn check_fields_belong(check: &mut Checker, raw: &RawModel, kind: ModelKind) {
+    let owners: [(&str, bool, ModelKind); 6] = [
+        ("axis", raw.axis.is_some(), ModelKind::Table),
+        ("temperature", raw.temperature.is_some(), ModelKind::Diode),
+        ("n", raw.n.is_some(), ModelKind::Diode),
+        ("vl", raw.vl.is_some(), ModelKind::Diode),
+        ("slope", raw.slope.is_some(), ModelKind::Log),
+        ("intercept", raw.intercept.is_some(), ModelKind::Log),
+    ];
+    for (field, present, owner) in owners {
+        if present && owner != kind {
+            check.fail(
+                FieldPath::key("model").then(field),
+                format!("`{field}` belongs to the {owner} model, but this profile's kind is {kind}; remove it"),
+            );
+        }
+    }
+}
+
+fn check_points(
+    check: &mut Checker,
+    raw: &RawModel,
+    adc: &Adc,
+    ohms: f64,
+    kind: ModelKind,
+) -> Option<Vec<ProfilePoint>> {
+    let path = FieldPath::key("model").then("points");
+    if raw.points.len() < kind.min_points() {
+        check.fail(
+            path.clone(),
+            format!(
+                "the {kind} model needs at least {} calibration points; {} given",
+                kind.min_points(),
+                raw.points.len()
+            ),
+        );
+        return None;
+    }
+    let before = check.found.len();
+    let mut points = Vec::with_capacity(raw.points.len());
+    for (i, point) in raw.points.iter().enumerate() {
+        let level = parse_level(&point.applied, true)
+            .map_err(|e| check.fail(path.at(i).then("applied"), e.to_string()))
+            .ok();
+        let counts = check.number(
+            path.at(i).then("counts"),
+            point.counts,
+            |c| (0.0..=adc.full_scale()).contains(&c),
+            &format!("counts run from 0 to the ADC's full scale, {}", adc.full_scale()),
+        );
+        if counts.is_some_and(|c| adc.is_clipped(c)) {
+            check.fail(
+                path.at(i).then("counts"),
+                format!(
+                    "{} counts is at ADC clip (≥ {:.0}): the true level may be higher; \
+                     re-measure with more attenuation or drop the point",
+                    point.counts,
+                    adc.clip_threshold()
+                ),
+            );
+        }
+        if let Some(std) = point.std_counts {
+            check.number(path.at(i).then("std_counts"), std, |v| v >= 0.0, "a standard deviation is 0 or more");
+        }
+        if let (Some(level), Some(counts)) = (level, counts) {
+            let dbm = level.power(ohms).dbm();
+            points.push(ProfilePoint {
+                applied: point.applied.clone(),
+                level,
+                dbm,
+                counts,
+                volts: adc.volts(counts),
+            });
+        }
+    }
+    (check.found.len() == before).then_some(points)
+}
+
+/// Ties a model error to the point or field it is about.
+fn model_problem(check: &mut Checker, error: ModelError) {
+    let points = FieldPath::key("model").then("points");
+    let path = match &error {
+        ModelError::TooFewPoints { .. } | ModelError::FitFailed { .. } => points,
+        ModelError::DuplicateLevel { second, .. } => points.at(*second).then("applied"),
+        ModelError::NotMonotone { index, .. } | ModelError::NonPositiveOutput { index, .. } => {
+            points.at(*index).then("counts")
+        }
+    };
+    check.fail(path, error.to_string());
+}
+
+fn build_table(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Model> {
+    let axis = match raw.axis.as_deref() {
+        None => Axis::LogVolts,
+        Some(name) => match Axis::from_name(name) {
+            Some(axis) => axis,
+            None => {
+                check.fail(
+                    FieldPath::key("model").then("axis"),
+                    format!("unknown axis `{name}`; choose log-volts (diode detectors) or volts (log-amps)"),
+                );
+                return None;
+            }
+        },
+    };
+    let table = TableDetector::new(cal, axis).map_err(|e| model_problem(check, e)).ok()?;
+    Some(model(Arc::new(table), Some(axis), false, Vec::new(), Vec::new()))
+}
+
+fn build_log(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Model> {
+    let path = FieldPath::key("model");
+    let fitted = LogAmpDetector::fit(cal).map_err(|e| model_problem(check, e)).ok()?;
+    match (raw.slope, raw.intercept) {
+        (None, None) => {
+            let params = vec![("slope", fitted.slope()), ("intercept", fitted.intercept())];
+            Some(model(Arc::new(fitted), None, true, Vec::new(), params))
+        }
+        (Some(slope), Some(intercept)) => {
+            let slope = check.number(path.then("slope"), slope, |v| v != 0.0, "the slope in V/dB is not zero")?;
+            let intercept = check.number(path.then("intercept"), intercept, |_| true, "the intercept is in dBm")?;
+            let detector = LogAmpDetector::new(slope, intercept, fitted.span_dbm());
+            let params = vec![("slope", slope), ("intercept", intercept)];
+            Some(model(Arc::new(detector), None, false, Vec::new(), params))
+        }
+        (Some(_), None) | (None, Some(_)) => {
+            check.fail(path, "give both `slope` and `intercept`, or neither to fit them from the points");
+            None
+        }
+    }
+}
+
+fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64) -> Option<Model> {
+    let path = FieldPath::key("model");
+    let kelvin = check_temperature(check, raw.temperature.unwrap_or(300.0))?;
+    if let Some(index) = cal.iter().position(|p| p.volts <= 0.0) {
+        model_problem(check, ModelError::NonPositiveOutput { index, volts: cal[index].volts, model: ModelKind::Diode });
+        return None;
+    }
+    match (raw.n, raw.vl) {
+        (None, None) => {
+            let fit = DiodeDetector::fit(cal, kelvin, ohms).map_err(|e| model_problem(check, e)).ok()?;
+            let notes = fit
+                .at_bound
+                .iter()
+                .map(|p| format!("the fitted {p} ended on the edge of its search range"))
+                .collect();
+            let params = vec![("n", fit.detector.n()), ("vl", fit.detector.vl())];
+            Some(model(Arc::new(fit.detector), None, true, notes, params))
+        }
+        (Some(n), Some(vl)) => {
+            let sorted = ordered_points(cal, ModelKind::Diode).map_err(|e| model_problem(check, e)).ok()?;
+            let n = check.number(path.then("n"), n, |v| (0.5..=5.0).contains(&v), "the ideality factor n lies from 0.5 to 5")?;
+            let vl = check.number(path.then("vl"), vl, |v| v > 0.0, "V_L = Is·RL is a voltage above 0")?;
+            let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
+            let detector = DiodeDetector::new(n, vl, kelvin, ohms, span);
+            Some(model(Arc::new(detector), None, false, Vec::new(), vec![("n", n), ("vl", vl)]))
+        }
+        (Some(_), None) | (None, Some(_)) => {
+            check.fail(path, "give both `n` and `vl`, or neither to fit them from the points");
+            None
+        }
+    }
+}
+
+fn check_temperature(check: &mut Checker, kelvin: f64) -> Option<f64> {
+    let path = FieldPath::key("model").then("temperature");
+    if kelvin.is_finite() && (0.0..150.0).contains(&kelvin) {
+        check.fail(
+            path,
+            format!("{kelvin} K is far too cold for a bench detector; the temperature is in kelvin (27 °C = 300.15 K)"),
+        );
+        return None;
+    }
+    check.number(path, kelvin, |v| (150.0..=500.0).contains(&v), "the junction temperature is in kelvin, 150 to 500 (default 300)")
+}
+
+fn model(
+    detector: Arc<dyn Detector>,
+    axis: Option<Axis>,
+    fitted_at_load: bool,
+    notes: Vec<String>,
+    params: Vec<(&'static str, f64)>,
+) -> Model {
+    Model {
+        kind: detector.kind(),
+        detector,
+        axis,
+        fitted_at_load,
+        notes,
+        params,
+    }
+}
