@@ -195,7 +195,11 @@ impl Calibration {
             self.detector.dbm_at(volts)
         };
         let dbm = self.to_reference(detector_dbm);
-        if self.limits.detector_max_dbm.is_some_and(|max| detector_dbm > max) {
+        if self
+            .limits
+            .detector_max_dbm
+            .is_some_and(|max| detector_dbm > max)
+        {
             flags |= Flags::OVER_DETECTOR_MAX;
         }
         if self.limits.reference_max_dbm.is_some_and(|max| dbm > max) {
@@ -215,8 +219,16 @@ impl Calibration {
         // A sliver of tolerance so the span's own end points count as inside.
         let slack = 1e-9 * (at_hi - at_lo).abs();
         let rising = at_hi > at_lo;
-        let below = if rising { volts < at_lo - slack } else { volts > at_lo + slack };
-        let above = if rising { volts > at_hi + slack } else { volts < at_hi - slack };
+        let below = if rising {
+            volts < at_lo - slack
+        } else {
+            volts > at_lo + slack
+        };
+        let above = if rising {
+            volts > at_hi + slack
+        } else {
+            volts < at_hi - slack
+        };
         if below {
             Flags::BELOW_SPAN
         } else if above {

@@ -16,7 +16,7 @@ pub enum TableError {
     #[error("the table is empty; give at least one (frequency, dB) row or leave it out")]
     Empty,
     /// A frequency that is not a positive finite number.
-    #[error("row {index}: frequency {hz} Hz must be a positive finite number")]
+    #[error("the frequency ({hz} Hz) must be a positive finite number")]
     BadFrequency {
         /// Row.
         index: usize,
@@ -24,15 +24,16 @@ pub enum TableError {
         hz: f64,
     },
     /// A correction that is NaN or infinite.
-    #[error("row {index}: the dB value must be a finite number")]
+    #[error("the dB value must be a finite number")]
     BadDb {
         /// Row.
         index: usize,
     },
     /// A frequency equal to or below the one before it.
     #[error(
-        "row {index}: {hz} Hz is not above the row before it; list frequencies in rising \
-         order with no duplicates"
+        "{} is not above the frequency of the row before it; list frequencies in rising \
+         order with no duplicates",
+        crate::units::format_frequency(*hz)
     )]
     NotIncreasing {
         /// Row.
@@ -142,10 +143,34 @@ mod tests {
     #[test]
     fn clamps_and_flags_outside_the_table() {
         let t = FreqTable::new(vec![(1e6, 0.1), (30e6, 0.3), (150e6, 1.2)]).unwrap();
-        assert_eq!(t.at(100e3), Lookup { db: 0.1, outside: true });
-        assert_eq!(t.at(433e6), Lookup { db: 1.2, outside: true });
-        assert_eq!(t.at(30e6), Lookup { db: 0.3, outside: false });
-        assert_eq!(t.at(150e6), Lookup { db: 1.2, outside: false });
+        assert_eq!(
+            t.at(100e3),
+            Lookup {
+                db: 0.1,
+                outside: true
+            }
+        );
+        assert_eq!(
+            t.at(433e6),
+            Lookup {
+                db: 1.2,
+                outside: true
+            }
+        );
+        assert_eq!(
+            t.at(30e6),
+            Lookup {
+                db: 0.3,
+                outside: false
+            }
+        );
+        assert_eq!(
+            t.at(150e6),
+            Lookup {
+                db: 1.2,
+                outside: false
+            }
+        );
     }
 
     #[test]
@@ -158,8 +183,14 @@ mod tests {
             FreqTable::new(vec![(1e6, 0.0), (1e6, 0.1)]),
             Err(TableError::NotIncreasing { index: 1, .. })
         ));
-        assert!(matches!(FreqTable::new(vec![(0.0, 0.0)]), Err(TableError::BadFrequency { .. })));
-        assert!(matches!(FreqTable::new(vec![(1.0, f64::NAN)]), Err(TableError::BadDb { .. })));
+        assert!(matches!(
+            FreqTable::new(vec![(0.0, 0.0)]),
+            Err(TableError::BadFrequency { .. })
+        ));
+        assert!(matches!(
+            FreqTable::new(vec![(1.0, f64::NAN)]),
+            Err(TableError::BadDb { .. })
+        ));
         assert_eq!(FreqTable::new(vec![]), Err(TableError::Empty));
     }
 }

@@ -47,8 +47,16 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
         message,
     };
     if let Err(e) = std::str::from_utf8(bytes) {
-        let line = bytes[..e.valid_up_to()].iter().filter(|&&b| b == b'\n').count() as u64 + 1;
-        return Err(fail(line, "(file)", "bytes that are not UTF-8 text; save the file as plain text (UTF-8)".into()));
+        let line = bytes[..e.valid_up_to()]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count() as u64
+            + 1;
+        return Err(fail(
+            line,
+            "(file)",
+            "bytes that are not UTF-8 text; save the file as plain text (UTF-8)".into(),
+        ));
     }
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
@@ -67,19 +75,42 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
         let applied = cell(columns.applied).to_string();
         parse_level(&applied, true).map_err(|e| fail(line, "applied", e.to_string()))?;
         let counts = number(cell(columns.counts)).ok_or_else(|| {
-            fail(line, "counts", format!("`{}` is not a finite number of ADC counts", cell(columns.counts)))
+            fail(
+                line,
+                "counts",
+                format!(
+                    "`{}` is not a finite number of ADC counts",
+                    cell(columns.counts)
+                ),
+            )
         })?;
         let std_counts = optional(columns.std_counts.map(cell), "std_counts", line, &fail)?;
         let samples = match columns.samples.map(cell).filter(|s| !s.is_empty()) {
             None => None,
             Some(s) => Some(s.parse::<u64>().map_err(|_| {
-                fail(line, "samples", format!("`{s}` is not a whole number of samples"))
+                fail(
+                    line,
+                    "samples",
+                    format!("`{s}` is not a whole number of samples"),
+                )
             })?),
         };
-        rows.push(PointRow { point: RawPoint { applied, counts, std_counts, samples }, line });
+        rows.push(PointRow {
+            point: RawPoint {
+                applied,
+                counts,
+                std_counts,
+                samples,
+            },
+            line,
+        });
     }
     if rows.is_empty() {
-        return Err(fail(1, "(file)", "no points after the header; add one row per measured level".into()));
+        return Err(fail(
+            1,
+            "(file)",
+            "no points after the header; add one row per measured level".into(),
+        ));
     }
     Ok(rows)
 }

@@ -41,15 +41,25 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let mut text = format!("{} at {} Ω\n", args.quantity.trim(), args.ohms);
     text.push_str(&format!("  dBm   {:>12.3}\n", power.dbm()));
     text.push_str(&format!("  dBW   {:>12.3}\n", power.dbw()));
-    text.push_str(&format!("  W     {:>12}\n", Si::new(power.watts(), "W").to_string()));
+    text.push_str(&format!(
+        "  W     {:>12}\n",
+        Si::new(power.watts(), "W").to_string()
+    ));
     for (key, volts) in forms {
         let label = match key {
             "vrms" => "Vrms",
             "vpk" => "Vpk ",
             _ => "Vpp ",
         };
-        let note = if key == "vpk" { "   (= the DC to inject when calibrating a peak detector)" } else { "" };
-        text.push_str(&format!("  {label}  {:>12}{note}\n", Si::new(volts, "V").to_string()));
+        let note = if key == "vpk" {
+            "   (= the DC to inject when calibrating a peak detector)"
+        } else {
+            ""
+        };
+        text.push_str(&format!(
+            "  {label}  {:>12}{note}\n",
+            Si::new(volts, "V").to_string()
+        ));
     }
     emit(&text)
 }

@@ -113,11 +113,16 @@ fn validate(raw: &RawProfile, rows: &[PointRow], origin: &str) -> anyhow::Result
             let lines: Vec<String> = problems
                 .iter()
                 .map(|p| match point_index(&p.field) {
-                    Some(i) if i < rows.len() => format!("{origin}:{}: {}", rows[i].line, p.message),
+                    Some(i) if i < rows.len() => {
+                        format!("{origin}:{}: {}", rows[i].line, p.message)
+                    }
                     _ => format!("{}: {}", option_name(&p.field), p.message),
                 })
                 .collect();
-            Err(anyhow!("cannot fit these points:\n  {}", lines.join("\n  ")))
+            Err(anyhow!(
+                "cannot fit these points:\n  {}",
+                lines.join("\n  ")
+            ))
         }
         Err(e) => Err(e.into()),
     }

@@ -56,7 +56,8 @@ struct Cli {
     command: Command,
 }
 
-const SAFETY_NOTE: &str = "Safety: RF power can burn and exposure has limits; keep within the ratings of \
+const SAFETY_NOTE: &str =
+    "Safety: RF power can burn and exposure has limits; keep within the ratings of \
 loads, attenuators and detectors; transmit only as your licence and local regulations allow. \
 Local codes and licensed practice come first.";
 
@@ -94,19 +95,25 @@ fn report(error: &anyhow::Error, code: u8) -> ExitCode {
 pub fn emit(text: &str) -> Result<(), Failure> {
     let mut out = std::io::stdout().lock();
     match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
-        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
-            Err(Failure::Runtime(anyhow::Error::new(e).context("cannot write to standard output")))
-        }
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(Failure::Runtime(
+            anyhow::Error::new(e).context("cannot write to standard output"),
+        )),
         _ => Ok(()),
     }
 }
 
 /// Parses a reference impedance given on the command line.
 pub fn parse_ohms(text: &str) -> Result<f64, String> {
-    let trimmed = text.trim().trim_end_matches(['Ω', 'Ω']).trim_end_matches("ohms").trim_end_matches("ohm");
+    let trimmed = text
+        .trim()
+        .trim_end_matches(['Ω', 'Ω'])
+        .trim_end_matches("ohms")
+        .trim_end_matches("ohm");
     match trimmed.trim().parse::<f64>() {
         Ok(r) if r.is_finite() && r > 0.0 => Ok(r),
-        _ => Err(format!("`{text}` is not an impedance; give a positive number of ohms, e.g. 50 or 75")),
+        _ => Err(format!(
+            "`{text}` is not an impedance; give a positive number of ohms, e.g. 50 or 75"
+        )),
     }
 }
 

@@ -11,7 +11,11 @@ use dbtrail::units::{format_frequency, format_signed_db, Si};
 /// The model line: which model and its parameters.
 fn model_line(profile: &Profile) -> String {
     let model = &profile.model;
-    let source = if model.fitted_at_load { "fitted at load" } else { "from the profile" };
+    let source = if model.fitted_at_load {
+        "fitted at load"
+    } else {
+        "from the profile"
+    };
     let count = profile.points.len();
     let raw = &profile.raw.model;
     match model.kind {
@@ -39,7 +43,16 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
     let adc = cal.adc();
     let (lo, hi) = cal.span_dbm();
     let (dlo, dhi) = cal.detector().span_dbm();
-    let _ = writeln!(out, "{}{}", profile.name, if profile.description.is_empty() { String::new() } else { format!(": {}", profile.description) });
+    let _ = writeln!(
+        out,
+        "{}{}",
+        profile.name,
+        if profile.description.is_empty() {
+            String::new()
+        } else {
+            format!(": {}", profile.description)
+        }
+    );
     let _ = writeln!(out, "  model      {}", model_line(profile));
     for note in &profile.model.notes {
         let _ = writeln!(out, "  note       {note}");
@@ -54,7 +67,11 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
         adc.clip_threshold()
     );
     let _ = writeln!(out, "  impedance  {} Ω", profile.ohms);
-    let outside = if cal.fixed_flags().is_empty() { "" } else { " (outside the table: end value used)" };
+    let outside = if cal.fixed_flags().is_empty() {
+        ""
+    } else {
+        " (outside the table: end value used)"
+    };
     let _ = writeln!(
         out,
         "  frequency  {} (curve taken at {}): correction {}, offset {}{outside}",
@@ -81,10 +98,16 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
 /// dB per ADC count at evenly spaced levels across the span.
 pub fn resolution(cal: &Calibration) -> String {
     let (lo, hi) = cal.span_dbm();
-    let mut out = String::from("\nResolution across the span\n  reference dBm     counts   dB per count\n");
+    let mut out =
+        String::from("\nResolution across the span\n  reference dBm     counts   dB per count\n");
     for i in 0..6 {
         let level = lo + (hi - lo) * f64::from(i) / 5.0;
-        let _ = writeln!(out, "  {level:>13.2} {:>10.1} {:>14.3}", cal.counts_for(level), cal.db_per_count(level));
+        let _ = writeln!(
+            out,
+            "  {level:>13.2} {:>10.1} {:>14.3}",
+            cal.counts_for(level),
+            cal.db_per_count(level)
+        );
     }
     out
 }
@@ -94,8 +117,12 @@ pub fn residuals(profile: &Profile) -> String {
     let errors = profile.residuals_db();
     let detector = profile.model.detector.as_ref();
     let table = profile.model.kind == ModelKind::Table;
-    let loo = profile.model.axis.map(|axis| leave_one_out_db(&profile.cal_points(), axis));
-    let mut out = String::from("\nCalibration points (at the detector; error = model minus applied)\n");
+    let loo = profile
+        .model
+        .axis
+        .map(|axis| leave_one_out_db(&profile.cal_points(), axis));
+    let mut out =
+        String::from("\nCalibration points (at the detector; error = model minus applied)\n");
     out.push_str("  applied          counts    model dBm   error dB");
     out.push_str(if table { "   if left out\n" } else { "\n" });
     for (i, point) in profile.points.iter().enumerate() {
@@ -108,7 +135,11 @@ pub fn residuals(profile: &Profile) -> String {
             errors[i]
         );
         if let Some(loo) = &loo {
-            let _ = write!(out, "   {}", loo[i].map_or("(end)".to_string(), |e| format!("{e:+.3}")));
+            let _ = write!(
+                out,
+                "   {}",
+                loo[i].map_or("(end)".to_string(), |e| format!("{e:+.3}"))
+            );
         }
         out.push('\n');
     }
@@ -120,7 +151,12 @@ pub fn residuals(profile: &Profile) -> String {
             rms(&interior)
         );
     } else {
-        let _ = writeln!(out, "  RMS error {:.3} dB over {} points", rms(&errors), errors.len());
+        let _ = writeln!(
+            out,
+            "  RMS error {:.3} dB over {} points",
+            rms(&errors),
+            errors.len()
+        );
     }
     out
 }

@@ -84,7 +84,7 @@ pub enum ModelError {
         got: usize,
     },
     /// Two points at the same applied level.
-    #[error("points {first} and {second} are at the same applied level ({dbm:.3} dBm)")]
+    #[error("this point repeats the applied level of another ({dbm:.3} dBm); keep one of them")]
     DuplicateLevel {
         /// Index of the first.
         first: usize,
@@ -95,9 +95,8 @@ pub enum ModelError {
     },
     /// The detector output does not move one way only as the applied level rises.
     #[error(
-        "point {index} breaks the monotone order: at {dbm:.3} dBm the output is {volts:.6} V, \
-         which does not continue the trend of the neighbouring levels; \
-         re-measure it or delete it"
+        "at {dbm:.3} dBm the output is {volts:.6} V, which breaks the steady rise (or fall) of \
+         the output with level; re-measure this point or delete it"
     )]
     NotMonotone {
         /// Index of the offending point.
@@ -109,7 +108,7 @@ pub enum ModelError {
     },
     /// A point with zero or negative output where the model needs it positive.
     #[error(
-        "point {index} reads {volts:.6} V, at or below zero; the {model} model needs a positive \
+        "this point reads {volts:.6} V, at or below zero; the {model} model needs a positive \
          detector output (check the ADC zero offset)"
     )]
     NonPositiveOutput {
@@ -161,10 +160,7 @@ pub fn rms(errors: &[f64]) -> f64 {
 
 /// The points ordered by applied level, after checking the count, duplicates and
 /// monotone output; indices in errors refer to the order given.
-pub fn ordered_points(
-    points: &[CalPoint],
-    model: ModelKind,
-) -> Result<Vec<CalPoint>, ModelError> {
+pub fn ordered_points(points: &[CalPoint], model: ModelKind) -> Result<Vec<CalPoint>, ModelError> {
     if points.len() < model.min_points() {
         return Err(ModelError::TooFewPoints {
             model,

@@ -83,12 +83,27 @@ const SCHEMA: &[(&str, &[&str])] = &[
             "limits",
         ],
     ),
-    ("adc", &["bits", "vref", "divider", "zero_counts", "clip_margin"]),
+    (
+        "adc",
+        &["bits", "vref", "divider", "zero_counts", "clip_margin"],
+    ),
     (
         "model",
-        &["kind", "axis", "temperature", "n", "vl", "slope", "intercept", "points"],
+        &[
+            "kind",
+            "axis",
+            "temperature",
+            "n",
+            "vl",
+            "slope",
+            "intercept",
+            "points",
+        ],
     ),
-    ("model.points", &["applied", "counts", "std_counts", "samples"]),
+    (
+        "model.points",
+        &["applied", "counts", "std_counts", "samples"],
+    ),
     ("frequency_correction", &["points"]),
     ("frequency_correction.points", &["freq", "db"]),
     ("offset", &["db", "points"]),
@@ -119,6 +134,11 @@ impl<'a> Located<'a> {
         Ok(Located { text, root })
     }
 
+    /// True when the file holds no keys at all (only comments and blank lines).
+    pub fn is_blank(&self) -> bool {
+        self.root.get_ref().is_empty()
+    }
+
     /// 1-based line and column of a byte offset.
     pub fn line_col(&self, offset: usize) -> (usize, usize) {
         line_col(self.text, offset)
@@ -131,7 +151,9 @@ impl<'a> Located<'a> {
         let mut array: Option<&toml::de::DeArray> = None;
         for seg in &path.0 {
             let next = match (seg, table, array) {
-                (Seg::Key(k), Some(t), _) => t.iter().find(|(key, _)| key.get_ref() == k).map(|(_, v)| v),
+                (Seg::Key(k), Some(t), _) => {
+                    t.iter().find(|(key, _)| key.get_ref() == k).map(|(_, v)| v)
+                }
                 (Seg::Index(i), _, Some(a)) => a.get(*i),
                 _ => None,
             };
@@ -143,29 +165,24 @@ impl<'a> Located<'a> {
         span
     }
 
-    /// The path of the innermost value whose span holds `offset`.
+    /// The path of the innermost key or value whose span holds `offset`. A table's own
+    /// span may cover only its `[header]`, so every table is searched, not just those whose
+    /// span holds the offset.
     pub fn path_at(&self, offset: usize) -> FieldPath {
         let mut path = FieldPath::default();
-        let mut value: Option<&DeValue> = None;
-        let mut table = Some(self.root.get_ref());
-        loop {
-            let found = if let Some(t) = table {
-                t.iter()
-                    .find(|(k, v)| v.span().contains(&offset) || k.span().contains(&offset))
-                    .map(|(k, v)| (Seg::Key(k.get_ref().to_string()), v))
-            } else if let Some(a) = value.and_then(DeValue::as_array) {
-                a.iter()
-                    .enumerate()
-                    .find(|(_, v)| v.span().contains(&offset))
-                    .map(|(i, v)| (Seg::Index(i), v))
-            } else {
-                None
-            };
-            let Some((seg, next)) = found else { return path };
-            path.0.push(seg);
-            value = Some(next.get_ref());
-            table = next.get_ref().as_table();
-        }
+        search_table(self.root.get_ref(), offset, &mut path, &|k, v| {
+            v.span().contains(&offset) || k.is_some_and(|k| k.span().contains(&offset))
+        });
+        path
+    }
+
+    /// The path of the table that starts at `offset` (serde points a missing field there).
+    pub fn table_at(&self, offset: usize) -> FieldPath {
+        let mut path = FieldPath::default();
+        search_table(self.root.get_ref(), offset, &mut path, &|_, v| {
+            v.get_ref().is_table() && v.span().start == offset
+        });
+        path
     }
 
     /// Every key the profile format does not have: (path, span, message).
@@ -176,7 +193,47 @@ impl<'a> Located<'a> {
     }
 }
 
-fn walk_table(table: &DeTable, path: &FieldPath, found: &mut Vec<(FieldPath, Range<usize>, String)>) {
+type Matcher<'m> = dyn Fn(Option<&Spanned<toml::de::DeString>>, &Spanned<DeValue>) -> bool + 'm;
+
+/// Depth-first search for the deepest entry that `hit` accepts; leaves its path in `path`.
+fn search_table(table: &DeTable, offset: usize, path: &mut FieldPath, hit: &Matcher) -> bool {
+    for (key, value) in table {
+        path.0.push(Seg::Key(key.get_ref().to_string()));
+        if search_value(value, offset, path, hit) || hit(Some(key), value) {
+            return true;
+        }
+        path.0.pop();
+    }
+    false
+}
+
+fn search_value(
+    value: &Spanned<DeValue>,
+    offset: usize,
+    path: &mut FieldPath,
+    hit: &Matcher,
+) -> bool {
+    match value.get_ref() {
+        DeValue::Table(inner) => search_table(inner, offset, path, hit),
+        DeValue::Array(items) => {
+            for (i, item) in items.iter().enumerate() {
+                path.0.push(Seg::Index(i));
+                if search_value(item, offset, path, hit) || hit(None, item) {
+                    return true;
+                }
+                path.0.pop();
+            }
+            false
+        }
+        _ => false,
+    }
+}
+
+fn walk_table(
+    table: &DeTable,
+    path: &FieldPath,
+    found: &mut Vec<(FieldPath, Range<usize>, String)>,
+) {
     let schema_name = path.schema_name();
     let Some((_, allowed)) = SCHEMA.iter().find(|(name, _)| *name == schema_name) else {
         return;
@@ -214,8 +271,14 @@ pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
     let offset = offset.min(text.len());
     let before = &text.as_bytes()[..offset];
     let line = before.iter().filter(|&&b| b == b'\n').count() + 1;
-    let line_start = before.iter().rposition(|&b| b == b'\n').map_or(0, |p| p + 1);
-    let column = String::from_utf8_lossy(&before[line_start..]).chars().count() + 1;
+    let line_start = before
+        .iter()
+        .rposition(|&b| b == b'\n')
+        .map_or(0, |p| p + 1);
+    let column = String::from_utf8_lossy(&before[line_start..])
+        .chars()
+        .count()
+        + 1;
     (line, column)
 }
 
@@ -230,7 +293,10 @@ mod tests {
         let path = FieldPath::key("model").then("points").at(0).then("counts");
         let span = doc.span_of(&path);
         assert_eq!(doc.line_col(span.start), (6, 10));
-        assert_eq!(doc.path_at(span.start).to_string(), "model.points[0].counts");
+        assert_eq!(
+            doc.path_at(span.start).to_string(),
+            "model.points[0].counts"
+        );
     }
 
     #[test]

@@ -93,7 +93,10 @@ pub struct Model {
 impl Model {
     /// A parameter by its profile field name.
     pub fn param(&self, name: &str) -> Option<f64> {
-        self.params.iter().find(|(n, _)| *n == name).map(|(_, v)| *v)
+        self.params
+            .iter()
+            .find(|(n, _)| *n == name)
+            .map(|(_, v)| *v)
     }
 }
 
@@ -232,6 +235,15 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
             message: format!("not valid TOML: {}", e.message().trim()),
         }])
     })?;
+    if doc.is_blank() {
+        return Err(invalid(vec![Problem {
+            line: 1,
+            column: 1,
+            field: "(file)".into(),
+            message: "the profile holds only comments or blank lines; start from one in profiles/"
+                .into(),
+        }]));
+    }
     let unknown = doc.unknown_keys();
     if !unknown.is_empty() {
         let problems = unknown
@@ -251,10 +263,14 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
     let raw: RawProfile = toml::from_str(text).map_err(|e| {
         let at = e.span().map_or(0, |s| s.start);
         let (line, column) = doc.line_col(at);
+        let field = match missing_field(e.message()) {
+            Some(name) => doc.table_at(at).then(name),
+            None => doc.path_at(at),
+        };
         invalid(vec![Problem {
             line,
             column,
-            field: doc.path_at(at).to_string(),
+            field: field.to_string(),
             message: friendly_serde_message(e.message()),
         }])
     })?;
@@ -276,6 +292,12 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
     })
 }
 
+/// The field named by serde's "missing field `x`" message.
+fn missing_field(message: &str) -> Option<&str> {
+    let rest = message.trim().strip_prefix("missing field `")?;
+    rest.split('`').next()
+}
+
 /// serde's wording, with the type names a person writing TOML knows.
 fn friendly_serde_message(message: &str) -> String {
     let message = message
@@ -283,9 +305,10 @@ fn friendly_serde_message(message: &str) -> String {
         .replace("expected f64", "expected a number")
         .replace("expected i64", "expected a whole number")
         .replace("expected u64", "expected a whole number, 0 or more")
-        .replace("expected a string", "expected text in quotes");
+        .replace("expected a string", "expected text in quotes")
+        .replace("expected a sequence", "expected a list [ … ]");
     if let Some(field) = message.strip_prefix("missing field ") {
-        return format!("missing field {field}; it is required here");
+        return format!("{field} is required and missing; add it");
     }
     message
 }
@@ -305,6 +328,10 @@ pub fn render_profile(raw: &RawProfile, header: &str) -> Result<String, toml::se
 
 impl fmt::Display for Problem {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}:{}: {}: {}", self.line, self.column, self.field, self.message)
+        write!(
+            f,
+            "{}:{}: {}: {}",
+            self.line, self.column, self.field, self.message
+        )
     }
 }

@@ -9,8 +9,8 @@ use super::{Limits, Model, Profile, ProfilePoint};
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{FreqTable, Offset, TableError};
 use crate::detector::{
-    ordered_points, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
-    ModelKind, TableDetector,
+    ordered_points, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError, ModelKind,
+    TableDetector,
 };
 use crate::units::{parse_level, DEFAULT_OHMS};
 
@@ -28,7 +28,13 @@ impl Checker {
     }
 
     /// `value` if it is finite and `ok` holds for it; else a problem saying `want`.
-    fn number(&mut self, path: FieldPath, value: f64, ok: impl Fn(f64) -> bool, want: &str) -> Option<f64> {
+    fn number(
+        &mut self,
+        path: FieldPath,
+        value: f64,
+        ok: impl Fn(f64) -> bool,
+        want: &str,
+    ) -> Option<f64> {
         if value.is_finite() && ok(value) {
             Some(value)
         } else if !value.is_finite() {
@@ -44,7 +50,10 @@ impl Checker {
 pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
     let mut check = Checker::default();
     if raw.name.trim().is_empty() {
-        check.fail(FieldPath::key("name"), "the name is empty; give the profile a short name");
+        check.fail(
+            FieldPath::key("name"),
+            "the name is empty; give the profile a short name",
+        );
     }
     let ohms = check.number(
         FieldPath::key("ohms"),
@@ -61,7 +70,11 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
     };
     let adc = check_adc(&mut check, &raw.adc);
     let frequency_correction = raw.frequency_correction.as_ref().and_then(|table| {
-        freq_table(&mut check, &FieldPath::key("frequency_correction").then("points"), &table.points)
+        freq_table(
+            &mut check,
+            &FieldPath::key("frequency_correction").then("points"),
+            &table.points,
+        )
     });
     let offset = check_offset(&mut check, &raw);
     let limits = check_limits(&mut check, &raw);
@@ -69,7 +82,14 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
         (Some(adc), Some(ohms)) => check_model(&mut check, &raw.model, adc, ohms),
         _ => None,
     };
-    match (ohms, reference_hz, adc, model_and_points, offset, check.found.is_empty()) {
+    match (
+        ohms,
+        reference_hz,
+        adc,
+        model_and_points,
+        offset,
+        check.found.is_empty(),
+    ) {
         (Some(ohms), Some(reference_hz), Some(adc), Some((model, points)), Some(offset), true) => {
             Ok(Profile {
                 name: raw.name.trim().to_string(),
@@ -94,10 +114,18 @@ fn check_adc(check: &mut Checker, raw: &RawAdc) -> Option<Adc> {
     let bits = if (1..=24).contains(&raw.bits) {
         Some(raw.bits as u8)
     } else {
-        check.fail(at("bits"), format!("{} bits is out of range; an ADC has 1 to 24 bits", raw.bits));
+        check.fail(
+            at("bits"),
+            format!("{} bits is out of range; an ADC has 1 to 24 bits", raw.bits),
+        );
         None
     };
-    let vref = check.number(at("vref"), raw.vref, |v| v > 0.0, "the reference voltage must be above 0 V");
+    let vref = check.number(
+        at("vref"),
+        raw.vref,
+        |v| v > 0.0,
+        "the reference voltage must be above 0 V",
+    );
     let divider = check.number(
         at("divider"),
         raw.divider.unwrap_or(1.0),
@@ -137,9 +165,8 @@ fn freq_table(check: &mut Checker, path: &FieldPath, rows: &[RawFreqPoint]) -> O
             let field = match e {
                 TableError::Empty => path.clone(),
                 TableError::BadDb { index } => path.at(index).then("db"),
-                TableError::BadFrequency { index, .. } | TableError::NotIncreasing { index, .. } => {
-                    path.at(index).then("freq")
-                }
+                TableError::BadFrequency { index, .. }
+                | TableError::NotIncreasing { index, .. } => path.at(index).then("freq"),
             };
             check.fail(field, e.to_string());
         })
@@ -153,9 +180,14 @@ fn check_offset(check: &mut Checker, raw: &RawProfile) -> Option<Offset> {
         Some((Some(db), None)) => check
             .number(path.then("db"), db, |_| true, "the offset is a dB figure")
             .map(Offset::Fixed),
-        Some((None, Some(rows))) => freq_table(check, &path.then("points"), rows).map(Offset::Table),
+        Some((None, Some(rows))) => {
+            freq_table(check, &path.then("points"), rows).map(Offset::Table)
+        }
         Some((Some(_), Some(_))) => {
-            check.fail(path, "give either `db` (a fixed offset) or `points` (a table), not both");
+            check.fail(
+                path,
+                "give either `db` (a fixed offset) or `points` (a table), not both",
+            );
             None
         }
     }
@@ -184,13 +216,27 @@ fn check_model(
     let path = FieldPath::key("model");
     let Some(kind) = ModelKind::from_name(&raw.kind) else {
         let names = ["table", "log", "diode"];
-        let hint = did_you_mean(&raw.kind, &names).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
-        check.fail(path.then("kind"), format!("unknown model `{}`; {hint}choose table, log or diode", raw.kind));
+        let hint = did_you_mean(&raw.kind, &names)
+            .map(|c| format!("did you mean `{c}`? "))
+            .unwrap_or_default();
+        check.fail(
+            path.then("kind"),
+            format!(
+                "unknown model `{}`; {hint}choose table, log or diode",
+                raw.kind
+            ),
+        );
         return None;
     };
     check_fields_belong(check, raw, kind);
     let points = check_points(check, raw, adc, ohms, kind)?;
-    let cal: Vec<CalPoint> = points.iter().map(|p| CalPoint { dbm: p.dbm, volts: p.volts }).collect();
+    let cal: Vec<CalPoint> = points
+        .iter()
+        .map(|p| CalPoint {
+            dbm: p.dbm,
+            volts: p.volts,
+        })
+        .collect();
     let built = match kind {
         ModelKind::Table => build_table(check, raw, &cal),
         ModelKind::Log => build_log(check, raw, &cal),
@@ -248,7 +294,10 @@ fn check_points(
             path.at(i).then("counts"),
             point.counts,
             |c| (0.0..=adc.full_scale()).contains(&c),
-            &format!("counts run from 0 to the ADC's full scale, {}", adc.full_scale()),
+            &format!(
+                "counts run from 0 to the ADC's full scale, {}",
+                adc.full_scale()
+            ),
         );
         if counts.is_some_and(|c| adc.is_clipped(c)) {
             check.fail(
@@ -262,7 +311,12 @@ fn check_points(
             );
         }
         if let Some(std) = point.std_counts {
-            check.number(path.at(i).then("std_counts"), std, |v| v >= 0.0, "a standard deviation is 0 or more");
+            check.number(
+                path.at(i).then("std_counts"),
+                std,
+                |v| v >= 0.0,
+                "a standard deviation is 0 or more",
+            );
         }
         if let (Some(level), Some(counts)) = (level, counts) {
             let dbm = level.power(ohms).dbm();
@@ -305,27 +359,50 @@ fn build_table(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<
             }
         },
     };
-    let table = TableDetector::new(cal, axis).map_err(|e| model_problem(check, e)).ok()?;
-    Some(model(Arc::new(table), Some(axis), false, Vec::new(), Vec::new()))
+    let table = TableDetector::new(cal, axis)
+        .map_err(|e| model_problem(check, e))
+        .ok()?;
+    Some(model(
+        Arc::new(table),
+        Some(axis),
+        false,
+        Vec::new(),
+        Vec::new(),
+    ))
 }
 
 fn build_log(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Model> {
     let path = FieldPath::key("model");
-    let fitted = LogAmpDetector::fit(cal).map_err(|e| model_problem(check, e)).ok()?;
+    let fitted = LogAmpDetector::fit(cal)
+        .map_err(|e| model_problem(check, e))
+        .ok()?;
     match (raw.slope, raw.intercept) {
         (None, None) => {
             let params = vec![("slope", fitted.slope()), ("intercept", fitted.intercept())];
             Some(model(Arc::new(fitted), None, true, Vec::new(), params))
         }
         (Some(slope), Some(intercept)) => {
-            let slope = check.number(path.then("slope"), slope, |v| v != 0.0, "the slope in V/dB is not zero")?;
-            let intercept = check.number(path.then("intercept"), intercept, |_| true, "the intercept is in dBm")?;
+            let slope = check.number(
+                path.then("slope"),
+                slope,
+                |v| v != 0.0,
+                "the slope in V/dB is not zero",
+            )?;
+            let intercept = check.number(
+                path.then("intercept"),
+                intercept,
+                |_| true,
+                "the intercept is in dBm",
+            )?;
             let detector = LogAmpDetector::new(slope, intercept, fitted.span_dbm());
             let params = vec![("slope", slope), ("intercept", intercept)];
             Some(model(Arc::new(detector), None, false, Vec::new(), params))
         }
         (Some(_), None) | (None, Some(_)) => {
-            check.fail(path, "give both `slope` and `intercept`, or neither to fit them from the points");
+            check.fail(
+                path,
+                "give both `slope` and `intercept`, or neither to fit them from the points",
+            );
             None
         }
     }
@@ -335,12 +412,21 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
     let path = FieldPath::key("model");
     let kelvin = check_temperature(check, raw.temperature.unwrap_or(300.0))?;
     if let Some(index) = cal.iter().position(|p| p.volts <= 0.0) {
-        model_problem(check, ModelError::NonPositiveOutput { index, volts: cal[index].volts, model: ModelKind::Diode });
+        model_problem(
+            check,
+            ModelError::NonPositiveOutput {
+                index,
+                volts: cal[index].volts,
+                model: ModelKind::Diode,
+            },
+        );
         return None;
     }
     match (raw.n, raw.vl) {
         (None, None) => {
-            let fit = DiodeDetector::fit(cal, kelvin, ohms).map_err(|e| model_problem(check, e)).ok()?;
+            let fit = DiodeDetector::fit(cal, kelvin, ohms)
+                .map_err(|e| model_problem(check, e))
+                .ok()?;
             let notes = fit
                 .at_bound
                 .iter()
@@ -350,15 +436,36 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
             Some(model(Arc::new(fit.detector), None, true, notes, params))
         }
         (Some(n), Some(vl)) => {
-            let sorted = ordered_points(cal, ModelKind::Diode).map_err(|e| model_problem(check, e)).ok()?;
-            let n = check.number(path.then("n"), n, |v| (0.5..=5.0).contains(&v), "the ideality factor n lies from 0.5 to 5")?;
-            let vl = check.number(path.then("vl"), vl, |v| v > 0.0, "V_L = Is·RL is a voltage above 0")?;
+            let sorted = ordered_points(cal, ModelKind::Diode)
+                .map_err(|e| model_problem(check, e))
+                .ok()?;
+            let n = check.number(
+                path.then("n"),
+                n,
+                |v| (0.5..=5.0).contains(&v),
+                "the ideality factor n lies from 0.5 to 5",
+            )?;
+            let vl = check.number(
+                path.then("vl"),
+                vl,
+                |v| v > 0.0,
+                "V_L = Is·RL is a voltage above 0",
+            )?;
             let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
             let detector = DiodeDetector::new(n, vl, kelvin, ohms, span);
-            Some(model(Arc::new(detector), None, false, Vec::new(), vec![("n", n), ("vl", vl)]))
+            Some(model(
+                Arc::new(detector),
+                None,
+                false,
+                Vec::new(),
+                vec![("n", n), ("vl", vl)],
+            ))
         }
         (Some(_), None) | (None, Some(_)) => {
-            check.fail(path, "give both `n` and `vl`, or neither to fit them from the points");
+            check.fail(
+                path,
+                "give both `n` and `vl`, or neither to fit them from the points",
+            );
             None
         }
     }
@@ -373,7 +480,12 @@ fn check_temperature(check: &mut Checker, kelvin: f64) -> Option<f64> {
         );
         return None;
     }
-    check.number(path, kelvin, |v| (150.0..=500.0).contains(&v), "the junction temperature is in kelvin, 150 to 500 (default 300)")
+    check.number(
+        path,
+        kelvin,
+        |v| (150.0..=500.0).contains(&v),
+        "the junction temperature is in kelvin, 150 to 500 (default 300)",
+    )
 }
 
 fn model(

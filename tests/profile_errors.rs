@@ -1,0 +1,224 @@
+//! Every malformed profile under tests/profiles/bad/ must fail with a message that names the
+//! offending line and field; the shipped profiles must load.
+
+use dbtrail::profile::{
+    load_profile, parse_profile, parse_profile_bytes, ProfileError, MAX_PROFILE_BYTES,
+};
+use std::path::Path;
+
+fn problems(name: &str) -> Vec<dbtrail::profile::Problem> {
+    let path = format!(
+        "{}/tests/profiles/bad/{name}.toml",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    match load_profile(Path::new(&path)) {
+        Ok(_) => panic!("{name} should have been refused"),
+        Err(ProfileError::Invalid { problems, .. }) => problems,
+        Err(e) => panic!("{name}: unexpected error {e}"),
+    }
+}
+
+/// (file, line, field, a fragment of the message)
+const CASES: &[(&str, usize, &str, &str)] = &[
+    (
+        "syntax_unterminated_string",
+        1,
+        "(syntax)",
+        "not valid TOML",
+    ),
+    ("syntax_missing_equals", 6, "(syntax)", "expected `=`"),
+    ("unknown_key_adc", 7, "adc.bitz", "did you mean `bits`"),
+    (
+        "unknown_key_top",
+        2,
+        "refrence_frequency",
+        "did you mean `reference_frequency`",
+    ),
+    (
+        "unknown_key_point",
+        12,
+        "model.points[1].count",
+        "did you mean `counts`",
+    ),
+    ("unknown_table", 16, "limts", "did you mean `limits`"),
+    ("wrong_type_bits", 5, "adc.bits", "expected a whole number"),
+    ("wrong_type_points", 10, "model.points", "expected a list"),
+    ("missing_vref", 4, "adc.vref", "required and missing"),
+    ("missing_name", 1, "name", "required and missing"),
+    ("bits_out_of_range", 5, "adc.bits", "1 to 24 bits"),
+    ("vref_zero", 6, "adc.vref", "above 0 V"),
+    ("vref_nan", 6, "adc.vref", "not a finite number"),
+    (
+        "counts_infinite",
+        12,
+        "model.points[1].counts",
+        "not a finite number",
+    ),
+    (
+        "counts_over_full_scale",
+        13,
+        "model.points[2].counts",
+        "full scale, 4095",
+    ),
+    ("counts_at_clip", 13, "model.points[2].counts", "ADC clip"),
+    ("ohms_negative", 2, "ohms", "greater than 0 ohms"),
+    (
+        "zero_counts_out_of_range",
+        7,
+        "adc.zero_counts",
+        "below full scale",
+    ),
+    ("too_few_points_table", 10, "model.points", "at least 2"),
+    ("too_few_points_log", 10, "model.points", "at least 3"),
+    ("too_few_points_diode", 10, "model.points", "at least 4"),
+    (
+        "non_monotone_points",
+        12,
+        "model.points[1].counts",
+        "re-measure this point",
+    ),
+    (
+        "duplicate_level",
+        13,
+        "model.points[2].applied",
+        "repeats the applied level",
+    ),
+    (
+        "bad_unit_applied",
+        12,
+        "model.points[1].applied",
+        "unknown unit `dBmW`",
+    ),
+    (
+        "mega_watt_applied",
+        12,
+        "model.points[1].applied",
+        "for milli write `mW`",
+    ),
+    (
+        "unknown_model_kind",
+        9,
+        "model.kind",
+        "did you mean `diode`",
+    ),
+    (
+        "axis_on_diode",
+        10,
+        "model.axis",
+        "belongs to the table model",
+    ),
+    ("unknown_axis", 10, "model.axis", "unknown axis `log`"),
+    (
+        "temperature_in_celsius",
+        10,
+        "model.temperature",
+        "in kelvin",
+    ),
+    ("diode_n_without_vl", 8, "model", "both `n` and `vl`"),
+    ("log_slope_zero", 10, "model.slope", "not zero"),
+    (
+        "reference_frequency_lone_m",
+        2,
+        "reference_frequency",
+        "write M or MHz",
+    ),
+    (
+        "frequencies_unsorted",
+        19,
+        "frequency_correction.points[1].freq",
+        "rising order",
+    ),
+    (
+        "frequencies_duplicate",
+        19,
+        "frequency_correction.points[1].freq",
+        "no duplicates",
+    ),
+    (
+        "frequency_bad_unit",
+        19,
+        "frequency_correction.points[1].freq",
+        "unknown unit `GHzz`",
+    ),
+    ("offset_both_forms", 16, "offset", "not both"),
+    (
+        "limit_not_finite",
+        17,
+        "limits.detector_max_dbm",
+        "not a finite number",
+    ),
+    ("divider_negative", 7, "adc.divider", "must be above 0"),
+    ("clip_margin_too_large", 7, "adc.clip_margin", "below 0.5"),
+    ("name_empty", 1, "name", "name is empty"),
+    ("empty", 1, "(file)", "empty"),
+    ("only_comments", 1, "(file)", "only comments"),
+    ("binary_junk", 1, "(file)", "not UTF-8"),
+];
+
+#[test]
+fn every_malformed_profile_names_its_line_and_field() {
+    for &(name, line, field, fragment) in CASES {
+        let found = problems(name);
+        let hit = found.iter().find(|p| p.field == field);
+        let Some(problem) = hit else {
+            panic!("{name}: no problem on field {field}; got {found:?}");
+        };
+        assert_eq!(problem.line, line, "{name}: {problem:?}");
+        assert!(
+            problem.message.contains(fragment),
+            "{name}: `{}` lacks `{fragment}`",
+            problem.message
+        );
+    }
+}
+
+#[test]
+fn the_corpus_holds_every_file_in_the_folder() {
+    let dir = format!("{}/tests/profiles/bad", env!("CARGO_MANIFEST_DIR"));
+    let files = std::fs::read_dir(dir).unwrap().count();
+    assert_eq!(files, CASES.len(), "add each new bad profile to CASES");
+    assert!(files >= 30);
+}
+
+#[test]
+fn all_problems_of_a_file_are_reported_together() {
+    let text =
+        "name = \"x\"\nohms = 0\nreference_frequency = \"10MHz\"\n[adc]\nbits = 40\nvref = -1\n\
+                [model]\nkind = \"table\"\npoints = []\n";
+    let Err(ProfileError::Invalid { problems, .. }) = parse_profile(text, "multi.toml") else {
+        panic!("should fail");
+    };
+    let fields: Vec<&str> = problems.iter().map(|p| p.field.as_str()).collect();
+    assert_eq!(fields, ["ohms", "adc.bits", "adc.vref"], "{problems:?}");
+}
+
+#[test]
+fn a_huge_file_is_refused_without_parsing() {
+    let big = vec![b'#'; MAX_PROFILE_BYTES + 1];
+    let Err(ProfileError::Invalid { problems, .. }) = parse_profile_bytes(&big, "big.toml") else {
+        panic!("should fail");
+    };
+    assert!(problems[0].message.contains("at most"), "{problems:?}");
+}
+
+#[test]
+fn shipped_profiles_load() {
+    for name in ["demo-diode", "demo-logamp"] {
+        let path = format!("{}/profiles/{name}.toml", env!("CARGO_MANIFEST_DIR"));
+        let profile = load_profile(Path::new(&path)).unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(profile.name, name);
+    }
+}
+
+#[test]
+fn the_rendered_message_carries_file_line_and_column() {
+    let path = format!(
+        "{}/tests/profiles/bad/unknown_key_adc.toml",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let message = load_profile(Path::new(&path)).unwrap_err().to_string();
+    assert!(
+        message.contains("unknown_key_adc.toml:7:1: adc.bitz: unknown key `bitz`"),
+        "{message}"
+    );
+}
