@@ -1,0 +1,122 @@
+//! The whole chain from counts to reference-plane dBm, checked against hand-worked examples.
+
+use dbtrail::calibration::{Calibration, Flags};
+use dbtrail::profile::{parse_profile, Profile};
+
+/// A log-amp on a 12-bit ADC with vref 4.095 V, so one count is exactly 1 mV, with a slope
+/// of 25 mV/dB and an intercept of −80 dBm: the arithmetic can be done by hand.
+fn log_amp_profile(slope: f64, extra: &str) -> Profile {
+    let v = |dbm: f64| slope * (dbm + 80.0) * 1000.0;
+    let text = format!(
+        "name = \"hand\"\nreference_frequency = \"10MHz\"\n[adc]\nbits = 12\nvref = 4.095\n\
+         [model]\nkind = \"log\"\nslope = {slope}\nintercept = -80.0\npoints = [\n\
+         {{ applied = \"-60dBm\", counts = {} }},\n{{ applied = \"-30dBm\", counts = {} }},\n\
+         {{ applied = \"0dBm\", counts = {} }},\n]\n{extra}",
+        v(-60.0) + if slope > 0.0 { 0.0 } else { 4000.0 },
+        v(-30.0) + if slope > 0.0 { 0.0 } else { 4000.0 },
+        v(0.0) + if slope > 0.0 { 0.0 } else { 4000.0 },
+    );
+    parse_profile(&text, "hand.toml").unwrap_or_else(|e| panic!("{e}"))
+}
+
+const CORRECTIONS: &str = "[frequency_correction]\npoints = [ { freq = \"10MHz\", db = 0.0 }, \
+    { freq = \"1GHz\", db = 2.0 } ]\n[offset]\ndb = 30.0\n\
+    [limits]\ndetector_max_dbm = -5.0\nreference_max_dbm = 20.0\n";
+
+// Source: worked example by hand — 1500 counts = 1.500 V; 1.5/0.025 − 80 = −20 dBm at the
+// detector; 100 MHz lies halfway (in log-frequency) from 10 MHz to 1 GHz, so the correction
+// is +1.0 dB; with a 30 dB attenuator the reference plane sees −20 + 1 + 30 = +11 dBm.
+#[test]
+fn worked_example_of_the_sign_conventions() {
+    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let cal = Calibration::new(&profile, Some(100e6), 0.0);
+    let r = cal.reading(1500.0);
+    assert!((r.volts - 1.5).abs() < 1e-12);
+    assert!((r.detector_dbm + 20.0).abs() < 1e-9);
+    assert!((cal.correction_db() - 1.0).abs() < 1e-12);
+    assert!((r.dbm - 11.0).abs() < 1e-9, "{}", r.dbm);
+    assert_eq!(r.flags, Flags::empty());
+    assert_eq!(r.to_string(), "11.00 dBm");
+}
+
+// Source: worked example — an extra offset given on the command line adds to the profile's.
+#[test]
+fn an_extra_offset_adds_to_the_profile_offset() {
+    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let cal = Calibration::new(&profile, Some(10e6), 10.0);
+    assert!((cal.reading(1500.0).dbm - 20.0).abs() < 1e-9);
+}
+
+#[test]
+fn below_the_span_is_a_bound_not_a_number() {
+    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let cal = Calibration::new(&profile, Some(10e6), 0.0);
+    // 400 counts = 0.4 V = −64 dBm at the detector, under the −60 dBm lowest point.
+    let r = cal.reading(400.0);
+    assert!(r.flags.contains(Flags::BELOW_SPAN));
+    assert!((r.dbm - (-60.0 + 30.0)).abs() < 1e-9);
+    assert_eq!(r.to_string(), "below -30.00 dBm");
+}
+
+#[test]
+fn above_the_span_and_the_safety_limits_are_flagged() {
+    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let cal = Calibration::new(&profile, Some(10e6), 0.0);
+    // 2100 counts = 2.1 V = +4 dBm at the detector: above the 0 dBm top point and the
+    // −5 dBm safe input; +34 dBm at the reference plane is above its +20 dBm rating.
+    let r = cal.reading(2100.0);
+    assert!(r.flags.contains(Flags::ABOVE_SPAN | Flags::OVER_DETECTOR_MAX | Flags::OVER_RATED));
+    assert!((r.dbm - 34.0).abs() < 1e-9);
+    // 1950 counts = −2 dBm at the detector: inside the span, over the safe input; with an
+    // extra −20 dB the reference plane sees +8 dBm, within its rating.
+    let cal = Calibration::new(&profile, Some(10e6), -20.0);
+    let r = cal.reading(1950.0);
+    assert_eq!(r.flags, Flags::OVER_DETECTOR_MAX);
+    assert!((r.dbm - 8.0).abs() < 1e-9);
+}
+
+#[test]
+fn adc_clip_and_frequency_outside_the_table() {
+    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let cal = Calibration::new(&profile, Some(2.4e9), 0.0);
+    assert_eq!(cal.correction_db(), 2.0);
+    assert!(cal.reading(1500.0).flags.contains(Flags::FREQ_OUTSIDE));
+    assert!(cal.reading(4090.0).flags.contains(Flags::ADC_CLIP));
+    assert!(!cal.reading(4070.0).flags.contains(Flags::ADC_CLIP));
+}
+
+#[test]
+fn a_falling_output_log_amp_is_flagged_the_right_way_round() {
+    // Output falls 25 mV per dB (a negative-slope log-amp), offset by 4 V.
+    let profile = log_amp_profile(-0.025, "");
+    let cal = Calibration::new(&profile, None, 0.0);
+    let top = cal.counts_for(0.0);
+    assert!(cal.reading(top - 50.0).flags.contains(Flags::ABOVE_SPAN));
+    assert!(cal.reading(top + 2000.0).flags.contains(Flags::BELOW_SPAN));
+    assert_eq!(cal.reading(top + 500.0).flags, Flags::empty());
+}
+
+// Source: worked example — 1 mV per count over 25 mV per dB is 0.04 dB per count.
+#[test]
+fn resolution_of_a_log_amp_is_constant() {
+    let cal = Calibration::new(&log_amp_profile(0.025, ""), None, 0.0);
+    for dbm in [-55.0, -30.0, -2.0] {
+        assert!((cal.db_per_count(dbm) - 0.04).abs() < 1e-9);
+        assert!((cal.reading(cal.counts_for(dbm)).dbm - dbm).abs() < 1e-9);
+    }
+}
+
+// Source: common practice — a diode detector's resolution is coarse in its square-law
+// region and fine at high level.
+#[test]
+fn diode_profile_resolution_improves_with_level() {
+    let path = format!("{}/profiles/demo-diode.toml", env!("CARGO_MANIFEST_DIR"));
+    let profile = dbtrail::profile::load_profile(std::path::Path::new(&path)).unwrap();
+    let cal = Calibration::new(&profile, None, 0.0);
+    let (lo, hi) = cal.span_dbm();
+    assert!(cal.db_per_count(lo) > 10.0 * cal.db_per_count(hi));
+    for counts in [10.0, 100.0, 1000.0, 2500.0] {
+        let r = cal.reading(counts);
+        assert!((cal.counts_for(r.dbm) - counts).abs() < 1e-6, "{counts}");
+    }
+}
