@@ -10,7 +10,7 @@ pub struct Args {
     #[arg(allow_hyphen_values = true)]
     quantity: String,
     /// Reference impedance in ohms
-    #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms)]
+    #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms, allow_hyphen_values = true)]
     ohms: f64,
     /// Print one JSON object with plain SI numbers
     #[arg(long)]

@@ -29,7 +29,7 @@ pub struct Args {
     #[arg(long, default_value_t = 1.0)]
     divider: f64,
     /// Reference impedance in ohms
-    #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms)]
+    #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms, allow_hyphen_values = true)]
     ohms: f64,
     /// Frequency the points were measured at, e.g. 10MHz
     #[arg(long, default_value = "10MHz", value_parser = parse_frequency_arg)]
@@ -114,7 +114,9 @@ fn validate(raw: &RawProfile, rows: &[PointRow], origin: &str) -> anyhow::Result
                 .iter()
                 .map(|p| match point_index(&p.field) {
                     Some(i) if i < rows.len() => {
-                        format!("{origin}:{}: {}", rows[i].line, p.message)
+                        let column = p.field.rsplit('.').next().filter(|c| !c.contains('['));
+                        let column = column.map_or(String::new(), |c| format!("{c}: "));
+                        format!("{origin}:{}: {column}{}", rows[i].line, p.message)
                     }
                     _ => format!("{}: {}", option_name(&p.field), p.message),
                 })

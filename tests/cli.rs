@@ -1,0 +1,163 @@
+//! The `dbtrail` binary as a user meets it: output, exit codes and messages.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn dbtrail(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_dbtrail"))
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("the binary runs")
+}
+
+fn stdout(out: &Output) -> String {
+    String::from_utf8_lossy(&out.stdout).into_owned()
+}
+
+fn stderr(out: &Output) -> String {
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
+// Source: ../shared/REFERENCES.md (common practice): +13 dBm in 50 Ω is 19.95 mW,
+// 998.8 mVrms, 1.413 Vpk, 2.825 Vpp.
+#[test]
+fn convert_json_has_every_form_in_si_units() {
+    let out = dbtrail(&["convert", "13dBm", "--json"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let v: serde_json::Value = serde_json::from_str(&stdout(&out)).unwrap();
+    let close = |key: &str, want: f64| {
+        let got = v[key].as_f64().unwrap();
+        assert!(((got - want) / want).abs() < 5e-4, "{key}: {got}");
+    };
+    close("dbm", 13.0);
+    close("dbw", -17.0);
+    close("watts", 19.95e-3);
+    close("vrms", 0.9988);
+    close("vpk", 1.413);
+    close("vpp", 2.825);
+    close("ohms", 50.0);
+}
+
+// Source: ../shared/REFERENCES.md: 0 dBm at 75 Ω is 273.9 mVrms.
+#[test]
+fn convert_text_at_75_ohms() {
+    let out = dbtrail(&["convert", "273.86mVrms", "--ohms", "75"]);
+    let text = stdout(&out);
+    assert!(out.status.success());
+    assert!(text.contains("dBm         -0.000") || text.contains("dBm          0.000"), "{text}");
+    assert!(text.contains("387.3 mV") && text.contains("774.6 mV") && text.contains("1.000 mW"), "{text}");
+}
+
+#[test]
+fn convert_refuses_bad_quantities_with_exit_2_and_the_accepted_list() {
+    for bad in ["0W", "-3mW", "-1Vpk", "NaN dBm", "12 parsecs", "1MW"] {
+        let out = dbtrail(&["convert", bad]);
+        assert_eq!(out.status.code(), Some(2), "{bad}");
+        assert!(stderr(&out).contains("dBm"), "{bad}: {}", stderr(&out));
+    }
+    let out = dbtrail(&["convert", "0dBm", "--ohms", "-50"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("positive number of ohms"));
+}
+
+#[test]
+fn check_summarises_a_shipped_profile() {
+    let out = dbtrail(&["check", "profiles/demo-diode.toml", "--freq", "145.5MHz"]);
+    let text = stdout(&out);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(text.contains("diode peak detector"), "{text}");
+    assert!(text.contains("correction +0.60 dB"), "{text}");
+    assert!(text.contains("Resolution across the span") && text.contains("RMS error"), "{text}");
+    assert!(text.contains("is valid"));
+}
+
+#[test]
+fn check_of_a_broken_profile_lists_problems_and_exits_2() {
+    let out = dbtrail(&["check", "tests/profiles/bad/unknown_key_adc.toml"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("unknown_key_adc.toml:7:1: adc.bitz"), "{}", stderr(&out));
+    let out = dbtrail(&["check", "no/such/profile.toml"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("no/such/profile.toml"), "{}", stderr(&out));
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("dbtrail-cli-{}-{name}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+fn fit_args<'a>(points: &'a str, model: &'a str, out: &'a str) -> Vec<&'a str> {
+    vec!["fit", points, "--model", model, "--adc-bits", "12", "--vref", "4.095", "--out", out]
+}
+
+// Source: worked example — points on V = 0.025·(P + 80) with 1 mV per count must fit to a
+// 25 mV/dB slope and a −80 dBm intercept.
+#[test]
+fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
+    let dir = scratch("fit");
+    let points = dir.join("points.csv");
+    let mut csv = String::from("applied,counts\n");
+    for dbm in [-60, -45, -30, -15, 0] {
+        csv.push_str(&format!("{dbm}dBm,{}\n", 25.0 * f64::from(dbm + 80)));
+    }
+    std::fs::write(&points, csv).unwrap();
+    let out_path = dir.join("line.toml");
+    let _ = std::fs::remove_file(&out_path);
+    let (p, o) = (points.to_str().unwrap(), out_path.to_str().unwrap());
+    let out = dbtrail(&fit_args(p, "log", o));
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(stdout(&out).contains("RMS error 0.000 dB"), "{}", stdout(&out));
+    let profile = dbtrail::profile::load_profile(&out_path).unwrap();
+    assert!((profile.raw.model.slope.unwrap() - 0.025).abs() < 1e-12);
+    assert!((profile.raw.model.intercept.unwrap() + 80.0).abs() < 1e-9);
+    assert_eq!(profile.name, "line");
+
+    let again = dbtrail(&fit_args(p, "log", o));
+    assert_eq!(again.status.code(), Some(2));
+    assert!(stderr(&again).contains("already exists") && stderr(&again).contains("--force"));
+    let mut forced = fit_args(p, "table", o);
+    forced.push("--force");
+    assert!(dbtrail(&forced).status.success());
+    assert_eq!(dbtrail::profile::load_profile(&out_path).unwrap().model.kind.name(), "table");
+}
+
+/// (file, model, what the message must name)
+const BAD_POINTS: &[(&str, &str, &str)] = &[
+    ("empty.csv", "table", "empty.csv:1: (file): the file is empty"),
+    ("header_only.csv", "table", "no points after the header"),
+    ("missing_counts_column.csv", "table", "no `counts` column"),
+    ("non_numeric_counts.csv", "table", "non_numeric_counts.csv:3: counts"),
+    ("bad_unit.csv", "table", "bad_unit.csv:3: applied: unknown unit `dBmm`"),
+    ("negative_power.csv", "table", "negative_power.csv:3: applied"),
+    ("short_row.csv", "table", "short_row.csv:3: (row)"),
+    ("nan_counts.csv", "table", "nan_counts.csv:3: counts"),
+    ("non_utf8.csv", "table", "non_utf8.csv:3: (file): bytes that are not UTF-8"),
+    ("non_monotone.csv", "table", "non_monotone.csv:3: counts: at -10.000 dBm"),
+    ("too_few_for_diode.csv", "diode", "at least 4 calibration points; 3 given"),
+    ("counts_over_full_scale.csv", "table", "counts_over_full_scale.csv:4: counts: 5000 is out of range"),
+];
+
+#[test]
+fn malformed_points_files_name_the_line_and_exit_2() {
+    let dir = scratch("bad-points");
+    for &(file, model, want) in BAD_POINTS {
+        let path = Path::new("tests/points/bad").join(file);
+        let out_path = dir.join(format!("{file}.toml"));
+        let out = dbtrail(&fit_args(path.to_str().unwrap(), model, out_path.to_str().unwrap()));
+        assert_eq!(out.status.code(), Some(2), "{file}: {}", stderr(&out));
+        assert!(stderr(&out).contains(want), "{file}: `{}` lacks `{want}`", stderr(&out));
+        assert!(!out_path.exists(), "{file}: nothing may be written on failure");
+    }
+    let files = std::fs::read_dir("tests/points/bad").unwrap().count();
+    assert_eq!(files, BAD_POINTS.len());
+}
+
+#[test]
+fn usage_errors_exit_2_and_help_carries_the_safety_note() {
+    assert_eq!(dbtrail(&["fit"]).status.code(), Some(2));
+    assert_eq!(dbtrail(&["no-such-command"]).status.code(), Some(2));
+    let help = stdout(&dbtrail(&["--help"]));
+    assert!(help.contains("licence") && help.contains("burn"), "{help}");
+}
