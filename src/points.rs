@@ -67,7 +67,11 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
         .map_err(|e| fail(csv_line(&e), "(header)", e.to_string()))?
         .clone();
     if headers.is_empty() {
-        return Err(fail(1, "(file)", "the file is empty; the first line must be a header such as `applied,counts`".into()));
+        return Err(fail(
+            1,
+            "(file)",
+            "the file is empty; the first line must be a header such as `applied,counts`".into(),
+        ));
     }
     let columns = find_columns(&headers).map_err(|m| fail(1, "(header)", m))?;
     let mut rows = Vec::new();

@@ -65,7 +65,9 @@ fn above_the_span_and_the_safety_limits_are_flagged() {
     // 2100 counts = 2.1 V = +4 dBm at the detector: above the 0 dBm top point and the
     // −5 dBm safe input; +34 dBm at the reference plane is above its +20 dBm rating.
     let r = cal.reading(2100.0);
-    assert!(r.flags.contains(Flags::ABOVE_SPAN | Flags::OVER_DETECTOR_MAX | Flags::OVER_RATED));
+    assert!(r
+        .flags
+        .contains(Flags::ABOVE_SPAN | Flags::OVER_DETECTOR_MAX | Flags::OVER_RATED));
     assert!((r.dbm - 34.0).abs() < 1e-9);
     // 1950 counts = −2 dBm at the detector: inside the span, over the safe input; with an
     // extra −20 dB the reference plane sees +8 dBm, within its rating.

@@ -45,8 +45,14 @@ fn convert_text_at_75_ohms() {
     let out = dbtrail(&["convert", "273.86mVrms", "--ohms", "75"]);
     let text = stdout(&out);
     assert!(out.status.success());
-    assert!(text.contains("dBm         -0.000") || text.contains("dBm          0.000"), "{text}");
-    assert!(text.contains("387.3 mV") && text.contains("774.6 mV") && text.contains("1.000 mW"), "{text}");
+    assert!(
+        text.contains("dBm         -0.000") || text.contains("dBm          0.000"),
+        "{text}"
+    );
+    assert!(
+        text.contains("387.3 mV") && text.contains("774.6 mV") && text.contains("1.000 mW"),
+        "{text}"
+    );
 }
 
 #[test]
@@ -68,7 +74,10 @@ fn check_summarises_a_shipped_profile() {
     assert!(out.status.success(), "{}", stderr(&out));
     assert!(text.contains("diode peak detector"), "{text}");
     assert!(text.contains("correction +0.60 dB"), "{text}");
-    assert!(text.contains("Resolution across the span") && text.contains("RMS error"), "{text}");
+    assert!(
+        text.contains("Resolution across the span") && text.contains("RMS error"),
+        "{text}"
+    );
     assert!(text.contains("is valid"));
 }
 
@@ -76,10 +85,18 @@ fn check_summarises_a_shipped_profile() {
 fn check_of_a_broken_profile_lists_problems_and_exits_2() {
     let out = dbtrail(&["check", "tests/profiles/bad/unknown_key_adc.toml"]);
     assert_eq!(out.status.code(), Some(2));
-    assert!(stderr(&out).contains("unknown_key_adc.toml:7:1: adc.bitz"), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("unknown_key_adc.toml:7:1: adc.bitz"),
+        "{}",
+        stderr(&out)
+    );
     let out = dbtrail(&["check", "no/such/profile.toml"]);
     assert_eq!(out.status.code(), Some(2));
-    assert!(stderr(&out).contains("no/such/profile.toml"), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("no/such/profile.toml"),
+        "{}",
+        stderr(&out)
+    );
 }
 
 fn scratch(name: &str) -> PathBuf {
@@ -89,7 +106,18 @@ fn scratch(name: &str) -> PathBuf {
 }
 
 fn fit_args<'a>(points: &'a str, model: &'a str, out: &'a str) -> Vec<&'a str> {
-    vec!["fit", points, "--model", model, "--adc-bits", "12", "--vref", "4.095", "--out", out]
+    vec![
+        "fit",
+        points,
+        "--model",
+        model,
+        "--adc-bits",
+        "12",
+        "--vref",
+        "4.095",
+        "--out",
+        out,
+    ]
 }
 
 // Source: worked example — points on V = 0.025·(P + 80) with 1 mV per count must fit to a
@@ -108,7 +136,11 @@ fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
     let (p, o) = (points.to_str().unwrap(), out_path.to_str().unwrap());
     let out = dbtrail(&fit_args(p, "log", o));
     assert!(out.status.success(), "{}", stderr(&out));
-    assert!(stdout(&out).contains("RMS error 0.000 dB"), "{}", stdout(&out));
+    assert!(
+        stdout(&out).contains("RMS error 0.000 dB"),
+        "{}",
+        stdout(&out)
+    );
     let profile = dbtrail::profile::load_profile(&out_path).unwrap();
     assert!((profile.raw.model.slope.unwrap() - 0.025).abs() < 1e-12);
     assert!((profile.raw.model.intercept.unwrap() + 80.0).abs() < 1e-9);
@@ -120,23 +152,62 @@ fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
     let mut forced = fit_args(p, "table", o);
     forced.push("--force");
     assert!(dbtrail(&forced).status.success());
-    assert_eq!(dbtrail::profile::load_profile(&out_path).unwrap().model.kind.name(), "table");
+    assert_eq!(
+        dbtrail::profile::load_profile(&out_path)
+            .unwrap()
+            .model
+            .kind
+            .name(),
+        "table"
+    );
 }
 
 /// (file, model, what the message must name)
 const BAD_POINTS: &[(&str, &str, &str)] = &[
-    ("empty.csv", "table", "empty.csv:1: (file): the file is empty"),
+    (
+        "empty.csv",
+        "table",
+        "empty.csv:1: (file): the file is empty",
+    ),
     ("header_only.csv", "table", "no points after the header"),
     ("missing_counts_column.csv", "table", "no `counts` column"),
-    ("non_numeric_counts.csv", "table", "non_numeric_counts.csv:3: counts"),
-    ("bad_unit.csv", "table", "bad_unit.csv:3: applied: unknown unit `dBmm`"),
-    ("negative_power.csv", "table", "negative_power.csv:3: applied"),
+    (
+        "non_numeric_counts.csv",
+        "table",
+        "non_numeric_counts.csv:3: counts",
+    ),
+    (
+        "bad_unit.csv",
+        "table",
+        "bad_unit.csv:3: applied: unknown unit `dBmm`",
+    ),
+    (
+        "negative_power.csv",
+        "table",
+        "negative_power.csv:3: applied",
+    ),
     ("short_row.csv", "table", "short_row.csv:3: (row)"),
     ("nan_counts.csv", "table", "nan_counts.csv:3: counts"),
-    ("non_utf8.csv", "table", "non_utf8.csv:3: (file): bytes that are not UTF-8"),
-    ("non_monotone.csv", "table", "non_monotone.csv:3: counts: at -10.000 dBm"),
-    ("too_few_for_diode.csv", "diode", "at least 4 calibration points; 3 given"),
-    ("counts_over_full_scale.csv", "table", "counts_over_full_scale.csv:4: counts: 5000 is out of range"),
+    (
+        "non_utf8.csv",
+        "table",
+        "non_utf8.csv:3: (file): bytes that are not UTF-8",
+    ),
+    (
+        "non_monotone.csv",
+        "table",
+        "non_monotone.csv:3: counts: at -10.000 dBm",
+    ),
+    (
+        "too_few_for_diode.csv",
+        "diode",
+        "at least 4 calibration points; 3 given",
+    ),
+    (
+        "counts_over_full_scale.csv",
+        "table",
+        "counts_over_full_scale.csv:4: counts: 5000 is out of range",
+    ),
 ];
 
 #[test]
@@ -145,10 +216,21 @@ fn malformed_points_files_name_the_line_and_exit_2() {
     for &(file, model, want) in BAD_POINTS {
         let path = Path::new("tests/points/bad").join(file);
         let out_path = dir.join(format!("{file}.toml"));
-        let out = dbtrail(&fit_args(path.to_str().unwrap(), model, out_path.to_str().unwrap()));
+        let out = dbtrail(&fit_args(
+            path.to_str().unwrap(),
+            model,
+            out_path.to_str().unwrap(),
+        ));
         assert_eq!(out.status.code(), Some(2), "{file}: {}", stderr(&out));
-        assert!(stderr(&out).contains(want), "{file}: `{}` lacks `{want}`", stderr(&out));
-        assert!(!out_path.exists(), "{file}: nothing may be written on failure");
+        assert!(
+            stderr(&out).contains(want),
+            "{file}: `{}` lacks `{want}`",
+            stderr(&out)
+        );
+        assert!(
+            !out_path.exists(),
+            "{file}: nothing may be written on failure"
+        );
     }
     let files = std::fs::read_dir("tests/points/bad").unwrap().count();
     assert_eq!(files, BAD_POINTS.len());
