@@ -222,3 +222,35 @@ fn the_rendered_message_carries_file_line_and_column() {
         "{message}"
     );
 }
+
+mod never_panics {
+    use super::*;
+    use proptest::prelude::*;
+
+    const GOOD: &str = include_str!("../profiles/demo-diode.toml");
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(300))]
+
+        #[test]
+        fn random_bytes(bytes in proptest::collection::vec(any::<u8>(), 0..2048)) {
+            let _ = parse_profile_bytes(&bytes, "junk.toml");
+        }
+
+        // A real profile with a stretch cut out or replaced: every outcome must be a
+        // profile or a list of located problems, never a panic.
+        #[test]
+        fn mangled_real_profile(start in 0usize..GOOD.len(), len in 0usize..64, junk in "\\PC{0,8}") {
+            let start = (0..=start).rev().find(|&i| GOOD.is_char_boundary(i)).unwrap_or(0);
+            let end = (start + len).min(GOOD.len());
+            let end = (end..=GOOD.len()).find(|&i| GOOD.is_char_boundary(i)).unwrap_or(GOOD.len());
+            let text = format!("{}{junk}{}", &GOOD[..start], &GOOD[end..]);
+            if let Err(ProfileError::Invalid { problems, .. }) = parse_profile(&text, "m.toml") {
+                prop_assert!(!problems.is_empty());
+                for p in problems {
+                    prop_assert!(p.line >= 1 && p.column >= 1 && !p.field.is_empty());
+                }
+            }
+        }
+    }
+}

@@ -252,3 +252,42 @@ fn diode_input_power_is_stated_at_the_profile_impedance() {
     assert!(rel_err(vpk, 0.3162) < 1e-4);
     assert!(rel_err(det.volts_at(0.0), det.output_for_peak(vpk)) < 1e-15);
 }
+
+mod properties {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(400))]
+
+        // Source: common practice (an inverse must undo its forward map), over the whole
+        // parameter range the fit may return.
+        #[test]
+        fn diode_inverse_of_forward_anywhere(
+            n in 0.8f64..3.0, ln_vl in (1e-5f64).ln()..(1e3f64).ln(), t in 200.0f64..400.0,
+            dbm in -70.0f64..45.0,
+        ) {
+            let det = diode(n, ln_vl.exp(), t);
+            let volts = det.volts_at(dbm);
+            prop_assert!(volts > 0.0 && volts.is_finite());
+            prop_assert!((det.dbm_at(volts) - dbm).abs() < 1e-9);
+        }
+
+        #[test]
+        fn table_is_monotone_between_and_beyond_points(
+            steps in proptest::collection::vec(0.01f64..1.0, 2..12), probe in 0.0f64..1.0,
+        ) {
+            let mut volts = 0.005;
+            let points: Vec<CalPoint> = steps.iter().enumerate().map(|(i, s)| {
+                volts += s;
+                CalPoint { dbm: -30.0 + 3.0 * i as f64, volts }
+            }).collect();
+            for axis in [Axis::LogVolts, Axis::Volts] {
+                let table = TableDetector::new(&points, axis).unwrap();
+                let v = 0.5 * points[0].volts + probe * 2.0 * volts;
+                prop_assert!(table.dbm_at(v * 1.001) > table.dbm_at(v));
+                prop_assert!((table.volts_at(table.dbm_at(v)) - v).abs() < 1e-9 * v.max(1.0));
+            }
+        }
+    }
+}

@@ -1,7 +1,8 @@
 //! The table model: calibration points interpolated by PCHIP of dBm against an axis of the
 //! detector output, either ln(volts) (diode detectors, whose output follows a power law of
 //! the input, so the curve is nearly straight there) or volts (log-amp detectors).
-//! Beyond the end points the end tangent is continued, so the result stays monotone.
+//! Beyond the end points the end interval's secant is continued, so the result stays
+//! monotone (such readings are flagged outside the span by the calibration chain).
 
 use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
 use crate::numeric::solve_bracketed;
@@ -84,14 +85,23 @@ impl TableDetector {
         self.axis
     }
 
-    /// dBm at an axis value, continuing the end tangents outside the knots.
+    /// The slope of the end interval at knot `end` (0 or the last). PCHIP may give an end
+    /// a zero derivative; the secant is never zero for strictly monotone points, so the
+    /// continuation stays monotone and invertible.
+    fn end_secant(&self, end: usize) -> f64 {
+        let (x, y) = (self.curve.x(), self.curve.y());
+        let other = if end == 0 { 1 } else { end - 1 };
+        (y[end] - y[other]) / (x[end] - x[other])
+    }
+
+    /// dBm at an axis value, continuing the end intervals' secants outside the knots.
     fn dbm_on_axis(&self, a: f64) -> f64 {
-        let (x, y, d) = (self.curve.x(), self.curve.y(), self.curve.slopes());
+        let (x, y) = (self.curve.x(), self.curve.y());
         let last = x.len() - 1;
         if a < x[0] {
-            y[0] + d[0] * (a - x[0])
+            y[0] + self.end_secant(0) * (a - x[0])
         } else if a > x[last] {
-            y[last] + d[last] * (a - x[last])
+            y[last] + self.end_secant(last) * (a - x[last])
         } else {
             self.curve.eval(a)
         }
@@ -99,7 +109,7 @@ impl TableDetector {
 
     /// The axis value where the curve reads `dbm` (inverse of `dbm_on_axis`).
     fn axis_at(&self, dbm: f64) -> f64 {
-        let (x, y, d) = (self.curve.x(), self.curve.y(), self.curve.slopes());
+        let (x, y) = (self.curve.x(), self.curve.y());
         let last = x.len() - 1;
         let (lo, hi) = (y[0].min(y[last]), y[0].max(y[last]));
         if dbm < lo || dbm > hi {
@@ -108,7 +118,7 @@ impl TableDetector {
             } else {
                 last
             };
-            return x[end] + (dbm - y[end]) / d[end];
+            return x[end] + (dbm - y[end]) / self.end_secant(end);
         }
         solve_bracketed(|a| self.curve.eval(a) - dbm, x[0], x[last]).unwrap_or(f64::NAN)
     }
