@@ -3,6 +3,7 @@
 //!
 //! The pipeline stages, each in its own module:
 //! - [`units`]: quantities with units (power, RF voltage, frequency, duration, dB);
+//! - [`decode`]: the wire protocol (ASCII lines, binary frames) from bytes to counts;
 //! - [`adc`]: counts to volts at the detector output, and the clip test;
 //! - [`detector`]: detector models (table, log-amp, diode) and their fits;
 //! - [`correction`]: frequency correction and the offset of what sits in front;
@@ -16,6 +17,7 @@
 pub mod adc;
 pub mod calibration;
 pub mod correction;
+pub mod decode;
 pub mod detector;
 pub mod numeric;
 pub mod pchip;

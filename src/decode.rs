@@ -1,0 +1,608 @@
+//! The wire protocol between a detector's microcontroller and dbtrail: decoders for the
+//! ASCII and binary modes, recognition of which one a stream uses, and the matching
+//! encoders (for the simulator and for tests). The byte layout is in docs/protocol.md.
+//!
+//! ASCII: one sample per line, one or more channels as decimal integers separated by comma,
+//! space or tab; CR, LF or CRLF ends a line; `#` starts a comment line. Anything else is a
+//! bad line, counted and never turned into a reading. A line longer than [`MAX_LINE`] bytes
+//! is discarded and counted, so memory stays bounded.
+//!
+//! Binary frame: `A5 5A | seq u16 | n u8 | n × count u16 | crc u16`, little-endian, the CRC
+//! being CRC-16/CCITT-FALSE over `seq`, `n` and the counts. A damaged frame is counted and
+//! the decoder resynchronises on the next sync pattern; gaps in `seq` count dropped frames.
+
+use std::ops::AddAssign;
+
+use crc::{Crc, CRC_16_IBM_3740};
+
+/// The most channels one sample carries.
+pub const MAX_CHANNELS: usize = 8;
+/// The longest ASCII line kept; longer lines are discarded.
+pub const MAX_LINE: usize = 4096;
+/// The two bytes that open a binary frame.
+pub const SYNC: [u8; 2] = [0xA5, 0x5A];
+/// Bytes in a binary frame besides its counts: sync, seq, n, crc.
+const FRAME_OVERHEAD: usize = 7;
+/// The longest binary frame.
+pub const MAX_FRAME: usize = FRAME_OVERHEAD + 2 * MAX_CHANNELS;
+/// How many bytes `Format::Auto` looks at before it must decide.
+pub const AUTO_PROBE: usize = 512;
+
+/// CRC-16/CCITT-FALSE (poly 0x1021, init 0xFFFF), named CRC-16/IBM-3740 in the catalogue.
+pub const FRAME_CRC: Crc<u16> = Crc::<u16>::new(&CRC_16_IBM_3740);
+
+/// One sample of raw ADC counts, one per channel.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct Frame {
+    counts: [u32; MAX_CHANNELS],
+    channels: u8,
+}
+
+impl Frame {
+    /// A frame from counts; None when there are none or more than [`MAX_CHANNELS`].
+    pub fn new(counts: &[u32]) -> Option<Self> {
+        if counts.is_empty() || counts.len() > MAX_CHANNELS {
+            return None;
+        }
+        let mut frame = Frame {
+            counts: [0; MAX_CHANNELS],
+            channels: counts.len() as u8,
+        };
+        frame.counts[..counts.len()].copy_from_slice(counts);
+        Some(frame)
+    }
+
+    /// The counts, one per channel.
+    pub fn counts(&self) -> &[u32] {
+        &self.counts[..usize::from(self.channels)]
+    }
+
+    /// How many channels.
+    pub fn channels(&self) -> usize {
+        usize::from(self.channels)
+    }
+}
+
+/// What a decoder has seen, as counters that add.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct DecodeStats {
+    /// Samples decoded.
+    pub frames: u64,
+    /// ASCII lines that were not a sample or a comment.
+    pub bad_lines: u64,
+    /// ASCII lines discarded for being longer than [`MAX_LINE`].
+    pub long_lines: u64,
+    /// ASCII comment or banner lines.
+    pub comments: u64,
+    /// Binary frames whose CRC did not match.
+    pub crc_errors: u64,
+    /// Binary frames missing according to the sequence counter.
+    pub dropped_frames: u64,
+    /// Bytes skipped while looking for a binary frame's sync pattern.
+    pub skipped_bytes: u64,
+}
+
+impl AddAssign for DecodeStats {
+    fn add_assign(&mut self, o: Self) {
+        self.frames += o.frames;
+        self.bad_lines += o.bad_lines;
+        self.long_lines += o.long_lines;
+        self.comments += o.comments;
+        self.crc_errors += o.crc_errors;
+        self.dropped_frames += o.dropped_frames;
+        self.skipped_bytes += o.skipped_bytes;
+    }
+}
+
+/// Which mode a stream uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// Recognise it from the first bytes.
+    Auto,
+    /// Text lines.
+    Ascii,
+    /// Binary frames.
+    Binary,
+}
+
+impl Format {
+    /// The format for a name: `auto`, `ascii` or `binary`.
+    pub fn from_name(name: &str) -> Option<Self> {
+        match name {
+            "auto" => Some(Format::Auto),
+            "ascii" => Some(Format::Ascii),
+            "binary" => Some(Format::Binary),
+            _ => None,
+        }
+    }
+}
+
+/// Decodes ASCII lines.
+#[derive(Debug, Clone, Default)]
+pub struct AsciiDecoder {
+    line: Vec<u8>,
+    discarding: bool,
+    skip_partial: bool,
+    channels: Option<usize>,
+}
+
+impl AsciiDecoder {
+    /// A decoder for a stream read from its start.
+    pub fn new() -> Self {
+        AsciiDecoder {
+            line: Vec::with_capacity(256),
+            ..Default::default()
+        }
+    }
+
+    /// Forgets any partial line and skips up to the next line end, as after joining a
+    /// stream part-way (a reconnect).
+    pub fn resync(&mut self) {
+        self.line.clear();
+        self.discarding = false;
+        self.skip_partial = true;
+    }
+
+    /// Decodes `bytes`, appending samples to `out`.
+    pub fn feed(&mut self, mut bytes: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+        while let Some(end) = memchr::memchr2(b'\n', b'\r', bytes) {
+            if self.line.is_empty() && !self.discarding && !self.skip_partial {
+                self.finish_line(&bytes[..end], stats, out);
+            } else {
+                self.keep(&bytes[..end]);
+                let line = std::mem::take(&mut self.line);
+                self.end_line(&line, stats, out);
+                self.line = line;
+                self.line.clear();
+            }
+            bytes = &bytes[end + 1..];
+        }
+        self.keep(bytes);
+    }
+
+    /// Ends the stream: a last line without a line end still counts.
+    pub fn finish(&mut self, stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+        if !self.line.is_empty() || self.discarding {
+            let line = std::mem::take(&mut self.line);
+            self.end_line(&line, stats, out);
+        }
+    }
+
+    fn keep(&mut self, part: &[u8]) {
+        if self.discarding || self.skip_partial {
+            return;
+        }
+        if self.line.len() + part.len() > MAX_LINE {
+            self.discarding = true;
+            self.line.clear();
+        } else {
+            self.line.extend_from_slice(part);
+        }
+    }
+
+    fn end_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+        if self.skip_partial {
+            self.skip_partial = false;
+        } else if self.discarding {
+            self.discarding = false;
+            stats.long_lines += 1;
+        } else {
+            self.finish_line(line, stats, out);
+        }
+    }
+
+    fn finish_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+        let line = trim(line);
+        if line.is_empty() {
+            return;
+        }
+        if line[0] == b'#' {
+            stats.comments += 1;
+            return;
+        }
+        match parse_counts(line) {
+            Some(frame) if self.channels.is_none_or(|n| n == frame.channels()) => {
+                self.channels = Some(frame.channels());
+                stats.frames += 1;
+                out.push(frame);
+            }
+            _ => stats.bad_lines += 1,
+        }
+    }
+}
+
+fn is_blank(b: u8) -> bool {
+    b == b' ' || b == b'\t'
+}
+
+fn trim(mut line: &[u8]) -> &[u8] {
+    while let [first, rest @ ..] = line {
+        if !is_blank(*first) {
+            break;
+        }
+        line = rest;
+    }
+    while let [rest @ .., last] = line {
+        if !is_blank(*last) {
+            break;
+        }
+        line = rest;
+    }
+    line
+}
+
+/// Parses `12, 340\t5 6`: integers separated by a comma (with optional blanks around it)
+/// or by blanks alone.
+fn parse_counts(line: &[u8]) -> Option<Frame> {
+    let mut frame = Frame::default();
+    let mut i = 0;
+    loop {
+        let start = i;
+        let mut value: u32 = 0;
+        while let Some(&b) = line.get(i).filter(|b| b.is_ascii_digit()) {
+            value = value.checked_mul(10)?.checked_add(u32::from(b - b'0'))?;
+            i += 1;
+        }
+        if i == start || usize::from(frame.channels) == MAX_CHANNELS {
+            return None;
+        }
+        frame.counts[usize::from(frame.channels)] = value;
+        frame.channels += 1;
+        while line.get(i).copied().is_some_and(is_blank) {
+            i += 1;
+        }
+        if line.get(i) == Some(&b',') {
+            i += 1;
+            while line.get(i).copied().is_some_and(is_blank) {
+                i += 1;
+            }
+            if i == line.len() {
+                return None;
+            }
+        }
+        if i == line.len() {
+            return Some(frame);
+        }
+    }
+}
+
+/// Decodes binary frames.
+#[derive(Debug, Clone, Default)]
+pub struct BinaryDecoder {
+    pending: Vec<u8>,
+    next_seq: Option<u16>,
+}
+
+impl BinaryDecoder {
+    /// A decoder for a stream read from its start.
+    pub fn new() -> Self {
+        BinaryDecoder {
+            pending: Vec::with_capacity(4 * MAX_FRAME),
+            next_seq: None,
+        }
+    }
+
+    /// Forgets partial frames and the sequence, as after a reconnect.
+    pub fn resync(&mut self) {
+        self.pending.clear();
+        self.next_seq = None;
+    }
+
+    /// Decodes `bytes`, appending samples to `out`.
+    pub fn feed(&mut self, bytes: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+        self.pending.extend_from_slice(bytes);
+        let mut at = 0;
+        while let Some(found) = find_sync(&self.pending[at..]) {
+            stats.skipped_bytes += found as u64;
+            at += found;
+            match check_frame(&self.pending[at..]) {
+                FrameCheck::Incomplete => break,
+                FrameCheck::Bad => {
+                    stats.crc_errors += 1;
+                    stats.skipped_bytes += 1;
+                    at += 1;
+                }
+                FrameCheck::Good { seq, frame, len } => {
+                    self.count_sequence(seq, stats);
+                    stats.frames += 1;
+                    out.push(frame);
+                    at += len;
+                }
+            }
+        }
+        // With no sync pattern left (not even a lone first byte at the end), nothing
+        // here can start a frame.
+        if find_sync(&self.pending[at..]).is_none() {
+            stats.skipped_bytes += (self.pending.len() - at) as u64;
+            at = self.pending.len();
+        }
+        self.pending.drain(..at);
+    }
+
+    fn count_sequence(&mut self, seq: u16, stats: &mut DecodeStats) {
+        if let Some(expected) = self.next_seq {
+            let missing = seq.wrapping_sub(expected);
+            // A jump backwards (more than half the counter) is a device restart, not a loss.
+            if missing > 0 && missing < 0x8000 {
+                stats.dropped_frames += u64::from(missing);
+            }
+        }
+        self.next_seq = Some(seq.wrapping_add(1));
+    }
+
+    /// Ends the stream: bytes left over are counted as skipped.
+    pub fn finish(&mut self, stats: &mut DecodeStats) {
+        stats.skipped_bytes += self.pending.len() as u64;
+        self.pending.clear();
+    }
+}
+
+fn find_sync(bytes: &[u8]) -> Option<usize> {
+    let mut from = 0;
+    while let Some(i) = memchr::memchr(SYNC[0], &bytes[from..]) {
+        let at = from + i;
+        match bytes.get(at + 1) {
+            Some(&b) if b == SYNC[1] => return Some(at),
+            None => return Some(at),
+            Some(_) => from = at + 1,
+        }
+    }
+    None
+}
+
+enum FrameCheck {
+    Incomplete,
+    Bad,
+    Good { seq: u16, frame: Frame, len: usize },
+}
+
+/// Checks the frame that starts at the sync pattern at `bytes[0]`.
+fn check_frame(bytes: &[u8]) -> FrameCheck {
+    if bytes.len() < 5 {
+        return FrameCheck::Incomplete;
+    }
+    let n = usize::from(bytes[4]);
+    if n == 0 || n > MAX_CHANNELS {
+        return FrameCheck::Bad;
+    }
+    let len = FRAME_OVERHEAD + 2 * n;
+    if bytes.len() < len {
+        return FrameCheck::Incomplete;
+    }
+    let body = &bytes[2..len - 2];
+    let sent = u16::from_le_bytes([bytes[len - 2], bytes[len - 1]]);
+    if FRAME_CRC.checksum(body) != sent {
+        return FrameCheck::Bad;
+    }
+    let mut frame = Frame {
+        counts: [0; MAX_CHANNELS],
+        channels: n as u8,
+    };
+    for (slot, pair) in frame.counts.iter_mut().zip(body[3..].chunks_exact(2)) {
+        *slot = u32::from(u16::from_le_bytes([pair[0], pair[1]]));
+    }
+    FrameCheck::Good {
+        seq: u16::from_le_bytes([body[0], body[1]]),
+        frame,
+        len,
+    }
+}
+
+/// A decoder for either mode, recognising the mode first when asked to.
+#[derive(Debug, Clone)]
+pub struct Decoder {
+    state: State,
+    stats: DecodeStats,
+}
+
+#[derive(Debug, Clone)]
+enum State {
+    Probing(Vec<u8>),
+    Ascii(AsciiDecoder),
+    Binary(BinaryDecoder),
+}
+
+impl Decoder {
+    /// A decoder for `format`.
+    pub fn new(format: Format) -> Self {
+        let state = match format {
+            Format::Auto => State::Probing(Vec::with_capacity(AUTO_PROBE)),
+            Format::Ascii => State::Ascii(AsciiDecoder::new()),
+            Format::Binary => State::Binary(BinaryDecoder::new()),
+        };
+        Decoder {
+            state,
+            stats: DecodeStats::default(),
+        }
+    }
+
+    /// The mode in use, once known.
+    pub fn format(&self) -> Option<Format> {
+        match self.state {
+            State::Probing(_) => None,
+            State::Ascii(_) => Some(Format::Ascii),
+            State::Binary(_) => Some(Format::Binary),
+        }
+    }
+
+    /// Counters so far.
+    pub fn stats(&self) -> DecodeStats {
+        self.stats
+    }
+
+    /// Decodes `bytes`, appending samples to `out`.
+    pub fn feed(&mut self, bytes: &[u8], out: &mut Vec<Frame>) {
+        match &mut self.state {
+            State::Ascii(d) => d.feed(bytes, &mut self.stats, out),
+            State::Binary(d) => d.feed(bytes, &mut self.stats, out),
+            State::Probing(probe) => {
+                probe.extend_from_slice(bytes);
+                if let Some(format) = recognise(probe, false) {
+                    self.settle(format, out);
+                }
+            }
+        }
+    }
+
+    /// Ends the stream, decoding whatever is left.
+    pub fn finish(&mut self, out: &mut Vec<Frame>) {
+        if let State::Probing(probe) = &self.state {
+            let format = recognise(probe, true).unwrap_or(Format::Ascii);
+            self.settle(format, out);
+        }
+        match &mut self.state {
+            State::Ascii(d) => d.finish(&mut self.stats, out),
+            State::Binary(d) => d.finish(&mut self.stats),
+            State::Probing(_) => {}
+        }
+    }
+
+    /// Starts again after a reconnect: partial data is dropped and, in ASCII, the first
+    /// (probably partial) line is skipped. The mode, once known, is kept.
+    pub fn resync(&mut self) {
+        match &mut self.state {
+            State::Ascii(d) => d.resync(),
+            State::Binary(d) => d.resync(),
+            State::Probing(probe) => probe.clear(),
+        }
+    }
+
+    fn settle(&mut self, format: Format, out: &mut Vec<Frame>) {
+        let State::Probing(probe) = std::mem::replace(&mut self.state, State::Ascii(AsciiDecoder::new())) else {
+            return;
+        };
+        self.state = match format {
+            Format::Binary => State::Binary(BinaryDecoder::new()),
+            _ => State::Ascii(AsciiDecoder::new()),
+        };
+        self.feed(&probe, out);
+    }
+}
+
+/// Which mode `probe` is in, if it can be told yet (or must be, at the end of a stream).
+/// Text never holds the byte 0xA5, so one frame with a good CRC settles it as binary.
+fn recognise(probe: &[u8], at_end: bool) -> Option<Format> {
+    let mut scratch = BinaryDecoder::new();
+    let mut stats = DecodeStats::default();
+    let mut frames = Vec::new();
+    scratch.feed(probe, &mut stats, &mut frames);
+    let line_ends = probe.iter().filter(|&&b| b == b'\n' || b == b'\r').count();
+    if frames.len() >= 2 {
+        Some(Format::Binary)
+    } else if frames.is_empty() && line_ends >= 3 && !probe.contains(&SYNC[0]) {
+        Some(Format::Ascii)
+    } else if probe.len() >= AUTO_PROBE || at_end {
+        Some(if frames.is_empty() { Format::Ascii } else { Format::Binary })
+    } else {
+        None
+    }
+}
+
+/// Appends one ASCII sample line (`12,340\n`) to `out`.
+pub fn encode_ascii(counts: &[u32], out: &mut Vec<u8>) {
+    for (i, c) in counts.iter().enumerate() {
+        if i > 0 {
+            out.push(b',');
+        }
+        out.extend_from_slice(c.to_string().as_bytes());
+    }
+    out.push(b'\n');
+}
+
+/// Appends one binary frame to `out`. Counts above 65535 are clamped to 65535.
+pub fn encode_binary(seq: u16, counts: &[u16], out: &mut Vec<u8>) {
+    let start = out.len();
+    out.extend_from_slice(&SYNC);
+    out.extend_from_slice(&seq.to_le_bytes());
+    out.push(counts.len() as u8);
+    for c in counts {
+        out.extend_from_slice(&c.to_le_bytes());
+    }
+    let crc = FRAME_CRC.checksum(&out[start + 2..]);
+    out.extend_from_slice(&crc.to_le_bytes());
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn decode(format: Format, bytes: &[u8]) -> (Vec<Frame>, DecodeStats) {
+        let mut d = Decoder::new(format);
+        let mut out = Vec::new();
+        d.feed(bytes, &mut out);
+        d.finish(&mut out);
+        (out, d.stats())
+    }
+
+    fn counts(frames: &[Frame]) -> Vec<Vec<u32>> {
+        frames.iter().map(|f| f.counts().to_vec()).collect()
+    }
+
+    // Source: the CRC catalogue (../shared/REFERENCES.md): CRC-16/CCITT-FALSE of "123456789"
+    // is 0x29B1.
+    #[test]
+    fn crc_check_value() {
+        assert_eq!(FRAME_CRC.checksum(b"123456789"), 0x29B1);
+    }
+
+    #[test]
+    fn ascii_separators_line_ends_and_comments() {
+        let text = b"# dbtrail sketch v1\r\n12,340\r\n13 341\n14\t342\r15 , 343\n\n16,344";
+        let (frames, stats) = decode(Format::Ascii, text);
+        assert_eq!(counts(&frames), [[12, 340], [13, 341], [14, 342], [15, 343], [16, 344]]);
+        assert_eq!(stats.comments, 1);
+        assert_eq!(stats.bad_lines, 0);
+    }
+
+    #[test]
+    fn ascii_bad_lines_are_counted_not_read() {
+        let text = b"100\n-5\n12a\n1,,2\n3,\n99999999999\nhello\n1,2\n101\n";
+        let (frames, stats) = decode(Format::Ascii, text);
+        assert_eq!(counts(&frames), [[100], [101]]);
+        // -5, 12a, 1,,2, 3, (trailing comma), overflow, hello, and 1,2 (channel count changed)
+        assert_eq!(stats.bad_lines, 7);
+    }
+
+    #[test]
+    fn ascii_long_line_is_discarded_with_bounded_memory() {
+        let mut d = AsciiDecoder::new();
+        let mut stats = DecodeStats::default();
+        let mut out = Vec::new();
+        d.feed(b"7\n", &mut stats, &mut out);
+        for _ in 0..1000 {
+            d.feed(&[b'1'; 1024], &mut stats, &mut out);
+            assert!(d.line.capacity() <= MAX_LINE.max(256) * 2);
+        }
+        d.feed(b"\n8\n", &mut stats, &mut out);
+        assert_eq!(counts(&out), [[7], [8]]);
+        assert_eq!(stats.long_lines, 1);
+    }
+
+    #[test]
+    fn binary_frames_sequence_gaps_and_corruption() {
+        let mut bytes = Vec::new();
+        encode_binary(0, &[100, 200], &mut bytes);
+        encode_binary(1, &[101, 201], &mut bytes);
+        let damaged = bytes.len();
+        encode_binary(2, &[102, 202], &mut bytes);
+        bytes[damaged + 6] ^= 0x10;
+        encode_binary(5, &[105, 205], &mut bytes);
+        let (frames, stats) = decode(Format::Binary, &bytes);
+        assert_eq!(counts(&frames), [[100, 200], [101, 201], [105, 205]]);
+        assert_eq!(stats.crc_errors, 1);
+        // Frames 2 (damaged), 3 and 4 are missing from the sequence.
+        assert_eq!(stats.dropped_frames, 3);
+    }
+
+    #[test]
+    fn auto_recognises_each_mode() {
+        let mut bin = Vec::new();
+        for i in 0..10 {
+            encode_binary(i, &[i * 3], &mut bin);
+        }
+        let (frames, _) = decode(Format::Auto, &bin);
+        assert_eq!(frames.len(), 10);
+        let (frames, _) = decode(Format::Auto, b"1\n2\n3\n4\n");
+        assert_eq!(counts(&frames), [[1], [2], [3], [4]]);
+    }
+}
