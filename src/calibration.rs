@@ -25,31 +25,45 @@ bitflags! {
         const BELOW_SPAN = 1 << 1;
         /// Above the calibrated span: the value is extrapolated.
         const ABOVE_SPAN = 1 << 2;
-        /// The frequency lies outside the correction table; its end value was used.
+        /// The frequency lies outside the correction or offset table; its end value was used.
         const FREQ_OUTSIDE = 1 << 3;
         /// Over the detector's safe input level.
         const OVER_DETECTOR_MAX = 1 << 4;
         /// Over the rated power at the reference plane (load or attenuator rating).
         const OVER_RATED = 1 << 5;
+        /// The source was disconnected or silent for some or all of the interval.
+        const GAP = 1 << 8;
+        /// The source came back after a gap in this interval.
+        const RECONNECT = 1 << 9;
+        /// Samples were lost in this interval (dropped frames or ring overruns).
+        const LOST = 1 << 10;
     }
 }
 
 impl Flags {
     /// Short names, for logs and status lines.
     pub fn names(self) -> Vec<&'static str> {
-        const NAMES: [(Flags, &str); 6] = [
+        const NAMES: [(Flags, &str); 9] = [
             (Flags::ADC_CLIP, "clip"),
             (Flags::BELOW_SPAN, "below"),
             (Flags::ABOVE_SPAN, "above"),
             (Flags::FREQ_OUTSIDE, "freq-outside"),
             (Flags::OVER_DETECTOR_MAX, "over-detector-max"),
             (Flags::OVER_RATED, "over-rated"),
+            (Flags::GAP, "gap"),
+            (Flags::RECONNECT, "reconnect"),
+            (Flags::LOST, "lost"),
         ];
         NAMES
             .iter()
             .filter(|(flag, _)| self.contains(*flag))
             .map(|(_, name)| *name)
             .collect()
+    }
+
+    /// The names joined by `|`, as in a CSV cell; empty when no flag is set.
+    pub fn joined(self) -> String {
+        self.names().join("|")
     }
 }
 
@@ -88,6 +102,31 @@ impl fmt::Display for Reading {
     }
 }
 
+/// Detector volts at the low and high ends of the span: the model's, widened to the measured
+/// end points, so a calibration point never reads as outside its own span.
+fn span_volts(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
+    let (lo, hi) = detector.span_dbm();
+    let (model_lo, model_hi) = (detector.volts_at(lo), detector.volts_at(hi));
+    let by_level = |a: &&crate::profile::ProfilePoint, b: &&crate::profile::ProfilePoint| {
+        a.dbm.total_cmp(&b.dbm)
+    };
+    let measured_lo = profile
+        .points
+        .iter()
+        .min_by(by_level)
+        .map_or(model_lo, |p| p.volts);
+    let measured_hi = profile
+        .points
+        .iter()
+        .max_by(by_level)
+        .map_or(model_hi, |p| p.volts);
+    if model_hi >= model_lo {
+        (model_lo.min(measured_lo), model_hi.max(measured_hi))
+    } else {
+        (model_lo.max(measured_lo), model_hi.min(measured_hi))
+    }
+}
+
 /// A profile made ready for one frequency and offset.
 #[derive(Debug, Clone)]
 pub struct Calibration {
@@ -114,8 +153,7 @@ impl Calibration {
         let offset = profile.offset.at(freq_hz);
         let outside = correction.is_some_and(|c| c.outside) || offset.outside;
         let detector = Arc::clone(&profile.model.detector);
-        let (lo, hi) = detector.span_dbm();
-        let span_volts = (detector.volts_at(lo), detector.volts_at(hi));
+        let span_volts = span_volts(profile, detector.as_ref());
         Calibration {
             adc: profile.adc.clone(),
             detector,

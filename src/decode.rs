@@ -468,7 +468,9 @@ impl Decoder {
     }
 
     fn settle(&mut self, format: Format, out: &mut Vec<Frame>) {
-        let State::Probing(probe) = std::mem::replace(&mut self.state, State::Ascii(AsciiDecoder::new())) else {
+        let State::Probing(probe) =
+            std::mem::replace(&mut self.state, State::Ascii(AsciiDecoder::new()))
+        else {
             return;
         };
         self.state = match format {
@@ -492,7 +494,11 @@ fn recognise(probe: &[u8], at_end: bool) -> Option<Format> {
     } else if frames.is_empty() && line_ends >= 3 && !probe.contains(&SYNC[0]) {
         Some(Format::Ascii)
     } else if probe.len() >= AUTO_PROBE || at_end {
-        Some(if frames.is_empty() { Format::Ascii } else { Format::Binary })
+        Some(if frames.is_empty() {
+            Format::Ascii
+        } else {
+            Format::Binary
+        })
     } else {
         None
     }
@@ -549,7 +555,10 @@ mod tests {
     fn ascii_separators_line_ends_and_comments() {
         let text = b"# dbtrail sketch v1\r\n12,340\r\n13 341\n14\t342\r15 , 343\n\n16,344";
         let (frames, stats) = decode(Format::Ascii, text);
-        assert_eq!(counts(&frames), [[12, 340], [13, 341], [14, 342], [15, 343], [16, 344]]);
+        assert_eq!(
+            counts(&frames),
+            [[12, 340], [13, 341], [14, 342], [15, 343], [16, 344]]
+        );
         assert_eq!(stats.comments, 1);
         assert_eq!(stats.bad_lines, 0);
     }

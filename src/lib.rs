@@ -8,6 +8,10 @@
 //! - [`detector`]: detector models (table, log-amp, diode) and their fits;
 //! - [`correction`]: frequency correction and the offset of what sits in front;
 //! - [`calibration`]: the chain that turns one count into a flagged reading;
+//! - [`stats`]: power-domain statistics that merge;
+//! - [`sim`]: the built-in simulator, from a scenario's true power to ADC counts;
+//! - [`link`]: link-health counters shared with reader threads;
+//! - [`record`]: CSV recording of readings, per interval or per sample;
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
 //! - [`points`]: the calibration points CSV that `fit` reads.
 //!
@@ -19,9 +23,13 @@ pub mod calibration;
 pub mod correction;
 pub mod decode;
 pub mod detector;
+pub mod link;
 pub mod numeric;
 pub mod pchip;
 pub mod points;
 pub mod profile;
+pub mod record;
+pub mod sim;
 pub mod special;
+pub mod stats;
 pub mod units;

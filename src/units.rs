@@ -15,8 +15,9 @@ pub const DEFAULT_OHMS: f64 = 50.0;
 const POWER_UNITS: &str = "dBm, dBW, W, mW, uW (or µW), nW, pW";
 const VOLTAGE_UNITS: &str = "Vrms, Vpk, Vpp with an optional m or u (µ) prefix, e.g. 350mVpp";
 const DC_UNITS: &str = "Vdc (the DC equal to the RF peak), e.g. 1.25Vdc";
-const FREQ_UNITS: &str = "Hz, kHz, MHz, GHz, or k, M, G alone, e.g. 14.2MHz, 433 MHz, 10k, 2.4GHz";
-const DURATION_UNITS: &str = "ms, s, m (minutes), h, combined like 1h30m, or plain seconds";
+const FREQ_UNITS: &str = "Hz, kHz, MHz, GHz in any letter case (mhz is MHz), or k, M, G alone, \
+                          e.g. 14.2MHz, 433 MHz, 10k, 2.4GHz";
+const DURATION_UNITS: &str = "ms, s, m (minutes), h, d, combined like 1h30m, or plain seconds";
 
 /// What went wrong reading a quantity.
 #[derive(Debug, Error, Clone, PartialEq)]

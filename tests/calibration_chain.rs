@@ -3,18 +3,18 @@
 use dbtrail::calibration::{Calibration, Flags};
 use dbtrail::profile::{parse_profile, Profile};
 
-/// A log-amp on a 12-bit ADC with vref 4.095 V, so one count is exactly 1 mV, with a slope
-/// of 25 mV/dB and an intercept of −80 dBm: the arithmetic can be done by hand.
-fn log_amp_profile(slope: f64, extra: &str) -> Profile {
-    let v = |dbm: f64| slope * (dbm + 80.0) * 1000.0;
+/// A log-amp on a 12-bit ADC with vref 4.095 V, so one count is exactly 1 mV, following
+/// V = slope·(P − intercept): the arithmetic can be done by hand.
+fn log_amp_profile(slope: f64, intercept: f64, extra: &str) -> Profile {
+    let counts = |dbm: f64| slope * (dbm - intercept) * 1000.0;
     let text = format!(
         "name = \"hand\"\nreference_frequency = \"10MHz\"\n[adc]\nbits = 12\nvref = 4.095\n\
-         [model]\nkind = \"log\"\nslope = {slope}\nintercept = -80.0\npoints = [\n\
+         [model]\nkind = \"log\"\nslope = {slope}\nintercept = {intercept}\npoints = [\n\
          {{ applied = \"-60dBm\", counts = {} }},\n{{ applied = \"-30dBm\", counts = {} }},\n\
          {{ applied = \"0dBm\", counts = {} }},\n]\n{extra}",
-        v(-60.0) + if slope > 0.0 { 0.0 } else { 4000.0 },
-        v(-30.0) + if slope > 0.0 { 0.0 } else { 4000.0 },
-        v(0.0) + if slope > 0.0 { 0.0 } else { 4000.0 },
+        counts(-60.0),
+        counts(-30.0),
+        counts(0.0),
     );
     parse_profile(&text, "hand.toml").unwrap_or_else(|e| panic!("{e}"))
 }
@@ -28,7 +28,7 @@ const CORRECTIONS: &str = "[frequency_correction]\npoints = [ { freq = \"10MHz\"
 // is +1.0 dB; with a 30 dB attenuator the reference plane sees −20 + 1 + 30 = +11 dBm.
 #[test]
 fn worked_example_of_the_sign_conventions() {
-    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let profile = log_amp_profile(0.025, -80.0, CORRECTIONS);
     let cal = Calibration::new(&profile, Some(100e6), 0.0);
     let r = cal.reading(1500.0);
     assert!((r.volts - 1.5).abs() < 1e-12);
@@ -42,14 +42,14 @@ fn worked_example_of_the_sign_conventions() {
 // Source: worked example — an extra offset given on the command line adds to the profile's.
 #[test]
 fn an_extra_offset_adds_to_the_profile_offset() {
-    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let profile = log_amp_profile(0.025, -80.0, CORRECTIONS);
     let cal = Calibration::new(&profile, Some(10e6), 10.0);
     assert!((cal.reading(1500.0).dbm - 20.0).abs() < 1e-9);
 }
 
 #[test]
 fn below_the_span_is_a_bound_not_a_number() {
-    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let profile = log_amp_profile(0.025, -80.0, CORRECTIONS);
     let cal = Calibration::new(&profile, Some(10e6), 0.0);
     // 400 counts = 0.4 V = −64 dBm at the detector, under the −60 dBm lowest point.
     let r = cal.reading(400.0);
@@ -60,7 +60,7 @@ fn below_the_span_is_a_bound_not_a_number() {
 
 #[test]
 fn above_the_span_and_the_safety_limits_are_flagged() {
-    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let profile = log_amp_profile(0.025, -80.0, CORRECTIONS);
     let cal = Calibration::new(&profile, Some(10e6), 0.0);
     // 2100 counts = 2.1 V = +4 dBm at the detector: above the 0 dBm top point and the
     // −5 dBm safe input; +34 dBm at the reference plane is above its +20 dBm rating.
@@ -79,7 +79,7 @@ fn above_the_span_and_the_safety_limits_are_flagged() {
 
 #[test]
 fn adc_clip_and_frequency_outside_the_table() {
-    let profile = log_amp_profile(0.025, CORRECTIONS);
+    let profile = log_amp_profile(0.025, -80.0, CORRECTIONS);
     let cal = Calibration::new(&profile, Some(2.4e9), 0.0);
     assert_eq!(cal.correction_db(), 2.0);
     assert!(cal.reading(1500.0).flags.contains(Flags::FREQ_OUTSIDE));
@@ -89,8 +89,8 @@ fn adc_clip_and_frequency_outside_the_table() {
 
 #[test]
 fn a_falling_output_log_amp_is_flagged_the_right_way_round() {
-    // Output falls 25 mV per dB (a negative-slope log-amp), offset by 4 V.
-    let profile = log_amp_profile(-0.025, "");
+    // Output falls 25 mV per dB (a negative-slope log-amp): 3.5 V at −60 dBm, 2 V at 0 dBm.
+    let profile = log_amp_profile(-0.025, 80.0, "");
     let cal = Calibration::new(&profile, None, 0.0);
     let top = cal.counts_for(0.0);
     assert!(cal.reading(top - 50.0).flags.contains(Flags::ABOVE_SPAN));
@@ -101,7 +101,7 @@ fn a_falling_output_log_amp_is_flagged_the_right_way_round() {
 // Source: worked example — 1 mV per count over 25 mV per dB is 0.04 dB per count.
 #[test]
 fn resolution_of_a_log_amp_is_constant() {
-    let cal = Calibration::new(&log_amp_profile(0.025, ""), None, 0.0);
+    let cal = Calibration::new(&log_amp_profile(0.025, -80.0, ""), None, 0.0);
     for dbm in [-55.0, -30.0, -2.0] {
         assert!((cal.db_per_count(dbm) - 0.04).abs() < 1e-9);
         assert!((cal.reading(cal.counts_for(dbm)).dbm - dbm).abs() < 1e-9);

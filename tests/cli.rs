@@ -115,6 +115,8 @@ fn fit_args<'a>(points: &'a str, model: &'a str, out: &'a str) -> Vec<&'a str> {
         "12",
         "--vref",
         "4.095",
+        "--freq",
+        "10MHz",
         "--out",
         out,
     ]
@@ -242,4 +244,64 @@ fn usage_errors_exit_2_and_help_carries_the_safety_note() {
     assert_eq!(dbtrail(&["no-such-command"]).status.code(), Some(2));
     let help = stdout(&dbtrail(&["--help"]));
     assert!(help.contains("licence") && help.contains("burn"), "{help}");
+}
+
+#[test]
+fn check_shows_readings_and_end_points_stay_inside_their_span() {
+    // 2821 counts is the demo diode's own +15 dBm calibration point: it must not read as
+    // outside the span; 4090 counts is at ADC clip.
+    let out = dbtrail(&[
+        "check",
+        "profiles/demo-diode.toml",
+        "--counts",
+        "2821",
+        "4090",
+    ]);
+    let text = stdout(&out);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let line = |counts: &str| {
+        text.lines()
+            .find(|l| l.trim_start().starts_with(counts))
+            .unwrap()
+            .to_string()
+    };
+    assert!(!line("2821").contains('['), "{}", line("2821"));
+    assert!(line("4090").contains("clip"), "{}", line("4090"));
+}
+
+#[test]
+fn a_missing_profile_is_named_once_with_the_os_reason() {
+    let out = dbtrail(&["check", "no/such/profile.toml"]);
+    let message = stderr(&out);
+    assert_eq!(message.matches("No such file").count(), 1, "{message}");
+    assert!(
+        message.starts_with("dbtrail: error: cannot read profile no/such/profile.toml"),
+        "{message}"
+    );
+}
+
+// Source: worked example — points on a straight line in dB (a log-amp) cannot be described
+// by the diode model; fit must refuse rather than write a profile 40 dB wrong.
+#[test]
+fn diode_fit_of_log_amp_points_is_refused() {
+    let dir = scratch("diode-on-logamp");
+    let points = dir.join("points.csv");
+    let mut csv = String::from("applied,counts\n");
+    for dbm in (-60..=0).step_by(10) {
+        csv.push_str(&format!("{dbm}dBm,{}\n", 25.0 * f64::from(dbm + 80)));
+    }
+    std::fs::write(&points, csv).unwrap();
+    let out_path = dir.join("never.toml");
+    let out = dbtrail(&fit_args(
+        points.to_str().unwrap(),
+        "diode",
+        out_path.to_str().unwrap(),
+    ));
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out).contains("do not look like a diode detector"),
+        "{}",
+        stderr(&out)
+    );
+    assert!(!out_path.exists());
 }

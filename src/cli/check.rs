@@ -2,7 +2,6 @@
 
 use std::path::PathBuf;
 
-use anyhow::Context;
 use dbtrail::calibration::Calibration;
 use dbtrail::profile::load_profile;
 
@@ -15,16 +14,18 @@ pub struct Args {
     /// Frequency in use, e.g. 145.5MHz (default: the profile's reference frequency)
     #[arg(long, value_parser = parse_frequency_arg)]
     freq: Option<f64>,
+    /// Also show the reading for these ADC counts (fractional averages allowed)
+    #[arg(long, num_args = 1.., value_name = "COUNTS")]
+    counts: Vec<f64>,
 }
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let profile = load_profile(&args.profile)
-        .with_context(|| "check the profile and run `dbtrail check` again")
-        .bad_input()?;
+    let profile = load_profile(&args.profile).bad_input()?;
     let cal = Calibration::new(&profile, args.freq, 0.0);
     let mut text = summary::setup(&profile, &cal);
     text.push_str(&summary::resolution(&cal));
     text.push_str(&summary::residuals(&profile));
+    text.push_str(&summary::readings(&cal, &args.counts));
     text.push_str(&format!("\n{} is valid.\n", args.profile.display()));
     emit(&text)
 }

@@ -32,8 +32,17 @@ pub struct Args {
     #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms, allow_hyphen_values = true)]
     ohms: f64,
     /// Frequency the points were measured at, e.g. 10MHz
-    #[arg(long, default_value = "10MHz", value_parser = parse_frequency_arg)]
+    #[arg(long, value_parser = parse_frequency_arg)]
     freq: f64,
+    /// ADC counts read with no signal applied
+    #[arg(long, default_value_t = 0.0)]
+    zero_counts: f64,
+    /// Table model axis: log-volts (diode detectors) or volts (log-amps)
+    #[arg(long, value_parser = ["log-volts", "volts"])]
+    axis: Option<String>,
+    /// Diode junction temperature in kelvin during the calibration
+    #[arg(long)]
+    temperature: Option<f64>,
     /// Profile name (default: the output file's stem)
     #[arg(long)]
     name: Option<String>,
@@ -84,13 +93,13 @@ fn raw_profile(args: &Args, rows: &[PointRow]) -> RawProfile {
             bits: args.adc_bits,
             vref: args.vref,
             divider: Some(args.divider),
-            zero_counts: None,
+            zero_counts: (args.zero_counts != 0.0).then_some(args.zero_counts),
             clip_margin: None,
         },
         model: RawModel {
             kind: args.model.clone(),
-            axis: None,
-            temperature: None,
+            axis: args.axis.clone(),
+            temperature: args.temperature,
             n: None,
             vl: None,
             slope: None,
@@ -142,6 +151,9 @@ fn option_name(field: &str) -> String {
         "adc.bits" => "--adc-bits".into(),
         "adc.vref" => "--vref".into(),
         "adc.divider" => "--divider".into(),
+        "adc.zero_counts" => "--zero-counts".into(),
+        "model.axis" => "--axis".into(),
+        "model.temperature" => "--temperature".into(),
         "ohms" => "--ohms".into(),
         "reference_frequency" => "--freq".into(),
         "name" => "--name".into(),

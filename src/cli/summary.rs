@@ -112,6 +112,32 @@ pub fn resolution(cal: &Calibration) -> String {
     out
 }
 
+/// The reading for each of `counts`, with its flags.
+pub fn readings(cal: &Calibration, counts: &[f64]) -> String {
+    if counts.is_empty() {
+        return String::new();
+    }
+    let mut out = String::from(
+        "\nReadings\n  counts       detector volts   detector dBm   reference plane\n",
+    );
+    for &c in counts {
+        let r = cal.reading(c);
+        let flags = r.flags.joined();
+        let _ = writeln!(
+            out,
+            "  {c:<12} {:>14.6} {:>14.3}   {r}{}",
+            r.volts,
+            r.detector_dbm,
+            if flags.is_empty() {
+                String::new()
+            } else {
+                format!("  [{flags}]")
+            }
+        );
+    }
+    out
+}
+
 /// Each point's error under the model, and the RMS; for a table, the leave-one-out error.
 pub fn residuals(profile: &Profile) -> String {
     let errors = profile.residuals_db();

@@ -13,6 +13,8 @@ use crate::units::{watts_to_dbm, Power};
 /// Limits of the diode fit: ideality factor n and V_L in volts.
 const N_BOUNDS: (f64, f64) = (0.5, 5.0);
 const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
+/// A diode fit worse than this is no description of the detector.
+const MAX_RMS_DB: f64 = 2.0;
 
 /// A diode peak detector with ideality `n`, V_L = Is·RL, at temperature `kelvin`.
 #[derive(Debug, Clone, PartialEq)]
@@ -126,6 +128,17 @@ impl DiodeDetector {
                      points come from one detector and ADC set-up, or use the table model",
                     fit.iterations,
                     (fit.sse / sorted.len() as f64).sqrt()
+                ),
+            });
+        }
+        let rms_db = (fit.sse / sorted.len() as f64).sqrt();
+        if rms_db > MAX_RMS_DB {
+            return Err(ModelError::FitFailed {
+                model: ModelKind::Diode,
+                reason: format!(
+                    "the best diode curve misses the points by {rms_db:.2} dB RMS; these points do \
+                     not look like a diode detector (a log-amp? try --model log or table), or \
+                     the ADC zero offset or divider is wrong"
                 ),
             });
         }

@@ -40,7 +40,7 @@ pub struct Problem {
 #[derive(Debug, Error)]
 pub enum ProfileError {
     /// The file could not be read.
-    #[error("cannot read profile {path}: {source}")]
+    #[error("cannot read profile {path}")]
     Io {
         /// The path.
         path: String,

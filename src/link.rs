@@ -1,0 +1,93 @@
+//! Link health: counters a source keeps while it runs (samples, bad lines, CRC errors,
+//! dropped frames, ring overruns, reconnects, the time of the last sample), shared between
+//! the reader thread that writes them and whatever shows or records them.
+
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering::Relaxed};
+
+use crate::decode::DecodeStats;
+
+/// Counters shared between a reader thread and its consumers.
+#[derive(Debug, Default)]
+pub struct LinkCounters {
+    samples: AtomicU64,
+    bad_lines: AtomicU64,
+    crc_errors: AtomicU64,
+    dropped_frames: AtomicU64,
+    overruns: AtomicU64,
+    reconnects: AtomicU64,
+    last_sample_ns: AtomicU64,
+    connected: AtomicBool,
+}
+
+/// A copy of the counters at one moment.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct LinkSnapshot {
+    /// Samples decoded.
+    pub samples: u64,
+    /// Lines or bytes that were not samples: bad lines plus over-long lines.
+    pub bad_lines: u64,
+    /// Binary frames with a bad CRC.
+    pub crc_errors: u64,
+    /// Binary frames missing by sequence number.
+    pub dropped_frames: u64,
+    /// Samples lost because the consumer fell behind.
+    pub overruns: u64,
+    /// Times the source was reopened after a loss.
+    pub reconnects: u64,
+    /// Source time of the last sample, ns (0 before the first).
+    pub last_sample_ns: u64,
+    /// Whether the source is connected now.
+    pub connected: bool,
+}
+
+impl LinkCounters {
+    /// Adds the growth of a decoder's counters since `before`.
+    pub fn add_decoded(&self, before: &DecodeStats, now: &DecodeStats) {
+        self.samples.fetch_add(now.frames - before.frames, Relaxed);
+        let bad = (now.bad_lines + now.long_lines) - (before.bad_lines + before.long_lines);
+        self.bad_lines.fetch_add(bad, Relaxed);
+        self.crc_errors
+            .fetch_add(now.crc_errors - before.crc_errors, Relaxed);
+        self.dropped_frames
+            .fetch_add(now.dropped_frames - before.dropped_frames, Relaxed);
+    }
+    /// Counts samples lost to a full ring.
+    pub fn add_overruns(&self, n: u64) {
+        self.overruns.fetch_add(n, Relaxed);
+    }
+    /// Counts one reconnect.
+    pub fn add_reconnect(&self) {
+        self.reconnects.fetch_add(1, Relaxed);
+    }
+    /// Notes when the last sample arrived, in source nanoseconds.
+    pub fn set_last_sample(&self, ns: u64) {
+        self.last_sample_ns.store(ns, Relaxed);
+    }
+    /// Notes whether the source is connected.
+    pub fn set_connected(&self, connected: bool) {
+        self.connected.store(connected, Relaxed);
+    }
+    /// The counters now.
+    pub fn snapshot(&self) -> LinkSnapshot {
+        LinkSnapshot {
+            samples: self.samples.load(Relaxed),
+            bad_lines: self.bad_lines.load(Relaxed),
+            crc_errors: self.crc_errors.load(Relaxed),
+            dropped_frames: self.dropped_frames.load(Relaxed),
+            overruns: self.overruns.load(Relaxed),
+            reconnects: self.reconnects.load(Relaxed),
+            last_sample_ns: self.last_sample_ns.load(Relaxed),
+            connected: self.connected.load(Relaxed),
+        }
+    }
+}
+
+impl LinkSnapshot {
+    /// One line for a person: `12034 samples, 0 bad lines, 0 CRC errors, …`.
+    pub fn summary(&self) -> String {
+        format!(
+            "{} samples, {} bad lines, {} CRC errors, {} dropped frames, {} ring overruns, {} reconnects",
+            self.samples, self.bad_lines, self.crc_errors, self.dropped_frames, self.overruns, self.reconnects
+        )
+    }
+}

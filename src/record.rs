@@ -1,0 +1,322 @@
+//! Recording: calibrated readings written as CSV, either one row per interval (power-domain
+//! mean, min, max) or one row per sample, with the run's context in `#` lines at the top.
+//! Gaps, reconnects and lost samples are marked in the rows they touch; a row with no
+//! valid reading leaves its numbers empty rather than inventing one.
+
+use std::io::{self, Write};
+use std::time::{Duration, SystemTime};
+
+use crate::calibration::{Calibration, Flags, Reading};
+use crate::decode::Frame;
+use crate::stats::{PowerStats, NOT_A_VALUE};
+use crate::units::format_frequency;
+
+/// What a source delivers to a consumer, in source time (seconds since the run started).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Event {
+    /// A decoded sample.
+    Sample {
+        /// When it was stamped.
+        t: f64,
+        /// Its counts.
+        frame: Frame,
+    },
+    /// The source was lost (unplugged, closed, failing).
+    LinkDown {
+        /// When.
+        t: f64,
+    },
+    /// The source is back.
+    LinkUp {
+        /// When.
+        t: f64,
+    },
+    /// Samples went missing (ring overrun or dropped frames).
+    Lost {
+        /// When it was noticed.
+        t: f64,
+        /// How many.
+        samples: u64,
+    },
+}
+
+impl Event {
+    /// The event's time.
+    pub fn t(&self) -> f64 {
+        match *self {
+            Event::Sample { t, .. }
+            | Event::LinkDown { t }
+            | Event::LinkUp { t }
+            | Event::Lost { t, .. } => t,
+        }
+    }
+}
+
+/// The context a recording is made in, written as `#` lines at the top of the file.
+#[derive(Debug, Clone)]
+pub struct RunContext {
+    /// Program name and version.
+    pub tool: String,
+    /// Profile name.
+    pub profile: String,
+    /// A hash of the profile file's bytes.
+    pub profile_hash: String,
+    /// When the run started.
+    pub started: SystemTime,
+    /// What the samples come from.
+    pub source: String,
+    /// The interval (zero for one row per sample).
+    pub every: Duration,
+}
+
+/// Writes readings as CSV rows.
+pub struct Recorder<W: Write> {
+    out: csv::Writer<W>,
+    cal: Calibration,
+    every: f64,
+    started: SystemTime,
+    channels: Option<usize>,
+    header_written: bool,
+    interval: Option<u64>,
+    stats: Vec<PowerStats>,
+    row_flags: Flags,
+    link_down: bool,
+    rows: u64,
+}
+
+impl<W: Write> Recorder<W> {
+    /// A recorder writing to `out`; with `header`, the context lines go first (leave it
+    /// off when appending to an earlier recording).
+    pub fn new(
+        mut out: W,
+        cal: Calibration,
+        context: &RunContext,
+        header: bool,
+    ) -> io::Result<Self> {
+        if header {
+            out.write_all(context_lines(&cal, context).as_bytes())?;
+        } else {
+            let resumed = humantime::format_rfc3339_millis(context.started);
+            writeln!(
+                out,
+                "# resumed {resumed} by {} from {}",
+                context.tool, context.source
+            )?;
+        }
+        Ok(Recorder {
+            out: csv::WriterBuilder::new().flexible(true).from_writer(out),
+            cal,
+            every: context.every.as_secs_f64(),
+            started: context.started,
+            channels: None,
+            header_written: !header,
+            interval: None,
+            stats: Vec::new(),
+            row_flags: Flags::empty(),
+            link_down: false,
+            rows: 0,
+        })
+    }
+
+    /// Rows written so far.
+    pub fn rows(&self) -> u64 {
+        self.rows
+    }
+
+    /// The calibration in use.
+    pub fn calibration(&self) -> &Calibration {
+        &self.cal
+    }
+
+    /// The destination.
+    pub fn get_ref(&self) -> &W {
+        self.out.get_ref()
+    }
+
+    /// Takes one event from the source.
+    pub fn handle(&mut self, event: &Event) -> io::Result<()> {
+        if self.every > 0.0 {
+            self.advance(event.t())?;
+        }
+        match *event {
+            Event::Sample { t, frame } => self.sample(t, &frame),
+            Event::LinkDown { t } => {
+                self.link_down = true;
+                self.mark(t, Flags::GAP)
+            }
+            Event::LinkUp { t } => {
+                self.link_down = false;
+                self.mark(t, Flags::GAP | Flags::RECONNECT)
+            }
+            Event::Lost { t, .. } => self.mark(t, Flags::LOST),
+        }
+    }
+
+    /// Source time has reached `t`: every interval that ended by then is written, empty
+    /// ones flagged as gaps (a silent or absent source).
+    pub fn advance(&mut self, t: f64) -> io::Result<()> {
+        if self.every <= 0.0 {
+            return Ok(());
+        }
+        let target = (t / self.every).floor().max(0.0) as u64;
+        let current = *self.interval.get_or_insert(0);
+        for k in current..target {
+            self.write_interval(k)?;
+        }
+        self.interval = Some(target.max(current));
+        Ok(())
+    }
+
+    /// Ends the recording at source time `t`: the partial interval is written.
+    pub fn finish(&mut self, t: f64) -> io::Result<()> {
+        if self.every > 0.0 {
+            self.advance(t)?;
+            let current = self.interval.unwrap_or(0);
+            let started = current as f64 * self.every;
+            let has_data = self.stats.iter().any(|s| s.samples > 0) || !self.row_flags.is_empty();
+            if has_data || t > started {
+                self.write_interval(current)?;
+            }
+        }
+        self.flush()
+    }
+
+    /// Pushes buffered rows to the destination.
+    pub fn flush(&mut self) -> io::Result<()> {
+        self.out.flush()
+    }
+
+    fn sample(&mut self, t: f64, frame: &Frame) -> io::Result<()> {
+        let channels = *self.channels.get_or_insert(frame.channels());
+        let readings: Vec<Reading> = frame
+            .counts()
+            .iter()
+            .take(channels)
+            .map(|&c| self.cal.reading(f64::from(c)))
+            .collect();
+        if self.every > 0.0 {
+            self.stats.resize(channels, PowerStats::default());
+            for (stats, reading) in self.stats.iter_mut().zip(&readings) {
+                stats.add(reading);
+            }
+            return Ok(());
+        }
+        let mut row = vec![seconds(t)];
+        for r in &readings {
+            let value = !r.flags.intersects(NOT_A_VALUE);
+            row.push(format!("{}", r.counts));
+            row.push(format!("{:.6}", r.volts));
+            row.push(if value {
+                format!("{:.4}", r.dbm)
+            } else {
+                String::new()
+            });
+            row.push((r.flags | std::mem::take(&mut self.row_flags)).joined());
+        }
+        self.write_row(row)
+    }
+
+    /// Marks the interval holding `t` (or, per sample, writes a marker row).
+    fn mark(&mut self, t: f64, flags: Flags) -> io::Result<()> {
+        if self.every > 0.0 {
+            self.row_flags |= flags;
+            return Ok(());
+        }
+        let channels = self.channels.unwrap_or(1);
+        let mut row = vec![seconds(t)];
+        for _ in 0..channels {
+            row.extend([String::new(), String::new(), String::new(), flags.joined()]);
+        }
+        self.write_row(row)
+    }
+
+    fn write_interval(&mut self, k: u64) -> io::Result<()> {
+        let start = k as f64 * self.every;
+        let mut flags = std::mem::take(&mut self.row_flags);
+        if self.link_down {
+            flags |= Flags::GAP;
+        }
+        let channels = self.channels.unwrap_or(1);
+        self.stats.resize(channels, PowerStats::default());
+        let utc = self.started + Duration::from_secs_f64(start);
+        let mut row = vec![
+            seconds(start),
+            humantime::format_rfc3339_millis(utc).to_string(),
+        ];
+        for stats in std::mem::take(&mut self.stats) {
+            let mut row_flags = flags | stats.flags;
+            if stats.samples == 0 {
+                row_flags |= Flags::GAP;
+            }
+            let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
+            row.push(stats.samples.to_string());
+            row.push(number(stats.mean_dbm()));
+            row.push(number(stats.extremes().map(|e| e.0)));
+            row.push(number(stats.extremes().map(|e| e.1)));
+            row.push(stats.mean_w().map_or(String::new(), |w| format!("{w:.6e}")));
+            row.push(row_flags.joined());
+        }
+        self.write_row(row)
+    }
+
+    fn write_row(&mut self, row: Vec<String>) -> io::Result<()> {
+        if !self.header_written {
+            let header = self.column_names();
+            self.out.write_record(&header)?;
+            self.header_written = true;
+        }
+        self.out.write_record(&row)?;
+        self.rows += 1;
+        Ok(())
+    }
+
+    fn column_names(&self) -> Vec<String> {
+        let per_channel: &[&str] = if self.every > 0.0 {
+            &[
+                "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
+            ]
+        } else {
+            &["counts", "volts", "dbm", "flags"]
+        };
+        let mut names = vec!["time_s".to_string()];
+        if self.every > 0.0 {
+            names.push("utc".into());
+        }
+        for ch in 0..self.channels.unwrap_or(1) {
+            let suffix = if ch == 0 {
+                String::new()
+            } else {
+                format!("_ch{}", ch + 1)
+            };
+            names.extend(per_channel.iter().map(|n| format!("{n}{suffix}")));
+        }
+        names
+    }
+}
+
+fn seconds(t: f64) -> String {
+    format!("{t:.6}")
+}
+
+/// The `#` lines that open a recording.
+fn context_lines(cal: &Calibration, c: &RunContext) -> String {
+    let every = if c.every.is_zero() {
+        "every sample".to_string()
+    } else {
+        format!("every {}", humantime::format_duration(c.every))
+    };
+    format!(
+        "# {tool} record\n# profile: {profile} (sha256 {hash})\n\
+         # frequency: {freq}; frequency correction {corr:+.2} dB; offset {offset:+.2} dB\n\
+         # started: {started}\n# source: {source}\n# rows: {every}; power averaged over watts; \
+         flags: clip below above freq-outside over-detector-max over-rated gap reconnect lost\n",
+        tool = c.tool,
+        profile = c.profile,
+        hash = c.profile_hash,
+        freq = format_frequency(cal.freq_hz()),
+        corr = cal.correction_db(),
+        offset = cal.offset_db(),
+        started = humantime::format_rfc3339_millis(c.started),
+        source = c.source,
+    )
+}
