@@ -6,7 +6,7 @@ use std::fmt::Write;
 use dbtrail::calibration::Calibration;
 use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
 use dbtrail::profile::Profile;
-use dbtrail::units::{format_frequency, format_signed_db, Si};
+use dbtrail::units::{format_signed_db, Si};
 
 /// The model line: which model and its parameters.
 fn model_line(profile: &Profile) -> String {
@@ -75,8 +75,8 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
     let _ = writeln!(
         out,
         "  frequency  {} (curve taken at {}): correction {}, offset {}{outside}",
-        format_frequency(cal.freq_hz()),
-        format_frequency(profile.reference_hz),
+        Si::new(cal.freq_hz(), "Hz"),
+        Si::new(profile.reference_hz, "Hz"),
         format_signed_db(cal.correction_db()),
         format_signed_db(cal.offset_db())
     );
