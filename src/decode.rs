@@ -393,6 +393,7 @@ fn check_frame(bytes: &[u8]) -> FrameCheck {
 pub struct Decoder {
     state: State,
     stats: DecodeStats,
+    joined_midway: bool,
 }
 
 #[derive(Debug, Clone)]
@@ -413,6 +414,7 @@ impl Decoder {
         Decoder {
             state,
             stats: DecodeStats::default(),
+            joined_midway: false,
         }
     }
 
@@ -457,13 +459,17 @@ impl Decoder {
         }
     }
 
-    /// Starts again after a reconnect: partial data is dropped and, in ASCII, the first
-    /// (probably partial) line is skipped. The mode, once known, is kept.
+    /// Starts again on a stream joined part-way (a port just opened or reopened): partial
+    /// data is dropped and, in ASCII, the first line, probably cut, is skipped. The mode,
+    /// once known, is kept.
     pub fn resync(&mut self) {
         match &mut self.state {
             State::Ascii(d) => d.resync(),
             State::Binary(d) => d.resync(),
-            State::Probing(probe) => probe.clear(),
+            State::Probing(probe) => {
+                probe.clear();
+                self.joined_midway = true;
+            }
         }
     }
 
@@ -475,7 +481,13 @@ impl Decoder {
         };
         self.state = match format {
             Format::Binary => State::Binary(BinaryDecoder::new()),
-            _ => State::Ascii(AsciiDecoder::new()),
+            _ => {
+                let mut ascii = AsciiDecoder::new();
+                if self.joined_midway {
+                    ascii.resync();
+                }
+                State::Ascii(ascii)
+            }
         };
         self.feed(&probe, out);
     }
@@ -601,6 +613,18 @@ mod tests {
         assert_eq!(stats.crc_errors, 1);
         // Frames 2 (damaged), 3 and 4 are missing from the sequence.
         assert_eq!(stats.dropped_frames, 3);
+    }
+
+    #[test]
+    fn a_stream_joined_midway_skips_its_cut_first_line() {
+        for format in [Format::Auto, Format::Ascii] {
+            let mut d = Decoder::new(format);
+            d.resync();
+            let mut out = Vec::new();
+            d.feed(b"23\n1024\n1025\n1026\n", &mut out);
+            d.finish(&mut out);
+            assert_eq!(counts(&out), [[1024], [1025], [1026]], "{format:?}");
+        }
     }
 
     #[test]

@@ -51,6 +51,10 @@ impl LinkCounters {
         self.dropped_frames
             .fetch_add(now.dropped_frames - before.dropped_frames, Relaxed);
     }
+    /// Counts samples made without a decoder (the simulator).
+    pub fn add_samples(&self, n: u64) {
+        self.samples.fetch_add(n, Relaxed);
+    }
     /// Counts samples lost to a full ring.
     pub fn add_overruns(&self, n: u64) {
         self.overruns.fetch_add(n, Relaxed);

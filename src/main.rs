@@ -1,6 +1,7 @@
 //! The `dbtrail` command: a thin layer of command-line parsing over the library.
 
 mod cli;
+mod source;
 
 fn main() -> std::process::ExitCode {
     cli::run()

@@ -306,7 +306,7 @@ fn context_lines(cal: &Calibration, c: &RunContext) -> String {
         format!("every {}", humantime::format_duration(c.every))
     };
     format!(
-        "# {tool} record\n# profile: {profile} (sha256 {hash})\n\
+        "# {tool} record\n# profile: {profile}; sha256 {hash}\n\
          # frequency: {freq}; frequency correction {corr:+.2} dB; offset {offset:+.2} dB\n\
          # started: {started}\n# source: {source}\n# rows: {every}; power averaged over watts; \
          flags: clip below above freq-outside over-detector-max over-rated gap reconnect lost\n",

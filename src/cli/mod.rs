@@ -4,6 +4,10 @@
 mod check;
 mod convert;
 mod fit;
+mod ports;
+mod record;
+mod sim;
+mod source_args;
 mod summary;
 
 use std::io::Write;
@@ -69,6 +73,12 @@ enum Command {
     Check(check::Args),
     /// Fit a detector model to a points CSV and write a profile.
     Fit(fit::Args),
+    /// Record calibrated power to CSV from a port, a capture or the simulator.
+    Record(record::Args),
+    /// Stream simulated detector samples to a file, standard output or a pseudo-terminal.
+    Sim(sim::Args),
+    /// List the serial ports on this machine.
+    Ports,
 }
 
 /// Parses the command line, runs the command and turns the outcome into an exit code.
@@ -78,6 +88,9 @@ pub fn run() -> ExitCode {
         Command::Convert(args) => convert::run(args),
         Command::Check(args) => check::run(args),
         Command::Fit(args) => fit::run(args),
+        Command::Record(args) => record::run(args),
+        Command::Sim(args) => sim::run(args),
+        Command::Ports => ports::run(),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
@@ -115,6 +128,16 @@ pub fn parse_ohms(text: &str) -> Result<f64, String> {
             "`{text}` is not an impedance; give a positive number of ohms, e.g. 50 or 75"
         )),
     }
+}
+
+/// clap adapter for a dB figure such as `20dB`.
+pub fn parse_db_arg(text: &str) -> Result<f64, String> {
+    dbtrail::units::parse_db(text).map_err(|e| e.to_string())
+}
+
+/// clap adapter for a duration such as `1h30m`.
+pub fn parse_duration_arg(text: &str) -> Result<std::time::Duration, String> {
+    dbtrail::units::parse_duration(text).map_err(|e| e.to_string())
 }
 
 /// clap adapter for a frequency such as `145.5MHz`.

@@ -1,0 +1,283 @@
+//! `dbtrail record`: calibrated power written to CSV for as long as it runs, with nothing
+//! lost on a signal, a full disk or an unplugged port.
+
+use std::fs::{File, OpenOptions};
+use std::io::{self, IsTerminal, Write};
+use std::path::Path;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant, SystemTime};
+
+use anyhow::{anyhow, Context};
+use dbtrail::calibration::Calibration;
+use dbtrail::record::{Event, Recorder, RunContext};
+use sha2::{Digest, Sha256};
+
+use super::source_args::{self, LinkArgs, SourceArgs};
+use super::{parse_db_arg, parse_duration_arg, parse_frequency_arg, BadInput, Failure, Runtime};
+use crate::source::Running;
+
+#[derive(clap::Args)]
+pub struct Args {
+    #[command(flatten)]
+    source: SourceArgs,
+    #[command(flatten)]
+    link: LinkArgs,
+    /// Detector profile (TOML); --demo uses the bundled demo profile without one
+    #[arg(long)]
+    profile: Option<std::path::PathBuf>,
+    /// Frequency in use, e.g. 145.5MHz (default: the demo scenario's, else the profile's)
+    #[arg(long, value_parser = parse_frequency_arg)]
+    freq: Option<f64>,
+    /// Extra offset in dB added to the profile's, e.g. 10dB for another attenuator
+    #[arg(long, default_value = "0dB", value_parser = parse_db_arg, allow_hyphen_values = true)]
+    offset: f64,
+    /// Interval per row, e.g. 1s, 10s, 1m; 0 writes one row per sample
+    #[arg(long, default_value = "1s", value_parser = parse_duration_arg)]
+    every: Duration,
+    /// Stop after this much source time, e.g. 90s, 2h, 1h30m
+    #[arg(long, value_parser = parse_duration_arg)]
+    duration: Option<Duration>,
+    /// Output CSV file, or - for standard output
+    #[arg(long, default_value = "-")]
+    out: String,
+    /// Add to an existing file instead of refusing it
+    #[arg(long)]
+    append: bool,
+    /// Replace an existing file
+    #[arg(long, conflicts_with = "append")]
+    force: bool,
+}
+
+/// Where rows go, and how to make them durable.
+trait Durable: Write {
+    fn make_durable(&self) -> io::Result<()>;
+}
+
+impl Durable for File {
+    fn make_durable(&self) -> io::Result<()> {
+        self.sync_data()
+    }
+}
+
+impl Durable for io::Stdout {
+    fn make_durable(&self) -> io::Result<()> {
+        Ok(())
+    }
+}
+
+/// Events taken from the ring between flushes.
+const BATCH: usize = 1 << 16;
+/// How often rows written are forced to disk.
+const SYNC_EVERY: Duration = Duration::from_secs(2);
+/// How far behind the clock a live source's intervals are closed, so samples still in the
+/// ring land in their own interval.
+const LIVE_GRACE_S: f64 = 0.1;
+
+pub fn run(args: Args) -> Result<(), Failure> {
+    let loaded = source_args::load(args.profile.as_ref(), &args.source)?;
+    let freq = source_args::frequency(args.freq, &args.source);
+    let cal = Calibration::new(&loaded.profile, freq, args.offset);
+    let (out, fresh) = open_output(&args.out, args.append, args.force)?;
+    let stop = install_signal_flag().runtime()?;
+    let until = args.duration.map(|d| d.as_secs_f64());
+    let mut source = source_args::start(&args.source, &args.link, &loaded.profile, until)?;
+    let context = RunContext {
+        tool: format!("dbtrail {}", env!("CARGO_PKG_VERSION")),
+        profile: format!("{} ({})", loaded.profile.name, loaded.origin),
+        profile_hash: hex_digest(&loaded.bytes),
+        started: SystemTime::now(),
+        source: source.description.clone(),
+        every: args.every,
+    };
+    let target = if args.out == "-" {
+        "standard output".to_string()
+    } else {
+        args.out.clone()
+    };
+    let mut recorder = Recorder::new(out, cal, &context, fresh)
+        .with_context(|| format!("cannot write to {target}"))
+        .runtime()?;
+    let outcome = pump(
+        &mut source,
+        &mut recorder,
+        &stop,
+        until,
+        1.0 / args.link.rate,
+    )
+    .with_context(|| format!("cannot write to {target}; rows written before this point are kept"))
+    .runtime();
+    let link = source.counters.snapshot();
+    drop(source);
+    eprintln!(
+        "\ndbtrail: {} rows to {target}; link: {}",
+        recorder.rows(),
+        link.summary()
+    );
+    outcome
+}
+
+/// Moves events from the source to the recorder until the source ends, the duration is
+/// reached or a signal arrives; then writes the partial interval.
+fn pump(
+    source: &mut Running,
+    recorder: &mut Recorder<Box<dyn Durable>>,
+    stop: &AtomicBool,
+    until: Option<f64>,
+    sample_period: f64,
+) -> io::Result<()> {
+    let mut status = Status::new();
+    let mut last_sync = Instant::now();
+    let mut last_t: Option<f64> = None;
+    let mut synced_rows = 0;
+    let end_t = loop {
+        let mut took = 0;
+        let mut reached = None;
+        while let Some(event) = source.next_event() {
+            took += 1;
+            if until.is_some_and(|end| event.t() >= end) {
+                reached = until;
+                break;
+            }
+            recorder.handle(&event)?;
+            status.saw(&event, recorder.calibration());
+            last_t = Some(event.t());
+            if took == BATCH || status.due() {
+                break;
+            }
+        }
+        if source.live {
+            let now = source.now();
+            if until.is_some_and(|end| now >= end) {
+                reached = until;
+            }
+            recorder.advance(now - LIVE_GRACE_S)?;
+        }
+        recorder.flush()?;
+        if recorder.rows() != synced_rows && last_sync.elapsed() >= SYNC_EVERY {
+            recorder.get_ref().make_durable()?;
+            synced_rows = recorder.rows();
+            last_sync = Instant::now();
+        }
+        status.show(source, recorder.rows());
+        if let Some(end) = reached {
+            break end;
+        }
+        if stop.load(Ordering::Acquire) {
+            break if source.live {
+                source.now()
+            } else {
+                last_t.map_or(0.0, |t| t + sample_period)
+            };
+        }
+        if source.exhausted() {
+            break if source.live {
+                source.now()
+            } else {
+                last_t.map_or(0.0, |t| t + sample_period)
+            };
+        }
+        if took == 0 {
+            std::thread::sleep(Duration::from_millis(2));
+        }
+    };
+    recorder.finish(end_t)?;
+    recorder.get_ref().make_durable()
+}
+
+/// Opens the output, refusing to replace a file unless told to; true when it is new.
+fn open_output(out: &str, append: bool, force: bool) -> Result<(Box<dyn Durable>, bool), Failure> {
+    if out == "-" {
+        return Ok((Box::new(io::stdout()), true));
+    }
+    let path = Path::new(out);
+    let exists = path.exists();
+    if exists && !append && !force {
+        return Err(anyhow!(
+            "{out} already exists; add --append to add to it or --force to replace it"
+        ))
+        .bad_input();
+    }
+    let mut options = OpenOptions::new();
+    if append {
+        options.append(true).create(true);
+    } else {
+        options.write(true).create(true).truncate(true);
+    }
+    let file = options
+        .open(path)
+        .with_context(|| format!("cannot open {out} for writing"))
+        .runtime()?;
+    let fresh = !append || file.metadata().map(|m| m.len() == 0).unwrap_or(true);
+    Ok((Box::new(file), fresh))
+}
+
+/// A flag that SIGINT, SIGTERM and SIGHUP set, so the loop can end cleanly.
+fn install_signal_flag() -> io::Result<Arc<AtomicBool>> {
+    let flag = Arc::new(AtomicBool::new(false));
+    for signal in [
+        signal_hook::consts::SIGINT,
+        signal_hook::consts::SIGTERM,
+        signal_hook::consts::SIGHUP,
+    ] {
+        signal_hook::flag::register(signal, Arc::clone(&flag))?;
+    }
+    Ok(flag)
+}
+
+fn hex_digest(bytes: &[u8]) -> String {
+    Sha256::digest(bytes)
+        .iter()
+        .take(8)
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+/// The one-line live status on a terminal's stderr.
+struct Status {
+    enabled: bool,
+    last_shown: Instant,
+    started: Instant,
+    last_reading: String,
+    samples_then: u64,
+}
+
+impl Status {
+    fn new() -> Self {
+        Status {
+            enabled: io::stderr().is_terminal(),
+            last_shown: Instant::now(),
+            started: Instant::now(),
+            last_reading: "no reading yet".into(),
+            samples_then: 0,
+        }
+    }
+
+    fn due(&self) -> bool {
+        self.enabled && self.last_shown.elapsed() >= Duration::from_millis(250)
+    }
+
+    fn saw(&mut self, event: &Event, cal: &Calibration) {
+        if let (true, Event::Sample { frame, .. }) = (self.enabled, event) {
+            self.last_reading = cal.reading(f64::from(frame.counts()[0])).to_string();
+        }
+    }
+
+    fn show(&mut self, source: &Running, rows: u64) {
+        if !self.due() {
+            return;
+        }
+        let link = source.counters.snapshot();
+        let seconds = self.last_shown.elapsed().as_secs_f64();
+        let rate = (link.samples - self.samples_then) as f64 / seconds;
+        self.samples_then = link.samples;
+        self.last_shown = Instant::now();
+        let elapsed =
+            humantime::format_duration(Duration::from_secs(self.started.elapsed().as_secs()));
+        let state = if link.connected { "" } else { "  DISCONNECTED" };
+        eprint!(
+            "\r\x1b[K{elapsed}  rows {rows}  {}  {rate:.0} samples/s  bad {} crc {} dropped {} overrun {} reconnects {}{state}",
+            self.last_reading, link.bad_lines, link.crc_errors, link.dropped_frames, link.overruns, link.reconnects
+        );
+    }
+}

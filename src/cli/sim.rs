@@ -1,0 +1,171 @@
+//! `dbtrail sim`: simulated detector samples on the wire, to a file, standard output or a
+//! pseudo-terminal that `--port` can open, so the whole path can be tried without hardware.
+
+use std::io::{self, Write};
+use std::path::PathBuf;
+use std::time::{Duration, Instant};
+
+use anyhow::Context;
+use dbtrail::decode::{encode_ascii, encode_binary, Format};
+use dbtrail::sim::{Scenario, Simulator};
+
+use super::source_args::{parse_rate, parse_scenario, DEMO_PROFILE};
+use super::{BadInput, Failure, Runtime};
+
+#[derive(clap::Args)]
+pub struct Args {
+    /// Scenario: soak, tune, sweep or overload
+    #[arg(long, default_value = "soak", value_parser = parse_scenario)]
+    scenario: Scenario,
+    /// Samples per second, e.g. 1000 or 10k
+    #[arg(long, default_value = "1000", value_parser = parse_rate)]
+    rate: f64,
+    /// Wire format: ascii or binary
+    #[arg(long, default_value = "ascii", value_parser = ["ascii", "binary"])]
+    format: String,
+    /// Seconds of simulated time (default 10, or until stopped with --pty)
+    #[arg(long)]
+    seconds: Option<f64>,
+    /// Seed of the noise
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Detector profile to simulate (default: the bundled demo diode)
+    #[arg(long)]
+    profile: Option<PathBuf>,
+    /// Create a pseudo-terminal, print its path on the first line, and stream in real time
+    #[arg(long, conflicts_with = "out")]
+    pty: bool,
+    /// Write to this file instead of standard output
+    #[arg(long)]
+    out: Option<PathBuf>,
+}
+
+/// Simulated time written per chunk.
+const CHUNK_S: f64 = 0.01;
+
+pub fn run(args: Args) -> Result<(), Failure> {
+    let profile = match &args.profile {
+        Some(path) => dbtrail::profile::load_profile(path).bad_input()?,
+        None => {
+            dbtrail::profile::parse_profile(DEMO_PROFILE, "bundled demo profile").bad_input()?
+        }
+    };
+    let simulator = Simulator::new(&profile, args.scenario, args.rate, args.seed);
+    let format = Format::from_name(&args.format).unwrap_or(Format::Ascii);
+    if args.pty {
+        return stream_to_pty(simulator, format, args.seconds);
+    }
+    let seconds = args.seconds.unwrap_or(10.0);
+    match &args.out {
+        Some(path) => {
+            let file = std::fs::File::create(path)
+                .with_context(|| format!("cannot create {}", path.display()))
+                .runtime()?;
+            let mut out = io::BufWriter::new(file);
+            stream(simulator, format, Some(seconds), false, &mut out)
+                .and_then(|()| out.flush())
+                .with_context(|| format!("cannot write {}", path.display()))
+                .runtime()
+        }
+        None => {
+            let mut out = io::BufWriter::new(io::stdout().lock());
+            match stream(simulator, format, Some(seconds), false, &mut out)
+                .and_then(|()| out.flush())
+            {
+                Err(e) if e.kind() == io::ErrorKind::BrokenPipe => Ok(()),
+                other => other.context("cannot write to standard output").runtime(),
+            }
+        }
+    }
+}
+
+fn stream_to_pty(
+    simulator: Simulator,
+    format: Format,
+    seconds: Option<f64>,
+) -> Result<(), Failure> {
+    let (mut master, slave) = serialport::TTYPort::pair()
+        .context("cannot create a pseudo-terminal")
+        .runtime()?;
+    let name = serialport::SerialPort::name(&slave).unwrap_or_default();
+    println!("{name}");
+    io::stdout().flush().ok();
+    // Writes time out when nobody reads; the chunk is dropped, as a real device would.
+    serialport::SerialPort::set_timeout(&mut master, Duration::from_millis(50)).ok();
+    let result = stream(
+        simulator,
+        format,
+        seconds,
+        true,
+        &mut DropOnTimeout(&mut master),
+    );
+    drop(slave);
+    result
+        .context("cannot write to the pseudo-terminal")
+        .runtime()
+}
+
+/// A writer that gives up on a chunk the reader is too slow (or absent) to take.
+struct DropOnTimeout<'a, W: Write>(&'a mut W);
+
+impl<W: Write> Write for DropOnTimeout<'_, W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        match self.0.write(buf) {
+            Err(e)
+                if e.kind() == io::ErrorKind::TimedOut || e.kind() == io::ErrorKind::WouldBlock =>
+            {
+                Ok(buf.len())
+            }
+            other => other,
+        }
+    }
+    fn flush(&mut self) -> io::Result<()> {
+        match self.0.flush() {
+            Err(e) if e.kind() == io::ErrorKind::TimedOut => Ok(()),
+            other => other,
+        }
+    }
+}
+
+/// Writes samples in chunks of [`CHUNK_S`], paced to the wall clock when `realtime`.
+fn stream(
+    mut simulator: Simulator,
+    format: Format,
+    seconds: Option<f64>,
+    realtime: bool,
+    out: &mut impl Write,
+) -> io::Result<()> {
+    let started = Instant::now();
+    let per_chunk = (simulator.rate_hz() * CHUNK_S).ceil().max(1.0) as u64;
+    let total = seconds.map(|s| (s * simulator.rate_hz()).round() as u64);
+    let mut buf = Vec::with_capacity(64 * 1024);
+    let mut written: u64 = 0;
+    let mut seq: u16 = 0;
+    while total.is_none_or(|n| written < n) {
+        buf.clear();
+        let mut t = 0.0;
+        for _ in 0..total.map_or(per_chunk, |n| per_chunk.min(n - written)) {
+            let (time, counts) = simulator.next_sample();
+            t = time;
+            match format {
+                Format::Binary => {
+                    encode_binary(seq, &[counts.min(u32::from(u16::MAX)) as u16], &mut buf);
+                    seq = seq.wrapping_add(1);
+                }
+                _ => encode_ascii(&[counts], &mut buf),
+            }
+            written += 1;
+        }
+        if realtime {
+            let due = started + Duration::from_secs_f64(t);
+            if let Some(wait) = due.checked_duration_since(Instant::now()) {
+                std::thread::sleep(wait);
+            }
+        }
+        out.write_all(&buf)?;
+        if realtime {
+            out.flush()?;
+        }
+    }
+    Ok(())
+}

@@ -1,0 +1,155 @@
+//! The options that choose a source (`--port`, `--replay`, `--demo`), shared by the
+//! commands that read one, and the code that starts it.
+
+use std::path::PathBuf;
+
+use anyhow::{anyhow, Context};
+use dbtrail::decode::Format;
+use dbtrail::profile::{load_profile, parse_profile, Profile};
+use dbtrail::sim::{Scenario, Simulator};
+
+use crate::source::{open_port, ReplaySpec, Running, SerialSpec, SimSpec};
+
+use super::{BadInput, Failure};
+
+/// The bundled profile the demo runs with when no `--profile` is given.
+pub const DEMO_PROFILE: &str = include_str!("../../profiles/demo-diode.toml");
+const DEMO_PROFILE_NAME: &str = "bundled profiles/demo-diode.toml";
+
+#[derive(clap::Args, Debug)]
+#[group(required = true, multiple = false, id = "source")]
+pub struct SourceArgs {
+    /// Serial port to read, e.g. /dev/ttyUSB0 (`dbtrail ports` lists them)
+    #[arg(long, group = "source")]
+    pub port: Option<String>,
+    /// A raw capture to replay (ASCII or binary)
+    #[arg(long, group = "source")]
+    pub replay: Option<PathBuf>,
+    /// Run the built-in simulator: soak, tune, sweep or overload
+    #[arg(long, group = "source", num_args = 0..=1, default_missing_value = "soak", value_parser = parse_scenario)]
+    pub demo: Option<Scenario>,
+}
+
+#[derive(clap::Args, Debug)]
+pub struct LinkArgs {
+    /// Baud rate for --port
+    #[arg(long, default_value_t = 115_200)]
+    pub baud: u32,
+    /// Wire format: auto, ascii or binary
+    #[arg(long, default_value = "auto", value_parser = parse_format)]
+    pub format: Format,
+    /// Sample rate used to stamp --replay samples, Hz; for --demo, the simulated rate
+    #[arg(long, default_value_t = 1000.0, value_parser = parse_rate)]
+    pub rate: f64,
+    /// Pace --replay in real time instead of as fast as possible
+    #[arg(long)]
+    pub realtime: bool,
+    /// Run --demo as fast as possible instead of in real time
+    #[arg(long)]
+    pub fast: bool,
+    /// Seed of the simulator's noise
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+}
+
+pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
+    Scenario::from_name(text).ok_or_else(|| {
+        let names: Vec<&str> = Scenario::ALL.iter().map(|s| s.name()).collect();
+        format!(
+            "unknown scenario `{text}`; choose one of: {}",
+            names.join(", ")
+        )
+    })
+}
+
+fn parse_format(text: &str) -> Result<Format, String> {
+    Format::from_name(text)
+        .ok_or_else(|| format!("unknown format `{text}`; choose auto, ascii or binary"))
+}
+
+pub fn parse_rate(text: &str) -> Result<f64, String> {
+    match dbtrail::units::parse_frequency(text) {
+        Ok(hz) => Ok(hz),
+        Err(e) => Err(format!("{e} (a sample rate such as 1000 or 10k)")),
+    }
+}
+
+/// A profile and where it came from, with the bytes hashed for recordings.
+pub struct LoadedProfile {
+    pub profile: Profile,
+    pub origin: String,
+    pub bytes: Vec<u8>,
+}
+
+/// Loads `--profile`, or the bundled demo profile for `--demo` without one.
+pub fn load(profile: Option<&PathBuf>, source: &SourceArgs) -> Result<LoadedProfile, Failure> {
+    match profile {
+        Some(path) => {
+            let bytes = std::fs::read(path)
+                .with_context(|| format!("cannot read profile {}", path.display()))
+                .bad_input()?;
+            let profile = load_profile(path).bad_input()?;
+            Ok(LoadedProfile {
+                profile,
+                origin: path.display().to_string(),
+                bytes,
+            })
+        }
+        None if source.demo.is_some() => {
+            let profile = parse_profile(DEMO_PROFILE, DEMO_PROFILE_NAME).bad_input()?;
+            Ok(LoadedProfile {
+                profile,
+                origin: DEMO_PROFILE_NAME.into(),
+                bytes: DEMO_PROFILE.as_bytes().to_vec(),
+            })
+        }
+        None => Err(anyhow!(
+            "give the detector's profile with --profile FILE (see profiles/ for examples)"
+        ))
+        .bad_input(),
+    }
+}
+
+/// Opens the chosen source and starts its thread; `until` bounds a simulated run.
+pub fn start(
+    source: &SourceArgs,
+    link: &LinkArgs,
+    profile: &Profile,
+    until: Option<f64>,
+) -> Result<Running, Failure> {
+    if let Some(path) = &source.port {
+        let port = open_port(path, link.baud).bad_input()?;
+        let spec = SerialSpec {
+            path: path.clone(),
+            baud: link.baud,
+            format: link.format,
+        };
+        return Ok(spec.start(port));
+    }
+    if let Some(path) = &source.replay {
+        let file = std::fs::File::open(path)
+            .with_context(|| format!("cannot open capture {}", path.display()))
+            .bad_input()?;
+        let spec = ReplaySpec {
+            path: path.clone(),
+            rate_hz: link.rate,
+            realtime: link.realtime,
+            format: link.format,
+        };
+        return Ok(spec.start(file));
+    }
+    let scenario = source.demo.unwrap_or(Scenario::Soak);
+    let simulator = Simulator::new(profile, scenario, link.rate, link.seed);
+    Ok(SimSpec {
+        simulator,
+        fast: link.fast,
+        until,
+        seed: link.seed,
+    }
+    .start())
+}
+
+/// The frequency to calibrate at: `--freq`, else the demo scenario's, else the profile's.
+pub fn frequency(freq: Option<f64>, source: &SourceArgs) -> Option<f64> {
+    freq.or(source.demo.map(Scenario::frequency_hz))
+}

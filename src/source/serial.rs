@@ -1,0 +1,115 @@
+//! The serial source: a reader thread that decodes, stamps each sample with host monotonic
+//! time, and on loss reopens the same path with backoff, marking the gap.
+
+use std::io::{ErrorKind, Read};
+use std::time::{Duration, Instant};
+
+use anyhow::Context;
+use dbtrail::decode::{Decoder, Format};
+use dbtrail::record::Event;
+use serialport::SerialPort;
+
+use super::{spawn, Running, Sink, WhenFull};
+
+/// A port to read.
+pub struct SerialSpec {
+    /// Device path.
+    pub path: String,
+    /// Baud rate.
+    pub baud: u32,
+    /// Wire format.
+    pub format: Format,
+}
+
+const READ_TIMEOUT: Duration = Duration::from_millis(50);
+const BACKOFF_FIRST: Duration = Duration::from_millis(100);
+const BACKOFF_MAX: Duration = Duration::from_secs(2);
+
+/// Opens `path`, with a message that says what to do when it fails.
+pub fn open_port(path: &str, baud: u32) -> anyhow::Result<Box<dyn SerialPort>> {
+    serialport::new(path, baud)
+        .timeout(READ_TIMEOUT)
+        .open()
+        .with_context(|| format!("cannot open serial port {path} at {baud} baud; `dbtrail ports` lists the ports here"))
+}
+
+impl SerialSpec {
+    /// Starts reading an already opened port on its own thread.
+    pub fn start(self, port: Box<dyn SerialPort>) -> Running {
+        let description = format!("serial {} at {} baud", self.path, self.baud);
+        spawn(description, true, WhenFull::Drop, move |sink, started| {
+            read_forever(&self, port, sink, started)
+        })
+    }
+}
+
+fn read_forever(
+    spec: &SerialSpec,
+    mut port: Box<dyn SerialPort>,
+    sink: &mut Sink,
+    started: Instant,
+) {
+    let mut decoder = Decoder::new(spec.format);
+    // The device was already talking: the first line may be cut.
+    decoder.resync();
+    let mut buf = vec![0u8; 64 * 1024];
+    let mut frames = Vec::with_capacity(4096);
+    sink.counters.set_connected(true);
+    while !sink.stopped() {
+        match port.read(&mut buf) {
+            Ok(0) => {}
+            Ok(n) => {
+                let t = started.elapsed().as_secs_f64();
+                let before = decoder.stats();
+                decoder.feed(&buf[..n], &mut frames);
+                sink.counters.add_decoded(&before, &decoder.stats());
+                let dropped = decoder.stats().dropped_frames - before.dropped_frames;
+                if dropped > 0 {
+                    sink.send(Event::Lost {
+                        t,
+                        samples: dropped,
+                    });
+                }
+                if !frames.is_empty() {
+                    sink.counters.set_last_sample((t * 1e9) as u64);
+                }
+                for frame in frames.drain(..) {
+                    sink.send(Event::Sample { t, frame });
+                }
+                continue;
+            }
+            Err(e) if e.kind() == ErrorKind::TimedOut || e.kind() == ErrorKind::Interrupted => {
+                continue
+            }
+            Err(_) => {}
+        }
+        // Ok(0) (end of file) and real errors both mean the device went away.
+        sink.counters.set_connected(false);
+        sink.send(Event::LinkDown {
+            t: started.elapsed().as_secs_f64(),
+        });
+        let Some(reopened) = reopen(spec, sink) else {
+            return;
+        };
+        port = reopened;
+        decoder.resync();
+        sink.counters.add_reconnect();
+        sink.counters.set_connected(true);
+        sink.send(Event::LinkUp {
+            t: started.elapsed().as_secs_f64(),
+        });
+    }
+}
+
+/// Tries the same path again with growing pauses until it opens or the consumer stops.
+fn reopen(spec: &SerialSpec, sink: &Sink) -> Option<Box<dyn SerialPort>> {
+    let mut pause = BACKOFF_FIRST;
+    while !sink.stopped() {
+        std::thread::sleep(pause);
+        if let Ok(port) = open_port(&spec.path, spec.baud) {
+            return Some(port);
+        }
+        pause = (pause * 2).min(BACKOFF_MAX);
+    }
+    None
+}
