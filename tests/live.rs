@@ -1,0 +1,392 @@
+//! Sources and recording end to end, through the real binary: a pseudo-terminal as the
+//! serial port, an unplug and replug, a signal mid-interval, and a replayed capture checked
+//! against the profile's maths done by hand.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::time::{Duration, Instant};
+
+use serialport::{SerialPort, TTYPort};
+
+fn bin() -> Command {
+    let mut c = Command::new(env!("CARGO_BIN_EXE_dbtrail"));
+    c.current_dir(env!("CARGO_MANIFEST_DIR"));
+    c
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("dbtrail-live-{}-{name}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+/// A log-amp whose maths can be done by hand: 1 mV per count (12 bits at 4.095 V), 25 mV
+/// per dB, intercept −80 dBm, a correction of 0 dB at 10 MHz rising to +2 dB at 1 GHz, and a
+/// 30 dB attenuator in front.
+const HAND_PROFILE: &str = r#"
+name = "hand-logamp"
+reference_frequency = "10MHz"
+[adc]
+bits = 12
+vref = 4.095
+[model]
+kind = "log"
+slope = 0.025
+intercept = -80.0
+points = [
+  { applied = "-60dBm", counts = 500 },
+  { applied = "-30dBm", counts = 1250 },
+  { applied = "0dBm", counts = 2000 },
+]
+[frequency_correction]
+points = [ { freq = "10MHz", db = 0.0 }, { freq = "1GHz", db = 2.0 } ]
+[offset]
+db = 30.0
+"#;
+
+/// Source: worked example by hand — counts × 1 mV / 25 mV/dB − 80 dBm, + 1 dB correction
+/// at 100 MHz (halfway from 10 MHz to 1 GHz in log-frequency), + 30 dB attenuator.
+fn hand_dbm(counts: f64) -> f64 {
+    counts * 1e-3 / 0.025 - 80.0 + 1.0 + 30.0
+}
+
+fn write_profile(dir: &Path) -> PathBuf {
+    let path = dir.join("hand.toml");
+    std::fs::write(&path, HAND_PROFILE).unwrap();
+    path
+}
+
+/// Data rows of a recording: the lines after the `#` context and the column header.
+fn rows(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut reader = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let header = reader.headers().unwrap().iter().map(String::from).collect();
+    let rows = reader
+        .records()
+        .map(|r| r.unwrap().iter().map(String::from).collect())
+        .collect();
+    (header, rows)
+}
+
+fn column(header: &[String], name: &str) -> usize {
+    header
+        .iter()
+        .position(|h| h == name)
+        .unwrap_or_else(|| panic!("no column {name} in {header:?}"))
+}
+
+fn wait(mut child: Child, limit: Duration) -> std::process::ExitStatus {
+    let started = Instant::now();
+    loop {
+        if let Some(status) = child.try_wait().unwrap() {
+            return status;
+        }
+        if started.elapsed() > limit {
+            let _ = child.kill();
+            panic!("the recorder did not finish within {limit:?}");
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+}
+
+static SPAWNING: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
+/// Starts a child while no pseudo-terminal is half set up in another test thread.
+fn spawn(command: &mut Command) -> Child {
+    let _guard = SPAWNING.lock().unwrap_or_else(|e| e.into_inner());
+    command.spawn().unwrap()
+}
+
+/// Runs a child to its end, like `spawn`.
+fn output(command: &mut Command) -> std::process::Output {
+    let child = spawn(command.stdout(Stdio::piped()).stderr(Stdio::piped()));
+    child.wait_with_output().unwrap()
+}
+
+/// A pseudo-terminal pair whose fds a spawned recorder does not inherit: an inherited
+/// master would keep the "device" alive after the test unplugs it.
+fn pty_pair() -> (TTYPort, TTYPort) {
+    use nix::fcntl::{fcntl, FcntlArg, FdFlag};
+    use std::os::fd::AsRawFd;
+    // Held so no other test thread spawns a child between opening and marking the fds.
+    let _guard = SPAWNING.lock().unwrap_or_else(|e| e.into_inner());
+    let (master, slave) = TTYPort::pair().unwrap();
+    for fd in [master.as_raw_fd(), slave.as_raw_fd()] {
+        fcntl(fd, FcntlArg::F_SETFD(FdFlag::FD_CLOEXEC)).unwrap();
+    }
+    (master, slave)
+}
+
+fn write_lines(master: &mut TTYPort, counts: impl Iterator<Item = u32>) {
+    let mut batch = Vec::new();
+    for (i, c) in counts.enumerate() {
+        batch.extend_from_slice(format!("{c}\n").as_bytes());
+        if i % 50 == 49 {
+            master.write_all(&batch).unwrap();
+            batch.clear();
+            std::thread::sleep(Duration::from_millis(5));
+        }
+    }
+    master.write_all(&batch).unwrap();
+    master.flush().unwrap();
+}
+
+#[test]
+fn pty_to_csv_keeps_every_sample_and_its_value() {
+    let dir = scratch("pty");
+    let profile = write_profile(&dir);
+    let out = dir.join("pty.csv");
+    let (mut master, slave) = pty_pair();
+    let path = slave.name().unwrap();
+    let child = &mut bin();
+    child
+        .args([
+            "record",
+            "--port",
+            &path,
+            "--profile",
+            profile.to_str().unwrap(),
+            "--freq",
+            "100MHz",
+        ])
+        .args([
+            "--every",
+            "0",
+            "--duration",
+            "3s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stderr(Stdio::null());
+    let child = spawn(child);
+    std::thread::sleep(Duration::from_millis(700));
+    // The first line after the port opens is skipped (it may be cut), so a banner goes first.
+    master.write_all(b"# bench sketch\n").unwrap();
+    let sent: Vec<u32> = (0..1000).map(|i| 600 + (i * 7) % 1300).collect();
+    write_lines(&mut master, sent.iter().copied());
+    assert!(wait(child, Duration::from_secs(10)).success());
+    drop(slave);
+    let (header, rows) = rows(&out);
+    let (counts_col, dbm_col) = (column(&header, "counts"), column(&header, "dbm"));
+    let got: Vec<u32> = rows
+        .iter()
+        .map(|r| r[counts_col].parse().unwrap())
+        .collect();
+    assert_eq!(got, sent);
+    for row in &rows {
+        let counts: f64 = row[counts_col].parse().unwrap();
+        let dbm: f64 = row[dbm_col].parse().unwrap();
+        // Recorded to 4 decimals; one count is 0.04 dB.
+        assert!((dbm - hand_dbm(counts)).abs() < 1e-4, "{row:?}");
+    }
+}
+
+#[test]
+fn unplug_and_replug_marks_the_gap_and_loses_no_row() {
+    let dir = scratch("unplug");
+    let profile = write_profile(&dir);
+    let out = dir.join("unplug.csv");
+    let link = dir.join("port");
+    let (mut master, slave) = pty_pair();
+    std::os::unix::fs::symlink(slave.name().unwrap(), &link).unwrap();
+    let child = &mut bin();
+    child
+        .args([
+            "record",
+            "--port",
+            link.to_str().unwrap(),
+            "--profile",
+            profile.to_str().unwrap(),
+        ])
+        .args([
+            "--every",
+            "500ms",
+            "--duration",
+            "6s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stderr(Stdio::null());
+    let child = spawn(child);
+    std::thread::sleep(Duration::from_millis(700));
+    master.write_all(b"# first plug\n").unwrap();
+    write_lines(&mut master, std::iter::repeat_n(1000, 400));
+    std::thread::sleep(Duration::from_millis(400));
+    drop(master);
+    drop(slave);
+    std::thread::sleep(Duration::from_millis(1200));
+    let (mut master, slave) = pty_pair();
+    std::fs::remove_file(&link).unwrap();
+    std::os::unix::fs::symlink(slave.name().unwrap(), &link).unwrap();
+    std::thread::sleep(Duration::from_millis(1500));
+    master.write_all(b"# second plug\n").unwrap();
+    write_lines(&mut master, std::iter::repeat_n(1500, 300));
+    assert!(wait(child, Duration::from_secs(15)).success());
+    drop(slave);
+    let (header, rows) = rows(&out);
+    let (samples, flags, mean) = (
+        column(&header, "samples"),
+        column(&header, "flags"),
+        column(&header, "mean_dbm"),
+    );
+    let total: u64 = rows
+        .iter()
+        .map(|r| r[samples].parse::<u64>().unwrap())
+        .sum();
+    assert_eq!(
+        total, 700,
+        "every sample before and after the gap is kept: {rows:?}"
+    );
+    let flagged = |word: &str| {
+        rows.iter()
+            .filter(|r| r[flags].split('|').any(|f| f == word))
+            .count()
+    };
+    assert!(flagged("gap") >= 2, "{rows:?}");
+    assert_eq!(flagged("reconnect"), 1, "{rows:?}");
+    let means: Vec<f64> = rows.iter().filter_map(|r| r[mean].parse().ok()).collect();
+    assert!(means
+        .iter()
+        .any(|m| (m - hand_dbm(1000.0) + 1.0).abs() < 1e-3));
+    assert!(means
+        .iter()
+        .any(|m| (m - hand_dbm(1500.0) + 1.0).abs() < 1e-3));
+}
+
+#[test]
+fn sigint_mid_interval_leaves_a_valid_csv_with_the_partial_row() {
+    let dir = scratch("sigint");
+    let out = dir.join("soak.csv");
+    let child = &mut bin();
+    child
+        .args([
+            "record",
+            "--demo",
+            "soak",
+            "--every",
+            "10s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stderr(Stdio::null());
+    let child = spawn(child);
+    std::thread::sleep(Duration::from_millis(2500));
+    let status = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(status.success());
+    assert!(wait(child, Duration::from_secs(10)).success());
+    let (header, rows) = rows(&out);
+    assert_eq!(rows.len(), 1, "{rows:?}");
+    let samples: u64 = rows[0][column(&header, "samples")].parse().unwrap();
+    assert!(
+        (1000..=3500).contains(&samples),
+        "{samples} samples in the partial interval"
+    );
+    let mean: f64 = rows[0][column(&header, "mean_dbm")].parse().unwrap();
+    // Source: the soak scenario's own story — about +29.2 dBm in its first seconds.
+    assert!((mean - 29.2).abs() < 0.3, "{mean}");
+}
+
+#[test]
+fn replayed_capture_matches_the_profile_maths_by_hand() {
+    let dir = scratch("replay");
+    let profile = write_profile(&dir);
+    let capture = dir.join("capture.txt");
+    let counts: Vec<u32> = (0..40).map(|i| 700 + 31 * i).collect();
+    let text: String = counts.iter().map(|c| format!("{c}\r\n")).collect();
+    std::fs::write(&capture, text).unwrap();
+    let out = dir.join("replay.csv");
+    let status = &mut bin();
+    status
+        .args([
+            "record",
+            "--replay",
+            capture.to_str().unwrap(),
+            "--profile",
+            profile.to_str().unwrap(),
+        ])
+        .args([
+            "--freq",
+            "100MHz",
+            "--rate",
+            "10",
+            "--every",
+            "1s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stderr(Stdio::null());
+    let status = wait(spawn(status), Duration::from_secs(20));
+    assert!(status.success());
+    let (header, rows) = rows(&out);
+    assert_eq!(rows.len(), 4);
+    let (mean, min, max) = (
+        column(&header, "mean_dbm"),
+        column(&header, "min_dbm"),
+        column(&header, "max_dbm"),
+    );
+    for (row, chunk) in rows.iter().zip(counts.chunks(10)) {
+        // Source: common practice — the mean of a set of levels is taken over watts.
+        let watts: f64 = chunk
+            .iter()
+            .map(|&c| 10f64.powf(hand_dbm(f64::from(c)) / 10.0))
+            .sum::<f64>()
+            / 10.0;
+        let want = 10.0 * watts.log10();
+        assert!(
+            (row[mean].parse::<f64>().unwrap() - want).abs() < 1e-4,
+            "{row:?} vs {want}"
+        );
+        assert!((row[min].parse::<f64>().unwrap() - hand_dbm(f64::from(chunk[0]))).abs() < 1e-4);
+        assert!((row[max].parse::<f64>().unwrap() - hand_dbm(f64::from(chunk[9]))).abs() < 1e-4);
+    }
+}
+
+#[test]
+fn an_existing_output_is_refused_and_a_full_disk_is_an_error() {
+    let dir = scratch("outputs");
+    let out = dir.join("exists.csv");
+    std::fs::write(&out, "keep me\n").unwrap();
+    let refused = &mut bin();
+    refused
+        .args([
+            "record",
+            "--demo",
+            "--fast",
+            "--duration",
+            "1s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stdin(Stdio::null());
+    let refused = output(refused);
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("--append"));
+    assert_eq!(std::fs::read_to_string(&out).unwrap(), "keep me\n");
+    let full = &mut bin();
+    full.args([
+        "record",
+        "--demo",
+        "--fast",
+        "--duration",
+        "30s",
+        "--force",
+        "--out",
+        "/dev/full",
+    ]);
+    let full = output(full);
+    assert_eq!(
+        full.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&full.stderr)
+    );
+    assert!(String::from_utf8_lossy(&full.stderr).contains("cannot write to /dev/full"));
+}
