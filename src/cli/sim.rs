@@ -99,6 +99,9 @@ fn stream_to_pty(
         true,
         &mut DropOnTimeout(&mut master),
     );
+    // Closing the master hangs the line up and discards what the reader has not yet
+    // taken; give it a moment to take the last chunk.
+    std::thread::sleep(Duration::from_millis(500));
     drop(slave);
     result
         .context("cannot write to the pseudo-terminal")
