@@ -563,6 +563,18 @@ mod tests {
         assert_eq!(FRAME_CRC.checksum(b"123456789"), 0x29B1);
     }
 
+    // Source: docs/protocol.md's worked example, its CRC computed independently by the
+    // bitwise CRC-16/CCITT-FALSE algorithm (poly 0x1021, init 0xFFFF) in Python.
+    #[test]
+    fn protocol_document_example() {
+        let mut frame = Vec::new();
+        encode_binary(7, &[1234, 567], &mut frame);
+        assert_eq!(
+            frame,
+            [0xA5, 0x5A, 0x07, 0x00, 0x02, 0xD2, 0x04, 0x37, 0x02, 0xE2, 0x89]
+        );
+    }
+
     #[test]
     fn ascii_separators_line_ends_and_comments() {
         let text = b"# dbtrail sketch v1\r\n12,340\r\n13 341\n14\t342\r15 , 343\n\n16,344";
