@@ -274,9 +274,16 @@ impl Status {
         self.last_shown = Instant::now();
         let elapsed =
             humantime::format_duration(Duration::from_secs(self.started.elapsed().as_secs()));
-        let state = if link.connected { "" } else { "  DISCONNECTED" };
+        let silent = source.now() - link.last_sample_ns as f64 * 1e-9;
+        let state = if !link.connected {
+            "  DISCONNECTED, retrying".to_string()
+        } else if source.live && silent > 0.5 {
+            format!("  silent for {silent:.1} s")
+        } else {
+            String::new()
+        };
         eprint!(
-            "\r\x1b[K{elapsed}  rows {rows}  {}  {rate:.0} samples/s  bad {} crc {} dropped {} overrun {} reconnects {}{state}",
+            "\r\x1b[K{elapsed} | {rows} rows | {} | {rate:.0}/s | bad {} crc {} drop {} over {} reconn {}{state}",
             self.last_reading, link.bad_lines, link.crc_errors, link.dropped_frames, link.overruns, link.reconnects
         );
     }

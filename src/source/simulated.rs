@@ -8,6 +8,9 @@ use dbtrail::sim::Simulator;
 use super::replay::pace;
 use super::{spawn, Running, WhenFull};
 
+/// Samples between updates of the shared counters, which other threads read.
+const COUNTER_STRIDE: u64 = 64;
+
 /// A simulated bench.
 pub struct SimSpec {
     /// The model, ready to run.
@@ -52,12 +55,12 @@ impl SimSpec {
                         break;
                     }
                     count += 1;
-                    if count % 1024 == 0 {
-                        sink.counters.add_samples(1024);
+                    if count % COUNTER_STRIDE == 0 {
+                        sink.counters.add_samples(COUNTER_STRIDE);
                         sink.counters.set_last_sample((t * 1e9) as u64);
                     }
                 }
-                sink.counters.add_samples(count % 1024);
+                sink.counters.add_samples(count % COUNTER_STRIDE);
                 sink.counters.set_connected(false);
             },
         )
