@@ -248,44 +248,27 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
     if !unknown.is_empty() {
         let problems = unknown
             .into_iter()
-            .map(|(path, span, message)| {
-                let (line, column) = doc.line_col(span.start);
-                Problem {
-                    line,
-                    column,
-                    field: path.to_string(),
-                    message,
-                }
-            })
+            .map(|(path, span, message)| Problem::at(&doc, span.start, &path, message))
             .collect();
         return Err(invalid(problems));
     }
     let raw: RawProfile = toml::from_str(text).map_err(|e| {
         let at = e.span().map_or(0, |s| s.start);
-        let (line, column) = doc.line_col(at);
         let field = match missing_field(e.message()) {
             Some(name) => doc.table_at(at).then(name),
             None => doc.path_at(at),
         };
-        invalid(vec![Problem {
-            line,
-            column,
-            field: field.to_string(),
-            message: friendly_serde_message(e.message()),
-        }])
+        invalid(vec![Problem::at(
+            &doc,
+            at,
+            &field,
+            friendly_serde_message(e.message()),
+        )])
     })?;
     validate::validate(raw).map_err(|found| {
         let mut problems: Vec<Problem> = found
             .into_iter()
-            .map(|(path, message)| {
-                let (line, column) = doc.line_col(doc.span_of(&path).start);
-                Problem {
-                    line,
-                    column,
-                    field: path.to_string(),
-                    message,
-                }
-            })
+            .map(|(path, message)| Problem::at(&doc, doc.span_of(&path).start, &path, message))
             .collect();
         problems.sort_by_key(|p| (p.line, p.column));
         invalid(problems)
@@ -324,6 +307,19 @@ pub fn render_profile(raw: &RawProfile, header: &str) -> Result<String, toml::se
     out.push('\n');
     out.push_str(&toml::to_string(raw)?);
     Ok(out)
+}
+
+impl Problem {
+    /// A problem with `field` at byte `offset` of the profile's text.
+    fn at(doc: &Located, offset: usize, field: &locate::FieldPath, message: String) -> Self {
+        let (line, column) = doc.line_col(offset);
+        Problem {
+            line,
+            column,
+            field: field.to_string(),
+            message,
+        }
+    }
 }
 
 impl fmt::Display for Problem {
