@@ -1,9 +1,13 @@
 //! Statistics over readings, always in the power domain: means are taken over watts and
-//! only then turned into dBm. A value type that adds, so intervals, holds and trend
-//! buckets merge.
+//! only then turned into dBm. [`PowerStats`] is a value type that merges, so intervals,
+//! holds and trend buckets are all made of it; [`Averager`] is the moving average the
+//! screen shows, [`Settle`] says when that number has stopped moving, and [`Trend`] keeps
+//! min/max buckets so that no peak or dip is lost when history is shown at low resolution.
+
+use std::collections::VecDeque;
 
 use crate::calibration::{Flags, Reading};
-use crate::units::{dbm_to_watts, watts_to_dbm};
+use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
 /// Readings with these flags are bounds, not values, and are left out of means and extremes.
 pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN.union(Flags::ADC_CLIP);
@@ -76,6 +80,287 @@ impl PowerStats {
     pub fn extremes(&self) -> Option<(f64, f64)> {
         (self.valid > 0).then_some((self.min_dbm, self.max_dbm))
     }
+
+    /// Moves every level by `db` (the offset or frequency correction changed).
+    pub fn shift_db(&mut self, db: f64) {
+        self.sum_w *= 10f64.powf(db / 10.0);
+        self.min_dbm += db;
+        self.max_dbm += db;
+    }
+}
+
+/// How the displayed value is averaged.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Averaging {
+    /// Each reading as it comes.
+    Off,
+    /// The mean of the last N valid readings.
+    Samples(usize),
+    /// The mean of the valid readings of the last so many seconds.
+    Seconds(f64),
+}
+
+impl Averaging {
+    /// Parses `off`, `0`, a count such as `32`, or a duration such as `500ms` or `2s`.
+    pub fn parse(text: &str) -> Result<Self, UnitError> {
+        let text = text.trim();
+        if text.eq_ignore_ascii_case("off") || text == "0" || text == "1" {
+            return Ok(Averaging::Off);
+        }
+        if let Ok(n) = text.parse::<usize>() {
+            return Ok(Averaging::Samples(n.min(1_000_000)));
+        }
+        let seconds = parse_duration(text)?.as_secs_f64();
+        Ok(if seconds > 0.0 {
+            Averaging::Seconds(seconds.min(3600.0))
+        } else {
+            Averaging::Off
+        })
+    }
+
+    /// A short description, e.g. `32 samples` or `2 s`.
+    pub fn describe(&self) -> String {
+        match self {
+            Averaging::Off => "off".into(),
+            Averaging::Samples(n) => format!("{n} samples"),
+            Averaging::Seconds(s) => format!("{s} s"),
+        }
+    }
+}
+
+/// A moving average over watts.
+#[derive(Debug, Clone)]
+pub struct Averager {
+    mode: Averaging,
+    window: VecDeque<(f64, f64)>,
+    sum_w: f64,
+    first_t: Option<f64>,
+    since_exact: usize,
+}
+
+impl Averager {
+    /// An empty average.
+    pub fn new(mode: Averaging) -> Self {
+        Averager {
+            mode,
+            window: VecDeque::new(),
+            sum_w: 0.0,
+            first_t: None,
+            since_exact: 0,
+        }
+    }
+
+    /// The averaging in use.
+    pub fn mode(&self) -> Averaging {
+        self.mode
+    }
+
+    /// Adds a reading taken at `t` seconds; bounds (below span, clip) are left out.
+    pub fn push(&mut self, t: f64, reading: &Reading) {
+        if reading.flags.intersects(NOT_A_VALUE) {
+            return;
+        }
+        self.first_t.get_or_insert(t);
+        let watts = dbm_to_watts(reading.dbm);
+        self.window.push_back((t, watts));
+        self.sum_w += watts;
+        while self.too_long(t) {
+            if let Some((_, old)) = self.window.pop_front() {
+                self.sum_w -= old;
+                self.since_exact += 1;
+            }
+        }
+        // Running sums drift; add them up afresh now and then.
+        if self.since_exact > 4096 {
+            self.sum_w = self.window.iter().map(|(_, w)| w).sum();
+            self.since_exact = 0;
+        }
+    }
+
+    fn too_long(&self, now: f64) -> bool {
+        match self.mode {
+            Averaging::Off => self.window.len() > 1,
+            Averaging::Samples(n) => self.window.len() > n.max(1),
+            Averaging::Seconds(s) => self.window.front().is_some_and(|(t, _)| now - t > s),
+        }
+    }
+
+    /// The mean, dBm.
+    pub fn mean_dbm(&self) -> Option<f64> {
+        (!self.window.is_empty()).then(|| watts_to_dbm(self.sum_w / self.window.len() as f64))
+    }
+
+    /// Readings in the window now.
+    pub fn len(&self) -> usize {
+        self.window.len()
+    }
+
+    /// True when no reading is held.
+    pub fn is_empty(&self) -> bool {
+        self.window.is_empty()
+    }
+
+    /// True when the window holds all it is meant to, so the mean is over a full window.
+    pub fn is_full(&self, now: f64) -> bool {
+        match self.mode {
+            Averaging::Off => !self.window.is_empty(),
+            Averaging::Samples(n) => self.window.len() >= n.max(1),
+            Averaging::Seconds(s) => self.first_t.is_some_and(|t0| now - t0 >= s),
+        }
+    }
+
+    /// Forgets everything (a new averaging mode, or a reset).
+    pub fn clear(&mut self) {
+        *self = Averager::new(self.mode);
+    }
+
+    /// Moves every level by `db`.
+    pub fn shift_db(&mut self, db: f64) {
+        let factor = 10f64.powf(db / 10.0);
+        for (_, w) in &mut self.window {
+            *w *= factor;
+        }
+        self.sum_w *= factor;
+    }
+}
+
+/// Whether a displayed value has stopped moving: its spread over the last `span` seconds
+/// is within `tolerance_db`.
+#[derive(Debug, Clone)]
+pub struct Settle {
+    span: f64,
+    tolerance_db: f64,
+    history: VecDeque<(f64, f64)>,
+}
+
+impl Settle {
+    /// A check over `span` seconds with a tolerance in dB.
+    pub fn new(span: f64, tolerance_db: f64) -> Self {
+        Settle {
+            span,
+            tolerance_db,
+            history: VecDeque::new(),
+        }
+    }
+
+    /// Notes the displayed value at `t`.
+    pub fn push(&mut self, t: f64, dbm: f64) {
+        self.history.push_back((t, dbm));
+        while self
+            .history
+            .front()
+            .is_some_and(|(t0, _)| t - t0 > 2.0 * self.span)
+        {
+            self.history.pop_front();
+        }
+    }
+
+    /// True when values cover the whole span and stay within the tolerance.
+    pub fn is_settled(&self, now: f64) -> bool {
+        let recent = || self.history.iter().filter(|(t, _)| now - t <= self.span);
+        let covered = self
+            .history
+            .front()
+            .is_some_and(|(t0, _)| now - t0 >= self.span);
+        let (lo, hi) = recent().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (_, v)| {
+            (lo.min(*v), hi.max(*v))
+        });
+        covered && hi - lo <= self.tolerance_db
+    }
+
+    /// The change of the value over the last second: now minus about one second ago.
+    pub fn change_over_last_second(&self, now: f64) -> Option<f64> {
+        let (_, latest) = *self.history.back()?;
+        let (t_then, then) = *self.history.iter().rev().find(|(t, _)| now - t >= 1.0)?;
+        (now - t_then < 2.0).then_some(latest - then)
+    }
+
+    /// Forgets the history.
+    pub fn clear(&mut self) {
+        self.history.clear();
+    }
+
+    /// Moves every level by `db`.
+    pub fn shift_db(&mut self, db: f64) {
+        for (_, v) in &mut self.history {
+            *v += db;
+        }
+    }
+}
+
+/// History as a fixed number of buckets of a fixed duration, each keeping min, max and the
+/// power sum of its readings, so memory does not grow and no extreme is lost.
+#[derive(Debug, Clone)]
+pub struct Trend {
+    bucket_s: f64,
+    capacity: usize,
+    buckets: VecDeque<(i64, PowerStats)>,
+}
+
+impl Trend {
+    /// `capacity` buckets covering `window_s` seconds.
+    pub fn new(window_s: f64, capacity: usize) -> Self {
+        Trend {
+            bucket_s: window_s / capacity as f64,
+            capacity,
+            buckets: VecDeque::with_capacity(capacity + 1),
+        }
+    }
+
+    /// The time the buckets cover, seconds.
+    pub fn window_s(&self) -> f64 {
+        self.bucket_s * self.capacity as f64
+    }
+
+    /// Adds a reading at `t`.
+    pub fn push(&mut self, t: f64, reading: &Reading) {
+        let index = (t / self.bucket_s).floor() as i64;
+        match self.buckets.back_mut() {
+            Some((last, stats)) if *last == index => stats.add(reading),
+            Some((last, _)) if *last > index => {}
+            _ => {
+                let mut stats = PowerStats::default();
+                stats.add(reading);
+                self.buckets.push_back((index, stats));
+            }
+        }
+        while self
+            .buckets
+            .front()
+            .is_some_and(|(first, _)| index - first >= self.capacity as i64)
+        {
+            self.buckets.pop_front();
+        }
+    }
+
+    /// The buckets ending with the one at `now`, oldest first, merged down to `columns`
+    /// (min of mins, max of maxes); None for a column with no valid reading.
+    pub fn columns(&self, now: f64, columns: usize) -> Vec<Option<(f64, f64)>> {
+        let columns = columns.max(1);
+        let newest = (now / self.bucket_s).floor() as i64;
+        let oldest = newest - self.capacity as i64 + 1;
+        let mut out = vec![PowerStats::default(); columns];
+        for (index, stats) in &self.buckets {
+            if *index < oldest || *index > newest {
+                continue;
+            }
+            let column = ((index - oldest) as usize * columns) / self.capacity;
+            out[column.min(columns - 1)].merge(stats);
+        }
+        out.iter().map(PowerStats::extremes).collect()
+    }
+
+    /// Forgets the history.
+    pub fn clear(&mut self) {
+        self.buckets.clear();
+    }
+
+    /// Moves every level by `db`.
+    pub fn shift_db(&mut self, db: f64) {
+        for (_, stats) in &mut self.buckets {
+            stats.shift_db(db);
+        }
+    }
 }
 
 #[cfg(test)]
@@ -114,6 +399,66 @@ mod tests {
         assert_eq!(s.valid, 1);
         assert!((s.mean_dbm().unwrap() - 3.0).abs() < 1e-12);
         assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ABOVE_SPAN);
+    }
+
+    #[test]
+    fn averaging_by_count_and_by_time_over_watts() {
+        let mut by_count = Averager::new(Averaging::Samples(2));
+        for (t, dbm) in [(0.0, 20.0), (0.1, 0.0), (0.2, 10.0)] {
+            by_count.push(t, &reading(dbm, Flags::empty()));
+        }
+        // Source: common practice — 1 mW and 10 mW average to 5.5 mW.
+        assert!((by_count.mean_dbm().unwrap() - 7.403626894942439).abs() < 1e-12);
+        let mut by_time = Averager::new(Averaging::Seconds(1.0));
+        // Steps of 1/8 s are exact in binary, so the window's edges are too.
+        for i in 0..24 {
+            by_time.push(
+                f64::from(i) * 0.125,
+                &reading(if i < 12 { 0.0 } else { 10.0 }, Flags::empty()),
+            );
+        }
+        assert_eq!(by_time.len(), 9, "1.875 s to 2.875 s inclusive");
+        assert!((by_time.mean_dbm().unwrap() - 10.0).abs() < 1e-9);
+        assert!(by_time.is_full(2.875));
+        assert!(!Averager::new(Averaging::Seconds(5.0)).is_full(1.0));
+    }
+
+    #[test]
+    fn settle_needs_a_full_span_within_tolerance() {
+        let mut s = Settle::new(1.0, 0.1);
+        for i in 0..30 {
+            let t = f64::from(i) * 0.1;
+            s.push(
+                t,
+                if t < 1.5 {
+                    f64::from(i) * 0.1
+                } else {
+                    5.0 + 0.01 * f64::from(i % 2)
+                },
+            );
+        }
+        assert!(s.is_settled(2.9));
+        assert!(!s.is_settled(1.6));
+        assert!((s.change_over_last_second(2.9).unwrap()).abs() < 0.02);
+    }
+
+    #[test]
+    fn trend_buckets_keep_a_one_sample_spike_when_merged() {
+        let mut trend = Trend::new(60.0, 240);
+        for i in 0..6000 {
+            let t = f64::from(i) * 0.01;
+            let dbm = if i == 3001 { 30.0 } else { 10.0 };
+            trend.push(t, &reading(dbm, Flags::empty()));
+        }
+        let columns = trend.columns(59.99, 20);
+        assert_eq!(columns.len(), 20);
+        let spikes = columns
+            .iter()
+            .flatten()
+            .filter(|(_, hi)| *hi == 30.0)
+            .count();
+        assert_eq!(spikes, 1);
+        assert!(columns.iter().flatten().all(|(lo, _)| *lo == 10.0));
     }
 
     #[test]
