@@ -2,6 +2,7 @@
 
 mod cli;
 mod source;
+mod tui;
 
 fn main() -> std::process::ExitCode {
     cli::run()

@@ -531,6 +531,17 @@ pub fn format_frequency(hz: f64) -> String {
     }
 }
 
+/// Seconds as a clock, `mm:ss` or `h:mm:ss`.
+pub fn format_clock(seconds: f64) -> String {
+    let total = seconds.max(0.0) as u64;
+    let (h, m, s) = (total / 3600, total / 60 % 60, total % 60);
+    if h > 0 {
+        format!("{h}:{m:02}:{s:02}")
+    } else {
+        format!("{m:02}:{s:02}")
+    }
+}
+
 /// A signed dB figure with a sign always shown, e.g. `+0.80 dB`.
 pub fn format_signed_db(db: f64) -> String {
     format!("{db:+.2} dB")

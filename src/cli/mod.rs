@@ -9,6 +9,7 @@ mod record;
 mod sim;
 mod source_args;
 mod summary;
+mod watch;
 
 use std::io::Write;
 use std::process::ExitCode;
@@ -73,6 +74,8 @@ enum Command {
     Check(check::Args),
     /// Fit a detector model to a points CSV and write a profile.
     Fit(fit::Args),
+    /// The live screen: power from a port, a capture or the simulator, for tuning and peaking.
+    Watch(watch::Args),
     /// Record calibrated power to CSV from a port, a capture or the simulator.
     Record(record::Args),
     /// Stream simulated detector samples to a file, standard output or a pseudo-terminal.
@@ -88,6 +91,7 @@ pub fn run() -> ExitCode {
         Command::Convert(args) => convert::run(args),
         Command::Check(args) => check::run(args),
         Command::Fit(args) => fit::run(args),
+        Command::Watch(args) => watch::run(args),
         Command::Record(args) => record::run(args),
         Command::Sim(args) => sim::run(args),
         Command::Ports => ports::run(),

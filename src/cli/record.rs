@@ -225,7 +225,7 @@ fn install_signal_flag() -> io::Result<Arc<AtomicBool>> {
     Ok(flag)
 }
 
-fn hex_digest(bytes: &[u8]) -> String {
+pub fn hex_digest(bytes: &[u8]) -> String {
     Sha256::digest(bytes)
         .iter()
         .take(8)

@@ -1,0 +1,525 @@
+//! The live screen's state, and `update`, the one function that changes it. Nothing here
+//! touches the terminal: effects the loop must carry out come back as [`Command`]s.
+
+use std::path::PathBuf;
+use std::sync::Arc;
+
+use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
+
+use dbtrail::calibration::{Calibration, Flags, Reading};
+use dbtrail::link::LinkSnapshot;
+use dbtrail::profile::Profile;
+use dbtrail::record::Event;
+use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend};
+use dbtrail::units::{parse_db, parse_frequency};
+
+/// Everything that can happen to the screen.
+#[derive(Debug, Clone)]
+pub enum AppEvent {
+    /// A key was pressed.
+    Key(KeyEvent),
+    /// Time has passed; `now` is source time in seconds.
+    Tick { now: f64 },
+    /// Samples and link events from the source, oldest first.
+    Samples(Vec<Event>),
+    /// The source's link counters.
+    Link(LinkSnapshot),
+}
+
+/// What the loop must do after an update.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Command {
+    /// Leave the screen.
+    Quit,
+    /// Ring the terminal bell once.
+    Bell,
+    /// Start logging to this file.
+    StartLog(PathBuf),
+    /// Stop logging.
+    StopLog,
+    /// The calibration changed (frequency or offset); a log notes it.
+    Recalibrated,
+}
+
+/// The unit of the main reading.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Units {
+    /// dBm.
+    Dbm,
+    /// Watts with an SI prefix.
+    Watts,
+    /// Volts rms at the profile's impedance.
+    Vrms,
+    /// Volts peak.
+    Vpk,
+    /// Volts peak to peak.
+    Vpp,
+    /// dB relative to the stored reference.
+    Relative,
+}
+
+impl Units {
+    fn next(self, has_reference: bool) -> Self {
+        match self {
+            Units::Dbm => Units::Watts,
+            Units::Watts => Units::Vrms,
+            Units::Vrms => Units::Vpk,
+            Units::Vpk => Units::Vpp,
+            Units::Vpp if has_reference => Units::Relative,
+            Units::Vpp | Units::Relative => Units::Dbm,
+        }
+    }
+}
+
+/// The trend windows the trend key cycles through: (seconds, label).
+pub const TREND_WINDOWS: [(f64, &str); 4] = [
+    (10.0, "10 s"),
+    (60.0, "1 min"),
+    (600.0, "10 min"),
+    (3600.0, "1 h"),
+];
+/// Buckets per trend window.
+pub const TREND_BUCKETS: usize = 240;
+/// How long a warning stays up after the last sample that raised it, seconds.
+pub const WARNING_HOLD_S: f64 = 1.5;
+/// Flags that raise the warning banner.
+pub const ALARMS: Flags = Flags::ADC_CLIP
+    .union(Flags::ABOVE_SPAN)
+    .union(Flags::OVER_DETECTOR_MAX)
+    .union(Flags::OVER_RATED);
+
+/// What the main reading shows.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Shown {
+    /// No valid reading yet.
+    Waiting,
+    /// A level, dBm at the reference plane.
+    Level(f64),
+    /// Below the calibrated span, whose low end is given.
+    Below(f64),
+    /// At ADC clip: at least this level.
+    Clipped(f64),
+}
+
+/// What the input line is asking for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Ask {
+    /// A frequency such as 145.5MHz.
+    Frequency,
+    /// An extra offset such as 10dB.
+    Offset,
+    /// Averaging: off, a count, or a duration.
+    Averaging,
+    /// A file to log to.
+    LogFile,
+}
+
+impl Ask {
+    /// The question put to the user.
+    pub fn question(self) -> &'static str {
+        match self {
+            Ask::Frequency => "frequency (e.g. 145.5MHz)",
+            Ask::Offset => "extra offset in dB (e.g. 10dB, -3dB)",
+            Ask::Averaging => "averaging: off, a count (32) or a time (500ms, 2s)",
+            Ask::LogFile => "log to file",
+        }
+    }
+}
+
+/// The screen's mode.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Mode {
+    /// Readings, keys act at once.
+    Normal,
+    /// The help overlay.
+    Help,
+    /// Typing an answer.
+    Prompt {
+        /// What is asked.
+        ask: Ask,
+        /// What has been typed.
+        text: String,
+        /// Why the last answer was refused.
+        error: Option<String>,
+    },
+}
+
+/// The state of the live screen.
+pub struct App {
+    /// The profile in use.
+    pub profile: Arc<Profile>,
+    /// The calibration for the current frequency and offset.
+    pub cal: Calibration,
+    /// Offset added to the profile's, dB.
+    pub extra_offset_db: f64,
+    /// What the samples come from.
+    pub source: String,
+    /// Whether colours may be used.
+    pub color: bool,
+    /// The mode.
+    pub mode: Mode,
+    /// The unit of the main reading.
+    pub units: Units,
+    /// The reference for relative readings, dBm.
+    pub reference_dbm: Option<f64>,
+    /// Which of [`TREND_WINDOWS`] is shown.
+    pub trend_window: usize,
+    /// The shown value held by the freeze key.
+    pub frozen: Option<Shown>,
+    /// Link counters as last reported.
+    pub link: LinkSnapshot,
+    /// Samples per second, measured.
+    pub rate: f64,
+    /// Source time now, seconds.
+    pub now: f64,
+    /// The last reading of the first channel.
+    pub last: Option<Reading>,
+    /// When the last sample arrived, source seconds.
+    pub last_sample_t: Option<f64>,
+    /// Whether the source is connected.
+    pub connected: bool,
+    /// The moving average.
+    pub averager: Averager,
+    /// Min and max hold since the reset.
+    pub holds: PowerStats,
+    /// When the holds were reset, source seconds.
+    pub holds_since: f64,
+    /// The best shown level since the reset, dBm (the peaking aid).
+    pub best_dbm: Option<f64>,
+    /// Flags of the warnings now up, and when each was last raised.
+    pub warnings: Vec<(Flags, f64)>,
+    /// Where the log goes and how many rows it has, when logging.
+    pub logging: Option<(PathBuf, u64)>,
+    /// A one-line message for the user (an error from a command, say).
+    pub notice: Option<String>,
+    settle: Settle,
+    trends: Vec<Trend>,
+    rate_mark: (f64, u64),
+}
+
+impl App {
+    /// A screen for `profile` at `freq_hz` (None: the profile's reference) and an extra
+    /// offset.
+    pub fn new(
+        profile: Arc<Profile>,
+        freq_hz: Option<f64>,
+        extra_offset_db: f64,
+        source: String,
+    ) -> Self {
+        let cal = Calibration::new(&profile, freq_hz, extra_offset_db);
+        App {
+            profile,
+            cal,
+            extra_offset_db,
+            source,
+            color: true,
+            mode: Mode::Normal,
+            units: Units::Dbm,
+            reference_dbm: None,
+            trend_window: 1,
+            frozen: None,
+            link: LinkSnapshot::default(),
+            rate: 0.0,
+            now: 0.0,
+            last: None,
+            last_sample_t: None,
+            connected: true,
+            averager: Averager::new(Averaging::Samples(16)),
+            holds: PowerStats::default(),
+            holds_since: 0.0,
+            best_dbm: None,
+            warnings: Vec::new(),
+            logging: None,
+            notice: None,
+            settle: Settle::new(1.0, 0.1),
+            trends: TREND_WINDOWS
+                .iter()
+                .map(|(s, _)| Trend::new(*s, TREND_BUCKETS))
+                .collect(),
+            rate_mark: (0.0, 0),
+        }
+    }
+
+    /// The one place state changes.
+    pub fn update(&mut self, event: AppEvent) -> Vec<Command> {
+        match event {
+            AppEvent::Key(key) if key.kind != KeyEventKind::Release => self.key(key),
+            AppEvent::Key(_) => Vec::new(),
+            AppEvent::Samples(events) => self.samples(&events),
+            AppEvent::Link(link) => {
+                self.connected = link.connected;
+                self.link = link;
+                Vec::new()
+            }
+            AppEvent::Tick { now } => self.tick(now),
+        }
+    }
+
+    /// The level the main reading shows now (or the frozen one).
+    pub fn shown(&self) -> Shown {
+        self.frozen.unwrap_or_else(|| self.live_shown())
+    }
+
+    fn live_shown(&self) -> Shown {
+        match self.last {
+            None => Shown::Waiting,
+            Some(r) if r.flags.contains(Flags::BELOW_SPAN) => Shown::Below(r.dbm),
+            Some(r) if r.flags.contains(Flags::ADC_CLIP) => Shown::Clipped(r.dbm),
+            Some(_) => self
+                .averager
+                .mean_dbm()
+                .map_or(Shown::Waiting, Shown::Level),
+        }
+    }
+
+    /// True when the averaging window is full and the shown value has stopped moving.
+    pub fn is_settled(&self) -> bool {
+        self.averager.is_full(self.now) && self.settle.is_settled(self.now)
+    }
+
+    /// How the shown value moved over the last second, dB.
+    pub fn change_over_last_second(&self) -> Option<f64> {
+        self.settle.change_over_last_second(self.now)
+    }
+
+    /// The trend of the selected window as columns of (min, max) dBm.
+    pub fn trend_columns(&self, columns: usize) -> Vec<Option<(f64, f64)>> {
+        self.trends[self.trend_window].columns(self.now, columns)
+    }
+
+    /// The flags of the warnings up now.
+    pub fn active_warnings(&self) -> Flags {
+        self.warnings
+            .iter()
+            .filter(|(_, t)| self.now - t < WARNING_HOLD_S)
+            .fold(Flags::empty(), |all, (f, _)| all | *f)
+    }
+
+    fn samples(&mut self, events: &[Event]) -> Vec<Command> {
+        let before = self.active_warnings();
+        for event in events {
+            match event {
+                Event::Sample { t, frame } => self.sample(*t, f64::from(frame.counts()[0])),
+                Event::LinkDown { .. } => self.connected = false,
+                Event::LinkUp { .. } => self.connected = true,
+                Event::Lost { .. } => {}
+            }
+        }
+        let raised = self.active_warnings().difference(before);
+        if raised.is_empty() {
+            Vec::new()
+        } else {
+            vec![Command::Bell]
+        }
+    }
+
+    fn sample(&mut self, t: f64, counts: f64) {
+        let reading = self.cal.reading(counts);
+        self.now = self.now.max(t);
+        self.last_sample_t = Some(t);
+        self.last = Some(reading);
+        let alarms = reading.flags & ALARMS;
+        for flag in alarms.iter() {
+            match self.warnings.iter_mut().find(|(f, _)| *f == flag) {
+                Some(entry) => entry.1 = t,
+                None => self.warnings.push((flag, t)),
+            }
+        }
+        if reading
+            .flags
+            .intersects(Flags::BELOW_SPAN | Flags::ADC_CLIP)
+        {
+            // The level has left what the average can describe; start it afresh.
+            self.averager.clear();
+        } else {
+            self.averager.push(t, &reading);
+        }
+        self.holds.add(&reading);
+        for trend in &mut self.trends {
+            trend.push(t, &reading);
+        }
+    }
+
+    fn tick(&mut self, now: f64) -> Vec<Command> {
+        self.now = self.now.max(now);
+        if let Shown::Level(dbm) = self.live_shown() {
+            self.settle.push(self.now, dbm);
+            self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+        }
+        let (t0, n0) = self.rate_mark;
+        if self.now - t0 >= 1.0 {
+            self.rate = (self.link.samples.saturating_sub(n0)) as f64 / (self.now - t0);
+            self.rate_mark = (self.now, self.link.samples);
+        }
+        let now = self.now;
+        self.warnings.retain(|(_, t)| now - t < WARNING_HOLD_S);
+        Vec::new()
+    }
+
+    fn key(&mut self, key: KeyEvent) -> Vec<Command> {
+        if key.modifiers.contains(KeyModifiers::CONTROL) && key.code == KeyCode::Char('c') {
+            return vec![Command::Quit];
+        }
+        match self.mode.clone() {
+            Mode::Help => {
+                self.mode = Mode::Normal;
+                if key.code == KeyCode::Char('q') {
+                    return vec![Command::Quit];
+                }
+                Vec::new()
+            }
+            Mode::Prompt { ask, text, .. } => self.prompt_key(ask, text, key),
+            Mode::Normal => self.normal_key(key),
+        }
+    }
+
+    fn normal_key(&mut self, key: KeyEvent) -> Vec<Command> {
+        self.notice = None;
+        let KeyCode::Char(c) = key.code else {
+            return if key.code == KeyCode::Esc {
+                vec![Command::Quit]
+            } else {
+                Vec::new()
+            };
+        };
+        match c {
+            'q' => return vec![Command::Quit],
+            '?' | 'h' => self.mode = Mode::Help,
+            'f' => self.ask(Ask::Frequency, ""),
+            'o' => self.ask(Ask::Offset, ""),
+            'a' => self.ask(Ask::Averaging, ""),
+            'l' if self.logging.is_some() => return vec![Command::StopLog],
+            'l' => self.ask(Ask::LogFile, &default_log_name()),
+            'u' => self.units = self.units.next(self.reference_dbm.is_some()),
+            't' => self.trend_window = (self.trend_window + 1) % TREND_WINDOWS.len(),
+            'r' => self.reset_holds(),
+            's' => self.set_reference(),
+            'c' => {
+                self.reference_dbm = None;
+                if self.units == Units::Relative {
+                    self.units = Units::Dbm;
+                }
+            }
+            ' ' => {
+                self.frozen = if self.frozen.is_some() {
+                    None
+                } else {
+                    Some(self.live_shown())
+                }
+            }
+            _ => {}
+        }
+        Vec::new()
+    }
+
+    fn ask(&mut self, ask: Ask, start: &str) {
+        self.mode = Mode::Prompt {
+            ask,
+            text: start.to_string(),
+            error: None,
+        };
+    }
+
+    fn prompt_key(&mut self, ask: Ask, mut text: String, key: KeyEvent) -> Vec<Command> {
+        match key.code {
+            KeyCode::Esc => self.mode = Mode::Normal,
+            KeyCode::Backspace => {
+                text.pop();
+                self.mode = Mode::Prompt {
+                    ask,
+                    text,
+                    error: None,
+                };
+            }
+            KeyCode::Char(c) if text.len() < 200 => {
+                text.push(c);
+                self.mode = Mode::Prompt {
+                    ask,
+                    text,
+                    error: None,
+                };
+            }
+            KeyCode::Enter => match self.answer(ask, &text) {
+                Ok(commands) => {
+                    self.mode = Mode::Normal;
+                    return commands;
+                }
+                Err(error) => {
+                    self.mode = Mode::Prompt {
+                        ask,
+                        text,
+                        error: Some(error),
+                    }
+                }
+            },
+            _ => {}
+        }
+        Vec::new()
+    }
+
+    fn answer(&mut self, ask: Ask, text: &str) -> Result<Vec<Command>, String> {
+        match ask {
+            Ask::Frequency => {
+                let hz = parse_frequency(text).map_err(|e| e.to_string())?;
+                Ok(self.recalibrate(Some(hz), self.extra_offset_db))
+            }
+            Ask::Offset => {
+                let db = parse_db(text).map_err(|e| e.to_string())?;
+                Ok(self.recalibrate(Some(self.cal.freq_hz()), db))
+            }
+            Ask::Averaging => {
+                let mode = Averaging::parse(text).map_err(|e| e.to_string())?;
+                self.averager = Averager::new(mode);
+                self.settle.clear();
+                Ok(Vec::new())
+            }
+            Ask::LogFile => {
+                let path = text.trim();
+                if path.is_empty() {
+                    return Err("give a file name".into());
+                }
+                Ok(vec![Command::StartLog(PathBuf::from(path))])
+            }
+        }
+    }
+
+    /// Moves to a new frequency or offset. Both only add dB at the reference plane, so
+    /// the history is shifted by the change rather than thrown away.
+    fn recalibrate(&mut self, freq_hz: Option<f64>, extra_offset_db: f64) -> Vec<Command> {
+        let before = self.cal.correction_db() + self.cal.offset_db();
+        self.cal = Calibration::new(&self.profile, freq_hz, extra_offset_db);
+        self.extra_offset_db = extra_offset_db;
+        let shift = self.cal.correction_db() + self.cal.offset_db() - before;
+        self.averager.shift_db(shift);
+        self.settle.shift_db(shift);
+        self.holds.shift_db(shift);
+        for trend in &mut self.trends {
+            trend.shift_db(shift);
+        }
+        self.best_dbm = self.best_dbm.map(|b| b + shift);
+        self.last = self.last.map(|r| self.cal.reading(r.counts));
+        vec![Command::Recalibrated]
+    }
+
+    fn reset_holds(&mut self) {
+        self.holds = PowerStats::default();
+        self.holds_since = self.now;
+        self.best_dbm = None;
+    }
+
+    fn set_reference(&mut self) {
+        match self.live_shown() {
+            Shown::Level(dbm) => {
+                self.reference_dbm = Some(dbm);
+                self.units = Units::Relative;
+            }
+            _ => self.notice = Some("no valid reading to take as the reference".into()),
+        }
+    }
+}
+
+/// A log file name from the wall clock, e.g. `dbtrail-2026-12-01T22-30-31Z.csv`.
+fn default_log_name() -> String {
+    let stamp = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
+    format!("dbtrail-{}.csv", stamp.replace(':', "-"))
+}

@@ -1,0 +1,491 @@
+//! Drawing the live screen. Everything here only reads the [`App`].
+
+use ratatui::buffer::Buffer;
+use ratatui::layout::{Constraint, Layout, Rect};
+use ratatui::style::{Color, Modifier, Style};
+use ratatui::text::{Line, Span};
+use ratatui::widgets::{Block, Clear, Paragraph, Widget, Wrap};
+use ratatui::Frame;
+
+use dbtrail::calibration::Flags;
+use dbtrail::units::{Power, Si, VoltageForm};
+
+use super::app::{App, Mode, Shown, Units, TREND_WINDOWS};
+use super::digits;
+
+/// The smallest screen that gets the large digits.
+pub const FULL_SIZE: (u16, u16) = (80, 24);
+
+/// Draws the whole screen.
+pub fn draw(app: &App, frame: &mut Frame) {
+    let area = frame.area();
+    let full = area.width >= FULL_SIZE.0 && area.height >= FULL_SIZE.1;
+    let reading_rows = if full { digits::HEIGHT + 1 } else { 1 };
+    let [title, banner, reading, forms, _, bar, markers, holds, peak, _, trend, status, hints] =
+        Layout::vertical([
+            Constraint::Length(1),
+            Constraint::Length(1),
+            Constraint::Length(reading_rows),
+            Constraint::Length(1),
+            Constraint::Length(u16::from(full)),
+            Constraint::Length(1),
+            Constraint::Length(1),
+            Constraint::Length(1),
+            Constraint::Length(1),
+            Constraint::Length(u16::from(full)),
+            Constraint::Min(0),
+            Constraint::Length(1),
+            Constraint::Length(1),
+        ])
+        .areas(area);
+    let buf = frame.buffer_mut();
+    title_bar(app, title, buf);
+    warning_banner(app, banner, buf);
+    main_reading(app, reading, full, buf);
+    Paragraph::new(other_forms(app)).render(forms, buf);
+    level_bar(app, bar, markers, buf);
+    Paragraph::new(holds_line(app)).render(holds, buf);
+    Paragraph::new(peak_line(app)).render(peak, buf);
+    trend_chart(app, trend, buf);
+    Paragraph::new(status_line(app)).render(status, buf);
+    bottom_line(app, hints, buf);
+    if app.mode == Mode::Help {
+        help_overlay(app, area, buf);
+    }
+}
+
+/// A style with a colour, or without when colours are off (`NO_COLOR`).
+fn paint(app: &App, fg: Color, bg: Option<Color>) -> Style {
+    if !app.color {
+        return Style::new();
+    }
+    let style = Style::new().fg(fg);
+    bg.map_or(style, |bg| style.bg(bg))
+}
+
+/// The style of readings: greyed while the source is disconnected.
+fn reading_style(app: &App) -> Style {
+    if app.connected {
+        Style::new().add_modifier(Modifier::BOLD)
+    } else {
+        paint(app, Color::DarkGray, None).add_modifier(Modifier::DIM)
+    }
+}
+
+fn title_bar(app: &App, area: Rect, buf: &mut Buffer) {
+    let cal = &app.cal;
+    let text = format!(
+        " dbtrail · {} · {} ({:+.2} dB) · offset {:+.2} dB · avg {}",
+        app.profile.name,
+        Si::new(cal.freq_hz(), "Hz"),
+        cal.correction_db(),
+        cal.offset_db(),
+        app.averager.mode().describe(),
+    );
+    Paragraph::new(text)
+        .style(Style::new().add_modifier(Modifier::REVERSED))
+        .render(area, buf);
+}
+
+/// The words of a warning, most serious first.
+fn warning_words(flags: Flags) -> Vec<&'static str> {
+    [
+        (Flags::OVER_RATED, "OVER LOAD/ATTENUATOR RATING"),
+        (Flags::OVER_DETECTOR_MAX, "OVER DETECTOR SAFE INPUT"),
+        (Flags::ADC_CLIP, "ADC CLIP"),
+        (Flags::ABOVE_SPAN, "ABOVE CALIBRATED SPAN"),
+    ]
+    .iter()
+    .filter(|(f, _)| flags.contains(*f))
+    .map(|(_, w)| *w)
+    .collect()
+}
+
+fn warning_banner(app: &App, area: Rect, buf: &mut Buffer) {
+    let mut words = warning_words(app.active_warnings());
+    if !app.connected {
+        words.insert(0, "SOURCE DISCONNECTED: retrying; last reading greyed");
+    }
+    if words.is_empty() {
+        return;
+    }
+    let style = paint(app, Color::White, Some(Color::Red))
+        .add_modifier(Modifier::BOLD | Modifier::REVERSED);
+    let style = if app.color {
+        style.remove_modifier(Modifier::REVERSED)
+    } else {
+        style
+    };
+    Paragraph::new(format!(" ▲ {} ", words.join(" · ")))
+        .style(style)
+        .render(area, buf);
+}
+
+/// The number and unit of the main reading in the chosen units, or a phrase.
+pub fn main_text(app: &App) -> (String, String) {
+    match app.shown() {
+        Shown::Waiting => (String::new(), "waiting for samples".into()),
+        Shown::Below(lo) => (String::new(), format!("below {lo:+.2} dBm")),
+        Shown::Clipped(at) => (String::new(), format!("at least {at:+.2} dBm (ADC clip)")),
+        Shown::Level(dbm) => in_units(app, dbm, app.units),
+    }
+}
+
+fn in_units(app: &App, dbm: f64, units: Units) -> (String, String) {
+    let ohms = app.profile.ohms;
+    let power = Power::from_dbm(dbm);
+    let si = |value: f64, unit: &'static str| {
+        let text = Si::new(value, unit).to_string();
+        let (number, unit) = text.split_once(' ').unwrap_or((&text, ""));
+        (number.to_string(), unit.to_string())
+    };
+    let volts = |form: VoltageForm, suffix: &str| {
+        let (n, u) = si(power.volts(ohms, form), "V");
+        (n, format!("{u}{suffix}"))
+    };
+    match units {
+        Units::Dbm => (format!("{dbm:+.2}"), "dBm".into()),
+        Units::Watts => si(power.watts(), "W"),
+        Units::Vrms => volts(VoltageForm::Rms, "rms"),
+        Units::Vpk => volts(VoltageForm::Peak, "pk"),
+        Units::Vpp => volts(VoltageForm::PeakToPeak, "pp"),
+        Units::Relative => match app.reference_dbm {
+            Some(reference) => (format!("{:+.2}", dbm - reference), "dB rel".into()),
+            None => (format!("{dbm:+.2}"), "dBm".into()),
+        },
+    }
+}
+
+fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
+    let (number, unit) = main_text(app);
+    let style = reading_style(app);
+    let style = match app.shown() {
+        Shown::Below(_) | Shown::Clipped(_) => style.patch(paint(app, Color::Yellow, None)),
+        _ => style,
+    };
+    let frozen = if app.frozen.is_some() {
+        "  [frozen]"
+    } else if app.is_settled() {
+        "  ● settled"
+    } else {
+        "  ○ settling"
+    };
+    if !full || number.is_empty() {
+        let text = format!(" {number} {unit}{frozen}");
+        let row = Rect {
+            y: area.y + area.height.saturating_sub(1) / 2,
+            height: 1,
+            ..area
+        };
+        Paragraph::new(text.trim_end().to_string())
+            .style(style)
+            .render(row, buf);
+        return;
+    }
+    let width = digits::render(&number, area.x + 2, area.y, style, buf);
+    let unit_row = Rect {
+        x: area.x + 3 + width,
+        y: area.y + digits::HEIGHT - 1,
+        width: area.width.saturating_sub(3 + width),
+        height: 1,
+    };
+    Paragraph::new(format!("{unit}{frozen}"))
+        .style(style)
+        .render(unit_row, buf);
+}
+
+fn other_forms(app: &App) -> Line<'static> {
+    let Shown::Level(dbm) = app.shown() else {
+        return Line::from("");
+    };
+    let mut parts: Vec<String> = [
+        Units::Dbm,
+        Units::Watts,
+        Units::Vrms,
+        Units::Vpk,
+        Units::Vpp,
+    ]
+    .into_iter()
+    .filter(|u| *u != app.units)
+    .map(|u| {
+        let (n, unit) = in_units(app, dbm, u);
+        format!("{n} {unit}")
+    })
+    .collect();
+    if let (Some(reference), false) = (app.reference_dbm, app.units == Units::Relative) {
+        parts.push(format!("Δref {:+.2} dB", dbm - reference));
+    }
+    Line::from(format!(
+        "  {}   at {} Ω",
+        parts.join(" · "),
+        app.profile.ohms
+    ))
+}
+
+/// Column of `dbm` on a bar of `width` cells spanning `span`.
+fn bar_position(dbm: f64, span: (f64, f64), width: u16) -> f64 {
+    let fraction = ((dbm - span.0) / (span.1 - span.0)).clamp(0.0, 1.0);
+    fraction * f64::from(width)
+}
+
+fn level_bar(app: &App, bar: Rect, markers: Rect, buf: &mut Buffer) {
+    let span = app.cal.span_dbm();
+    let left = format!(" {:+.1} ", span.0);
+    let right = format!(" {:+.1} dBm", span.1);
+    let width = bar.width.saturating_sub((left.len() + right.len()) as u16);
+    if width < 4 {
+        return;
+    }
+    let x0 = bar.x + left.len() as u16;
+    buf.set_string(bar.x, bar.y, &left, Style::new());
+    buf.set_string(x0 + width, bar.y, &right, Style::new());
+    let level = match app.shown() {
+        Shown::Level(v) | Shown::Clipped(v) => Some(v),
+        Shown::Below(_) | Shown::Waiting => None,
+    };
+    let fill = level.map_or(0.0, |v| bar_position(v, span, width));
+    let style = reading_style(app).patch(paint(app, Color::Green, None));
+    for i in 0..width {
+        let covered = (fill - f64::from(i)).clamp(0.0, 1.0);
+        let symbol = digits::eighths_left(covered);
+        buf.set_string(
+            x0 + i,
+            bar.y,
+            symbol,
+            if symbol == "·" { Style::new() } else { style },
+        );
+    }
+    let mut mark = |dbm: f64, symbol: &str| {
+        let column = bar_position(dbm, span, width).min(f64::from(width) - 1.0) as u16;
+        buf.set_string(
+            x0 + column,
+            markers.y,
+            symbol,
+            Style::new().add_modifier(Modifier::BOLD),
+        );
+    };
+    if let Some((lo, hi)) = app.holds.extremes() {
+        mark(lo, "▲");
+        mark(hi, "▲");
+    }
+    if let Some(reference) = app.reference_dbm {
+        mark(reference, "◆");
+    }
+}
+
+fn holds_line(app: &App) -> String {
+    let held = dbtrail::units::format_clock(app.now - app.holds_since);
+    match app.holds.extremes() {
+        Some((lo, hi)) => format!(
+            "  hold   min {lo:+.2} dBm   max {hi:+.2} dBm   for {held}   (r resets; ▲ on the bar)"
+        ),
+        None => format!("  hold   no valid reading in {held}"),
+    }
+}
+
+fn peak_line(app: &App) -> String {
+    let (Some(best), Shown::Level(now)) = (app.best_dbm, app.shown()) else {
+        return "  peak   waiting for a valid reading".into();
+    };
+    let direction = match app.change_over_last_second() {
+        Some(d) if d > 0.05 => format!("rising {d:+.2} dB/s"),
+        Some(d) if d < -0.05 => format!("falling {d:+.2} dB/s"),
+        Some(_) => "steady".into(),
+        None => "…".into(),
+    };
+    format!(
+        "  peak   best {best:+.2} dBm   now {:.2} dB below it   {direction}",
+        best - now
+    )
+}
+
+fn trend_chart(app: &App, area: Rect, buf: &mut Buffer) {
+    if area.height < 3 || area.width < 20 {
+        return;
+    }
+    let label = format!(
+        " trend, last {} (t cycles) ",
+        TREND_WINDOWS[app.trend_window].1
+    );
+    let block = Block::bordered().title(label);
+    let inner = block.inner(area);
+    block.render(area, buf);
+    let axis = 9u16;
+    let plot = Rect {
+        x: inner.x + axis,
+        width: inner.width.saturating_sub(axis),
+        ..inner
+    };
+    let columns = app.trend_columns(usize::from(plot.width));
+    let values = columns.iter().flatten();
+    let (lo, hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (a, b)| {
+        (lo.min(*a), hi.max(*b))
+    });
+    if !lo.is_finite() {
+        buf.set_string(
+            plot.x,
+            inner.y,
+            "no valid readings in this window yet",
+            Style::new(),
+        );
+        return;
+    }
+    let (lo, hi) = if hi - lo < 0.2 {
+        ((lo + hi) / 2.0 - 0.1, (lo + hi) / 2.0 + 0.1)
+    } else {
+        (lo, hi)
+    };
+    buf.set_string(inner.x, inner.y, format!("{hi:+7.2} "), Style::new());
+    buf.set_string(
+        inner.x,
+        inner.y + inner.height - 1,
+        format!("{lo:+7.2} "),
+        Style::new(),
+    );
+    let style = reading_style(app).patch(paint(app, Color::Cyan, None));
+    let eighths = f64::from(plot.height) * 8.0;
+    for (i, column) in columns.iter().enumerate() {
+        let Some((a, b)) = column else { continue };
+        let bottom = ((a - lo) / (hi - lo) * eighths).floor().max(0.0) as u16;
+        let top = ((b - lo) / (hi - lo) * eighths).ceil().max(1.0) as u16;
+        for row in 0..plot.height {
+            let (cell_lo, cell_hi) = (row * 8, row * 8 + 8);
+            if top <= cell_lo || bottom >= cell_hi {
+                continue;
+            }
+            let symbol = if top < cell_hi {
+                digits::eighths_up(top - cell_lo)
+            } else {
+                "█"
+            };
+            buf.set_string(
+                plot.x + i as u16,
+                plot.y + plot.height - 1 - row,
+                symbol,
+                style,
+            );
+        }
+    }
+}
+
+fn status_line(app: &App) -> Line<'static> {
+    let link = &app.link;
+    let silent = app.last_sample_t.map_or(String::new(), |t| {
+        format!(" │ {:.1} s ago", (app.now - t).max(0.0))
+    });
+    let log = match &app.logging {
+        Some((path, rows)) => format!("log {} ({rows} rows)", path.display()),
+        None => "log off".into(),
+    };
+    let mut spans = vec![Span::raw(format!(
+        " {} │ {:.0}/s │ bad {} crc {} drop {} ovr {} rec {}{silent} │ {log}",
+        app.source,
+        app.rate,
+        link.bad_lines,
+        link.crc_errors,
+        link.dropped_frames,
+        link.overruns,
+        link.reconnects
+    ))];
+    if !app.connected {
+        spans.push(Span::styled(
+            " │ DISCONNECTED",
+            paint(app, Color::Red, None).add_modifier(Modifier::BOLD),
+        ));
+    }
+    Line::from(spans)
+}
+
+fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) {
+    match &app.mode {
+        Mode::Prompt { ask, text, error } => {
+            let mut spans = vec![
+                Span::styled(
+                    format!(" {}: ", ask.question()),
+                    Style::new().add_modifier(Modifier::BOLD),
+                ),
+                Span::raw(format!("{text}▏")),
+            ];
+            match error {
+                Some(e) => spans.push(Span::styled(format!("  {e}"), paint(app, Color::Red, None))),
+                None => spans.push(Span::raw("   Enter applies · Esc cancels")),
+            }
+            Paragraph::new(Line::from(spans)).render(area, buf);
+        }
+        _ => {
+            let text = app
+                .notice
+                .clone()
+                .unwrap_or_else(|| key_hints(usize::from(area.width)));
+            Paragraph::new(text)
+                .style(paint(app, Color::Gray, None))
+                .render(area, buf);
+        }
+    }
+}
+
+/// As many key hints as fit in `width`, the way out and to help first.
+fn key_hints(width: usize) -> String {
+    const HINTS: [&str; 11] = [
+        "? help",
+        "q quit",
+        "f freq",
+        "a avg",
+        "u units",
+        "r reset",
+        "o offset",
+        "s/c ref",
+        "t trend",
+        "␣ freeze",
+        "l log",
+    ];
+    let mut text = String::new();
+    for hint in HINTS {
+        if text.chars().count() + hint.chars().count() + 3 > width {
+            break;
+        }
+        text.push_str(if text.is_empty() { " " } else { " · " });
+        text.push_str(hint);
+    }
+    text
+}
+
+/// The keys, and the safety cautions in brief.
+pub const HELP: &[&str] = &[
+    "f        set the frequency (e.g. 145.5MHz): applies its correction",
+    "o        set an extra offset in dB (another attenuator, a coupler)",
+    "a        averaging: off, a count (32) or a time (500ms, 2s), over watts",
+    "u        cycle units: dBm, W, Vrms, Vpk, Vpp, dB relative",
+    "t        cycle the trend window: 10 s, 1 min, 10 min, 1 h",
+    "r        reset min/max hold and the peak",
+    "s / c    set the reference to the reading / clear it",
+    "space    freeze the reading (press again to go on)",
+    "l        start or stop logging to a CSV file (as `record` writes)",
+    "q, Esc   quit          any key closes this help",
+    "",
+    "Safety: RF burns; keep clear of live antennas, feed lines and loads.",
+    "Stay within the ratings of loads, attenuators and the detector.",
+    "Transmit only as your licence and local regulations allow;",
+    "local codes and licensed practice come first.",
+];
+
+fn help_overlay(app: &App, area: Rect, buf: &mut Buffer) {
+    let width = 76.min(area.width);
+    let height = (HELP.len() as u16 + 2).min(area.height);
+    let rect = Rect {
+        x: area.x + (area.width - width) / 2,
+        y: area.y + (area.height - height) / 2,
+        width,
+        height,
+    };
+    Clear.render(rect, buf);
+    let lines: Vec<Line> = HELP.iter().map(|l| Line::from(format!(" {l}"))).collect();
+    Paragraph::new(lines)
+        .wrap(Wrap { trim: false })
+        .block(
+            Block::bordered()
+                .title(" keys ")
+                .style(paint(app, Color::White, None)),
+        )
+        .render(rect, buf);
+}

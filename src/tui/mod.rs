@@ -1,0 +1,238 @@
+//! The live screen: a tokio loop that merges keys (from a small reader thread), a steady
+//! frame tick, sample batches drained from the source's ring and SIGTERM/SIGHUP into
+//! [`app::AppEvent`]s, feeds them to [`app::App::update`], and draws with [`draw::draw`].
+
+pub mod app;
+pub mod digits;
+pub mod draw;
+
+use std::fs::{File, OpenOptions};
+use std::io::{self, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant, SystemTime};
+
+use anyhow::{Context, Result};
+use ratatui::crossterm::event::{self as term_event, Event as TermEvent};
+use ratatui::DefaultTerminal;
+use tokio::sync::mpsc;
+
+use dbtrail::record::{Event, Recorder, RunContext};
+
+use crate::source::Running;
+use app::{App, AppEvent, Command};
+
+/// Frames per second the screen redraws at, never faster.
+pub const FRAMES_PER_SECOND: u64 = 25;
+/// How often a log is forced to disk.
+const LOG_SYNC_EVERY: Duration = Duration::from_secs(2);
+
+/// What the screen needs besides the app itself.
+pub struct Session {
+    /// The running source.
+    pub source: Running,
+    /// Start logging here at once (`--log`).
+    pub log: Option<PathBuf>,
+    /// Tool name and version, for log headers.
+    pub tool: String,
+    /// A hash of the profile's bytes, for log headers.
+    pub profile_hash: String,
+}
+
+/// Runs the screen until the user quits or a signal arrives; the terminal is restored on
+/// every way out, a panic included (ratatui's hook restores it before the message).
+pub fn run(app: App, session: Session) -> Result<()> {
+    let runtime = tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .build()
+        .context("cannot start the event loop")?;
+    let mut terminal = ratatui::init();
+    let outcome = runtime.block_on(event_loop(&mut terminal, app, session));
+    ratatui::restore();
+    outcome
+}
+
+/// An open log and when it was last made durable.
+struct Log {
+    recorder: Recorder<File>,
+    path: PathBuf,
+    synced: Instant,
+}
+
+async fn event_loop(
+    terminal: &mut DefaultTerminal,
+    mut app: App,
+    mut session: Session,
+) -> Result<()> {
+    let stop_keys = Arc::new(AtomicBool::new(false));
+    let mut keys = spawn_key_reader(Arc::clone(&stop_keys));
+    let mut tick = tokio::time::interval(Duration::from_millis(1000 / FRAMES_PER_SECOND));
+    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
+    let mut terminate = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate())?;
+    let mut hangup = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::hangup())?;
+    let mut log: Option<Log> = None;
+    if let Some(path) = session.log.clone() {
+        start_log(&mut app, &mut log, &session, &path);
+    }
+    let result = loop {
+        let commands = tokio::select! {
+            Some(event) = keys.recv() => app.update(event),
+            _ = tick.tick() => {
+                let mut commands = drain(&mut app, &mut session.source, &mut log);
+                app.update(AppEvent::Link(session.source.counters.snapshot()));
+                commands.extend(app.update(AppEvent::Tick { now: session.source.now() }));
+                if let Err(e) = terminal.draw(|frame| draw::draw(&app, frame)) {
+                    break Err(e).context("cannot draw the screen");
+                }
+                commands
+            }
+            _ = terminate.recv() => break Ok(()),
+            _ = hangup.recv() => break Ok(()),
+        };
+        if carry_out(commands, &mut app, &mut log, &session) {
+            break Ok(());
+        }
+    };
+    stop_keys.store(true, Ordering::Release);
+    if let Some(log) = log.as_mut() {
+        let _ = log.recorder.finish(session.source.now());
+        let _ = log.recorder.get_ref().sync_data();
+    }
+    result
+}
+
+/// Moves what the source has sent to the log and the app.
+fn drain(app: &mut App, source: &mut Running, log: &mut Option<Log>) -> Vec<Command> {
+    let mut batch = Vec::new();
+    while let Some(event) = source.next_event() {
+        batch.push(event);
+    }
+    if let Some(open) = log.as_mut() {
+        if let Err(e) = log_batch(open, &batch, source) {
+            app.notice = Some(format!("logging to {} stopped: {e}", open.path.display()));
+            *log = None;
+            app.logging = None;
+        } else {
+            app.logging = Some((open.path.clone(), open.recorder.rows()));
+        }
+    }
+    app.update(AppEvent::Samples(batch))
+}
+
+fn log_batch(log: &mut Log, batch: &[Event], source: &Running) -> io::Result<()> {
+    for event in batch {
+        log.recorder.handle(event)?;
+    }
+    if source.live {
+        log.recorder.advance(source.now() - 0.1)?;
+    }
+    log.recorder.flush()?;
+    if log.synced.elapsed() >= LOG_SYNC_EVERY {
+        log.recorder.get_ref().sync_data()?;
+        log.synced = Instant::now();
+    }
+    Ok(())
+}
+
+/// Carries out commands; true when the screen should close.
+fn carry_out(
+    commands: Vec<Command>,
+    app: &mut App,
+    log: &mut Option<Log>,
+    session: &Session,
+) -> bool {
+    for command in commands {
+        match command {
+            Command::Quit => return true,
+            Command::Bell => {
+                let mut out = io::stdout();
+                let _ = out.write_all(b"\x07").and_then(|()| out.flush());
+            }
+            Command::StartLog(path) => start_log(app, log, session, &path),
+            Command::StopLog => {
+                if let Some(mut open) = log.take() {
+                    let _ = open.recorder.finish(session.source.now());
+                    let _ = open.recorder.get_ref().sync_data();
+                    app.notice = Some(format!(
+                        "log {} closed, {} rows",
+                        open.path.display(),
+                        open.recorder.rows()
+                    ));
+                }
+                app.logging = None;
+            }
+            Command::Recalibrated => {
+                // A log keeps one calibration per file: close it and say so.
+                if let Some(open) = log.as_ref() {
+                    let path = open.path.clone();
+                    carry_out(vec![Command::StopLog], app, log, session);
+                    app.notice = Some(format!(
+                        "frequency or offset changed: log {} closed; press l to start a new one",
+                        path.display()
+                    ));
+                }
+            }
+        }
+    }
+    false
+}
+
+fn start_log(app: &mut App, log: &mut Option<Log>, session: &Session, path: &Path) {
+    match open_log(app, session, path) {
+        Ok(open) => {
+            app.logging = Some((open.path.clone(), 0));
+            app.notice = Some(format!("logging to {}", path.display()));
+            *log = Some(open);
+        }
+        Err(e) => app.notice = Some(format!("cannot log: {e:#}")),
+    }
+}
+
+fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
+    let file = OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(path)
+        .with_context(|| {
+            format!(
+                "cannot create {} (an existing file is never replaced)",
+                path.display()
+            )
+        })?;
+    let context = RunContext {
+        tool: session.tool.clone(),
+        profile: app.profile.name.clone(),
+        profile_hash: session.profile_hash.clone(),
+        started: SystemTime::now() - Duration::from_secs_f64(session.source.now()),
+        source: session.source.description.clone(),
+        every: Duration::from_secs(1),
+    };
+    let recorder = Recorder::new(file, app.cal.clone(), &context, true)
+        .with_context(|| format!("cannot write {}", path.display()))?;
+    Ok(Log {
+        recorder,
+        path: path.to_path_buf(),
+        synced: Instant::now(),
+    })
+}
+
+/// A thread that turns terminal key presses into events; it never blocks the loop.
+fn spawn_key_reader(stop: Arc<AtomicBool>) -> mpsc::UnboundedReceiver<AppEvent> {
+    let (tx, rx) = mpsc::unbounded_channel();
+    std::thread::spawn(move || {
+        while !stop.load(Ordering::Acquire) {
+            match term_event::poll(Duration::from_millis(100)) {
+                Ok(true) => {}
+                Ok(false) => continue,
+                Err(_) => break,
+            }
+            if let Ok(TermEvent::Key(key)) = term_event::read() {
+                if tx.send(AppEvent::Key(key)).is_err() {
+                    break;
+                }
+            }
+        }
+    });
+    rx
+}
