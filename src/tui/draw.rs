@@ -47,7 +47,14 @@ pub fn draw(app: &App, frame: &mut Frame) {
     Paragraph::new(holds_line(app)).render(holds, buf);
     Paragraph::new(peak_line(app)).render(peak, buf);
     trend_chart(app, trend, buf);
-    Paragraph::new(status_line(app)).render(status, buf);
+    match &app.mode {
+        Mode::Prompt {
+            error: Some(error), ..
+        } => Paragraph::new(format!(" {error}"))
+            .style(paint(app, Color::Red, None).add_modifier(Modifier::BOLD))
+            .render(status, buf),
+        _ => Paragraph::new(status_line(app)).render(status, buf),
+    }
     bottom_line(app, hints, buf);
     if app.mode == Mode::Help {
         help_overlay(app, area, buf);
@@ -406,10 +413,11 @@ fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) {
                 ),
                 Span::raw(format!("{text}▏")),
             ];
-            match error {
-                Some(e) => spans.push(Span::styled(format!("  {e}"), paint(app, Color::Red, None))),
-                None => spans.push(Span::raw("   Enter applies · Esc cancels")),
-            }
+            spans.push(Span::raw(if error.is_some() {
+                "   fix it, or Esc cancels"
+            } else {
+                "   Enter applies · Esc cancels"
+            }));
             Paragraph::new(Line::from(spans)).render(area, buf);
         }
         _ => {

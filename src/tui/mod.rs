@@ -5,6 +5,8 @@
 pub mod app;
 pub mod digits;
 pub mod draw;
+#[cfg(test)]
+mod tests;
 
 use std::fs::{File, OpenOptions};
 use std::io::{self, Write};

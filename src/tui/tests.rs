@@ -1,0 +1,266 @@
+//! The screen without a terminal: state changes through `update`, and what `draw` puts in
+//! the cells of a ratatui `TestBackend`.
+
+use std::sync::Arc;
+
+use ratatui::backend::TestBackend;
+use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
+use ratatui::Terminal;
+
+use dbtrail::decode::Frame;
+use dbtrail::profile::parse_profile;
+use dbtrail::record::Event;
+
+use super::app::{App, AppEvent, Command, Shown, Units};
+use super::draw::draw;
+
+/// A log-amp whose maths is done by hand: 1 mV per count, 25 mV/dB, intercept −80 dBm,
+/// correction 0 dB at 10 MHz rising to +2 dB at 1 GHz, a 30 dB attenuator, and limits.
+/// So C counts read C/25 − 80 + 30 dBm at 10 MHz, one dB more at 100 MHz.
+const HAND_PROFILE: &str = r#"
+name = "hand"
+reference_frequency = "10MHz"
+[adc]
+bits = 12
+vref = 4.095
+[model]
+kind = "log"
+slope = 0.025
+intercept = -80.0
+points = [
+  { applied = "-60dBm", counts = 500 },
+  { applied = "-30dBm", counts = 1250 },
+  { applied = "0dBm", counts = 2000 },
+]
+[frequency_correction]
+points = [ { freq = "10MHz", db = 0.0 }, { freq = "1GHz", db = 2.0 } ]
+[offset]
+db = 30.0
+[limits]
+detector_max_dbm = -5.0
+reference_max_dbm = 20.0
+"#;
+
+fn app() -> App {
+    let profile = parse_profile(HAND_PROFILE, "hand.toml").unwrap();
+    App::new(Arc::new(profile), None, 0.0, "test bench".into())
+}
+
+fn sample(app: &mut App, t: f64, counts: u32) -> Vec<Command> {
+    let frame = Frame::new(&[counts]).unwrap();
+    app.update(AppEvent::Samples(vec![Event::Sample { t, frame }]))
+}
+
+fn keys(app: &mut App, text: &str) -> Vec<Command> {
+    let mut commands = Vec::new();
+    for c in text.chars() {
+        let code = match c {
+            '\n' => KeyCode::Enter,
+            '\x1b' => KeyCode::Esc,
+            c => KeyCode::Char(c),
+        };
+        commands.extend(app.update(AppEvent::Key(KeyEvent::new(code, KeyModifiers::NONE))));
+    }
+    commands
+}
+
+fn screen(app: &App, width: u16, height: u16) -> Vec<String> {
+    let mut terminal = Terminal::new(TestBackend::new(width, height)).unwrap();
+    terminal.draw(|frame| draw(app, frame)).unwrap();
+    let buffer = terminal.backend().buffer();
+    (0..height)
+        .map(|y| {
+            (0..width)
+                .map(|x| buffer[(x, y)].symbol().to_string())
+                .collect::<String>()
+        })
+        .collect()
+}
+
+fn has(lines: &[String], text: &str) -> bool {
+    lines.iter().any(|l| l.contains(text))
+}
+
+// Source: worked example by hand (see HAND_PROFILE): 1500 counts read +10 dBm at 10 MHz;
+// at 100 MHz, halfway to 1 GHz in log-frequency, the correction adds 1 dB: +11 dBm.
+#[test]
+fn changing_the_frequency_recomputes_the_reading_with_its_correction() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    assert_eq!(app.shown(), Shown::Level(10.0));
+    let commands = keys(&mut app, "f100MHz\n");
+    assert_eq!(commands, [Command::Recalibrated]);
+    assert_eq!(app.cal.freq_hz(), 100e6);
+    let Shown::Level(dbm) = app.shown() else {
+        panic!("{:?}", app.shown())
+    };
+    assert!((dbm - 11.0).abs() < 1e-9, "{dbm}");
+    assert!((app.last.unwrap().dbm - 11.0).abs() < 1e-9);
+    // A new sample at the new frequency agrees with the shifted history.
+    sample(&mut app, 0.1, 1500);
+    let Shown::Level(dbm) = app.shown() else {
+        panic!()
+    };
+    assert!((dbm - 11.0).abs() < 1e-9);
+}
+
+#[test]
+fn a_bad_frequency_is_refused_at_the_prompt_and_nothing_changes() {
+    let mut app = app();
+    keys(&mut app, "f10m\n");
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "unknown unit `m` in `10m`"), "{lines:#?}");
+    assert_eq!(app.cal.freq_hz(), 10e6);
+    keys(&mut app, "\x1b");
+    assert!(!has(&screen(&app, 100, 30), "unknown unit"));
+}
+
+// Source: worked example — reference +10 dBm (1500 counts); 1300 counts read +2 dBm, so
+// the relative reading is −8.00 dB.
+#[test]
+fn relative_reading_has_the_right_sign_and_value() {
+    let mut app = app();
+    keys(&mut app, "aoff\n");
+    sample(&mut app, 0.0, 1500);
+    keys(&mut app, "s");
+    assert_eq!(app.units, Units::Relative);
+    sample(&mut app, 0.1, 1300);
+    let lines = screen(&app, 60, 20);
+    assert!(has(&lines, "-8.00 dB rel"), "{lines:#?}");
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "dB rel"), "{lines:#?}");
+    assert!(
+        has(&lines, "+2.00 dBm"),
+        "the other forms show the absolute level: {lines:#?}"
+    );
+}
+
+#[test]
+fn below_the_span_says_below_and_shows_no_number() {
+    let mut app = app();
+    // 400 counts: −64 dBm at the detector, under its −60 dBm lowest point.
+    sample(&mut app, 0.0, 400);
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "below -30.00 dBm"), "{lines:#?}");
+    assert!(!has(&lines, "-34.00"), "no made-up number");
+}
+
+#[test]
+fn overload_banner_appears_with_one_bell_and_clears_after() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    assert!(!has(&screen(&app, 100, 30)[..2], "ADC CLIP"));
+    let commands = sample(&mut app, 0.1, 4090);
+    assert_eq!(commands, [Command::Bell]);
+    assert!(sample(&mut app, 0.2, 4090).is_empty(), "one bell per event");
+    let lines = screen(&app, 100, 30);
+    assert!(
+        lines[1].contains("ADC CLIP") && lines[1].contains("OVER DETECTOR SAFE INPUT"),
+        "{lines:#?}"
+    );
+    assert!(has(&lines, "ADC clip"));
+    sample(&mut app, 0.3, 1500);
+    app.update(AppEvent::Tick { now: 3.0 });
+    let lines = screen(&app, 100, 30);
+    assert!(!lines[1].contains("ADC CLIP"), "{lines:#?}");
+}
+
+// Source: worked example — 1200 counts read −2 dBm, 1600 counts +14 dBm.
+#[test]
+fn min_and_max_hold_and_their_reset() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1200);
+    sample(&mut app, 0.1, 1600);
+    sample(&mut app, 0.2, 1400);
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "min -2.00 dBm   max +14.00 dBm"), "{lines:#?}");
+    keys(&mut app, "r");
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "no valid reading"), "{lines:#?}");
+    sample(&mut app, 0.3, 1250);
+    assert!(has(&screen(&app, 100, 30), "min +0.00 dBm   max +0.00 dBm"));
+}
+
+#[test]
+fn trend_keeps_a_one_sample_spike() {
+    let mut app = app();
+    keys(&mut app, "t"); // 10 min window: 240 buckets of 2.5 s, 90 columns on screen
+    for i in 0..30_000 {
+        let t = f64::from(i) * 0.001;
+        sample(&mut app, t, if i == 15_000 { 1700 } else { 1500 });
+    }
+    app.update(AppEvent::Tick { now: 30.0 });
+    let lines = screen(&app, 100, 30);
+    // 1700 counts read +18 dBm: the chart's top label, and one column reaches it.
+    let top = lines
+        .iter()
+        .position(|l| l.starts_with("│ +18.00"))
+        .expect("the spike sets the top of the scale");
+    let marks = lines[top]
+        .chars()
+        .filter(|c| "▁▂▃▄▅▆▇█".contains(*c))
+        .count();
+    assert_eq!(marks, 1, "{lines:#?}");
+}
+
+#[test]
+fn layout_at_80_by_24_and_60_by_20() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    let full = screen(&app, 80, 24);
+    assert!(
+        full[2..7].iter().any(|l| l.contains("███")),
+        "large digits at 80×24: {full:#?}"
+    );
+    assert!(
+        full[22].contains("test bench") && full[23].contains("? help"),
+        "{full:#?}"
+    );
+    let small = screen(&app, 60, 20);
+    assert!(
+        small[2].contains("+10.00 dBm"),
+        "plain text below 80×24: {small:#?}"
+    );
+    assert!(small[19].contains("? help"));
+    screen(&app, 20, 5);
+    screen(&app, 1, 1);
+}
+
+#[test]
+fn help_carries_the_keys_and_the_safety_cautions() {
+    let mut app = app();
+    keys(&mut app, "?");
+    let lines = screen(&app, 100, 30);
+    assert!(
+        has(&lines, "RF burns") && has(&lines, "licence"),
+        "{lines:#?}"
+    );
+    keys(&mut app, "x");
+    assert!(!has(&screen(&app, 100, 30), "RF burns"));
+    assert_eq!(keys(&mut app, "q"), [Command::Quit]);
+}
+
+#[test]
+fn freeze_holds_the_shown_value_while_samples_go_on() {
+    let mut app = app();
+    keys(&mut app, "aoff\n");
+    sample(&mut app, 0.0, 1500);
+    keys(&mut app, " ");
+    sample(&mut app, 0.1, 1300);
+    assert_eq!(app.shown(), Shown::Level(10.0));
+    keys(&mut app, " ");
+    let Shown::Level(dbm) = app.shown() else {
+        panic!()
+    };
+    assert!((dbm - 2.0).abs() < 1e-9);
+}
+
+#[test]
+fn a_disconnected_source_is_shown_as_such() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    app.update(AppEvent::Samples(vec![Event::LinkDown { t: 0.5 }]));
+    let lines = screen(&app, 100, 30);
+    assert!(lines[1].contains("SOURCE DISCONNECTED"), "{lines:#?}");
+    assert!(has(&lines, "DISCONNECTED"));
+}

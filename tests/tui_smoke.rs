@@ -1,0 +1,24 @@
+//! Runs tests/tui_smoke.sh (the live screen in tmux: a reading, the quit key, the terminal
+//! restored) when tmux is installed; .ci/run installs it.
+
+use std::process::Command;
+
+#[test]
+fn watch_in_tmux_shows_a_reading_quits_and_restores_the_terminal() {
+    if Command::new("tmux").arg("-V").output().is_err() {
+        eprintln!("tmux is not installed: skipping the live-screen smoke test");
+        return;
+    }
+    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/tui_smoke.sh");
+    let out = Command::new("bash")
+        .arg(script)
+        .arg(env!("CARGO_BIN_EXE_dbtrail"))
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}\n{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}

@@ -1,0 +1,33 @@
+#!/usr/bin/env bash
+# Smoke test of the live screen in a real terminal: tmux runs `dbtrail watch --demo`, we
+# wait for a reading, press the quit key, and check that the program exited with 0 and
+# left the terminal in its normal (canonical, echoing) mode.
+# Usage: tests/tui_smoke.sh PATH_TO_DBTRAIL
+set -euo pipefail
+bin=${1:?path to the dbtrail binary}
+sock="dbtrail-smoke-$$"
+tm() { tmux -L "$sock" "$@"; }
+trap 'tm kill-server 2>/dev/null || true' EXIT
+out=$(mktemp)
+
+tm new-session -d -x 100 -y 30 "bash --norc --noprofile"
+tm send-keys "PS1='ready> '" Enter
+tm send-keys "'$bin' watch --demo tune; echo \"exit=\$?\" > '$out'; stty -a >> '$out'" Enter
+
+seen=""
+for _ in $(seq 1 100); do
+    if tm capture-pane -p | grep -q "dBm  [●○]"; then seen=yes; break; fi
+    sleep 0.1
+done
+[ -n "$seen" ] || { echo "no reading appeared"; tm capture-pane -p; exit 1; }
+
+tm send-keys q
+for _ in $(seq 1 50); do
+    [ -s "$out" ] && grep -q "icanon" "$out" && break
+    sleep 0.1
+done
+grep -q "^exit=0$" "$out" || { echo "watch did not exit with 0:"; cat "$out"; exit 1; }
+grep -qw -- "-icanon" "$out" && { echo "terminal left in raw mode"; exit 1; }
+grep -qw "icanon" "$out" || { echo "no terminal modes recorded"; exit 1; }
+grep -qw "echo" "$out" || { echo "echo left off"; exit 1; }
+echo "tui smoke: reading shown, quit with 0, terminal restored"
