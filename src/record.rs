@@ -118,6 +118,14 @@ impl<W: Write> Recorder<W> {
         })
     }
 
+    /// Starts the first interval at source time `t` rather than 0, for a recording that
+    /// begins part-way through a session.
+    pub fn begin_at(&mut self, t: f64) {
+        if self.every > 0.0 {
+            self.interval = Some((t.max(0.0) / self.every).floor() as u64);
+        }
+    }
+
     /// Rows written so far.
     pub fn rows(&self) -> u64 {
         self.rows
@@ -319,4 +327,80 @@ fn context_lines(cal: &Calibration, c: &RunContext) -> String {
         started = humantime::format_rfc3339_millis(c.started),
         source = c.source,
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::profile::parse_profile;
+
+    fn recorder(every: f64) -> Recorder<Vec<u8>> {
+        let profile = parse_profile(
+            include_str!("../profiles/demo-logamp.toml"),
+            "demo-logamp.toml",
+        )
+        .unwrap();
+        let context = RunContext {
+            tool: "dbtrail test".into(),
+            profile: "demo-logamp".into(),
+            profile_hash: "0".into(),
+            started: SystemTime::UNIX_EPOCH,
+            source: "test".into(),
+            every: Duration::from_secs_f64(every),
+        };
+        Recorder::new(
+            Vec::new(),
+            Calibration::new(&profile, None, 0.0),
+            &context,
+            true,
+        )
+        .unwrap()
+    }
+
+    fn sample(t: f64, counts: u32) -> Event {
+        Event::Sample {
+            t,
+            frame: Frame::new(&[counts]).unwrap(),
+        }
+    }
+
+    fn data_rows(r: Recorder<Vec<u8>>) -> Vec<Vec<String>> {
+        let text = String::from_utf8(r.out.into_inner().unwrap()).unwrap();
+        text.lines()
+            .filter(|l| !l.starts_with('#') && !l.starts_with("time_s"))
+            .map(|l| l.split(',').map(String::from).collect())
+            .collect()
+    }
+
+    #[test]
+    fn silent_intervals_become_gap_rows_and_a_reconnect_is_marked() {
+        let mut r = recorder(1.0);
+        for event in [
+            sample(0.2, 2000),
+            Event::LinkDown { t: 1.5 },
+            Event::LinkUp { t: 3.2 },
+            sample(3.5, 2000),
+        ] {
+            r.handle(&event).unwrap();
+        }
+        r.finish(4.0).unwrap();
+        let rows = data_rows(r);
+        let flags: Vec<&str> = rows.iter().map(|row| row[7].as_str()).collect();
+        assert_eq!(flags, ["", "gap", "gap", "gap|reconnect"]);
+        let samples: Vec<&str> = rows.iter().map(|row| row[2].as_str()).collect();
+        assert_eq!(samples, ["1", "0", "0", "1"]);
+        assert_eq!(rows[1][3], "", "no number where there was no reading");
+    }
+
+    #[test]
+    fn a_recording_begun_part_way_starts_at_its_own_interval() {
+        let mut r = recorder(1.0);
+        r.begin_at(6.3);
+        r.handle(&sample(6.4, 2000)).unwrap();
+        r.handle(&sample(7.1, 2000)).unwrap();
+        r.finish(7.5).unwrap();
+        let rows = data_rows(r);
+        let times: Vec<&str> = rows.iter().map(|row| row[0].as_str()).collect();
+        assert_eq!(times, ["6.000000", "7.000000"]);
+    }
 }

@@ -381,7 +381,7 @@ fn status_line(app: &App) -> Line<'static> {
         format!(" │ {:.1} s ago", (app.now - t).max(0.0))
     });
     let log = match &app.logging {
-        Some((path, rows)) => format!("log {} ({rows} rows)", path.display()),
+        Some((_, rows)) => format!("log on, {rows} rows"),
         None => "log off".into(),
     };
     let mut spans = vec![Span::raw(format!(

@@ -210,8 +210,9 @@ fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
         source: session.source.description.clone(),
         every: Duration::from_secs(1),
     };
-    let recorder = Recorder::new(file, app.cal.clone(), &context, true)
+    let mut recorder = Recorder::new(file, app.cal.clone(), &context, true)
         .with_context(|| format!("cannot write {}", path.display()))?;
+    recorder.begin_at(session.source.now());
     Ok(Log {
         recorder,
         path: path.to_path_buf(),
