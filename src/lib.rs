@@ -12,6 +12,7 @@
 //! - [`sim`]: the built-in simulator, from a scenario's true power to ADC counts;
 //! - [`link`]: link-health counters shared with reader threads;
 //! - [`record`]: CSV recording of readings, per interval or per sample;
+//! - [`capture`]: the calibration procedure: settle, average, fit, save a profile;
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
 //! - [`points`]: the calibration points CSV that `fit` reads.
 //!
@@ -20,6 +21,7 @@
 
 pub mod adc;
 pub mod calibration;
+pub mod capture;
 pub mod correction;
 pub mod decode;
 pub mod detector;

@@ -207,6 +207,93 @@ impl Simulator {
     }
 }
 
+/// What a simulated bench's detector is, for calibrating it by hand.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum BenchDetector {
+    /// A Schottky diode peak detector.
+    Diode,
+    /// A logarithmic-amplifier detector.
+    LogAmp,
+}
+
+/// The hidden truth of a simulated bench: a signal generator straight into a detector the
+/// user has never seen the curve of, read by a 12-bit ADC. Invented for the demo.
+#[derive(Debug, Clone)]
+pub struct SignalBench {
+    detector: Arc<dyn Detector>,
+    adc: Adc,
+    rate_hz: f64,
+    rng: Pcg64,
+    noise: Normal<f64>,
+    index: u64,
+    volts: f64,
+    target_volts: f64,
+    /// The detector's first-order roll-off corner, Hz (junction capacitance).
+    corner_hz: f64,
+}
+
+/// The time constant of the detector's output filter, seconds: each new level settles.
+const BENCH_TAU_S: f64 = 0.03;
+
+impl SignalBench {
+    /// A bench with the given detector, sampled at `rate_hz`.
+    pub fn new(kind: BenchDetector, rate_hz: f64, seed: u64) -> Self {
+        let (detector, adc, corner_hz): (Arc<dyn Detector>, Adc, f64) = match kind {
+            BenchDetector::Diode => (
+                Arc::new(DiodeDetector::new(1.08, 0.55, 300.0, 50.0, (-30.0, 18.0))),
+                Adc::new(12, 1.2, 2.0, 0.0, crate::adc::DEFAULT_CLIP_MARGIN),
+                700e6,
+            ),
+            BenchDetector::LogAmp => (
+                Arc::new(crate::detector::LogAmpDetector::new(0.0242, -86.5, (-70.0, 10.0))),
+                Adc::new(12, 3.3, 1.0, 0.0, crate::adc::DEFAULT_CLIP_MARGIN),
+                2.5e9,
+            ),
+        };
+        SignalBench {
+            detector,
+            adc,
+            rate_hz,
+            rng: Pcg64::seed_from_u64(seed),
+            noise: Normal::new(0.0, NOISE_COUNTS).expect("a positive constant deviation"),
+            index: 0,
+            volts: 0.0,
+            target_volts: 0.0,
+            corner_hz,
+        }
+    }
+
+    /// The ADC the bench uses (what a user would read off the board).
+    pub fn adc(&self) -> &Adc {
+        &self.adc
+    }
+
+    /// How much the detector reads low at `hz` (true minus indicated), dB.
+    pub fn rolloff_db(&self, hz: f64) -> f64 {
+        10.0 * (1.0 + (hz / self.corner_hz).powi(2)).log10()
+    }
+
+    /// The detector output, volts, for `dbm` applied at `hz` (None: signal off).
+    pub fn volts_for(&self, applied: Option<(f64, f64)>) -> f64 {
+        applied.map_or(0.0, |(dbm, hz)| self.detector.volts_at(dbm - self.rolloff_db(hz)))
+    }
+
+    /// Sets the generator: `dbm` at `hz` into the detector, or off.
+    pub fn apply(&mut self, applied: Option<(f64, f64)>) {
+        self.target_volts = self.volts_for(applied);
+    }
+
+    /// The next sample: seconds of bench time and the ADC count.
+    pub fn next_sample(&mut self) -> (f64, u32) {
+        let t = self.index as f64 / self.rate_hz;
+        self.index += 1;
+        let alpha = 1.0 - (-1.0 / (self.rate_hz * BENCH_TAU_S)).exp();
+        self.volts += alpha * (self.target_volts - self.volts);
+        let noisy = self.adc.counts(self.volts) + self.noise.sample(&mut self.rng);
+        (t, noisy.round().clamp(0.0, self.adc.full_scale()) as u32)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,0 +1,471 @@
+//! Calibration capture: the bench procedure that turns applied levels into a profile. It
+//! owns the settle test (a moving window whose spread and slope must both be small), the
+//! averaging of a settled level, the session of measured points and frequency-correction
+//! entries, the fits and warnings shown after each point, and the profile written at the
+//! end. No terminal or serial I/O: samples come in, text and profiles go out.
+
+use std::collections::VecDeque;
+
+use thiserror::Error;
+
+use crate::adc::Adc;
+use crate::calibration::Calibration;
+use crate::detector::{ordered_points, CalPoint, ModelError, ModelKind};
+use crate::numeric::fit_line;
+use crate::profile::raw::{FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile};
+use crate::profile::{parse_profile, render_profile, Profile, ProfileError};
+use crate::units::{format_frequency, parse_level, Level, UnitError};
+
+/// When a level counts as settled.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SettleRule {
+    /// The moving window, seconds.
+    pub window_s: f64,
+    /// Largest standard deviation in the window, counts (or 0.1 % of the mean if larger).
+    pub max_std_counts: f64,
+    /// Largest slope in the window, counts per second (or 0.2 % of the mean per second).
+    pub max_slope: f64,
+    /// How long to wait before giving up, seconds.
+    pub timeout_s: f64,
+}
+
+impl Default for SettleRule {
+    fn default() -> Self {
+        SettleRule { window_s: 0.5, max_std_counts: 2.0, max_slope: 2.0, timeout_s: 10.0 }
+    }
+}
+
+/// How long a settled level is averaged.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Span {
+    /// This many samples.
+    Samples(u64),
+    /// This many seconds.
+    Seconds(f64),
+}
+
+/// Why a measurement gave no point.
+#[derive(Debug, Error, Clone, PartialEq)]
+pub enum MeasureError {
+    /// The counts kept moving.
+    #[error(
+        "the reading did not settle within {timeout_s} s (last window: spread {std:.2} counts, \
+         drift {slope:.2} counts/s); check that the generator is on and steady, then enter the \
+         level again"
+    )]
+    NeverSettled {
+        /// The timeout.
+        timeout_s: f64,
+        /// The last window's standard deviation.
+        std: f64,
+        /// The last window's slope.
+        slope: f64,
+    },
+    /// The source stopped sending.
+    #[error("the source stopped sending samples before the level was measured")]
+    NoSamples,
+}
+
+/// A settled, averaged level.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Measured {
+    /// Mean counts.
+    pub counts: f64,
+    /// Standard deviation of the counts.
+    pub std_counts: f64,
+    /// Samples averaged.
+    pub samples: u64,
+}
+
+/// Waits for `samples` (time in seconds, counts) to settle under `rule`, then averages
+/// them over `span`.
+pub fn measure(samples: impl IntoIterator<Item = (f64, f64)>, rule: &SettleRule, span: Span) -> Result<Measured, MeasureError> {
+    let mut samples = samples.into_iter();
+    let mut window: VecDeque<(f64, f64)> = VecDeque::new();
+    let mut start = None;
+    let mut last = (f64::NAN, f64::NAN);
+    loop {
+        let Some((t, c)) = samples.next() else { return Err(MeasureError::NoSamples) };
+        let t0 = *start.get_or_insert(t);
+        window.push_back((t, c));
+        while window.front().is_some_and(|(old, _)| t - old > rule.window_s) {
+            window.pop_front();
+        }
+        let covered = window.front().is_some_and(|(old, _)| t - old >= rule.window_s * 0.98);
+        if covered {
+            let (std, slope) = spread_and_slope(&window);
+            last = (std, slope);
+            let mean = window.iter().map(|(_, c)| c).sum::<f64>() / window.len() as f64;
+            if std <= rule.max_std_counts.max(1e-3 * mean) && slope.abs() <= rule.max_slope.max(2e-3 * mean) {
+                break;
+            }
+        }
+        if t - t0 > rule.timeout_s {
+            return Err(MeasureError::NeverSettled { timeout_s: rule.timeout_s, std: last.0, slope: last.1 });
+        }
+    }
+    average(samples, span)
+}
+
+fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
+    let (t, c): (Vec<f64>, Vec<f64>) = window.iter().copied().unzip();
+    let n = c.len() as f64;
+    let mean = c.iter().sum::<f64>() / n;
+    let std = (c.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0).max(1.0)).sqrt();
+    let slope = fit_line(&t, &c).map_or(0.0, |l| l.slope);
+    (std, slope)
+}
+
+fn average(samples: impl Iterator<Item = (f64, f64)>, span: Span) -> Result<Measured, MeasureError> {
+    let (mut n, mut sum, mut sum_sq) = (0u64, 0.0, 0.0);
+    let mut first = None;
+    for (t, c) in samples {
+        let t0 = *first.get_or_insert(t);
+        n += 1;
+        sum += c;
+        sum_sq += c * c;
+        let done = match span {
+            Span::Samples(want) => n >= want.max(1),
+            Span::Seconds(s) => t - t0 >= s,
+        };
+        if done {
+            let mean = sum / n as f64;
+            let var = if n > 1 { ((sum_sq - sum * mean) / (n - 1) as f64).max(0.0) } else { 0.0 };
+            return Ok(Measured { counts: mean, std_counts: var.sqrt(), samples: n });
+        }
+    }
+    Err(MeasureError::NoSamples)
+}
+
+/// One calibration point of a session.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SessionPoint {
+    /// The level as typed.
+    pub applied: String,
+    /// It parsed.
+    pub level: Level,
+    /// What was measured.
+    pub measured: Measured,
+}
+
+/// One frequency-correction entry.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FreqEntry {
+    /// Frequency, Hz.
+    pub hz: f64,
+    /// What was measured.
+    pub measured: Measured,
+}
+
+/// Why a session could not do what was asked.
+#[derive(Debug, Error)]
+pub enum SessionError {
+    /// A level that does not parse.
+    #[error("{0}")]
+    Level(#[from] UnitError),
+    /// No such point.
+    #[error("there is no point {0}; the points are numbered from 1 (see the table)")]
+    NoPoint(usize),
+    /// The frequency stage needs a curve first.
+    #[error("fit a curve first: the {model} model needs at least {need} points, {got} measured")]
+    NoCurve {
+        /// The model.
+        model: ModelKind,
+        /// Points it needs.
+        need: usize,
+        /// Points there are.
+        got: usize,
+    },
+    /// The points do not make a profile yet.
+    #[error("{0}")]
+    Profile(#[from] ProfileError),
+    /// Rendering failed.
+    #[error("cannot render the profile: {0}")]
+    Render(#[from] toml::ser::Error),
+}
+
+/// A calibration in progress.
+#[derive(Debug, Clone)]
+pub struct Session {
+    /// The profile fields other than the model: name, ADC, impedance, offset, limits.
+    pub base: RawProfile,
+    /// The model to save.
+    pub model: ModelKind,
+    /// The level points.
+    pub points: Vec<SessionPoint>,
+    /// The level used for the frequency stage, as typed, and in dBm at the detector.
+    pub freq_level: Option<(String, f64)>,
+    /// The frequency-correction entries.
+    pub freq_entries: Vec<FreqEntry>,
+}
+
+impl Session {
+    /// A session that will write `base` with the points and table it collects.
+    pub fn new(base: RawProfile, model: ModelKind) -> Self {
+        Session { base, model, points: Vec::new(), freq_level: None, freq_entries: Vec::new() }
+    }
+
+    /// The impedance levels are stated at.
+    pub fn ohms(&self) -> f64 {
+        self.base.ohms.unwrap_or(crate::units::DEFAULT_OHMS)
+    }
+
+    /// The ADC, as the base profile states it.
+    pub fn adc(&self) -> Adc {
+        let a = &self.base.adc;
+        Adc::new(
+            a.bits.clamp(1, 24) as u8,
+            a.vref,
+            a.divider.unwrap_or(1.0),
+            a.zero_counts.unwrap_or(0.0),
+            a.clip_margin.unwrap_or(crate::adc::DEFAULT_CLIP_MARGIN),
+        )
+    }
+
+    /// Parses an applied level (any accepted unit, `Vdc` included).
+    pub fn parse_level(&self, text: &str) -> Result<(Level, f64), SessionError> {
+        let level = parse_level(text, true)?;
+        Ok((level, level.power(self.ohms()).dbm()))
+    }
+
+    /// Adds a measured point.
+    pub fn add(&mut self, applied: &str, measured: Measured) -> Result<(), SessionError> {
+        let (level, _) = self.parse_level(applied)?;
+        self.points.push(SessionPoint { applied: applied.trim().to_string(), level, measured });
+        Ok(())
+    }
+
+    /// Replaces point `number` (from 1) with a new measurement of the same level.
+    pub fn redo(&mut self, number: usize, measured: Measured) -> Result<(), SessionError> {
+        let point = self.points.get_mut(number.wrapping_sub(1)).ok_or(SessionError::NoPoint(number))?;
+        point.measured = measured;
+        Ok(())
+    }
+
+    /// Removes point `number` (from 1).
+    pub fn delete(&mut self, number: usize) -> Result<SessionPoint, SessionError> {
+        if number == 0 || number > self.points.len() {
+            return Err(SessionError::NoPoint(number));
+        }
+        Ok(self.points.remove(number - 1))
+    }
+
+    /// The points as the models take them.
+    pub fn cal_points(&self) -> Vec<CalPoint> {
+        let adc = self.adc();
+        self.points
+            .iter()
+            .map(|p| CalPoint { dbm: p.level.power(self.ohms()).dbm(), volts: adc.volts(p.measured.counts) })
+            .collect()
+    }
+
+    /// The profile that `model` makes from the points (without the frequency table).
+    pub fn fitted(&self, model: ModelKind) -> Result<Profile, SessionError> {
+        let raw = self.raw_profile(model, false);
+        let text = render_profile(&raw, "")?;
+        Ok(parse_profile(&text, "(calibration in progress)")?)
+    }
+
+    /// Warnings about the points: order, clip, coarse resolution.
+    pub fn warnings(&self) -> Vec<String> {
+        let mut warnings = Vec::new();
+        let adc = self.adc();
+        if let Err(ModelError::NotMonotone { index, .. } | ModelError::DuplicateLevel { second: index, .. }) =
+            ordered_points(&self.cal_points(), ModelKind::Table)
+        {
+            warnings.push(format!(
+                "point {} ({}) is not in order with the rest: the counts must rise (or fall) steadily with level; redo or delete it",
+                index + 1,
+                self.points[index].applied
+            ));
+        }
+        for (i, p) in self.points.iter().enumerate() {
+            if adc.is_clipped(p.measured.counts) {
+                warnings.push(format!("point {} ({}) is at ADC clip: add attenuation or delete it", i + 1, p.applied));
+            }
+        }
+        if let Ok(profile) = self.fitted(self.model) {
+            let cal = Calibration::new(&profile, None, 0.0);
+            for (i, p) in self.points.iter().enumerate() {
+                let step = cal.db_per_count(cal.to_reference(p.level.power(self.ohms()).dbm()));
+                if step > 0.25 {
+                    warnings.push(format!(
+                        "point {} ({}) reads only {:.1} counts: {step:.2} dB per count is coarse; average longer or raise the level",
+                        i + 1,
+                        p.applied,
+                        p.measured.counts
+                    ));
+                }
+            }
+        }
+        warnings
+    }
+
+    /// Starts the frequency stage at `level`.
+    pub fn start_frequency_stage(&mut self, level_text: &str) -> Result<(), SessionError> {
+        let (_, dbm) = self.parse_level(level_text)?;
+        self.fitted(self.model).map_err(|_| SessionError::NoCurve {
+            model: self.model,
+            need: self.model.min_points(),
+            got: self.points.len(),
+        })?;
+        self.freq_level = Some((level_text.trim().to_string(), dbm));
+        Ok(())
+    }
+
+    /// Adds a frequency entry; returns its correction in dB (applied minus indicated).
+    pub fn add_frequency(&mut self, hz: f64, measured: Measured) -> Result<f64, SessionError> {
+        self.freq_entries.retain(|e| e.hz != hz);
+        self.freq_entries.push(FreqEntry { hz, measured });
+        self.freq_entries.sort_by(|a, b| a.hz.total_cmp(&b.hz));
+        self.correction_at(hz)
+    }
+
+    /// The correction the entry at `hz` gives, dB.
+    pub fn correction_at(&self, hz: f64) -> Result<f64, SessionError> {
+        let (_, level) = self.freq_level.clone().ok_or(SessionError::NoCurve { model: self.model, need: 0, got: 0 })?;
+        let entry = self.freq_entries.iter().find(|e| e.hz == hz).ok_or(SessionError::NoPoint(0))?;
+        let profile = self.fitted(self.model)?;
+        // The detector-input level the curve alone gives: no correction, no offset.
+        let indicated = Calibration::new(&profile, None, 0.0).reading(entry.measured.counts).detector_dbm;
+        Ok(level - indicated)
+    }
+
+    /// The whole profile as it would be saved.
+    pub fn profile_text(&self, header: &str) -> Result<String, SessionError> {
+        let raw = self.raw_profile(self.model, true);
+        let text = render_profile(&raw, header)?;
+        parse_profile(&text, "(calibration to save)")?;
+        Ok(text)
+    }
+
+    /// The points in the `fit` CSV format.
+    pub fn points_csv(&self) -> String {
+        let mut out = String::from("applied,counts,std_counts,samples\n");
+        for p in &self.points {
+            out.push_str(&format!("{},{},{},{}\n", p.applied, p.measured.counts, p.measured.std_counts, p.measured.samples));
+        }
+        out
+    }
+
+    fn raw_profile(&self, model: ModelKind, with_table: bool) -> RawProfile {
+        let mut raw = self.base.clone();
+        let base_model = &self.base.model;
+        raw.model = RawModel {
+            kind: model.name().into(),
+            axis: if model == ModelKind::Table { base_model.axis.clone() } else { None },
+            temperature: if model == ModelKind::Diode { base_model.temperature } else { None },
+            n: None,
+            vl: None,
+            slope: None,
+            intercept: None,
+            points: self
+                .points
+                .iter()
+                .map(|p| RawPoint {
+                    applied: p.applied.clone(),
+                    counts: p.measured.counts,
+                    std_counts: Some(p.measured.std_counts),
+                    samples: Some(p.measured.samples),
+                })
+                .collect(),
+        };
+        if with_table && !self.freq_entries.is_empty() {
+            raw.frequency_correction = Some(RawFreqTable { points: self.frequency_rows() });
+        }
+        if let (true, Ok(profile)) = (with_table, self.fitted(model)) {
+            raw.model.slope = profile.model.param("slope");
+            raw.model.intercept = profile.model.param("intercept");
+            raw.model.n = profile.model.param("n");
+            raw.model.vl = profile.model.param("vl");
+        }
+        raw
+    }
+
+    /// The correction rows, with 0 dB at the reference frequency when it was not measured
+    /// (the curve itself was taken there).
+    fn frequency_rows(&self) -> Vec<RawFreqPoint> {
+        let reference = self.base.reference_frequency.hz().unwrap_or(0.0);
+        let mut rows: Vec<(f64, f64)> = self
+            .freq_entries
+            .iter()
+            .filter_map(|e| self.correction_at(e.hz).ok().map(|c| (e.hz, (c * 1000.0).round() / 1000.0)))
+            .collect();
+        if !rows.iter().any(|(hz, _)| *hz == reference) {
+            rows.push((reference, 0.0));
+        }
+        rows.sort_by(|a, b| a.0.total_cmp(&b.0));
+        rows.into_iter()
+            .map(|(hz, db)| RawFreqPoint { freq: FreqValue::Text(format_frequency(hz)), db })
+            .collect()
+    }
+}
+
+/// A base profile from the ADC settings given on the command line.
+pub fn base_profile(name: &str, adc: RawAdc, ohms: f64, reference_hz: f64) -> RawProfile {
+    RawProfile {
+        name: name.to_string(),
+        description: None,
+        ohms: Some(ohms),
+        reference_frequency: FreqValue::Hz(reference_hz),
+        adc,
+        model: RawModel {
+            kind: "table".into(),
+            axis: None,
+            temperature: None,
+            n: None,
+            vl: None,
+            slope: None,
+            intercept: None,
+            points: Vec::new(),
+        },
+        frequency_correction: None,
+        offset: None,
+        limits: None,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn steady(level: f64, from: f64, n: usize) -> impl Iterator<Item = (f64, f64)> {
+        (0..n).map(move |i| (from + i as f64 * 0.001, level + if i % 2 == 0 { 0.5 } else { -0.5 }))
+    }
+
+    #[test]
+    fn a_drifting_source_never_settles_and_says_so() {
+        let drifting = (0..20_000).map(|i| (f64::from(i) * 0.001, 1000.0 + f64::from(i) * 0.02));
+        let err = measure(drifting, &SettleRule::default(), Span::Samples(100)).unwrap_err();
+        assert!(matches!(err, MeasureError::NeverSettled { .. }));
+        let text = err.to_string();
+        assert!(text.contains("did not settle within 10 s") && text.contains("counts/s"), "{text}");
+    }
+
+    #[test]
+    fn a_step_settles_after_the_step_and_averages_the_new_level() {
+        // The step comes before the first window is full, as when the generator is still
+        // being set while the measurement starts.
+        let before = steady(800.0, 0.0, 300);
+        let after = steady(1200.0, 0.3, 5000);
+        let m = measure(before.chain(after), &SettleRule::default(), Span::Samples(1000)).unwrap();
+        assert!((m.counts - 1200.0).abs() < 1e-9, "{m:?}");
+        assert_eq!(m.samples, 1000);
+        assert!((m.std_counts - 0.5).abs() < 0.01);
+    }
+
+    #[test]
+    fn an_exponential_approach_settles_once_it_is_flat() {
+        let approach = (0..5000).map(|i| {
+            let t = f64::from(i) * 0.001;
+            (t, 1500.0 * (1.0 - (-t / 0.1).exp()))
+        });
+        let m = measure(approach, &SettleRule::default(), Span::Seconds(0.5)).unwrap();
+        assert!((m.counts - 1500.0).abs() < 1.0, "{m:?}");
+    }
+
+    #[test]
+    fn running_out_of_samples_is_an_error() {
+        assert_eq!(measure(steady(5.0, 0.0, 10), &SettleRule::default(), Span::Samples(5)), Err(MeasureError::NoSamples));
+    }
+}
