@@ -12,7 +12,9 @@ use crate::adc::Adc;
 use crate::calibration::Calibration;
 use crate::detector::{ordered_points, CalPoint, ModelError, ModelKind};
 use crate::numeric::fit_line;
-use crate::profile::raw::{FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile};
+use crate::profile::raw::{
+    FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile,
+};
 use crate::profile::{parse_profile, render_profile, Profile, ProfileError};
 use crate::units::{format_frequency, parse_level, Level, UnitError};
 
@@ -31,7 +33,12 @@ pub struct SettleRule {
 
 impl Default for SettleRule {
     fn default() -> Self {
-        SettleRule { window_s: 0.5, max_std_counts: 2.0, max_slope: 2.0, timeout_s: 10.0 }
+        SettleRule {
+            window_s: 0.5,
+            max_std_counts: 2.0,
+            max_slope: 2.0,
+            timeout_s: 10.0,
+        }
     }
 }
 
@@ -79,29 +86,46 @@ pub struct Measured {
 
 /// Waits for `samples` (time in seconds, counts) to settle under `rule`, then averages
 /// them over `span`.
-pub fn measure(samples: impl IntoIterator<Item = (f64, f64)>, rule: &SettleRule, span: Span) -> Result<Measured, MeasureError> {
+pub fn measure(
+    samples: impl IntoIterator<Item = (f64, f64)>,
+    rule: &SettleRule,
+    span: Span,
+) -> Result<Measured, MeasureError> {
     let mut samples = samples.into_iter();
     let mut window: VecDeque<(f64, f64)> = VecDeque::new();
     let mut start = None;
     let mut last = (f64::NAN, f64::NAN);
     loop {
-        let Some((t, c)) = samples.next() else { return Err(MeasureError::NoSamples) };
+        let Some((t, c)) = samples.next() else {
+            return Err(MeasureError::NoSamples);
+        };
         let t0 = *start.get_or_insert(t);
         window.push_back((t, c));
-        while window.front().is_some_and(|(old, _)| t - old > rule.window_s) {
+        while window
+            .front()
+            .is_some_and(|(old, _)| t - old > rule.window_s)
+        {
             window.pop_front();
         }
-        let covered = window.front().is_some_and(|(old, _)| t - old >= rule.window_s * 0.98);
+        let covered = window
+            .front()
+            .is_some_and(|(old, _)| t - old >= rule.window_s * 0.98);
         if covered {
             let (std, slope) = spread_and_slope(&window);
             last = (std, slope);
             let mean = window.iter().map(|(_, c)| c).sum::<f64>() / window.len() as f64;
-            if std <= rule.max_std_counts.max(1e-3 * mean) && slope.abs() <= rule.max_slope.max(2e-3 * mean) {
+            if std <= rule.max_std_counts.max(1e-3 * mean)
+                && slope.abs() <= rule.max_slope.max(2e-3 * mean)
+            {
                 break;
             }
         }
         if t - t0 > rule.timeout_s {
-            return Err(MeasureError::NeverSettled { timeout_s: rule.timeout_s, std: last.0, slope: last.1 });
+            return Err(MeasureError::NeverSettled {
+                timeout_s: rule.timeout_s,
+                std: last.0,
+                slope: last.1,
+            });
         }
     }
     average(samples, span)
@@ -116,7 +140,10 @@ fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
     (std, slope)
 }
 
-fn average(samples: impl Iterator<Item = (f64, f64)>, span: Span) -> Result<Measured, MeasureError> {
+fn average(
+    samples: impl Iterator<Item = (f64, f64)>,
+    span: Span,
+) -> Result<Measured, MeasureError> {
     let (mut n, mut sum, mut sum_sq) = (0u64, 0.0, 0.0);
     let mut first = None;
     for (t, c) in samples {
@@ -130,8 +157,16 @@ fn average(samples: impl Iterator<Item = (f64, f64)>, span: Span) -> Result<Meas
         };
         if done {
             let mean = sum / n as f64;
-            let var = if n > 1 { ((sum_sq - sum * mean) / (n - 1) as f64).max(0.0) } else { 0.0 };
-            return Ok(Measured { counts: mean, std_counts: var.sqrt(), samples: n });
+            let var = if n > 1 {
+                ((sum_sq - sum * mean) / (n - 1) as f64).max(0.0)
+            } else {
+                0.0
+            };
+            return Ok(Measured {
+                counts: mean,
+                std_counts: var.sqrt(),
+                samples: n,
+            });
         }
     }
     Err(MeasureError::NoSamples)
@@ -202,7 +237,13 @@ pub struct Session {
 impl Session {
     /// A session that will write `base` with the points and table it collects.
     pub fn new(base: RawProfile, model: ModelKind) -> Self {
-        Session { base, model, points: Vec::new(), freq_level: None, freq_entries: Vec::new() }
+        Session {
+            base,
+            model,
+            points: Vec::new(),
+            freq_level: None,
+            freq_entries: Vec::new(),
+        }
     }
 
     /// The impedance levels are stated at.
@@ -231,13 +272,20 @@ impl Session {
     /// Adds a measured point.
     pub fn add(&mut self, applied: &str, measured: Measured) -> Result<(), SessionError> {
         let (level, _) = self.parse_level(applied)?;
-        self.points.push(SessionPoint { applied: applied.trim().to_string(), level, measured });
+        self.points.push(SessionPoint {
+            applied: applied.trim().to_string(),
+            level,
+            measured,
+        });
         Ok(())
     }
 
     /// Replaces point `number` (from 1) with a new measurement of the same level.
     pub fn redo(&mut self, number: usize, measured: Measured) -> Result<(), SessionError> {
-        let point = self.points.get_mut(number.wrapping_sub(1)).ok_or(SessionError::NoPoint(number))?;
+        let point = self
+            .points
+            .get_mut(number.wrapping_sub(1))
+            .ok_or(SessionError::NoPoint(number))?;
         point.measured = measured;
         Ok(())
     }
@@ -255,7 +303,10 @@ impl Session {
         let adc = self.adc();
         self.points
             .iter()
-            .map(|p| CalPoint { dbm: p.level.power(self.ohms()).dbm(), volts: adc.volts(p.measured.counts) })
+            .map(|p| CalPoint {
+                dbm: p.level.power(self.ohms()).dbm(),
+                volts: adc.volts(p.measured.counts),
+            })
             .collect()
     }
 
@@ -270,8 +321,10 @@ impl Session {
     pub fn warnings(&self) -> Vec<String> {
         let mut warnings = Vec::new();
         let adc = self.adc();
-        if let Err(ModelError::NotMonotone { index, .. } | ModelError::DuplicateLevel { second: index, .. }) =
-            ordered_points(&self.cal_points(), ModelKind::Table)
+        if let Err(
+            ModelError::NotMonotone { index, .. }
+            | ModelError::DuplicateLevel { second: index, .. },
+        ) = ordered_points(&self.cal_points(), ModelKind::Table)
         {
             warnings.push(format!(
                 "point {} ({}) is not in order with the rest: the counts must rise (or fall) steadily with level; redo or delete it",
@@ -281,7 +334,11 @@ impl Session {
         }
         for (i, p) in self.points.iter().enumerate() {
             if adc.is_clipped(p.measured.counts) {
-                warnings.push(format!("point {} ({}) is at ADC clip: add attenuation or delete it", i + 1, p.applied));
+                warnings.push(format!(
+                    "point {} ({}) is at ADC clip: add attenuation or delete it",
+                    i + 1,
+                    p.applied
+                ));
             }
         }
         if let Ok(profile) = self.fitted(self.model) {
@@ -323,11 +380,21 @@ impl Session {
 
     /// The correction the entry at `hz` gives, dB.
     pub fn correction_at(&self, hz: f64) -> Result<f64, SessionError> {
-        let (_, level) = self.freq_level.clone().ok_or(SessionError::NoCurve { model: self.model, need: 0, got: 0 })?;
-        let entry = self.freq_entries.iter().find(|e| e.hz == hz).ok_or(SessionError::NoPoint(0))?;
+        let (_, level) = self.freq_level.clone().ok_or(SessionError::NoCurve {
+            model: self.model,
+            need: 0,
+            got: 0,
+        })?;
+        let entry = self
+            .freq_entries
+            .iter()
+            .find(|e| e.hz == hz)
+            .ok_or(SessionError::NoPoint(0))?;
         let profile = self.fitted(self.model)?;
         // The detector-input level the curve alone gives: no correction, no offset.
-        let indicated = Calibration::new(&profile, None, 0.0).reading(entry.measured.counts).detector_dbm;
+        let indicated = Calibration::new(&profile, None, 0.0)
+            .reading(entry.measured.counts)
+            .detector_dbm;
         Ok(level - indicated)
     }
 
@@ -343,7 +410,10 @@ impl Session {
     pub fn points_csv(&self) -> String {
         let mut out = String::from("applied,counts,std_counts,samples\n");
         for p in &self.points {
-            out.push_str(&format!("{},{},{},{}\n", p.applied, p.measured.counts, p.measured.std_counts, p.measured.samples));
+            out.push_str(&format!(
+                "{},{},{},{}\n",
+                p.applied, p.measured.counts, p.measured.std_counts, p.measured.samples
+            ));
         }
         out
     }
@@ -353,8 +423,16 @@ impl Session {
         let base_model = &self.base.model;
         raw.model = RawModel {
             kind: model.name().into(),
-            axis: if model == ModelKind::Table { base_model.axis.clone() } else { None },
-            temperature: if model == ModelKind::Diode { base_model.temperature } else { None },
+            axis: if model == ModelKind::Table {
+                base_model.axis.clone()
+            } else {
+                None
+            },
+            temperature: if model == ModelKind::Diode {
+                base_model.temperature
+            } else {
+                None
+            },
             n: None,
             vl: None,
             slope: None,
@@ -371,9 +449,14 @@ impl Session {
                 .collect(),
         };
         if with_table && !self.freq_entries.is_empty() {
-            raw.frequency_correction = Some(RawFreqTable { points: self.frequency_rows() });
+            raw.frequency_correction = Some(RawFreqTable {
+                points: self.frequency_rows(),
+            });
         }
-        if let (true, Ok(profile)) = (with_table, self.fitted(model)) {
+        if !with_table {
+            return raw;
+        }
+        if let Ok(profile) = self.fitted(model) {
             raw.model.slope = profile.model.param("slope");
             raw.model.intercept = profile.model.param("intercept");
             raw.model.n = profile.model.param("n");
@@ -389,14 +472,21 @@ impl Session {
         let mut rows: Vec<(f64, f64)> = self
             .freq_entries
             .iter()
-            .filter_map(|e| self.correction_at(e.hz).ok().map(|c| (e.hz, (c * 1000.0).round() / 1000.0)))
+            .filter_map(|e| {
+                self.correction_at(e.hz)
+                    .ok()
+                    .map(|c| (e.hz, (c * 1000.0).round() / 1000.0))
+            })
             .collect();
         if !rows.iter().any(|(hz, _)| *hz == reference) {
             rows.push((reference, 0.0));
         }
         rows.sort_by(|a, b| a.0.total_cmp(&b.0));
         rows.into_iter()
-            .map(|(hz, db)| RawFreqPoint { freq: FreqValue::Text(format_frequency(hz)), db })
+            .map(|(hz, db)| RawFreqPoint {
+                freq: FreqValue::Text(format_frequency(hz)),
+                db,
+            })
             .collect()
     }
 }
@@ -430,7 +520,12 @@ mod tests {
     use super::*;
 
     fn steady(level: f64, from: f64, n: usize) -> impl Iterator<Item = (f64, f64)> {
-        (0..n).map(move |i| (from + i as f64 * 0.001, level + if i % 2 == 0 { 0.5 } else { -0.5 }))
+        (0..n).map(move |i| {
+            (
+                from + i as f64 * 0.001,
+                level + if i % 2 == 0 { 0.5 } else { -0.5 },
+            )
+        })
     }
 
     #[test]
@@ -439,7 +534,10 @@ mod tests {
         let err = measure(drifting, &SettleRule::default(), Span::Samples(100)).unwrap_err();
         assert!(matches!(err, MeasureError::NeverSettled { .. }));
         let text = err.to_string();
-        assert!(text.contains("did not settle within 10 s") && text.contains("counts/s"), "{text}");
+        assert!(
+            text.contains("did not settle within 10 s") && text.contains("counts/s"),
+            "{text}"
+        );
     }
 
     #[test]
@@ -448,7 +546,12 @@ mod tests {
         // being set while the measurement starts.
         let before = steady(800.0, 0.0, 300);
         let after = steady(1200.0, 0.3, 5000);
-        let m = measure(before.chain(after), &SettleRule::default(), Span::Samples(1000)).unwrap();
+        let m = measure(
+            before.chain(after),
+            &SettleRule::default(),
+            Span::Samples(1000),
+        )
+        .unwrap();
         assert!((m.counts - 1200.0).abs() < 1e-9, "{m:?}");
         assert_eq!(m.samples, 1000);
         assert!((m.std_counts - 0.5).abs() < 0.01);
@@ -464,8 +567,81 @@ mod tests {
         assert!((m.counts - 1500.0).abs() < 1.0, "{m:?}");
     }
 
+    fn session() -> Session {
+        let adc = RawAdc {
+            bits: 12,
+            vref: 4.095,
+            divider: None,
+            zero_counts: None,
+            clip_margin: None,
+        };
+        Session::new(base_profile("t", adc, 50.0, 10e6), ModelKind::Log)
+    }
+
+    fn at(counts: f64) -> Measured {
+        Measured {
+            counts,
+            std_counts: 0.5,
+            samples: 100,
+        }
+    }
+
+    #[test]
+    fn a_point_out_of_order_or_at_clip_is_named_in_the_warnings() {
+        let mut s = session();
+        for (level, counts) in [("-60dBm", 500.0), ("-30dBm", 1250.0), ("0dBm", 2000.0)] {
+            s.add(level, at(counts)).unwrap();
+        }
+        assert!(s.warnings().is_empty(), "{:?}", s.warnings());
+        s.add("-45dBm", at(1900.0)).unwrap();
+        let warnings = s.warnings();
+        assert!(
+            warnings
+                .iter()
+                .any(|w| w.contains("(-45dBm) is not in order")),
+            "{warnings:?}"
+        );
+        s.delete(4).unwrap();
+        s.add("10dBm", at(4094.0)).unwrap();
+        assert!(s
+            .warnings()
+            .iter()
+            .any(|w| w.contains("(10dBm) is at ADC clip")));
+        assert!(matches!(
+            s.add("3 parsecs", at(1.0)),
+            Err(SessionError::Level(_))
+        ));
+        assert_eq!(s.points.len(), 4, "a refused entry changes nothing");
+    }
+
+    // Source: worked example — a log-amp of 25 mV/dB on 1 mV counts; at 100 MHz the
+    // detector gives 1900 counts for an applied −3 dBm, where the curve says −4 dBm, so
+    // the correction there is +1 dB.
+    #[test]
+    fn frequency_entries_give_applied_minus_indicated() {
+        let mut s = session();
+        for (level, counts) in [("-60dBm", 500.0), ("-30dBm", 1250.0), ("0dBm", 2000.0)] {
+            s.add(level, at(counts)).unwrap();
+        }
+        s.start_frequency_stage("-3dBm").unwrap();
+        let correction = s.add_frequency(100e6, at(1900.0)).unwrap();
+        assert!((correction - 1.0).abs() < 1e-9, "{correction}");
+        let text = s.profile_text("test").unwrap();
+        assert!(
+            text.contains("freq = \"100MHz\"") && text.contains("freq = \"10MHz\""),
+            "{text}"
+        );
+    }
+
     #[test]
     fn running_out_of_samples_is_an_error() {
-        assert_eq!(measure(steady(5.0, 0.0, 10), &SettleRule::default(), Span::Samples(5)), Err(MeasureError::NoSamples));
+        assert_eq!(
+            measure(
+                steady(5.0, 0.0, 10),
+                &SettleRule::default(),
+                Span::Samples(5)
+            ),
+            Err(MeasureError::NoSamples)
+        );
     }
 }

@@ -245,7 +245,11 @@ impl SignalBench {
                 700e6,
             ),
             BenchDetector::LogAmp => (
-                Arc::new(crate::detector::LogAmpDetector::new(0.0242, -86.5, (-70.0, 10.0))),
+                Arc::new(crate::detector::LogAmpDetector::new(
+                    0.0242,
+                    -86.5,
+                    (-70.0, 10.0),
+                )),
                 Adc::new(12, 3.3, 1.0, 0.0, crate::adc::DEFAULT_CLIP_MARGIN),
                 2.5e9,
             ),
@@ -275,7 +279,9 @@ impl SignalBench {
 
     /// The detector output, volts, for `dbm` applied at `hz` (None: signal off).
     pub fn volts_for(&self, applied: Option<(f64, f64)>) -> f64 {
-        applied.map_or(0.0, |(dbm, hz)| self.detector.volts_at(dbm - self.rolloff_db(hz)))
+        applied.map_or(0.0, |(dbm, hz)| {
+            self.detector.volts_at(dbm - self.rolloff_db(hz))
+        })
     }
 
     /// Sets the generator: `dbm` at `hz` into the detector, or off.

@@ -1,6 +1,7 @@
 //! Command-line definition and dispatch; each subcommand lives in its own module.
 //! Exit codes: 0 success, 1 runtime failure, 2 bad usage or bad input.
 
+pub mod calibrate;
 mod check;
 mod convert;
 mod fit;
@@ -76,6 +77,8 @@ enum Command {
     Fit(fit::Args),
     /// The live screen: power from a port, a capture or the simulator, for tuning and peaking.
     Watch(watch::Args),
+    /// Calibrate a detector: apply known levels, let dbtrail measure, save a profile.
+    Calibrate(calibrate::Args),
     /// Record calibrated power to CSV from a port, a capture or the simulator.
     Record(record::Args),
     /// Stream simulated detector samples to a file, standard output or a pseudo-terminal.
@@ -92,6 +95,7 @@ pub fn run() -> ExitCode {
         Command::Check(args) => check::run(args),
         Command::Fit(args) => fit::run(args),
         Command::Watch(args) => watch::run(args),
+        Command::Calibrate(args) => calibrate::run(args),
         Command::Record(args) => record::run(args),
         Command::Sim(args) => sim::run(args),
         Command::Ports => ports::run(),

@@ -3,6 +3,7 @@
 //! [`app::AppEvent`]s, feeds them to [`app::App::update`], and draws with [`draw::draw`].
 
 pub mod app;
+pub mod calibrate;
 pub mod digits;
 pub mod draw;
 #[cfg(test)]

@@ -1,0 +1,304 @@
+//! The calibration procedure end to end: scripted sessions against the simulated bench,
+//! the saved profile then used by `record --replay` on counts from the same hidden
+//! detector, compared with the levels that were really applied.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Stdio};
+
+use dbtrail::sim::{BenchDetector, SignalBench};
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("dbtrail-cal-{}-{name}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+/// Runs `calibrate` with `script` on its standard input.
+fn calibrate(args: &[&str], script: &[&str]) -> std::process::Output {
+    use std::io::Write;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_dbtrail"))
+        .arg("calibrate")
+        .args(args)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut input = script.join("\n");
+    input.push('\n');
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(input.as_bytes())
+        .unwrap();
+    child.wait_with_output().unwrap()
+}
+
+/// A capture from the hidden detector: for each (dBm, Hz), 1000 settled samples.
+fn capture(kind: BenchDetector, levels: &[(f64, f64)], path: &Path) {
+    let mut bench = SignalBench::new(kind, 1000.0, 99);
+    let mut text = String::new();
+    for &applied in levels {
+        bench.apply(Some(applied));
+        for _ in 0..400 {
+            bench.next_sample();
+        }
+        for _ in 0..1000 {
+            text.push_str(&format!("{}\n", bench.next_sample().1));
+        }
+    }
+    std::fs::write(path, text).unwrap();
+}
+
+/// Mean dBm of each one-second row when `capture` is replayed through `profile` at `freq`.
+fn replayed_means(profile: &Path, capture: &Path, freq: &str) -> Vec<f64> {
+    let out = Command::new(env!("CARGO_BIN_EXE_dbtrail"))
+        .args([
+            "record",
+            "--replay",
+            capture.to_str().unwrap(),
+            "--profile",
+            profile.to_str().unwrap(),
+        ])
+        .args(["--freq", freq, "--rate", "1000", "--every", "1s"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout)
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with("time_s"))
+        .map(|l| l.split(',').nth(3).unwrap().parse().unwrap())
+        .collect()
+}
+
+fn levels(from: f64, to: f64, step: f64) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut l = from;
+    while l <= to + 1e-9 {
+        out.push(format!("{l}dBm"));
+        l += step;
+    }
+    out
+}
+
+/// Calibrates the hidden detector with `model`, then checks the profile against levels
+/// between the calibration points.
+fn round_trip(
+    kind: BenchDetector,
+    demo: &str,
+    model: &str,
+    cal: (f64, f64, f64),
+    check: (f64, f64, f64),
+    tolerance: f64,
+) {
+    let dir = scratch(&format!("{demo}-{model}"));
+    let profile = dir.join("bench.toml");
+    let mut script: Vec<String> = levels(cal.0, cal.1, cal.2);
+    script.push("save".into());
+    let script: Vec<&str> = script.iter().map(String::as_str).collect();
+    let out = calibrate(
+        &[
+            "--demo",
+            demo,
+            "--model",
+            model,
+            "--out",
+            profile.to_str().unwrap(),
+        ],
+        &script,
+    );
+    assert!(
+        out.status.success(),
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(dir.join("bench.points.csv").exists());
+    let truth: Vec<(f64, f64)> = levels(check.0, check.1, check.2)
+        .iter()
+        .map(|l| (l.trim_end_matches("dBm").parse().unwrap(), 10e6))
+        .collect();
+    let capture_path = dir.join("capture.txt");
+    capture(kind, &truth, &capture_path);
+    let means = replayed_means(&profile, &capture_path, "10MHz");
+    assert_eq!(means.len(), truth.len());
+    for ((applied, _), got) in truth.iter().zip(&means) {
+        assert!(
+            (got - applied).abs() < tolerance,
+            "{model}: applied {applied} dBm, read {got} dBm"
+        );
+    }
+}
+
+// Source: the simulated bench's own truth (the level applied is known exactly); the
+// tolerance 0.1 dB is the acceptance figure for well-resolved levels.
+#[test]
+fn diode_bench_with_the_table_model_reads_true_power_within_0_1_db() {
+    round_trip(
+        BenchDetector::Diode,
+        "diode",
+        "table",
+        (-16.0, 17.0, 3.0),
+        (-9.5, 15.5, 2.5),
+        0.1,
+    );
+}
+
+#[test]
+fn diode_bench_with_the_diode_model_reads_true_power_within_0_1_db() {
+    round_trip(
+        BenchDetector::Diode,
+        "diode",
+        "diode",
+        (-16.0, 17.0, 3.0),
+        (-9.5, 15.5, 2.5),
+        0.1,
+    );
+}
+
+#[test]
+fn logamp_bench_with_the_log_model_reads_true_power_within_0_1_db() {
+    round_trip(
+        BenchDetector::LogAmp,
+        "logamp",
+        "log",
+        (-65.0, 5.0, 10.0),
+        (-62.0, 3.0, 5.0),
+        0.1,
+    );
+}
+
+// Source: the simulated bench's roll-off, 10·log10(1 + (f/700 MHz)²) (a first-order
+// corner; the figure is the bench's invented truth).
+#[test]
+fn frequency_stage_corrects_captured_frequencies_and_interpolates_between() {
+    let dir = scratch("freq");
+    let profile = dir.join("freq.toml");
+    let mut script: Vec<String> = levels(-16.0, 17.0, 3.0);
+    script.extend(["freq 5dBm", "50MHz", "146MHz", "300MHz", "440MHz", "save"].map(String::from));
+    let script: Vec<&str> = script.iter().map(String::as_str).collect();
+    let out = calibrate(
+        &[
+            "--demo",
+            "--model",
+            "diode",
+            "--out",
+            profile.to_str().unwrap(),
+        ],
+        &script,
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{stdout}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let bench = SignalBench::new(BenchDetector::Diode, 1000.0, 1);
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    let table = saved
+        .frequency_correction
+        .as_ref()
+        .expect("a frequency table was saved");
+    for hz in [50e6, 146e6, 300e6, 440e6] {
+        let got = table.at(hz).db;
+        assert!(
+            (got - bench.rolloff_db(hz)).abs() < 0.05,
+            "{hz}: {got} vs {}",
+            bench.rolloff_db(hz)
+        );
+    }
+    assert_eq!(
+        table.at(10e6).db,
+        0.0,
+        "the reference frequency carries no correction"
+    );
+    // Readings at 146 MHz (captured) and 220 MHz (between two entries), at two levels.
+    for (hz, name, tolerance) in [(146e6, "146MHz", 0.05), (220e6, "220MHz", 0.1)] {
+        let capture_path = dir.join(format!("{name}.txt"));
+        let truth = [(2.0, hz), (12.0, hz)];
+        capture(BenchDetector::Diode, &truth, &capture_path);
+        let means = replayed_means(&profile, &capture_path, name);
+        for ((applied, _), got) in truth.iter().zip(&means) {
+            assert!(
+                (got - applied).abs() < tolerance,
+                "{name}: applied {applied}, read {got}"
+            );
+        }
+        // Without the correction the reading is off by the roll-off.
+        let raw = replayed_means(&profile, &capture_path, "10MHz");
+        assert!((raw[0] - truth[0].0 + bench.rolloff_db(hz)).abs() < 0.1);
+    }
+}
+
+#[test]
+fn bad_entries_get_a_message_and_the_session_goes_on() {
+    let dir = scratch("bad");
+    let profile = dir.join("bad.toml");
+    let script = [
+        "-10dBm",
+        "-5dBmW",
+        "-3mW",
+        "frobnicate",
+        "delete 9",
+        "0dBm",
+        "model dioed",
+        "10dBm",
+        "save",
+    ];
+    let out = calibrate(&["--demo", "--out", profile.to_str().unwrap()], &script);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{stdout}");
+    assert!(stdout.contains("unknown unit `dBmW`"), "{stdout}");
+    assert!(
+        stdout.contains("`-3mW` must be greater than zero"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("`frobnicate` does not start with a number"),
+        "{stdout}"
+    );
+    assert!(stdout.contains("there is no point 9"), "{stdout}");
+    assert!(stdout.contains("unknown model `dioed`"), "{stdout}");
+    assert_eq!(stdout.matches("the session goes on").count(), 5, "{stdout}");
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    let applied: Vec<&str> = saved.points.iter().map(|p| p.applied.as_str()).collect();
+    assert_eq!(
+        applied,
+        ["-10dBm", "0dBm", "10dBm"],
+        "nothing entered before or after the mistakes is lost"
+    );
+}
+
+#[test]
+fn an_existing_profile_is_not_overwritten_and_input_ending_early_keeps_the_points() {
+    let dir = scratch("keep");
+    let profile = dir.join("keep.toml");
+    std::fs::write(&profile, "precious\n").unwrap();
+    let out = calibrate(
+        &["--demo", "--out", profile.to_str().unwrap()],
+        &["0dBm", "5dBm", "save", "quit"],
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("already exists") && stdout.contains("--force"),
+        "{stdout}"
+    );
+    assert_eq!(std::fs::read_to_string(&profile).unwrap(), "precious\n");
+    let early = calibrate(
+        &["--demo", "--out", dir.join("early.toml").to_str().unwrap()],
+        &["0dBm", "5dBm"],
+    );
+    assert_eq!(early.status.code(), Some(1));
+    let stderr = String::from_utf8_lossy(&early.stderr);
+    assert!(
+        stderr.contains("0dBm,") && stderr.contains("5dBm,"),
+        "the points are printed: {stderr}"
+    );
+}
