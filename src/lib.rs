@@ -13,6 +13,7 @@
 //! - [`link`]: link-health counters shared with reader threads;
 //! - [`record`]: CSV recording of readings, per interval or per sample;
 //! - [`capture`]: the calibration procedure: settle, average, fit, save a profile;
+//! - [`report`]: the soak report: drift, settling, gaps, and decimation for plots;
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
 //! - [`points`]: the calibration points CSV that `fit` reads.
 //!
@@ -31,6 +32,7 @@ pub mod pchip;
 pub mod points;
 pub mod profile;
 pub mod record;
+pub mod report;
 pub mod sim;
 pub mod special;
 pub mod stats;

@@ -7,6 +7,7 @@ mod convert;
 mod fit;
 mod ports;
 mod record;
+mod report;
 mod sim;
 mod source_args;
 mod summary;
@@ -81,6 +82,8 @@ enum Command {
     Calibrate(calibrate::Args),
     /// Record calibrated power to CSV from a port, a capture or the simulator.
     Record(record::Args),
+    /// Report on a recorded soak: mean, drift, settling, gaps, and a plot.
+    Report(report::Args),
     /// Stream simulated detector samples to a file, standard output or a pseudo-terminal.
     Sim(sim::Args),
     /// List the serial ports on this machine.
@@ -97,6 +100,7 @@ pub fn run() -> ExitCode {
         Command::Watch(args) => watch::run(args),
         Command::Calibrate(args) => calibrate::run(args),
         Command::Record(args) => record::run(args),
+        Command::Report(args) => report::run(args),
         Command::Sim(args) => sim::run(args),
         Command::Ports => ports::run(),
     };

@@ -1,0 +1,313 @@
+//! `dbtrail report`: the figures of a recorded soak, as text or JSON, and a plot.
+
+use std::path::{Path, PathBuf};
+
+use anyhow::{anyhow, Context};
+use dbtrail::report::{analyse, decimate, read_log, span_rows, Log, Report, ReportOptions};
+use dbtrail::units::{format_clock, parse_duration, Si};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+use super::{emit, parse_duration_arg, BadInput, Failure, Runtime};
+
+#[derive(clap::Args)]
+pub struct Args {
+    /// A log written by `dbtrail record` or by logging in `dbtrail watch`
+    log: PathBuf,
+    /// Print one JSON object instead of the table
+    #[arg(long)]
+    json: bool,
+    /// Draw the run to this file, SVG or PNG by its extension
+    #[arg(long)]
+    plot: Option<PathBuf>,
+    /// Size of the plot in pixels, WIDTHxHEIGHT
+    #[arg(long, default_value = "1200x700", value_parser = parse_size)]
+    size: (u32, u32),
+    /// Settled means every interval stays within ± this many dB of the final mean
+    #[arg(long, default_value = "0.1dB", value_parser = super::parse_db_arg)]
+    settle_tol: f64,
+    /// The final window whose mean is the settled level (default 10m, or the last fifth of a shorter log)
+    #[arg(long, value_parser = parse_duration_arg)]
+    settle_window: Option<std::time::Duration>,
+    /// Start of the span to report on, time since the run started (e.g. 30m)
+    #[arg(long, value_parser = parse_seconds)]
+    from: Option<f64>,
+    /// End of the span, time since the run started (e.g. 2h)
+    #[arg(long, value_parser = parse_seconds)]
+    to: Option<f64>,
+    /// Channel to report on, from 1
+    #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(u64).range(1..=8))]
+    channel: u64,
+}
+
+fn parse_seconds(text: &str) -> Result<f64, String> {
+    parse_duration(text)
+        .map(|d| d.as_secs_f64())
+        .map_err(|e| e.to_string())
+}
+
+fn parse_size(text: &str) -> Result<(u32, u32), String> {
+    let parsed = text
+        .split_once(['x', 'X'])
+        .and_then(|(w, h)| Some((w.trim().parse().ok()?, h.trim().parse().ok()?)));
+    match parsed {
+        Some((w, h)) if (200..=8000).contains(&w) && (150..=8000).contains(&h) => Ok((w, h)),
+        _ => Err(format!(
+            "`{text}` is not a plot size; give WIDTHxHEIGHT in pixels, e.g. 1200x700 (200 to 8000)"
+        )),
+    }
+}
+
+pub fn run(args: Args) -> Result<(), Failure> {
+    let origin = args.log.display().to_string();
+    let bytes = std::fs::read(&args.log)
+        .with_context(|| format!("cannot read {origin}"))
+        .bad_input()?;
+    let log = read_log(&bytes, &origin, args.channel as usize).bad_input()?;
+    let options = ReportOptions {
+        settle_tol_db: args.settle_tol,
+        settle_window_s: args.settle_window.map(|d| d.as_secs_f64()),
+        from_s: args.from,
+        to_s: args.to,
+    };
+    let report = analyse(&log, &origin, &options).bad_input()?;
+    if let Some(path) = &args.plot {
+        plot(path, args.size, &log, &report, &options).runtime()?;
+    }
+    let text = if args.json {
+        format!(
+            "{}\n",
+            serde_json::to_string(&report).map_err(|e| Failure::Runtime(e.into()))?
+        )
+    } else {
+        table(&origin, args.channel, &log, &report, &options)
+    };
+    emit(&text)
+}
+
+fn context_value<'a>(log: &'a Log, key: &str) -> Option<&'a str> {
+    log.context
+        .iter()
+        .find_map(|l| l.strip_prefix(key))
+        .map(str::trim)
+}
+
+fn table(origin: &str, channel: u64, log: &Log, r: &Report, options: &ReportOptions) -> String {
+    let mut out = format!("Soak report: {origin}, channel {channel}\n");
+    for key in ["profile:", "frequency:", "source:", "started:"] {
+        if let Some(value) = context_value(log, key) {
+            out.push_str(&format!("  {:<13} {value}\n", key.trim_end_matches(':')));
+        }
+    }
+    let rows = span_rows(log, options).len();
+    let every = if log.interval_s > 0.0 {
+        format!("rows of {}", Si::new(log.interval_s, "s"))
+    } else {
+        "rows".into()
+    };
+    out.push_str(&format!(
+        "  {:<13} {} ({:.0} s) from {:.0} s, {rows} {every}\n",
+        "span",
+        format_clock(r.duration_s),
+        r.duration_s,
+        r.start_s
+    ));
+    let settled = match r.settled_after_s {
+        Some(s) => format!(
+            "after {} ({s:.0} s) within ±{:.2} dB of {:+.2} dBm",
+            format_clock(s),
+            options.settle_tol_db,
+            r.settled_dbm
+        ),
+        None => format!(
+            "never: the last interval is more than ±{:.2} dB from {:+.2} dBm",
+            options.settle_tol_db, r.settled_dbm
+        ),
+    };
+    let stderr = r
+        .drift_stderr_db_per_hour
+        .map_or("(too few rows for a standard error)".into(), |s| {
+            format!("± {s:.4} dB/h (standard error)")
+        });
+    let flags = if r.flagged_rows.is_empty() {
+        "none".to_string()
+    } else {
+        r.flagged_rows
+            .iter()
+            .map(|(f, n)| format!("{f} {n}"))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let lines = [
+        ("samples", r.samples.to_string()),
+        (
+            "mean power",
+            format!(
+                "{:+.3} dBm ({}), averaged over watts",
+                r.mean_dbm,
+                Si::new(r.mean_w, "W")
+            ),
+        ),
+        (
+            "min / max",
+            format!(
+                "{:+.3} / {:+.3} dBm (peak to peak {:.3} dB)",
+                r.min_dbm, r.max_dbm, r.pk_pk_db
+            ),
+        ),
+        (
+            "spread",
+            format!(
+                "{:.3} dB, standard deviation of the interval means",
+                r.std_db
+            ),
+        ),
+        (
+            "drift",
+            format!("{:+.4} dB/h {stderr}", r.drift_db_per_hour),
+        ),
+        ("settled", settled),
+        ("gaps", format!("{}, {:.1} s in all", r.gaps, r.gap_s)),
+        ("flagged rows", flags),
+    ];
+    for (label, value) in lines {
+        out.push_str(&format!("  {label:<13} {value}\n"));
+    }
+    out
+}
+
+/// The font embedded for bitmap plots (DejaVu Sans; see assets/fonts/DejaVuSans.COPYRIGHT).
+const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+
+fn plot(
+    path: &Path,
+    size: (u32, u32),
+    log: &Log,
+    report: &Report,
+    options: &ReportOptions,
+) -> anyhow::Result<()> {
+    let extension = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase);
+    let _ = plotters::style::register_font("sans-serif", FontStyle::Normal, FONT);
+    let drawn = match extension.as_deref() {
+        Some("svg") => draw(
+            SVGBackend::new(path, size).into_drawing_area(),
+            log,
+            report,
+            options,
+        ),
+        Some("png") => draw(
+            BitMapBackend::new(path, size).into_drawing_area(),
+            log,
+            report,
+            options,
+        ),
+        _ => {
+            return Err(anyhow!(
+                "cannot tell the plot format of {}: name it .svg or .png",
+                path.display()
+            ))
+        }
+    };
+    drawn.with_context(|| format!("cannot draw the plot to {}", path.display()))
+}
+
+fn draw<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    log: &Log,
+    report: &Report,
+    options: &ReportOptions,
+) -> anyhow::Result<()>
+where
+    DB::ErrorType: 'static,
+{
+    let fail = |e: DrawingAreaErrorKind<DB::ErrorType>| anyhow!("{e}");
+    root.fill(&WHITE).map_err(fail)?;
+    let rows = span_rows(log, options);
+    let width = root.dim_in_pixel().0 as usize;
+    let columns = decimate(&rows, width.saturating_sub(120).max(10));
+    let (t0, t1) = (report.start_s, report.start_s + report.duration_s);
+    let (unit, scale) = if report.duration_s > 3.0 * 3600.0 {
+        ("h", 3600.0)
+    } else if report.duration_s > 180.0 {
+        ("min", 60.0)
+    } else {
+        ("s", 1.0)
+    };
+    let pad = (report.pk_pk_db * 0.08).max(0.05);
+    let (y0, y1) = (report.min_dbm - pad, report.max_dbm + pad);
+    let title = format!(
+        "{} · {}",
+        context_value(log, "profile:").unwrap_or("dbtrail log"),
+        context_value(log, "started:").map_or(String::new(), |s| format!("started {s}"))
+    );
+    let mut chart = ChartBuilder::on(&root)
+        .caption(title, ("sans-serif", 20))
+        .margin(12)
+        .x_label_area_size(40)
+        .y_label_area_size(70)
+        .build_cartesian_2d(t0 / scale..t1 / scale, y0..y1)
+        .map_err(fail)?;
+    chart
+        .configure_mesh()
+        .x_desc(format!("time since start ({unit})"))
+        .y_desc("power at the reference plane (dBm)")
+        .draw()
+        .map_err(fail)?;
+    for (a, b) in &report.gap_spans {
+        let shade = RGBColor(255, 200, 120).mix(0.45).filled();
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(a / scale, y0), (b / scale, y1)],
+                shade,
+            )))
+            .map_err(fail)?;
+    }
+    let band = RGBColor(120, 160, 220);
+    chart
+        .draw_series(columns.iter().map(|&(t, lo, hi, _)| {
+            PathElement::new(vec![(t / scale, lo), (t / scale, hi)], band.stroke_width(1))
+        }))
+        .map_err(fail)?
+        .label("min–max of each interval")
+        .legend(move |(x, y)| PathElement::new(vec![(x, y - 6), (x, y + 6)], band));
+    chart
+        .draw_series(LineSeries::new(
+            columns.iter().map(|&(t, _, _, m)| (t / scale, m)),
+            BLUE.stroke_width(1),
+        ))
+        .map_err(fail)?
+        .label("interval mean (over watts)")
+        .legend(|(x, y)| PathElement::new(vec![(x - 8, y), (x + 8, y)], BLUE));
+    let drift = |t: f64| report.drift_at_start_dbm + report.drift_db_per_hour * (t - t0) / 3600.0;
+    chart
+        .draw_series(LineSeries::new(
+            [(t0 / scale, drift(t0)), (t1 / scale, drift(t1))],
+            RED.stroke_width(2),
+        ))
+        .map_err(fail)?
+        .label(format!("drift {:+.3} dB/h", report.drift_db_per_hour))
+        .legend(|(x, y)| PathElement::new(vec![(x - 8, y), (x + 8, y)], RED));
+    if let Some(after) = report.settled_after_s {
+        let t = (t0 + after) / scale;
+        let green = RGBColor(0, 140, 60);
+        chart
+            .draw_series(std::iter::once(PathElement::new(
+                vec![(t, y0), (t, y1)],
+                green.stroke_width(2),
+            )))
+            .map_err(fail)?
+            .label(format!("settled after {}", format_clock(after)))
+            .legend(move |(x, y)| PathElement::new(vec![(x, y - 6), (x, y + 6)], green));
+    }
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .draw()
+        .map_err(fail)?;
+    root.present().map_err(fail)?;
+    Ok(())
+}
