@@ -127,6 +127,20 @@ fn span_volts(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
     }
 }
 
+/// The largest ADC whose every code gets a precomputed reading (16 bits: 65536 entries).
+pub const TABLE_MAX_CODES: u32 = 1 << 16;
+
+/// One ADC code's reading, computed once: what the hot path needs per sample.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CodeEntry {
+    /// Reference-plane dBm.
+    pub dbm: f64,
+    /// The same in watts; 0 for a reading that is not a value (below span, clip).
+    pub watts: f64,
+    /// Its flags.
+    pub flags: Flags,
+}
+
 /// A profile made ready for one frequency and offset.
 #[derive(Debug, Clone)]
 pub struct Calibration {
@@ -139,6 +153,7 @@ pub struct Calibration {
     /// Detector volts at the low and the high end of the span.
     span_volts: (f64, f64),
     limits: Limits,
+    table: Arc<Vec<CodeEntry>>,
 }
 
 impl Calibration {
@@ -154,7 +169,7 @@ impl Calibration {
         let outside = correction.is_some_and(|c| c.outside) || offset.outside;
         let detector = Arc::clone(&profile.model.detector);
         let span_volts = span_volts(profile, detector.as_ref());
-        Calibration {
+        let mut cal = Calibration {
             adc: profile.adc.clone(),
             detector,
             freq_hz,
@@ -167,6 +182,49 @@ impl Calibration {
             },
             span_volts,
             limits: profile.limits,
+            table: Arc::new(Vec::new()),
+        };
+        cal.table = Arc::new(cal.build_table());
+        cal
+    }
+
+    /// Every ADC code's reading through the exact model, for ADCs of up to 16 bits.
+    fn build_table(&self) -> Vec<CodeEntry> {
+        let codes = self.adc.full_scale() as u32 + 1;
+        if codes > TABLE_MAX_CODES {
+            return Vec::new();
+        }
+        (0..codes)
+            .map(|code| {
+                let r = self.reading(f64::from(code));
+                let value = !r.flags.intersects(crate::stats::NOT_A_VALUE);
+                CodeEntry {
+                    dbm: r.dbm,
+                    watts: if value { r.watts() } else { 0.0 },
+                    flags: r.flags,
+                }
+            })
+            .collect()
+    }
+
+    /// The precomputed entry for an ADC code, when the table covers it.
+    #[inline]
+    pub fn code_entry(&self, code: u32) -> Option<&CodeEntry> {
+        self.table.get(code as usize)
+    }
+
+    /// The reading of a whole ADC code: from the table when it covers the code, else
+    /// through the exact model (codes above full scale read as clip).
+    pub fn reading_code(&self, code: u32) -> Reading {
+        match self.code_entry(code) {
+            Some(e) => Reading {
+                counts: f64::from(code),
+                volts: self.adc.volts(f64::from(code)),
+                detector_dbm: e.dbm - self.correction_db - self.offset_db,
+                dbm: e.dbm,
+                flags: e.flags,
+            },
+            None => self.reading(f64::from(code)),
         }
     }
 
@@ -219,7 +277,7 @@ impl Calibration {
         (step(counts + 0.5) - step(counts - 0.5)).abs()
     }
 
-    /// Calibrates one (possibly fractional) count.
+    /// Calibrates one (possibly fractional) count through the exact model.
     pub fn reading(&self, counts: f64) -> Reading {
         let volts = self.adc.volts(counts);
         let mut flags = self.fixed_flags | self.range_flags(volts);

@@ -94,6 +94,53 @@ impl AddAssign for DecodeStats {
     }
 }
 
+/// Where a decoder puts the samples it finds.
+pub trait FrameSink {
+    /// Takes one sample.
+    fn push_frame(&mut self, frame: &Frame);
+}
+
+impl FrameSink for Vec<Frame> {
+    fn push_frame(&mut self, frame: &Frame) {
+        self.push(*frame);
+    }
+}
+
+/// Samples laid end to end, channel by channel: compact for fast paths. Every sample takes
+/// the channel count of the first; a later sample with more channels is cut to it, one
+/// with fewer is padded with zeros (ASCII decoding already refuses such lines).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct FlatCounts {
+    /// Channels per sample (0 before the first).
+    pub channels: usize,
+    /// The counts, `channels` per sample.
+    pub counts: Vec<u32>,
+}
+
+impl FlatCounts {
+    /// Samples held.
+    pub fn len(&self) -> usize {
+        self.counts.len().checked_div(self.channels).unwrap_or(0)
+    }
+
+    /// True when no sample is held.
+    pub fn is_empty(&self) -> bool {
+        self.counts.is_empty()
+    }
+}
+
+impl FrameSink for FlatCounts {
+    fn push_frame(&mut self, frame: &Frame) {
+        if self.counts.is_empty() {
+            self.channels = frame.channels();
+        }
+        let counts = frame.counts();
+        for ch in 0..self.channels {
+            self.counts.push(counts.get(ch).copied().unwrap_or(0));
+        }
+    }
+}
+
 /// Which mode a stream uses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Format {
@@ -144,7 +191,7 @@ impl AsciiDecoder {
     }
 
     /// Decodes `bytes`, appending samples to `out`.
-    pub fn feed(&mut self, mut bytes: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+    pub fn feed(&mut self, mut bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
         while let Some(end) = memchr::memchr2(b'\n', b'\r', bytes) {
             if self.line.is_empty() && !self.discarding && !self.skip_partial {
                 self.finish_line(&bytes[..end], stats, out);
@@ -161,7 +208,7 @@ impl AsciiDecoder {
     }
 
     /// Ends the stream: a last line without a line end still counts.
-    pub fn finish(&mut self, stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+    pub fn finish(&mut self, stats: &mut DecodeStats, out: &mut impl FrameSink) {
         if !self.line.is_empty() || self.discarding {
             let line = std::mem::take(&mut self.line);
             self.end_line(&line, stats, out);
@@ -180,7 +227,7 @@ impl AsciiDecoder {
         }
     }
 
-    fn end_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+    fn end_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
         if self.skip_partial {
             self.skip_partial = false;
         } else if self.discarding {
@@ -191,7 +238,7 @@ impl AsciiDecoder {
         }
     }
 
-    fn finish_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+    fn finish_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
         let line = trim(line);
         if line.is_empty() {
             return;
@@ -204,7 +251,7 @@ impl AsciiDecoder {
             Some(frame) if self.channels.is_none_or(|n| n == frame.channels()) => {
                 self.channels = Some(frame.channels());
                 stats.frames += 1;
-                out.push(frame);
+                out.push_frame(&frame);
             }
             _ => stats.bad_lines += 1,
         }
@@ -289,7 +336,7 @@ impl BinaryDecoder {
     }
 
     /// Decodes `bytes`, appending samples to `out`.
-    pub fn feed(&mut self, bytes: &[u8], stats: &mut DecodeStats, out: &mut Vec<Frame>) {
+    pub fn feed(&mut self, bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
         self.pending.extend_from_slice(bytes);
         let mut at = 0;
         while let Some(found) = find_sync(&self.pending[at..]) {
@@ -305,7 +352,7 @@ impl BinaryDecoder {
                 FrameCheck::Good { seq, frame, len } => {
                     self.count_sequence(seq, stats);
                     stats.frames += 1;
-                    out.push(frame);
+                    out.push_frame(&frame);
                     at += len;
                 }
             }
@@ -433,7 +480,7 @@ impl Decoder {
     }
 
     /// Decodes `bytes`, appending samples to `out`.
-    pub fn feed(&mut self, bytes: &[u8], out: &mut Vec<Frame>) {
+    pub fn feed(&mut self, bytes: &[u8], out: &mut impl FrameSink) {
         match &mut self.state {
             State::Ascii(d) => d.feed(bytes, &mut self.stats, out),
             State::Binary(d) => d.feed(bytes, &mut self.stats, out),
@@ -447,7 +494,7 @@ impl Decoder {
     }
 
     /// Ends the stream, decoding whatever is left.
-    pub fn finish(&mut self, out: &mut Vec<Frame>) {
+    pub fn finish(&mut self, out: &mut impl FrameSink) {
         if let State::Probing(probe) = &self.state {
             let format = recognise(probe, true).unwrap_or(Format::Ascii);
             self.settle(format, out);
@@ -473,7 +520,7 @@ impl Decoder {
         }
     }
 
-    fn settle(&mut self, format: Format, out: &mut Vec<Frame>) {
+    fn settle(&mut self, format: Format, out: &mut impl FrameSink) {
         let State::Probing(probe) =
             std::mem::replace(&mut self.state, State::Ascii(AsciiDecoder::new()))
         else {

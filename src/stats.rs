@@ -56,6 +56,24 @@ impl PowerStats {
         self.max_dbm = self.max_dbm.max(reading.dbm);
     }
 
+    /// Adds one ADC code through the calibration's precomputed table (the hot path),
+    /// falling back to the exact model for codes the table does not cover.
+    #[inline]
+    pub fn add_code(&mut self, cal: &crate::calibration::Calibration, code: u32) {
+        let Some(entry) = cal.code_entry(code) else {
+            self.add(&cal.reading_code(code));
+            return;
+        };
+        self.samples += 1;
+        self.flags |= entry.flags;
+        if entry.watts > 0.0 {
+            self.valid += 1;
+            self.sum_w += entry.watts;
+            self.min_dbm = self.min_dbm.min(entry.dbm);
+            self.max_dbm = self.max_dbm.max(entry.dbm);
+        }
+    }
+
     /// Adds another set (as if its readings had been added one by one).
     pub fn merge(&mut self, other: &PowerStats) {
         self.samples += other.samples;
