@@ -6,21 +6,72 @@
 use std::io::{self, Write};
 use std::time::{Duration, SystemTime};
 
-use crate::calibration::{Calibration, Flags, Reading};
-use crate::decode::Frame;
+use crate::calibration::{Calibration, Flags};
+use crate::decode::{FlatCounts, FrameSink};
 use crate::stats::{PowerStats, NOT_A_VALUE};
 use crate::units::format_frequency;
 
+/// A run of samples from one source, evenly spaced in time from `t0` (all at `t0` when
+/// `dt` is 0, as for one read of a serial port), counts laid end to end by channel.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Chunk {
+    /// Time of the first sample, seconds since the run started.
+    pub t0: f64,
+    /// Time between samples, seconds.
+    pub dt: f64,
+    /// The samples.
+    pub samples: FlatCounts,
+}
+
+impl Chunk {
+    /// A chunk of one sample.
+    pub fn single(t: f64, counts: &[u32]) -> Self {
+        let mut samples = FlatCounts::default();
+        if let Some(frame) = crate::decode::Frame::new(counts) {
+            samples.push_frame(&frame);
+        }
+        Chunk { t0: t, dt: 0.0, samples }
+    }
+
+    /// Samples held.
+    pub fn len(&self) -> usize {
+        self.samples.len()
+    }
+
+    /// True when it holds no sample.
+    pub fn is_empty(&self) -> bool {
+        self.samples.is_empty()
+    }
+
+    /// Channels per sample.
+    pub fn channels(&self) -> usize {
+        self.samples.channels
+    }
+
+    /// The time of sample `i`.
+    #[inline]
+    pub fn time(&self, i: usize) -> f64 {
+        self.t0 + self.dt * i as f64
+    }
+
+    /// The counts of sample `i`.
+    #[inline]
+    pub fn counts(&self, i: usize) -> &[u32] {
+        let n = self.samples.channels;
+        &self.samples.counts[i * n..(i + 1) * n]
+    }
+
+    /// The time of the last sample.
+    pub fn last_t(&self) -> f64 {
+        self.time(self.len().saturating_sub(1))
+    }
+}
+
 /// What a source delivers to a consumer, in source time (seconds since the run started).
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub enum Event {
-    /// A decoded sample.
-    Sample {
-        /// When it was stamped.
-        t: f64,
-        /// Its counts.
-        frame: Frame,
-    },
+    /// Decoded samples.
+    Samples(Chunk),
     /// The source was lost (unplugged, closed, failing).
     LinkDown {
         /// When.
@@ -41,13 +92,24 @@ pub enum Event {
 }
 
 impl Event {
-    /// The event's time.
+    /// One sample as an event.
+    pub fn sample(t: f64, counts: &[u32]) -> Self {
+        Event::Samples(Chunk::single(t, counts))
+    }
+
+    /// The event's time (of its first sample).
     pub fn t(&self) -> f64 {
-        match *self {
-            Event::Sample { t, .. }
-            | Event::LinkDown { t }
-            | Event::LinkUp { t }
-            | Event::Lost { t, .. } => t,
+        match self {
+            Event::Samples(chunk) => chunk.t0,
+            Event::LinkDown { t } | Event::LinkUp { t } | Event::Lost { t, .. } => *t,
+        }
+    }
+
+    /// The time of its last sample (its time, for the others).
+    pub fn last_t(&self) -> f64 {
+        match self {
+            Event::Samples(chunk) => chunk.last_t(),
+            other => other.t(),
         }
     }
 }
@@ -143,11 +205,14 @@ impl<W: Write> Recorder<W> {
 
     /// Takes one event from the source.
     pub fn handle(&mut self, event: &Event) -> io::Result<()> {
+        if let Event::Samples(chunk) = event {
+            return self.chunk(chunk);
+        }
         if self.every > 0.0 {
             self.advance(event.t())?;
         }
         match *event {
-            Event::Sample { t, frame } => self.sample(t, &frame),
+            Event::Samples(_) => Ok(()),
             Event::LinkDown { t } => {
                 self.link_down = true;
                 self.mark(t, Flags::GAP)
@@ -194,23 +259,49 @@ impl<W: Write> Recorder<W> {
         self.out.flush()
     }
 
-    fn sample(&mut self, t: f64, frame: &Frame) -> io::Result<()> {
-        let channels = *self.channels.get_or_insert(frame.channels());
-        let readings: Vec<Reading> = frame
-            .counts()
-            .iter()
-            .take(channels)
-            .map(|&c| self.cal.reading(f64::from(c)))
-            .collect();
-        if self.every > 0.0 {
-            self.stats.resize(channels, PowerStats::default());
-            for (stats, reading) in self.stats.iter_mut().zip(&readings) {
-                stats.add(reading);
+    /// Takes a run of samples: per interval, each sample costs a table look-up and a few
+    /// additions; an interval boundary inside the run closes the interval there.
+    fn chunk(&mut self, chunk: &Chunk) -> io::Result<()> {
+        if chunk.is_empty() {
+            return Ok(());
+        }
+        let channels = *self.channels.get_or_insert(chunk.channels());
+        if self.every <= 0.0 {
+            for i in 0..chunk.len() {
+                self.sample_row(chunk.time(i), chunk.counts(i))?;
             }
             return Ok(());
         }
+        let mut i = 0;
+        while i < chunk.len() {
+            self.advance(chunk.time(i))?;
+            // Writing an interval takes its statistics away.
+            self.stats.resize(channels, PowerStats::default());
+            let boundary = (self.interval.unwrap_or(0) + 1) as f64 * self.every;
+            // Samples of this run that fall before the current interval's end.
+            let end = if chunk.dt > 0.0 {
+                let room = ((boundary - chunk.time(i)) / chunk.dt).ceil().max(1.0) as usize;
+                (i + room).min(chunk.len())
+            } else {
+                chunk.len()
+            };
+            let n = chunk.channels().min(channels);
+            let counts = &chunk.samples.counts[i * chunk.channels()..end * chunk.channels()];
+            for sample in counts.chunks_exact(chunk.channels()) {
+                for (stats, &code) in self.stats.iter_mut().zip(&sample[..n]) {
+                    stats.add_code(&self.cal, code);
+                }
+            }
+            i = end;
+        }
+        Ok(())
+    }
+
+    fn sample_row(&mut self, t: f64, counts: &[u32]) -> io::Result<()> {
         let mut row = vec![seconds(t)];
-        for r in &readings {
+        let channels = self.channels.unwrap_or(1);
+        for &code in counts.iter().take(channels) {
+            let r = self.cal.reading_code(code);
             let value = !r.flags.intersects(NOT_A_VALUE);
             row.push(format!("{}", r.counts));
             row.push(format!("{:.6}", r.volts));
@@ -219,7 +310,7 @@ impl<W: Write> Recorder<W> {
             } else {
                 String::new()
             });
-            row.push((r.flags | std::mem::take(&mut self.row_flags)).joined());
+            row.push(r.flags.joined());
         }
         self.write_row(row)
     }
@@ -358,10 +449,7 @@ mod tests {
     }
 
     fn sample(t: f64, counts: u32) -> Event {
-        Event::Sample {
-            t,
-            frame: Frame::new(&[counts]).unwrap(),
-        }
+        Event::sample(t, &[counts])
     }
 
     fn data_rows(r: Recorder<Vec<u8>>) -> Vec<Vec<String>> {
@@ -390,6 +478,17 @@ mod tests {
         let samples: Vec<&str> = rows.iter().map(|row| row[2].as_str()).collect();
         assert_eq!(samples, ["1", "0", "0", "1"]);
         assert_eq!(rows[1][3], "", "no number where there was no reading");
+    }
+
+    #[test]
+    fn a_chunk_across_interval_boundaries_fills_each_interval() {
+        let mut r = recorder(1.0);
+        let mut samples = FlatCounts { channels: 1, counts: Vec::new() };
+        samples.counts.resize(2500, 2000);
+        r.handle(&Event::Samples(Chunk { t0: 0.0, dt: 0.001, samples })).unwrap();
+        r.finish(2.5).unwrap();
+        let counts: Vec<String> = data_rows(r).iter().map(|row| row[2].clone()).collect();
+        assert_eq!(counts, ["1000", "1000", "500"]);
     }
 
     #[test]

@@ -141,7 +141,14 @@ pub struct Simulator {
     rng: Pcg64,
     noise: Normal<f64>,
     index: u64,
+    knots: (f64, f64, f64, f64),
 }
+
+/// How often the exact forward model is evaluated, seconds of simulated time; between
+/// evaluations the ideal count is interpolated linearly, since every scenario changes
+/// slowly on that scale (and a burst's edge then rises within 10 ms, as a detector's
+/// output filter would).
+pub const MODEL_STEP_S: f64 = 0.01;
 
 impl Simulator {
     /// A simulator of the detector described by `profile`, sampling at `rate_hz`.
@@ -168,7 +175,31 @@ impl Simulator {
             rng: Pcg64::seed_from_u64(seed),
             noise: Normal::new(0.0, NOISE_COUNTS).expect("a positive constant deviation"),
             index: 0,
+            knots: (f64::NAN, f64::NAN, f64::NAN, f64::NAN),
         }
+    }
+
+    /// The noise-free count at `t`, from the exact model at the surrounding knots.
+    fn ideal_counts(&mut self, t: f64) -> f64 {
+        let (ta, _, tb, _) = self.knots;
+        if !(t >= ta && t < tb) {
+            let ta = (t / MODEL_STEP_S).floor() * MODEL_STEP_S;
+            let tb = ta + MODEL_STEP_S;
+            let exact = |t: f64| self.adc.counts(self.detector_volts(t));
+            self.knots = (ta, exact(ta), tb, exact(tb));
+        }
+        let (ta, ca, tb, cb) = self.knots;
+        ca + (cb - ca) * ((t - ta) / (tb - ta)).clamp(0.0, 1.0)
+    }
+
+    /// Appends the next `n` counts to `out`; returns the time of the first.
+    pub fn fill(&mut self, n: usize, out: &mut Vec<u32>) -> f64 {
+        let t0 = self.index as f64 / self.rate_hz;
+        out.reserve(n);
+        for _ in 0..n {
+            out.push(self.next_sample().1);
+        }
+        t0
     }
 
     /// The scenario it runs.
@@ -200,7 +231,7 @@ impl Simulator {
     pub fn next_sample(&mut self) -> (f64, u32) {
         let t = self.index as f64 / self.rate_hz;
         self.index += 1;
-        let ideal = self.adc.counts(self.detector_volts(t));
+        let ideal = self.ideal_counts(t);
         let noisy = ideal + self.noise.sample(&mut self.rng);
         let count = noisy.round().clamp(0.0, self.adc.full_scale());
         (t, count as u32)

@@ -109,9 +109,14 @@ impl Bench {
             }
             Bench::Port(source) => {
                 let deadline = Instant::now() + limit;
+                let mut pending = std::collections::VecDeque::new();
                 Box::new(std::iter::from_fn(move || loop {
-                    if let Some(Event::Sample { t, frame }) = source.next_event() {
-                        return Some((t, f64::from(frame.counts()[0])));
+                    if let Some(sample) = pending.pop_front() {
+                        return Some(sample);
+                    }
+                    if let Some(Event::Samples(chunk)) = source.next_event() {
+                        pending.extend((0..chunk.len()).map(|i| (chunk.time(i), f64::from(chunk.counts(i)[0]))));
+                        continue;
                     }
                     if Instant::now() > deadline || source.exhausted() {
                         return None;

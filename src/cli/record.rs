@@ -133,15 +133,20 @@ fn pump(
     let end_t = loop {
         let mut took = 0;
         let mut reached = None;
-        while let Some(event) = source.next_event() {
+        while let Some(mut event) = source.next_event() {
             took += 1;
-            if until.is_some_and(|end| event.t() >= end) {
-                reached = until;
-                break;
+            if let Some(end) = until.filter(|end| event.last_t() >= *end) {
+                reached = Some(end);
+                if !cut_at(&mut event, end) {
+                    break;
+                }
             }
             recorder.handle(&event)?;
             status.saw(&event, recorder.calibration());
-            last_t = Some(event.t());
+            last_t = Some(event.last_t());
+            if reached.is_some() {
+                break;
+            }
             if took == BATCH || status.due() {
                 break;
             }
@@ -183,6 +188,18 @@ fn pump(
     };
     recorder.finish(end_t)?;
     recorder.get_ref().make_durable()
+}
+
+/// Keeps only the samples before `end`; false when nothing of the event is left.
+fn cut_at(event: &mut Event, end: f64) -> bool {
+    match event {
+        Event::Samples(chunk) => {
+            let keep = (0..chunk.len()).take_while(|&i| chunk.time(i) < end).count();
+            chunk.samples.counts.truncate(keep * chunk.channels());
+            keep > 0
+        }
+        other => other.t() < end,
+    }
 }
 
 /// Opens the output, refusing to replace a file unless told to; true when it is new.
@@ -258,8 +275,10 @@ impl Status {
     }
 
     fn saw(&mut self, event: &Event, cal: &Calibration) {
-        if let (true, Event::Sample { frame, .. }) = (self.enabled, event) {
-            self.last_reading = cal.reading(f64::from(frame.counts()[0])).to_string();
+        if let (true, Event::Samples(chunk)) = (self.enabled, event) {
+            if let Some(&code) = chunk.samples.counts.last() {
+                self.last_reading = cal.reading_code(code).to_string();
+            }
         }
     }
 

@@ -6,8 +6,8 @@ use std::io::Read;
 use std::path::PathBuf;
 use std::time::{Duration, Instant};
 
-use dbtrail::decode::{Decoder, Format};
-use dbtrail::record::Event;
+use dbtrail::decode::{Decoder, FlatCounts, Format};
+use dbtrail::record::{Chunk, Event};
 
 use super::{spawn, Running, Sink, WhenFull};
 
@@ -22,6 +22,9 @@ pub struct ReplaySpec {
     /// Wire format.
     pub format: Format,
 }
+
+/// Seconds of samples per chunk when pacing in real time.
+const PACED_CHUNK_S: f64 = 0.02;
 
 impl ReplaySpec {
     /// Starts reading the already opened file on its own thread.
@@ -40,9 +43,9 @@ impl ReplaySpec {
 
 fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) {
     let mut decoder = Decoder::new(spec.format);
-    let mut buf = vec![0u8; 256 * 1024];
-    let mut frames = Vec::with_capacity(64 * 1024);
+    let mut buf = vec![0u8; 1 << 20];
     let mut index: u64 = 0;
+    let dt = 1.0 / spec.rate_hz;
     sink.counters.set_connected(true);
     loop {
         let n = match file.read(&mut buf) {
@@ -50,19 +53,19 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
             Ok(n) => n,
         };
         let before = decoder.stats();
+        let mut samples = FlatCounts::default();
         if n == 0 {
-            decoder.finish(&mut frames);
+            decoder.finish(&mut samples);
         } else {
-            decoder.feed(&buf[..n], &mut frames);
+            decoder.feed(&buf[..n], &mut samples);
         }
         sink.counters.add_decoded(&before, &decoder.stats());
-        for frame in frames.drain(..) {
-            let t = index as f64 / spec.rate_hz;
-            index += 1;
+        for chunk in split(samples, spec, index, dt) {
+            index += chunk.len() as u64;
             if spec.realtime {
-                pace(started, t);
+                pace(started, chunk.t0);
             }
-            if !sink.send(Event::Sample { t, frame }) {
+            if !sink.send(Event::Samples(chunk)) {
                 return;
             }
         }
@@ -70,9 +73,33 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
             break;
         }
     }
-    let t = index as f64 / spec.rate_hz;
-    sink.counters.set_last_sample((t * 1e9) as u64);
+    sink.counters.set_last_sample((index as f64 * dt * 1e9) as u64);
     sink.counters.set_connected(false);
+}
+
+/// The decoded samples as chunks: all in one when running flat out, in short slices when
+/// paced so the screen sees them arrive steadily.
+fn split(samples: FlatCounts, spec: &ReplaySpec, first: u64, dt: f64) -> Vec<Chunk> {
+    if samples.is_empty() {
+        return Vec::new();
+    }
+    if !spec.realtime {
+        return vec![Chunk { t0: first as f64 * dt, dt, samples }];
+    }
+    let per_chunk = (spec.rate_hz * PACED_CHUNK_S).ceil().max(1.0) as usize * samples.channels;
+    samples
+        .counts
+        .chunks(per_chunk)
+        .scan(first, |index, counts| {
+            let chunk = Chunk {
+                t0: *index as f64 * dt,
+                dt,
+                samples: FlatCounts { channels: samples.channels, counts: counts.to_vec() },
+            };
+            *index += (counts.len() / samples.channels) as u64;
+            Some(chunk)
+        })
+        .collect()
 }
 
 /// Sleeps until `t` seconds after `started`.

@@ -5,8 +5,8 @@ use std::io::{ErrorKind, Read};
 use std::time::{Duration, Instant};
 
 use anyhow::Context;
-use dbtrail::decode::{Decoder, Format};
-use dbtrail::record::Event;
+use dbtrail::decode::{Decoder, FlatCounts, Format};
+use dbtrail::record::{Chunk, Event};
 use serialport::SerialPort;
 
 use super::{spawn, Running, Sink, WhenFull};
@@ -53,7 +53,7 @@ fn read_forever(
     // The device was already talking: the first line may be cut.
     decoder.resync();
     let mut buf = vec![0u8; 64 * 1024];
-    let mut frames = Vec::with_capacity(4096);
+    let mut samples = FlatCounts::default();
     sink.counters.set_connected(true);
     while !sink.stopped() {
         match port.read(&mut buf) {
@@ -61,7 +61,7 @@ fn read_forever(
             Ok(n) => {
                 let t = started.elapsed().as_secs_f64();
                 let before = decoder.stats();
-                decoder.feed(&buf[..n], &mut frames);
+                decoder.feed(&buf[..n], &mut samples);
                 sink.counters.add_decoded(&before, &decoder.stats());
                 let dropped = decoder.stats().dropped_frames - before.dropped_frames;
                 if dropped > 0 {
@@ -70,11 +70,10 @@ fn read_forever(
                         samples: dropped,
                     });
                 }
-                if !frames.is_empty() {
+                if !samples.is_empty() {
                     sink.counters.set_last_sample((t * 1e9) as u64);
-                }
-                for frame in frames.drain(..) {
-                    sink.send(Event::Sample { t, frame });
+                    let chunk = Chunk { t0: t, dt: 0.0, samples: std::mem::take(&mut samples) };
+                    sink.send(Event::Samples(chunk));
                 }
                 continue;
             }

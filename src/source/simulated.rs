@@ -1,15 +1,17 @@
 //! The simulator as a source: the library's physical model run on its own thread, in real
-//! time or as fast as it can.
+//! time or as fast as it can, in chunks of samples.
 
-use dbtrail::decode::Frame;
-use dbtrail::record::Event;
+use dbtrail::decode::FlatCounts;
+use dbtrail::record::{Chunk, Event};
 use dbtrail::sim::Simulator;
 
 use super::replay::pace;
 use super::{spawn, Running, WhenFull};
 
-/// Samples between updates of the shared counters, which other threads read.
-const COUNTER_STRIDE: u64 = 64;
+/// Samples per chunk when running as fast as possible.
+const FAST_CHUNK: usize = 1 << 14;
+/// Seconds of samples per chunk in real time.
+const PACED_CHUNK_S: f64 = 0.01;
 
 /// A simulated bench.
 pub struct SimSpec {
@@ -35,34 +37,28 @@ impl SimSpec {
             if self.fast { ", fast" } else { "" },
             scenario.story()
         );
-        spawn(
-            description,
-            !self.fast,
-            WhenFull::Wait,
-            move |sink, started| {
-                sink.counters.set_connected(true);
-                let mut count: u64 = 0;
-                loop {
-                    let (t, counts) = self.simulator.next_sample();
-                    if self.until.is_some_and(|end| t >= end) {
-                        break;
-                    }
-                    if !self.fast {
-                        pace(started, t);
-                    }
-                    let frame = Frame::new(&[counts]).expect("one channel");
-                    if !sink.send(Event::Sample { t, frame }) {
-                        break;
-                    }
-                    count += 1;
-                    if count % COUNTER_STRIDE == 0 {
-                        sink.counters.add_samples(COUNTER_STRIDE);
-                        sink.counters.set_last_sample((t * 1e9) as u64);
-                    }
+        let rate = self.simulator.rate_hz();
+        let per_chunk = if self.fast { FAST_CHUNK } else { (rate * PACED_CHUNK_S).ceil().max(1.0) as usize };
+        let total = self.until.map(|s| (s * rate).ceil() as u64);
+        spawn(description, !self.fast, WhenFull::Wait, move |sink, started| {
+            sink.counters.set_connected(true);
+            let mut made: u64 = 0;
+            while total.is_none_or(|n| made < n) {
+                let n = total.map_or(per_chunk, |total| per_chunk.min((total - made) as usize));
+                let mut samples = FlatCounts { channels: 1, counts: Vec::with_capacity(n) };
+                let t0 = self.simulator.fill(n, &mut samples.counts);
+                let chunk = Chunk { t0, dt: 1.0 / rate, samples };
+                if !self.fast {
+                    pace(started, chunk.last_t());
                 }
-                sink.counters.add_samples(count % COUNTER_STRIDE);
-                sink.counters.set_connected(false);
-            },
-        )
+                made += n as u64;
+                sink.counters.add_samples(n as u64);
+                sink.counters.set_last_sample((chunk.last_t() * 1e9) as u64);
+                if !sink.send(Event::Samples(chunk)) {
+                    break;
+                }
+            }
+            sink.counters.set_connected(false);
+        })
     }
 }

@@ -299,7 +299,11 @@ impl App {
         let before = self.active_warnings();
         for event in events {
             match event {
-                Event::Sample { t, frame } => self.sample(*t, f64::from(frame.counts()[0])),
+                Event::Samples(chunk) => {
+                    for i in 0..chunk.len() {
+                        self.sample(chunk.time(i), chunk.counts(i)[0]);
+                    }
+                }
                 Event::LinkDown { .. } => self.connected = false,
                 Event::LinkUp { .. } => self.connected = true,
                 Event::Lost { .. } => {}
@@ -313,8 +317,8 @@ impl App {
         }
     }
 
-    fn sample(&mut self, t: f64, counts: f64) {
-        let reading = self.cal.reading(counts);
+    fn sample(&mut self, t: f64, code: u32) {
+        let reading = self.cal.reading_code(code);
         self.now = self.now.max(t);
         self.last_sample_t = Some(t);
         self.last = Some(reading);

@@ -7,7 +7,6 @@ use ratatui::backend::TestBackend;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 use ratatui::Terminal;
 
-use dbtrail::decode::Frame;
 use dbtrail::profile::parse_profile;
 use dbtrail::record::Event;
 
@@ -47,8 +46,7 @@ fn app() -> App {
 }
 
 fn sample(app: &mut App, t: f64, counts: u32) -> Vec<Command> {
-    let frame = Frame::new(&[counts]).unwrap();
-    app.update(AppEvent::Samples(vec![Event::Sample { t, frame }]))
+    app.update(AppEvent::Samples(vec![Event::sample(t, &[counts])]))
 }
 
 fn keys(app: &mut App, text: &str) -> Vec<Command> {
