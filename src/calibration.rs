@@ -207,6 +207,11 @@ impl Calibration {
             .collect()
     }
 
+    /// The precomputed entries, one per ADC code from 0 (empty above 16 bits).
+    pub fn code_table(&self) -> &[CodeEntry] {
+        &self.table
+    }
+
     /// The precomputed entry for an ADC code, when the table covers it.
     #[inline]
     pub fn code_entry(&self, code: u32) -> Option<&CodeEntry> {

@@ -98,6 +98,14 @@ impl AddAssign for DecodeStats {
 pub trait FrameSink {
     /// Takes one sample.
     fn push_frame(&mut self, frame: &Frame);
+
+    /// Takes one sample of one channel.
+    #[inline]
+    fn push_single(&mut self, count: u32) {
+        if let Some(frame) = Frame::new(&[count]) {
+            self.push_frame(&frame);
+        }
+    }
 }
 
 impl FrameSink for Vec<Frame> {
@@ -130,6 +138,15 @@ impl FlatCounts {
 }
 
 impl FrameSink for FlatCounts {
+    #[inline]
+    fn push_single(&mut self, count: u32) {
+        if self.channels == 1 {
+            self.counts.push(count);
+        } else if let Some(frame) = Frame::new(&[count]) {
+            self.push_frame(&frame);
+        }
+    }
+
     fn push_frame(&mut self, frame: &Frame) {
         if self.counts.is_empty() {
             self.channels = frame.channels();
@@ -192,7 +209,7 @@ impl AsciiDecoder {
 
     /// Decodes `bytes`, appending samples to `out`.
     pub fn feed(&mut self, mut bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
-        while let Some(end) = memchr::memchr2(b'\n', b'\r', bytes) {
+        while let Some(end) = self.next_line_end(&mut bytes, stats, out) {
             if self.line.is_empty() && !self.discarding && !self.skip_partial {
                 self.finish_line(&bytes[..end], stats, out);
             } else {
@@ -205,6 +222,64 @@ impl AsciiDecoder {
             bytes = &bytes[end + 1..];
         }
         self.keep(bytes);
+    }
+
+    /// Where the next line that needs the general path ends. On the way it takes, without
+    /// copying or searching, the plain lines of one number and LF that make up most
+    /// high-rate streams (the hot path: a few operations per sample).
+    #[inline]
+    fn next_line_end(
+        &mut self,
+        bytes: &mut &[u8],
+        stats: &mut DecodeStats,
+        out: &mut impl FrameSink,
+    ) -> Option<usize> {
+        let single = self.channels.is_none_or(|n| n == 1);
+        if single && self.line.is_empty() && !self.discarding && !self.skip_partial {
+            let b = *bytes;
+            let mut i = 0;
+            let mut taken = 0u64;
+            'lines: while i < b.len() {
+                if let Some((value, used)) = swar_line(b, i) {
+                    out.push_single(value);
+                    taken += 1;
+                    i += used;
+                    continue 'lines;
+                }
+                let start = i;
+                let mut value: u32 = 0;
+                // Nine digits always fit a u32; longer numbers take the general path.
+                while i < b.len() && i - start < 9 {
+                    let d = b[i].wrapping_sub(b'0');
+                    if d > 9 {
+                        break;
+                    }
+                    value = value * 10 + u32::from(d);
+                    i += 1;
+                }
+                if i > start && i < b.len() {
+                    let end = match b[i] {
+                        b'\n' => 1,
+                        b'\r' if b.get(i + 1) == Some(&b'\n') => 2,
+                        _ => 0,
+                    };
+                    if end > 0 {
+                        out.push_single(value);
+                        taken += 1;
+                        i += end;
+                        continue 'lines;
+                    }
+                }
+                i = start;
+                break;
+            }
+            if taken > 0 {
+                self.channels = Some(1);
+                stats.frames += taken;
+            }
+            *bytes = &b[i..];
+        }
+        memchr::memchr2(b'\n', b'\r', bytes)
     }
 
     /// Ends the stream: a last line without a line end still counts.
@@ -256,6 +331,34 @@ impl AsciiDecoder {
             _ => stats.bad_lines += 1,
         }
     }
+}
+
+/// Reads `digits + LF` (or CRLF) at `b[at..]` eight bytes at a time: the leading digits
+/// are found and summed with word arithmetic instead of a loop per byte. None when the
+/// line is not 1 to 7 digits and a line end, or when fewer than eight bytes remain.
+#[inline]
+fn swar_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
+    let word = u64::from_le_bytes(b.get(at..at + 8)?.try_into().ok()?);
+    let digits = word.wrapping_sub(0x3030_3030_3030_3030);
+    // A byte is a digit exactly when it and it plus 6 both stay below 0x10. A borrow from
+    // a byte below '0' only reaches the bytes after it, which are not used.
+    let not_digit = (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & 0xF0F0_F0F0_F0F0_F0F0;
+    let len = (not_digit.trailing_zeros() / 8) as usize;
+    if len == 0 || len >= 8 {
+        return None;
+    }
+    let end = match b[at + len] {
+        b'\n' => 1,
+        b'\r' if b.get(at + len + 1) == Some(&b'\n') => 2,
+        _ => return None,
+    };
+    // Move the digits to the top bytes (zeros before them add nothing), then sum pairs,
+    // quads and the eight.
+    let mut v = (digits << (8 * (8 - len))) & 0x0F0F_0F0F_0F0F_0F0F;
+    v = (v.wrapping_mul(10) + (v >> 8)) & 0x00FF_00FF_00FF_00FF;
+    v = (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF;
+    v = (v.wrapping_mul(10000) + (v >> 32)) & 0x0000_0000_FFFF_FFFF;
+    Some((v as u32, len + end))
 }
 
 fn is_blank(b: u8) -> bool {
@@ -620,6 +723,23 @@ mod tests {
             frame,
             [0xA5, 0x5A, 0x07, 0x00, 0x02, 0xD2, 0x04, 0x37, 0x02, 0xE2, 0x89]
         );
+    }
+
+    #[test]
+    fn word_at_a_time_lines_agree_with_the_plain_parser() {
+        for value in [0u32, 7, 42, 999, 4095, 65535, 1_234_567] {
+            for end in ["\n", "\r\n"] {
+                let line = format!("{value}{end}XXXXXXXX");
+                let got = swar_line(line.as_bytes(), 0);
+                let want =
+                    (value < 10_000_000).then(|| (value, value.to_string().len() + end.len()));
+                assert_eq!(got, want, "{line:?}");
+            }
+        }
+        assert_eq!(swar_line(b"12a\n5678", 0), None);
+        assert_eq!(swar_line(b"12,3\n567", 0), None);
+        assert_eq!(swar_line(b"#12\n5678", 0), None);
+        assert_eq!(swar_line(b"12\n", 0), None, "fewer than eight bytes left");
     }
 
     #[test]

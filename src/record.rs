@@ -30,7 +30,11 @@ impl Chunk {
         if let Some(frame) = crate::decode::Frame::new(counts) {
             samples.push_frame(&frame);
         }
-        Chunk { t0: t, dt: 0.0, samples }
+        Chunk {
+            t0: t,
+            dt: 0.0,
+            samples,
+        }
     }
 
     /// Samples held.
@@ -285,11 +289,13 @@ impl<W: Write> Recorder<W> {
             } else {
                 chunk.len()
             };
-            let n = chunk.channels().min(channels);
-            let counts = &chunk.samples.counts[i * chunk.channels()..end * chunk.channels()];
-            for sample in counts.chunks_exact(chunk.channels()) {
-                for (stats, &code) in self.stats.iter_mut().zip(&sample[..n]) {
-                    stats.add_code(&self.cal, code);
+            let width = chunk.channels();
+            let counts = &chunk.samples.counts[i * width..end * width];
+            if width == 1 {
+                self.stats[0].add_codes(&self.cal, counts.iter().copied());
+            } else {
+                for (ch, stats) in self.stats.iter_mut().enumerate().take(width) {
+                    stats.add_codes(&self.cal, counts.iter().skip(ch).step_by(width).copied());
                 }
             }
             i = end;
@@ -483,9 +489,17 @@ mod tests {
     #[test]
     fn a_chunk_across_interval_boundaries_fills_each_interval() {
         let mut r = recorder(1.0);
-        let mut samples = FlatCounts { channels: 1, counts: Vec::new() };
+        let mut samples = FlatCounts {
+            channels: 1,
+            counts: Vec::new(),
+        };
         samples.counts.resize(2500, 2000);
-        r.handle(&Event::Samples(Chunk { t0: 0.0, dt: 0.001, samples })).unwrap();
+        r.handle(&Event::Samples(Chunk {
+            t0: 0.0,
+            dt: 0.001,
+            samples,
+        }))
+        .unwrap();
         r.finish(2.5).unwrap();
         let counts: Vec<String> = data_rows(r).iter().map(|row| row[2].clone()).collect();
         assert_eq!(counts, ["1000", "1000", "500"]);

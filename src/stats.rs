@@ -74,6 +74,44 @@ impl PowerStats {
         }
     }
 
+    /// Adds a run of ADC codes; the same as `add_code` for each, with the accumulators
+    /// kept in registers for the run (the recorder's inner loop).
+    pub fn add_codes(
+        &mut self,
+        cal: &crate::calibration::Calibration,
+        codes: impl Iterator<Item = u32>,
+    ) {
+        let table = cal.code_table();
+        let (mut samples, mut valid, mut sum_w) = (0u64, 0u64, 0.0f64);
+        let (mut lo, mut hi, mut flags) = (self.min_dbm, self.max_dbm, Flags::empty());
+        for code in codes {
+            match table.get(code as usize) {
+                Some(e) => {
+                    samples += 1;
+                    flags |= e.flags;
+                    if e.watts > 0.0 {
+                        valid += 1;
+                        sum_w += e.watts;
+                        // Plain comparisons: table values are never NaN.
+                        if e.dbm < lo {
+                            lo = e.dbm;
+                        }
+                        if e.dbm > hi {
+                            hi = e.dbm;
+                        }
+                    }
+                }
+                None => self.add(&cal.reading_code(code)),
+            }
+        }
+        self.samples += samples;
+        self.valid += valid;
+        self.sum_w += sum_w;
+        self.min_dbm = self.min_dbm.min(lo);
+        self.max_dbm = self.max_dbm.max(hi);
+        self.flags |= flags;
+    }
+
     /// Adds another set (as if its readings had been added one by one).
     pub fn merge(&mut self, other: &PowerStats) {
         self.samples += other.samples;

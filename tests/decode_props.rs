@@ -45,6 +45,25 @@ fn as_counts(frames: &[Frame]) -> Vec<Vec<u32>> {
 proptest! {
     #![proptest_config(ProptestConfig::with_cases(300))]
 
+    // The word-at-a-time path for one-number lines must agree with plain parsing, for any
+    // number of digits and either line end, wherever the reads are cut.
+    #[test]
+    fn single_channel_lines_decode_exactly(values in proptest::collection::vec(any::<u32>(), 1..300), crlf in any::<bool>(), cut in 0usize..4000) {
+        let end = if crlf { "\r\n" } else { "\n" };
+        let text: String = values.iter().map(|v| format!("{v}{end}")).collect();
+        let bytes = text.as_bytes();
+        let cut = cut.min(bytes.len());
+        let (frames, stats) = decode_chunks(Format::Ascii, &[&bytes[..cut], &bytes[cut..]]);
+        let want: Vec<Vec<u32>> = values.iter().map(|v| vec![*v]).collect();
+        prop_assert_eq!(as_counts(&frames), want);
+        prop_assert_eq!(stats.bad_lines, 0);
+        let mut flat = dbtrail::decode::FlatCounts::default();
+        let mut d = Decoder::new(Format::Ascii);
+        d.feed(bytes, &mut flat);
+        d.finish(&mut flat);
+        prop_assert_eq!(flat.counts, values);
+    }
+
     #[test]
     fn arbitrary_bytes_never_panic(bytes in proptest::collection::vec(any::<u8>(), 0..4096), cut in 0usize..4096) {
         let cut = cut.min(bytes.len());

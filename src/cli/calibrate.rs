@@ -115,7 +115,10 @@ impl Bench {
                         return Some(sample);
                     }
                     if let Some(Event::Samples(chunk)) = source.next_event() {
-                        pending.extend((0..chunk.len()).map(|i| (chunk.time(i), f64::from(chunk.counts(i)[0]))));
+                        pending.extend(
+                            (0..chunk.len())
+                                .map(|i| (chunk.time(i), f64::from(chunk.counts(i)[0]))),
+                        );
                         continue;
                     }
                     if Instant::now() > deadline || source.exhausted() {

@@ -194,7 +194,9 @@ fn pump(
 fn cut_at(event: &mut Event, end: f64) -> bool {
     match event {
         Event::Samples(chunk) => {
-            let keep = (0..chunk.len()).take_while(|&i| chunk.time(i) < end).count();
+            let keep = (0..chunk.len())
+                .take_while(|&i| chunk.time(i) < end)
+                .count();
             chunk.samples.counts.truncate(keep * chunk.channels());
             keep > 0
         }

@@ -43,7 +43,7 @@ impl ReplaySpec {
 
 fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) {
     let mut decoder = Decoder::new(spec.format);
-    let mut buf = vec![0u8; 1 << 20];
+    let mut buf = vec![0u8; 1 << 18];
     let mut index: u64 = 0;
     let dt = 1.0 / spec.rate_hz;
     sink.counters.set_connected(true);
@@ -53,7 +53,11 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
             Ok(n) => n,
         };
         let before = decoder.stats();
-        let mut samples = FlatCounts::default();
+        // A short ASCII line is 3 to 6 bytes: room for the samples of this read at once.
+        let mut samples = FlatCounts {
+            channels: 0,
+            counts: Vec::with_capacity(n / 3 + 16),
+        };
         if n == 0 {
             decoder.finish(&mut samples);
         } else {
@@ -73,7 +77,8 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
             break;
         }
     }
-    sink.counters.set_last_sample((index as f64 * dt * 1e9) as u64);
+    sink.counters
+        .set_last_sample((index as f64 * dt * 1e9) as u64);
     sink.counters.set_connected(false);
 }
 
@@ -84,7 +89,11 @@ fn split(samples: FlatCounts, spec: &ReplaySpec, first: u64, dt: f64) -> Vec<Chu
         return Vec::new();
     }
     if !spec.realtime {
-        return vec![Chunk { t0: first as f64 * dt, dt, samples }];
+        return vec![Chunk {
+            t0: first as f64 * dt,
+            dt,
+            samples,
+        }];
     }
     let per_chunk = (spec.rate_hz * PACED_CHUNK_S).ceil().max(1.0) as usize * samples.channels;
     samples
@@ -94,7 +103,10 @@ fn split(samples: FlatCounts, spec: &ReplaySpec, first: u64, dt: f64) -> Vec<Chu
             let chunk = Chunk {
                 t0: *index as f64 * dt,
                 dt,
-                samples: FlatCounts { channels: samples.channels, counts: counts.to_vec() },
+                samples: FlatCounts {
+                    channels: samples.channels,
+                    counts: counts.to_vec(),
+                },
             };
             *index += (counts.len() / samples.channels) as u64;
             Some(chunk)

@@ -72,7 +72,11 @@ fn read_forever(
                 }
                 if !samples.is_empty() {
                     sink.counters.set_last_sample((t * 1e9) as u64);
-                    let chunk = Chunk { t0: t, dt: 0.0, samples: std::mem::take(&mut samples) };
+                    let chunk = Chunk {
+                        t0: t,
+                        dt: 0.0,
+                        samples: std::mem::take(&mut samples),
+                    };
                     sink.send(Event::Samples(chunk));
                 }
                 continue;

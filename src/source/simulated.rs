@@ -38,27 +38,43 @@ impl SimSpec {
             scenario.story()
         );
         let rate = self.simulator.rate_hz();
-        let per_chunk = if self.fast { FAST_CHUNK } else { (rate * PACED_CHUNK_S).ceil().max(1.0) as usize };
+        let per_chunk = if self.fast {
+            FAST_CHUNK
+        } else {
+            (rate * PACED_CHUNK_S).ceil().max(1.0) as usize
+        };
         let total = self.until.map(|s| (s * rate).ceil() as u64);
-        spawn(description, !self.fast, WhenFull::Wait, move |sink, started| {
-            sink.counters.set_connected(true);
-            let mut made: u64 = 0;
-            while total.is_none_or(|n| made < n) {
-                let n = total.map_or(per_chunk, |total| per_chunk.min((total - made) as usize));
-                let mut samples = FlatCounts { channels: 1, counts: Vec::with_capacity(n) };
-                let t0 = self.simulator.fill(n, &mut samples.counts);
-                let chunk = Chunk { t0, dt: 1.0 / rate, samples };
-                if !self.fast {
-                    pace(started, chunk.last_t());
+        spawn(
+            description,
+            !self.fast,
+            WhenFull::Wait,
+            move |sink, started| {
+                sink.counters.set_connected(true);
+                let mut made: u64 = 0;
+                while total.is_none_or(|n| made < n) {
+                    let n = total.map_or(per_chunk, |total| per_chunk.min((total - made) as usize));
+                    let mut samples = FlatCounts {
+                        channels: 1,
+                        counts: Vec::with_capacity(n),
+                    };
+                    let t0 = self.simulator.fill(n, &mut samples.counts);
+                    let chunk = Chunk {
+                        t0,
+                        dt: 1.0 / rate,
+                        samples,
+                    };
+                    if !self.fast {
+                        pace(started, chunk.last_t());
+                    }
+                    made += n as u64;
+                    sink.counters.add_samples(n as u64);
+                    sink.counters.set_last_sample((chunk.last_t() * 1e9) as u64);
+                    if !sink.send(Event::Samples(chunk)) {
+                        break;
+                    }
                 }
-                made += n as u64;
-                sink.counters.add_samples(n as u64);
-                sink.counters.set_last_sample((chunk.last_t() * 1e9) as u64);
-                if !sink.send(Event::Samples(chunk)) {
-                    break;
-                }
-            }
-            sink.counters.set_connected(false);
-        })
+                sink.counters.set_connected(false);
+            },
+        )
     }
 }
