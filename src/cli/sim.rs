@@ -144,12 +144,15 @@ fn stream(
     let mut buf = Vec::with_capacity(64 * 1024);
     let mut written: u64 = 0;
     let mut seq: u16 = 0;
+    let mut counts = Vec::new();
     while total.is_none_or(|n| written < n) {
         buf.clear();
-        let mut t = 0.0;
-        for _ in 0..total.map_or(per_chunk, |n| per_chunk.min(n - written)) {
-            let (time, counts) = simulator.next_sample();
-            t = time;
+        let t;
+        let n = total.map_or(per_chunk, |n| per_chunk.min(n - written));
+        counts.clear();
+        let t0 = simulator.fill(n as usize, &mut counts);
+        t = t0 + (n.saturating_sub(1)) as f64 / simulator.rate_hz();
+        for &counts in &counts {
             match format {
                 Format::Binary => {
                     encode_binary(seq, &[counts.min(u32::from(u16::MAX)) as u16], &mut buf);

@@ -19,8 +19,12 @@ pub use replay::ReplaySpec;
 pub use serial::{open_port, SerialSpec};
 pub use simulated::SimSpec;
 
-/// Events the ring holds: enough for a second of samples at a fast link.
-const RING_CAPACITY: usize = 1 << 18;
+/// Events the ring holds for a live port: one event per read, so even short reads at a
+/// high rate have room for the 40 ms between two frames of the screen.
+const LIVE_RING: usize = 4096;
+/// Events the ring holds for a file or the simulator, which wait when it is full: each
+/// event carries up to 16 Ki samples, so a short ring keeps memory flat.
+const WAITING_RING: usize = 16;
 
 /// A source running on its own thread.
 pub struct Running {
@@ -126,7 +130,12 @@ pub fn spawn(
     when_full: WhenFull,
     body: impl FnOnce(&mut Sink, Instant) + Send + 'static,
 ) -> Running {
-    let (ring, events) = HeapRb::<Event>::new(RING_CAPACITY).split();
+    let capacity = if when_full == WhenFull::Drop {
+        LIVE_RING
+    } else {
+        WAITING_RING
+    };
+    let (ring, events) = HeapRb::<Event>::new(capacity).split();
     let counters = Arc::new(LinkCounters::default());
     let stop = Arc::new(AtomicBool::new(false));
     let finished = Arc::new(AtomicBool::new(false));
