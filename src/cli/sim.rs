@@ -147,11 +147,10 @@ fn stream(
     let mut counts = Vec::new();
     while total.is_none_or(|n| written < n) {
         buf.clear();
-        let t;
         let n = total.map_or(per_chunk, |n| per_chunk.min(n - written));
         counts.clear();
         let t0 = simulator.fill(n as usize, &mut counts);
-        t = t0 + (n.saturating_sub(1)) as f64 / simulator.rate_hz();
+        let t = t0 + (n.saturating_sub(1)) as f64 / simulator.rate_hz();
         for &counts in &counts {
             match format {
                 Format::Binary => {
