@@ -440,46 +440,67 @@ impl BinaryDecoder {
 
     /// Decodes `bytes`, appending samples to `out`.
     pub fn feed(&mut self, bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        if self.pending.is_empty() {
+            // Frames are read where they lie; only a cut frame at the end is kept.
+            let used = scan_frames(bytes, &mut self.next_seq, stats, out);
+            self.pending.extend_from_slice(&bytes[used..]);
+            return;
+        }
         self.pending.extend_from_slice(bytes);
-        let mut at = 0;
-        while let Some(found) = find_sync(&self.pending[at..]) {
-            stats.skipped_bytes += found as u64;
-            at += found;
-            match check_frame(&self.pending[at..]) {
-                FrameCheck::Incomplete => break,
-                FrameCheck::Bad => {
-                    stats.crc_errors += 1;
-                    stats.skipped_bytes += 1;
-                    at += 1;
-                }
-                FrameCheck::Good { seq, frame, len } => {
-                    self.count_sequence(seq, stats);
-                    stats.frames += 1;
-                    out.push_frame(&frame);
-                    at += len;
-                }
+        let pending = std::mem::take(&mut self.pending);
+        let used = scan_frames(&pending, &mut self.next_seq, stats, out);
+        self.pending = pending;
+        self.pending.drain(..used);
+    }
+}
+
+/// Decodes the frames in `buf`; returns how many bytes are done with (the rest may be the
+/// start of a frame cut by the read).
+fn scan_frames(
+    buf: &[u8],
+    next_seq: &mut Option<u16>,
+    stats: &mut DecodeStats,
+    out: &mut impl FrameSink,
+) -> usize {
+    let mut at = 0;
+    while let Some(found) = find_sync(&buf[at..]) {
+        stats.skipped_bytes += found as u64;
+        at += found;
+        match check_frame(&buf[at..]) {
+            FrameCheck::Incomplete => return at,
+            FrameCheck::Bad => {
+                stats.crc_errors += 1;
+                stats.skipped_bytes += 1;
+                at += 1;
+            }
+            FrameCheck::Good { seq, frame, len } => {
+                count_sequence(next_seq, seq, stats);
+                stats.frames += 1;
+                out.push_frame(&frame);
+                at += len;
             }
         }
-        // With no sync pattern left (not even a lone first byte at the end), nothing
-        // here can start a frame.
-        if find_sync(&self.pending[at..]).is_none() {
-            stats.skipped_bytes += (self.pending.len() - at) as u64;
-            at = self.pending.len();
-        }
-        self.pending.drain(..at);
     }
+    // With no sync pattern left (not even a lone first byte at the end), nothing here can
+    // start a frame.
+    stats.skipped_bytes += (buf.len() - at) as u64;
+    buf.len()
+}
 
-    fn count_sequence(&mut self, seq: u16, stats: &mut DecodeStats) {
-        if let Some(expected) = self.next_seq {
+fn count_sequence(next_seq: &mut Option<u16>, seq: u16, stats: &mut DecodeStats) {
+    {
+        if let Some(expected) = *next_seq {
             let missing = seq.wrapping_sub(expected);
             // A jump backwards (more than half the counter) is a device restart, not a loss.
             if missing > 0 && missing < 0x8000 {
                 stats.dropped_frames += u64::from(missing);
             }
         }
-        self.next_seq = Some(seq.wrapping_add(1));
+        *next_seq = Some(seq.wrapping_add(1));
     }
+}
 
+impl BinaryDecoder {
     /// Ends the stream: bytes left over are counted as skipped.
     pub fn finish(&mut self, stats: &mut DecodeStats) {
         stats.skipped_bytes += self.pending.len() as u64;
