@@ -183,7 +183,8 @@ fn pump(
             };
         }
         if took == 0 {
-            std::thread::sleep(Duration::from_millis(2));
+            // Short enough that a row follows its sample within a fraction of a millisecond.
+            std::thread::sleep(Duration::from_micros(200));
         }
     };
     recorder.finish(end_t)?;
