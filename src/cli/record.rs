@@ -13,8 +13,8 @@ use dbtrail::calibration::Calibration;
 use dbtrail::record::{Event, Recorder, RunContext};
 use sha2::{Digest, Sha256};
 
-use super::source_args::{self, LinkArgs, SourceArgs};
-use super::{parse_db_arg, parse_duration_arg, parse_frequency_arg, BadInput, Failure, Runtime};
+use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
+use super::{parse_duration_arg, BadInput, Failure, Runtime};
 use crate::source::Running;
 
 #[derive(clap::Args)]
@@ -23,15 +23,8 @@ pub struct Args {
     source: SourceArgs,
     #[command(flatten)]
     link: LinkArgs,
-    /// Detector profile (TOML); --demo uses the bundled demo profile without one
-    #[arg(long)]
-    profile: Option<std::path::PathBuf>,
-    /// Frequency in use, e.g. 145.5MHz (default: the demo scenario's, else the profile's)
-    #[arg(long, value_parser = parse_frequency_arg)]
-    freq: Option<f64>,
-    /// Extra offset in dB added to the profile's, e.g. 10dB for another attenuator
-    #[arg(long, default_value = "0dB", value_parser = parse_db_arg, allow_hyphen_values = true)]
-    offset: f64,
+    #[command(flatten)]
+    reading: ReadingArgs,
     /// Interval per row, e.g. 1s, 10s, 1m; 0 writes one row per sample
     #[arg(long, default_value = "1s", value_parser = parse_duration_arg)]
     every: Duration,
@@ -75,9 +68,9 @@ const SYNC_EVERY: Duration = Duration::from_secs(2);
 const LIVE_GRACE_S: f64 = 0.1;
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let loaded = source_args::load(args.profile.as_ref(), &args.source)?;
-    let freq = source_args::frequency(args.freq, &args.source);
-    let cal = Calibration::new(&loaded.profile, freq, args.offset);
+    let loaded = source_args::load(args.reading.profile.as_ref(), &args.source)?;
+    let freq = source_args::frequency(args.reading.freq, &args.source);
+    let cal = Calibration::new(&loaded.profile, freq, args.reading.offset);
     let (out, fresh) = open_output(&args.out, args.append, args.force)?;
     let stop = install_signal_flag().runtime()?;
     let until = args.duration.map(|d| d.as_secs_f64());

@@ -30,6 +30,20 @@ pub struct SourceArgs {
     pub demo: Option<Scenario>,
 }
 
+/// How the samples become readings: the profile, the frequency and an extra offset.
+#[derive(clap::Args, Debug)]
+pub struct ReadingArgs {
+    /// Detector profile (TOML); --demo uses the bundled demo profile without one
+    #[arg(long)]
+    pub profile: Option<PathBuf>,
+    /// Frequency in use, e.g. 145.5MHz (default: the demo scenario's, else the profile's)
+    #[arg(long, value_parser = super::parse_frequency_arg)]
+    pub freq: Option<f64>,
+    /// Extra offset in dB added to the profile's, e.g. 10dB for another attenuator
+    #[arg(long, default_value = "0dB", value_parser = super::parse_db_arg, allow_hyphen_values = true)]
+    pub offset: f64,
+}
+
 #[derive(clap::Args, Debug)]
 pub struct LinkArgs {
     /// Baud rate for --port

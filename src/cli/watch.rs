@@ -6,8 +6,8 @@ use std::sync::Arc;
 
 use anyhow::anyhow;
 
-use super::source_args::{self, LinkArgs, SourceArgs};
-use super::{parse_db_arg, parse_frequency_arg, BadInput, Failure, Runtime};
+use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
+use super::{BadInput, Failure, Runtime};
 use crate::tui::{self, app::App, Session};
 
 #[derive(clap::Args)]
@@ -16,15 +16,8 @@ pub struct Args {
     source: SourceArgs,
     #[command(flatten)]
     link: LinkArgs,
-    /// Detector profile (TOML); --demo uses the bundled demo profile without one
-    #[arg(long)]
-    profile: Option<PathBuf>,
-    /// Frequency in use, e.g. 145.5MHz (default: the demo scenario's, else the profile's)
-    #[arg(long, value_parser = parse_frequency_arg)]
-    freq: Option<f64>,
-    /// Extra offset in dB added to the profile's, e.g. 10dB
-    #[arg(long, default_value = "0dB", value_parser = parse_db_arg, allow_hyphen_values = true)]
-    offset: f64,
+    #[command(flatten)]
+    reading: ReadingArgs,
     /// Log to this CSV file from the start (the same rows as `record --every 1s`)
     #[arg(long)]
     log: Option<PathBuf>,
@@ -51,8 +44,8 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
         ))
         .bad_input();
     }
-    let loaded = source_args::load(args.profile.as_ref(), &args.source)?;
-    let freq = source_args::frequency(args.freq, &args.source);
+    let loaded = source_args::load(args.reading.profile.as_ref(), &args.source)?;
+    let freq = source_args::frequency(args.reading.freq, &args.source);
     // A screen shows the present: files and the simulator run at their own pace.
     args.link.realtime = true;
     args.link.fast = false;
@@ -60,7 +53,7 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
     let mut app = App::new(
         Arc::new(loaded.profile),
         freq,
-        args.offset,
+        args.reading.offset,
         short_label(&args.source, &args.link),
     );
     app.color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
