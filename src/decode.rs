@@ -463,9 +463,15 @@ fn scan_frames(
     out: &mut impl FrameSink,
 ) -> usize {
     let mut at = 0;
-    while let Some(found) = find_sync(&buf[at..]) {
-        stats.skipped_bytes += found as u64;
-        at += found;
+    loop {
+        // In a clean stream the next frame starts where the last ended: no search needed.
+        if !buf[at..].starts_with(&SYNC) {
+            let Some(found) = find_sync(&buf[at..]) else {
+                break;
+            };
+            stats.skipped_bytes += found as u64;
+            at += found;
+        }
         match check_frame(&buf[at..]) {
             FrameCheck::Incomplete => return at,
             FrameCheck::Bad => {

@@ -23,8 +23,8 @@ pub use simulated::SimSpec;
 /// high rate have room for the 40 ms between two frames of the screen.
 const LIVE_RING: usize = 4096;
 /// Events the ring holds for a file or the simulator, which wait when it is full: each
-/// event carries up to 16 Ki samples, so a short ring keeps memory flat.
-const WAITING_RING: usize = 16;
+/// event carries up to 16 Ki samples (64 KiB), so a short ring keeps memory flat.
+const WAITING_RING: usize = 4;
 
 /// A source running on its own thread.
 pub struct Running {
