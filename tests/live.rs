@@ -22,29 +22,8 @@ fn scratch(name: &str) -> PathBuf {
     dir
 }
 
-/// A log-amp whose maths can be done by hand: 1 mV per count (12 bits at 4.095 V), 25 mV
-/// per dB, intercept −80 dBm, a correction of 0 dB at 10 MHz rising to +2 dB at 1 GHz, and a
-/// 30 dB attenuator in front.
-const HAND_PROFILE: &str = r#"
-name = "hand-logamp"
-reference_frequency = "10MHz"
-[adc]
-bits = 12
-vref = 4.095
-[model]
-kind = "log"
-slope = 0.025
-intercept = -80.0
-points = [
-  { applied = "-60dBm", counts = 500 },
-  { applied = "-30dBm", counts = 1250 },
-  { applied = "0dBm", counts = 2000 },
-]
-[frequency_correction]
-points = [ { freq = "10MHz", db = 0.0 }, { freq = "1GHz", db = 2.0 } ]
-[offset]
-db = 30.0
-"#;
+/// The hand-worked log-amp shared with the screen's tests (see the file for its maths).
+const HAND_PROFILE: &str = include_str!("profiles/good/hand-logamp.toml");
 
 /// Source: worked example by hand — counts × 1 mV / 25 mV/dB − 80 dBm, + 1 dB correction
 /// at 100 MHz (halfway from 10 MHz to 1 GHz in log-frequency), + 30 dB attenuator.

@@ -13,32 +13,9 @@ use dbtrail::record::Event;
 use super::app::{App, AppEvent, Command, Shown, Units};
 use super::draw::draw;
 
-/// A log-amp whose maths is done by hand: 1 mV per count, 25 mV/dB, intercept −80 dBm,
-/// correction 0 dB at 10 MHz rising to +2 dB at 1 GHz, a 30 dB attenuator, and limits.
-/// So C counts read C/25 − 80 + 30 dBm at 10 MHz, one dB more at 100 MHz.
-const HAND_PROFILE: &str = r#"
-name = "hand"
-reference_frequency = "10MHz"
-[adc]
-bits = 12
-vref = 4.095
-[model]
-kind = "log"
-slope = 0.025
-intercept = -80.0
-points = [
-  { applied = "-60dBm", counts = 500 },
-  { applied = "-30dBm", counts = 1250 },
-  { applied = "0dBm", counts = 2000 },
-]
-[frequency_correction]
-points = [ { freq = "10MHz", db = 0.0 }, { freq = "1GHz", db = 2.0 } ]
-[offset]
-db = 30.0
-[limits]
-detector_max_dbm = -5.0
-reference_max_dbm = 20.0
-"#;
+/// The hand-worked log-amp (see the file): C counts read C/25 − 80 + 30 dBm at 10 MHz,
+/// one dB more at 100 MHz; limits −5 dBm at the detector, +20 dBm at the reference plane.
+const HAND_PROFILE: &str = include_str!("../../tests/profiles/good/hand-logamp.toml");
 
 fn app() -> App {
     let profile = parse_profile(HAND_PROFILE, "hand.toml").unwrap();
