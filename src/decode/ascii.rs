@@ -1,0 +1,280 @@
+//! The ASCII mode: lines of decimal counts, with a word-at-a-time path for the plain
+//! one-number lines of fast streams.
+
+use super::{DecodeStats, Frame, FrameSink, MAX_CHANNELS, MAX_LINE};
+
+/// Decodes ASCII lines.
+#[derive(Debug, Clone, Default)]
+pub struct AsciiDecoder {
+    line: Vec<u8>,
+    discarding: bool,
+    skip_partial: bool,
+    channels: Option<usize>,
+}
+
+impl AsciiDecoder {
+    /// A decoder for a stream read from its start.
+    pub fn new() -> Self {
+        AsciiDecoder {
+            line: Vec::with_capacity(256),
+            ..Default::default()
+        }
+    }
+
+    /// Forgets any partial line and skips up to the next line end, as after joining a
+    /// stream part-way (a reconnect).
+    pub fn resync(&mut self) {
+        self.line.clear();
+        self.discarding = false;
+        self.skip_partial = true;
+    }
+
+    /// Decodes `bytes`, appending samples to `out`.
+    pub fn feed(&mut self, mut bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        while let Some(end) = self.next_line_end(&mut bytes, stats, out) {
+            if self.line.is_empty() && !self.discarding && !self.skip_partial {
+                self.finish_line(&bytes[..end], stats, out);
+            } else {
+                self.keep(&bytes[..end]);
+                let line = std::mem::take(&mut self.line);
+                self.end_line(&line, stats, out);
+                self.line = line;
+                self.line.clear();
+            }
+            bytes = &bytes[end + 1..];
+        }
+        self.keep(bytes);
+    }
+
+    /// Where the next line that needs the general path ends. On the way it takes, without
+    /// copying or searching, the plain lines of one number and LF that make up most
+    /// high-rate streams (the hot path: a few operations per sample).
+    #[inline]
+    fn next_line_end(
+        &mut self,
+        bytes: &mut &[u8],
+        stats: &mut DecodeStats,
+        out: &mut impl FrameSink,
+    ) -> Option<usize> {
+        let single = self.channels.is_none_or(|n| n == 1);
+        if single && self.line.is_empty() && !self.discarding && !self.skip_partial {
+            let b = *bytes;
+            let mut i = 0;
+            let mut taken = 0u64;
+            'lines: while i < b.len() {
+                if let Some((value, used)) = swar_line(b, i) {
+                    out.push_single(value);
+                    taken += 1;
+                    i += used;
+                    continue 'lines;
+                }
+                let start = i;
+                let mut value: u32 = 0;
+                // Nine digits always fit a u32; longer numbers take the general path.
+                while i < b.len() && i - start < 9 {
+                    let d = b[i].wrapping_sub(b'0');
+                    if d > 9 {
+                        break;
+                    }
+                    value = value * 10 + u32::from(d);
+                    i += 1;
+                }
+                if i > start && i < b.len() {
+                    let end = match b[i] {
+                        b'\n' => 1,
+                        b'\r' if b.get(i + 1) == Some(&b'\n') => 2,
+                        _ => 0,
+                    };
+                    if end > 0 {
+                        out.push_single(value);
+                        taken += 1;
+                        i += end;
+                        continue 'lines;
+                    }
+                }
+                i = start;
+                break;
+            }
+            if taken > 0 {
+                self.channels = Some(1);
+                stats.frames += taken;
+            }
+            *bytes = &b[i..];
+        }
+        memchr::memchr2(b'\n', b'\r', bytes)
+    }
+
+    /// Ends the stream: a last line without a line end still counts.
+    pub fn finish(&mut self, stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        if !self.line.is_empty() || self.discarding {
+            let line = std::mem::take(&mut self.line);
+            self.end_line(&line, stats, out);
+        }
+    }
+
+    fn keep(&mut self, part: &[u8]) {
+        if self.discarding || self.skip_partial {
+            return;
+        }
+        if self.line.len() + part.len() > MAX_LINE {
+            self.discarding = true;
+            self.line.clear();
+        } else {
+            self.line.extend_from_slice(part);
+        }
+    }
+
+    fn end_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        if self.skip_partial {
+            self.skip_partial = false;
+        } else if self.discarding {
+            self.discarding = false;
+            stats.long_lines += 1;
+        } else {
+            self.finish_line(line, stats, out);
+        }
+    }
+
+    fn finish_line(&mut self, line: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        let line = trim(line);
+        if line.is_empty() {
+            return;
+        }
+        if line[0] == b'#' {
+            stats.comments += 1;
+            return;
+        }
+        match parse_counts(line) {
+            Some(frame) if self.channels.is_none_or(|n| n == frame.channels()) => {
+                self.channels = Some(frame.channels());
+                stats.frames += 1;
+                out.push_frame(&frame);
+            }
+            _ => stats.bad_lines += 1,
+        }
+    }
+}
+
+/// Reads `digits + LF` (or CRLF) at `b[at..]` eight bytes at a time: the leading digits
+/// are found and summed with word arithmetic instead of a loop per byte. None when the
+/// line is not 1 to 7 digits and a line end, or when fewer than eight bytes remain.
+#[inline]
+fn swar_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
+    let word = u64::from_le_bytes(b.get(at..at + 8)?.try_into().ok()?);
+    let digits = word.wrapping_sub(0x3030_3030_3030_3030);
+    // A byte is a digit exactly when it and it plus 6 both stay below 0x10. A borrow from
+    // a byte below '0' only reaches the bytes after it, which are not used.
+    let not_digit = (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & 0xF0F0_F0F0_F0F0_F0F0;
+    let len = (not_digit.trailing_zeros() / 8) as usize;
+    if len == 0 || len >= 8 {
+        return None;
+    }
+    let end = match b[at + len] {
+        b'\n' => 1,
+        b'\r' if b.get(at + len + 1) == Some(&b'\n') => 2,
+        _ => return None,
+    };
+    // Move the digits to the top bytes (zeros before them add nothing), then sum pairs,
+    // quads and the eight.
+    let mut v = (digits << (8 * (8 - len))) & 0x0F0F_0F0F_0F0F_0F0F;
+    v = (v.wrapping_mul(10) + (v >> 8)) & 0x00FF_00FF_00FF_00FF;
+    v = (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF;
+    v = (v.wrapping_mul(10000) + (v >> 32)) & 0x0000_0000_FFFF_FFFF;
+    Some((v as u32, len + end))
+}
+
+fn is_blank(b: u8) -> bool {
+    b == b' ' || b == b'\t'
+}
+
+fn trim(mut line: &[u8]) -> &[u8] {
+    while let [first, rest @ ..] = line {
+        if !is_blank(*first) {
+            break;
+        }
+        line = rest;
+    }
+    while let [rest @ .., last] = line {
+        if !is_blank(*last) {
+            break;
+        }
+        line = rest;
+    }
+    line
+}
+
+/// Parses `12, 340\t5 6`: integers separated by a comma (with optional blanks around it)
+/// or by blanks alone.
+fn parse_counts(line: &[u8]) -> Option<Frame> {
+    let mut frame = Frame::default();
+    let mut i = 0;
+    loop {
+        let start = i;
+        let mut value: u32 = 0;
+        while let Some(&b) = line.get(i).filter(|b| b.is_ascii_digit()) {
+            value = value.checked_mul(10)?.checked_add(u32::from(b - b'0'))?;
+            i += 1;
+        }
+        if i == start || usize::from(frame.channels) == MAX_CHANNELS {
+            return None;
+        }
+        frame.counts[usize::from(frame.channels)] = value;
+        frame.channels += 1;
+        while line.get(i).copied().is_some_and(is_blank) {
+            i += 1;
+        }
+        if line.get(i) == Some(&b',') {
+            i += 1;
+            while line.get(i).copied().is_some_and(is_blank) {
+                i += 1;
+            }
+            if i == line.len() {
+                return None;
+            }
+        }
+        if i == line.len() {
+            return Some(frame);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn counts(frames: &[Frame]) -> Vec<Vec<u32>> {
+        frames.iter().map(|f| f.counts().to_vec()).collect()
+    }
+
+    #[test]
+    fn word_at_a_time_lines_agree_with_the_plain_parser() {
+        for value in [0u32, 7, 42, 999, 4095, 65535, 1_234_567] {
+            for end in ["\n", "\r\n"] {
+                let line = format!("{value}{end}XXXXXXXX");
+                let got = swar_line(line.as_bytes(), 0);
+                let want =
+                    (value < 10_000_000).then(|| (value, value.to_string().len() + end.len()));
+                assert_eq!(got, want, "{line:?}");
+            }
+        }
+        assert_eq!(swar_line(b"12a\n5678", 0), None);
+        assert_eq!(swar_line(b"12,3\n567", 0), None);
+        assert_eq!(swar_line(b"#12\n5678", 0), None);
+        assert_eq!(swar_line(b"12\n", 0), None, "fewer than eight bytes left");
+    }
+
+    #[test]
+    fn ascii_long_line_is_discarded_with_bounded_memory() {
+        let mut d = AsciiDecoder::new();
+        let mut stats = DecodeStats::default();
+        let mut out = Vec::new();
+        d.feed(b"7\n", &mut stats, &mut out);
+        for _ in 0..1000 {
+            d.feed(&[b'1'; 1024], &mut stats, &mut out);
+            assert!(d.line.capacity() <= MAX_LINE.max(256) * 2);
+        }
+        d.feed(b"\n8\n", &mut stats, &mut out);
+        assert_eq!(counts(&out), [[7], [8]]);
+        assert_eq!(stats.long_lines, 1);
+    }
+}
