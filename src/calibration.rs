@@ -194,17 +194,40 @@ impl Calibration {
         if codes > TABLE_MAX_CODES {
             return Vec::new();
         }
-        (0..codes)
-            .map(|code| {
-                let r = self.reading(f64::from(code));
-                let value = !r.flags.intersects(crate::stats::NOT_A_VALUE);
-                CodeEntry {
-                    dbm: r.dbm,
-                    watts: if value { r.watts() } else { 0.0 },
-                    flags: r.flags,
-                }
-            })
-            .collect()
+        // Each code is independent and a diode model's inverse takes microseconds: shared
+        // out over the cores, a 12-bit table is ready before the first samples arrive.
+        let threads = std::thread::available_parallelism().map_or(1, |n| n.get().min(8)) as u32;
+        let per_thread = codes.div_ceil(threads);
+        std::thread::scope(|scope| {
+            let parts: Vec<_> = (0..threads)
+                .map(|t| {
+                    let first = t * per_thread;
+                    let last = (first + per_thread).min(codes);
+                    scope.spawn(move || {
+                        (first..last)
+                            .map(|code| self.exact_entry(code))
+                            .collect::<Vec<_>>()
+                    })
+                })
+                .collect();
+            parts
+                .into_iter()
+                .flat_map(|part| {
+                    part.join()
+                        .expect("a table part computes without panicking")
+                })
+                .collect()
+        })
+    }
+
+    fn exact_entry(&self, code: u32) -> CodeEntry {
+        let r = self.reading(f64::from(code));
+        let value = !r.flags.intersects(crate::stats::NOT_A_VALUE);
+        CodeEntry {
+            dbm: r.dbm,
+            watts: if value { r.watts() } else { 0.0 },
+            flags: r.flags,
+        }
     }
 
     /// The precomputed entries, one per ADC code from 0 (empty above 16 bits).

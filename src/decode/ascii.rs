@@ -56,52 +56,27 @@ impl AsciiDecoder {
         stats: &mut DecodeStats,
         out: &mut impl FrameSink,
     ) -> Option<usize> {
-        let single = self.channels.is_none_or(|n| n == 1);
-        if single && self.line.is_empty() && !self.discarding && !self.skip_partial {
-            let b = *bytes;
-            let mut i = 0;
-            let mut taken = 0u64;
-            'lines: while i < b.len() {
-                if let Some((value, used)) = swar_line(b, i) {
-                    out.push_single(value);
-                    taken += 1;
-                    i += used;
-                    continue 'lines;
-                }
-                let start = i;
-                let mut value: u32 = 0;
-                // Nine digits always fit a u32; longer numbers take the general path.
-                while i < b.len() && i - start < 9 {
-                    let d = b[i].wrapping_sub(b'0');
-                    if d > 9 {
-                        break;
-                    }
-                    value = value * 10 + u32::from(d);
-                    i += 1;
-                }
-                if i > start && i < b.len() {
-                    let end = match b[i] {
-                        b'\n' => 1,
-                        b'\r' if b.get(i + 1) == Some(&b'\n') => 2,
-                        _ => 0,
-                    };
-                    if end > 0 {
-                        out.push_single(value);
-                        taken += 1;
-                        i += end;
-                        continue 'lines;
-                    }
-                }
-                i = start;
-                break;
-            }
-            if taken > 0 {
-                self.channels = Some(1);
-                stats.frames += taken;
-            }
-            *bytes = &b[i..];
+        if self.on_plain_path() {
+            let (used, taken) = plain_lines(bytes, 0, |v| out.push_singles(v));
+            self.took_plain(taken, stats);
+            *bytes = &bytes[used..];
         }
         memchr::memchr2(b'\n', b'\r', bytes)
+    }
+
+    /// True when the next line may be a plain one-number line read in place.
+    fn on_plain_path(&self) -> bool {
+        self.channels.is_none_or(|n| n == 1)
+            && self.line.is_empty()
+            && !self.discarding
+            && !self.skip_partial
+    }
+
+    fn took_plain(&mut self, lines: u64, stats: &mut DecodeStats) {
+        if lines > 0 {
+            self.channels = Some(1);
+            stats.frames += lines;
+        }
     }
 
     /// Ends the stream: a last line without a line end still counts.
@@ -152,6 +127,59 @@ impl AsciiDecoder {
             }
             _ => stats.bad_lines += 1,
         }
+    }
+}
+
+/// Takes the plain lines (digits, then LF or CRLF) of `b` from `at` on, handing the values
+/// to `take` in batches, up to the first other line or cut line. Returns where it stopped and the
+/// lines taken.
+#[inline]
+fn plain_lines(b: &[u8], mut at: usize, mut take: impl FnMut(&[u32])) -> (usize, u64) {
+    let mut taken = 0;
+    let mut values = [0u32; BATCH];
+    loop {
+        let mut n = 0;
+        while n < BATCH {
+            let Some((value, used)) = swar_line(b, at).or_else(|| short_line(b, at)) else {
+                break;
+            };
+            values[n] = value;
+            n += 1;
+            at += used;
+        }
+        take(&values[..n]);
+        taken += n as u64;
+        if n < BATCH {
+            return (at, taken);
+        }
+    }
+}
+
+/// Values gathered in a local array before they are handed on, so the hot loops keep
+/// their counters in registers instead of a vector's length in memory.
+const BATCH: usize = 128;
+
+/// Reads `digits + LF` (or CRLF) at `b[at..]` a byte at a time, for lines near the end of
+/// a read and numbers of eight or nine digits.
+fn short_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
+    let mut i = at;
+    let mut value: u32 = 0;
+    // Nine digits always fit a u32; longer numbers take the general path.
+    while i < b.len() && i - at < 9 {
+        let d = b[i].wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        value = value * 10 + u32::from(d);
+        i += 1;
+    }
+    if i == at {
+        return None;
+    }
+    match (b.get(i), b.get(i + 1)) {
+        (Some(b'\n'), _) => Some((value, i + 1 - at)),
+        (Some(b'\r'), Some(b'\n')) => Some((value, i + 2 - at)),
+        _ => None,
     }
 }
 

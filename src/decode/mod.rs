@@ -106,6 +106,28 @@ pub trait FrameSink {
             self.push_frame(&frame);
         }
     }
+
+    /// Takes one sample of one channel per count.
+    #[inline]
+    fn push_singles(&mut self, counts: &[u32]) {
+        for &count in counts {
+            self.push_single(count);
+        }
+    }
+
+    /// Takes one sample as it lies in a binary frame: 1 to [`MAX_CHANNELS`] counts, two
+    /// bytes each, little-endian.
+    #[inline]
+    fn push_le_counts(&mut self, bytes: &[u8]) {
+        let mut frame = Frame {
+            counts: [0; MAX_CHANNELS],
+            channels: (bytes.len() / 2) as u8,
+        };
+        for (slot, pair) in frame.counts.iter_mut().zip(bytes.chunks_exact(2)) {
+            *slot = u32::from(u16::from_le_bytes([pair[0], pair[1]]));
+        }
+        self.push_frame(&frame);
+    }
 }
 
 impl FrameSink for Vec<Frame> {
@@ -139,11 +161,35 @@ impl FlatCounts {
 
 impl FrameSink for FlatCounts {
     #[inline]
+    fn push_singles(&mut self, counts: &[u32]) {
+        if self.channels == 1 {
+            self.counts.extend_from_slice(counts);
+        } else {
+            counts.iter().for_each(|&count| self.push_single(count));
+        }
+    }
+
+    #[inline]
     fn push_single(&mut self, count: u32) {
         if self.channels == 1 {
             self.counts.push(count);
         } else if let Some(frame) = Frame::new(&[count]) {
             self.push_frame(&frame);
+        }
+    }
+
+    #[inline]
+    fn push_le_counts(&mut self, bytes: &[u8]) {
+        if self.counts.is_empty() {
+            self.channels = bytes.len() / 2;
+        }
+        let have = bytes.len() / 2;
+        for pair in bytes.chunks_exact(2).take(self.channels) {
+            self.counts
+                .push(u32::from(u16::from_le_bytes([pair[0], pair[1]])));
+        }
+        for _ in have..self.channels {
+            self.counts.push(0);
         }
     }
 
