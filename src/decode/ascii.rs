@@ -194,10 +194,11 @@ fn swar_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
     // a byte below '0' only reaches the bytes after it, which are not used.
     let not_digit = (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & 0xF0F0_F0F0_F0F0_F0F0;
     let len = (not_digit.trailing_zeros() / 8) as usize;
-    if len == 0 || len >= 8 {
+    if len.wrapping_sub(1) >= 7 {
         return None;
     }
-    let end = match b[at + len] {
+    // The byte after the digits is in the word already.
+    let end = match (word >> (8 * len)) as u8 {
         b'\n' => 1,
         b'\r' if b.get(at + len + 1) == Some(&b'\n') => 2,
         _ => return None,
