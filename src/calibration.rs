@@ -31,6 +31,9 @@ bitflags! {
         const OVER_DETECTOR_MAX = 1 << 4;
         /// Over the rated power at the reference plane (load or attenuator rating).
         const OVER_RATED = 1 << 5;
+        /// A count above the ADC's full scale, which the ADC cannot give: a damaged sample
+        /// or a profile with the wrong number of bits. Never calibrated.
+        const OVER_FULL_SCALE = 1 << 6;
         /// The source was disconnected or silent for some or all of the interval.
         const GAP = 1 << 8;
         /// The source came back after a gap in this interval.
@@ -43,13 +46,14 @@ bitflags! {
 impl Flags {
     /// Short names, for logs and status lines.
     pub fn names(self) -> Vec<&'static str> {
-        const NAMES: [(Flags, &str); 9] = [
+        const NAMES: [(Flags, &str); 10] = [
             (Flags::ADC_CLIP, "clip"),
             (Flags::BELOW_SPAN, "below"),
             (Flags::ABOVE_SPAN, "above"),
             (Flags::FREQ_OUTSIDE, "freq-outside"),
             (Flags::OVER_DETECTOR_MAX, "over-detector-max"),
             (Flags::OVER_RATED, "over-rated"),
+            (Flags::OVER_FULL_SCALE, "over-full-scale"),
             (Flags::GAP, "gap"),
             (Flags::RECONNECT, "reconnect"),
             (Flags::LOST, "lost"),
@@ -308,6 +312,15 @@ impl Calibration {
     /// Calibrates one (possibly fractional) count through the exact model.
     pub fn reading(&self, counts: f64) -> Reading {
         let volts = self.adc.volts(counts);
+        if counts > self.adc.full_scale() {
+            return Reading {
+                counts,
+                volts,
+                detector_dbm: f64::NAN,
+                dbm: f64::NAN,
+                flags: self.fixed_flags | Flags::OVER_FULL_SCALE,
+            };
+        }
         let mut flags = self.fixed_flags | self.range_flags(volts);
         if self.adc.is_clipped(counts) {
             flags |= Flags::ADC_CLIP;

@@ -10,7 +10,9 @@ use crate::calibration::{Flags, Reading};
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
 /// Readings with these flags are bounds, not values, and are left out of means and extremes.
-pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN.union(Flags::ADC_CLIP);
+pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
+    .union(Flags::ADC_CLIP)
+    .union(Flags::OVER_FULL_SCALE);
 
 /// Count, power-domain sum, extremes and flags of a set of readings.
 #[derive(Debug, Clone, Copy, PartialEq)]

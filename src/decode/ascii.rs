@@ -10,6 +10,12 @@ pub struct AsciiDecoder {
     discarding: bool,
     skip_partial: bool,
     channels: Option<usize>,
+    /// True after a bad or over-long line: the stream may be noise (a wrong baud rate, a
+    /// loose wire), where a short run of digits between two line ends happens by chance.
+    suspect: bool,
+    /// The first good line after a bad one, held until the next line shows the stream is
+    /// sound again.
+    held: Option<Frame>,
 }
 
 impl AsciiDecoder {
@@ -27,6 +33,8 @@ impl AsciiDecoder {
         self.line.clear();
         self.discarding = false;
         self.skip_partial = true;
+        self.suspect = false;
+        self.held = None;
     }
 
     /// Decodes `bytes`, appending samples to `out`.
@@ -67,6 +75,7 @@ impl AsciiDecoder {
     /// True when the next line may be a plain one-number line read in place.
     fn on_plain_path(&self) -> bool {
         self.channels.is_none_or(|n| n == 1)
+            && !self.suspect
             && self.line.is_empty()
             && !self.discarding
             && !self.skip_partial
@@ -84,6 +93,10 @@ impl AsciiDecoder {
         if !self.line.is_empty() || self.discarding {
             let line = std::mem::take(&mut self.line);
             self.end_line(&line, stats, out);
+        }
+        // The stream ended cleanly after the held line: nothing says it is noise.
+        if let Some(frame) = self.held.take() {
+            self.emit(&frame, stats, out);
         }
     }
 
@@ -105,6 +118,7 @@ impl AsciiDecoder {
         } else if self.discarding {
             self.discarding = false;
             stats.long_lines += 1;
+            self.distrust(stats);
         } else {
             self.finish_line(line, stats, out);
         }
@@ -119,14 +133,39 @@ impl AsciiDecoder {
             stats.comments += 1;
             return;
         }
+        let expected = self.channels.or(self.held.map(|f| f.channels()));
         match parse_counts(line) {
-            Some(frame) if self.channels.is_none_or(|n| n == frame.channels()) => {
-                self.channels = Some(frame.channels());
-                stats.frames += 1;
-                out.push_frame(&frame);
+            Some(frame) if expected.is_none_or(|n| n == frame.channels()) => {
+                if !self.suspect {
+                    self.emit(&frame, stats, out);
+                } else if let Some(first) = self.held.take() {
+                    self.suspect = false;
+                    self.emit(&first, stats, out);
+                    self.emit(&frame, stats, out);
+                } else {
+                    self.held = Some(frame);
+                }
             }
-            _ => stats.bad_lines += 1,
+            _ => {
+                stats.bad_lines += 1;
+                self.distrust(stats);
+            }
         }
+    }
+
+    fn emit(&mut self, frame: &Frame, stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        self.channels = Some(frame.channels());
+        stats.frames += 1;
+        out.push_frame(frame);
+    }
+
+    /// After a bad line, a lone good-looking line is as likely chance as data: it is
+    /// counted bad too, and the next good line is held.
+    fn distrust(&mut self, stats: &mut DecodeStats) {
+        if self.held.take().is_some() {
+            stats.bad_lines += 1;
+        }
+        self.suspect = true;
     }
 }
 
@@ -303,7 +342,32 @@ mod tests {
             assert!(d.line.capacity() <= MAX_LINE.max(256) * 2);
         }
         d.feed(b"\n8\n", &mut stats, &mut out);
-        assert_eq!(counts(&out), [[7], [8]]);
+        assert_eq!(
+            counts(&out),
+            [[7]],
+            "the line after a discarded one is held"
+        );
+        d.feed(b"9\n", &mut stats, &mut out);
+        assert_eq!(counts(&out), [[7], [8], [9]]);
         assert_eq!(stats.long_lines, 1);
+    }
+
+    #[test]
+    fn a_lone_number_between_bad_lines_is_not_read() {
+        let mut d = AsciiDecoder::new();
+        let mut stats = DecodeStats::default();
+        let mut out = Vec::new();
+        d.feed(
+            b"100
+\x93\x01z\n42\n\xfe\xff\n\n# note\n200\n201\n",
+            &mut stats,
+            &mut out,
+        );
+        d.finish(&mut stats, &mut out);
+        assert_eq!(counts(&out), [[100], [200], [201]]);
+        // The two junk lines and the lone 42 between them; the blank line and the comment
+        // neither break nor confirm a run.
+        assert_eq!(stats.bad_lines, 3);
+        assert_eq!(stats.comments, 1);
     }
 }

@@ -84,6 +84,7 @@ pub const TREND_BUCKETS: usize = 240;
 pub const WARNING_HOLD_S: f64 = 1.5;
 /// Flags that raise the warning banner.
 pub const ALARMS: Flags = Flags::ADC_CLIP
+    .union(Flags::OVER_FULL_SCALE)
     .union(Flags::ABOVE_SPAN)
     .union(Flags::OVER_DETECTOR_MAX)
     .union(Flags::OVER_RATED);
@@ -321,7 +322,10 @@ impl App {
         let reading = self.cal.reading_code(code);
         self.now = self.now.max(t);
         self.last_sample_t = Some(t);
-        self.last = Some(reading);
+        if !reading.flags.contains(Flags::OVER_FULL_SCALE) {
+            // A damaged sample raises its warning but is neither shown nor averaged.
+            self.last = Some(reading);
+        }
         let alarms = reading.flags & ALARMS;
         for flag in alarms.iter() {
             match self.warnings.iter_mut().find(|(f, _)| *f == flag) {
@@ -335,7 +339,7 @@ impl App {
         {
             // The level has left what the average can describe; start it afresh.
             self.averager.clear();
-        } else {
+        } else if !reading.flags.contains(Flags::OVER_FULL_SCALE) {
             self.averager.push(t, &reading);
         }
         self.holds.add(&reading);

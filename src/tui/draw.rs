@@ -100,6 +100,7 @@ fn warning_words(flags: Flags) -> Vec<&'static str> {
         (Flags::OVER_RATED, "OVER LOAD/ATTENUATOR RATING"),
         (Flags::OVER_DETECTOR_MAX, "OVER DETECTOR SAFE INPUT"),
         (Flags::ADC_CLIP, "ADC CLIP"),
+        (Flags::OVER_FULL_SCALE, "COUNTS OVER ADC FULL SCALE"),
         (Flags::ABOVE_SPAN, "ABOVE CALIBRATED SPAN"),
     ]
     .iter()

@@ -1,0 +1,20 @@
+#!/usr/bin/env bash
+# Runs every fuzz target in turn for SECONDS each (default 600), then shrinks each corpus
+# to the inputs that add coverage. Needs cargo-fuzz and a nightly toolchain (or
+# RUSTC_BOOTSTRAP=1 on stable). Crashes land in fuzz/artifacts/TARGET/.
+# Usage: fuzz/run.sh [SECONDS] [TARGET...]
+set -uo pipefail
+cd "$(dirname "$0")"
+secs=${1:-600}
+shift || true
+targets=("$@")
+[ ${#targets[@]} -eq 0 ] && targets=(decode_ascii decode_binary profile quantity log_reader)
+toolchain=+nightly
+rustup toolchain list | grep -q nightly || { toolchain=; export RUSTC_BOOTSTRAP=1; }
+for t in "${targets[@]}"; do
+    mkdir -p "corpus/$t"
+    cargo $toolchain fuzz run -O "$t" "corpus/$t" -- -max_total_time="$secs" -max_len=8192 \
+        -print_final_stats=1 > "logs/$t.log" 2>&1
+    echo "$t: exit $?; $(grep -E 'stat::number_of_executed_units|stat::peak_rss_mb' "logs/$t.log" | tr '\n' ' ')"
+    cargo $toolchain fuzz cmin -O "$t" "corpus/$t" > /dev/null 2>&1
+done
