@@ -56,6 +56,14 @@ pub fn run(app: App, session: Session) -> Result<()> {
     outcome
 }
 
+/// Test-only switch: set to N, the screen panics after its Nth frame, so a test can show
+/// that a panic leaves the terminal restored. Not a user setting; not in the help.
+const TEST_PANIC_VAR: &str = "DBTRAIL_TEST_PANIC_AFTER_FRAMES";
+
+fn test_panic_frame() -> Option<u64> {
+    std::env::var(TEST_PANIC_VAR).ok()?.parse().ok()
+}
+
 /// An open log and when it was last made durable.
 struct Log {
     recorder: Recorder<File>,
@@ -75,6 +83,8 @@ async fn event_loop(
     let mut terminate = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate())?;
     let mut hangup = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::hangup())?;
     let mut log: Option<Log> = None;
+    let panic_at = test_panic_frame();
+    let mut frames = 0u64;
     if let Some(path) = session.log.clone() {
         start_log(&mut app, &mut log, &session, &path);
     }
@@ -87,6 +97,10 @@ async fn event_loop(
                 commands.extend(app.update(AppEvent::Tick { now: session.source.now() }));
                 if let Err(e) = terminal.draw(|frame| draw::draw(&app, frame)) {
                     break Err(e).context("cannot draw the screen");
+                }
+                frames += 1;
+                if panic_at == Some(frames) {
+                    panic!("test-only panic after frame {frames} ({TEST_PANIC_VAR} is set)");
                 }
                 commands
             }

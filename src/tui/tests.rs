@@ -239,3 +239,29 @@ fn a_disconnected_source_is_shown_as_such() {
     assert!(lines[1].contains("SOURCE DISCONNECTED"), "{lines:#?}");
     assert!(has(&lines, "DISCONNECTED"));
 }
+
+#[test]
+fn a_silent_source_shows_the_time_since_its_last_sample() {
+    let mut app = app();
+    sample(&mut app, 1.0, 1500);
+    app.update(AppEvent::Tick { now: 4.25 });
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "3.2 s ago"), "{lines:#?}");
+    app.update(AppEvent::Tick { now: 11.0 });
+    assert!(has(&screen(&app, 100, 30), "10.0 s ago"));
+}
+
+// Source: common practice: a 12-bit ADC (the hand profile's) gives codes 0 to 4095 only.
+#[test]
+fn a_count_over_full_scale_warns_and_leaves_the_reading_alone() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    let commands = sample(&mut app, 0.1, 5000);
+    assert_eq!(commands, [Command::Bell]);
+    assert_eq!(
+        app.shown(),
+        Shown::Level(10.0),
+        "the damaged sample is not averaged"
+    );
+    assert!(has(&screen(&app, 100, 30), "COUNTS OVER ADC FULL SCALE"));
+}
