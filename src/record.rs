@@ -414,7 +414,8 @@ fn context_lines(cal: &Calibration, c: &RunContext) -> String {
         "# {tool} record\n# profile: {profile}; sha256 {hash}\n\
          # frequency: {freq}; frequency correction {corr:+.2} dB; offset {offset:+.2} dB\n\
          # started: {started}\n# source: {source}\n# rows: {every}; power averaged over watts; \
-         flags: clip below above freq-outside over-detector-max over-rated gap reconnect lost\n",
+         flags: {legend}\n",
+        legend = crate::calibration::Flags::all().names().join(" "),
         tool = c.tool,
         profile = c.profile,
         hash = c.profile_hash,

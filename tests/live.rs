@@ -2,121 +2,14 @@
 //! serial port, an unplug and replug, a signal mid-interval, and a replayed capture checked
 //! against the profile's maths done by hand.
 
+mod common;
+
 use std::io::Write;
-use std::path::{Path, PathBuf};
-use std::process::{Child, Command, Stdio};
-use std::time::{Duration, Instant};
+use std::process::{Command, Stdio};
+use std::time::Duration;
 
-use serialport::{SerialPort, TTYPort};
-
-fn bin() -> Command {
-    let mut c = Command::new(env!("CARGO_BIN_EXE_dbtrail"));
-    c.current_dir(env!("CARGO_MANIFEST_DIR"));
-    c
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("dbtrail-live-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
-
-/// The hand-worked log-amp shared with the screen's tests (see the file for its maths).
-const HAND_PROFILE: &str = include_str!("profiles/good/hand-logamp.toml");
-
-/// Source: worked example by hand — counts × 1 mV / 25 mV/dB − 80 dBm, + 1 dB correction
-/// at 100 MHz (halfway from 10 MHz to 1 GHz in log-frequency), + 30 dB attenuator.
-fn hand_dbm(counts: f64) -> f64 {
-    counts * 1e-3 / 0.025 - 80.0 + 1.0 + 30.0
-}
-
-fn write_profile(dir: &Path) -> PathBuf {
-    let path = dir.join("hand.toml");
-    std::fs::write(&path, HAND_PROFILE).unwrap();
-    path
-}
-
-/// Data rows of a recording: the lines after the `#` context and the column header.
-fn rows(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
-    let text = std::fs::read_to_string(path).unwrap();
-    let mut reader = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let header = reader.headers().unwrap().iter().map(String::from).collect();
-    let rows = reader
-        .records()
-        .map(|r| r.unwrap().iter().map(String::from).collect())
-        .collect();
-    (header, rows)
-}
-
-fn column(header: &[String], name: &str) -> usize {
-    header
-        .iter()
-        .position(|h| h == name)
-        .unwrap_or_else(|| panic!("no column {name} in {header:?}"))
-}
-
-fn wait(mut child: Child, limit: Duration) -> std::process::ExitStatus {
-    let started = Instant::now();
-    loop {
-        if let Some(status) = child.try_wait().unwrap() {
-            return status;
-        }
-        if started.elapsed() > limit {
-            let _ = child.kill();
-            panic!("the recorder did not finish within {limit:?}");
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-}
-
-static SPAWNING: std::sync::Mutex<()> = std::sync::Mutex::new(());
-
-/// Starts a child while no pseudo-terminal is half set up in another test thread.
-fn spawn(command: &mut Command) -> Child {
-    let _guard = SPAWNING.lock().unwrap_or_else(|e| e.into_inner());
-    command.spawn().unwrap()
-}
-
-/// Runs a child to its end, like `spawn`.
-fn output(command: &mut Command) -> std::process::Output {
-    let child = spawn(command.stdout(Stdio::piped()).stderr(Stdio::piped()));
-    child.wait_with_output().unwrap()
-}
-
-/// A pseudo-terminal pair whose fds a spawned recorder does not inherit: an inherited
-/// master would keep the "device" alive after the test unplugs it.
-fn pty_pair() -> (TTYPort, TTYPort) {
-    use nix::fcntl::{fcntl, FcntlArg, FdFlag};
-    use std::os::fd::AsRawFd;
-    // Held so no other test thread spawns a child between opening and marking the fds.
-    let _guard = SPAWNING.lock().unwrap_or_else(|e| e.into_inner());
-    let (master, slave) = TTYPort::pair().unwrap();
-    for fd in [master.as_raw_fd(), slave.as_raw_fd()] {
-        fcntl(fd, FcntlArg::F_SETFD(FdFlag::FD_CLOEXEC)).unwrap();
-    }
-    let mut master = master;
-    // Writes wait for a slow or late reader instead of failing at once.
-    master.set_timeout(Duration::from_secs(10)).unwrap();
-    (master, slave)
-}
-
-fn write_lines(master: &mut TTYPort, counts: impl Iterator<Item = u32>) {
-    let mut batch = Vec::new();
-    for (i, c) in counts.enumerate() {
-        batch.extend_from_slice(format!("{c}\n").as_bytes());
-        if i % 50 == 49 {
-            master.write_all(&batch).unwrap();
-            batch.clear();
-            std::thread::sleep(Duration::from_millis(5));
-        }
-    }
-    master.write_all(&batch).unwrap();
-    master.flush().unwrap();
-}
+use common::*;
+use serialport::SerialPort;
 
 #[test]
 fn pty_to_csv_keeps_every_sample_and_its_value() {
