@@ -90,7 +90,12 @@ struct Columns {
     flags: usize,
 }
 
-fn columns(header: &csv::StringRecord, channel: usize, origin: &str) -> Result<Columns, LogError> {
+fn columns(
+    header: &csv::StringRecord,
+    line: usize,
+    channel: usize,
+    origin: &str,
+) -> Result<Columns, LogError> {
     let suffix = if channel <= 1 {
         String::new()
     } else {
@@ -99,7 +104,7 @@ fn columns(header: &csv::StringRecord, channel: usize, origin: &str) -> Result<C
     let find = |name: &str| header.iter().position(|h| h == format!("{name}{suffix}"));
     let not_a_log = |why: String| LogError::NotALog {
         origin: origin.into(),
-        why,
+        why: format!("the column header (line {line}) has {why}"),
     };
     let time = header
         .iter()
@@ -108,7 +113,7 @@ fn columns(header: &csv::StringRecord, channel: usize, origin: &str) -> Result<C
     let per_sample = find("dbm").is_some() && find("mean_dbm").is_none();
     let mean = find(if per_sample { "dbm" } else { "mean_dbm" }).ok_or_else(|| {
         not_a_log(if channel > 1 {
-            format!("no channel {channel} in it")
+            format!("no columns for channel {channel}")
         } else {
             "no `mean_dbm` or `dbm` column".into()
         })
@@ -160,7 +165,8 @@ pub fn read_log(bytes: &[u8], origin: &str, channel: usize) -> Result<Log, LogEr
             )
         })?
         .clone();
-    let cols = columns(&header, channel, origin)?;
+    // The csv reader skips the `#` lines without counting them.
+    let cols = columns(&header, context.len() + 1, channel, origin)?;
     let truncated_at_end = !text.ends_with('\n');
     let mut rows = Vec::new();
     for record in reader.records() {

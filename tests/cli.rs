@@ -210,7 +210,40 @@ const BAD_POINTS: &[(&str, &str, &str)] = &[
         "table",
         "counts_over_full_scale.csv:4: counts: 5000 is out of range",
     ),
+    (
+        "no_header.csv",
+        "table",
+        "no_header.csv:1: (header): no `applied` column; the first line must be a header",
+    ),
+    (
+        "truncated.csv",
+        "table",
+        "truncated.csv:4: counts: `` is not a finite",
+    ),
 ];
+
+// Source: worked example — the same log-amp line as above with its columns swapped (and
+// an extra column): a points file is read by its header names, not by position.
+#[test]
+fn points_columns_are_found_by_name_in_any_order() {
+    let dir = scratch("reordered");
+    let points = dir.join("reordered.csv");
+    let mut csv = String::from("note,counts,applied\n");
+    for dbm in [-60, -45, -30, -15, 0] {
+        csv.push_str(&format!("bench,{},{dbm}dBm\n", 25.0 * f64::from(dbm + 80)));
+    }
+    std::fs::write(&points, csv).unwrap();
+    let out_path = dir.join("line.toml");
+    let out = dbtrail(&fit_args(
+        points.to_str().unwrap(),
+        "log",
+        out_path.to_str().unwrap(),
+    ));
+    assert!(out.status.success(), "{}", stderr(&out));
+    let profile = dbtrail::profile::load_profile(&out_path).unwrap();
+    assert!((profile.raw.model.slope.unwrap() - 0.025).abs() < 1e-12);
+    assert!((profile.raw.model.intercept.unwrap() + 80.0).abs() < 1e-9);
+}
 
 #[test]
 fn malformed_points_files_name_the_line_and_exit_2() {
@@ -304,4 +337,75 @@ fn diode_fit_of_log_amp_points_is_refused() {
         stderr(&out)
     );
     assert!(!out_path.exists());
+}
+
+/// (arguments, what the message must say): each names the option, the bad text and what
+/// would be accepted, and exits 2 before anything is opened or written.
+const BAD_QUANTITIES: &[(&[&str], &str)] = &[
+    (
+        &["record", "--demo", "--freq", "10m"],
+        "'--freq <FREQ>': unknown unit `m` in `10m`; write M or MHz",
+    ),
+    (
+        &["record", "--demo", "--freq", "-5MHz"],
+        "`-5MHz` must be greater than zero",
+    ),
+    (
+        &["watch", "--demo", "--freq", "nan"],
+        "`nan` is not a finite number",
+    ),
+    (
+        &["record", "--demo", "--offset", "3dBx"],
+        "'--offset <OFFSET>': unknown unit `dBx`",
+    ),
+    (
+        &["record", "--demo", "--offset", "inf"],
+        "`inf` is not a finite number",
+    ),
+    (
+        &["record", "--demo", "--every", "-1s"],
+        "a duration cannot be negative",
+    ),
+    (
+        &["record", "--demo", "--duration", "forever"],
+        "expected a duration such as 90s",
+    ),
+    (
+        &["record", "--demo", "--rate", "0"],
+        "'--rate <RATE>': `0` must be greater than zero",
+    ),
+    (
+        &["report", "x.csv", "--from", "1q"],
+        "'--from <FROM>': unknown unit `q`",
+    ),
+    (
+        &["check", "profiles/demo-diode.toml", "--counts", "abc"],
+        "`abc` is not a number of ADC counts",
+    ),
+    (&["convert", "12", "parsecs"], "unknown unit"),
+    (&["convert", "--ohms", "-50", "1mW"], "--ohms"),
+];
+
+#[test]
+fn bad_quantities_on_the_command_line_are_named_and_exit_2() {
+    for (args, want) in BAD_QUANTITIES {
+        let out = dbtrail(args);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {}", stderr(&out));
+        assert!(
+            stderr(&out).contains(want),
+            "{args:?}: `{}` lacks `{want}`",
+            stderr(&out)
+        );
+        assert!(!stderr(&out).contains("panicked"), "{args:?}");
+    }
+}
+
+#[test]
+fn a_unit_written_apart_from_its_number_is_accepted() {
+    // Source: common practice, P = Vrms²/R: −3 dBm is 0.5012 mW, and √(0.5012 mW × 50 Ω) =
+    // 158.30 mV rms.
+    let out = dbtrail(&["convert", "-3", "dBm", "--json"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let json: serde_json::Value = serde_json::from_str(&stdout(&out)).unwrap();
+    assert!((json["vrms"].as_f64().unwrap() - 0.15830).abs() < 1e-5);
 }

@@ -233,7 +233,15 @@ fn plots_are_valid_svg_and_png_of_the_stated_size() {
 fn bad_logs_get_a_clear_message_and_exit_2() {
     let dir = scratch("bad");
     let good = log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.0), "")]);
-    let cases: [(&str, String, &str); 5] = [
+    let cases: [(&str, String, &str); 6] = [
+        (
+            "no_header.csv",
+            good.replace(
+                "time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags\n",
+                "",
+            ),
+            "the column header (line 5) has no `time_s` column",
+        ),
         (
             "truncated.csv",
             good.trim_end()
@@ -280,6 +288,36 @@ fn bad_logs_get_a_clear_message_and_exit_2() {
     let out = dbtrail(&["report", raw.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("not UTF-8"));
+}
+
+// Source: worked example — the same three rows with the columns in another order give
+// the same report: a log is read by its header names.
+#[test]
+fn log_columns_are_found_by_name_in_any_order() {
+    let rows = [
+        (0.0, Some(1.0), ""),
+        (1.0, Some(3.0), ""),
+        (2.0, None, "gap"),
+    ];
+    let text = log_text(1.0, &rows);
+    let (context, table) = text.split_at(text.find("time_s").unwrap());
+    let order = [7, 3, 0, 2, 1, 4, 5, 6];
+    let reordered: String = table
+        .lines()
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            order.map(|i| cells[i]).join(",") + "\n"
+        })
+        .collect();
+    let options = ReportOptions::default();
+    let plain = analysed(&text, &options);
+    let swapped = analysed(&format!("{context}{reordered}"), &options);
+    assert_eq!(
+        serde_json::to_value(&plain).unwrap(),
+        serde_json::to_value(&swapped).unwrap()
+    );
+    // Mean over watts of 1 dBm and 3 dBm: 10·log10((1.2589 + 1.9953)/2) = 2.1141 dBm.
+    assert!((plain.mean_dbm - 2.1141).abs() < 1e-3, "{}", plain.mean_dbm);
 }
 
 #[test]

@@ -5,17 +5,17 @@ use std::path::PathBuf;
 use dbtrail::calibration::Calibration;
 use dbtrail::profile::load_profile;
 
-use super::{emit, parse_frequency_arg, summary, BadInput, Failure};
+use super::{emit, parse_counts_arg, parse_frequency_arg, summary, BadInput, Failure};
 
 #[derive(clap::Args)]
 pub struct Args {
     /// The profile file (TOML)
     profile: PathBuf,
     /// Frequency in use, e.g. 145.5MHz (default: the profile's reference frequency)
-    #[arg(long, value_parser = parse_frequency_arg)]
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_frequency_arg)]
     freq: Option<f64>,
     /// Also show the reading for these ADC counts (fractional averages allowed)
-    #[arg(long, num_args = 1.., value_name = "COUNTS")]
+    #[arg(long, num_args = 1.., value_name = "COUNTS", allow_hyphen_values = true, value_parser = parse_counts_arg)]
     counts: Vec<f64>,
 }
 

@@ -6,9 +6,11 @@ use super::{emit, parse_ohms, BadInput, Failure};
 
 #[derive(clap::Args)]
 pub struct Args {
-    /// The level, e.g. -10dBm, 2.5mW, 350mVpp, "0.5 Vrms"
+    /// The level, e.g. -10dBm, 2.5mW, 350mVpp, 0.5 Vrms (number and unit may be apart)
     #[arg(allow_hyphen_values = true)]
     quantity: String,
+    /// The unit, when written apart from the number (`convert -3 dBm`)
+    unit: Option<String>,
     /// Reference impedance in ohms
     #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms, allow_hyphen_values = true)]
     ohms: f64,
@@ -18,7 +20,11 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let level = parse_level(&args.quantity, false).bad_input()?;
+    let quantity = match &args.unit {
+        Some(unit) => format!("{} {unit}", args.quantity),
+        None => args.quantity.clone(),
+    };
+    let level = parse_level(&quantity, false).bad_input()?;
     let power = level.power(args.ohms);
     let forms = [
         ("vrms", VoltageForm::Rms),
@@ -38,7 +44,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         }
         return emit(&format!("{object}\n"));
     }
-    let mut text = format!("{} at {} Ω\n", args.quantity.trim(), args.ohms);
+    let mut text = format!("{} at {} Ω\n", quantity.trim(), args.ohms);
     text.push_str(&format!("  dBm   {:>12.3}\n", power.dbm()));
     text.push_str(&format!("  dBW   {:>12.3}\n", power.dbw()));
     text.push_str(&format!(

@@ -152,6 +152,16 @@ pub fn parse_duration_arg(text: &str) -> Result<std::time::Duration, String> {
     dbtrail::units::parse_duration(text).map_err(|e| e.to_string())
 }
 
+/// clap adapter for ADC counts: a finite number, fractional for an average.
+pub fn parse_counts_arg(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok(v),
+        _ => Err(format!(
+            "`{text}` is not a number of ADC counts; give counts such as 1234 or 1234.5"
+        )),
+    }
+}
+
 /// clap adapter for a frequency such as `145.5MHz`.
 pub fn parse_frequency_arg(text: &str) -> Result<f64, String> {
     dbtrail::units::parse_frequency(text).map_err(|e| e.to_string())

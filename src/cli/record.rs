@@ -26,10 +26,10 @@ pub struct Args {
     #[command(flatten)]
     reading: ReadingArgs,
     /// Interval per row, e.g. 1s, 10s, 1m; 0 writes one row per sample
-    #[arg(long, default_value = "1s", value_parser = parse_duration_arg)]
+    #[arg(long, default_value = "1s", allow_hyphen_values = true, value_parser = parse_duration_arg)]
     every: Duration,
     /// Stop after this much source time, e.g. 90s, 2h, 1h30m
-    #[arg(long, value_parser = parse_duration_arg)]
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
     duration: Option<Duration>,
     /// Output CSV file, or - for standard output
     #[arg(long, default_value = "-")]

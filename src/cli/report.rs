@@ -27,7 +27,7 @@ pub struct Args {
     #[arg(long, default_value = "0.1dB", value_parser = super::parse_db_arg)]
     settle_tol: f64,
     /// The final window whose mean is the settled level (default 10m, or the last fifth of a shorter log)
-    #[arg(long, value_parser = parse_duration_arg)]
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
     settle_window: Option<std::time::Duration>,
     /// Start of the span to report on, time since the run started (e.g. 30m)
     #[arg(long, value_parser = parse_seconds)]

@@ -37,7 +37,7 @@ pub struct ReadingArgs {
     #[arg(long)]
     pub profile: Option<PathBuf>,
     /// Frequency in use, e.g. 145.5MHz (default: the demo scenario's, else the profile's)
-    #[arg(long, value_parser = super::parse_frequency_arg)]
+    #[arg(long, allow_hyphen_values = true, value_parser = super::parse_frequency_arg)]
     pub freq: Option<f64>,
     /// Extra offset in dB added to the profile's, e.g. 10dB for another attenuator
     #[arg(long, default_value = "0dB", value_parser = super::parse_db_arg, allow_hyphen_values = true)]
