@@ -69,3 +69,61 @@ fn counts_above_full_scale_are_flagged_and_never_calibrated() {
     let one = cal.reading(2000.0).dbm;
     assert!((stats.mean_dbm().unwrap() - one).abs() < 1e-9);
 }
+
+mod short_fuzz {
+    //! Short property-test versions of the fuzz campaigns (fuzz/), run with the suite.
+    use dbtrail::report::{analyse, read_log, ReportOptions};
+    use dbtrail::units::{parse_db, parse_duration, parse_frequency, parse_level};
+    use proptest::prelude::*;
+
+    const LOG: &str = include_str!("../fuzz/seeds/log_reader/soak.csv");
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(2000))]
+
+        #[test]
+        fn quantity_parsers_never_panic_and_accept_only_finite_values(text in "\\PC{0,24}") {
+            let _ = parse_level(&text, true);
+            if let Ok(hz) = parse_frequency(&text) {
+                prop_assert!(hz.is_finite() && hz > 0.0, "{text:?} -> {hz}");
+            }
+            if let Ok(db) = parse_db(&text) {
+                prop_assert!(db.is_finite(), "{text:?} -> {db}");
+            }
+            let _ = parse_duration(&text);
+        }
+
+        // Source: SI prefixes (k = 1e3, M = 1e6, G = 1e9), an open standard.
+        #[test]
+        fn frequencies_read_back_what_was_written(mantissa in 1u32..100_000, unit in prop::sample::select(vec![("Hz", 1.0), ("kHz", 1e3), ("MHz", 1e6), ("GHz", 1e9), (" MHz", 1e6), ("k", 1e3)])) {
+            let value = f64::from(mantissa) / 100.0;
+            let text = format!("{value}{}", unit.0);
+            let hz = parse_frequency(&text).unwrap();
+            prop_assert!((hz - value * unit.1).abs() <= 1e-12 * hz, "{text} -> {hz}");
+        }
+
+        #[test]
+        fn a_mangled_log_is_read_or_refused_never_a_panic(edits in prop::collection::vec((any::<prop::sample::Index>(), any::<u8>(), 0u8..3), 1..6)) {
+            let mut bytes = LOG.as_bytes().to_vec();
+            for (at, byte, how) in edits {
+                let i = at.index(bytes.len().max(1));
+                match how {
+                    0 if !bytes.is_empty() => { bytes.remove(i.min(bytes.len() - 1)); }
+                    1 => bytes.insert(i.min(bytes.len()), byte),
+                    _ if !bytes.is_empty() => { let j = i.min(bytes.len() - 1); bytes[j] = byte; }
+                    _ => {}
+                }
+            }
+            if let Ok(log) = read_log(&bytes, "mangled.csv", 0) {
+                let _ = analyse(&log, "mangled.csv", &ReportOptions::default());
+            }
+        }
+
+        #[test]
+        fn any_bytes_as_a_log_never_panic(bytes in prop::collection::vec(any::<u8>(), 0..2000)) {
+            if let Ok(log) = read_log(&bytes, "junk.csv", 0) {
+                let _ = analyse(&log, "junk.csv", &ReportOptions::default());
+            }
+        }
+    }
+}

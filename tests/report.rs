@@ -365,3 +365,24 @@ fn json_has_exactly_the_documented_keys() {
         ]
     );
 }
+
+#[test]
+fn an_existing_plot_is_never_replaced_without_force() {
+    let dir = scratch("plot-exists");
+    let log = dir.join("run.csv");
+    std::fs::write(
+        &log,
+        log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.5), "")]),
+    )
+    .unwrap();
+    let plot = dir.join("run.svg");
+    std::fs::write(&plot, "keep me\n").unwrap();
+    let (log_arg, plot_arg) = (log.to_str().unwrap(), plot.to_str().unwrap());
+    let refused = dbtrail(&["report", log_arg, "--plot", plot_arg]);
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("--force"));
+    assert_eq!(std::fs::read_to_string(&plot).unwrap(), "keep me\n");
+    let forced = dbtrail(&["report", log_arg, "--plot", plot_arg, "--force"]);
+    assert!(forced.status.success());
+    assert!(std::fs::read_to_string(&plot).unwrap().starts_with("<svg"));
+}

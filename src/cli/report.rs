@@ -20,6 +20,9 @@ pub struct Args {
     /// Draw the run to this file, SVG or PNG by its extension
     #[arg(long)]
     plot: Option<PathBuf>,
+    /// Replace an existing plot file
+    #[arg(long)]
+    force: bool,
     /// Size of the plot in pixels, WIDTHxHEIGHT
     #[arg(long, default_value = "1200x700", value_parser = parse_size)]
     size: (u32, u32),
@@ -59,6 +62,13 @@ fn parse_size(text: &str) -> Result<(u32, u32), String> {
 }
 
 pub fn run(args: Args) -> Result<(), Failure> {
+    if let Some(path) = args.plot.as_ref().filter(|p| p.exists() && !args.force) {
+        return Err(anyhow::anyhow!(
+            "{} already exists; choose another --plot or add --force to replace it",
+            path.display()
+        ))
+        .bad_input();
+    }
     let origin = args.log.display().to_string();
     let bytes = std::fs::read(&args.log)
         .with_context(|| format!("cannot read {origin}"))

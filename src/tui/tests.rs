@@ -265,3 +265,26 @@ fn a_count_over_full_scale_warns_and_leaves_the_reading_alone() {
     );
     assert!(has(&screen(&app, 100, 30), "COUNTS OVER ADC FULL SCALE"));
 }
+
+#[test]
+fn bad_offsets_and_averaging_are_refused_at_the_prompt_and_nothing_changes() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    for (keys_in, want) in [
+        ("o3dBx\n", "unknown unit `dBx`"),
+        ("oinf\n", "not a finite number"),
+        ("a-2s\n", "a duration cannot be negative"),
+        ("a\u{1F4A5}\n", "does not start with a number"),
+    ] {
+        keys(&mut app, keys_in);
+        let lines = screen(&app, 100, 30);
+        assert!(has(&lines, want), "{keys_in:?}: {lines:#?}");
+        keys(&mut app, "\x1b");
+        assert_eq!(
+            app.cal.offset_db(),
+            30.0,
+            "{keys_in:?}: the offset is unchanged"
+        );
+        assert_eq!(app.shown(), Shown::Level(10.0), "{keys_in:?}");
+    }
+}
