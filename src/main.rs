@@ -1,4 +1,5 @@
 //! The `dbtrail` command: a thin layer of command-line parsing over the library.
+#![forbid(unsafe_code)]
 
 mod cli;
 mod source;
