@@ -147,3 +147,54 @@ proptest! {
         prop_assert_eq!(decode_chunks(format, &single).0, whole);
     }
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(200))]
+
+    // Lines near the length limit, junk and numbers mixed: wherever the reads are cut, the
+    // same samples come out (a case the fuzz campaign found: a line just over the limit
+    // was read whole in one read and discarded when cut).
+    #[test]
+    fn lines_near_the_length_limit_decode_the_same_however_cut(
+        parts in proptest::collection::vec(0u8..4, 1..8),
+        extra in 0usize..4,
+        cut in any::<prop::sample::Index>(),
+    ) {
+        let limit = dbtrail::decode::MAX_LINE;
+        let mut bytes = Vec::new();
+        for (i, kind) in parts.iter().enumerate() {
+            match kind {
+                0 => bytes.extend(std::iter::repeat_n(b'#', limit - 2 + extra)),
+                1 => bytes.extend_from_slice(format!("{}", 1000 + i).as_bytes()),
+                2 => bytes.extend_from_slice(b"\xff\xfe junk"),
+                _ => bytes.extend_from_slice(format!("{i}, {i}").as_bytes()),
+            }
+            bytes.push(b'\n');
+        }
+        let cut = cut.index(bytes.len() + 1);
+        let (whole, _) = decode_chunks(Format::Ascii, &[&bytes]);
+        let (split, _) = decode_chunks(Format::Ascii, &[&bytes[..cut], &bytes[cut..]]);
+        prop_assert_eq!(whole, split);
+    }
+}
+
+/// Inputs the fuzz campaigns (fuzz/) found, kept so they stay fixed.
+mod fuzz_regressions {
+    use super::*;
+
+    /// The cut rule of the decode fuzz targets: the first byte picks where the rest is cut.
+    fn whole_and_split(data: &[u8], format: Format) -> (Vec<Frame>, Vec<Frame>) {
+        let (&cut, bytes) = data.split_first().unwrap();
+        let cut = usize::from(cut) * bytes.len() / 256;
+        let (whole, _) = decode_chunks(format, &[bytes]);
+        let (split, _) = decode_chunks(format, &[&bytes[..cut], &bytes[cut..]]);
+        (whole, split)
+    }
+
+    #[test]
+    fn a_held_line_is_the_same_however_the_reads_are_cut() {
+        let data = include_bytes!("fuzz_regressions/decode_ascii_held_line_split.bin");
+        let (whole, split) = whole_and_split(data, Format::Ascii);
+        assert_eq!(whole, split);
+    }
+}

@@ -41,7 +41,13 @@ impl AsciiDecoder {
     pub fn feed(&mut self, mut bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
         while let Some(end) = self.next_line_end(&mut bytes, stats, out) {
             if self.line.is_empty() && !self.discarding && !self.skip_partial {
-                self.finish_line(&bytes[..end], stats, out);
+                // The same length rule as for a line gathered over several reads.
+                if end > MAX_LINE {
+                    stats.long_lines += 1;
+                    self.distrust(stats);
+                } else {
+                    self.finish_line(&bytes[..end], stats, out);
+                }
             } else {
                 self.keep(&bytes[..end]);
                 let line = std::mem::take(&mut self.line);
