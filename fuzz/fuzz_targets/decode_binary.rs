@@ -23,7 +23,9 @@ fuzz_target!(|data: &[u8]| {
     let cut = usize::from(cut) * bytes.len() / 256;
     let (whole, counted) = decode(&[bytes]);
     assert_eq!(whole.len() as u64, counted);
-    assert!(whole.iter().all(|f| (1..=MAX_CHANNELS).contains(&f.channels())));
+    assert!(whole
+        .iter()
+        .all(|f| (1..=MAX_CHANNELS).contains(&f.channels())));
     let (split, _) = decode(&[&bytes[..cut], &bytes[cut..]]);
     assert_eq!(whole, split, "cut at {cut}");
 });
