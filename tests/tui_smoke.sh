@@ -21,28 +21,28 @@ for _ in $(seq 1 100); do
 done
 [ -n "$seen" ] || { echo "no reading appeared"; tm capture-pane -p; exit 1; }
 
+# Waits for the exit code and terminal modes the shell writes after watch ends, then
+# checks the code was $1 and the terminal is back in canonical, echoing mode.
+expect_exit_and_modes() {
+    for _ in $(seq 1 100); do
+        [ -s "$out" ] && grep -q "icanon" "$out" && break
+        sleep 0.1
+    done
+    grep -q "^exit=$1$" "$out" || { echo "watch did not exit with $1 ($2):"; cat "$out"; exit 1; }
+    grep -qw -- "-icanon" "$out" && { echo "terminal left in raw mode ($2)"; exit 1; }
+    grep -qw "icanon" "$out" || { echo "no terminal modes recorded ($2)"; exit 1; }
+    grep -qw "echo" "$out" || { echo "echo left off ($2)"; exit 1; }
+}
+
 tm send-keys q
-for _ in $(seq 1 50); do
-    [ -s "$out" ] && grep -q "icanon" "$out" && break
-    sleep 0.1
-done
-grep -q "^exit=0$" "$out" || { echo "watch did not exit with 0:"; cat "$out"; exit 1; }
-grep -qw -- "-icanon" "$out" && { echo "terminal left in raw mode"; exit 1; }
-grep -qw "icanon" "$out" || { echo "no terminal modes recorded"; exit 1; }
-grep -qw "echo" "$out" || { echo "echo left off"; exit 1; }
+expect_exit_and_modes 0 "quit key"
 echo "tui smoke: reading shown, quit with 0, terminal restored"
 
 # A panic (injected by the test-only switch) must leave the terminal restored too: normal
 # modes, the main screen back, and the panic's message readable.
 : > "$out"
 tm send-keys "clear; RUST_BACKTRACE=0 DBTRAIL_TEST_PANIC_AFTER_FRAMES=10 '$bin' watch --demo tune; echo \"exit=\$?\" > '$out'; stty -a >> '$out'" Enter
-for _ in $(seq 1 100); do
-    [ -s "$out" ] && grep -q "icanon" "$out" && break
-    sleep 0.1
-done
-grep -q "^exit=101$" "$out" || { echo "the injected panic did not end watch with 101:"; cat "$out"; exit 1; }
-grep -qw -- "-icanon" "$out" && { echo "terminal left in raw mode after a panic"; exit 1; }
-grep -qw "echo" "$out" || { echo "echo left off after a panic"; exit 1; }
+expect_exit_and_modes 101 "injected panic"
 [ "$(tm display -p '#{alternate_on}')" = "0" ] || { echo "alternate screen left on after a panic"; exit 1; }
 tm capture-pane -p -S -200 | grep -q "test-only panic after frame 10" || { echo "panic message not shown:"; tm capture-pane -p; exit 1; }
 echo "tui smoke: injected panic exited 101 with the terminal restored and the message shown"
