@@ -18,11 +18,6 @@ fn flagged(rows: &[Vec<String>], flags: usize, word: &str) -> usize {
         .count()
 }
 
-fn repoint(link: &std::path::Path, slave: &serialport::TTYPort) {
-    let _ = std::fs::remove_file(link);
-    std::os::unix::fs::symlink(slave.name().unwrap(), link).unwrap();
-}
-
 #[test]
 fn twenty_unplugs_give_twenty_reconnects_every_gap_marked_and_no_row_lost() {
     const REPLUGS: usize = 20;

@@ -118,3 +118,9 @@ pub fn write_lines(master: &mut TTYPort, counts: impl Iterator<Item = u32>) {
     master.write_all(&batch).unwrap();
     master.flush().unwrap();
 }
+
+/// Points the "device" path `link` at `slave`: plugging a port in (again).
+pub fn repoint(link: &Path, slave: &TTYPort) {
+    let _ = std::fs::remove_file(link);
+    std::os::unix::fs::symlink(slave.name().unwrap(), link).unwrap();
+}
