@@ -75,11 +75,13 @@ proptest! {
 
     #[test]
     fn ascii_samples_after_garbage_are_recovered(
-        garbage in proptest::collection::vec(any::<u8>().prop_filter("no line ends", |b| *b != b'\n' && *b != b'\r'), 0..6000),
-        channels in 1usize..4, samples in samples_u32(2),
+        garbage in proptest::collection::vec(any::<u8>().prop_map(|b| if b == b'\n' || b == b'\r' { b'x' } else { b }), 0..6000),
+        junk_at in any::<usize>(), channels in 1usize..4, samples in samples_u32(2),
     ) {
         let samples: Vec<Vec<u32>> = samples.iter().map(|s| s.iter().cycle().take(channels).copied().collect()).collect();
+        // Random bytes can spell a valid line ("0"); one letter somewhere makes the line garbage.
         let mut bytes = garbage;
+        bytes.insert(junk_at % (bytes.len() + 1), b'x');
         bytes.push(b'\n');
         bytes.extend(ascii_stream(&samples));
         let (frames, _) = decode_chunks(Format::Ascii, &[&bytes]);
