@@ -106,13 +106,13 @@ fn statistics(c: &mut Criterion) {
     group.bench_function("interval stats over codes", |b| {
         b.iter(|| {
             let mut stats = PowerStats::default();
-            stats.add_codes(&cal, black_box(&counts).iter().copied());
+            stats.add_codes(&cal, black_box(&counts));
             stats
         })
     });
     group.bench_function("merge", |b| {
         let mut part = PowerStats::default();
-        part.add_codes(&cal, counts.iter().copied());
+        part.add_codes(&cal, &counts);
         b.iter(|| {
             let mut total = PowerStats::default();
             for _ in 0..64 {

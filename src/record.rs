@@ -292,10 +292,10 @@ impl<W: Write> Recorder<W> {
             let width = chunk.channels();
             let counts = &chunk.samples.counts[i * width..end * width];
             if width == 1 {
-                self.stats[0].add_codes(&self.cal, counts.iter().copied());
+                self.stats[0].add_codes(&self.cal, counts);
             } else {
                 for (ch, stats) in self.stats.iter_mut().enumerate().take(width) {
-                    stats.add_codes(&self.cal, counts.iter().skip(ch).step_by(width).copied());
+                    stats.add_channel(&self.cal, counts, ch, width);
                 }
             }
             i = end;

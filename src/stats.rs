@@ -6,13 +6,16 @@
 
 use std::collections::VecDeque;
 
-use crate::calibration::{Flags, Reading};
+use crate::calibration::{Calibration, CodeEntry, Flags, Reading};
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
 /// Readings with these flags are bounds, not values, and are left out of means and extremes.
 pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
     .union(Flags::ADC_CLIP)
     .union(Flags::OVER_FULL_SCALE);
+
+/// Partial sets `add_codes` keeps: enough independent sums to cover a float add's latency.
+const LANES: usize = 4;
 
 /// Count, power-domain sum, extremes and flags of a set of readings.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -58,60 +61,74 @@ impl PowerStats {
         self.max_dbm = self.max_dbm.max(reading.dbm);
     }
 
-    /// Adds one ADC code through the calibration's precomputed table (the hot path),
-    /// falling back to the exact model for codes the table does not cover.
-    #[inline]
-    pub fn add_code(&mut self, cal: &crate::calibration::Calibration, code: u32) {
-        let Some(entry) = cal.code_entry(code) else {
-            self.add(&cal.reading_code(code));
-            return;
-        };
+    /// Adds one ADC code through the calibration's precomputed table, falling back to the
+    /// exact model for codes the table does not cover.
+    pub fn add_code(&mut self, cal: &Calibration, code: u32) {
+        self.add_codes(cal, &[code]);
+    }
+
+    /// Adds a run of ADC codes, as `add_code` for each (the recorder's inner loop). Four
+    /// partial sets take the codes in turn and are merged at the end: one chain of float
+    /// additions would hold the loop to an add's latency per sample.
+    pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
+        let table = cal.code_table();
+        let mut lanes = [PowerStats::default(); LANES];
+        let groups = codes.chunks_exact(LANES);
+        let rest = groups.remainder();
+        for group in groups {
+            for (lane, &code) in lanes.iter_mut().zip(group) {
+                match table.get(code as usize) {
+                    Some(entry) => lane.add_entry(entry),
+                    None => lane.add(&cal.reading_code(code)),
+                }
+            }
+        }
+        for &code in rest {
+            match table.get(code as usize) {
+                Some(entry) => lanes[0].add_entry(entry),
+                None => lanes[0].add(&cal.reading_code(code)),
+            }
+        }
+        for lane in &lanes {
+            self.merge(lane);
+        }
+    }
+
+    /// Adds every `width`-th code of `counts` from `first` on: one channel of
+    /// interleaved samples.
+    pub fn add_channel(&mut self, cal: &Calibration, counts: &[u32], first: usize, width: usize) {
+        let mut batch = [0u32; 256];
+        let mut column = counts
+            .iter()
+            .skip(first)
+            .step_by(width.max(1))
+            .copied()
+            .peekable();
+        while column.peek().is_some() {
+            let mut n = 0;
+            for (slot, code) in batch.iter_mut().zip(column.by_ref()) {
+                *slot = code;
+                n += 1;
+            }
+            self.add_codes(cal, &batch[..n]);
+        }
+    }
+
+    #[inline(always)]
+    fn add_entry(&mut self, entry: &CodeEntry) {
         self.samples += 1;
         self.flags |= entry.flags;
         if entry.watts > 0.0 {
             self.valid += 1;
             self.sum_w += entry.watts;
-            self.min_dbm = self.min_dbm.min(entry.dbm);
-            self.max_dbm = self.max_dbm.max(entry.dbm);
-        }
-    }
-
-    /// Adds a run of ADC codes; the same as `add_code` for each, with the accumulators
-    /// kept in registers for the run (the recorder's inner loop).
-    pub fn add_codes(
-        &mut self,
-        cal: &crate::calibration::Calibration,
-        codes: impl Iterator<Item = u32>,
-    ) {
-        let table = cal.code_table();
-        let (mut samples, mut valid, mut sum_w) = (0u64, 0u64, 0.0f64);
-        let (mut lo, mut hi, mut flags) = (self.min_dbm, self.max_dbm, Flags::empty());
-        for code in codes {
-            match table.get(code as usize) {
-                Some(e) => {
-                    samples += 1;
-                    flags |= e.flags;
-                    if e.watts > 0.0 {
-                        valid += 1;
-                        sum_w += e.watts;
-                        // Plain comparisons: table values are never NaN.
-                        if e.dbm < lo {
-                            lo = e.dbm;
-                        }
-                        if e.dbm > hi {
-                            hi = e.dbm;
-                        }
-                    }
-                }
-                None => self.add(&cal.reading_code(code)),
+            // Plain comparisons: table values are never NaN.
+            if entry.dbm < self.min_dbm {
+                self.min_dbm = entry.dbm;
+            }
+            if entry.dbm > self.max_dbm {
+                self.max_dbm = entry.dbm;
             }
         }
-        self.samples += samples;
-        self.valid += valid;
-        self.sum_w += sum_w;
-        self.min_dbm = self.min_dbm.min(lo);
-        self.max_dbm = self.max_dbm.max(hi);
-        self.flags |= flags;
     }
 
     /// Adds another set (as if its readings had been added one by one).

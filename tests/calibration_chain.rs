@@ -152,3 +152,46 @@ fn the_per_code_table_agrees_with_the_exact_model_at_every_code() {
     let want = 0.6 + (20.1 - offset_at_10mhz);
     assert!((b - a - want).abs() < 1e-9, "{a} {b} {want}");
 }
+
+mod batched_statistics {
+    use super::*;
+    use dbtrail::stats::PowerStats;
+    use proptest::prelude::*;
+
+    proptest! {
+        // Source: common practice (power-domain averaging: count, sum of watts, extremes and
+        // flags over the readings). The recorder's batched path, with its partial sums,
+        // must equal the readings of the exact chain added one at a time, for any run
+        // length and any mix of codes below span, clipped and over the ADC's full scale.
+        #[test]
+        fn batched_codes_equal_readings_added_one_by_one(
+            codes in proptest::collection::vec(prop_oneof![0u32..4096, 4000u32..4200, any::<u32>()], 0..70),
+            width in 1usize..4,
+        ) {
+            let cal = Calibration::new(&log_amp_profile(0.025, -80.0, CORRECTIONS), Some(100e6), 0.0);
+            let mut batched = PowerStats::default();
+            batched.add_codes(&cal, &codes);
+            let mut channel = PowerStats::default();
+            channel.add_channel(&cal, &codes, width - 1, width);
+            let mut single = PowerStats::default();
+            let mut column = PowerStats::default();
+            for (i, &code) in codes.iter().enumerate() {
+                let reading = cal.reading(f64::from(code));
+                single.add(&reading);
+                if i % width == width - 1 {
+                    column.add(&reading);
+                }
+            }
+            for (fast, slow) in [(batched, single), (channel, column)] {
+                prop_assert_eq!(fast.samples, slow.samples);
+                prop_assert_eq!(fast.valid, slow.valid);
+                prop_assert_eq!(fast.flags, slow.flags);
+                prop_assert!((fast.sum_w - slow.sum_w).abs() <= 1e-12 * slow.sum_w.abs());
+                if slow.valid > 0 {
+                    prop_assert!((fast.min_dbm - slow.min_dbm).abs() < 1e-9);
+                    prop_assert!((fast.max_dbm - slow.max_dbm).abs() < 1e-9);
+                }
+            }
+        }
+    }
+}

@@ -62,7 +62,7 @@ fn counts_above_full_scale_are_flagged_and_never_calibrated() {
     assert!(at_full_scale.dbm.is_finite());
 
     let mut stats = PowerStats::default();
-    stats.add_codes(&cal, [2000u32, 4096, 65_535, 2000].into_iter());
+    stats.add_codes(&cal, &[2000u32, 4096, 65_535, 2000]);
     assert_eq!(stats.samples, 4);
     assert_eq!(stats.valid, 2, "only the two real codes are averaged");
     assert!(stats.flags.contains(Flags::OVER_FULL_SCALE));
