@@ -14,8 +14,45 @@ pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
     .union(Flags::ADC_CLIP)
     .union(Flags::OVER_FULL_SCALE);
 
-/// Partial sets `add_codes` keeps: enough independent sums to cover a float add's latency.
-const LANES: usize = 4;
+/// What `add_codes` keeps in registers over a run of table look-ups (the sums apart).
+struct TableRun {
+    taken: u64,
+    valid: u64,
+    lo: f64,
+    hi: f64,
+    flags: Flags,
+}
+
+impl From<&PowerStats> for TableRun {
+    fn from(stats: &PowerStats) -> Self {
+        TableRun {
+            taken: 0,
+            valid: 0,
+            lo: stats.min_dbm,
+            hi: stats.max_dbm,
+            flags: Flags::empty(),
+        }
+    }
+}
+
+impl TableRun {
+    #[inline(always)]
+    fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
+        self.taken += 1;
+        self.flags |= entry.flags;
+        if entry.watts > 0.0 {
+            self.valid += 1;
+            *sum_w += entry.watts;
+            // Plain comparisons: table values are never NaN.
+            if entry.dbm < self.lo {
+                self.lo = entry.dbm;
+            }
+            if entry.dbm > self.hi {
+                self.hi = entry.dbm;
+            }
+        }
+    }
+}
 
 /// Count, power-domain sum, extremes and flags of a set of readings.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -67,31 +104,42 @@ impl PowerStats {
         self.add_codes(cal, &[code]);
     }
 
-    /// Adds a run of ADC codes, as `add_code` for each (the recorder's inner loop). Four
-    /// partial sets take the codes in turn and are merged at the end: one chain of float
+    /// Adds a run of ADC codes, as `add_code` for each (the recorder's inner loop). The
+    /// codes take four partial sums in turn, added together at the end: one chain of float
     /// additions would hold the loop to an add's latency per sample.
     pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
         let table = cal.code_table();
-        let mut lanes = [PowerStats::default(); LANES];
-        let groups = codes.chunks_exact(LANES);
+        let mut run = TableRun::from(&*self);
+        let mut step = |code: u32, sum: &mut f64| match table.get(code as usize) {
+            Some(entry) => run.take(entry, sum),
+            None => self.add_untabled(cal, code),
+        };
+        let (mut s0, mut s1, mut s2, mut s3) = (0.0, 0.0, 0.0, 0.0);
+        let groups = codes.chunks_exact(4);
         let rest = groups.remainder();
         for group in groups {
-            for (lane, &code) in lanes.iter_mut().zip(group) {
-                match table.get(code as usize) {
-                    Some(entry) => lane.add_entry(entry),
-                    None => lane.add(&cal.reading_code(code)),
-                }
-            }
+            step(group[0], &mut s0);
+            step(group[1], &mut s1);
+            step(group[2], &mut s2);
+            step(group[3], &mut s3);
         }
         for &code in rest {
-            match table.get(code as usize) {
-                Some(entry) => lanes[0].add_entry(entry),
-                None => lanes[0].add(&cal.reading_code(code)),
-            }
+            step(code, &mut s0);
         }
-        for lane in &lanes {
-            self.merge(lane);
-        }
+        self.samples += run.taken;
+        self.valid += run.valid;
+        self.sum_w += (s0 + s1) + (s2 + s3);
+        self.min_dbm = self.min_dbm.min(run.lo);
+        self.max_dbm = self.max_dbm.max(run.hi);
+        self.flags |= run.flags;
+    }
+
+    /// The exact model for a code the table does not cover (above the ADC's full scale):
+    /// out of the hot loop so its registers stay free.
+    #[cold]
+    #[inline(never)]
+    fn add_untabled(&mut self, cal: &Calibration, code: u32) {
+        self.add(&cal.reading_code(code));
     }
 
     /// Adds every `width`-th code of `counts` from `first` on: one channel of
@@ -111,23 +159,6 @@ impl PowerStats {
                 n += 1;
             }
             self.add_codes(cal, &batch[..n]);
-        }
-    }
-
-    #[inline(always)]
-    fn add_entry(&mut self, entry: &CodeEntry) {
-        self.samples += 1;
-        self.flags |= entry.flags;
-        if entry.watts > 0.0 {
-            self.valid += 1;
-            self.sum_w += entry.watts;
-            // Plain comparisons: table values are never NaN.
-            if entry.dbm < self.min_dbm {
-                self.min_dbm = entry.dbm;
-            }
-            if entry.dbm > self.max_dbm {
-                self.max_dbm = entry.dbm;
-            }
         }
     }
 
