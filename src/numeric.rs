@@ -1,4 +1,4 @@
-//! Small numerical tools the models share: a bracketed root finder, straight-line least
+//! Small numerical tools the models share: bracketed root finders, straight-line least
 //! squares with standard errors, and a two-parameter Levenberg–Marquardt fit.
 
 use thiserror::Error;
@@ -76,6 +76,52 @@ pub fn solve_bracketed(f: impl Fn(f64) -> f64, lo: f64, hi: f64) -> Result<f64, 
         }
     }
     Ok(0.5 * (a + b))
+}
+
+/// Finds x in [lo, hi] with f(x) = 0 for an increasing f given with its slope, by Newton's
+/// method from `start`, kept inside the bracket (a step that would leave it bisects
+/// instead). From a close start it needs a handful of steps where regula falsi on a wide
+/// bracket needs a dozen. Converges to a few ulps of x.
+pub fn solve_newton(
+    f: impl Fn(f64) -> (f64, f64),
+    start: f64,
+    lo: f64,
+    hi: f64,
+) -> Result<f64, NumericError> {
+    let (mut a, mut b) = (lo, hi);
+    let at_hi = f(b).0;
+    if at_hi.is_nan() {
+        return Err(NumericError::NotANumber { at: b });
+    }
+    if at_hi < 0.0 {
+        return Err(NumericError::NoBracket { lo, hi });
+    }
+    let mut x = start.clamp(a, b);
+    for _ in 0..200 {
+        let (fx, slope) = f(x);
+        if fx.is_nan() {
+            return Err(NumericError::NotANumber { at: x });
+        }
+        if fx == 0.0 {
+            return Ok(x);
+        }
+        if fx < 0.0 {
+            a = x;
+        } else {
+            b = x;
+        }
+        let step = x - fx / slope;
+        let next = if step > a && step < b {
+            step
+        } else {
+            0.5 * (a + b)
+        };
+        if (next - x).abs() <= 4.0 * f64::EPSILON * next.abs() || next == a || next == b {
+            return Ok(next);
+        }
+        x = next;
+    }
+    Ok(x)
 }
 
 /// Grows `hi` by doubling until f(hi) > 0 for an increasing f, then solves on [lo, hi].
@@ -294,6 +340,21 @@ mod tests {
     fn root_of_a_parabola_to_full_precision() {
         let root = solve_bracketed(|x| x * x - 2.0, 0.0, 2.0).unwrap();
         assert!((root - std::f64::consts::SQRT_2).abs() < 4e-16);
+    }
+
+    // Source: common practice (the cube root of 2 is 1.2599210498948732; a step that would
+    // leave the bracket, as from x = 0.01 where the slope is tiny, must bisect instead).
+    #[test]
+    fn newton_in_a_bracket_reaches_full_precision_from_a_poor_start() {
+        let cube = |x: f64| (x * x * x - 2.0, 3.0 * x * x);
+        for start in [0.01, 1.0, 1.26, 3.9] {
+            let root = solve_newton(cube, start, 0.0, 4.0).unwrap();
+            assert!((root - 2f64.cbrt()).abs() < 4e-16, "from {start}: {root}");
+        }
+        assert!(matches!(
+            solve_newton(cube, 0.5, 0.0, 1.0),
+            Err(NumericError::NoBracket { .. })
+        ));
     }
 
     #[test]

@@ -6,8 +6,8 @@
 //! so either direction is a one-dimensional bracketed root.
 
 use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
-use crate::numeric::{levenberg_marquardt, solve_bracketed, solve_increasing};
-use crate::special::{ln_i0, thermal_voltage};
+use crate::numeric::{levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton};
+use crate::special::{ln_i0, ln_i0_and_slope, thermal_voltage};
 use crate::units::{watts_to_dbm, Power};
 
 /// Limits of the diode fit: ideality factor n and V_L in volts.
@@ -87,9 +87,18 @@ impl DiodeDetector {
             return 0.0;
         }
         let c = (vo / self.vl).ln_1p() + vo / self.n_vt;
-        // ln I0(x) ≤ x, so the root lies at or above c.
-        let x =
-            solve_increasing(|x| ln_i0(x) - c, c, c + 2.0 * c.sqrt() + 10.0).unwrap_or(f64::NAN);
+        // ln I0(x) ≤ x and ln I0(x) ≤ x²/4, so the root lies at or above c and 2√c; about
+        // c + ln(2πc)/2 for large c (I0(x) ≈ e^x/√(2πx)).
+        let lo = c.max(2.0 * c.sqrt());
+        let hi = c + 2.0 * c.sqrt() + 10.0;
+        let start = lo.max(c + 0.5 * (2.0 * std::f64::consts::PI * c).ln());
+        let balance = |x: f64| {
+            let (value, slope) = ln_i0_and_slope(x);
+            (value - c, slope)
+        };
+        let x = solve_newton(balance, start, lo, hi)
+            .or_else(|_| solve_increasing(|x| ln_i0(x) - c, c, hi))
+            .unwrap_or(f64::NAN);
         x * self.n_vt
     }
 
