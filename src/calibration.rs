@@ -134,15 +134,22 @@ fn span_volts(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
 /// The largest ADC whose every code gets a precomputed reading (16 bits: 65536 entries).
 pub const TABLE_MAX_CODES: u32 = 1 << 16;
 
-/// One ADC code's reading, computed once: what the hot path needs per sample.
+/// One ADC code's reading, computed once: what the hot path needs per sample, laid out
+/// so that a sample adds to a set of statistics without a branch.
 #[derive(Debug, Clone, Copy, PartialEq)]
+#[repr(align(32))]
 pub struct CodeEntry {
     /// Reference-plane dBm.
     pub dbm: f64,
     /// The same in watts; 0 for a reading that is not a value (below span, clip).
     pub watts: f64,
+    /// 0 for a value, +∞ for a bound: `dbm + exclude` and `dbm − exclude` leave the
+    /// lowest and highest value unchanged for a bound.
+    pub exclude: f64,
     /// Its flags.
     pub flags: Flags,
+    /// 1 for a value, 0 for a bound.
+    pub valid: u16,
 }
 
 /// A profile made ready for one frequency and offset.
@@ -230,7 +237,9 @@ impl Calibration {
         CodeEntry {
             dbm: r.dbm,
             watts: if value { r.watts() } else { 0.0 },
+            exclude: if value { 0.0 } else { f64::INFINITY },
             flags: r.flags,
+            valid: u16::from(value),
         }
     }
 

@@ -40,17 +40,17 @@ impl TableRun {
     fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
         self.taken += 1;
         self.flags |= entry.flags;
-        if entry.watts > 0.0 {
-            self.valid += 1;
-            *sum_w += entry.watts;
-            // Plain comparisons: table values are never NaN.
-            if entry.dbm < self.lo {
-                self.lo = entry.dbm;
-            }
-            if entry.dbm > self.hi {
-                self.hi = entry.dbm;
-            }
-        }
+        self.valid += u64::from(entry.valid);
+        *sum_w += entry.watts;
+        // Plain comparisons (one instruction each): a NaN key, as −∞ + ∞ for a bound at
+        // zero output, compares false and leaves the extreme as it was.
+        let (low_key, high_key) = (entry.dbm + entry.exclude, entry.dbm - entry.exclude);
+        self.lo = if low_key < self.lo { low_key } else { self.lo };
+        self.hi = if high_key > self.hi {
+            high_key
+        } else {
+            self.hi
+        };
     }
 }
 

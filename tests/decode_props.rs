@@ -126,6 +126,33 @@ proptest! {
         prop_assert_eq!(got, kept);
     }
 
+    // Source: the decoder's own general path is the reference: fed a byte at a time, no
+    // word-at-a-time reading can happen. Runs of lines of one shape (the fast path checks
+    // lines against the last shape) broken by lines of other lengths and line ends, junk,
+    // comments and numbers too long for a word must decode the same when fed whole.
+    #[test]
+    fn lines_of_a_steady_shape_with_odd_ones_decode_as_the_general_path(
+        digits in 1usize..9, crlf in any::<bool>(),
+        lines in proptest::collection::vec((0u8..20, any::<u32>()), 1..300),
+    ) {
+        let end = if crlf { "\r\n" } else { "\n" };
+        let text: String = lines.iter().map(|&(kind, v)| match kind {
+            0 => format!("{}\n", v % 100),
+            1 => format!("{v}\r\n"),
+            2 => format!("{}a\n", v % 1000),
+            3 => "# note\n".to_string(),
+            4 => format!("{:0w$}\r", v % 10, w = digits),
+            5 => format!("{v}{v}\n"),
+            _ => format!("{:0w$}{end}", u64::from(v) % 10u64.pow(digits as u32), w = digits),
+        }).collect();
+        let bytes = text.as_bytes();
+        let (whole, whole_stats) = decode_chunks(Format::Ascii, &[bytes]);
+        let single: Vec<&[u8]> = bytes.chunks(1).collect();
+        let (by_byte, by_byte_stats) = decode_chunks(Format::Ascii, &single);
+        prop_assert_eq!(as_counts(&whole), as_counts(&by_byte));
+        prop_assert_eq!(whole_stats, by_byte_stats);
+    }
+
     #[test]
     fn split_points_never_change_the_result(samples in samples_u32(2), binary in any::<bool>(), auto in any::<bool>()) {
         let bytes = if binary {

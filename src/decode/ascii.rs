@@ -196,14 +196,41 @@ pub fn plain_prefix(bytes: &[u8], out: &mut Vec<u32>) -> (usize, u64) {
 /// Takes the plain lines (digits, then LF or CRLF) of `b` from `at` on, handing the values
 /// to `take` in batches, up to the first other line or cut line. Returns where it stopped and the
 /// lines taken.
+///
+/// A fast stream's lines mostly have the same number of digits, so each batch first
+/// checks the lines against the shape of the last one searched (masks over one word, and
+/// the next line's start known at once); a line of another shape is searched and sets the
+/// shape. Lines that keep changing shape finish the batch by search alone.
 #[inline]
 fn plain_lines(b: &[u8], mut at: usize, mut take: impl FnMut(&[u32])) -> (usize, u64) {
     let mut taken = 0;
     let mut values = [0u32; BATCH];
+    let mut shape: Option<LineShape> = None;
     loop {
         let mut n = 0;
-        while n < BATCH {
-            let Some((value, used)) = swar_line(b, at).or_else(|| short_line(b, at)) else {
+        let mut ended = false;
+        loop {
+            if let Some(shape) = &shape {
+                let from = n;
+                (n, at) = shape.run(b, at, &mut values, n);
+                if n == BATCH || n - from < STEADY_RUN {
+                    break;
+                }
+            }
+            let Some((value, used)) = searched_line(b, at) else {
+                ended = true;
+                break;
+            };
+            values[n] = value;
+            n += 1;
+            shape = LineShape::of(&b[at..at + used]);
+            at += used;
+            if n == BATCH {
+                break;
+            }
+        }
+        while !ended && n < BATCH {
+            let Some((value, used)) = searched_line(b, at) else {
                 break;
             };
             values[n] = value;
@@ -215,6 +242,75 @@ fn plain_lines(b: &[u8], mut at: usize, mut take: impl FnMut(&[u32])) -> (usize,
         if n < BATCH {
             return (at, taken);
         }
+    }
+}
+
+/// Lines in a row that show a stream's shape is steady enough to check lines against.
+const STEADY_RUN: usize = 8;
+
+#[inline]
+fn searched_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
+    swar_line(b, at).or_else(|| short_line(b, at))
+}
+
+/// A plain line's layout in the word that starts it: `digits` digits, then LF or CRLF.
+#[derive(Debug, Clone, Copy)]
+struct LineShape {
+    len: usize,
+    /// The high nibble of each digit byte, to find a byte that is not a digit.
+    digit_nibbles: u64,
+    /// The line end's bytes and what they must hold.
+    end_mask: u64,
+    end_bytes: u64,
+    /// Moves the digits to the top of the word.
+    shift: u32,
+}
+
+impl LineShape {
+    /// The shape of `line` (digits and its line end), when it fits one word.
+    fn of(line: &[u8]) -> Option<LineShape> {
+        let end = if line.ends_with(b"\r\n") { 2 } else { 1 };
+        let digits = line.len() - end;
+        if line.len() > 8 {
+            return None;
+        }
+        let low_bytes = |n: usize| u64::MAX.checked_shr(64 - 8 * n as u32).unwrap_or(0);
+        let ending: u64 = if end == 2 { 0x0A0D } else { 0x0A };
+        Some(LineShape {
+            len: line.len(),
+            digit_nibbles: low_bytes(digits) & 0xF0F0_F0F0_F0F0_F0F0,
+            end_mask: low_bytes(line.len()) & !low_bytes(digits),
+            end_bytes: ending << (8 * digits),
+            shift: 8 * (8 - digits as u32),
+        })
+    }
+
+    /// Takes the lines of this shape from `at` on into `values[n..]`, up to the first
+    /// other line or a full batch; returns the new count and position.
+    #[inline(always)]
+    fn run(
+        &self,
+        b: &[u8],
+        mut at: usize,
+        values: &mut [u32; BATCH],
+        mut n: usize,
+    ) -> (usize, usize) {
+        while n < BATCH {
+            let Some(word) = b.get(at..at + 8) else {
+                break;
+            };
+            let word = u64::from_le_bytes(word.try_into().unwrap_or([0; 8]));
+            let digits = word.wrapping_sub(0x3030_3030_3030_3030);
+            let not_digit =
+                (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & self.digit_nibbles;
+            if not_digit | ((word & self.end_mask) ^ self.end_bytes) != 0 {
+                break;
+            }
+            values[n] = sum_digits((digits << self.shift) & 0x0F0F_0F0F_0F0F_0F0F);
+            n += 1;
+            at += self.len;
+        }
+        (n, at)
     }
 }
 
@@ -266,13 +362,19 @@ fn swar_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
         b'\r' if b.get(at + len + 1) == Some(&b'\n') => 2,
         _ => return None,
     };
-    // Move the digits to the top bytes (zeros before them add nothing), then sum pairs,
-    // quads and the eight.
-    let mut v = (digits << (8 * (8 - len))) & 0x0F0F_0F0F_0F0F_0F0F;
-    v = (v.wrapping_mul(10) + (v >> 8)) & 0x00FF_00FF_00FF_00FF;
+    // Move the digits to the top bytes (zeros before them add nothing).
+    let top = (digits << (8 * (8 - len))) & 0x0F0F_0F0F_0F0F_0F0F;
+    Some((sum_digits(top), len + end))
+}
+
+/// The number whose decimal digits (one a byte, the first lowest) fill a word: pairs,
+/// quads and the eight summed with word arithmetic.
+#[inline(always)]
+fn sum_digits(digits: u64) -> u32 {
+    let mut v = (digits.wrapping_mul(10) + (digits >> 8)) & 0x00FF_00FF_00FF_00FF;
     v = (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF;
     v = (v.wrapping_mul(10000) + (v >> 32)) & 0x0000_0000_FFFF_FFFF;
-    Some((v as u32, len + end))
+    v as u32
 }
 
 fn is_blank(b: u8) -> bool {

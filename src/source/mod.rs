@@ -22,9 +22,9 @@ pub use simulated::SimSpec;
 /// Events the ring holds for a live port: one event per read, so even short reads at a
 /// high rate have room for the 40 ms between two frames of the screen.
 const LIVE_RING: usize = 4096;
-/// Events the ring holds for a file or the simulator, which wait when it is full: each
-/// event carries up to 16 Ki samples (64 KiB), so a short ring keeps memory flat.
-const WAITING_RING: usize = 4;
+/// Events the ring holds for the simulator, which waits when it is full: each event
+/// carries up to 16 Ki samples (64 KiB), so a short ring keeps memory flat.
+pub const WAITING_RING: usize = 4;
 
 /// A source running on its own thread.
 pub struct Running {
@@ -75,8 +75,9 @@ impl Drop for Running {
 pub enum WhenFull {
     /// Drop the event and count an overrun: a live link must never block.
     Drop,
-    /// Wait for room: a file or the simulator can always be read later.
-    Wait,
+    /// Wait for room in a ring of this many events: a file or the simulator can always be
+    /// read later.
+    Wait(usize),
 }
 
 /// The producer's side: pushes events, counting or waiting out a full ring.
@@ -104,7 +105,7 @@ impl Sink {
         loop {
             match self.ring.try_push(event) {
                 Ok(()) => return !self.stopped(),
-                Err(back) if self.when_full == WhenFull::Wait && !self.stopped() => {
+                Err(back) if self.when_full != WhenFull::Drop && !self.stopped() => {
                     event = back;
                     std::thread::sleep(Duration::from_micros(200));
                 }
@@ -130,10 +131,9 @@ pub fn spawn(
     when_full: WhenFull,
     body: impl FnOnce(&mut Sink, Instant) + Send + 'static,
 ) -> Running {
-    let capacity = if when_full == WhenFull::Drop {
-        LIVE_RING
-    } else {
-        WAITING_RING
+    let capacity = match when_full {
+        WhenFull::Drop => LIVE_RING,
+        WhenFull::Wait(events) => events,
     };
     let (ring, events) = HeapRb::<Event>::new(capacity).split();
     let counters = Arc::new(LinkCounters::default());

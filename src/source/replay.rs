@@ -10,6 +10,7 @@ use std::time::{Duration, Instant};
 use dbtrail::decode::DecodeStats;
 use dbtrail::decode::{plain_prefix, Decoder, FlatCounts, Format};
 use dbtrail::record::{Chunk, Event};
+use rayon::prelude::*;
 
 use super::{spawn, Running, Sink, WhenFull};
 
@@ -37,43 +38,32 @@ impl ReplaySpec {
             self.rate_hz,
             if self.realtime { ", real time" } else { "" }
         );
-        spawn(description, false, WhenFull::Wait, move |sink, started| {
-            replay(&self, file, sink, started)
-        })
+        spawn(
+            description,
+            false,
+            WhenFull::Wait(REPLAY_RING),
+            move |sink, started| replay(&self, file, sink, started),
+        )
     }
 }
 
 /// Bytes read at a time.
 const READ_BYTES: usize = 1 << 20;
+/// Parts a read of an ASCII capture is cut into and read ahead on all cores: small enough
+/// that the cores share them out evenly while the recorder takes its share.
+const PARTS: usize = 8;
+/// Events the ring holds for a replay: two reads' worth of parts (about 1.6 MB).
+const REPLAY_RING: usize = 2 * PARTS;
 
 fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) {
     let mut decoder = Decoder::new(spec.format);
-    let (mut buf, mut spare) = (vec![0u8; READ_BYTES], vec![0u8; READ_BYTES]);
-    let mut n = read_some(&mut file, &mut buf);
     let mut index: u64 = 0;
     let dt = 1.0 / spec.rate_hz;
     sink.counters.set_connected(true);
-    loop {
-        let before = decoder.stats();
-        let last = n == 0;
-        let parts = if last {
-            let mut rest = FlatCounts::default();
-            decoder.finish(&mut rest);
-            vec![rest]
-        } else {
-            // The next read goes on while this one is decoded.
-            let (next, parts) = rayon::join(
-                || read_some(&mut file, &mut spare),
-                || match spec.realtime {
-                    true => vec![decode(&mut decoder, &buf[..n])],
-                    false => decode_in_two(&mut decoder, &buf[..n]),
-                },
-            );
-            std::mem::swap(&mut buf, &mut spare);
-            n = next;
-            parts
-        };
+    let mut before = decoder.stats();
+    let finished = decode_reads(&mut file, &mut decoder, spec.realtime, |parts, decoder| {
         sink.counters.add_decoded(&before, &decoder.stats());
+        before = decoder.stats();
         for chunk in parts
             .into_iter()
             .flat_map(|part| split(part, spec, &mut index, dt))
@@ -82,22 +72,72 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
                 pace(started, chunk.t0);
             }
             if !sink.send(Event::Samples(chunk)) {
-                return;
+                return false;
             }
         }
-        if last {
-            break;
-        }
+        true
+    });
+    if finished {
+        sink.counters
+            .set_last_sample((index as f64 * dt * 1e9) as u64);
+        sink.counters.set_connected(false);
     }
-    sink.counters
-        .set_last_sample((index as f64 * dt * 1e9) as u64);
-    sink.counters.set_connected(false);
+}
+
+/// Decodes `reader` to its end, handing each read's samples (and the decoder, for its
+/// counters) to `take`; stops early, returning false, when `take` does. The next read goes
+/// on while one is decoded, and each read but the last is decoded up to its last line end,
+/// the rest of that line carried to the front of the next.
+fn decode_reads<R: Read + Send>(
+    reader: &mut R,
+    decoder: &mut Decoder,
+    sequential: bool,
+    mut take: impl FnMut(Vec<FlatCounts>, &Decoder) -> bool,
+) -> bool {
+    let (mut buf, mut spare) = (vec![0u8; READ_BYTES], vec![0u8; READ_BYTES]);
+    let mut len = read_some(reader, &mut buf);
+    let mut at_end = len == 0;
+    loop {
+        let cut = if at_end || decoder.format() == Some(Format::Binary) {
+            len
+        } else {
+            memchr::memrchr(b'\n', &buf[..len]).map_or(len, |at| at + 1)
+        };
+        let carry = len - cut;
+        spare[..carry].copy_from_slice(&buf[cut..len]);
+        let (read, mut parts) = rayon::join(
+            || match at_end {
+                true => 0,
+                false => read_some(reader, &mut spare[carry..]),
+            },
+            || decode_block(decoder, &buf[..cut], sequential),
+        );
+        if at_end {
+            let mut rest = FlatCounts::default();
+            decoder.finish(&mut rest);
+            parts.push(rest);
+        }
+        if !take(parts, decoder) {
+            return false;
+        }
+        if at_end {
+            return true;
+        }
+        std::mem::swap(&mut buf, &mut spare);
+        len = carry + read;
+        at_end = read == 0;
+    }
 }
 
 /// Bytes read into `buf`; 0 at the end of the file. A read error ends the replay as the
 /// end of the file would: what was read before it is kept.
-fn read_some(file: &mut File, buf: &mut [u8]) -> usize {
-    file.read(buf).unwrap_or(0)
+fn read_some(reader: &mut impl Read, buf: &mut [u8]) -> usize {
+    loop {
+        match reader.read(buf) {
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+            other => return other.unwrap_or(0),
+        }
+    }
 }
 
 fn decode(decoder: &mut Decoder, bytes: &[u8]) -> FlatCounts {
@@ -110,37 +150,58 @@ fn decode(decoder: &mut Decoder, bytes: &[u8]) -> FlatCounts {
     samples
 }
 
-/// Decodes one read of an ASCII capture as two halves at once, on two cores: the halves
-/// meet at a line end, and the second is read ahead as plain one-number lines, which the
-/// decoder takes only when it reaches them in the state that would have read them so
-/// (`Decoder::accept_plain`). Anything else in the second half it feeds as usual, so the
-/// samples and counters are those of one sequential pass.
-fn decode_in_two(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
-    let middle = bytes.len() / 2;
-    let cut = memchr::memchr(b'\n', &bytes[middle..]).map(|at| middle + at + 1);
-    let Some(cut) = cut.filter(|_| decoder.format() == Some(Format::Ascii)) else {
+/// Decodes one read. An ASCII read is cut at line ends into parts, all read ahead at once
+/// on all cores as plain one-number lines; then the decoder takes each part's lines in
+/// turn only when it reaches them in the state that would have read them so
+/// (`Decoder::accept_plain`), and feeds the rest of the part as usual. So the samples and
+/// counters are those of one sequential pass.
+fn decode_block(decoder: &mut Decoder, bytes: &[u8], sequential: bool) -> Vec<FlatCounts> {
+    if sequential || decoder.format() != Some(Format::Ascii) {
         return vec![decode(decoder, bytes)];
-    };
-    let (first, second) = bytes.split_at(cut);
-    let (first_samples, (ahead, used, lines)) = rayon::join(
-        || decode(decoder, first),
-        || {
-            let mut ahead = Vec::with_capacity(second.len() / 3 + 16);
-            let (used, lines) = plain_prefix(second, &mut ahead);
-            (ahead, used, lines)
-        },
-    );
-    let second_samples = if lines > 0 && decoder.accept_plain(lines) {
-        let mut samples = FlatCounts {
-            channels: 1,
-            counts: ahead,
+    }
+    let parts = line_parts(bytes, PARTS);
+    let ahead: Vec<(Vec<u32>, usize, u64)> = parts
+        .par_iter()
+        .map(|part| {
+            let mut values = Vec::with_capacity(part.len() / 3 + 16);
+            let (used, lines) = plain_prefix(part, &mut values);
+            (values, used, lines)
+        })
+        .collect();
+    parts
+        .iter()
+        .zip(ahead)
+        .map(|(part, (values, used, lines))| {
+            if lines > 0 && decoder.accept_plain(lines) {
+                let mut samples = FlatCounts {
+                    channels: 1,
+                    counts: values,
+                };
+                decoder.feed(&part[used..], &mut samples);
+                samples
+            } else {
+                decode(decoder, part)
+            }
+        })
+        .collect()
+}
+
+/// `bytes` cut into up to `parts` pieces of about equal length, each but the last ending
+/// just after a line end.
+fn line_parts(bytes: &[u8], parts: usize) -> Vec<&[u8]> {
+    let mut pieces = Vec::with_capacity(parts);
+    let mut start = 0;
+    for k in 1..parts {
+        let target = (bytes.len() * k / parts).max(start);
+        let Some(at) = memchr::memchr(b'\n', &bytes[target..]) else {
+            break;
         };
-        decoder.feed(&second[used..], &mut samples);
-        samples
-    } else {
-        decode(decoder, second)
-    };
-    vec![first_samples, second_samples]
+        let end = target + at + 1;
+        pieces.push(&bytes[start..end]);
+        start = end;
+    }
+    pieces.push(&bytes[start..]);
+    pieces
 }
 
 /// The decoded samples as chunks, numbered on from `index`: all in one when running flat
@@ -217,44 +278,72 @@ mod tests {
         (counts, decoder.stats())
     }
 
-    fn in_two(bytes: &[u8], read: usize) -> (Vec<u32>, DecodeStats) {
+    /// A reader that hands its bytes out in reads of the given sizes, in turn.
+    struct Uneven<'a> {
+        bytes: &'a [u8],
+        sizes: Vec<usize>,
+        next: usize,
+    }
+
+    impl Read for Uneven<'_> {
+        fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+            let want = self.sizes[self.next % self.sizes.len()];
+            self.next += 1;
+            let n = want.min(buf.len()).min(self.bytes.len());
+            buf[..n].copy_from_slice(&self.bytes[..n]);
+            self.bytes = &self.bytes[n..];
+            Ok(n)
+        }
+    }
+
+    fn in_parts(bytes: &[u8], sizes: Vec<usize>) -> (Vec<u32>, DecodeStats) {
         let mut decoder = Decoder::new(Format::Auto);
         let mut counts = Vec::new();
-        for part in bytes.chunks(read) {
-            for samples in decode_in_two(&mut decoder, part) {
-                counts.extend(samples.counts);
-            }
-        }
-        let mut rest = FlatCounts::default();
-        decoder.finish(&mut rest);
-        counts.extend(rest.counts);
+        let mut reader = Uneven {
+            bytes,
+            sizes,
+            next: 0,
+        };
+        let finished = decode_reads(&mut reader, &mut decoder, false, |parts, _| {
+            counts.extend(parts.into_iter().flat_map(|p| p.counts));
+            true
+        });
+        assert!(finished);
         (counts, decoder.stats())
     }
 
     proptest! {
-        // Source: the sequential decoder is the reference; decoding each read in two
-        // halves, the second read ahead, must give the same samples and counters.
+        // Source: the sequential decoder is the reference; decoding each read in parts
+        // read ahead, with the reads cut anywhere and lines carried across them, must give
+        // the same samples and counters.
         #[test]
-        fn decoding_in_two_equals_one_pass(lines in proptest::collection::vec(line(), 1..400), read in 8usize..3000) {
+        fn decoding_in_parts_equals_one_pass(
+            lines in proptest::collection::vec(line(), 1..400),
+            read in 8usize..3000,
+            sizes in proptest::collection::vec(1usize..5000, 1..6),
+        ) {
             let bytes = lines.concat().into_bytes();
             let (want, want_stats) = one_pass(&bytes, read);
-            let (got, got_stats) = in_two(&bytes, read);
+            let (got, got_stats) = in_parts(&bytes, sizes);
             prop_assert_eq!(got, want);
             prop_assert_eq!(got_stats, want_stats);
         }
     }
 
-    // The case the read-ahead is for: a plain capture, cut into halves of about equal
-    // bytes (888 of the 2000 lines are the five-byte ones past the middle).
+    // The case the read-ahead is for: a plain capture, cut into parts of about equal bytes
+    // that meet at line ends (the last 888 of the 2000 lines are past the middle byte).
     #[test]
-    fn a_plain_capture_is_decoded_in_halves_that_meet_at_a_line() {
+    fn a_plain_capture_is_decoded_in_parts_that_meet_at_lines() {
         let bytes: Vec<u8> = (0..2000u32)
             .flat_map(|v| format!("{v}\n").into_bytes())
             .collect();
+        let halves = line_parts(&bytes, 2);
+        assert_eq!(halves.len(), 2);
+        assert_eq!(halves[1].iter().filter(|&&b| b == b'\n').count(), 888);
+        assert!(halves[0].ends_with(b"\n"));
         let mut decoder = Decoder::new(Format::Ascii);
-        let parts = decode_in_two(&mut decoder, &bytes);
-        assert_eq!(parts.len(), 2);
-        assert_eq!(parts[1].len(), 888);
+        let parts = decode_block(&mut decoder, &bytes, false);
+        assert_eq!(parts.len(), PARTS);
         let all: Vec<u32> = parts.into_iter().flat_map(|p| p.counts).collect();
         assert_eq!(all, (0..2000).collect::<Vec<_>>());
         assert_eq!(decoder.stats().frames, 2000);

@@ -6,7 +6,7 @@ use dbtrail::record::{Chunk, Event};
 use dbtrail::sim::Simulator;
 
 use super::replay::pace;
-use super::{spawn, Running, WhenFull};
+use super::{spawn, Running, WhenFull, WAITING_RING};
 
 /// Samples per chunk when running as fast as possible.
 const FAST_CHUNK: usize = 1 << 14;
@@ -47,7 +47,7 @@ impl SimSpec {
         spawn(
             description,
             !self.fast,
-            WhenFull::Wait,
+            WhenFull::Wait(WAITING_RING),
             move |sink, started| {
                 sink.counters.set_connected(true);
                 let mut made: u64 = 0;
