@@ -254,7 +254,8 @@ impl<W: Write> Recorder<W> {
             let current = self.interval.unwrap_or(0);
             let started = current as f64 * self.every;
             let has_data = self.stats.iter().any(|s| s.samples > 0) || !self.row_flags.is_empty();
-            if has_data || t > started {
+            // An end a rounding error past an interval's start begins no interval.
+            if has_data || t > started + self.every * 1e-9 {
                 self.write_interval(current)?;
             }
         }
@@ -522,21 +523,23 @@ mod tests {
         let dt = 1e-4;
         for chunk_len in [1, 7, 4096, 16_384, 49_999, 100_000] {
             let mut r = recorder(1.0);
-            let mut first = 0usize;
+            let (mut first, mut last_t) = (0usize, 0.0);
             while first < 100_000 {
                 let n = chunk_len.min(100_000 - first);
-                r.handle(&Event::Samples(Chunk {
+                let chunk = Chunk {
                     t0: first as f64 * dt,
                     dt,
                     samples: FlatCounts {
                         channels: 1,
                         counts: vec![2000; n],
                     },
-                }))
-                .unwrap();
+                };
+                last_t = chunk.time(n - 1);
+                r.handle(&Event::Samples(chunk)).unwrap();
                 first += n;
             }
-            r.finish(10.0).unwrap();
+            // As a replay ends: one sample period after the last sample's stamp.
+            r.finish(last_t + dt).unwrap();
             let counts: Vec<String> = data_rows(r).iter().map(|row| row[2].clone()).collect();
             assert_eq!(counts, vec!["10000"; 10], "chunks of {chunk_len}");
         }

@@ -8,7 +8,7 @@ use std::time::{Duration, Instant};
 
 #[cfg(test)]
 use dbtrail::decode::DecodeStats;
-use dbtrail::decode::{plain_prefix, Decoder, FlatCounts, Format};
+use dbtrail::decode::{frame_grid, frames_ahead, plain_prefix, Decoder, FlatCounts, Format};
 use dbtrail::record::{Chunk, Event};
 use rayon::prelude::*;
 
@@ -150,15 +150,22 @@ fn decode(decoder: &mut Decoder, bytes: &[u8]) -> FlatCounts {
     samples
 }
 
-/// Decodes one read. An ASCII read is cut at line ends into parts, all read ahead at once
-/// on all cores as plain one-number lines; then the decoder takes each part's lines in
-/// turn only when it reaches them in the state that would have read them so
-/// (`Decoder::accept_plain`), and feeds the rest of the part as usual. So the samples and
+/// Decodes one read, in parts read ahead on all cores when the mode is known; the
+/// decoder takes each part's result in turn only when it reaches the part in the state
+/// that would have read it so, and feeds the part as usual otherwise. So the samples and
 /// counters are those of one sequential pass.
 fn decode_block(decoder: &mut Decoder, bytes: &[u8], sequential: bool) -> Vec<FlatCounts> {
-    if sequential || decoder.format() != Some(Format::Ascii) {
-        return vec![decode(decoder, bytes)];
+    match decoder.format() {
+        _ if sequential => vec![decode(decoder, bytes)],
+        Some(Format::Ascii) => decode_lines_ahead(decoder, bytes),
+        Some(Format::Binary) => decode_frames_ahead(decoder, bytes),
+        _ => vec![decode(decoder, bytes)],
     }
+}
+
+/// ASCII: the parts meet at line ends and are read ahead as plain one-number lines
+/// (`Decoder::accept_plain`).
+fn decode_lines_ahead(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
     let parts = line_parts(bytes, PARTS);
     let ahead: Vec<(Vec<u32>, usize, u64)> = parts
         .par_iter()
@@ -184,6 +191,60 @@ fn decode_block(decoder: &mut Decoder, bytes: &[u8], sequential: bool) -> Vec<Fl
             }
         })
         .collect()
+}
+
+/// Binary: the parts meet on the grid of the read's first frame, and all but the first
+/// (which may finish a frame cut by the last read, and goes to the decoder meanwhile) are
+/// scanned ahead (`Decoder::accept_ahead`).
+fn decode_frames_ahead(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
+    let Some((start, frame)) = frame_grid(bytes) else {
+        return vec![decode(decoder, bytes)];
+    };
+    let parts = grid_parts(bytes, start, frame, PARTS);
+    let (first, ahead) = rayon::join(
+        || decode(decoder, parts[0]),
+        || {
+            parts[1..]
+                .par_iter()
+                .map(|part| {
+                    let mut samples = FlatCounts {
+                        channels: 0,
+                        counts: Vec::with_capacity(part.len() / 4 + 16),
+                    };
+                    let ahead = frames_ahead(part, &mut samples);
+                    (samples, ahead)
+                })
+                .collect::<Vec<_>>()
+        },
+    );
+    let rest = parts[1..]
+        .iter()
+        .zip(ahead)
+        .map(|(part, (samples, ahead))| {
+            if decoder.accept_ahead(&ahead, part) {
+                samples
+            } else {
+                decode(decoder, part)
+            }
+        });
+    std::iter::once(first).chain(rest).collect()
+}
+
+/// `bytes` cut into up to `parts` pieces of about equal length, the cuts on the grid of
+/// frames of `frame` bytes from `start`.
+fn grid_parts(bytes: &[u8], start: usize, frame: usize, parts: usize) -> Vec<&[u8]> {
+    let mut pieces = Vec::with_capacity(parts);
+    let mut from = 0;
+    for k in 1..parts {
+        let target = (bytes.len() * k / parts).saturating_sub(start);
+        let cut = start + target / frame * frame;
+        if cut > from && cut < bytes.len() {
+            pieces.push(&bytes[from..cut]);
+            from = cut;
+        }
+    }
+    pieces.push(&bytes[from..]);
+    pieces
 }
 
 /// `bytes` cut into up to `parts` pieces of about equal length, each but the last ending
@@ -323,6 +384,49 @@ mod tests {
             sizes in proptest::collection::vec(1usize..5000, 1..6),
         ) {
             let bytes = lines.concat().into_bytes();
+            let (want, want_stats) = one_pass(&bytes, read);
+            let (got, got_stats) = in_parts(&bytes, sizes);
+            prop_assert_eq!(got, want);
+            prop_assert_eq!(got_stats, want_stats);
+        }
+    }
+
+    /// Binary frames of one channel, with sequence gaps, a restart, damaged bytes and junk
+    /// between frames. (A stream whose channel count changes is cut or padded to its
+    /// first frame's count chunk by chunk, so it has no one-pass answer to compare with.)
+    fn frames() -> impl Strategy<Value = Vec<u8>> {
+        let frame = (0u8..30, any::<u16>(), any::<u16>()).prop_map(|(kind, a, b)| (kind, a, b));
+        proptest::collection::vec(frame, 1..300).prop_map(|frames| {
+            let mut bytes = Vec::new();
+            let mut seq = 0u16;
+            for (kind, a, b) in frames {
+                match kind {
+                    0 => seq = seq.wrapping_add(3),
+                    1 => seq = 0,
+                    2 => bytes.extend_from_slice(&[0xA5, 0x5A, 7]),
+                    3 => bytes.extend_from_slice(&b.to_le_bytes()),
+                    _ => {}
+                }
+                let at = bytes.len();
+                dbtrail::decode::encode_binary(seq, &[a], &mut bytes);
+                if kind == 4 {
+                    bytes[at + 5] ^= 0x10;
+                }
+                seq = seq.wrapping_add(1);
+            }
+            bytes
+        })
+    }
+
+    proptest! {
+        // Source: the sequential decoder is the reference, as above, for binary frames
+        // scanned ahead in parts on the grid of each read's first frame.
+        #[test]
+        fn binary_in_parts_equals_one_pass(
+            bytes in frames(),
+            read in 8usize..3000,
+            sizes in proptest::collection::vec(1usize..5000, 1..6),
+        ) {
             let (want, want_stats) = one_pass(&bytes, read);
             let (got, got_stats) = in_parts(&bytes, sizes);
             prop_assert_eq!(got, want);
