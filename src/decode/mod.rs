@@ -180,6 +180,10 @@ impl FrameSink for FlatCounts {
 
     #[inline]
     fn push_le_counts(&mut self, bytes: &[u8]) {
+        if let (1, &[lo, hi]) = (self.channels, bytes) {
+            self.counts.push(u32::from(u16::from_le_bytes([lo, hi])));
+            return;
+        }
         if self.counts.is_empty() {
             self.channels = bytes.len() / 2;
         }
