@@ -24,6 +24,8 @@ pub enum AppEvent {
     Samples(Vec<Event>),
     /// The source's link counters.
     Link(LinkSnapshot),
+    /// A replay has reached the end of its file: nothing more will come.
+    SourceEnded,
 }
 
 /// What the loop must do after an update.
@@ -179,6 +181,8 @@ pub struct App {
     pub last_sample_t: Option<f64>,
     /// Whether the source is connected.
     pub connected: bool,
+    /// Whether a replay has reached the end of its file.
+    pub ended: bool,
     /// The moving average.
     pub averager: Averager,
     /// Min and max hold since the reset.
@@ -225,6 +229,7 @@ impl App {
             last: None,
             last_sample_t: None,
             connected: true,
+            ended: false,
             averager: Averager::new(Averaging::Samples(16)),
             holds: PowerStats::default(),
             holds_since: 0.0,
@@ -250,6 +255,10 @@ impl App {
             AppEvent::Link(link) => {
                 self.connected = link.connected;
                 self.link = link;
+                Vec::new()
+            }
+            AppEvent::SourceEnded => {
+                self.ended = true;
                 Vec::new()
             }
             AppEvent::Tick { now } => self.tick(now),

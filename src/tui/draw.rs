@@ -111,7 +111,9 @@ fn warning_words(flags: Flags) -> Vec<&'static str> {
 
 fn warning_banner(app: &App, area: Rect, buf: &mut Buffer) {
     let mut words = warning_words(app.active_warnings());
-    if !app.connected {
+    if app.ended {
+        words.insert(0, "END OF REPLAY: last reading greyed");
+    } else if !app.connected {
         words.insert(0, "SOURCE DISCONNECTED: retrying; last reading greyed");
     }
     if words.is_empty() {
@@ -395,7 +397,9 @@ fn status_line(app: &App) -> Line<'static> {
         link.overruns,
         link.reconnects
     ))];
-    if !app.connected {
+    if app.ended {
+        spans.push(Span::styled(" │ ENDED", paint(app, Color::Yellow, None)));
+    } else if !app.connected {
         spans.push(Span::styled(
             " │ DISCONNECTED",
             paint(app, Color::Red, None).add_modifier(Modifier::BOLD),

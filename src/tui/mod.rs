@@ -94,6 +94,9 @@ async fn event_loop(
             _ = tick.tick() => {
                 let mut commands = drain(&mut app, &mut session.source, &mut log);
                 app.update(AppEvent::Link(session.source.counters.snapshot()));
+                if !session.source.live && session.source.exhausted() && !app.ended {
+                    app.update(AppEvent::SourceEnded);
+                }
                 commands.extend(app.update(AppEvent::Tick { now: session.source.now() }));
                 if let Err(e) = terminal.draw(|frame| draw::draw(&app, frame)) {
                     break Err(e).context("cannot draw the screen");

@@ -241,6 +241,19 @@ fn a_disconnected_source_is_shown_as_such() {
 }
 
 #[test]
+fn a_replay_at_its_end_says_so_instead_of_retrying() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    app.update(AppEvent::Samples(vec![Event::LinkDown { t: 0.5 }]));
+    app.update(AppEvent::SourceEnded);
+    let lines = screen(&app, 100, 30);
+    assert!(lines[1].contains("END OF REPLAY"), "{lines:#?}");
+    assert!(!has(&lines, "DISCONNECTED"), "{lines:#?}");
+    assert!(!has(&lines, "retrying"), "{lines:#?}");
+    assert!(has(&lines, "ENDED"));
+}
+
+#[test]
 fn a_silent_source_shows_the_time_since_its_last_sample() {
     let mut app = app();
     sample(&mut app, 1.0, 1500);
