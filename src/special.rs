@@ -98,7 +98,12 @@ pub fn i0e(x: f64) -> f64 {
 
 /// ln I0(x), accurate for tiny x (where it is about x²/4) and finite for huge x.
 pub fn ln_i0(x: f64) -> f64 {
-    ln_i0_and_slope(x).0
+    let x = x.abs();
+    if x < ASYMPTOTIC_FROM {
+        i0_minus_one_series(x).0.ln_1p()
+    } else {
+        x + i0e_asymptotic(x).ln()
+    }
 }
 
 /// ln I0(x) and its slope d/dx ln I0(x) = I1(x)/I0(x), for x ≥ 0 (for root finding by
@@ -112,11 +117,9 @@ pub fn ln_i0_and_slope(x: f64) -> (f64, f64) {
         (sum.ln_1p(), 2.0 * weighted / x / (1.0 + sum))
     } else {
         let i0_part = scaled_asymptotic_sum(x, 0.0);
-        let i1_part = scaled_asymptotic_sum(x, 4.0);
-        (
-            x + (i0_part / (2.0 * std::f64::consts::PI * x).sqrt()).ln(),
-            i1_part / i0_part,
-        )
+        let value = x + (i0_part / (2.0 * std::f64::consts::PI * x).sqrt()).ln();
+        // The ratio of the scaled sums: their common factor e^x/√(2πx) cancels.
+        (value, scaled_asymptotic_sum(x, 4.0) / i0_part)
     }
 }
 

@@ -299,8 +299,9 @@ impl Decoder {
     /// come next in the stream, when feeding those bytes would have done no more: the
     /// decoder is in ASCII mode, at the start of a line, on a one-channel stream that is
     /// not under suspicion. Otherwise it returns false, changes nothing, and the bytes
-    /// must be fed. So a file can be decoded in two parts on two threads, the later part
-    /// read ahead on the guess that it is plain, with the same result as feeding it whole.
+    /// must be fed. So a file can be decoded in parts on several threads, the later parts
+    /// read ahead on the guess that they are plain, with the same result as feeding it
+    /// whole.
     pub fn accept_plain(&mut self, lines: u64) -> bool {
         match &mut self.state {
             State::Ascii(d) => d.accept_plain(lines, &mut self.stats),

@@ -49,8 +49,8 @@ impl ReplaySpec {
 
 /// Bytes read at a time.
 const READ_BYTES: usize = 1 << 20;
-/// Parts a read of an ASCII capture is cut into and read ahead on all cores: small enough
-/// that the cores share them out evenly while the recorder takes its share.
+/// Parts a read is cut into and read ahead on all cores: small enough that the cores share
+/// them out evenly while the recorder takes its share.
 const PARTS: usize = 8;
 /// Events the ring holds for a replay: two reads' worth of parts (about 1.6 MB).
 const REPLAY_RING: usize = 2 * PARTS;
@@ -155,10 +155,9 @@ fn decode(decoder: &mut Decoder, bytes: &[u8]) -> FlatCounts {
 /// that would have read it so, and feeds the part as usual otherwise. So the samples and
 /// counters are those of one sequential pass.
 fn decode_block(decoder: &mut Decoder, bytes: &[u8], sequential: bool) -> Vec<FlatCounts> {
-    match decoder.format() {
-        _ if sequential => vec![decode(decoder, bytes)],
-        Some(Format::Ascii) => decode_lines_ahead(decoder, bytes),
-        Some(Format::Binary) => decode_frames_ahead(decoder, bytes),
+    match (sequential, decoder.format()) {
+        (false, Some(Format::Ascii)) => decode_lines_ahead(decoder, bytes),
+        (false, Some(Format::Binary)) => decode_frames_ahead(decoder, bytes),
         _ => vec![decode(decoder, bytes)],
     }
 }
