@@ -110,6 +110,16 @@ fn statistics(c: &mut Criterion) {
             stats
         })
     });
+    // A steady level with a few counts of noise, as in a soak: blocks of codes that lie in
+    // one run of the table.
+    let steady: Vec<u32> = (0..SAMPLES as u32).map(|i| 1260 + (i * 7919) % 7).collect();
+    group.bench_function("interval stats over steady codes", |b| {
+        b.iter(|| {
+            let mut stats = PowerStats::default();
+            stats.add_codes(&cal, black_box(&steady));
+            stats
+        })
+    });
     group.bench_function("merge", |b| {
         let mut part = PowerStats::default();
         part.add_codes(&cal, &counts);

@@ -131,6 +131,17 @@ fn span_volts(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
     }
 }
 
+fn dense_watts(table: &[CodeEntry]) -> Box<[f64; TABLE_MAX_CODES as usize]> {
+    let mut watts = vec![0.0; TABLE_MAX_CODES as usize];
+    for (slot, entry) in watts.iter_mut().zip(table) {
+        *slot = entry.watts;
+    }
+    watts
+        .into_boxed_slice()
+        .try_into()
+        .expect("a vector of the table's largest length")
+}
+
 /// The largest ADC whose every code gets a precomputed reading (16 bits: 65536 entries).
 pub const TABLE_MAX_CODES: u32 = 1 << 16;
 
@@ -165,6 +176,66 @@ pub struct Calibration {
     span_volts: (f64, f64),
     limits: Limits,
     table: Arc<Vec<CodeEntry>>,
+    runs: Arc<CodeRuns>,
+}
+
+/// The table arranged for whole blocks of codes: when a block's lowest and highest code
+/// lie in one run of codes that are values with the same flags and levels that move one
+/// way only, its extremes and flags are those of its end codes, and only its watts need a
+/// look-up per code.
+#[derive(Debug, Clone)]
+pub struct CodeRuns {
+    /// Each code's watts, packed densely for the summing loop, in an array as long as
+    /// the largest table so that a 16-bit index needs no bounds check (only the codes'
+    /// pages are touched).
+    pub watts: Box<[f64; TABLE_MAX_CODES as usize]>,
+    /// For each code that is a value, the last code of the run it lies in.
+    run_end: Vec<Option<u32>>,
+    /// Levels fall as codes rise (a detector whose output falls with power).
+    falling: bool,
+}
+
+impl CodeRuns {
+    fn of(table: &[CodeEntry]) -> CodeRuns {
+        let values = || table.iter().filter(|e| e.valid == 1);
+        let falling = match (values().next(), values().next_back()) {
+            (Some(first), Some(last)) => last.dbm < first.dbm,
+            _ => false,
+        };
+        let joins = |a: &CodeEntry, b: &CodeEntry| {
+            let steady = if falling {
+                b.dbm <= a.dbm
+            } else {
+                b.dbm >= a.dbm
+            };
+            a.valid == 1 && b.valid == 1 && a.flags == b.flags && steady
+        };
+        let mut run_end: Vec<Option<u32>> = (0..table.len() as u32)
+            .map(|code| (table[code as usize].valid == 1).then_some(code))
+            .collect();
+        for code in (1..table.len()).rev() {
+            if joins(&table[code - 1], &table[code]) {
+                run_end[code - 1] = run_end[code];
+            }
+        }
+        CodeRuns {
+            watts: dense_watts(table),
+            run_end,
+            falling,
+        }
+    }
+
+    /// The codes whose entries give the lowest and the highest level of every code from
+    /// `lo` to `hi`, when those codes lie in one run.
+    #[inline]
+    pub fn extreme_codes(&self, lo: u32, hi: u32) -> Option<(u32, u32)> {
+        let end = (*self.run_end.get(lo as usize)?)?;
+        match (hi <= end, self.falling) {
+            (false, _) => None,
+            (true, false) => Some((lo, hi)),
+            (true, true) => Some((hi, lo)),
+        }
+    }
 }
 
 impl Calibration {
@@ -194,8 +265,10 @@ impl Calibration {
             span_volts,
             limits: profile.limits,
             table: Arc::new(Vec::new()),
+            runs: Arc::new(CodeRuns::of(&[])),
         };
         cal.table = Arc::new(cal.build_table());
+        cal.runs = Arc::new(CodeRuns::of(&cal.table));
         cal
     }
 
@@ -246,6 +319,11 @@ impl Calibration {
     /// The precomputed entries, one per ADC code from 0 (empty above 16 bits).
     pub fn code_table(&self) -> &[CodeEntry] {
         &self.table
+    }
+
+    /// The table arranged by runs of codes, for statistics over blocks of codes.
+    pub fn code_runs(&self) -> &CodeRuns {
+        &self.runs
     }
 
     /// The precomputed entry for an ADC code, when the table covers it.

@@ -35,16 +35,71 @@ impl From<&PowerStats> for TableRun {
     }
 }
 
+/// Codes taken as one block by `add_codes`: a multiple of four, so that a code adds to the
+/// same partial sum whichever way it is taken.
+const CODE_BLOCK: usize = 256;
+/// Blocks taken the long way after one that did not lie in one run.
+const BLOCKS_UNLOOKED: u32 = 3;
+
+/// Hands each code with one of four partial sums in turn (the last few with the first),
+/// so four chains of additions run side by side.
+#[inline(always)]
+fn sum_by_fours(codes: &[u32], sums: &mut [f64; 4], mut step: impl FnMut(u32, &mut f64)) {
+    let [s0, s1, s2, s3] = sums;
+    let groups = codes.chunks_exact(4);
+    let rest = groups.remainder();
+    for group in groups {
+        step(group[0], s0);
+        step(group[1], s1);
+        step(group[2], s2);
+        step(group[3], s3);
+    }
+    for &code in rest {
+        step(code, s0);
+    }
+}
+
 impl TableRun {
+    /// Takes a block whose codes all lie in one run of the table (see `CodeRuns`): watts
+    /// looked up per code, the rest from the block's end codes. False, taking nothing,
+    /// for any other block.
+    #[inline(always)]
+    fn take_steady(&mut self, cal: &Calibration, block: &[u32], sums: &mut [f64; 4]) -> bool {
+        let runs = cal.code_runs();
+        let (lo, hi) = block.iter().fold((u32::MAX, 0), |(lo, hi), &code| {
+            (lo.min(code), hi.max(code))
+        });
+        let Some((lowest, highest)) = runs.extreme_codes(lo, hi) else {
+            return false;
+        };
+        // Every code of the block is at most `hi`, inside the table: the mask only
+        // spares the loop its bounds checks.
+        let watts = &*runs.watts;
+        sum_by_fours(block, sums, |code, sum| {
+            *sum += watts[code as usize & 0xFFFF]
+        });
+        let table = cal.code_table();
+        let (low, high) = (&table[lowest as usize], &table[highest as usize]);
+        self.taken += block.len() as u64;
+        self.valid += block.len() as u64;
+        self.flags |= low.flags;
+        self.widen(low.dbm + low.exclude, high.dbm - high.exclude);
+        true
+    }
+
     #[inline(always)]
     fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
         self.taken += 1;
         self.flags |= entry.flags;
         self.valid += u64::from(entry.valid);
         *sum_w += entry.watts;
-        // Plain comparisons (one instruction each): a NaN key, as −∞ + ∞ for a bound at
-        // zero output, compares false and leaves the extreme as it was.
-        let (low_key, high_key) = (entry.dbm + entry.exclude, entry.dbm - entry.exclude);
+        self.widen(entry.dbm + entry.exclude, entry.dbm - entry.exclude);
+    }
+
+    /// Plain comparisons (one instruction each): a NaN key, as −∞ + ∞ for a bound at zero
+    /// output, compares false and leaves the extreme as it was.
+    #[inline(always)]
+    fn widen(&mut self, low_key: f64, high_key: f64) {
         self.lo = if low_key < self.lo { low_key } else { self.lo };
         self.hi = if high_key > self.hi {
             high_key
@@ -110,22 +165,26 @@ impl PowerStats {
     pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
         let table = cal.code_table();
         let mut run = TableRun::from(&*self);
-        let mut step = |code: u32, sum: &mut f64| match table.get(code as usize) {
-            Some(entry) => run.take(entry, sum),
-            None => self.add_untabled(cal, code),
-        };
-        let (mut s0, mut s1, mut s2, mut s3) = (0.0, 0.0, 0.0, 0.0);
-        let groups = codes.chunks_exact(4);
-        let rest = groups.remainder();
-        for group in groups {
-            step(group[0], &mut s0);
-            step(group[1], &mut s1);
-            step(group[2], &mut s2);
-            step(group[3], &mut s3);
+        let mut sums = [0.0; 4];
+        // Codes that swing over the table rarely fall in one run: after a block that did
+        // not, the next few go the long way without looking (the result is the same).
+        let mut unlooked = 0;
+        for block in codes.chunks(CODE_BLOCK) {
+            if unlooked > 0 {
+                unlooked -= 1;
+            } else if run.take_steady(cal, block, &mut sums) {
+                continue;
+            } else {
+                unlooked = BLOCKS_UNLOOKED;
+            }
+            sum_by_fours(block, &mut sums, |code, sum| {
+                match table.get(code as usize) {
+                    Some(entry) => run.take(entry, sum),
+                    None => self.add_untabled(cal, code),
+                }
+            });
         }
-        for &code in rest {
-            step(code, &mut s0);
-        }
+        let [s0, s1, s2, s3] = sums;
         self.samples += run.taken;
         self.valid += run.valid;
         self.sum_w += (s0 + s1) + (s2 + s3);

@@ -98,6 +98,36 @@ fn a_falling_output_log_amp_is_flagged_the_right_way_round() {
     assert_eq!(cal.reading(top + 500.0).flags, Flags::empty());
 }
 
+// Source: common practice — a detector's level moves one way with its output (up for a
+// diode or most log amps, down for a negative-slope log amp). A run of the code table is a
+// stretch of codes that are all values with one set of flags, so a block of codes inside
+// one takes its extremes from the run's order and its flags from any of its codes.
+#[test]
+fn runs_of_the_code_table_hold_values_of_one_kind_in_level_order() {
+    for (slope, intercept) in [(0.025, -80.0), (-0.025, 20.0)] {
+        let cal = Calibration::new(&log_amp_profile(slope, intercept, CORRECTIONS), None, 0.0);
+        let (table, runs) = (cal.code_table(), cal.code_runs());
+        for lo in (0..4096u32).step_by(7) {
+            for hi in [lo, lo + 3, lo + 40, lo + 900, 4095, 4096, u32::MAX] {
+                let Some((lowest, highest)) = runs.extreme_codes(lo, hi) else {
+                    continue;
+                };
+                let (lowest, highest) = (&table[lowest as usize], &table[highest as usize]);
+                for entry in &table[lo as usize..=hi as usize] {
+                    assert_eq!((entry.valid, entry.flags), (1, table[lo as usize].flags));
+                    assert!(lowest.dbm <= entry.dbm && entry.dbm <= highest.dbm);
+                }
+            }
+        }
+        // −20 to 0 dBm at the reference plane (−50 to −30 dBm at the detector, behind the
+        // 30 dB offset) is plain: one run, so blocks there take the short way, the lowest
+        // level at the −20 dBm code whichever way the output moves.
+        let (a, b) = (cal.counts_for(-20.0) as u32, cal.counts_for(0.0) as u32);
+        let ends = runs.extreme_codes(a.min(b), a.max(b));
+        assert_eq!(ends, Some((a, b)), "slope {slope}");
+    }
+}
+
 // Source: worked example — 1 mV per count over 25 mV per dB is 0.04 dB per count.
 #[test]
 fn resolution_of_a_log_amp_is_constant() {
@@ -163,12 +193,27 @@ mod batched_statistics {
         // flags over the readings). The recorder's batched path, with its partial sums,
         // must equal the readings of the exact chain added one at a time, for any run
         // length and any mix of codes below span, clipped and over the ADC's full scale.
+        // Steady codes (a level with a few counts of noise, now and then a code from
+        // anywhere) and slow ramps across the flags' edges, over several blocks, on a
+        // detector whose output rises with power and on one whose output falls, exercise
+        // the blocks taken by runs of the table.
         #[test]
         fn batched_codes_equal_readings_added_one_by_one(
-            codes in proptest::collection::vec(prop_oneof![0u32..4096, 4000u32..4200, any::<u32>()], 0..70),
+            codes in prop_oneof![
+                proptest::collection::vec(prop_oneof![0u32..4096, 4000u32..4200, any::<u32>()], 0..70),
+                (0u32..4096, proptest::collection::vec(prop_oneof![20 => -3i64..=3, 1 => -5000i64..5000], 0..1100))
+                    .prop_map(|(level, noise)| noise.iter().map(|n| (i64::from(level) + n).max(0) as u32).collect()),
+                (0u32..4096, 1u32..4, 0usize..1100)
+                    .prop_map(|(start, step, n)| (0..n as u32).map(|i| start + i * step / 3).collect()),
+            ],
             width in 1usize..4,
+            falling in any::<bool>(),
         ) {
-            let cal = Calibration::new(&log_amp_profile(0.025, -80.0, CORRECTIONS), Some(100e6), 0.0);
+            let profile = match falling {
+                false => log_amp_profile(0.025, -80.0, CORRECTIONS),
+                true => log_amp_profile(-0.025, 20.0, CORRECTIONS),
+            };
+            let cal = Calibration::new(&profile, Some(100e6), 0.0);
             let mut batched = PowerStats::default();
             batched.add_codes(&cal, &codes);
             let mut channel = PowerStats::default();
