@@ -68,12 +68,16 @@ const SYNC_EVERY: Duration = Duration::from_secs(2);
 const LIVE_GRACE_S: f64 = 0.1;
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let loaded = source_args::load(args.reading.profile.as_ref(), &args.source)?;
     let freq = source_args::frequency(args.reading.freq, &args.source);
     let (out, fresh) = open_output(&args.out, args.append, args.force)?;
     let stop = install_signal_flag().runtime()?;
     let until = args.duration.map(|d| d.as_secs_f64());
-    let mut source = source_args::start(&args.source, &args.link, &loaded.profile, until)?;
+    let (loaded, mut source) = source_args::load_and_start(
+        args.reading.profile.as_ref(),
+        &args.source,
+        &args.link,
+        until,
+    )?;
     // Built while the source starts reading: its samples wait in the ring meanwhile.
     let cal = Calibration::new(&loaded.profile, freq, args.reading.offset);
     let context = RunContext {

@@ -124,13 +124,26 @@ pub fn load(profile: Option<&PathBuf>, source: &SourceArgs) -> Result<LoadedProf
     }
 }
 
-/// Opens the chosen source and starts its thread; `until` bounds a simulated run.
-pub fn start(
+/// Loads the profile and starts the chosen source. A capture or a port starts first, its
+/// first samples waiting in the ring while the profile's model is fitted; the simulator
+/// needs the profile to start.
+pub fn load_and_start(
+    profile: Option<&PathBuf>,
     source: &SourceArgs,
     link: &LinkArgs,
-    profile: &Profile,
     until: Option<f64>,
-) -> Result<Running, Failure> {
+) -> Result<(LoadedProfile, Running), Failure> {
+    if let Some(running) = start_stream(source, link)? {
+        return Ok((load(profile, source)?, running));
+    }
+    let loaded = load(profile, source)?;
+    let running = start_simulator(source, link, &loaded.profile, until);
+    Ok((loaded, running))
+}
+
+/// Opens the chosen port or capture and starts its thread; None when the source is the
+/// simulator.
+fn start_stream(source: &SourceArgs, link: &LinkArgs) -> Result<Option<Running>, Failure> {
     if let Some(path) = &source.port {
         let port = open_port(path, link.baud).bad_input()?;
         let spec = SerialSpec {
@@ -138,7 +151,7 @@ pub fn start(
             baud: link.baud,
             format: link.format,
         };
-        return Ok(spec.start(port));
+        return Ok(Some(spec.start(port)));
     }
     if let Some(path) = &source.replay {
         let file = std::fs::File::open(path)
@@ -150,17 +163,27 @@ pub fn start(
             realtime: link.realtime,
             format: link.format,
         };
-        return Ok(spec.start(file));
+        return Ok(Some(spec.start(file)));
     }
+    Ok(None)
+}
+
+/// Starts the simulator made from `profile`; `until` bounds its run.
+fn start_simulator(
+    source: &SourceArgs,
+    link: &LinkArgs,
+    profile: &Profile,
+    until: Option<f64>,
+) -> Running {
     let scenario = source.demo.unwrap_or(Scenario::Soak);
     let simulator = Simulator::new(profile, scenario, link.rate, link.seed);
-    Ok(SimSpec {
+    SimSpec {
         simulator,
         fast: link.fast,
         until,
         seed: link.seed,
     }
-    .start())
+    .start()
 }
 
 /// The frequency to calibrate at: `--freq`, else the demo scenario's, else the profile's.

@@ -44,12 +44,16 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
         ))
         .bad_input();
     }
-    let loaded = source_args::load(args.reading.profile.as_ref(), &args.source)?;
     let freq = source_args::frequency(args.reading.freq, &args.source);
     // A screen shows the present: files and the simulator run at their own pace.
     args.link.realtime = true;
     args.link.fast = false;
-    let source = source_args::start(&args.source, &args.link, &loaded.profile, None)?;
+    let (loaded, source) = source_args::load_and_start(
+        args.reading.profile.as_ref(),
+        &args.source,
+        &args.link,
+        None,
+    )?;
     let mut app = App::new(
         Arc::new(loaded.profile),
         freq,
