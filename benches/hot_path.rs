@@ -17,6 +17,11 @@ fn counts() -> Vec<u32> {
         .collect()
 }
 
+/// A steady level with a few counts of noise, as in a soak.
+fn steady_counts() -> Vec<u32> {
+    (0..SAMPLES as u32).map(|i| 1260 + (i * 7919) % 7).collect()
+}
+
 fn decoding(c: &mut Criterion) {
     let counts = counts();
     let mut ascii = Vec::new();
@@ -25,10 +30,16 @@ fn decoding(c: &mut Criterion) {
         encode_ascii(&[v], &mut ascii);
         encode_binary(i as u16, &[v as u16], &mut binary);
     }
+    // A steady level (every line four digits), as a soak streams.
+    let mut steady = Vec::new();
+    for &v in &steady_counts() {
+        encode_ascii(&[v], &mut steady);
+    }
     let mut group = c.benchmark_group("decode");
     group.throughput(Throughput::Elements(SAMPLES as u64));
     for (name, bytes, format) in [
         ("ascii", &ascii, Format::Ascii),
+        ("ascii steady", &steady, Format::Ascii),
         ("binary", &binary, Format::Binary),
     ] {
         group.bench_function(name, |b| {
@@ -110,9 +121,8 @@ fn statistics(c: &mut Criterion) {
             stats
         })
     });
-    // A steady level with a few counts of noise, as in a soak: blocks of codes that lie in
-    // one run of the table.
-    let steady: Vec<u32> = (0..SAMPLES as u32).map(|i| 1260 + (i * 7919) % 7).collect();
+    // Blocks of codes that lie in one run of the table.
+    let steady = steady_counts();
     group.bench_function("interval stats over steady codes", |b| {
         b.iter(|| {
             let mut stats = PowerStats::default();

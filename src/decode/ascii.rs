@@ -264,6 +264,8 @@ struct LineShape {
     end_bytes: u64,
     /// Moves the digits to the top of the word.
     shift: u32,
+    /// Four digits or fewer (a 12-bit ADC's counts): summed in half a word.
+    short: bool,
 }
 
 impl LineShape {
@@ -282,18 +284,30 @@ impl LineShape {
             end_mask: low_bytes(line.len()) & !low_bytes(digits),
             end_bytes: ending << (8 * digits),
             shift: 8 * (8 - digits as u32),
+            short: digits <= 4,
         })
     }
 
     /// Takes the lines of this shape from `at` on into `values[n..]`, up to the first
     /// other line or a full batch; returns the new count and position.
     #[inline(always)]
-    fn run(
+    fn run(&self, b: &[u8], at: usize, values: &mut [u32; BATCH], n: usize) -> (usize, usize) {
+        match self.short {
+            true => self.run_summing(b, at, values, n, |digits| {
+                sum_four_digits((digits >> 32) as u32)
+            }),
+            false => self.run_summing(b, at, values, n, sum_digits),
+        }
+    }
+
+    #[inline(always)]
+    fn run_summing(
         &self,
         b: &[u8],
         mut at: usize,
         values: &mut [u32; BATCH],
         mut n: usize,
+        sum: impl Fn(u64) -> u32,
     ) -> (usize, usize) {
         while n < BATCH {
             let Some(word) = b.get(at..at + 8) else {
@@ -306,7 +320,9 @@ impl LineShape {
             if not_digit | ((word & self.end_mask) ^ self.end_bytes) != 0 {
                 break;
             }
-            values[n] = sum_digits((digits << self.shift) & 0x0F0F_0F0F_0F0F_0F0F);
+            // The digits are the word's low bytes, 0 to 9 each once checked (no borrow
+            // reaches them); the shift drops the bytes after them off the top.
+            values[n] = sum(digits << self.shift);
             n += 1;
             at += self.len;
         }
@@ -375,6 +391,13 @@ fn sum_digits(digits: u64) -> u32 {
     v = (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF;
     v = (v.wrapping_mul(10000) + (v >> 32)) & 0x0000_0000_FFFF_FFFF;
     v as u32
+}
+
+/// As `sum_digits` for a number of up to four digits in the four bytes of a u32.
+#[inline(always)]
+fn sum_four_digits(digits: u32) -> u32 {
+    let v = (digits.wrapping_mul(10) + (digits >> 8)) & 0x00FF_00FF;
+    (v.wrapping_mul(100) + (v >> 16)) & 0xFFFF
 }
 
 fn is_blank(b: u8) -> bool {
