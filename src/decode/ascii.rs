@@ -266,6 +266,38 @@ struct LineShape {
     shift: u32,
     /// Four digits or fewer (a 12-bit ADC's counts): summed in half a word.
     short: bool,
+    /// The same layout over a block of `BLOCK_LINES` lines, word by word.
+    block: BlockMasks,
+}
+
+/// Lines checked at once by `LineShape::run_blocks`: their bytes fill whole words.
+const BLOCK_LINES: usize = 8;
+
+/// Which bytes of each word of a block of lines are digits and which are line ends (and
+/// what those hold); a block of lines of at most eight bytes is at most eight words.
+#[derive(Debug, Clone, Copy, Default)]
+struct BlockMasks {
+    digits: [u64; 8],
+    ends: [u64; 8],
+    end_bytes: [u64; 8],
+}
+
+impl BlockMasks {
+    fn of(digits: usize, ending: &[u8]) -> BlockMasks {
+        let len = digits + ending.len();
+        let mut masks = BlockMasks::default();
+        for at in 0..BLOCK_LINES * len {
+            let (word, byte) = (at / 8, 8 * (at % 8));
+            match (at % len).checked_sub(digits) {
+                None => masks.digits[word] |= 0xFF << byte,
+                Some(k) => {
+                    masks.ends[word] |= 0xFF << byte;
+                    masks.end_bytes[word] |= u64::from(ending[k]) << byte;
+                }
+            }
+        }
+        masks
+    }
 }
 
 impl LineShape {
@@ -278,6 +310,7 @@ impl LineShape {
         }
         let low_bytes = |n: usize| u64::MAX.checked_shr(64 - 8 * n as u32).unwrap_or(0);
         let ending: u64 = if end == 2 { 0x0A0D } else { 0x0A };
+        let ending_bytes: &[u8] = if end == 2 { b"\r\n" } else { b"\n" };
         Some(LineShape {
             len: line.len(),
             digit_nibbles: low_bytes(digits) & 0xF0F0_F0F0_F0F0_F0F0,
@@ -285,19 +318,94 @@ impl LineShape {
             end_bytes: ending << (8 * digits),
             shift: 8 * (8 - digits as u32),
             short: digits <= 4,
+            block: BlockMasks::of(digits, ending_bytes),
         })
     }
 
     /// Takes the lines of this shape from `at` on into `values[n..]`, up to the first
     /// other line or a full batch; returns the new count and position.
     #[inline(always)]
-    fn run(&self, b: &[u8], at: usize, values: &mut [u32; BATCH], n: usize) -> (usize, usize) {
-        match self.short {
-            true => self.run_summing(b, at, values, n, |digits| {
-                sum_four_digits((digits >> 32) as u32)
-            }),
-            false => self.run_summing(b, at, values, n, sum_digits),
+    fn run(
+        &self,
+        b: &[u8],
+        mut at: usize,
+        values: &mut [u32; BATCH],
+        mut n: usize,
+    ) -> (usize, usize) {
+        loop {
+            (n, at) = self.run_blocks(b, at, values, n);
+            // A block that holds another line, or the last bytes: a line at a time, up
+            // to the other line or a block's worth.
+            let from = n;
+            let limit = (n + BLOCK_LINES).min(BATCH);
+            (n, at) = match self.short {
+                true => self.run_summing(b, at, values, n, limit, |digits| {
+                    sum_four_digits((digits >> 32) as u32)
+                }),
+                false => self.run_summing(b, at, values, n, limit, sum_digits),
+            };
+            if n != from + BLOCK_LINES || n == BATCH {
+                return (n, at);
+            }
         }
+    }
+
+    /// Takes whole blocks of `BLOCK_LINES` lines of this shape: each block checked word
+    /// by word, then its numbers read (two at a time in a word when short).
+    #[inline(always)]
+    fn run_blocks(
+        &self,
+        b: &[u8],
+        mut at: usize,
+        values: &mut [u32; BATCH],
+        mut n: usize,
+    ) -> (usize, usize) {
+        let len = self.len;
+        // The block's words, and the word that starts its last line.
+        let span = (BLOCK_LINES - 1) * len + 8;
+        while n + BLOCK_LINES <= BATCH {
+            let Some(block) = b.get(at..at + span) else {
+                break;
+            };
+            if !self.block_fits(block) {
+                break;
+            }
+            let digits_at = |line: usize| word_at(block, line * len).wrapping_sub(ZEROS);
+            let out = &mut values[n..n + BLOCK_LINES];
+            if self.short {
+                for (pair, out) in out.chunks_exact_mut(2).enumerate() {
+                    let [first, second] = [2 * pair, 2 * pair + 1]
+                        .map(|line| ((digits_at(line) as u32) << (self.shift - 32)) as u64);
+                    let both = sum_two_four_digits(first | second << 32);
+                    out[0] = both as u32;
+                    out[1] = (both >> 32) as u32;
+                }
+            } else {
+                for (line, out) in out.iter_mut().enumerate() {
+                    *out = sum_digits(digits_at(line) << self.shift);
+                }
+            }
+            n += BLOCK_LINES;
+            at += BLOCK_LINES * len;
+        }
+        (n, at)
+    }
+
+    /// True when every line of the block has this shape: digits where digits belong and
+    /// the line end where it belongs. Byte-wise checks that no carry or borrow crosses.
+    #[inline(always)]
+    fn block_fits(&self, block: &[u8]) -> bool {
+        const HIGH: u64 = 0xF0F0_F0F0_F0F0_F0F0;
+        const LOW: u64 = 0x0F0F_0F0F_0F0F_0F0F;
+        let masks = &self.block;
+        let mut bad = 0;
+        for w in 0..self.len {
+            let word = word_at(block, 8 * w);
+            let not_digit = ((word & HIGH) ^ ZEROS)
+                | (((word & LOW) + 0x0606_0606_0606_0606) & 0x1010_1010_1010_1010);
+            bad |= (not_digit & masks.digits[w]) | ((word ^ masks.end_bytes[w]) & masks.ends[w]);
+        }
+        bad == 0
     }
 
     #[inline(always)]
@@ -307,14 +415,15 @@ impl LineShape {
         mut at: usize,
         values: &mut [u32; BATCH],
         mut n: usize,
+        limit: usize,
         sum: impl Fn(u64) -> u32,
     ) -> (usize, usize) {
-        while n < BATCH {
+        while n < limit {
             let Some(word) = b.get(at..at + 8) else {
                 break;
             };
             let word = u64::from_le_bytes(word.try_into().unwrap_or([0; 8]));
-            let digits = word.wrapping_sub(0x3030_3030_3030_3030);
+            let digits = word.wrapping_sub(ZEROS);
             let not_digit =
                 (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & self.digit_nibbles;
             if not_digit | ((word & self.end_mask) ^ self.end_bytes) != 0 {
@@ -391,6 +500,24 @@ fn sum_digits(digits: u64) -> u32 {
     v = (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF;
     v = (v.wrapping_mul(10000) + (v >> 32)) & 0x0000_0000_FFFF_FFFF;
     v as u32
+}
+
+/// ASCII '0' in every byte.
+const ZEROS: u64 = 0x3030_3030_3030_3030;
+
+/// The little-endian word at `bytes[at..]`, which holds at least eight bytes there.
+#[inline(always)]
+fn word_at(bytes: &[u8], at: usize) -> u64 {
+    let mut word = [0; 8];
+    word.copy_from_slice(&bytes[at..at + 8]);
+    u64::from_le_bytes(word)
+}
+
+/// `sum_four_digits` of each half of the word at once.
+#[inline(always)]
+fn sum_two_four_digits(digits: u64) -> u64 {
+    let v = (digits.wrapping_mul(10) + (digits >> 8)) & 0x00FF_00FF_00FF_00FF;
+    (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF
 }
 
 /// As `sum_digits` for a number of up to four digits in the four bytes of a u32.

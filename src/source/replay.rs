@@ -61,21 +61,25 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
     let dt = 1.0 / spec.rate_hz;
     sink.counters.set_connected(true);
     let mut before = decoder.stats();
-    let finished = decode_reads(&mut file, &mut decoder, spec.realtime, |parts, decoder| {
-        sink.counters.add_decoded(&before, &decoder.stats());
-        before = decoder.stats();
-        for chunk in parts
-            .into_iter()
-            .flat_map(|part| split(part, spec, &mut index, dt))
-        {
-            if spec.realtime {
-                pace(started, chunk.t0);
+    // On a worker of the pool: each read's parts are shared out from inside it, not
+    // handed in from outside and waited for.
+    let finished = rayon::scope(|_| {
+        decode_reads(&mut file, &mut decoder, spec.realtime, |parts, decoder| {
+            sink.counters.add_decoded(&before, &decoder.stats());
+            before = decoder.stats();
+            for chunk in parts
+                .into_iter()
+                .flat_map(|part| split(part, spec, &mut index, dt))
+            {
+                if spec.realtime {
+                    pace(started, chunk.t0);
+                }
+                if !sink.send(Event::Samples(chunk)) {
+                    return false;
+                }
             }
-            if !sink.send(Event::Samples(chunk)) {
-                return false;
-            }
-        }
-        true
+            true
+        })
     });
     if finished {
         sink.counters
