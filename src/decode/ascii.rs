@@ -87,16 +87,6 @@ impl AsciiDecoder {
             && !self.skip_partial
     }
 
-    /// Takes `lines` plain lines read elsewhere by [`plain_prefix`], when feeding their
-    /// bytes now would have done just that; false, and nothing changed, otherwise.
-    pub(super) fn accept_plain(&mut self, lines: u64, stats: &mut DecodeStats) -> bool {
-        if !self.on_plain_path() {
-            return false;
-        }
-        self.took_plain(lines, stats);
-        true
-    }
-
     fn took_plain(&mut self, lines: u64, stats: &mut DecodeStats) {
         if lines > 0 {
             self.channels = Some(1);
@@ -183,14 +173,6 @@ impl AsciiDecoder {
         }
         self.suspect = true;
     }
-}
-
-/// Reads the plain one-number lines (digits, then LF or CRLF) at the start of `bytes` as
-/// the decoder's fast path does, appending their values to `out`. Returns the bytes they
-/// take and how many lines they are. Nothing else is read: what follows is for
-/// [`Decoder::feed`](super::Decoder::feed).
-pub fn plain_prefix(bytes: &[u8], out: &mut Vec<u32>) -> (usize, u64) {
-    plain_lines(bytes, 0, |values| out.extend_from_slice(values))
 }
 
 /// Takes the plain lines (digits, then LF or CRLF) of `b` from `at` on, handing the values
@@ -645,33 +627,5 @@ mod tests {
         // neither break nor confirm a run.
         assert_eq!(stats.bad_lines, 3);
         assert_eq!(stats.comments, 1);
-    }
-
-    // Lines read ahead are taken only where feeding them would have read them so: at a
-    // line start of a one-channel stream that is not under suspicion.
-    #[test]
-    fn plain_lines_read_ahead_are_taken_only_where_they_would_be_read_so() {
-        let mut ahead = Vec::new();
-        assert_eq!(plain_prefix(b"12\n3456\r\n7,8\n9\n", &mut ahead), (9, 2));
-        assert_eq!(ahead, [12, 3456]);
-        let cases: [(&[u8], bool); 5] = [
-            (b"", true),
-            (b"5\n", true),
-            (b"5,6\n", false),
-            (b"5\nzz\n", false),
-            (b"5\n12", false),
-        ];
-        for (before, taken) in cases {
-            let mut d = AsciiDecoder::new();
-            let mut stats = DecodeStats::default();
-            d.feed(before, &mut stats, &mut Vec::new());
-            let frames = stats.frames;
-            assert_eq!(d.accept_plain(2, &mut stats), taken, "{before:?}");
-            assert_eq!(
-                stats.frames,
-                frames + if taken { 2 } else { 0 },
-                "{before:?}"
-            );
-        }
     }
 }

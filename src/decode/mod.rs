@@ -234,7 +234,7 @@ impl Format {
 mod ascii;
 mod binary;
 
-pub use ascii::{plain_prefix, AsciiDecoder};
+pub use ascii::AsciiDecoder;
 pub use binary::{frame_grid, frames_ahead, BinaryDecoder, FramesAhead};
 
 /// A decoder for either mode, recognising the mode first when asked to.
@@ -292,20 +292,6 @@ impl Decoder {
                     self.settle(format, out);
                 }
             }
-        }
-    }
-
-    /// Takes `lines` plain one-number lines that [`plain_prefix`] read from the bytes that
-    /// come next in the stream, when feeding those bytes would have done no more: the
-    /// decoder is in ASCII mode, at the start of a line, on a one-channel stream that is
-    /// not under suspicion. Otherwise it returns false, changes nothing, and the bytes
-    /// must be fed. So a file can be decoded in parts on several threads, the later parts
-    /// read ahead on the guess that they are plain, with the same result as feeding it
-    /// whole.
-    pub fn accept_plain(&mut self, lines: u64) -> bool {
-        match &mut self.state {
-            State::Ascii(d) => d.accept_plain(lines, &mut self.stats),
-            _ => false,
         }
     }
 

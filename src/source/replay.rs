@@ -8,7 +8,7 @@ use std::time::{Duration, Instant};
 
 #[cfg(test)]
 use dbtrail::decode::DecodeStats;
-use dbtrail::decode::{frame_grid, frames_ahead, plain_prefix, Decoder, FlatCounts, Format};
+use dbtrail::decode::{frame_grid, frames_ahead, Decoder, FlatCounts, Format};
 use dbtrail::record::{Chunk, Event};
 use rayon::prelude::*;
 
@@ -49,9 +49,11 @@ impl ReplaySpec {
 
 /// Bytes read at a time.
 const READ_BYTES: usize = 1 << 20;
-/// Parts a read is cut into and read ahead on all cores: small enough that the cores share
-/// them out evenly while the recorder takes its share.
+/// Parts a read is cut into (binary reads are scanned in parts on all cores): small
+/// enough that the cores share them out evenly while the recorder takes its share.
 const PARTS: usize = 8;
+/// Bytes of a part of an ASCII read.
+const PART_BYTES: usize = READ_BYTES / PARTS;
 /// Events the ring holds for a replay: two reads' worth of parts (about 1.6 MB).
 const REPLAY_RING: usize = 2 * PARTS;
 
@@ -89,9 +91,9 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
 }
 
 /// Decodes `reader` to its end, handing each read's samples (and the decoder, for its
-/// counters) to `take`; stops early, returning false, when `take` does. The next read goes
-/// on while one is decoded, and each read but the last is decoded up to its last line end,
-/// the rest of that line carried to the front of the next.
+/// counters) to `take`; stops early, returning false, when `take` does. Binary reads are
+/// scanned in parts on all cores while the next read goes on; ASCII reads are decoded on
+/// this thread, read after read (see `decode_block`).
 fn decode_reads<R: Read + Send>(
     reader: &mut R,
     decoder: &mut Decoder,
@@ -100,23 +102,25 @@ fn decode_reads<R: Read + Send>(
 ) -> bool {
     let (mut buf, mut spare) = (vec![0u8; READ_BYTES], vec![0u8; READ_BYTES]);
     let mut len = read_some(reader, &mut buf);
-    let mut at_end = len == 0;
     loop {
-        let cut = if at_end || decoder.format() == Some(Format::Binary) {
-            len
+        let ahead = len > 0 && !sequential && decoder.format() == Some(Format::Binary);
+        let (next, mut parts) = if ahead {
+            rayon::join(
+                || read_some(reader, &mut spare),
+                || decode_frames_ahead(decoder, &buf[..len]),
+            )
         } else {
-            memchr::memrchr(b'\n', &buf[..len]).map_or(len, |at| at + 1)
+            let parts = decode_block(decoder, &buf[..len]);
+            (
+                if len == 0 {
+                    0
+                } else {
+                    read_some(reader, &mut spare)
+                },
+                parts,
+            )
         };
-        let carry = len - cut;
-        spare[..carry].copy_from_slice(&buf[cut..len]);
-        let (read, mut parts) = rayon::join(
-            || match at_end {
-                true => 0,
-                false => read_some(reader, &mut spare[carry..]),
-            },
-            || decode_block(decoder, &buf[..cut], sequential),
-        );
-        if at_end {
+        if len == 0 {
             let mut rest = FlatCounts::default();
             decoder.finish(&mut rest);
             parts.push(rest);
@@ -124,12 +128,11 @@ fn decode_reads<R: Read + Send>(
         if !take(parts, decoder) {
             return false;
         }
-        if at_end {
+        if len == 0 {
             return true;
         }
         std::mem::swap(&mut buf, &mut spare);
-        len = carry + read;
-        at_end = read == 0;
+        len = next;
     }
 }
 
@@ -154,45 +157,16 @@ fn decode(decoder: &mut Decoder, bytes: &[u8]) -> FlatCounts {
     samples
 }
 
-/// Decodes one read, in parts read ahead on all cores when the mode is known; the
-/// decoder takes each part's result in turn only when it reaches the part in the state
-/// that would have read it so, and feeds the part as usual otherwise. So the samples and
-/// counters are those of one sequential pass.
-fn decode_block(decoder: &mut Decoder, bytes: &[u8], sequential: bool) -> Vec<FlatCounts> {
-    match (sequential, decoder.format()) {
-        (false, Some(Format::Ascii)) => decode_lines_ahead(decoder, bytes),
-        (false, Some(Format::Binary)) => decode_frames_ahead(decoder, bytes),
-        _ => vec![decode(decoder, bytes)],
-    }
-}
-
-/// ASCII: the parts meet at line ends and are read ahead as plain one-number lines
-/// (`Decoder::accept_plain`).
-fn decode_lines_ahead(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
-    let parts = line_parts(bytes, PARTS);
-    let ahead: Vec<(Vec<u32>, usize, u64)> = parts
-        .par_iter()
-        .map(|part| {
-            let mut values = Vec::with_capacity(part.len() / 3 + 16);
-            let (used, lines) = plain_prefix(part, &mut values);
-            (values, used, lines)
-        })
-        .collect();
-    parts
-        .iter()
-        .zip(ahead)
-        .map(|(part, (values, used, lines))| {
-            if lines > 0 && decoder.accept_plain(lines) {
-                let mut samples = FlatCounts {
-                    channels: 1,
-                    counts: values,
-                };
-                decoder.feed(&part[used..], &mut samples);
-                samples
-            } else {
-                decode(decoder, part)
-            }
-        })
+/// Decodes one read on this thread, in parts of `PART_BYTES` (the decoder carries a line
+/// or frame cut between them). For ASCII this beats reading ahead on both cores: a line
+/// costs little more to decode than its bytes cost to copy in, so the decoder keeps pace
+/// on the core whose cache the read just filled, while the recorder has the other core;
+/// read ahead in parts, the two cores' caches passing the bytes and the recorder
+/// competing for a core cost more than the decoding they share.
+fn decode_block(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
+    bytes
+        .chunks(PART_BYTES)
+        .map(|part| decode(decoder, part))
         .collect()
 }
 
@@ -247,24 +221,6 @@ fn grid_parts(bytes: &[u8], start: usize, frame: usize, parts: usize) -> Vec<&[u
         }
     }
     pieces.push(&bytes[from..]);
-    pieces
-}
-
-/// `bytes` cut into up to `parts` pieces of about equal length, each but the last ending
-/// just after a line end.
-fn line_parts(bytes: &[u8], parts: usize) -> Vec<&[u8]> {
-    let mut pieces = Vec::with_capacity(parts);
-    let mut start = 0;
-    for k in 1..parts {
-        let target = (bytes.len() * k / parts).max(start);
-        let Some(at) = memchr::memchr(b'\n', &bytes[target..]) else {
-            break;
-        };
-        let end = target + at + 1;
-        pieces.push(&bytes[start..end]);
-        start = end;
-    }
-    pieces.push(&bytes[start..]);
     pieces
 }
 
@@ -377,8 +333,8 @@ mod tests {
     }
 
     proptest! {
-        // Source: the sequential decoder is the reference; decoding each read in parts
-        // read ahead, with the reads cut anywhere and lines carried across them, must give
+        // Source: the decoder fed the whole stream in fixed reads is the reference; the
+        // replay's loop, with reads cut anywhere and lines carried across them, must give
         // the same samples and counters.
         #[test]
         fn decoding_in_parts_equals_one_pass(
@@ -435,24 +391,5 @@ mod tests {
             prop_assert_eq!(got, want);
             prop_assert_eq!(got_stats, want_stats);
         }
-    }
-
-    // The case the read-ahead is for: a plain capture, cut into parts of about equal bytes
-    // that meet at line ends (the last 888 of the 2000 lines are past the middle byte).
-    #[test]
-    fn a_plain_capture_is_decoded_in_parts_that_meet_at_lines() {
-        let bytes: Vec<u8> = (0..2000u32)
-            .flat_map(|v| format!("{v}\n").into_bytes())
-            .collect();
-        let halves = line_parts(&bytes, 2);
-        assert_eq!(halves.len(), 2);
-        assert_eq!(halves[1].iter().filter(|&&b| b == b'\n').count(), 888);
-        assert!(halves[0].ends_with(b"\n"));
-        let mut decoder = Decoder::new(Format::Ascii);
-        let parts = decode_block(&mut decoder, &bytes, false);
-        assert_eq!(parts.len(), PARTS);
-        let all: Vec<u32> = parts.into_iter().flat_map(|p| p.counts).collect();
-        assert_eq!(all, (0..2000).collect::<Vec<_>>());
-        assert_eq!(decoder.stats().frames, 2000);
     }
 }
