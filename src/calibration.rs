@@ -188,7 +188,7 @@ pub struct CodeRuns {
     /// Each code's watts, packed densely for the summing loop, in an array as long as
     /// the largest table so that a 16-bit index needs no bounds check (only the codes'
     /// pages are touched).
-    pub watts: Box<[f64; TABLE_MAX_CODES as usize]>,
+    pub(crate) watts: Box<[f64; TABLE_MAX_CODES as usize]>,
     /// For each code that is a value, the last code of the run it lies in.
     run_end: Vec<Option<u32>>,
     /// Levels fall as codes rise (a detector whose output falls with power).

@@ -71,7 +71,7 @@ impl AsciiDecoder {
         out: &mut impl FrameSink,
     ) -> Option<usize> {
         if self.on_plain_path() {
-            let (used, taken) = plain_lines(bytes, 0, |v| out.push_singles(v));
+            let (used, taken) = plain_lines(bytes, |v| out.push_singles(v));
             self.took_plain(taken, stats);
             *bytes = &bytes[used..];
         }
@@ -175,7 +175,7 @@ impl AsciiDecoder {
     }
 }
 
-/// Takes the plain lines (digits, then LF or CRLF) of `b` from `at` on, handing the values
+/// Takes the plain lines (digits, then LF or CRLF) at the start of `b`, handing the values
 /// to `take` in batches, up to the first other line or cut line. Returns where it stopped and the
 /// lines taken.
 ///
@@ -184,7 +184,8 @@ impl AsciiDecoder {
 /// the next line's start known at once); a line of another shape is searched and sets the
 /// shape. Lines that keep changing shape finish the batch by search alone.
 #[inline]
-fn plain_lines(b: &[u8], mut at: usize, mut take: impl FnMut(&[u32])) -> (usize, u64) {
+fn plain_lines(b: &[u8], mut take: impl FnMut(&[u32])) -> (usize, u64) {
+    let mut at = 0;
     let mut taken = 0;
     let mut values = [0u32; BATCH];
     let mut shape: Option<LineShape> = None;
@@ -291,8 +292,11 @@ impl LineShape {
             return None;
         }
         let low_bytes = |n: usize| u64::MAX.checked_shr(64 - 8 * n as u32).unwrap_or(0);
-        let ending: u64 = if end == 2 { 0x0A0D } else { 0x0A };
         let ending_bytes: &[u8] = if end == 2 { b"\r\n" } else { b"\n" };
+        let ending = ending_bytes
+            .iter()
+            .rev()
+            .fold(0u64, |word, &byte| word << 8 | u64::from(byte));
         Some(LineShape {
             len: line.len(),
             digit_nibbles: low_bytes(digits) & 0xF0F0_F0F0_F0F0_F0F0,
