@@ -409,3 +409,40 @@ fn a_unit_written_apart_from_its_number_is_accepted() {
     let json: serde_json::Value = serde_json::from_str(&stdout(&out)).unwrap();
     assert!((json["vrms"].as_f64().unwrap() - 0.15830).abs() < 1e-5);
 }
+
+// A record whose profile or capture cannot be read stops with exit 2 before it makes its
+// output file, so a second try is not refused as "already exists".
+#[test]
+fn a_record_with_a_bad_profile_or_capture_leaves_no_output_file() {
+    let dir = std::env::temp_dir().join(format!("dbtrail-no-output-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let capture = dir.join("c.txt");
+    std::fs::write(&capture, "1200\n1201\n").unwrap();
+    let missing = dir.join("missing.txt");
+    let profile = "profiles/demo-diode.toml";
+    let cases = [
+        (
+            capture.to_str().unwrap(),
+            "profiles/no-such.toml",
+            "cannot read profile",
+        ),
+        (missing.to_str().unwrap(), profile, "cannot open capture"),
+    ];
+    for (i, (replay, profile, says)) in cases.into_iter().enumerate() {
+        let out_path = dir.join(format!("out{i}.csv"));
+        let out_arg = out_path.to_str().unwrap();
+        let out = dbtrail(&[
+            "record",
+            "--replay",
+            replay,
+            "--profile",
+            profile,
+            "--out",
+            out_arg,
+        ]);
+        assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+        assert!(stderr(&out).contains(says), "{}", stderr(&out));
+        assert!(!out_path.exists(), "{out_arg} was made");
+    }
+    std::fs::remove_dir_all(&dir).unwrap();
+}

@@ -69,8 +69,6 @@ const LIVE_GRACE_S: f64 = 0.1;
 
 pub fn run(args: Args) -> Result<(), Failure> {
     let freq = source_args::frequency(args.reading.freq, &args.source);
-    let (out, fresh) = open_output(&args.out, args.append, args.force)?;
-    let stop = install_signal_flag().runtime()?;
     let until = args.duration.map(|d| d.as_secs_f64());
     let (loaded, mut source) = source_args::load_and_start(
         args.reading.profile.as_ref(),
@@ -78,6 +76,10 @@ pub fn run(args: Args) -> Result<(), Failure> {
         &args.link,
         until,
     )?;
+    // Opened once the source and the profile are known good, so a bad one leaves no
+    // empty file behind.
+    let (out, fresh) = open_output(&args.out, args.append, args.force)?;
+    let stop = install_signal_flag().runtime()?;
     // Built while the source starts reading: its samples wait in the ring meanwhile.
     let cal = Calibration::new(&loaded.profile, freq, args.reading.offset);
     let context = RunContext {
