@@ -449,7 +449,7 @@ fn write_new(path: &Path, text: &str, force: bool) -> anyhow::Result<()> {
     let mut file =
         std::fs::File::create(path).with_context(|| format!("cannot create {}", path.display()))?;
     file.write_all(text.as_bytes())
-        .and_then(|()| file.sync_all())
+        .and_then(|()| super::files::sync(&file))
         .with_context(|| format!("cannot write {}", path.display()))
 }
 
@@ -588,7 +588,7 @@ fn lines(desk: &mut Desk) -> Result<(), Failure> {
             "\nend of input; nothing measured, nothing written\n",
         );
     }
-    eprintln!(
+    super::say_err!(
         "\ndbtrail: input ended before `save`: nothing written. The points measured were:\n{}",
         desk.session.points_csv()
     );

@@ -194,7 +194,7 @@ fn write_new(path: &Path, text: &str, force: bool) -> Result<(), Failure> {
             .runtime()?,
     };
     file.write_all(text.as_bytes())
-        .and_then(|()| file.sync_all())
+        .and_then(|()| super::files::sync(&file))
         .with_context(|| format!("cannot write {}", path.display()))
         .runtime()
 }

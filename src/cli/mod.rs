@@ -1,9 +1,20 @@
 //! Command-line definition and dispatch; each subcommand lives in its own module.
 //! Exit codes: 0 success, 1 runtime failure, 2 bad usage or bad input.
 
+/// Writes a line to standard error. A closed or full standard error (`2>/dev/full`)
+/// loses the message, never the run: `eprintln!` would panic there.
+macro_rules! say_err {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stderr(), $($arg)*);
+    }};
+}
+pub(crate) use say_err;
+
 pub mod calibrate;
 mod check;
 mod convert;
+pub mod files;
 mod fit;
 mod ports;
 mod record;
@@ -112,7 +123,7 @@ pub fn run() -> ExitCode {
 }
 
 fn report(error: &anyhow::Error, code: u8) -> ExitCode {
-    eprintln!("dbtrail: error: {error:#}");
+    say_err!("dbtrail: error: {error:#}");
     ExitCode::from(code)
 }
 

@@ -49,7 +49,7 @@ trait Durable: Write {
 
 impl Durable for File {
     fn make_durable(&self) -> io::Result<()> {
-        self.sync_data()
+        super::files::sync(self)
     }
 }
 
@@ -80,6 +80,12 @@ pub fn run(args: Args) -> Result<(), Failure> {
     // empty file behind.
     let (out, fresh) = open_output(&args.out, args.append, args.force)?;
     let stop = install_signal_flag().runtime()?;
+    if args.source.demo.is_some() && args.link.fast && until.is_none() {
+        super::say_err!(
+            "dbtrail: the simulator runs flat out with no --duration and writes until it is \
+             stopped: press Ctrl-C (or send SIGTERM) to end it; every row so far is kept"
+        );
+    }
     // Built while the source starts reading: its samples wait in the ring meanwhile.
     let cal = Calibration::new(&loaded.profile, freq, args.reading.offset);
     let context = RunContext {
@@ -109,7 +115,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     .runtime();
     let link = source.counters.snapshot();
     drop(source);
-    eprintln!(
+    super::say_err!(
         "\ndbtrail: {} rows to {target}; link: {}",
         recorder.rows(),
         link.summary()
@@ -130,24 +136,17 @@ fn pump(
     let mut last_sync = Instant::now();
     let mut last_t: Option<f64> = None;
     let mut synced_rows = 0;
+    let mut take =
+        |event: Event, recorder: &mut Recorder<Box<dyn Durable>>, status: &mut Status| {
+            take_event(event, until, recorder, status, &mut last_t)
+        };
     let end_t = loop {
         let mut took = 0;
         let mut reached = None;
-        while let Some(mut event) = source.next_event() {
+        while let Some(event) = source.next_event() {
             took += 1;
-            if let Some(end) = until.filter(|end| event.last_t() >= *end) {
-                reached = Some(end);
-                if !cut_at(&mut event, end) {
-                    break;
-                }
-            }
-            recorder.handle(&event)?;
-            status.saw(&event, recorder.calibration());
-            last_t = Some(event.last_t());
-            if reached.is_some() {
-                break;
-            }
-            if took == BATCH || status.due() {
+            reached = take(event, recorder, &mut status)?;
+            if reached.is_some() || took == BATCH || status.due() || stop.load(Ordering::Acquire) {
                 break;
             }
         }
@@ -169,11 +168,14 @@ fn pump(
             break end;
         }
         if stop.load(Ordering::Acquire) {
-            break if source.live {
-                source.now()
-            } else {
-                last_t.map_or(0.0, |t| t + sample_period)
-            };
+            // Samples already received are in the ring: they go in before the end.
+            for event in source.drain() {
+                if let Some(end) = take(event, recorder, &mut status)? {
+                    reached = Some(end);
+                    break;
+                }
+            }
+            break reached.unwrap_or_else(|| stopped_at(source, last_t, sample_period));
         }
         if source.exhausted() {
             break if source.live {
@@ -189,6 +191,41 @@ fn pump(
     };
     recorder.finish(end_t)?;
     recorder.get_ref().make_durable()
+}
+
+/// Hands one event to the recorder, cut at the end of the duration; the end when the
+/// event reached it.
+fn take_event(
+    mut event: Event,
+    until: Option<f64>,
+    recorder: &mut Recorder<Box<dyn Durable>>,
+    status: &mut Status,
+    last_t: &mut Option<f64>,
+) -> io::Result<Option<f64>> {
+    let reached = until.filter(|end| event.last_t() >= *end);
+    if let Some(end) = reached {
+        if !cut_at(&mut event, end) {
+            return Ok(reached);
+        }
+    }
+    recorder.handle(&event)?;
+    status.saw(&event, recorder.calibration());
+    *last_t = Some(event.last_t());
+    Ok(reached)
+}
+
+/// Source time when a signal ended the run: the clock's for a live source; for a file,
+/// one sample period past its last sample, but never past the clock when paced (a slow
+/// rate must not write rows for time that has not passed).
+fn stopped_at(source: &Running, last_t: Option<f64>, sample_period: f64) -> f64 {
+    let after_last = last_t.map_or(0.0, |t| t + sample_period);
+    if source.live {
+        source.now()
+    } else if source.paced {
+        after_last.min(source.now())
+    } else {
+        after_last
+    }
 }
 
 /// Keeps only the samples before `end`; false when nothing of the event is left.
@@ -304,7 +341,8 @@ impl Status {
         } else {
             String::new()
         };
-        eprint!(
+        let _ = write!(
+            io::stderr(),
             "\r\x1b[K{elapsed} | {rows} rows | {} | {rate:.0}/s | bad {} crc {} drop {} over {} reconn {}{state}",
             self.last_reading, link.bad_lines, link.crc_errors, link.dropped_frames, link.overruns, link.reconnects
         );

@@ -38,6 +38,9 @@ pub struct Args {
     /// Write to this file instead of standard output
     #[arg(long)]
     out: Option<PathBuf>,
+    /// Replace an existing --out file
+    #[arg(long, requires = "out")]
+    force: bool,
 }
 
 /// Simulated time written per chunk.
@@ -58,9 +61,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let seconds = args.seconds.unwrap_or(10.0);
     match &args.out {
         Some(path) => {
-            let file = std::fs::File::create(path)
-                .with_context(|| format!("cannot create {}", path.display()))
-                .runtime()?;
+            let file = super::files::create(path, args.force)?;
             let mut out = io::BufWriter::new(file);
             stream(simulator, format, Some(seconds), false, &mut out)
                 .and_then(|()| out.flush())
@@ -88,8 +89,7 @@ fn stream_to_pty(
         .context("cannot create a pseudo-terminal")
         .runtime()?;
     let name = serialport::SerialPort::name(&slave).unwrap_or_default();
-    println!("{name}");
-    io::stdout().flush().ok();
+    super::emit(&format!("{name}\n"))?;
     // Writes time out when nobody reads; the chunk is dropped, as a real device would.
     serialport::SerialPort::set_timeout(&mut master, Duration::from_millis(50)).ok();
     let result = stream(

@@ -40,6 +40,9 @@ pub struct Running {
     pub description: String,
     /// When the source's time started.
     pub started: Instant,
+    /// True for a capture paced to the wall clock: its time runs with the clock too, but
+    /// only samples move it.
+    pub paced: bool,
     stop: Arc<AtomicBool>,
     thread: Option<JoinHandle<()>>,
 }
@@ -59,12 +62,40 @@ impl Running {
     pub fn exhausted(&self) -> bool {
         self.finished.load(Ordering::Acquire) && self.events.is_empty()
     }
+
+    /// Asks the source's thread to stop sending; events already in the ring stay there.
+    pub fn request_stop(&self) {
+        self.stop.store(true, Ordering::Release);
+    }
+
+    /// Takes what is in the ring now (at most a ring's worth and the few events the
+    /// thread sends before it sees the stop), after asking the source to stop.
+    pub fn drain(&mut self) -> Vec<Event> {
+        self.request_stop();
+        let most = self.events.capacity().get() + 4;
+        std::iter::from_fn(|| self.events.try_pop())
+            .take(most)
+            .collect()
+    }
 }
+
+/// How long a stopped source's thread is waited for: a read blocked on a silent FIFO,
+/// terminal or device never returns, and the process must still end.
+const JOIN_PATIENCE: Duration = Duration::from_millis(300);
 
 impl Drop for Running {
     fn drop(&mut self) {
-        self.stop.store(true, Ordering::Release);
-        if let Some(thread) = self.thread.take() {
+        self.request_stop();
+        let Some(thread) = self.thread.take() else {
+            return;
+        };
+        let deadline = Instant::now() + JOIN_PATIENCE;
+        while !thread.is_finished() && Instant::now() < deadline {
+            std::thread::sleep(Duration::from_millis(1));
+        }
+        // Left blocked in its read, the thread holds nothing that needs saving; it ends
+        // with the process.
+        if thread.is_finished() {
             let _ = thread.join();
         }
     }
@@ -162,6 +193,7 @@ pub fn spawn(
         live,
         description,
         started,
+        paced: false,
         stop,
         thread: Some(thread),
     }

@@ -26,24 +26,33 @@ pub struct ReplaySpec {
     pub format: Format,
 }
 
+/// How a capture is read: a file ends and can be read ahead; a FIFO, terminal or device
+/// may block or never end, so each read's samples go on before the next read starts.
+fn reads_ahead(file: &File) -> bool {
+    file.metadata().is_ok_and(|m| m.is_file())
+}
+
 /// Seconds of samples per chunk when pacing in real time.
 const PACED_CHUNK_S: f64 = 0.02;
 
 impl ReplaySpec {
     /// Starts reading the already opened file on its own thread.
     pub fn start(self, file: File) -> Running {
+        let realtime = self.realtime;
         let description = format!(
             "replay {} at {} samples/s{}",
             self.path.display(),
             self.rate_hz,
             if self.realtime { ", real time" } else { "" }
         );
-        spawn(
+        let mut running = spawn(
             description,
             false,
             WhenFull::Wait(REPLAY_RING),
             move |sink, started| replay(&self, file, sink, started),
-        )
+        );
+        running.paced = realtime;
+        running
     }
 }
 
@@ -65,23 +74,32 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
     let mut before = decoder.stats();
     // On a worker of the pool: each read's parts are shared out from inside it, not
     // handed in from outside and waited for.
+    let one_read_at_a_time = spec.realtime || !reads_ahead(&file);
     let finished = rayon::scope(|_| {
-        decode_reads(&mut file, &mut decoder, spec.realtime, |parts, decoder| {
-            sink.counters.add_decoded(&before, &decoder.stats());
-            before = decoder.stats();
-            for chunk in parts
-                .into_iter()
-                .flat_map(|part| split(part, spec, &mut index, dt))
-            {
-                if spec.realtime {
-                    pace(started, chunk.t0);
-                }
-                if !sink.send(Event::Samples(chunk)) {
+        decode_reads(
+            &mut file,
+            &mut decoder,
+            one_read_at_a_time,
+            |parts, decoder| {
+                if sink.stopped() {
                     return false;
                 }
-            }
-            true
-        })
+                sink.counters.add_decoded(&before, &decoder.stats());
+                before = decoder.stats();
+                for chunk in parts
+                    .into_iter()
+                    .flat_map(|part| split(part, spec, &mut index, dt))
+                {
+                    if spec.realtime && !pace(started, chunk.t0, || sink.stopped()) {
+                        return false;
+                    }
+                    if !sink.send(Event::Samples(chunk)) {
+                        return false;
+                    }
+                }
+                true
+            },
+        )
     });
     if finished {
         sink.counters
@@ -91,34 +109,31 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
 }
 
 /// Decodes `reader` to its end, handing each read's samples (and the decoder, for its
-/// counters) to `take`; stops early, returning false, when `take` does. Binary reads are
-/// scanned in parts on all cores while the next read goes on; ASCII reads are decoded on
-/// this thread, read after read (see `decode_block`).
+/// counters) to `take`; stops early, returning false, when `take` does. With
+/// `one_at_a_time`, each read's samples are taken before the next read starts (a paced
+/// replay, or a source that may block); otherwise binary reads are scanned in parts on all
+/// cores while the next read goes on, and ASCII reads are decoded on this thread, read
+/// after read (see `decode_block`).
 fn decode_reads<R: Read + Send>(
     reader: &mut R,
     decoder: &mut Decoder,
-    sequential: bool,
+    one_at_a_time: bool,
     mut take: impl FnMut(Vec<FlatCounts>, &Decoder) -> bool,
 ) -> bool {
     let (mut buf, mut spare) = (vec![0u8; READ_BYTES], vec![0u8; READ_BYTES]);
     let mut len = read_some(reader, &mut buf);
     loop {
-        let ahead = len > 0 && !sequential && decoder.format() == Some(Format::Binary);
+        let ahead = len > 0 && !one_at_a_time && decoder.format() == Some(Format::Binary);
         let (next, mut parts) = if ahead {
-            rayon::join(
+            let (next, parts) = rayon::join(
                 || read_some(reader, &mut spare),
                 || decode_frames_ahead(decoder, &buf[..len]),
-            )
+            );
+            (Some(next), parts)
         } else {
             let parts = decode_block(decoder, &buf[..len]);
-            (
-                if len == 0 {
-                    0
-                } else {
-                    read_some(reader, &mut spare)
-                },
-                parts,
-            )
+            let next = (len > 0 && !one_at_a_time).then(|| read_some(reader, &mut spare));
+            (next, parts)
         };
         if len == 0 {
             let mut rest = FlatCounts::default();
@@ -131,8 +146,13 @@ fn decode_reads<R: Read + Send>(
         if len == 0 {
             return true;
         }
-        std::mem::swap(&mut buf, &mut spare);
-        len = next;
+        len = match next {
+            Some(next) => {
+                std::mem::swap(&mut buf, &mut spare);
+                next
+            }
+            None => read_some(reader, &mut buf),
+        };
     }
 }
 
@@ -258,12 +278,25 @@ fn split(samples: FlatCounts, spec: &ReplaySpec, index: &mut u64, dt: f64) -> Ve
         .collect()
 }
 
-/// Sleeps until `t` seconds after `started`.
-pub fn pace(started: Instant, t: f64) {
-    let due = started + Duration::from_secs_f64(t);
-    let now = Instant::now();
-    if due > now {
-        std::thread::sleep(due - now);
+/// The longest a paced source sleeps before it looks whether it was told to stop.
+const PACE_SLICE: Duration = Duration::from_millis(20);
+
+/// Sleeps until `t` seconds after `started`, in slices so that a stop is seen at once (a
+/// slow rate paces samples minutes apart); false when `stopped` said so first.
+pub fn pace(started: Instant, t: f64, stopped: impl Fn() -> bool) -> bool {
+    let due = Duration::try_from_secs_f64(t)
+        .ok()
+        .and_then(|t| started.checked_add(t));
+    loop {
+        if stopped() {
+            return false;
+        }
+        let now = Instant::now();
+        let left = due.map_or(PACE_SLICE, |due| due.saturating_duration_since(now));
+        if left.is_zero() {
+            return true;
+        }
+        std::thread::sleep(left.min(PACE_SLICE));
     }
 }
 
@@ -316,7 +349,7 @@ mod tests {
         }
     }
 
-    fn in_parts(bytes: &[u8], sizes: Vec<usize>) -> (Vec<u32>, DecodeStats) {
+    fn in_parts(bytes: &[u8], sizes: Vec<usize>, one_at_a_time: bool) -> (Vec<u32>, DecodeStats) {
         let mut decoder = Decoder::new(Format::Auto);
         let mut counts = Vec::new();
         let mut reader = Uneven {
@@ -324,7 +357,7 @@ mod tests {
             sizes,
             next: 0,
         };
-        let finished = decode_reads(&mut reader, &mut decoder, false, |parts, _| {
+        let finished = decode_reads(&mut reader, &mut decoder, one_at_a_time, |parts, _| {
             counts.extend(parts.into_iter().flat_map(|p| p.counts));
             true
         });
@@ -341,10 +374,11 @@ mod tests {
             lines in proptest::collection::vec(line(), 1..400),
             read in 8usize..3000,
             sizes in proptest::collection::vec(1usize..5000, 1..6),
+            one_at_a_time in any::<bool>(),
         ) {
             let bytes = lines.concat().into_bytes();
             let (want, want_stats) = one_pass(&bytes, read);
-            let (got, got_stats) = in_parts(&bytes, sizes);
+            let (got, got_stats) = in_parts(&bytes, sizes, one_at_a_time);
             prop_assert_eq!(got, want);
             prop_assert_eq!(got_stats, want_stats);
         }
@@ -385,9 +419,10 @@ mod tests {
             bytes in frames(),
             read in 8usize..3000,
             sizes in proptest::collection::vec(1usize..5000, 1..6),
+            one_at_a_time in any::<bool>(),
         ) {
             let (want, want_stats) = one_pass(&bytes, read);
-            let (got, got_stats) = in_parts(&bytes, sizes);
+            let (got, got_stats) = in_parts(&bytes, sizes, one_at_a_time);
             prop_assert_eq!(got, want);
             prop_assert_eq!(got_stats, want_stats);
         }

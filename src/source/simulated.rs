@@ -63,8 +63,8 @@ impl SimSpec {
                         dt: 1.0 / rate,
                         samples,
                     };
-                    if !self.fast {
-                        pace(started, chunk.last_t());
+                    if !self.fast && !pace(started, chunk.last_t(), || sink.stopped()) {
+                        break;
                     }
                     made += n as u64;
                     sink.counters.add_samples(n as u64);

@@ -26,7 +26,8 @@ pub fn run(mut desk: Desk) -> Result<()> {
     let outcome = screen(&mut terminal, &mut desk);
     ratatui::restore();
     if let Ok(Some(text)) = &outcome {
-        println!("{text}");
+        // A closed standard output loses the closing line, not the saved profile.
+        let _ = crate::cli::emit(&format!("{text}\n"));
     }
     outcome.map(|_| ())
 }

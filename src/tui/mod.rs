@@ -149,7 +149,7 @@ fn log_batch(log: &mut Log, batch: &[Event], source: &Running) -> io::Result<()>
     }
     log.recorder.flush()?;
     if log.synced.elapsed() >= LOG_SYNC_EVERY {
-        log.recorder.get_ref().sync_data()?;
+        crate::cli::files::sync(log.recorder.get_ref())?;
         log.synced = Instant::now();
     }
     Ok(())

@@ -124,3 +124,38 @@ pub fn repoint(link: &Path, slave: &TTYPort) {
     let _ = std::fs::remove_file(link);
     std::os::unix::fs::symlink(slave.name().unwrap(), link).unwrap();
 }
+
+/// Waits until `ready` holds, checking every 10 ms; panics naming `what` after `limit`.
+pub fn wait_until(limit: Duration, what: &str, mut ready: impl FnMut() -> bool) {
+    let started = Instant::now();
+    while !ready() {
+        if started.elapsed() > limit {
+            panic!("{what} did not happen within {limit:?}");
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    }
+}
+
+/// Data rows in a recording so far (0 while it has no column header yet).
+pub fn rows_so_far(path: &Path) -> usize {
+    let text = std::fs::read_to_string(path).unwrap_or_default();
+    let lines = text.lines().filter(|l| !l.starts_with('#'));
+    lines.count().saturating_sub(1)
+}
+
+/// Sends `signal` (a name such as INT) to a child.
+pub fn signal(child: &Child, signal: &str) {
+    let sent = Command::new("kill")
+        .args([format!("-{signal}"), child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(sent.success(), "kill -{signal} failed");
+}
+
+/// A named pipe in `dir`.
+pub fn fifo(dir: &Path, name: &str) -> PathBuf {
+    let path = dir.join(name);
+    let made = Command::new("mkfifo").arg(&path).status().unwrap();
+    assert!(made.success(), "mkfifo {}", path.display());
+    path
+}
