@@ -352,11 +352,7 @@ impl<W: Write> Recorder<W> {
         }
         let channels = self.channels.unwrap_or(1);
         self.stats.resize(channels, PowerStats::default());
-        let utc = self.started + Duration::from_secs_f64(start);
-        let mut row = vec![
-            seconds(start),
-            humantime::format_rfc3339_millis(utc).to_string(),
-        ];
+        let mut row = vec![seconds(start), calendar_time(self.started, start)];
         for stats in std::mem::take(&mut self.stats) {
             let mut row_flags = flags | stats.flags;
             if stats.samples == 0 {
@@ -406,6 +402,17 @@ impl<W: Write> Recorder<W> {
         }
         names
     }
+}
+
+/// The calendar time `t` seconds after `started`; empty past what the clock can hold, so
+/// an absurd stamp costs its cell, never the rows after it.
+fn calendar_time(started: SystemTime, t: f64) -> String {
+    Duration::try_from_secs_f64(t)
+        .ok()
+        .and_then(|d| started.checked_add(d))
+        .map_or(String::new(), |utc| {
+            humantime::format_rfc3339_millis(utc).to_string()
+        })
 }
 
 fn seconds(t: f64) -> String {
@@ -474,6 +481,17 @@ mod tests {
             .filter(|l| !l.starts_with('#') && !l.starts_with("time_s"))
             .map(|l| l.split(',').map(String::from).collect())
             .collect()
+    }
+
+    #[test]
+    fn calendar_times_past_the_clocks_reach_leave_the_cell_empty() {
+        // Source: the Unix epoch is 1970-01-01T00:00:00Z (POSIX), written per RFC 3339.
+        assert_eq!(
+            calendar_time(SystemTime::UNIX_EPOCH, 90.5),
+            "1970-01-01T00:01:30.500Z"
+        );
+        assert_eq!(calendar_time(SystemTime::now(), 1e300), "");
+        assert_eq!(calendar_time(SystemTime::now(), f64::INFINITY), "");
     }
 
     #[test]

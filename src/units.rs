@@ -64,6 +64,14 @@ pub enum UnitError {
         /// What would have been accepted.
         expected: String,
     },
+    /// A finite number outside the physical range of its quantity.
+    #[error("`{input}` is out of range: {range}")]
+    OutOfRange {
+        /// The text as typed.
+        input: String,
+        /// The accepted range, in words.
+        range: &'static str,
+    },
     /// A quantity that must be positive was zero or negative.
     #[error("`{input}` must be greater than zero{why}; expected {expected}")]
     NotPositive {
@@ -316,8 +324,58 @@ pub fn parse_level(text: &str, allow_dc: bool) -> Result<Level, UnitError> {
         _ => parse_linear_level(&text, value, unit, allow_dc, accepted)?,
     };
     check_positive(&text, level, expected)?;
+    check_level_range(&text, level)?;
     Ok(level)
 }
+
+/// The levels any quantity of power is taken from: far below thermal noise in any
+/// bandwidth to far above any bench, so that every accepted level converts to finite
+/// watts, volts and dB.
+pub const LEVEL_RANGE_DBM: (f64, f64) = (-200.0, 200.0);
+const LEVEL_RANGE: &str = "a level must lie between -200 dBm and +200 dBm (1e-23 W to 1e17 W), \
+     or an RF voltage between 1 pV and 1 GV";
+
+fn check_level_range(text: &str, level: Level) -> Result<(), UnitError> {
+    let (low, high) = LEVEL_RANGE_DBM;
+    let inside = match level {
+        Level::Dbm(dbm) => (low..=high).contains(&dbm),
+        Level::Dbw(dbw) => (low..=high).contains(&(dbw + 30.0)),
+        Level::Watts(w) => (low..=high).contains(&watts_to_dbm(w)),
+        Level::Volts { volts, .. } => (1e-12..=1e9).contains(&volts),
+    };
+    if inside {
+        Ok(())
+    } else {
+        Err(UnitError::OutOfRange {
+            input: text.trim().to_string(),
+            range: LEVEL_RANGE,
+        })
+    }
+}
+
+/// Refuses a finite `value` outside `range`, naming the range in words.
+fn within(
+    text: &str,
+    value: f64,
+    range: std::ops::RangeInclusive<f64>,
+    words: &'static str,
+) -> Result<(), UnitError> {
+    if range.contains(&value) {
+        Ok(())
+    } else {
+        Err(UnitError::OutOfRange {
+            input: text.trim().to_string(),
+            range: words,
+        })
+    }
+}
+
+/// The frequencies accepted: up to 1 THz, past every detector's reach.
+pub const FREQUENCY_RANGE_HZ: (f64, f64) = (1e-3, 1e12);
+/// The longest duration accepted: ten years (3650 days), longer than any soak.
+pub const DURATION_MAX_S: f64 = 3650.0 * 86400.0;
+/// The largest dB figure accepted, either sign.
+pub const DB_MAX: f64 = 200.0;
 
 fn parse_linear_level(
     text: &str,
@@ -409,15 +467,21 @@ pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
         },
     };
     let hz = value * scale;
-    if hz > 0.0 {
-        Ok(hz)
-    } else {
-        Err(UnitError::NotPositive {
+    if hz <= 0.0 {
+        return Err(UnitError::NotPositive {
             input: text.trim().to_string(),
             why: "",
             expected,
-        })
+        });
     }
+    let (low, high) = FREQUENCY_RANGE_HZ;
+    within(
+        &text,
+        hz,
+        low..=high,
+        "a frequency must lie between 1 mHz and 1 THz",
+    )?;
+    Ok(hz)
 }
 
 /// Parses a duration such as `90s`, `5m`, `2h`, `1h30m`, `250ms`, or plain seconds.
@@ -453,10 +517,11 @@ pub fn parse_duration(text: &str) -> Result<Duration, UnitError> {
         seconds += value * scale;
         rest = after[unit_len..].trim_start();
     }
-    Duration::try_from_secs_f64(seconds).map_err(|_| UnitError::NotFinite {
-        input: text.trim().to_string(),
-        expected,
-    })
+    let range = "a duration must be 0, or lie between 1 ns and ten years (3650d)";
+    if seconds != 0.0 {
+        within(&text, seconds, 1e-9..=DURATION_MAX_S, range)?;
+    }
+    Ok(Duration::from_secs_f64(seconds))
 }
 
 /// Parses a dB figure such as `40dB`, `-0.5 dB` or a plain number.
@@ -464,7 +529,15 @@ pub fn parse_db(text: &str) -> Result<f64, UnitError> {
     let text = normalise(text);
     let (value, unit) = split_number(&text, "a figure in dB such as 40dB")?;
     match unit.to_ascii_lowercase().as_str() {
-        "" | "db" => Ok(value),
+        "" | "db" => {
+            within(
+                &text,
+                value,
+                -DB_MAX..=DB_MAX,
+                "a figure in dB must lie between -200 dB and +200 dB",
+            )?;
+            Ok(value)
+        }
         _ => Err(unknown(&text, unit, "", "dB, or a plain number".into())),
     }
 }

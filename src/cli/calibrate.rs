@@ -26,7 +26,7 @@ pub struct Args {
     #[arg(long, conflicts_with = "demo", required_unless_present = "demo")]
     port: Option<String>,
     /// Baud rate for --port
-    #[arg(long, default_value_t = 115_200)]
+    #[arg(long, default_value_t = 115_200, allow_hyphen_values = true)]
     baud: u32,
     /// Calibrate a simulated bench instead: a diode or a logamp detector whose curve you do not know
     #[arg(long, num_args = 0..=1, default_missing_value = "diode", value_parser = ["diode", "logamp"])]
@@ -38,34 +38,34 @@ pub struct Args {
     #[arg(long, default_value = "table", value_parser = ["table", "diode", "log"])]
     model: String,
     /// ADC resolution in bits
-    #[arg(long, conflicts_with = "base")]
+    #[arg(long, conflicts_with = "base", allow_hyphen_values = true)]
     adc_bits: Option<i64>,
     /// ADC reference voltage, volts
-    #[arg(long, conflicts_with = "base")]
+    #[arg(long, conflicts_with = "base", allow_hyphen_values = true, value_parser = super::parse_number_arg)]
     vref: Option<f64>,
     /// Divider ratio: detector volts / ADC pin volts
-    #[arg(long, conflicts_with = "base")]
+    #[arg(long, conflicts_with = "base", allow_hyphen_values = true, value_parser = super::parse_number_arg)]
     divider: Option<f64>,
     /// Take the ADC, impedance, offset and limits from this profile
     #[arg(long)]
     base: Option<PathBuf>,
     /// Reference impedance in ohms
-    #[arg(long, default_value_t = 50.0, value_parser = parse_ohms)]
+    #[arg(long, default_value_t = 50.0, allow_hyphen_values = true, value_parser = parse_ohms)]
     ohms: f64,
     /// Frequency the levels are applied at (the curve's reference frequency)
-    #[arg(long, default_value = "10MHz", value_parser = parse_frequency_arg)]
+    #[arg(long, default_value = "10MHz", allow_hyphen_values = true, value_parser = parse_frequency_arg)]
     freq: f64,
     /// Averaging of each settled level: a count of samples (1000) or a time (2s)
-    #[arg(long, default_value = "1000", value_parser = parse_span)]
+    #[arg(long, default_value = "1000", allow_hyphen_values = true, value_parser = parse_span)]
     average: Span,
     /// Give up on a level that has not settled after this long
-    #[arg(long, default_value = "10s", value_parser = super::parse_duration_arg)]
+    #[arg(long, default_value = "10s", allow_hyphen_values = true, value_parser = super::parse_duration_arg)]
     settle_timeout: Duration,
     /// Replace existing output files
     #[arg(long)]
     force: bool,
     /// Seed of the simulated bench's noise
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
     seed: u64,
 }
 

@@ -20,28 +20,28 @@ pub struct Args {
     #[arg(long, value_parser = ["table", "diode", "log"])]
     model: String,
     /// ADC resolution in bits (1 to 24)
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     adc_bits: i64,
     /// ADC reference voltage, volts
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true, value_parser = super::parse_number_arg)]
     vref: f64,
     /// Divider ratio: detector volts / ADC pin volts
-    #[arg(long, default_value_t = 1.0)]
+    #[arg(long, default_value_t = 1.0, allow_hyphen_values = true, value_parser = super::parse_number_arg)]
     divider: f64,
     /// Reference impedance in ohms
     #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms, allow_hyphen_values = true)]
     ohms: f64,
     /// Frequency the points were measured at, e.g. 10MHz
-    #[arg(long, value_parser = parse_frequency_arg)]
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_frequency_arg)]
     freq: f64,
     /// ADC counts read with no signal applied
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_hyphen_values = true, value_parser = super::parse_counts_arg)]
     zero_counts: f64,
     /// Table model axis: log-volts (diode detectors) or volts (log-amps)
     #[arg(long, value_parser = ["log-volts", "volts"])]
     axis: Option<String>,
     /// Diode junction temperature in kelvin during the calibration
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true, value_parser = super::parse_number_arg)]
     temperature: Option<f64>,
     /// Profile name (default: the output file's stem)
     #[arg(long)]

@@ -173,6 +173,15 @@ pub fn parse_counts_arg(text: &str) -> Result<f64, String> {
     }
 }
 
+/// clap adapter for a plain finite number (volts, a ratio, kelvin); the option's own
+/// checks give its range.
+pub fn parse_number_arg(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok(v),
+        _ => Err(format!("`{text}` is not a finite number")),
+    }
+}
+
 /// clap adapter for a frequency such as `145.5MHz`.
 pub fn parse_frequency_arg(text: &str) -> Result<f64, String> {
     dbtrail::units::parse_frequency(text).map_err(|e| e.to_string())

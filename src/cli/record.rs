@@ -68,6 +68,7 @@ const SYNC_EVERY: Duration = Duration::from_secs(2);
 const LIVE_GRACE_S: f64 = 0.1;
 
 pub fn run(args: Args) -> Result<(), Failure> {
+    check_interval(args.every, &args.source, args.link.rate)?;
     let freq = source_args::frequency(args.reading.freq, &args.source);
     let until = args.duration.map(|d| d.as_secs_f64());
     let (loaded, mut source) = source_args::load_and_start(
@@ -226,6 +227,37 @@ fn stopped_at(source: &Running, last_t: Option<f64>, sample_period: f64) -> f64 
     } else {
         after_last
     }
+}
+
+/// The shortest interval a port's rows may have: its samples carry no rate, and shorter
+/// rows would be empty gap rows by the thousand each second.
+const PORT_EVERY_MIN: Duration = Duration::from_millis(1);
+
+/// Refuses an interval shorter than one sample (or, for a port, than 1 ms): every row
+/// would hold at most one sample, which `--every 0` says plainly.
+fn check_interval(every: Duration, source: &SourceArgs, rate: f64) -> Result<(), Failure> {
+    if every.is_zero() {
+        return Ok(());
+    }
+    let (shortest, why) = if source.port.is_some() {
+        (
+            PORT_EVERY_MIN,
+            "1 ms, the shortest row for a port".to_string(),
+        )
+    } else {
+        let period = Duration::from_secs_f64(1.0 / rate);
+        (period, format!("one sample at --rate {rate} samples/s"))
+    };
+    if every >= shortest {
+        return Ok(());
+    }
+    Err(anyhow!(
+        "--every {} is shorter than {why} ({}); give a longer interval, or --every 0 for one row \
+         per sample",
+        humantime::format_duration(every),
+        humantime::format_duration(shortest)
+    ))
+    .bad_input()
 }
 
 /// Keeps only the samples before `end`; false when nothing of the event is left.

@@ -18,16 +18,16 @@ pub struct Args {
     #[arg(long, default_value = "soak", value_parser = parse_scenario)]
     scenario: Scenario,
     /// Samples per second, e.g. 1000 or 10k
-    #[arg(long, default_value = "1000", value_parser = parse_rate)]
+    #[arg(long, default_value = "1000", allow_hyphen_values = true, value_parser = parse_rate)]
     rate: f64,
     /// Wire format: ascii or binary
     #[arg(long, default_value = "ascii", value_parser = ["ascii", "binary"])]
     format: String,
     /// Seconds of simulated time (default 10, or until stopped with --pty)
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     seconds: Option<f64>,
     /// Seed of the noise
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
     seed: u64,
     /// Detector profile to simulate (default: the bundled demo diode)
     #[arg(long)]
@@ -41,6 +41,14 @@ pub struct Args {
     /// Replace an existing --out file
     #[arg(long, requires = "out")]
     force: bool,
+}
+
+/// Seconds of simulated time: a plain number or a duration such as 90s or 2h.
+fn parse_seconds(text: &str) -> Result<f64, String> {
+    match super::parse_duration_arg(text)?.as_secs_f64() {
+        0.0 => Err(format!("`{text}` is no time at all; give more than 0 s")),
+        seconds => Ok(seconds),
+    }
 }
 
 /// Simulated time written per chunk.

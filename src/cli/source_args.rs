@@ -47,13 +47,13 @@ pub struct ReadingArgs {
 #[derive(clap::Args, Debug)]
 pub struct LinkArgs {
     /// Baud rate for --port
-    #[arg(long, default_value_t = 115_200)]
+    #[arg(long, default_value_t = 115_200, allow_hyphen_values = true)]
     pub baud: u32,
     /// Wire format: auto, ascii or binary
     #[arg(long, default_value = "auto", value_parser = parse_format)]
     pub format: Format,
     /// Sample rate used to stamp --replay samples, Hz; for --demo, the simulated rate
-    #[arg(long, default_value_t = 1000.0, value_parser = parse_rate)]
+    #[arg(long, default_value_t = 1000.0, allow_hyphen_values = true, value_parser = parse_rate)]
     pub rate: f64,
     /// Pace --replay in real time instead of as fast as possible
     #[arg(long)]
@@ -62,7 +62,7 @@ pub struct LinkArgs {
     #[arg(long)]
     pub fast: bool,
     /// Seed of the simulator's noise
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
     pub seed: u64,
 }
 
@@ -81,9 +81,17 @@ fn parse_format(text: &str) -> Result<Format, String> {
         .ok_or_else(|| format!("unknown format `{text}`; choose auto, ascii or binary"))
 }
 
+/// The sample rates accepted: one sample in 1000 s to ten million a second, so that every
+/// stamp and interval stays in a calendar's range.
+pub const RATE_RANGE_HZ: (f64, f64) = (1e-3, 1e7);
+
 pub fn parse_rate(text: &str) -> Result<f64, String> {
+    let (low, high) = RATE_RANGE_HZ;
     match dbtrail::units::parse_frequency(text) {
-        Ok(hz) => Ok(hz),
+        Ok(hz) if (low..=high).contains(&hz) => Ok(hz),
+        Ok(_) | Err(dbtrail::units::UnitError::OutOfRange { .. }) => Err(format!(
+            "`{text}` is out of range: a sample rate must lie between 0.001 and 10M samples/s"
+        )),
         Err(e) => Err(format!("{e} (a sample rate such as 1000 or 10k)")),
     }
 }
