@@ -28,32 +28,71 @@ pub struct Args {
     #[arg(long)]
     force: bool,
     /// Size of the plot in pixels, WIDTHxHEIGHT
-    #[arg(long, default_value = "1200x700", value_parser = parse_size)]
+    #[arg(long, default_value = "1200x700", allow_hyphen_values = true, value_parser = parse_size)]
     size: (u32, u32),
     /// Settled means every interval stays within ± this many dB of the final mean
-    #[arg(long, default_value = "0.1dB", value_parser = super::parse_db_arg)]
+    #[arg(long, default_value = "0.1dB", allow_hyphen_values = true, value_parser = parse_tolerance)]
     settle_tol: f64,
     /// The final window whose mean is the settled level (default 10m, or the last fifth of a shorter log)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
     settle_window: Option<std::time::Duration>,
-    /// Start of the span to report on, time since the run started (e.g. 30m)
-    #[arg(long, value_parser = parse_seconds)]
+    /// Start of the span to report on, time since the run started (e.g. 30m, or 0:30:00 as the report prints times)
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     from: Option<f64>,
-    /// End of the span, time since the run started (e.g. 2h)
-    #[arg(long, value_parser = parse_seconds)]
+    /// End of the span, time since the run started (e.g. 2h, or 2:00:00)
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     to: Option<f64>,
     /// Channel to report on, from 1
-    #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(u64).range(1..=8))]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true, value_parser = parse_channel)]
     channel: u64,
     /// Report on this run only, from 1, when the log holds several (a `# resumed` line that changed the profile or the rows' spacing starts one)
-    #[arg(long, value_parser = parse_run)]
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_run)]
     run: Option<usize>,
 }
 
+/// Plot formats by file extension.
+const PLOT_EXTENSIONS: [&str; 2] = ["svg", "png"];
+
+/// A time since the run started: a duration (`30m`, `1h30m`) or a clock reading as the
+/// report prints times (`1:05:10`, `05:10`).
 fn parse_seconds(text: &str) -> Result<f64, String> {
+    if text.contains(':') {
+        return parse_clock(text).ok_or_else(|| {
+            format!(
+                "`{text}` is not a time; give h:mm:ss or m:ss as the report prints times \
+                 (e.g. 1:05:10 or 05:10), or a duration such as 30m or 1h30m"
+            )
+        });
+    }
     parse_duration(text)
         .map(|d| d.as_secs_f64())
         .map_err(|e| e.to_string())
+}
+
+/// `h:mm:ss` or `m:ss`, minutes and seconds under 60 where a larger unit leads, the
+/// seconds perhaps with a fraction.
+fn parse_clock(text: &str) -> Option<f64> {
+    let parts: Vec<&str> = text.trim().split(':').collect();
+    if !(2..=3).contains(&parts.len()) {
+        return None;
+    }
+    let (leading, seconds) = parts.split_at(parts.len() - 1);
+    let whole = |p: &str| {
+        (!p.is_empty() && p.bytes().all(|b| b.is_ascii_digit()))
+            .then(|| p.parse::<f64>().ok())
+            .flatten()
+    };
+    let (whole_s, fraction) = seconds[0].split_once('.').unwrap_or((seconds[0], ""));
+    let s = whole(whole_s)?
+        + if fraction.is_empty() {
+            0.0
+        } else {
+            whole(fraction)? / 10f64.powi(fraction.len() as i32)
+        };
+    let units: Vec<f64> = leading.iter().map(|p| whole(p)).collect::<Option<_>>()?;
+    let in_range = s < 60.0 && (units.len() == 1 || units[1] < 60.0);
+    let total = units.iter().fold(0.0, |acc, u| acc * 60.0 + u) * 60.0 + s;
+    (in_range && total.is_finite()).then_some(total)
 }
 
 fn parse_size(text: &str) -> Result<(u32, u32), String> {
@@ -68,6 +107,22 @@ fn parse_size(text: &str) -> Result<(u32, u32), String> {
     }
 }
 
+fn parse_tolerance(text: &str) -> Result<f64, String> {
+    match super::parse_db_arg(text)? {
+        db if db > 0.0 => Ok(db),
+        _ => Err(format!(
+            "`{text}` is not a settling tolerance; give a positive number of dB, e.g. 0.1dB"
+        )),
+    }
+}
+
+fn parse_channel(text: &str) -> Result<u64, String> {
+    match text.trim().parse::<u64>() {
+        Ok(n) if (1..=8).contains(&n) => Ok(n),
+        _ => Err(format!("`{text}` is not a channel; give 1 to 8")),
+    }
+}
+
 fn parse_run(text: &str) -> Result<usize, String> {
     match text.trim().parse::<usize>() {
         Ok(n) if n >= 1 => Ok(n),
@@ -78,13 +133,8 @@ fn parse_run(text: &str) -> Result<usize, String> {
 }
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    if let Some(path) = args.plot.as_ref().filter(|p| p.exists() && !args.force) {
-        return Err(anyhow::anyhow!(
-            "{} already exists; choose another --plot or add --force to replace it",
-            path.display()
-        ))
-        .bad_input();
-    }
+    check_plot_target(&args)?;
+    check_span(args.from, args.to)?;
     let origin = args.log.display().to_string();
     let bytes = std::fs::read(&args.log)
         .with_context(|| format!("cannot read {origin}"))
@@ -152,6 +202,48 @@ pub fn run(args: Args) -> Result<(), Failure> {
         out
     };
     emit(&text)
+}
+
+/// A plot needs a format it can draw and may not replace a file unasked: both are known
+/// before the log is read.
+fn check_plot_target(args: &Args) -> Result<(), Failure> {
+    let Some(path) = &args.plot else {
+        return Ok(());
+    };
+    let extension = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase);
+    if !extension.is_some_and(|e| PLOT_EXTENSIONS.contains(&e.as_str())) {
+        return Err(anyhow!(
+            "--plot {}: cannot tell the plot format from the file name; name it .svg or .png \
+             (the extensions supported: {})",
+            path.display(),
+            PLOT_EXTENSIONS.map(|e| format!(".{e}")).join(", ")
+        ))
+        .bad_input();
+    }
+    if path.exists() && !args.force {
+        return Err(anyhow!(
+            "{} already exists; choose another --plot or add --force to replace it",
+            path.display()
+        ))
+        .bad_input();
+    }
+    Ok(())
+}
+
+fn check_span(from: Option<f64>, to: Option<f64>) -> Result<(), Failure> {
+    match (from, to) {
+        (Some(from), Some(to)) if from > to => Err(anyhow!(
+            "--from {} ({from} s) is after --to {} ({to} s): the span would be empty; give a \
+             --from before --to",
+            format_clock(from),
+            format_clock(to)
+        ))
+        .bad_input(),
+        _ => Ok(()),
+    }
 }
 
 fn chosen_runs<'a>(
