@@ -138,6 +138,10 @@ pub struct RunContext {
 /// How close below an interval's end, in sample periods, a sample stamp counts as on it.
 const EDGE_SLACK: f64 = 1e-6;
 
+/// What a per-sample recording's `# stamps:` line says when its times are clock readings
+/// taken as each read of a live port arrived (the other form is `at N samples/s`).
+pub const STAMPED_BY_CLOCK: &str = "by the clock as each read arrived (a live port)";
+
 /// Writes readings as CSV rows.
 pub struct Recorder<W: Write> {
     out: csv::Writer<W>,
@@ -151,6 +155,7 @@ pub struct Recorder<W: Write> {
     row_flags: Flags,
     link_down: bool,
     rows: u64,
+    stamps_noted: bool,
 }
 
 impl<W: Write> Recorder<W> {
@@ -184,6 +189,7 @@ impl<W: Write> Recorder<W> {
             row_flags: Flags::empty(),
             link_down: false,
             rows: 0,
+            stamps_noted: false,
         })
     }
 
@@ -275,6 +281,7 @@ impl<W: Write> Recorder<W> {
         }
         let channels = *self.channels.get_or_insert(chunk.channels());
         if self.every <= 0.0 {
+            self.note_stamps(chunk.dt)?;
             for i in 0..chunk.len() {
                 self.sample_row(chunk.time(i), chunk.counts(i))?;
             }
@@ -336,12 +343,33 @@ impl<W: Write> Recorder<W> {
             self.row_flags |= flags;
             return Ok(());
         }
+        // Only a live source loses its link or samples, and its time is the clock's.
+        self.note_stamps(0.0)?;
         let channels = self.channels.unwrap_or(1);
         let mut row = vec![seconds(t)];
         for _ in 0..channels {
             row.extend([String::new(), String::new(), String::new(), flags.joined()]);
         }
         self.write_row(row)
+    }
+
+    /// Says once, before a per-sample recording's first row (and its column header), how
+    /// its times were stamped: at a steady rate (a capture or the simulator, whose chunks
+    /// carry their sample period) or by the clock (a live port, whose reads are stamped
+    /// when they arrive, all samples of one read alike), so that a report can tell a gap.
+    fn note_stamps(&mut self, dt: f64) -> io::Result<()> {
+        if std::mem::replace(&mut self.stamps_noted, true) {
+            return Ok(());
+        }
+        let line = if dt > 0.0 {
+            // 1/(1/rate) can miss the rate in its last bit: nine digits show it as given.
+            let rate: f64 = format!("{:.9e}", 1.0 / dt).parse().unwrap_or(1.0 / dt);
+            format!("# stamps: at {rate} samples/s")
+        } else {
+            format!("# stamps: {STAMPED_BY_CLOCK}")
+        };
+        self.out.write_record([line])?;
+        Ok(())
     }
 
     fn write_interval(&mut self, k: u64) -> io::Result<()> {
@@ -561,6 +589,48 @@ mod tests {
             let counts: Vec<String> = data_rows(r).iter().map(|row| row[2].clone()).collect();
             assert_eq!(counts, vec!["10000"; 10], "chunks of {chunk_len}");
         }
+    }
+
+    fn text(r: Recorder<Vec<u8>>) -> String {
+        String::from_utf8(r.out.into_inner().unwrap()).unwrap()
+    }
+
+    // Source: the rule in docs/recording.md: a per-sample recording says before its first
+    // row how its times were stamped; chunks with a sample period of 1 ms come from a
+    // source stamping at 1000 samples/s, chunks of one read (period 0) from a live port.
+    #[test]
+    fn a_per_sample_recording_says_how_its_times_were_stamped() {
+        let steady = |dt: f64| Chunk {
+            t0: 0.0,
+            dt,
+            samples: FlatCounts {
+                channels: 1,
+                counts: vec![2000; 3],
+            },
+        };
+        let mut r = recorder(0.0);
+        r.handle(&Event::Samples(steady(0.001))).unwrap();
+        r.handle(&Event::Samples(steady(0.001))).unwrap();
+        r.finish(0.003).unwrap();
+        let rated = text(r);
+        assert!(
+            rated.contains("\n# stamps: at 1000 samples/s\ntime_s,counts"),
+            "{rated}"
+        );
+        assert_eq!(rated.matches("# stamps").count(), 1);
+        let mut r = recorder(0.0);
+        r.handle(&Event::Samples(steady(0.0))).unwrap();
+        r.finish(0.1).unwrap();
+        assert!(text(r).contains(&format!("\n# stamps: {STAMPED_BY_CLOCK}\ntime_s,")));
+        // A port that drops before its first sample: the marker row is a clock time too.
+        let mut r = recorder(0.0);
+        r.handle(&Event::LinkDown { t: 0.4 }).unwrap();
+        assert!(text(r).contains(&format!("# stamps: {STAMPED_BY_CLOCK}\ntime_s,")));
+        // Rows per interval need no stamps line: their interval is in `# rows:`.
+        let mut r = recorder(1.0);
+        r.handle(&Event::Samples(steady(0.001))).unwrap();
+        r.finish(1.0).unwrap();
+        assert!(!text(r).contains("# stamps"));
     }
 
     #[test]

@@ -1,4 +1,4 @@
-//! The soak report: reading a recorded log back, and the figures a person needs after a
+//! The soak report: reading a recorded log back (`read`), and the figures a person needs after a
 //! long run: mean power (over watts), extremes, spread, drift with its standard error,
 //! when the output settled, gaps and flagged rows; and the decimation that lets a long log
 //! be drawn without losing its extremes.
@@ -9,7 +9,11 @@ use serde::Serialize;
 use thiserror::Error;
 
 use crate::numeric::fit_line;
-use crate::units::{dbm_to_watts, watts_to_dbm};
+use crate::units::{dbm_to_watts, format_clock, watts_to_dbm};
+
+mod read;
+
+pub use read::{DBM_RANGE, MAX_ROW_SAMPLES, MAX_TIME_S};
 
 /// A log that could not be read, with where and what to do.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -50,6 +54,24 @@ pub enum LogError {
         /// The span asked for, if any.
         span: String,
     },
+    /// The span asked for holds no row.
+    #[error("{origin}: no rows {span}: the log's rows are stamped from {first} to {last} since the run started; give --from and --to within that")]
+    OutsideRows {
+        /// File.
+        origin: String,
+        /// The span asked for.
+        span: String,
+        /// The first row's time, as h:mm:ss and seconds.
+        first: String,
+        /// The last row's time.
+        last: String,
+    },
+    /// More samples than a count holds.
+    #[error("{origin}: the rows' sample counts add up to more than {}; report on a shorter span with --from and --to", u64::MAX)]
+    TooManySamples {
+        /// File.
+        origin: String,
+    },
 }
 
 /// One row of a log, for one channel.
@@ -69,64 +91,85 @@ pub struct LogRow {
     pub flags: Vec<String>,
 }
 
-/// A log read back.
+/// How a run's rows are spaced in time.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Spacing {
+    /// One row per interval of this many seconds (`# rows: every 10s`).
+    Interval(f64),
+    /// One row per sample, stamped at this many samples a second (`# stamps: at 1000
+    /// samples/s`).
+    Rate(f64),
+    /// One row per sample, stamped by the clock as each read of a live port arrived
+    /// (`# stamps: by the clock …`): the typical step between rows, seconds (the median of
+    /// all steps, zero between the samples of one read).
+    Clock(f64),
+    /// No line says (logs written before the stamps line, or without a rows line): the
+    /// median step between rows, seconds.
+    MedianStep(f64),
+}
+
+/// A live port's stamps are never further apart than this without a gap being counted, at
+/// the least: the time after which `record` calls a port silent.
+pub const CLOCK_GAP_FLOOR_S: f64 = 0.5;
+/// A live port's stamps further apart than this many typical steps are a gap.
+pub const CLOCK_GAP_STEPS: f64 = 10.0;
+
+impl Spacing {
+    /// The time one row stands for, seconds: its interval, the sample period, or the
+    /// typical step.
+    pub fn step_s(self) -> f64 {
+        match self {
+            Spacing::Interval(s) | Spacing::Clock(s) | Spacing::MedianStep(s) => s,
+            Spacing::Rate(r) => 1.0 / r,
+        }
+    }
+
+    /// The longest step between two rows that is not a gap, seconds: one and a half rows,
+    /// or for a live port's stamps ten typical steps and at least half a second (a read
+    /// arrives whenever the port has bytes, so its steps vary widely; a slow device's
+    /// steady steps are not gaps).
+    pub fn longest_step_s(self) -> f64 {
+        match self {
+            Spacing::Clock(typical) => (CLOCK_GAP_STEPS * typical).max(CLOCK_GAP_FLOOR_S),
+            other => 1.5 * other.step_s(),
+        }
+    }
+}
+
+/// One run of a log: the whole file, or the part after a `# resumed` line whose context
+/// lines change the profile, the frequency or the rows' spacing.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Run {
+    /// Its number in the log, from 1.
+    pub number: usize,
+    /// The line it starts on: 1, or its `# resumed` line.
+    pub first_line: u64,
+    /// Its `#` context lines, without the `#`.
+    pub context: Vec<String>,
+    /// How its rows are spaced.
+    pub spacing: Spacing,
+    /// True for one row per sample.
+    pub per_sample: bool,
+    /// The rows, in time order; the times of resumed legs moved on by the time between
+    /// the run's start and their `# resumed` stamp.
+    pub rows: Vec<LogRow>,
+    /// The `# resumed` lines that continued this run.
+    pub resumed_lines: Vec<u64>,
+}
+
+impl Run {
+    /// The value of a context line such as `profile: …`, without its key.
+    pub fn context_value(&self, key: &str) -> Option<&str> {
+        read::context_value(&self.context, key)
+    }
+}
+
+/// A log read back: one run, or more when it was appended to with another profile or
+/// spacing.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Log {
-    /// The `#` context lines, without the `#`.
-    pub context: Vec<String>,
-    /// The row interval, seconds (0 for one row per sample).
-    pub interval_s: f64,
-    /// The rows, in time order.
-    pub rows: Vec<LogRow>,
-}
-
-/// Columns of the channel asked for.
-struct Columns {
-    time: usize,
-    samples: Option<usize>,
-    mean: usize,
-    min: Option<usize>,
-    max: Option<usize>,
-    flags: usize,
-}
-
-fn columns(
-    header: &csv::StringRecord,
-    line: usize,
-    channel: usize,
-    origin: &str,
-) -> Result<Columns, LogError> {
-    let suffix = if channel <= 1 {
-        String::new()
-    } else {
-        format!("_ch{channel}")
-    };
-    let find = |name: &str| header.iter().position(|h| h == format!("{name}{suffix}"));
-    let not_a_log = |why: String| LogError::NotALog {
-        origin: origin.into(),
-        why: format!("the column header (line {line}) has {why}"),
-    };
-    let time = header
-        .iter()
-        .position(|h| h == "time_s")
-        .ok_or_else(|| not_a_log("no `time_s` column".into()))?;
-    let per_sample = find("dbm").is_some() && find("mean_dbm").is_none();
-    let mean = find(if per_sample { "dbm" } else { "mean_dbm" }).ok_or_else(|| {
-        not_a_log(if channel > 1 {
-            format!("no columns for channel {channel}")
-        } else {
-            "no `mean_dbm` or `dbm` column".into()
-        })
-    })?;
-    let flags = find("flags").ok_or_else(|| not_a_log("no `flags` column".into()))?;
-    Ok(Columns {
-        time,
-        samples: find("samples"),
-        mean,
-        min: find("min_dbm"),
-        max: find("max_dbm"),
-        flags,
-    })
+    /// The runs, in file order.
+    pub runs: Vec<Run>,
 }
 
 /// Reads a log written by `record` (or the screen's logging), per interval or per sample,
@@ -140,56 +183,7 @@ pub fn read_log(bytes: &[u8], origin: &str, channel: usize) -> Result<Log, LogEr
             .count() as u64
             + 1,
     })?;
-    let context: Vec<String> = text
-        .lines()
-        .take_while(|l| l.starts_with('#'))
-        .map(|l| l.trim_start_matches('#').trim().to_string())
-        .collect();
-    if !context.first().is_some_and(|l| l.starts_with("dbtrail")) {
-        return Err(LogError::NotALog {
-            origin: origin.into(),
-            why: "it does not open with dbtrail's `# dbtrail` context lines".into(),
-        });
-    }
-    let mut reader = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(text.as_bytes());
-    let header = reader
-        .headers()
-        .map_err(|e| {
-            bad(
-                origin,
-                e.position().map_or(1, |p| p.line()),
-                "(header)",
-                e.to_string(),
-            )
-        })?
-        .clone();
-    // The csv reader skips the `#` lines without counting them.
-    let cols = columns(&header, context.len() + 1, channel, origin)?;
-    let truncated_at_end = !text.ends_with('\n');
-    let mut rows = Vec::new();
-    for record in reader.records() {
-        let record = record.map_err(|e| {
-            let line = e.position().map_or(0, |p| p.line());
-            let message = match e.kind() {
-                csv::ErrorKind::UnequalLengths { .. } if truncated_at_end => {
-                    "the file ends part-way through this row (was the recording cut off?); remove the last line, or use --to to stop before it".to_string()
-                }
-                csv::ErrorKind::UnequalLengths { expected_len, len, .. } => format!("{len} fields where the header has {expected_len}"),
-                _ => e.to_string(),
-            };
-            bad(origin, line, "(row)", message)
-        })?;
-        rows.push(parse_row(&record, &cols, origin)?);
-    }
-    rows.sort_by(|a, b| a.t.total_cmp(&b.t));
-    let interval_s = interval_from_context(&context).unwrap_or_else(|| median_step(&rows));
-    Ok(Log {
-        context,
-        interval_s,
-        rows,
-    })
+    read::read_runs(text, origin, channel)
 }
 
 fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {
@@ -199,71 +193,6 @@ fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {
         field: field.into(),
         message,
     }
-}
-
-fn parse_row(record: &csv::StringRecord, cols: &Columns, origin: &str) -> Result<LogRow, LogError> {
-    let line = record.position().map_or(0, |p| p.line());
-    let cell = |i: usize| record.get(i).unwrap_or("").trim();
-    let number = |i: usize, name: &str| -> Result<Option<f64>, LogError> {
-        match cell(i) {
-            "" => Ok(None),
-            text => text
-                .parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .map(Some)
-                .ok_or_else(|| bad(origin, line, name, format!("`{text}` is not a number"))),
-        }
-    };
-    let t = number(cols.time, "time_s")?
-        .ok_or_else(|| bad(origin, line, "time_s", "the time is empty".into()))?;
-    let mean_dbm = number(cols.mean, "mean_dbm")?;
-    let samples = match cols.samples {
-        Some(i) => cell(i).parse::<u64>().map_err(|_| {
-            bad(
-                origin,
-                line,
-                "samples",
-                format!("`{}` is not a whole number", cell(i)),
-            )
-        })?,
-        None => 1,
-    };
-    let pick = |col: Option<usize>, name: &str| col.map_or(Ok(mean_dbm), |i| number(i, name));
-    Ok(LogRow {
-        t,
-        samples,
-        mean_dbm,
-        min_dbm: pick(cols.min, "min_dbm")?,
-        max_dbm: pick(cols.max, "max_dbm")?,
-        flags: cell(cols.flags)
-            .split('|')
-            .filter(|f| !f.is_empty())
-            .map(String::from)
-            .collect(),
-    })
-}
-
-/// The interval from the `rows: every 1s` context line.
-fn interval_from_context(context: &[String]) -> Option<f64> {
-    let line = context.iter().find_map(|l| l.strip_prefix("rows: "))?;
-    if line.starts_with("every sample") {
-        return None;
-    }
-    let every = line.strip_prefix("every ")?.split(';').next()?;
-    humantime::parse_duration(every.trim())
-        .ok()
-        .map(|d| d.as_secs_f64())
-}
-
-fn median_step(rows: &[LogRow]) -> f64 {
-    let mut steps: Vec<f64> = rows
-        .windows(2)
-        .map(|w| w[1].t - w[0].t)
-        .filter(|s| *s > 0.0)
-        .collect();
-    steps.sort_by(f64::total_cmp);
-    steps.get(steps.len() / 2).copied().unwrap_or(1.0)
 }
 
 /// Choices for a report.
@@ -338,8 +267,8 @@ pub struct Report {
 }
 
 /// The rows within the options' span.
-pub fn span_rows<'a>(log: &'a Log, options: &ReportOptions) -> Vec<&'a LogRow> {
-    log.rows
+pub fn span_rows<'a>(run: &'a Run, options: &ReportOptions) -> Vec<&'a LogRow> {
+    run.rows
         .iter()
         .filter(|r| {
             options.from_s.is_none_or(|f| r.t >= f) && options.to_s.is_none_or(|t| r.t <= t)
@@ -347,30 +276,60 @@ pub fn span_rows<'a>(log: &'a Log, options: &ReportOptions) -> Vec<&'a LogRow> {
         .collect()
 }
 
-/// Works out the figures of `log` over the chosen span.
-pub fn analyse(log: &Log, origin: &str, options: &ReportOptions) -> Result<Report, LogError> {
-    let rows = span_rows(log, options);
+/// A time as the report prints it, with its seconds: `1:05:10 (3910 s)`.
+fn clock_and_seconds(t: f64) -> String {
+    format!("{} ({t} s)", format_clock(t))
+}
+
+/// The span asked for, in words: `from 0:20:00 (1200 s) to 1:00:00 (3600 s)`.
+fn span_words(options: &ReportOptions) -> String {
+    match (options.from_s, options.to_s) {
+        (None, None) => "in the whole log".into(),
+        (Some(from), None) => format!("from {} to the end", clock_and_seconds(from)),
+        (None, Some(to)) => format!("up to {}", clock_and_seconds(to)),
+        (Some(from), Some(to)) => format!(
+            "from {} to {}",
+            clock_and_seconds(from),
+            clock_and_seconds(to)
+        ),
+    }
+}
+
+/// Works out the figures of `run` over the chosen span.
+pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Report, LogError> {
+    let rows = span_rows(run, options);
+    if let (Some(first), Some(last), true) = (run.rows.first(), run.rows.last(), rows.is_empty()) {
+        return Err(LogError::OutsideRows {
+            origin: origin.into(),
+            span: span_words(options),
+            first: clock_and_seconds(first.t),
+            last: clock_and_seconds(last.t),
+        });
+    }
     let valid: Vec<(f64, f64)> = rows
         .iter()
         .filter_map(|r| r.mean_dbm.map(|m| (r.t, m)))
         .collect();
     if valid.is_empty() {
-        let span = match (options.from_s, options.to_s) {
-            (None, None) => String::new(),
-            (from, to) => format!(
-                " from {} s to {} s",
-                from.unwrap_or(0.0),
-                to.map_or("the end".into(), |t| t.to_string())
-            ),
+        let span = if options.from_s.is_some() || options.to_s.is_some() {
+            format!(" {}", span_words(options))
+        } else {
+            String::new()
         };
         return Err(LogError::NoValidRows {
             origin: origin.into(),
             span,
         });
     }
-    let interval = log.interval_s;
+    let samples = rows
+        .iter()
+        .try_fold(0u64, |total, r| total.checked_add(r.samples))
+        .ok_or_else(|| LogError::TooManySamples {
+            origin: origin.into(),
+        })?;
+    let step = run.spacing.step_s();
     let start = rows[0].t;
-    let end = rows[rows.len() - 1].t + interval;
+    let end = rows[rows.len() - 1].t + step;
     let weight = |r: &&LogRow| r.samples.max(1) as f64;
     let (sum_w, weights) =
         rows.iter()
@@ -393,7 +352,7 @@ pub fn analyse(log: &Log, origin: &str, options: &ReportOptions) -> Result<Repor
     let means: Vec<f64> = valid.iter().map(|(_, m)| *m).collect();
     let hours: Vec<f64> = valid.iter().map(|(t, _)| (t - start) / 3600.0).collect();
     let line = fit_line(&hours, &means);
-    let (gaps, gap_spans) = find_gaps(&rows, interval);
+    let (gaps, gap_spans) = find_gaps(&rows, run.spacing);
     let mut flagged_rows = BTreeMap::new();
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {
         *flagged_rows.entry(flag.clone()).or_insert(0) += 1;
@@ -401,7 +360,7 @@ pub fn analyse(log: &Log, origin: &str, options: &ReportOptions) -> Result<Repor
     let (settled_after_s, settled_dbm) = settle(&valid, start, end, options);
     Ok(Report {
         duration_s: end - start,
-        samples: rows.iter().map(|r| r.samples).sum(),
+        samples,
         mean_dbm: watts_to_dbm(mean_w),
         mean_w,
         min_dbm,
@@ -429,15 +388,17 @@ fn std_dev(values: &[f64]) -> f64 {
     (values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (values.len() - 1) as f64).sqrt()
 }
 
-/// Gaps: runs of gap-flagged rows, and time steps over 1.5 intervals (rows missing).
-fn find_gaps(rows: &[&LogRow], interval: f64) -> (u64, Vec<(f64, f64)>) {
+/// Gaps: runs of gap-flagged rows, and steps between rows longer than the spacing allows
+/// (rows missing, or a port silent).
+fn find_gaps(rows: &[&LogRow], spacing: Spacing) -> (u64, Vec<(f64, f64)>) {
+    let (interval, longest) = (spacing.step_s(), spacing.longest_step_s());
     let mut spans: Vec<(f64, f64)> = Vec::new();
     let mut add = |from: f64, to: f64| match spans.last_mut() {
         Some(last) if from <= last.1 + 1e-9 => last.1 = last.1.max(to),
         _ => spans.push((from, to)),
     };
     for (i, row) in rows.iter().enumerate() {
-        if i > 0 && interval > 0.0 && row.t - rows[i - 1].t > 1.5 * interval {
+        if i > 0 && row.t - rows[i - 1].t > longest {
             add(rows[i - 1].t + interval, row.t);
         }
         if row.flags.iter().any(|f| f == "gap") {
@@ -536,6 +497,32 @@ mod tests {
         assert!(columns.iter().all(|c| (c.1 - 29.9).abs() < 1e-9));
     }
 
+    // Source: the rule in docs/report.md: sample counts are summed with checked arithmetic;
+    // two rows of 2^63 samples make 2^64, one more than a u64 holds.
+    #[test]
+    fn sample_counts_past_what_a_count_holds_are_an_error_not_a_wrap() {
+        let mut rows = vec![row(0.0, 1.0), row(1.0, 1.0)];
+        for r in &mut rows {
+            r.samples = 1 << 63;
+        }
+        let run = Run {
+            number: 1,
+            first_line: 1,
+            context: Vec::new(),
+            spacing: Spacing::Interval(1.0),
+            per_sample: false,
+            rows,
+            resumed_lines: Vec::new(),
+        };
+        let outcome = analyse(&run, "huge.csv", &ReportOptions::default());
+        assert_eq!(
+            outcome,
+            Err(LogError::TooManySamples {
+                origin: "huge.csv".into()
+            })
+        );
+    }
+
     #[test]
     fn gaps_from_missing_rows_and_flags_merge() {
         let mut rows: Vec<LogRow> = (0..10).map(|i| row(f64::from(i), 10.0)).collect();
@@ -543,7 +530,7 @@ mod tests {
         rows[6].flags.push("gap".into()); // t = 8
         rows[6].mean_dbm = None;
         let refs: Vec<&LogRow> = rows.iter().collect();
-        let (count, spans) = find_gaps(&refs, 1.0);
+        let (count, spans) = find_gaps(&refs, Spacing::Interval(1.0));
         assert_eq!(count, 2);
         assert_eq!(spans, [(4.0, 6.0), (8.0, 9.0)]);
     }

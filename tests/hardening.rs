@@ -115,14 +115,18 @@ mod short_fuzz {
                 }
             }
             if let Ok(log) = read_log(&bytes, "mangled.csv", 0) {
-                let _ = analyse(&log, "mangled.csv", &ReportOptions::default());
+                for run in &log.runs {
+                    let _ = analyse(run, "mangled.csv", &ReportOptions::default());
+                }
             }
         }
 
         #[test]
         fn any_bytes_as_a_log_never_panic(bytes in prop::collection::vec(any::<u8>(), 0..2000)) {
             if let Ok(log) = read_log(&bytes, "junk.csv", 0) {
-                let _ = analyse(&log, "junk.csv", &ReportOptions::default());
+                for run in &log.runs {
+                    let _ = analyse(run, "junk.csv", &ReportOptions::default());
+                }
             }
         }
     }

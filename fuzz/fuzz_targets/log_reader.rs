@@ -9,7 +9,9 @@ fuzz_target!(|data: &[u8]| {
     let Ok(log) = read_log(data, "fuzz.csv", 0) else {
         return;
     };
-    if let Ok(report) = analyse(&log, "fuzz.csv", &ReportOptions::default()) {
-        let _ = serde_json::to_string(&report);
+    for run in &log.runs {
+        if let Ok(report) = analyse(run, "fuzz.csv", &ReportOptions::default()) {
+            let _ = serde_json::to_string(&report);
+        }
     }
 });

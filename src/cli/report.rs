@@ -1,12 +1,16 @@
-//! `dbtrail report`: the figures of a recorded soak, as text or JSON, and a plot.
+//! `dbtrail report`: the figures of a recorded soak, as text or JSON, and a plot. A log
+//! appended to with another profile or spacing holds several runs, reported one by one.
 
 use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
-use dbtrail::report::{analyse, decimate, read_log, span_rows, Log, Report, ReportOptions};
+use dbtrail::report::{
+    analyse, decimate, read_log, span_rows, Report, ReportOptions, Run, Spacing,
+};
 use dbtrail::units::{format_clock, parse_duration, Si};
 use plotters::coord::Shift;
 use plotters::prelude::*;
+use serde::Serialize;
 
 use super::{emit, parse_duration_arg, BadInput, Failure, Runtime};
 
@@ -14,7 +18,7 @@ use super::{emit, parse_duration_arg, BadInput, Failure, Runtime};
 pub struct Args {
     /// A log written by `dbtrail record` or by logging in `dbtrail watch`
     log: PathBuf,
-    /// Print one JSON object instead of the table
+    /// Print JSON instead of the table: one object, or an array with one per run
     #[arg(long)]
     json: bool,
     /// Draw the run to this file, SVG or PNG by its extension
@@ -24,29 +28,71 @@ pub struct Args {
     #[arg(long)]
     force: bool,
     /// Size of the plot in pixels, WIDTHxHEIGHT
-    #[arg(long, default_value = "1200x700", value_parser = parse_size)]
+    #[arg(long, default_value = "1200x700", allow_hyphen_values = true, value_parser = parse_size)]
     size: (u32, u32),
     /// Settled means every interval stays within ± this many dB of the final mean
-    #[arg(long, default_value = "0.1dB", value_parser = super::parse_db_arg)]
+    #[arg(long, default_value = "0.1dB", allow_hyphen_values = true, value_parser = parse_tolerance)]
     settle_tol: f64,
     /// The final window whose mean is the settled level (default 10m, or the last fifth of a shorter log)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
     settle_window: Option<std::time::Duration>,
-    /// Start of the span to report on, time since the run started (e.g. 30m)
-    #[arg(long, value_parser = parse_seconds)]
+    /// Start of the span to report on, time since the run started (e.g. 30m, or 0:30:00 as the report prints times)
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     from: Option<f64>,
-    /// End of the span, time since the run started (e.g. 2h)
-    #[arg(long, value_parser = parse_seconds)]
+    /// End of the span, time since the run started (e.g. 2h, or 2:00:00)
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     to: Option<f64>,
     /// Channel to report on, from 1
-    #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(u64).range(1..=8))]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true, value_parser = parse_channel)]
     channel: u64,
+    /// Report on this run only, from 1, when the log holds several (a `# resumed` line that changed the profile or the rows' spacing starts one)
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_run)]
+    run: Option<usize>,
 }
 
+/// Plot formats by file extension.
+const PLOT_EXTENSIONS: [&str; 2] = ["svg", "png"];
+
+/// A time since the run started: a duration (`30m`, `1h30m`) or a clock reading as the
+/// report prints times (`1:05:10`, `05:10`).
 fn parse_seconds(text: &str) -> Result<f64, String> {
+    if text.contains(':') {
+        return parse_clock(text).ok_or_else(|| {
+            format!(
+                "`{text}` is not a time; give h:mm:ss or m:ss as the report prints times \
+                 (e.g. 1:05:10 or 05:10), or a duration such as 30m or 1h30m"
+            )
+        });
+    }
     parse_duration(text)
         .map(|d| d.as_secs_f64())
         .map_err(|e| e.to_string())
+}
+
+/// `h:mm:ss` or `m:ss`, minutes and seconds under 60 where a larger unit leads, the
+/// seconds perhaps with a fraction.
+fn parse_clock(text: &str) -> Option<f64> {
+    let parts: Vec<&str> = text.trim().split(':').collect();
+    if !(2..=3).contains(&parts.len()) {
+        return None;
+    }
+    let (leading, seconds) = parts.split_at(parts.len() - 1);
+    let whole = |p: &str| {
+        (!p.is_empty() && p.bytes().all(|b| b.is_ascii_digit()))
+            .then(|| p.parse::<f64>().ok())
+            .flatten()
+    };
+    let (whole_s, fraction) = seconds[0].split_once('.').unwrap_or((seconds[0], ""));
+    let s = whole(whole_s)?
+        + if fraction.is_empty() {
+            0.0
+        } else {
+            whole(fraction)? / 10f64.powi(fraction.len() as i32)
+        };
+    let units: Vec<f64> = leading.iter().map(|p| whole(p)).collect::<Option<_>>()?;
+    let in_range = s < 60.0 && (units.len() == 1 || units[1] < 60.0);
+    let total = units.iter().fold(0.0, |acc, u| acc * 60.0 + u) * 60.0 + s;
+    (in_range && total.is_finite()).then_some(total)
 }
 
 fn parse_size(text: &str) -> Result<(u32, u32), String> {
@@ -61,66 +107,246 @@ fn parse_size(text: &str) -> Result<(u32, u32), String> {
     }
 }
 
-pub fn run(args: Args) -> Result<(), Failure> {
-    if let Some(path) = args.plot.as_ref().filter(|p| p.exists() && !args.force) {
-        return Err(anyhow::anyhow!(
-            "{} already exists; choose another --plot or add --force to replace it",
-            path.display()
-        ))
-        .bad_input();
+fn parse_tolerance(text: &str) -> Result<f64, String> {
+    match super::parse_db_arg(text)? {
+        db if db > 0.0 => Ok(db),
+        _ => Err(format!(
+            "`{text}` is not a settling tolerance; give a positive number of dB, e.g. 0.1dB"
+        )),
     }
+}
+
+fn parse_channel(text: &str) -> Result<u64, String> {
+    match text.trim().parse::<u64>() {
+        Ok(n) if (1..=8).contains(&n) => Ok(n),
+        _ => Err(format!("`{text}` is not a channel; give 1 to 8")),
+    }
+}
+
+fn parse_run(text: &str) -> Result<usize, String> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if n >= 1 => Ok(n),
+        _ => Err(format!(
+            "`{text}` is not a run number; give 1 for the first run of the log, 2 for the next"
+        )),
+    }
+}
+
+pub fn run(args: Args) -> Result<(), Failure> {
+    check_plot_target(&args)?;
+    check_span(args.from, args.to)?;
     let origin = args.log.display().to_string();
     let bytes = std::fs::read(&args.log)
         .with_context(|| format!("cannot read {origin}"))
         .bad_input()?;
     let log = read_log(&bytes, &origin, args.channel as usize).bad_input()?;
+    let runs = chosen_runs(&log.runs, args.run, &origin)?;
+    if runs.len() > 1 && args.plot.is_some() {
+        return Err(anyhow!(
+            "{origin} holds {} runs (a `# resumed` line changed the profile or the rows' \
+             spacing); add --run N to choose the one to draw",
+            runs.len()
+        ))
+        .bad_input();
+    }
     let options = ReportOptions {
         settle_tol_db: args.settle_tol,
         settle_window_s: args.settle_window.map(|d| d.as_secs_f64()),
         from_s: args.from,
         to_s: args.to,
     };
-    let report = analyse(&log, &origin, &options).bad_input()?;
+    let several = log.runs.len() > 1;
+    let reports = runs
+        .iter()
+        .map(|run| analyse(run, &run_label(&origin, run, several), &options))
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(|e| match runs.len() {
+            1 => anyhow::Error::new(e),
+            n => anyhow!(
+                "{e}; the report covers each of the log's {n} runs: add --run N to report on one"
+            ),
+        })
+        .bad_input()?;
     if let Some(path) = &args.plot {
-        plot(path, args.size, &log, &report, &options).runtime()?;
+        plot(path, args.size, runs[0], &reports[0], &options).runtime()?;
     }
     let text = if args.json {
-        format!(
-            "{}\n",
-            serde_json::to_string(&report).map_err(|e| Failure::Runtime(e.into()))?
-        )
+        json(&runs, &reports).map_err(|e| Failure::Runtime(e.into()))?
     } else {
-        table(&origin, args.channel, &log, &report, &options)
+        let mut out = format!("Soak report: {origin}, channel {}", args.channel);
+        if let ([run], true) = (runs.as_slice(), several) {
+            out.push_str(&format!(
+                ", run {} of {} (from line {})",
+                run.number,
+                log.runs.len(),
+                run.first_line
+            ));
+        } else if several {
+            out.push_str(&format!(
+                ", {} runs (at each `# resumed` line that changed the profile or the rows' spacing)",
+                runs.len()
+            ));
+        }
+        out.push('\n');
+        for (run, report) in runs.iter().zip(&reports) {
+            if runs.len() > 1 {
+                out.push_str(&format!(
+                    "\nRun {} of {}, from line {}\n",
+                    run.number,
+                    log.runs.len(),
+                    run.first_line
+                ));
+            }
+            out.push_str(&table(run, report, &options));
+        }
+        out
     };
     emit(&text)
 }
 
-fn context_value<'a>(log: &'a Log, key: &str) -> Option<&'a str> {
-    log.context
-        .iter()
-        .find_map(|l| l.strip_prefix(key))
-        .map(str::trim)
+/// A plot needs a format it can draw and may not replace a file unasked: both are known
+/// before the log is read.
+fn check_plot_target(args: &Args) -> Result<(), Failure> {
+    let Some(path) = &args.plot else {
+        return Ok(());
+    };
+    let extension = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase);
+    if !extension.is_some_and(|e| PLOT_EXTENSIONS.contains(&e.as_str())) {
+        return Err(anyhow!(
+            "--plot {}: cannot tell the plot format from the file name; name it .svg or .png \
+             (the extensions supported: {})",
+            path.display(),
+            PLOT_EXTENSIONS.map(|e| format!(".{e}")).join(", ")
+        ))
+        .bad_input();
+    }
+    if path.exists() && !args.force {
+        return Err(anyhow!(
+            "{} already exists; choose another --plot or add --force to replace it",
+            path.display()
+        ))
+        .bad_input();
+    }
+    Ok(())
 }
 
-fn table(origin: &str, channel: u64, log: &Log, r: &Report, options: &ReportOptions) -> String {
-    let mut out = format!("Soak report: {origin}, channel {channel}\n");
+fn check_span(from: Option<f64>, to: Option<f64>) -> Result<(), Failure> {
+    match (from, to) {
+        (Some(from), Some(to)) if from > to => Err(anyhow!(
+            "--from {} ({from} s) is after --to {} ({to} s): the span would be empty; give a \
+             --from before --to",
+            format_clock(from),
+            format_clock(to)
+        ))
+        .bad_input(),
+        _ => Ok(()),
+    }
+}
+
+fn chosen_runs<'a>(
+    runs: &'a [Run],
+    wanted: Option<usize>,
+    origin: &str,
+) -> Result<Vec<&'a Run>, Failure> {
+    let Some(n) = wanted else {
+        return Ok(runs.iter().collect());
+    };
+    match runs.get(n - 1) {
+        Some(run) => Ok(vec![run]),
+        None => Err(anyhow!(
+            "--run {n}: {origin} holds {} run{} (starting at line{} {}); give one of those",
+            runs.len(),
+            if runs.len() == 1 { "" } else { "s" },
+            if runs.len() == 1 { "" } else { "s" },
+            runs.iter()
+                .map(|r| r.first_line.to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ))
+        .bad_input(),
+    }
+}
+
+/// Where a run's messages say they are: the file, and the run when there are several.
+fn run_label(origin: &str, run: &Run, several: bool) -> String {
+    if several {
+        format!(
+            "{origin}, run {} (from line {})",
+            run.number, run.first_line
+        )
+    } else {
+        origin.to_string()
+    }
+}
+
+/// One run's figures in a JSON array of runs.
+#[derive(Serialize)]
+struct RunReport<'a> {
+    run: usize,
+    first_line: u64,
+    #[serde(flatten)]
+    report: &'a Report,
+}
+
+/// One object for a single run, as always; an array of objects, each with its run's number
+/// and first line, for several.
+fn json(runs: &[&Run], reports: &[Report]) -> serde_json::Result<String> {
+    let text = if let [report] = reports {
+        serde_json::to_string(report)?
+    } else {
+        let all: Vec<RunReport> = runs
+            .iter()
+            .zip(reports)
+            .map(|(run, report)| RunReport {
+                run: run.number,
+                first_line: run.first_line,
+                report,
+            })
+            .collect();
+        serde_json::to_string(&all)?
+    };
+    Ok(format!("{text}\n"))
+}
+
+/// How the rows are spaced, in words: `rows of 10 s`, `rows, one per sample at 1000
+/// samples/s`.
+fn spacing_words(spacing: Spacing) -> String {
+    match spacing {
+        Spacing::Interval(s) | Spacing::MedianStep(s) => format!("rows of {}", Si::new(s, "s")),
+        Spacing::Rate(rate) => format!("rows, one per sample at {rate} samples/s"),
+        Spacing::Clock(_) => format!(
+            "rows, one per sample stamped by the clock (a gap is a step over {})",
+            Si::new(spacing.longest_step_s(), "s")
+        ),
+    }
+}
+
+fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
+    let mut out = String::new();
     for key in ["profile:", "frequency:", "source:", "started:"] {
-        if let Some(value) = context_value(log, key) {
+        if let Some(value) = run.context_value(key) {
             out.push_str(&format!("  {:<13} {value}\n", key.trim_end_matches(':')));
         }
     }
-    let rows = span_rows(log, options).len();
-    let every = if log.interval_s > 0.0 {
-        format!("rows of {}", Si::new(log.interval_s, "s"))
-    } else {
-        "rows".into()
-    };
+    if !run.resumed_lines.is_empty() {
+        let lines: Vec<String> = run.resumed_lines.iter().map(u64::to_string).collect();
+        out.push_str(&format!(
+            "  {:<13} at line {}, placed in time by the `# resumed` stamps\n",
+            "resumed",
+            lines.join(", ")
+        ));
+    }
+    let rows = span_rows(run, options).len();
     out.push_str(&format!(
-        "  {:<13} {} ({:.0} s) from {:.0} s, {rows} {every}\n",
+        "  {:<13} {} ({:.0} s) from {:.0} s, {rows} {}\n",
         "span",
         format_clock(r.duration_s),
         r.duration_s,
-        r.start_s
+        r.start_s,
+        spacing_words(run.spacing)
     ));
     let settled = match r.settled_after_s {
         Some(s) => format!(
@@ -192,7 +418,7 @@ const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
 fn plot(
     path: &Path,
     size: (u32, u32),
-    log: &Log,
+    run: &Run,
     report: &Report,
     options: &ReportOptions,
 ) -> anyhow::Result<()> {
@@ -204,13 +430,13 @@ fn plot(
     let drawn = match extension.as_deref() {
         Some("svg") => draw(
             SVGBackend::new(path, size).into_drawing_area(),
-            log,
+            run,
             report,
             options,
         ),
         Some("png") => draw(
             BitMapBackend::new(path, size).into_drawing_area(),
-            log,
+            run,
             report,
             options,
         ),
@@ -226,7 +452,7 @@ fn plot(
 
 fn draw<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
-    log: &Log,
+    run: &Run,
     report: &Report,
     options: &ReportOptions,
 ) -> anyhow::Result<()>
@@ -235,7 +461,7 @@ where
 {
     let fail = |e: DrawingAreaErrorKind<DB::ErrorType>| anyhow!("{e}");
     root.fill(&WHITE).map_err(fail)?;
-    let rows = span_rows(log, options);
+    let rows = span_rows(run, options);
     let width = root.dim_in_pixel().0 as usize;
     let columns = decimate(&rows, width.saturating_sub(120).max(10));
     let (t0, t1) = (report.start_s, report.start_s + report.duration_s);
@@ -250,8 +476,9 @@ where
     let (y0, y1) = (report.min_dbm - pad, report.max_dbm + pad);
     let title = format!(
         "{} · {}",
-        context_value(log, "profile:").unwrap_or("dbtrail log"),
-        context_value(log, "started:").map_or(String::new(), |s| format!("started {s}"))
+        run.context_value("profile:").unwrap_or("dbtrail log"),
+        run.context_value("started:")
+            .map_or(String::new(), |s| format!("started {s}"))
     );
     let mut chart = ChartBuilder::on(&root)
         .caption(title, ("sans-serif", 20))

@@ -1,0 +1,679 @@
+//! Reading a recorded log back: its `#` context lines, its rows for one channel, and the
+//! runs it holds. A `# resumed` line (an appended recording) starts a new leg whose times
+//! restart; a leg whose fresh context lines change the profile, the frequency or the rows'
+//! spacing starts a new run, reported on its own. Rows must move forward in time through a
+//! run; every message names the file's real line.
+
+use std::time::SystemTime;
+
+use super::{bad, Log, LogError, LogRow, Run, Spacing};
+
+/// The range of power a cell may hold, dBm: no detector reads outside it (thermal noise in
+/// 1 Hz at 290 K is −174 dBm; +200 dBm is 10^17 W).
+pub const DBM_RANGE: (f64, f64) = (-200.0, 200.0);
+/// The latest time a row may carry, seconds since the run started (about 32 years).
+pub const MAX_TIME_S: f64 = 1e9;
+/// The most samples one row may count: a million a second for over eleven days.
+pub const MAX_ROW_SAMPLES: u64 = 1_000_000_000_000;
+/// Times are written to the microsecond, so two stamps may each be rounded by half of it.
+const PRINT_ROUNDING_S: f64 = 2e-6;
+/// How far before the rows above a resumed leg may start: its place in time comes from two
+/// clock stamps written to the millisecond, taken a few milliseconds from the source's
+/// start.
+const RESUME_SLACK_S: f64 = 0.05;
+
+/// The spacing the `#` lines declare; the rows fill in what they leave open.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Declared {
+    Interval(f64),
+    Rate(f64),
+    Clock,
+    Unknown,
+}
+
+/// The columns of the channel asked for, with their names as the header spells them.
+struct Columns {
+    width: usize,
+    per_sample: bool,
+    time: usize,
+    samples: Option<usize>,
+    mean: usize,
+    min: Option<usize>,
+    max: Option<usize>,
+    flags: usize,
+    names: Vec<String>,
+}
+
+/// A `# resumed` line whose leg has no row yet: its own context lines gather here.
+struct Pending {
+    line: u64,
+    stamp: Option<SystemTime>,
+    context: Vec<(u64, String)>,
+    header: bool,
+}
+
+/// A run being read.
+struct Current {
+    run: Run,
+    /// The line of each of the run's context lines.
+    context_at: Vec<u64>,
+    declared: Declared,
+    /// When the run's time 0 was, from `# started:` (or its `# resumed` line).
+    base: Option<SystemTime>,
+    /// Added to the times of the leg being read, seconds.
+    offset: f64,
+    /// The previous row's time (after the offset) and line.
+    last: Option<(f64, u64)>,
+    /// True for the first row of a resumed leg.
+    leg_start: bool,
+}
+
+struct Reader<'a> {
+    origin: &'a str,
+    channel: usize,
+    columns: Option<Columns>,
+    done: Vec<Run>,
+    current: Current,
+    pending: Option<Pending>,
+}
+
+/// Reads every run of `text` for `channel` (1 is the first).
+pub(super) fn read_runs(text: &str, origin: &str, channel: usize) -> Result<Log, LogError> {
+    if !text.starts_with('#') || !body(text.lines().next().unwrap_or("")).starts_with("dbtrail") {
+        return Err(LogError::NotALog {
+            origin: origin.into(),
+            why: "it does not open with dbtrail's `# dbtrail` context lines".into(),
+        });
+    }
+    let mut reader = Reader {
+        origin,
+        channel,
+        columns: None,
+        done: Vec::new(),
+        current: Current::new(1, 1, Vec::new()),
+        pending: None,
+    };
+    let mut csv = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .has_headers(false)
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let mut lines = Lines {
+        text,
+        at: 0,
+        line: 1,
+    };
+    let mut record = csv::StringRecord::new();
+    loop {
+        let start = csv.position().byte() as usize;
+        let more = csv.read_record(&mut record);
+        // The reader passes over `#` and blank lines unseen: take them here, in order.
+        lines.move_to(start);
+        for (line, comment) in lines.skip_comments() {
+            reader.comment(line, body(comment))?;
+        }
+        match more {
+            Ok(true) => {}
+            Ok(false) => break,
+            Err(e) => return Err(bad(origin, lines.line, "(row)", e.to_string())),
+        }
+        reader.record(&record, lines.line, &text[lines.at..])?;
+        lines.move_to(csv.position().byte() as usize);
+    }
+    reader.finish()
+}
+
+/// A `#` line without its `#`.
+fn body(line: &str) -> &str {
+    line.trim_start_matches('#').trim()
+}
+
+/// Walks the text a line at a time, counting lines.
+struct Lines<'a> {
+    text: &'a str,
+    at: usize,
+    line: u64,
+}
+
+impl<'a> Lines<'a> {
+    fn move_to(&mut self, byte: usize) {
+        let byte = byte.clamp(self.at, self.text.len());
+        self.line += self.text.as_bytes()[self.at..byte]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count() as u64;
+        self.at = byte;
+    }
+
+    /// The `#` lines from here up to the next other line (blank lines passed over), each
+    /// with its line number.
+    fn skip_comments(&mut self) -> Vec<(u64, &'a str)> {
+        let mut comments = Vec::new();
+        while self.at < self.text.len() {
+            let rest = &self.text[self.at..];
+            // Most records are rows: no need to find their end.
+            if !rest.starts_with(['#', '\n', '\r']) {
+                break;
+            }
+            let end = rest.find('\n').map_or(rest.len(), |i| i + 1);
+            let line = rest[..end].trim_end_matches(['\n', '\r']);
+            if line.starts_with('#') {
+                comments.push((self.line, line));
+            } else if !line.is_empty() {
+                break;
+            }
+            self.move_to(self.at + end);
+        }
+        comments
+    }
+}
+
+impl Current {
+    fn new(number: usize, first_line: u64, context: Vec<(u64, String)>) -> Self {
+        let (context_at, context): (Vec<u64>, Vec<String>) = context.into_iter().unzip();
+        Current {
+            context_at,
+            run: Run {
+                number,
+                first_line,
+                context,
+                spacing: Spacing::MedianStep(1.0),
+                per_sample: false,
+                rows: Vec::new(),
+                resumed_lines: Vec::new(),
+            },
+            declared: Declared::Unknown,
+            base: None,
+            offset: 0.0,
+            last: None,
+            leg_start: false,
+        }
+    }
+}
+
+impl Reader<'_> {
+    fn comment(&mut self, line: u64, text: &str) -> Result<(), LogError> {
+        if self.columns.is_none() {
+            self.current.run.context.push(text.to_string());
+            self.current.context_at.push(line);
+        } else if let Some(rest) = text.strip_prefix("resumed") {
+            self.pending = Some(Pending {
+                line,
+                stamp: rest.split_whitespace().next().and_then(parse_utc),
+                context: Vec::new(),
+                header: false,
+            });
+        } else if let Some(pending) = &mut self.pending {
+            pending.context.push((line, text.to_string()));
+        } else if text.starts_with("dbtrail") {
+            return Err(self.joined(line, "a second log's `# dbtrail` lines begin here"));
+        }
+        Ok(())
+    }
+
+    fn joined(&self, line: u64, what: &str) -> LogError {
+        bad(
+            self.origin,
+            line,
+            "(row)",
+            format!(
+                "{what} with no `# resumed` line before them: the file looks like two logs \
+                 joined one after the other; split it at this line and report on each part"
+            ),
+        )
+    }
+
+    /// Takes one record: the column header, a later one at a resumed leg, or a row;
+    /// `rest` is the text from its line on.
+    fn record(
+        &mut self,
+        record: &csv::StringRecord,
+        line: u64,
+        rest: &str,
+    ) -> Result<(), LogError> {
+        if self.columns.is_none() {
+            let columns = columns(record, line, self.channel, self.origin)?;
+            self.current.declare(&columns, self.origin)?;
+            self.columns = Some(columns);
+            return Ok(());
+        }
+        if record.iter().any(|cell| cell == "time_s") {
+            return match &mut self.pending {
+                Some(pending) if !pending.header => {
+                    pending.header = true;
+                    self.columns = Some(columns(record, line, self.channel, self.origin)?);
+                    Ok(())
+                }
+                _ => Err(self.joined(line, "a second column header comes here")),
+            };
+        }
+        if let Some(pending) = self.pending.take() {
+            self.begin_leg(pending)?;
+        }
+        let columns = self.columns.as_ref().expect("set at the header");
+        let mut row = parse_row(record, columns, line, rest, self.origin)?;
+        row.t += self.current.offset;
+        self.current.check_order(row.t, line, self.origin)?;
+        self.current.run.rows.push(row);
+        Ok(())
+    }
+
+    /// The first row of a resumed leg: a new run if its context changes what the rows
+    /// mean, else the same run on, placed in time by its `# resumed` stamp.
+    fn begin_leg(&mut self, pending: Pending) -> Result<(), LogError> {
+        let columns = self.columns.as_ref().expect("set at the header");
+        let run = &self.current.run;
+        let fresh: Vec<String> = pending.context.iter().map(|(_, l)| l.clone()).collect();
+        if changes(&fresh, &run.context) || columns.per_sample != run.per_sample {
+            let context = self.current.carried_into(pending.context);
+            let mut next = Current::new(run.number + 1, pending.line, context);
+            next.base = next.base.or(pending.stamp);
+            next.declare(columns, self.origin)?;
+            let done = std::mem::replace(&mut self.current, next);
+            self.done.push(done.finish());
+            return Ok(());
+        }
+        let (Some(base), Some(stamp)) = (self.current.base, pending.stamp) else {
+            return Err(bad(
+                self.origin,
+                pending.line,
+                "(row)",
+                "cannot place the rows resumed here in time: the `# resumed` line or the \
+                 run's `# started:` line has no readable UTC time; split the file at this \
+                 line and report on each part"
+                    .into(),
+            ));
+        };
+        let offset = stamp.duration_since(base).map_or_else(
+            |early| -early.duration().as_secs_f64(),
+            |late| late.as_secs_f64(),
+        );
+        self.current.offset = offset;
+        self.current.leg_start = true;
+        self.current.run.resumed_lines.push(pending.line);
+        Ok(())
+    }
+
+    /// A `# resumed` line with no row after it adds nothing.
+    fn finish(mut self) -> Result<Log, LogError> {
+        if self.columns.is_none() {
+            return Err(LogError::NotALog {
+                origin: self.origin.into(),
+                why: format!(
+                    "no column header after its context lines (line {})",
+                    self.current.run.context.len() + 1
+                ),
+            });
+        }
+        self.done.push(self.current.finish());
+        Ok(Log { runs: self.done })
+    }
+}
+
+impl Current {
+    /// Takes the run's spacing from its `#` lines and the columns' format.
+    fn declare(&mut self, columns: &Columns, origin: &str) -> Result<(), LogError> {
+        self.base = context_value(&self.run.context, "started:")
+            .and_then(parse_utc)
+            .or(self.base);
+        self.run.per_sample = columns.per_sample;
+        self.declared = if columns.per_sample {
+            let at = |i: usize| {
+                self.context_at
+                    .get(i)
+                    .copied()
+                    .unwrap_or(self.run.first_line)
+            };
+            stamps(&self.run.context, at, origin)?
+        } else {
+            interval_from_context(&self.run.context).map_or(Declared::Unknown, Declared::Interval)
+        };
+        Ok(())
+    }
+
+    /// Rows move forward in time: never back, and (where the spacing is known) never
+    /// closer than one interval or sample period; a resumed leg may not start before the
+    /// rows above it.
+    fn check_order(&mut self, t: f64, line: u64, origin: &str) -> Result<(), LogError> {
+        let leg_start = std::mem::take(&mut self.leg_start);
+        let Some((prev, prev_line)) = self.last.replace((t, line)) else {
+            return Ok(());
+        };
+        let step = t - prev;
+        let problem = if leg_start {
+            (step < -RESUME_SLACK_S).then(|| {
+                format!(
+                    "the rows resumed above start at {t:.3} s, before the rows above them end \
+                     ({prev:.3} s on line {prev_line}): was the computer's clock set back between \
+                     the two recordings? Split the file at the `# resumed` line and report on \
+                     each part"
+                )
+            })
+        } else if step < 0.0 {
+            Some(format!(
+                "{t} s comes before {prev} s on line {prev_line}: times must rise through a run \
+                 (an appended recording restarts its times only after a `# resumed` line); was \
+                 another log joined on? Split the file here and report on each part"
+            ))
+        } else {
+            self.too_close(step, t, prev, prev_line)
+        };
+        match problem {
+            Some(message) => Err(bad(origin, line, "time_s", message)),
+            None => Ok(()),
+        }
+    }
+
+    fn too_close(&self, step: f64, t: f64, prev: f64, prev_line: u64) -> Option<String> {
+        let (least, what) = match self.declared {
+            Declared::Interval(s) => (s - PRINT_ROUNDING_S, format!("its {s} s interval")),
+            Declared::Rate(r) => (
+                1.0 / r - PRINT_ROUNDING_S,
+                format!("the sample period at {r} samples/s"),
+            ),
+            // One read of a live port stamps all its samples alike.
+            Declared::Clock | Declared::Unknown if self.run.per_sample => return None,
+            // An interval log whose interval no line gives: at least one row per time.
+            Declared::Clock | Declared::Unknown => (f64::MIN_POSITIVE, String::new()),
+        };
+        if step >= least {
+            return None;
+        }
+        Some(if step == 0.0 {
+            format!(
+                "{t} s is the time of line {prev_line} too: a time may come only once; was \
+                 part of the log copied in twice? Remove the repeated rows"
+            )
+        } else {
+            format!(
+                "{t} s is only {step} s after line {prev_line} ({prev} s), inside {what}: the \
+                 rows overlap; was another log joined on? Split the file here and report on \
+                 each part"
+            )
+        })
+    }
+
+    /// A new run's context: the resumed leg's own lines, and the run's lines for what
+    /// they leave unsaid.
+    fn carried_into(&self, mut fresh: Vec<(u64, String)>) -> Vec<(u64, String)> {
+        for key in IDENTITY {
+            if fresh.iter().any(|(_, l)| l.starts_with(key)) {
+                continue;
+            }
+            let mut carried = self.run.context.iter().zip(&self.context_at);
+            if let Some((line, at)) = carried.find(|(l, _)| l.starts_with(key)) {
+                fresh.push((*at, line.clone()));
+            }
+        }
+        fresh
+    }
+
+    fn finish(self) -> Run {
+        let mut run = self.run;
+        run.spacing = match self.declared {
+            Declared::Interval(s) => Spacing::Interval(s),
+            Declared::Rate(r) => Spacing::Rate(r),
+            Declared::Clock => Spacing::Clock(median_clock_step(&run.rows)),
+            Declared::Unknown => Spacing::MedianStep(median_step(&run.rows)),
+        };
+        run
+    }
+}
+
+fn not_a_log(origin: &str, line: u64, why: String) -> LogError {
+    LogError::NotALog {
+        origin: origin.into(),
+        why: format!("the column header (line {line}) has {why}"),
+    }
+}
+
+fn columns(
+    header: &csv::StringRecord,
+    line: u64,
+    channel: usize,
+    origin: &str,
+) -> Result<Columns, LogError> {
+    let names: Vec<String> = header.iter().map(|h| h.trim().to_string()).collect();
+    let suffix = if channel <= 1 {
+        String::new()
+    } else {
+        format!("_ch{channel}")
+    };
+    let find = |name: &str| names.iter().position(|h| *h == format!("{name}{suffix}"));
+    let not_a_log = |why: String| not_a_log(origin, line, why);
+    let time = names
+        .iter()
+        .position(|h| h == "time_s")
+        .ok_or_else(|| not_a_log("no `time_s` column".into()))?;
+    let per_sample = find("dbm").is_some() && find("mean_dbm").is_none();
+    let mean = find(if per_sample { "dbm" } else { "mean_dbm" }).ok_or_else(|| {
+        not_a_log(if channel > 1 {
+            format!("no columns for channel {channel}")
+        } else {
+            "no `mean_dbm` or `dbm` column".into()
+        })
+    })?;
+    let flags = find("flags").ok_or_else(|| not_a_log("no `flags` column".into()))?;
+    Ok(Columns {
+        width: names.len(),
+        per_sample,
+        time,
+        samples: find("samples"),
+        mean,
+        min: find("min_dbm"),
+        max: find("max_dbm"),
+        flags,
+        names,
+    })
+}
+
+fn parse_row(
+    record: &csv::StringRecord,
+    cols: &Columns,
+    line: u64,
+    rest: &str,
+    origin: &str,
+) -> Result<LogRow, LogError> {
+    if record.len() != cols.width {
+        // A short last line with no line end: the recording was cut off mid-row.
+        let message = if !rest.contains('\n') {
+            "the file ends part-way through this row (was the recording cut off?); remove the last line, or use --to to stop before it".to_string()
+        } else {
+            format!(
+                "{} fields where the header has {}",
+                record.len(),
+                cols.width
+            )
+        };
+        return Err(bad(origin, line, "(row)", message));
+    }
+    let cell = |i: usize| record.get(i).unwrap_or("").trim();
+    let name = |i: usize| cols.names[i].as_str();
+    let number = |i: usize| -> Result<Option<f64>, LogError> {
+        match cell(i) {
+            "" => Ok(None),
+            text => text
+                .parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite())
+                .map(Some)
+                .ok_or_else(|| bad(origin, line, name(i), format!("`{text}` is not a number"))),
+        }
+    };
+    let dbm = |i: usize| -> Result<Option<f64>, LogError> {
+        let value = number(i)?;
+        match value {
+            Some(v) if !(DBM_RANGE.0..=DBM_RANGE.1).contains(&v) => Err(bad(
+                origin,
+                line,
+                name(i),
+                format!(
+                    "`{}` dBm is outside {} to +{} dBm, more than any detector reads (thermal \
+                     noise in 1 Hz is −174 dBm); fix or remove the row",
+                    cell(i),
+                    DBM_RANGE.0,
+                    DBM_RANGE.1
+                ),
+            )),
+            _ => Ok(value),
+        }
+    };
+    let t = time(number(cols.time)?, cell(cols.time), line, origin)?;
+    let mean_dbm = dbm(cols.mean)?;
+    let samples = match cols.samples {
+        Some(i) => samples(cell(i), name(i), line, origin)?,
+        None => 1,
+    };
+    let pick = |col: Option<usize>| col.map_or(Ok(mean_dbm), dbm);
+    Ok(LogRow {
+        t,
+        samples,
+        mean_dbm,
+        min_dbm: pick(cols.min)?,
+        max_dbm: pick(cols.max)?,
+        flags: cell(cols.flags)
+            .split('|')
+            .filter(|f| !f.is_empty())
+            .map(String::from)
+            .collect(),
+    })
+}
+
+fn time(value: Option<f64>, text: &str, line: u64, origin: &str) -> Result<f64, LogError> {
+    let t = value.ok_or_else(|| bad(origin, line, "time_s", "the time is empty".into()))?;
+    if (0.0..=MAX_TIME_S).contains(&t) {
+        return Ok(t);
+    }
+    Err(bad(
+        origin,
+        line,
+        "time_s",
+        format!(
+            "`{text}` s is outside 0 to {MAX_TIME_S:e} s: times count seconds since the run \
+             started (1e9 s is about 32 years); fix or remove the row"
+        ),
+    ))
+}
+
+fn samples(text: &str, name: &str, line: u64, origin: &str) -> Result<u64, LogError> {
+    let count = text.parse::<u64>().map_err(|_| {
+        bad(
+            origin,
+            line,
+            name,
+            format!("`{text}` is not a whole number"),
+        )
+    })?;
+    if count <= MAX_ROW_SAMPLES {
+        return Ok(count);
+    }
+    Err(bad(
+        origin,
+        line,
+        name,
+        format!(
+            "{count} samples in one row is more than {MAX_ROW_SAMPLES:e} (a million a second \
+             for over eleven days): no recording counts that many; fix or remove the row"
+        ),
+    ))
+}
+
+/// The value of a context line such as `started: …`.
+pub(super) fn context_value<'a>(context: &'a [String], key: &str) -> Option<&'a str> {
+    context
+        .iter()
+        .find_map(|l| l.strip_prefix(key))
+        .map(str::trim)
+}
+
+fn parse_utc(text: &str) -> Option<SystemTime> {
+    humantime::parse_rfc3339_weak(text.trim()).ok()
+}
+
+/// The context lines that say what a run's rows mean.
+const IDENTITY: [&str; 4] = ["profile:", "frequency:", "rows:", "stamps:"];
+
+/// True when a resumed leg's own context lines say something other than the run's about
+/// what its rows mean: another profile (by its hash), frequency, interval or stamping.
+fn changes(fresh: &[String], run: &[String]) -> bool {
+    IDENTITY
+        .iter()
+        .any(|key| identity(fresh, key).is_some_and(|value| identity(run, key) != Some(value)))
+}
+
+/// The part of a context line that decides whether it changed: a profile's hash, the
+/// rows' spacing (not their flag legend).
+fn identity<'a>(context: &'a [String], key: &str) -> Option<&'a str> {
+    let value = context_value(context, key)?;
+    Some(match key {
+        "profile:" => value.rsplit_once("sha256 ").map_or(value, |(_, hash)| hash),
+        "rows:" => value.split(';').next().unwrap_or(value),
+        _ => value,
+    })
+}
+
+/// The interval from the `rows: every 1s` context line.
+fn interval_from_context(context: &[String]) -> Option<f64> {
+    let line = context_value(context, "rows:")?;
+    if line.starts_with("every sample") {
+        return None;
+    }
+    let every = line.strip_prefix("every ")?.split(';').next()?;
+    humantime::parse_duration(every.trim())
+        .ok()
+        .map(|d| d.as_secs_f64())
+        .filter(|s| *s > 0.0)
+}
+
+/// How a per-sample log's times were stamped, from its `# stamps:` line (written by
+/// `record --every 0`; older logs have none).
+fn stamps(
+    context: &[String],
+    line_of: impl Fn(usize) -> u64,
+    origin: &str,
+) -> Result<Declared, LogError> {
+    let Some(index) = context.iter().position(|l| l.starts_with("stamps:")) else {
+        return Ok(Declared::Unknown);
+    };
+    let text = context[index]["stamps:".len()..].trim();
+    if text.starts_with(crate::record::STAMPED_BY_CLOCK) {
+        return Ok(Declared::Clock);
+    }
+    let rate = text
+        .strip_prefix("at ")
+        .and_then(|r| r.strip_suffix("samples/s"))
+        .and_then(|r| r.trim().parse::<f64>().ok())
+        .filter(|r| r.is_finite() && *r > 0.0);
+    rate.map(Declared::Rate).ok_or_else(|| {
+        bad(
+            origin,
+            line_of(index),
+            "# stamps",
+            format!(
+                "`{text}` is not a stamping dbtrail knows: `at N samples/s` or `{}`; fix the \
+                 line or remove it to have the report judge the spacing from the times",
+                crate::record::STAMPED_BY_CLOCK
+            ),
+        )
+    })
+}
+
+/// The typical step between a live port's stamps: the median of all steps, the zero steps
+/// between the samples of one read among them, so that a silence can never be typical
+/// (two reads either side of one would make it the only step that moves time on).
+fn median_clock_step(rows: &[LogRow]) -> f64 {
+    let mut steps: Vec<f64> = rows.windows(2).map(|w| w[1].t - w[0].t).collect();
+    steps.sort_by(f64::total_cmp);
+    steps.get(steps.len() / 2).copied().unwrap_or(0.0)
+}
+
+/// The typical step between rows: the median of the steps that move time on.
+fn median_step(rows: &[LogRow]) -> f64 {
+    let mut steps: Vec<f64> = rows
+        .windows(2)
+        .map(|w| w[1].t - w[0].t)
+        .filter(|s| *s > 0.0)
+        .collect();
+    steps.sort_by(f64::total_cmp);
+    steps.get(steps.len() / 2).copied().unwrap_or(1.0)
+}
