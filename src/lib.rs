@@ -33,6 +33,7 @@ pub mod points;
 pub mod profile;
 pub mod record;
 pub mod report;
+pub mod resume;
 pub mod sim;
 pub mod special;
 pub mod stats;

@@ -156,34 +156,75 @@ pub struct Recorder<W: Write> {
     link_down: bool,
     rows: u64,
     stamps_noted: bool,
+    log_channels: Option<usize>,
+    pending: Option<String>,
+}
+
+/// How a recording begins: a new file, or more rows for an earlier recording.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Opening {
+    /// The context lines, then the column header before the first row.
+    Fresh,
+    /// Added to a log whose rows have `channels` channels (and the same columns): a
+    /// `# resumed` line and this run's context lines go before the first row, after a line
+    /// end of their own when the log's last row was `cut` part-way.
+    Resume {
+        /// The channels of the log's rows.
+        channels: usize,
+        /// The log does not end with a line end.
+        cut: bool,
+    },
+}
+
+/// A stream whose channel count differs from the log it is appended to.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, thiserror::Error)]
+#[error("its rows have {log} channel(s) but this stream sends {stream}")]
+pub struct ChannelMismatch {
+    /// Channels of the log's rows.
+    pub log: usize,
+    /// Channels the stream sends.
+    pub stream: usize,
 }
 
 impl<W: Write> Recorder<W> {
-    /// A recorder writing to `out`; with `header`, the context lines go first (leave it
-    /// off when appending to an earlier recording).
+    /// A recorder writing to `out`, opening as `opening` says.
     pub fn new(
         mut out: W,
         cal: Calibration,
         context: &RunContext,
-        header: bool,
+        opening: Opening,
     ) -> io::Result<Self> {
-        if header {
-            out.write_all(context_lines(&cal, context).as_bytes())?;
-        } else {
-            let resumed = humantime::format_rfc3339_millis(context.started);
-            writeln!(
-                out,
-                "# resumed {resumed} by {} from {}",
-                context.tool, context.source
-            )?;
-        }
+        let (pending, log_channels) = match opening {
+            Opening::Fresh => {
+                out.write_all(context_lines(&cal, context).as_bytes())?;
+                (None, None)
+            }
+            Opening::Resume { channels, cut } => {
+                let resumed = humantime::format_rfc3339_millis(context.started);
+                let block = format!(
+                    "{}# resumed {resumed} by {} from {}\n{}",
+                    if cut { "\n" } else { "" },
+                    context.tool,
+                    context.source,
+                    context_lines(&cal, context)
+                );
+                (Some(block), Some(channels))
+            }
+        };
         Ok(Recorder {
-            out: csv::WriterBuilder::new().flexible(true).from_writer(out),
+            // Never quoted: the cells are numbers, times and flag names, and `#` lines go
+            // through as one cell each, commas and all.
+            out: csv::WriterBuilder::new()
+                .flexible(true)
+                .quote_style(csv::QuoteStyle::Never)
+                .from_writer(out),
             cal,
             every: context.every.as_secs_f64(),
             started: context.started,
             channels: None,
-            header_written: !header,
+            log_channels,
+            pending,
+            header_written: opening != Opening::Fresh,
             interval: None,
             stats: Vec::new(),
             row_flags: Flags::empty(),
@@ -191,6 +232,28 @@ impl<W: Write> Recorder<W> {
             rows: 0,
             stamps_noted: false,
         })
+    }
+
+    /// The `# resumed` block, written with the first row so that a run that writes none
+    /// (refused, or stopped at once) leaves the log as it was.
+    fn write_pending(&mut self) -> io::Result<()> {
+        if let Some(block) = self.pending.take() {
+            // One cell a line; the line end that sets a cut row apart leads the first.
+            let (cut, block) = match block.strip_prefix('\n') {
+                Some(rest) => ("\n", rest),
+                None => ("", block.as_str()),
+            };
+            for (i, line) in block.split_terminator('\n').enumerate() {
+                let lead = if i == 0 { cut } else { "" };
+                self.out.write_record([format!("{lead}{line}")])?;
+            }
+        }
+        Ok(())
+    }
+
+    /// The channels rows are written for: the stream's once known, else the log's.
+    fn channel_count(&self) -> usize {
+        self.channels.or(self.log_channels).unwrap_or(1)
     }
 
     /// Starts the first interval at source time `t` rather than 0, for a recording that
@@ -279,6 +342,13 @@ impl<W: Write> Recorder<W> {
         if chunk.is_empty() {
             return Ok(());
         }
+        if self.channels.is_none() {
+            let stream = chunk.channels();
+            if let Some(log) = self.log_channels.filter(|&log| log != stream) {
+                let mismatch = ChannelMismatch { log, stream };
+                return Err(io::Error::new(io::ErrorKind::InvalidInput, mismatch));
+            }
+        }
         let channels = *self.channels.get_or_insert(chunk.channels());
         if self.every <= 0.0 {
             self.note_stamps(chunk.dt)?;
@@ -321,7 +391,7 @@ impl<W: Write> Recorder<W> {
 
     fn sample_row(&mut self, t: f64, counts: &[u32]) -> io::Result<()> {
         let mut row = vec![seconds(t)];
-        let channels = self.channels.unwrap_or(1);
+        let channels = self.channel_count();
         for &code in counts.iter().take(channels) {
             let r = self.cal.reading_code(code);
             let value = !r.flags.intersects(NOT_A_VALUE);
@@ -345,7 +415,7 @@ impl<W: Write> Recorder<W> {
         }
         // Only a live source loses its link or samples, and its time is the clock's.
         self.note_stamps(0.0)?;
-        let channels = self.channels.unwrap_or(1);
+        let channels = self.channel_count();
         let mut row = vec![seconds(t)];
         for _ in 0..channels {
             row.extend([String::new(), String::new(), String::new(), flags.joined()]);
@@ -361,6 +431,7 @@ impl<W: Write> Recorder<W> {
         if std::mem::replace(&mut self.stamps_noted, true) {
             return Ok(());
         }
+        self.write_pending()?;
         let line = if dt > 0.0 {
             // 1/(1/rate) can miss the rate in its last bit: nine digits show it as given.
             let rate: f64 = format!("{:.9e}", 1.0 / dt).parse().unwrap_or(1.0 / dt);
@@ -378,7 +449,7 @@ impl<W: Write> Recorder<W> {
         if self.link_down {
             flags |= Flags::GAP;
         }
-        let channels = self.channels.unwrap_or(1);
+        let channels = self.channel_count();
         self.stats.resize(channels, PowerStats::default());
         let mut row = vec![seconds(start), calendar_time(self.started, start)];
         for stats in std::mem::take(&mut self.stats) {
@@ -398,6 +469,7 @@ impl<W: Write> Recorder<W> {
     }
 
     fn write_row(&mut self, row: Vec<String>) -> io::Result<()> {
+        self.write_pending()?;
         if !self.header_written {
             let header = self.column_names();
             self.out.write_record(&header)?;
@@ -420,7 +492,7 @@ impl<W: Write> Recorder<W> {
         if self.every > 0.0 {
             names.push("utc".into());
         }
-        for ch in 0..self.channels.unwrap_or(1) {
+        for ch in 0..self.channel_count() {
             let suffix = if ch == 0 {
                 String::new()
             } else {
@@ -448,7 +520,7 @@ fn seconds(t: f64) -> String {
 }
 
 /// The `#` lines that open a recording.
-fn context_lines(cal: &Calibration, c: &RunContext) -> String {
+pub(crate) fn context_lines(cal: &Calibration, c: &RunContext) -> String {
     let every = if c.every.is_zero() {
         "every sample".to_string()
     } else {
@@ -494,7 +566,7 @@ mod tests {
             Vec::new(),
             Calibration::new(&profile, None, 0.0),
             &context,
-            true,
+            Opening::Fresh,
         )
         .unwrap()
     }

@@ -150,3 +150,235 @@ fn an_unwritable_standard_error_never_panics() {
     let status = with_full_stderr(&["report", "no-such-log.csv"]);
     assert_eq!(status.code(), Some(2), "report of a missing log");
 }
+
+/// A three-row log of one channel, one row a second.
+fn three_row_log(dir: &std::path::Path, name: &str) -> std::path::PathBuf {
+    let path = dir.join(name);
+    let out = demo_record(path.to_str().unwrap(), &[]);
+    assert!(out.status.success());
+    path
+}
+
+fn append(out: &std::path::Path, extra: &[&str]) -> std::process::Output {
+    let mut command = bin();
+    command
+        .args(["record", "--append", "--out", out.to_str().unwrap()])
+        .args(extra);
+    output(&mut command)
+}
+
+fn refused_unchanged(out: &std::path::Path, extra: &[&str], words: &[&str]) {
+    let before = std::fs::read(out).unwrap();
+    let got = append(out, extra);
+    let said = String::from_utf8_lossy(&got.stderr);
+    assert_eq!(got.status.code(), Some(2), "{extra:?}: {said}");
+    for word in words {
+        assert!(said.contains(word), "{extra:?} says {word:?}: {said}");
+    }
+    assert_eq!(
+        std::fs::read(out).unwrap(),
+        before,
+        "{extra:?} left the log as it was"
+    );
+}
+
+#[test]
+fn append_refuses_rows_that_would_not_fit_and_leaves_the_log_as_it_was() {
+    let dir = scratch("append-shapes");
+    let demo = ["--demo", "--fast", "--duration", "2s"];
+    let foreign = dir.join("foreign.csv");
+    std::fs::write(&foreign, "a,b\n1,2\n").unwrap();
+    refused_unchanged(&foreign, &demo, &["not a dbtrail log", "`a,b`"]);
+
+    let intervals = three_row_log(&dir, "intervals.csv");
+    let per_sample = [&demo[..], &["--every", "0"]].concat();
+    refused_unchanged(
+        &intervals,
+        &per_sample,
+        &["rows per interval", "one row per sample"],
+    );
+
+    let samples = dir.join("samples.csv");
+    let out = demo_record(samples.to_str().unwrap(), &["--every", "0"]);
+    assert!(out.status.success());
+    refused_unchanged(&samples, &demo, &["holds one row per sample"]);
+
+    // Two channels onto a log of one: known at the first sample, refused before any row.
+    let capture = dir.join("two.txt");
+    let lines: String = (0..100)
+        .map(|i| format!("{},{}\n", 1000 + i, 2000 + i))
+        .collect();
+    std::fs::write(&capture, lines).unwrap();
+    let replay = [
+        "--replay",
+        capture.to_str().unwrap(),
+        "--profile",
+        "tests/profiles/good/hand-logamp.toml",
+        "--every",
+        "10ms",
+    ];
+    refused_unchanged(&intervals, &replay, &["1 channel(s)", "sends 2"]);
+}
+
+#[test]
+fn a_run_made_another_way_is_appended_as_a_run_of_its_own() {
+    let dir = scratch("append-runs");
+    let log = three_row_log(&dir, "soak.csv");
+    let got = append(
+        &log,
+        &["--demo", "--fast", "--duration", "4s", "--every", "2s"],
+    );
+    let said = String::from_utf8_lossy(&got.stderr);
+    assert!(got.status.success(), "{said}");
+    assert!(
+        said.contains("rows differ") && said.contains("run of its own"),
+        "{said}"
+    );
+    let text = std::fs::read_to_string(&log).unwrap();
+    assert!(text.contains("\n# resumed "), "{text}");
+    assert!(
+        text.contains("# rows: every 2s;"),
+        "the new run's context: {text}"
+    );
+    let mut command = bin();
+    let report = output(command.args(["report", log.to_str().unwrap()]));
+    let shown = String::from_utf8_lossy(&report.stdout);
+    assert!(
+        report.status.success(),
+        "{}",
+        String::from_utf8_lossy(&report.stderr)
+    );
+    assert!(
+        shown.contains("Run 2 of 2") && shown.contains("2 rows of 2.000 s"),
+        "{shown}"
+    );
+}
+
+#[test]
+fn a_row_cut_part_way_stays_on_its_own_line_when_a_run_is_appended() {
+    let dir = scratch("append-cut");
+    let log = three_row_log(&dir, "cut.csv");
+    let text = std::fs::read_to_string(&log).unwrap();
+    let cut_at = text.len() - 20;
+    std::fs::write(&log, &text[..cut_at]).unwrap();
+    // Rows of 2 s make a run of their own: the fast simulator's time is not the clock's,
+    // so the same settings could not be placed after the first run in time.
+    let got = append(
+        &log,
+        &["--demo", "--fast", "--duration", "2s", "--every", "2s"],
+    );
+    assert!(
+        got.status.success(),
+        "{}",
+        String::from_utf8_lossy(&got.stderr)
+    );
+    let after = std::fs::read_to_string(&log).unwrap();
+    let cut_line = after
+        .lines()
+        .find(|l| text[..cut_at].ends_with(*l))
+        .unwrap();
+    let next = after.split(cut_line).nth(1).unwrap();
+    assert!(next.starts_with("\n# resumed "), "set apart: {after}");
+    let mut command = bin();
+    let report = output(command.args(["report", log.to_str().unwrap()]));
+    assert!(
+        report.status.success(),
+        "{}",
+        String::from_utf8_lossy(&report.stderr)
+    );
+}
+
+#[test]
+fn a_second_recorder_on_the_same_file_is_refused() {
+    let dir = scratch("append-lock");
+    let log = dir.join("locked.csv");
+    let mut command = bin();
+    command
+        .args([
+            "record",
+            "--demo",
+            "--every",
+            "100ms",
+            "--out",
+            log.to_str().unwrap(),
+        ])
+        .stderr(Stdio::null());
+    let first = spawn(&mut command);
+    wait_until(Duration::from_secs(20), "the first recorder's rows", || {
+        rows_so_far(&log) >= 2
+    });
+    let second = append(&log, &["--demo", "--fast", "--duration", "1s"]);
+    let said = String::from_utf8_lossy(&second.stderr);
+    assert_eq!(second.status.code(), Some(2), "{said}");
+    assert!(said.contains("being written by another dbtrail") && said.contains("locked.csv"));
+    let mut command = bin();
+    let forced = output(
+        command
+            .args(["record", "--demo", "--fast", "--duration", "1s", "--force"])
+            .args(["--out", log.to_str().unwrap()]),
+    );
+    assert_eq!(
+        forced.status.code(),
+        Some(2),
+        "--force does not take a log in use either"
+    );
+    signal(&first, "INT");
+    assert!(wait(first, Duration::from_secs(10)).success());
+    let (_, rows) = rows(&log);
+    assert!(rows.len() >= 2, "the first recorder's rows are all there");
+}
+
+/// Starts a real-time recording into `log` (its messages into `err`) and waits for its
+/// first rows.
+fn recording(log: &std::path::Path, err: &std::path::Path) -> std::process::Child {
+    let mut command = bin();
+    command
+        .args([
+            "record",
+            "--demo",
+            "--every",
+            "100ms",
+            "--out",
+            log.to_str().unwrap(),
+        ])
+        .stderr(std::fs::File::create(err).unwrap());
+    let child = spawn(&mut command);
+    wait_until(Duration::from_secs(20), "the recorder's rows", || {
+        rows_so_far(log) >= 2
+    });
+    child
+}
+
+fn ended_with(child: std::process::Child, err: &std::path::Path, code: i32, words: &str) {
+    // A sync, and with it the check, comes every 2 s.
+    let status = wait(child, Duration::from_secs(20));
+    let said = std::fs::read_to_string(err).unwrap();
+    assert_eq!(status.code(), Some(code), "{said}");
+    assert!(said.contains(words), "says {words:?}: {said}");
+}
+
+#[test]
+fn a_log_truncated_or_deleted_while_recording_stops_the_run_with_exit_1() {
+    let dir = scratch("tampered");
+    let err = dir.join("messages.txt");
+    let log = dir.join("truncated.csv");
+    let child = recording(&log, &err);
+    std::fs::OpenOptions::new()
+        .write(true)
+        .open(&log)
+        .unwrap()
+        .set_len(10)
+        .unwrap();
+    ended_with(child, &err, 1, "was truncated while recording");
+
+    let log = dir.join("deleted.csv");
+    let child = recording(&log, &err);
+    std::fs::remove_file(&log).unwrap();
+    ended_with(child, &err, 1, "was deleted while recording");
+
+    let log = dir.join("replaced.csv");
+    let child = recording(&log, &err);
+    std::fs::rename(&log, dir.join("elsewhere.csv")).unwrap();
+    std::fs::write(&log, "another file\n").unwrap();
+    ended_with(child, &err, 1, "was moved or replaced while recording");
+}

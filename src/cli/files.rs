@@ -3,7 +3,8 @@
 
 use std::fs::{File, OpenOptions};
 use std::io;
-use std::path::Path;
+use std::os::unix::fs::MetadataExt;
+use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
 
@@ -44,5 +45,128 @@ pub fn create(path: &Path, force: bool) -> Result<File, Failure> {
         other => other
             .with_context(|| format!("cannot create {}", path.display()))
             .runtime(),
+    }
+}
+
+/// A log being recorded: opened once, locked against a second recorder, and checked at
+/// every sync that nobody else truncated, deleted or replaced it meanwhile.
+pub struct LogFile {
+    file: File,
+    path: PathBuf,
+    /// A regular file, whose length and identity can be checked.
+    regular: bool,
+    len_at_open: u64,
+    identity: (u64, u64),
+    written: std::cell::Cell<u64>,
+}
+
+/// Someone else changed the log under the recorder.
+#[derive(Debug, thiserror::Error)]
+#[error("{0}")]
+pub struct LogTampered(String);
+
+impl LogFile {
+    /// Opens `path` for a recording, adding to its end when `append`, else replacing what
+    /// it holds once the lock is taken. Refused (exit 2) when another recorder holds it.
+    pub fn open(path: &Path, append: bool) -> Result<LogFile, Failure> {
+        // Appending even to a file just emptied: a truncation by someone else then shows
+        // as a short file, where writing on at our own offset would leave a hole.
+        let mut options = OpenOptions::new();
+        options.read(true).append(true).create(true);
+        let file = options
+            .open(path)
+            .with_context(|| format!("cannot open {} for writing", path.display()))
+            .runtime()?;
+        let meta = file
+            .metadata()
+            .with_context(|| format!("cannot read the state of {}", path.display()))
+            .runtime()?;
+        let regular = meta.is_file();
+        if regular {
+            lock(&file, path)?;
+            if !append {
+                file.set_len(0)
+                    .with_context(|| format!("cannot empty {}", path.display()))
+                    .runtime()?;
+            }
+        }
+        Ok(LogFile {
+            len_at_open: if append && regular { meta.len() } else { 0 },
+            identity: (meta.dev(), meta.ino()),
+            file,
+            path: path.to_path_buf(),
+            regular,
+            written: std::cell::Cell::new(0),
+        })
+    }
+
+    /// Bytes the file held when it was opened for adding to (0 when replaced).
+    pub fn len_at_open(&self) -> u64 {
+        self.len_at_open
+    }
+
+    /// The open file, to read an earlier log through.
+    pub fn file(&self) -> &File {
+        &self.file
+    }
+
+    /// Syncs, then checks that the file still holds every byte written, under its name.
+    pub fn sync_and_check(&self) -> io::Result<()> {
+        sync(&self.file)?;
+        if !self.regular {
+            return Ok(());
+        }
+        let name = self.path.display();
+        let meta = self.file.metadata()?;
+        let expected = self.len_at_open + self.written.get();
+        let problem = if meta.nlink() == 0 {
+            Some(format!("{name} was deleted while recording"))
+        } else if std::fs::metadata(&self.path)
+            .map_or(true, |m| (m.dev(), m.ino()) != self.identity)
+        {
+            Some(format!("{name} was moved or replaced while recording"))
+        } else if meta.len() < expected {
+            Some(format!(
+                "{name} was truncated while recording: it holds {} bytes of the {expected} \
+                 written",
+                meta.len()
+            ))
+        } else {
+            None
+        };
+        match problem {
+            Some(what) => Err(io::Error::other(LogTampered(format!(
+                "{what} (by another program); the rows written since are not in it"
+            )))),
+            None => Ok(()),
+        }
+    }
+}
+
+impl io::Write for LogFile {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        let n = self.file.write(buf)?;
+        self.written.set(self.written.get() + n as u64);
+        Ok(n)
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.file.flush()
+    }
+}
+
+/// Takes the advisory lock that keeps a second recorder off the same file.
+fn lock(file: &File, path: &Path) -> Result<(), Failure> {
+    match file.try_lock() {
+        Ok(()) => Ok(()),
+        Err(std::fs::TryLockError::WouldBlock) => Err(anyhow!(
+            "{} is being written by another dbtrail (it holds the file's lock); stop that \
+             one first, or choose another --out",
+            path.display()
+        ))
+        .bad_input(),
+        Err(std::fs::TryLockError::Error(e)) => {
+            Err(anyhow::Error::new(e).context(format!("cannot lock {}", path.display()))).runtime()
+        }
     }
 }

@@ -1,7 +1,6 @@
 //! `dbtrail record`: calibrated power written to CSV for as long as it runs, with nothing
 //! lost on a signal, a full disk or an unplugged port.
 
-use std::fs::{File, OpenOptions};
 use std::io::{self, IsTerminal, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -10,9 +9,11 @@ use std::time::{Duration, Instant, SystemTime};
 
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
-use dbtrail::record::{Event, Recorder, RunContext};
+use dbtrail::record::{ChannelMismatch, Event, Opening, Recorder, RunContext};
+use dbtrail::resume::LogShape;
 use sha2::{Digest, Sha256};
 
+use super::files::{LogFile, LogTampered};
 use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
 use crate::source::Running;
@@ -47,9 +48,9 @@ trait Durable: Write {
     fn make_durable(&self) -> io::Result<()>;
 }
 
-impl Durable for File {
+impl Durable for LogFile {
     fn make_durable(&self) -> io::Result<()> {
-        super::files::sync(self)
+        self.sync_and_check()
     }
 }
 
@@ -79,7 +80,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     )?;
     // Opened once the source and the profile are known good, so a bad one leaves no
     // empty file behind.
-    let (out, fresh) = open_output(&args.out, args.append, args.force)?;
+    let (out, earlier) = open_output(&args.out, args.append, args.force)?;
     let stop = install_signal_flag().runtime()?;
     if args.source.demo.is_some() && args.link.fast && until.is_none() {
         super::say_err!(
@@ -97,12 +98,16 @@ pub fn run(args: Args) -> Result<(), Failure> {
         source: source.description.clone(),
         every: args.every,
     };
+    let opening = match &earlier {
+        Some(shape) => resume(shape, &args.out, &cal, &context)?,
+        None => Opening::Fresh,
+    };
     let target = if args.out == "-" {
         "standard output".to_string()
     } else {
         args.out.clone()
     };
-    let mut recorder = Recorder::new(out, cal, &context, fresh)
+    let mut recorder = Recorder::new(out, cal, &context, opening)
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
     let outcome = pump(
@@ -112,8 +117,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         until,
         1.0 / args.link.rate,
     )
-    .with_context(|| format!("cannot write to {target}; rows written before this point are kept"))
-    .runtime();
+    .map_err(|e| pump_failure(e, &target));
     let link = source.counters.snapshot();
     drop(source);
     super::say_err!(
@@ -274,31 +278,88 @@ fn cut_at(event: &mut Event, end: f64) -> bool {
     }
 }
 
-/// Opens the output, refusing to replace a file unless told to; true when it is new.
-fn open_output(out: &str, append: bool, force: bool) -> Result<(Box<dyn Durable>, bool), Failure> {
+/// How a failed run is reported: a stream that does not fit the log it is added to is
+/// bad input; a log tampered with, or a write that failed, a failure while running.
+fn pump_failure(e: io::Error, target: &str) -> Failure {
+    let inner = e.get_ref();
+    if let Some(mismatch) = inner.and_then(|i| i.downcast_ref::<ChannelMismatch>()) {
+        return Failure::BadInput(anyhow!(
+            "cannot add to {target}: {mismatch}; record this stream to another --out (the \
+             log is unchanged)"
+        ));
+    }
+    if inner.is_some_and(|i| i.is::<LogTampered>()) {
+        return Failure::Runtime(anyhow!("{e}; recording stopped"));
+    }
+    Failure::Runtime(anyhow::Error::new(e).context(format!(
+        "cannot write to {target}; rows written before this point are kept"
+    )))
+}
+
+/// How a run goes on from an earlier log: refused when its rows would not fit; when it
+/// was made another way (profile, frequency, interval), its own context lines say so and
+/// `report` reports it as a run of its own.
+fn resume(
+    shape: &LogShape,
+    out: &str,
+    cal: &Calibration,
+    context: &RunContext,
+) -> Result<Opening, Failure> {
+    let per_sample = context.every.is_zero();
+    if shape.per_sample != per_sample {
+        let (log, run) = if shape.per_sample {
+            ("one row per sample", "rows per interval")
+        } else {
+            ("rows per interval", "one row per sample (--every 0)")
+        };
+        return Err(anyhow!(
+            "cannot add to {out}: it holds {log} and this run would write {run}; give the \
+             log's own --every (see its `# rows:` line), or choose another --out"
+        ))
+        .bad_input();
+    }
+    let differ = shape.differences(cal, context);
+    if !differ.is_empty() {
+        super::say_err!(
+            "dbtrail: this run's {} differ from the last run in {out}: it is added as a run \
+             of its own, which `report` reports separately",
+            differ.join(", ")
+        );
+    }
+    Ok(Opening::Resume {
+        channels: shape.channels,
+        cut: shape.cut,
+    })
+}
+
+/// Opens the output, refusing to replace a file unless told to, and locked against a
+/// second recorder; the shape of the earlier log when adding to one.
+fn open_output(
+    out: &str,
+    append: bool,
+    force: bool,
+) -> Result<(Box<dyn Durable>, Option<LogShape>), Failure> {
     if out == "-" {
-        return Ok((Box::new(io::stdout()), true));
+        return Ok((Box::new(io::stdout()), None));
     }
     let path = Path::new(out);
-    let exists = path.exists();
-    if exists && !append && !force {
+    if path.exists() && !append && !force {
         return Err(anyhow!(
             "{out} already exists; add --append to add to it or --force to replace it"
         ))
         .bad_input();
     }
-    let mut options = OpenOptions::new();
-    if append {
-        options.append(true).create(true);
+    let log = LogFile::open(path, append)?;
+    let earlier = if append && log.len_at_open() > 0 {
+        let reader = io::BufReader::new(log.file());
+        let shape = LogShape::scan(reader)
+            .map_err(|e| anyhow!("cannot add to {out}: {e}; choose another --out"))
+            .bad_input()?;
+        Some(shape)
     } else {
-        options.write(true).create(true).truncate(true);
-    }
-    let file = options
-        .open(path)
-        .with_context(|| format!("cannot open {out} for writing"))
-        .runtime()?;
-    let fresh = !append || file.metadata().map(|m| m.len() == 0).unwrap_or(true);
-    Ok((Box::new(file), fresh))
+        None
+    };
+    Ok((Box::new(log), earlier))
 }
 
 /// A flag that SIGINT, SIGTERM and SIGHUP set, so the loop can end cleanly.

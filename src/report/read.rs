@@ -251,6 +251,9 @@ impl Reader<'_> {
             self.begin_leg(pending)?;
         }
         let columns = self.columns.as_ref().expect("set at the header");
+        if cut_before_resuming(record, columns, rest) {
+            return Ok(());
+        }
         let mut row = parse_row(record, columns, line, rest, self.origin)?;
         row.t += self.current.offset;
         self.current.check_order(row.t, line, self.origin)?;
@@ -465,6 +468,13 @@ fn columns(
         flags,
         names,
     })
+}
+
+/// A row cut part-way when a recording stopped, which the next run's `# resumed` line
+/// follows on a line of its own (`record --append` never joins them): passed over.
+fn cut_before_resuming(record: &csv::StringRecord, cols: &Columns, rest: &str) -> bool {
+    let next = rest.find('\n').map(|end| &rest[end + 1..]);
+    record.len() < cols.width && next.is_some_and(|next| next.starts_with("# resumed"))
 }
 
 fn parse_row(

@@ -21,7 +21,7 @@ use ratatui::crossterm::event::{self as term_event, Event as TermEvent};
 use ratatui::DefaultTerminal;
 use tokio::sync::mpsc;
 
-use dbtrail::record::{Event, Recorder, RunContext};
+use dbtrail::record::{Event, Opening, Recorder, RunContext};
 
 use crate::source::Running;
 use app::{App, AppEvent, Command};
@@ -228,7 +228,7 @@ fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
         source: session.source.description.clone(),
         every: Duration::from_secs(1),
     };
-    let mut recorder = Recorder::new(file, app.cal.clone(), &context, true)
+    let mut recorder = Recorder::new(file, app.cal.clone(), &context, Opening::Fresh)
         .with_context(|| format!("cannot write {}", path.display()))?;
     recorder.begin_at(session.source.now());
     Ok(Log {

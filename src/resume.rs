@@ -1,0 +1,172 @@
+//! Appending to an earlier log: the shape of its rows and the context of its last run,
+//! read from its `#` lines and column header, so that a run whose rows would not fit is
+//! refused before it starts and one made another way is told apart.
+
+use std::io::{self, BufRead};
+
+use thiserror::Error;
+
+use crate::calibration::Calibration;
+use crate::record::{context_lines, RunContext};
+
+/// What a log's rows look like, and how its last run was made.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct LogShape {
+    /// One row per sample (`counts, volts, dbm, flags`), not per interval.
+    pub per_sample: bool,
+    /// Channels in each row.
+    pub channels: usize,
+    /// The last row was cut part-way: the log does not end with a line end.
+    pub cut: bool,
+    /// The last run's context lines that say how it was made (profile, frequency, rows).
+    made: Vec<String>,
+}
+
+/// Why rows cannot be added to a file.
+#[derive(Debug, Error)]
+pub enum ShapeError {
+    /// The file does not start as a dbtrail log.
+    #[error(
+        "it is not a dbtrail log: its first line is `{first}`, where a log starts with `# dbtrail`"
+    )]
+    Foreign {
+        /// The first line, shortened.
+        first: String,
+    },
+    /// Context lines but no column header: no row was ever written.
+    #[error("it has no column header (no row was ever written to it)")]
+    NoHeader,
+    /// A column header of another program or version.
+    #[error("its column header `{header}` (line {line}) is not one dbtrail writes")]
+    Columns {
+        /// The header as found, shortened.
+        header: String,
+        /// Its line number, from 1.
+        line: u64,
+    },
+    /// The file could not be read.
+    #[error("cannot read it: {0}")]
+    Io(#[from] io::Error),
+}
+
+/// The context lines that say how a run was made: a change in any of them makes a new run.
+const MADE_BY: [&str; 3] = ["# profile:", "# frequency:", "# rows:"];
+
+const PER_SAMPLE: [&str; 4] = ["counts", "volts", "dbm", "flags"];
+const PER_INTERVAL: [&str; 6] = [
+    "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
+];
+
+impl LogShape {
+    /// Reads a log to its end (a line at a time, so a log of any size costs one line of
+    /// memory) for its first line, its column header and its last run's context.
+    pub fn scan(mut reader: impl BufRead) -> Result<LogShape, ShapeError> {
+        let mut line = Vec::new();
+        let mut number = 0u64;
+        let mut header: Option<(usize, bool)> = None;
+        let mut made = Vec::new();
+        let mut cut = false;
+        let mut in_context = true;
+        while reader.read_until(b'\n', &mut line)? > 0 {
+            number += 1;
+            cut = line.last() != Some(&b'\n');
+            let text = String::from_utf8_lossy(&line);
+            let text = text.trim_end_matches(['\r', '\n']);
+            if number == 1 && !text.starts_with("# dbtrail") {
+                return Err(ShapeError::Foreign {
+                    first: shortened(text),
+                });
+            }
+            if text.starts_with("# resumed") {
+                in_context = true;
+            }
+            if let Some(kind) = MADE_BY.iter().find(|k| text.starts_with(**k)) {
+                if in_context && made.len() == MADE_BY.len() {
+                    made.clear();
+                }
+                made.retain(|m: &String| !m.starts_with(kind));
+                made.push(made_part(text));
+            } else if !text.starts_with('#') {
+                if header.is_none() {
+                    header = Some(columns(text, number)?);
+                }
+                in_context = false;
+            }
+            line.clear();
+        }
+        let (channels, per_sample) = header.ok_or(ShapeError::NoHeader)?;
+        made.sort();
+        Ok(LogShape {
+            per_sample,
+            channels,
+            cut,
+            made,
+        })
+    }
+
+    /// Which of the last run's context lines differ from those a run with this
+    /// calibration and context writes: the words before each line's colon.
+    pub fn differences(&self, cal: &Calibration, context: &RunContext) -> Vec<String> {
+        let ours = context_lines(cal, context);
+        let mut ours: Vec<String> = ours
+            .lines()
+            .filter(|l| MADE_BY.iter().any(|k| l.starts_with(k)))
+            .map(made_part)
+            .collect();
+        ours.sort();
+        ours.iter()
+            .filter(|line| !self.made.contains(line))
+            .map(|line| {
+                let name = line.split(':').next().unwrap_or(line);
+                name.trim_start_matches("# ").to_string()
+            })
+            .collect()
+    }
+}
+
+/// The part of a context line that says how the run was made: all of it, except the rows
+/// line's legend after its first `;`.
+fn made_part(line: &str) -> String {
+    if line.starts_with("# rows:") {
+        line.split(';').next().unwrap_or(line).to_string()
+    } else {
+        line.to_string()
+    }
+}
+
+/// Channels and kind (true: per sample) of a column header dbtrail writes.
+fn columns(header: &str, line: u64) -> Result<(usize, bool), ShapeError> {
+    let names: Vec<&str> = header.split(',').collect();
+    let fits = |lead: &[&str], per: &[&str]| -> Option<usize> {
+        let rest = names.strip_prefix(lead)?;
+        let channels = rest.len() / per.len();
+        let expected = (0..channels).flat_map(|ch| {
+            let suffix = if ch == 0 {
+                String::new()
+            } else {
+                format!("_ch{}", ch + 1)
+            };
+            per.iter().map(move |n| format!("{n}{suffix}"))
+        });
+        (channels > 0 && rest.len() % per.len() == 0 && rest.iter().copied().eq(expected))
+            .then_some(channels)
+    };
+    if let Some(channels) = fits(&["time_s"], &PER_SAMPLE) {
+        return Ok((channels, true));
+    }
+    if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL) {
+        return Ok((channels, false));
+    }
+    Err(ShapeError::Columns {
+        header: shortened(header),
+        line,
+    })
+}
+
+fn shortened(text: &str) -> String {
+    let mut short: String = text.chars().take(60).collect();
+    if short.len() < text.len() {
+        short.push('…');
+    }
+    short.escape_debug().to_string()
+}
