@@ -164,6 +164,68 @@ fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
     );
 }
 
+/// A points file of `count` points on the log-amp line V = 0.025·(P + 80) (1 mV a count),
+/// each level written with `padding` zeros after its decimal point.
+fn line_points(dir: &Path, count: usize, padding: usize) -> PathBuf {
+    let path = dir.join(format!("line-{count}-{padding}.csv"));
+    let mut csv = String::from("applied,counts\n");
+    for i in 0..count {
+        let dbm = -60.0 + 60.0 * i as f64 / count as f64;
+        let zeros = "0".repeat(padding);
+        csv.push_str(&format!("{dbm:.6}{zeros}dBm,{}\n", 25.0 * (dbm + 80.0)));
+    }
+    std::fs::write(&path, csv).unwrap();
+    path
+}
+
+// Source: the rule in docs/reliability.md (bad input exits 2 with a message and writes
+// nothing) and the profile loader's limit of 4096 points (docs/profiles.md).
+#[test]
+fn fit_refuses_more_points_than_a_profile_holds() {
+    let dir = scratch("too-many-points");
+    let out_path = dir.join("many.toml");
+    let points = line_points(&dir, 4097, 0);
+    let out = dbtrail(&fit_args(
+        points.to_str().unwrap(),
+        "log",
+        out_path.to_str().unwrap(),
+    ));
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("4097 calibration points; a profile holds at most 4096"),
+        "{}",
+        stderr(&out)
+    );
+    assert!(!out_path.exists(), "nothing may be written on failure");
+}
+
+// Source: the rule that `fit` never writes a profile `check` refuses: 4000 points whose
+// levels are written with 250 padding zeros make a file over the loader's 1 MiB, which
+// must be refused with the loader's message before anything is written.
+#[test]
+fn fit_never_writes_a_profile_that_check_refuses() {
+    let dir = scratch("fit-too-large");
+    let out_path = dir.join("large.toml");
+    let points = line_points(&dir, 4000, 250);
+    let out = dbtrail(&fit_args(
+        points.to_str().unwrap(),
+        "log",
+        out_path.to_str().unwrap(),
+    ));
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    let message = stderr(&out);
+    assert!(
+        message.contains("would not load, so") && message.contains("was not written"),
+        "{message}"
+    );
+    assert!(
+        message.contains("large.toml:1:1: (file): the file is")
+            && message.contains("a profile is at most 1048576 bytes"),
+        "{message}"
+    );
+    assert!(!out_path.exists(), "nothing may be written on failure");
+}
+
 /// (file, model, what the message must name)
 const BAD_POINTS: &[(&str, &str, &str)] = &[
     (

@@ -3,6 +3,7 @@
 
 use dbtrail::profile::{
     load_profile, parse_profile, parse_profile_bytes, ProfileError, MAX_PROFILE_BYTES,
+    MAX_PROFILE_POINTS,
 };
 use std::path::Path;
 
@@ -199,6 +200,37 @@ fn a_huge_file_is_refused_without_parsing() {
         panic!("should fail");
     };
     assert!(problems[0].message.contains("at most"), "{problems:?}");
+}
+
+// Source: the loader's limit of 4096 calibration points (docs/profiles.md), one over it.
+#[test]
+fn more_points_than_the_limit_are_refused_on_the_points_field() {
+    let mut text = String::from(
+        "name = \"many\"\nreference_frequency = \"10MHz\"\n[adc]\nbits = 16\nvref = 4.0\n\
+         [model]\nkind = \"table\"\npoints = [\n",
+    );
+    for i in 0..=MAX_PROFILE_POINTS {
+        text.push_str(&format!(
+            "  {{ applied = \"{}dBm\", counts = {} }},\n",
+            i,
+            i + 1
+        ));
+    }
+    text.push_str("]\n");
+    let Err(ProfileError::Invalid { problems, .. }) = parse_profile(&text, "many.toml") else {
+        panic!("4097 points should be refused");
+    };
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    assert_eq!(
+        (problems[0].line, problems[0].field.as_str()),
+        (8, "model.points")
+    );
+    assert!(
+        problems[0]
+            .message
+            .contains("4097 calibration points; a profile holds at most 4096"),
+        "{problems:?}"
+    );
 }
 
 #[test]

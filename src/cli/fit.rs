@@ -7,7 +7,10 @@ use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::points::{read_points, PointRow};
 use dbtrail::profile::raw::{FreqValue, RawAdc, RawModel, RawProfile};
-use dbtrail::profile::{parse_profile, render_profile, Profile, ProfileError};
+use dbtrail::profile::{
+    parse_profile, parse_profile_bytes, render_profile, too_many_points, Profile, ProfileError,
+    MAX_PROFILE_POINTS,
+};
 use dbtrail::units::DEFAULT_OHMS;
 
 use super::{emit, parse_frequency_arg, parse_ohms, summary, BadInput, Failure, Runtime};
@@ -60,9 +63,12 @@ pub fn run(args: Args) -> Result<(), Failure> {
         .with_context(|| format!("cannot read points file {origin}; check the path"))
         .bad_input()?;
     let rows = read_points(&bytes, &origin).bad_input()?;
+    if rows.len() > MAX_PROFILE_POINTS {
+        return Err(anyhow!("{origin}: {}", too_many_points(rows.len()))).bad_input();
+    }
     let raw = raw_profile(&args, &rows);
-    let profile = validate(&raw, &rows, &origin).bad_input()?;
-    let raw = with_fitted_params(raw, &profile);
+    let fitted = validate(&raw, &rows, &origin).bad_input()?;
+    let raw = with_fitted_params(raw, &fitted);
     let header = format!(
         "Written by dbtrail fit from {origin}.\nApplied levels are at the detector input, measured at {}.",
         dbtrail::units::format_frequency(args.freq)
@@ -70,6 +76,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let text = render_profile(&raw, &header)
         .context("cannot render the profile as TOML")
         .runtime()?;
+    let profile = loads_as_written(&text, &args.out).bad_input()?;
     write_new(&args.out, &text, args.force)?;
     let cal = Calibration::new(&profile, None, 0.0);
     let mut report = summary::setup(&profile, &cal);
@@ -137,6 +144,18 @@ fn validate(raw: &RawProfile, rows: &[PointRow], origin: &str) -> anyhow::Result
         }
         Err(e) => Err(e.into()),
     }
+}
+
+/// The profile as `check` will load it from the file about to be written: a fit that
+/// `check` would refuse (too large a file, parameters that miss the points) is refused
+/// here, with the loader's own message, before anything is written.
+fn loads_as_written(text: &str, out: &Path) -> anyhow::Result<Profile> {
+    parse_profile_bytes(text.as_bytes(), &out.display().to_string()).with_context(|| {
+        format!(
+            "the fitted profile would not load, so {} was not written",
+            out.display()
+        )
+    })
 }
 
 /// `model.points[3].counts` → 3.

@@ -24,6 +24,11 @@ pub use raw::RawProfile;
 /// The largest profile file read; anything bigger is not a profile.
 pub const MAX_PROFILE_BYTES: usize = 1 << 20;
 
+/// The most calibration points a profile may hold. A bench calibration has tens; a swept
+/// one at 0.1 dB steps over 100 dB has a thousand. Written by `fit` (about 60 to 100 bytes
+/// a point) this many stay well inside [`MAX_PROFILE_BYTES`].
+pub const MAX_PROFILE_POINTS: usize = 4096;
+
 /// One thing wrong with a profile, and where.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Problem {
@@ -262,6 +267,14 @@ fn whole_file_problem(origin: &str, message: String) -> ProfileError {
             message,
         }],
     }
+}
+
+/// Why `count` calibration points are too many, and what to do.
+pub fn too_many_points(count: usize) -> String {
+    format!(
+        "{count} calibration points; a profile holds at most {MAX_PROFILE_POINTS}: keep every \
+         few tenths of a dB of a sweep (the curve between points is interpolated) or split it"
+    )
 }
 
 fn too_long(bytes: u64) -> String {

@@ -5,7 +5,7 @@ use std::sync::Arc;
 
 use super::locate::{did_you_mean, FieldPath};
 use super::raw::{RawAdc, RawFreqPoint, RawModel, RawProfile};
-use super::{Limits, Model, Profile, ProfilePoint};
+use super::{too_many_points, Limits, Model, Profile, ProfilePoint, MAX_PROFILE_POINTS};
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{FreqTable, Offset, TableError};
 use crate::detector::{
@@ -273,6 +273,10 @@ fn check_points(
     kind: ModelKind,
 ) -> Option<Vec<ProfilePoint>> {
     let path = FieldPath::key("model").then("points");
+    if raw.points.len() > MAX_PROFILE_POINTS {
+        check.fail(path, too_many_points(raw.points.len()));
+        return None;
+    }
     if raw.points.len() < kind.min_points() {
         check.fail(
             path.clone(),
