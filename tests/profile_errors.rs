@@ -1,6 +1,9 @@
 //! Every malformed profile under tests/profiles/bad/ must fail with a message that names the
 //! offending line and field; the shipped profiles must load.
 
+mod common;
+
+use common::demo_diode_with_stale_fit;
 use dbtrail::profile::{
     load_profile, parse_profile, parse_profile_bytes, ProfileError, MAX_PROFILE_BYTES,
     MAX_PROFILE_POINTS,
@@ -231,6 +234,33 @@ fn more_points_than_the_limit_are_refused_on_the_points_field() {
             .contains("4097 calibration points; a profile holds at most 4096"),
         "{problems:?}"
     );
+}
+
+// Source: the fit limit in src/detector/mod.rs (a model missing its own points by more
+// than 2 dB RMS describes no detector): the demo diode with its fitted n and vl written in
+// and vref changed from 1.2 V to 0.6 V misses its points by about 4.4 dB RMS; it must be
+// refused on the field `n`, with the error and what to do.
+#[test]
+fn parameters_that_miss_their_own_points_are_refused() {
+    let stale = demo_diode_with_stale_fit(0.6);
+    let n_line = stale.lines().position(|l| l.starts_with("n = ")).unwrap() + 1;
+    let Err(ProfileError::Invalid { problems, .. }) = parse_profile(&stale, "stale.toml") else {
+        panic!("a model 4 dB off its own points should be refused");
+    };
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    let problem = &problems[0];
+    assert_eq!((problem.line, problem.field.as_str()), (n_line, "model.n"));
+    for fragment in [
+        "misses its own calibration points by 4.",
+        "dB RMS (worst model.points[",
+        "at most 2 dB",
+        "Delete n and vl to fit them again",
+    ] {
+        assert!(
+            problem.message.contains(fragment),
+            "{problem:?} lacks {fragment}"
+        );
+    }
 }
 
 #[test]

@@ -1,6 +1,7 @@
-//! What the commands that load a profile do with a path that is no profile file: a FIFO,
-//! a device, a file far over the size limit. Each must be refused with exit 2 and a
-//! message, quickly and in little memory, before anything is written.
+//! What the commands that load a profile do with a path that is no profile file (a FIFO,
+//! a device, a file far over the size limit) and with a profile that would read wrong.
+//! Each must be refused with exit 2 and a message, quickly and in little memory, before
+//! anything is written.
 
 mod common;
 
@@ -8,7 +9,7 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::Duration;
 
-use common::{scratch, wait};
+use common::{demo_diode_with_stale_fit, scratch, wait};
 
 /// Address space the binary may use, KiB: a debug build runs every command here in well
 /// under 64 MiB, and a read that grows without bound fails here instead of taking the
@@ -118,5 +119,23 @@ fn a_huge_profile_is_refused_reading_no_more_than_the_limit() {
         &dir,
         &huge,
         "huge.toml:1:1: (file): the file is 200000000 bytes; a profile is at most 1048576 bytes",
+    );
+}
+
+// Source: the fit limit in src/detector/mod.rs (a model missing its own points by more
+// than 2 dB RMS describes no detector) and the rule in docs/reliability.md (bad input
+// exits 2): the demo diode's fitted n and vl kept with vref edited from 1.2 V to 0.6 V
+// read every level about 4.4 dB wrong, so every command must refuse the profile.
+#[test]
+fn a_profile_whose_parameters_miss_its_points_is_refused_by_every_command() {
+    let dir = scratch("stale-fit");
+    let stale = dir.join("stale.toml");
+    std::fs::write(&stale, demo_diode_with_stale_fit(0.6)).unwrap();
+    assert_refused(&dir, &stale, "model.n: with n = 1.05");
+    let (_, message) = run_limited(&dir, &["check".into(), "{}".into()], &stale);
+    assert!(
+        message.contains("misses its own calibration points by 4.")
+            && message.contains("Delete n and vl to fit them again"),
+        "{message}"
     );
 }

@@ -42,7 +42,7 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
     let mut out = String::new();
     let adc = cal.adc();
     let (lo, hi) = cal.span_dbm();
-    let (dlo, dhi) = cal.detector().span_dbm();
+    let (dlo, dhi) = cal.detector_span_dbm();
     let _ = writeln!(
         out,
         "{}{}",

@@ -9,8 +9,8 @@ use super::{too_many_points, Limits, Model, Profile, ProfilePoint, MAX_PROFILE_P
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{FreqTable, Offset, TableError};
 use crate::detector::{
-    ordered_points, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError, ModelKind,
-    TableDetector,
+    ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
+    ModelKind, TableDetector, MAX_FIT_RMS_DB,
 };
 use crate::units::{parse_level, DEFAULT_OHMS};
 
@@ -237,12 +237,66 @@ fn check_model(
             volts: p.volts,
         })
         .collect();
-    let built = match kind {
+    let model = match kind {
         ModelKind::Table => build_table(check, raw, &cal),
         ModelKind::Log => build_log(check, raw, &cal),
         ModelKind::Diode => build_diode(check, raw, &cal, ohms),
-    };
-    built.map(|model| (model, points))
+    }?;
+    check_agreement(check, &model, &points).then_some((model, points))
+}
+
+/// A model must read its own calibration points within the fit limit: parameters left
+/// from another [adc] or impedance would read every level wrong by as much, and nothing
+/// in a reading could show it. False, with the problem noted, when it misses.
+fn check_agreement(check: &mut Checker, model: &Model, points: &[ProfilePoint]) -> bool {
+    if model.kind == ModelKind::Table {
+        return true;
+    }
+    let errors: Vec<f64> = points
+        .iter()
+        .map(|p| model.detector.dbm_at(p.volts) - p.dbm)
+        .collect();
+    let rms_db = rms(&errors);
+    if rms_db <= MAX_FIT_RMS_DB {
+        return true;
+    }
+    let worst = (0..errors.len())
+        .max_by(|&a, &b| errors[a].abs().total_cmp(&errors[b].abs()))
+        .unwrap_or(0);
+    let missed = format!(
+        "misses its own calibration points by {rms_db:.2} dB RMS (worst model.points[{worst}], \
+         {}, by {:+.2} dB); at most {MAX_FIT_RMS_DB} dB is allowed",
+        points[worst].applied, errors[worst]
+    );
+    let model_path = FieldPath::key("model");
+    if model.fitted_at_load {
+        check.fail(
+            model_path.then("points"),
+            format!(
+                "the best {} model {missed}: these points do not follow it (try kind = \"table\"), \
+                 or [adc] is wrong",
+                model.kind
+            ),
+        );
+        return false;
+    }
+    let names: Vec<&str> = model.params.iter().map(|(name, _)| *name).collect();
+    let values: Vec<String> = model
+        .params
+        .iter()
+        .map(|(name, value)| format!("{name} = {value}"))
+        .collect();
+    check.fail(
+        model_path.then(names[0]),
+        format!(
+            "with {} the {} model {missed}. Were they fitted under another [adc] or ohms? \
+             Delete {} to fit them again from the points",
+            values.join(" and "),
+            model.kind,
+            names.join(" and ")
+        ),
+    );
+    false
 }
 
 /// Fields that only some models take must not appear with the others.
