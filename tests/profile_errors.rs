@@ -157,6 +157,61 @@ const CASES: &[(&str, usize, &str, &str)] = &[
     ("empty", 1, "(file)", "empty"),
     ("only_comments", 1, "(file)", "only comments"),
     ("binary_junk", 1, "(file)", "not UTF-8"),
+    // Finite values that are far outside any bench: each would read ±inf or a number
+    // with no meaning, so each is refused with its range.
+    (
+        "reference_frequency_huge",
+        2,
+        "reference_frequency",
+        "`1e300GHz` is out of range; a frequency lies from 1 Hz to 1 THz",
+    ),
+    (
+        "log_slope_tiny",
+        10,
+        "model.slope",
+        "1e-300 is out of range; the slope in V/dB is not zero: its size lies from 1 µV/dB to 10 V/dB",
+    ),
+    (
+        "log_slope_subnormal",
+        10,
+        "model.slope",
+        "from 1 µV/dB to 10 V/dB",
+    ),
+    (
+        "log_intercept_huge",
+        11,
+        "model.intercept",
+        "lies from -500 to +500 dBm",
+    ),
+    ("offset_db_huge", 17, "offset.db", "from -200 to +200 dB"),
+    (
+        "correction_db_huge",
+        19,
+        "frequency_correction.points[1].db",
+        "from -200 to +200 dB",
+    ),
+    (
+        "limit_huge",
+        17,
+        "limits.detector_max_dbm",
+        "a level lies from -200 to +100 dBm",
+    ),
+    (
+        "applied_level_tiny",
+        11,
+        "model.points[0].applied",
+        "`1e-300W` is -2970.0 dBm, out of range; a level lies from -200 to +100 dBm",
+    ),
+    ("vref_huge", 6, "adc.vref", "from 1 mV to 100 V"),
+    ("divider_huge", 7, "adc.divider", "from 0.001 to 1000"),
+    ("ohms_huge", 2, "ohms", "from 1 to 10000"),
+    ("diode_vl_huge", 11, "model.vl", "from 1 µV to 10 kV"),
+    (
+        "std_counts_huge",
+        11,
+        "model.points[0].std_counts",
+        "up to the ADC's full scale, 4095",
+    ),
 ];
 
 #[test]

@@ -10,9 +10,11 @@ use crate::numeric::{levenberg_marquardt, solve_bracketed, solve_increasing, sol
 use crate::special::{ln_i0, ln_i0_and_slope, thermal_voltage};
 use crate::units::{watts_to_dbm, Power};
 
-/// Limits of the diode fit: ideality factor n and V_L in volts.
-const N_BOUNDS: (f64, f64) = (0.5, 5.0);
-const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
+/// Limits of the diode fit: ideality factor n and V_L in volts (a profile that gives them
+/// must keep within them too).
+pub const N_BOUNDS: (f64, f64) = (0.5, 5.0);
+/// See [`N_BOUNDS`].
+pub const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
 
 /// A diode peak detector with ideality `n`, V_L = Is·RL, at temperature `kelvin`.
 #[derive(Debug, Clone, PartialEq)]
