@@ -282,6 +282,11 @@ const BAD_POINTS: &[(&str, &str, &str)] = &[
         "table",
         "truncated.csv:4: counts: `` is not a finite",
     ),
+    (
+        "duplicate_applied_column.csv",
+        "table",
+        "duplicate_applied_column.csv:1: (header): two `applied` columns (columns 1 and 3)",
+    ),
 ];
 
 // Source: worked example — the same log-amp line as above with its columns swapped (and
