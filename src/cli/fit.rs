@@ -6,6 +6,7 @@ use std::path::{Path, PathBuf};
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::points::{read_points, PointRow};
+use dbtrail::printable::escape_controls;
 use dbtrail::profile::raw::{FreqValue, RawAdc, RawModel, RawProfile};
 use dbtrail::profile::{
     parse_profile, parse_profile_bytes, render_profile, too_many_points, Profile, ProfileError,
@@ -66,7 +67,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     if rows.len() > MAX_PROFILE_POINTS {
         return Err(anyhow!("{origin}: {}", too_many_points(rows.len()))).bad_input();
     }
-    let raw = raw_profile(&args, &rows);
+    let raw = raw_profile(&args, &rows, profile_name(&args)?);
     let fitted = validate(&raw, &rows, &origin).bad_input()?;
     let raw = with_fitted_params(raw, &fitted);
     let header = format!(
@@ -81,16 +82,36 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let cal = Calibration::new(&profile, None, 0.0);
     let mut report = summary::setup(&profile, &cal);
     report.push_str(&summary::residuals(&profile));
-    report.push_str(&format!("\nWrote {}.\n", args.out.display()));
+    let shown = args.out.display().to_string();
+    report.push_str(&format!("\nWrote {}.\n", escape_controls(&shown)));
     emit(&report)
 }
 
-fn raw_profile(args: &Args, rows: &[PointRow]) -> RawProfile {
+/// `--name`, else the output file's stem; refused when it holds a control character,
+/// which would break the lines of a log or drive the terminal that shows the name.
+fn profile_name(args: &Args) -> Result<String, Failure> {
     let name = args.name.clone().unwrap_or_else(|| {
         args.out
             .file_stem()
             .map_or("detector".into(), |s| s.to_string_lossy().into_owned())
     });
+    if !name.chars().any(char::is_control) {
+        return Ok(name);
+    }
+    let given = if args.name.is_some() {
+        "--name"
+    } else {
+        "the name taken from --out's file name"
+    };
+    Err(anyhow!(
+        "{given} `{}` holds a control character (a line break, tab or escape); a profile's \
+         name is written into logs and shown on screens, so give --name in plain characters",
+        escape_controls(&name)
+    ))
+    .bad_input()
+}
+
+fn raw_profile(args: &Args, rows: &[PointRow], name: String) -> RawProfile {
     RawProfile {
         name,
         description: None,
