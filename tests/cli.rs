@@ -178,25 +178,29 @@ fn line_points(dir: &Path, count: usize, padding: usize) -> PathBuf {
     path
 }
 
-// Source: the rule in docs/reliability.md (bad input exits 2 with a message and writes
-// nothing) and the profile loader's limit of 4096 points (docs/profiles.md).
-#[test]
-fn fit_refuses_more_points_than_a_profile_holds() {
-    let dir = scratch("too-many-points");
-    let out_path = dir.join("many.toml");
-    let points = line_points(&dir, 4097, 0);
+/// Runs a log-amp fit of `points` that must be refused: exit 2 and nothing written.
+/// Returns the message.
+fn refused_log_fit(points: &Path, out_path: &Path) -> String {
     let out = dbtrail(&fit_args(
         points.to_str().unwrap(),
         "log",
         out_path.to_str().unwrap(),
     ));
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
-    assert!(
-        stderr(&out).contains("4097 calibration points; a profile holds at most 4096"),
-        "{}",
-        stderr(&out)
-    );
     assert!(!out_path.exists(), "nothing may be written on failure");
+    stderr(&out)
+}
+
+// Source: the rule in docs/reliability.md (bad input exits 2 with a message and writes
+// nothing) and the profile loader's limit of 4096 points (docs/profiles.md).
+#[test]
+fn fit_refuses_more_points_than_a_profile_holds() {
+    let dir = scratch("too-many-points");
+    let message = refused_log_fit(&line_points(&dir, 4097, 0), &dir.join("many.toml"));
+    assert!(
+        message.contains("4097 calibration points; a profile holds at most 4096"),
+        "{message}"
+    );
 }
 
 // Source: the rule that `fit` never writes a profile `check` refuses: 4000 points whose
@@ -205,15 +209,7 @@ fn fit_refuses_more_points_than_a_profile_holds() {
 #[test]
 fn fit_never_writes_a_profile_that_check_refuses() {
     let dir = scratch("fit-too-large");
-    let out_path = dir.join("large.toml");
-    let points = line_points(&dir, 4000, 250);
-    let out = dbtrail(&fit_args(
-        points.to_str().unwrap(),
-        "log",
-        out_path.to_str().unwrap(),
-    ));
-    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
-    let message = stderr(&out);
+    let message = refused_log_fit(&line_points(&dir, 4000, 250), &dir.join("large.toml"));
     assert!(
         message.contains("would not load, so") && message.contains("was not written"),
         "{message}"
@@ -223,7 +219,6 @@ fn fit_never_writes_a_profile_that_check_refuses() {
             && message.contains("a profile is at most 1048576 bytes"),
         "{message}"
     );
-    assert!(!out_path.exists(), "nothing may be written on failure");
 }
 
 /// (file, model, what the message must name)
