@@ -106,29 +106,24 @@ impl fmt::Display for Reading {
     }
 }
 
-/// Detector volts at the low and high ends of the span: the model's, widened to the measured
-/// end points, so a calibration point never reads as outside its own span.
-fn span_volts(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
+/// The span readings are flagged against, detector dBm: the calibrated levels, widened to
+/// where the model itself reads the lowest and highest points, so that a calibration point
+/// never reads as outside its own span. Being the model's, it holds every unflagged
+/// reading, however far the model strays from the points (the loader refuses a model that
+/// strays far).
+fn model_span_dbm(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
     let (lo, hi) = detector.span_dbm();
-    let (model_lo, model_hi) = (detector.volts_at(lo), detector.volts_at(hi));
     let by_level = |a: &&crate::profile::ProfilePoint, b: &&crate::profile::ProfilePoint| {
         a.dbm.total_cmp(&b.dbm)
     };
-    let measured_lo = profile
-        .points
-        .iter()
-        .min_by(by_level)
-        .map_or(model_lo, |p| p.volts);
-    let measured_hi = profile
-        .points
-        .iter()
-        .max_by(by_level)
-        .map_or(model_hi, |p| p.volts);
-    if model_hi >= model_lo {
-        (model_lo.min(measured_lo), model_hi.max(measured_hi))
-    } else {
-        (model_lo.max(measured_lo), model_hi.min(measured_hi))
-    }
+    let reads = |point: Option<&crate::profile::ProfilePoint>| {
+        point
+            .map(|p| detector.dbm_at(p.volts))
+            .filter(|dbm| dbm.is_finite())
+    };
+    let lowest = reads(profile.points.iter().min_by(by_level)).unwrap_or(lo);
+    let highest = reads(profile.points.iter().max_by(by_level)).unwrap_or(hi);
+    (lo.min(lowest), hi.max(highest))
 }
 
 fn dense_watts(table: &[CodeEntry]) -> Box<[f64; TABLE_MAX_CODES as usize]> {
@@ -172,6 +167,8 @@ pub struct Calibration {
     correction_db: f64,
     offset_db: f64,
     fixed_flags: Flags,
+    /// The span at the detector, dBm, as the model reads it.
+    span_dbm: (f64, f64),
     /// Detector volts at the low and the high end of the span.
     span_volts: (f64, f64),
     limits: Limits,
@@ -250,7 +247,8 @@ impl Calibration {
         let offset = profile.offset.at(freq_hz);
         let outside = correction.is_some_and(|c| c.outside) || offset.outside;
         let detector = Arc::clone(&profile.model.detector);
-        let span_volts = span_volts(profile, detector.as_ref());
+        let span_dbm = model_span_dbm(profile, detector.as_ref());
+        let span_volts = (detector.volts_at(span_dbm.0), detector.volts_at(span_dbm.1));
         let mut cal = Calibration {
             adc: profile.adc.clone(),
             detector,
@@ -262,6 +260,7 @@ impl Calibration {
             } else {
                 Flags::empty()
             },
+            span_dbm,
             span_volts,
             limits: profile.limits,
             table: Arc::new(Vec::new()),
@@ -379,8 +378,14 @@ impl Calibration {
 
     /// The calibrated span at the reference plane, (lowest, highest) dBm.
     pub fn span_dbm(&self) -> (f64, f64) {
-        let (lo, hi) = self.detector.span_dbm();
+        let (lo, hi) = self.span_dbm;
         (self.to_reference(lo), self.to_reference(hi))
+    }
+
+    /// The calibrated span at the detector input, (lowest, highest) dBm: the calibrated
+    /// levels, widened to where the model reads the end points.
+    pub fn detector_span_dbm(&self) -> (f64, f64) {
+        self.span_dbm
     }
 
     /// The count that a reference-plane level would read (for simulation and resolution).
@@ -412,7 +417,7 @@ impl Calibration {
         if self.adc.is_clipped(counts) {
             flags |= Flags::ADC_CLIP;
         }
-        let (span_lo, _) = self.detector.span_dbm();
+        let (span_lo, _) = self.span_dbm;
         let detector_dbm = if flags.contains(Flags::BELOW_SPAN) {
             span_lo
         } else {

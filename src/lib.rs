@@ -15,7 +15,9 @@
 //! - [`capture`]: the calibration procedure: settle, average, fit, save a profile;
 //! - [`report`]: the soak report: drift, settling, gaps, and decimation for plots;
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
-//! - [`points`]: the calibration points CSV that `fit` reads.
+//! - [`points`]: the calibration points CSV that `fit` reads;
+//! - [`printable`]: names and paths with their control characters escaped, for logs and
+//!   screens.
 //!
 //! Nothing here touches a terminal or a serial port.
 #![forbid(unsafe_code)]
@@ -30,6 +32,7 @@ pub mod link;
 pub mod numeric;
 pub mod pchip;
 pub mod points;
+pub mod printable;
 pub mod profile;
 pub mod record;
 pub mod report;

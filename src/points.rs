@@ -1,7 +1,7 @@
 //! The calibration points file: CSV with a header naming `applied` and `counts` (in any
-//! order; `std_counts` and `samples` may follow), one measured point per row. `applied` is
-//! a level with its unit (`-10dBm`, `2.5mW`, `0.5Vpk`, `1.25Vdc`); `counts` the mean ADC
-//! reading at it. Lines starting with `#` are comments.
+//! order, each once; `std_counts` and `samples` may follow), one measured point per row.
+//! `applied` is a level with its unit (`-10dBm`, `2.5mW`, `0.5Vpk`, `1.25Vdc`); `counts`
+//! the mean ADC reading at it. Lines starting with `#` are comments.
 
 use thiserror::Error;
 
@@ -123,6 +123,22 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
 }
 
 fn find_columns(headers: &csv::StringRecord) -> Result<Columns, String> {
+    let named = |name: &str| {
+        headers
+            .iter()
+            .enumerate()
+            .filter(|(_, h)| h.eq_ignore_ascii_case(name))
+            .map(|(i, _)| i + 1)
+            .collect::<Vec<_>>()
+    };
+    for name in ["applied", "counts", "std_counts", "samples"] {
+        if let [first, second, ..] = named(name)[..] {
+            return Err(format!(
+                "two `{name}` columns (columns {first} and {second}); keep one, so that it is \
+                 clear which values are meant"
+            ));
+        }
+    }
     let find = |name: &str| headers.iter().position(|h| h.eq_ignore_ascii_case(name));
     let missing = |name: &str| {
         format!(

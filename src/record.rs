@@ -8,6 +8,7 @@ use std::time::{Duration, SystemTime};
 
 use crate::calibration::{Calibration, Flags};
 use crate::decode::{FlatCounts, FrameSink};
+use crate::printable::escape_controls;
 use crate::stats::{PowerStats, NOT_A_VALUE};
 use crate::units::format_frequency;
 
@@ -118,7 +119,8 @@ impl Event {
     }
 }
 
-/// The context a recording is made in, written as `#` lines at the top of the file.
+/// The context a recording is made in, written as `#` lines at the top of the file (with
+/// control characters escaped, so that a name cannot break a line).
 #[derive(Debug, Clone)]
 pub struct RunContext {
     /// Program name and version.
@@ -204,8 +206,8 @@ impl<W: Write> Recorder<W> {
                 let block = format!(
                     "{}# resumed {resumed} by {} from {}\n{}",
                     if cut { "\n" } else { "" },
-                    context.tool,
-                    context.source,
+                    escape_controls(&context.tool),
+                    escape_controls(&context.source),
                     context_lines(&cal, context)
                 );
                 (Some(block), Some(channels))
@@ -532,14 +534,14 @@ pub(crate) fn context_lines(cal: &Calibration, c: &RunContext) -> String {
          # started: {started}\n# source: {source}\n# rows: {every}; power averaged over watts; \
          flags: {legend}\n",
         legend = crate::calibration::Flags::all().names().join(" "),
-        tool = c.tool,
-        profile = c.profile,
+        tool = escape_controls(&c.tool),
+        profile = escape_controls(&c.profile),
         hash = c.profile_hash,
         freq = format_frequency(cal.freq_hz()),
         corr = cal.correction_db(),
         offset = cal.offset_db(),
         started = humantime::format_rfc3339_millis(c.started),
-        source = c.source,
+        source = escape_controls(&c.source),
     )
 }
 

@@ -1,5 +1,8 @@
 //! The whole chain from counts to reference-plane dBm, checked against hand-worked examples.
 
+mod common;
+
+use common::demo_diode_with_stale_fit;
 use dbtrail::calibration::{Calibration, Flags};
 use dbtrail::profile::{parse_profile, Profile};
 
@@ -238,5 +241,44 @@ mod batched_statistics {
                 }
             }
         }
+    }
+}
+
+// Source: the rule in src/calibration.rs (nothing is extrapolated silently: a reading
+// outside the calibrated span carries a flag). With vref 0.9 V instead of 1.2 V the
+// model reads the lowest point about 0.9 dB below its applied −27 dBm (1.9 dB RMS over
+// the points, inside the fit limit, so the profile loads); counts swept finely over the
+// ends, as averages are fractional, must read inside the span shown or carry its flag.
+#[test]
+fn readings_outside_the_span_are_flagged_even_where_the_model_misses_its_end_points() {
+    let profile = parse_profile(&demo_diode_with_stale_fit(0.9), "stale.toml").unwrap();
+    let cal = Calibration::new(&profile, None, 0.0);
+    let (lo, hi) = cal.span_dbm();
+    let bottom = (0..2000).map(|i| f64::from(i) * 0.01);
+    let top = (0..=2790).map(|i| 2700.0 + f64::from(i) * 0.5);
+    for counts in bottom.chain(top) {
+        let r = cal.reading(counts);
+        if !r.flags.contains(Flags::BELOW_SPAN) {
+            assert!(
+                r.dbm >= lo - 1e-9,
+                "{counts} counts read {} below {lo}",
+                r.dbm
+            );
+        }
+        if !r.flags.contains(Flags::ABOVE_SPAN) {
+            assert!(
+                r.dbm <= hi + 1e-9,
+                "{counts} counts read {} above {hi}",
+                r.dbm
+            );
+        }
+    }
+    // Every calibration point still reads inside its own span.
+    for point in &profile.points {
+        let flags = cal.reading(point.counts).flags;
+        assert!(
+            !flags.intersects(Flags::BELOW_SPAN | Flags::ABOVE_SPAN),
+            "{point:?}"
+        );
     }
 }

@@ -164,6 +164,63 @@ fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
     );
 }
 
+/// A points file of `count` points on the log-amp line V = 0.025·(P + 80) (1 mV a count),
+/// each level written with `padding` zeros after its decimal point.
+fn line_points(dir: &Path, count: usize, padding: usize) -> PathBuf {
+    let path = dir.join(format!("line-{count}-{padding}.csv"));
+    let mut csv = String::from("applied,counts\n");
+    for i in 0..count {
+        let dbm = -60.0 + 60.0 * i as f64 / count as f64;
+        let zeros = "0".repeat(padding);
+        csv.push_str(&format!("{dbm:.6}{zeros}dBm,{}\n", 25.0 * (dbm + 80.0)));
+    }
+    std::fs::write(&path, csv).unwrap();
+    path
+}
+
+/// Runs a log-amp fit of `points` that must be refused: exit 2 and nothing written.
+/// Returns the message.
+fn refused_log_fit(points: &Path, out_path: &Path) -> String {
+    let out = dbtrail(&fit_args(
+        points.to_str().unwrap(),
+        "log",
+        out_path.to_str().unwrap(),
+    ));
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(!out_path.exists(), "nothing may be written on failure");
+    stderr(&out)
+}
+
+// Source: the rule in docs/reliability.md (bad input exits 2 with a message and writes
+// nothing) and the profile loader's limit of 4096 points (docs/profiles.md).
+#[test]
+fn fit_refuses_more_points_than_a_profile_holds() {
+    let dir = scratch("too-many-points");
+    let message = refused_log_fit(&line_points(&dir, 4097, 0), &dir.join("many.toml"));
+    assert!(
+        message.contains("4097 calibration points; a profile holds at most 4096"),
+        "{message}"
+    );
+}
+
+// Source: the rule that `fit` never writes a profile `check` refuses: 4000 points whose
+// levels are written with 250 padding zeros make a file over the loader's 1 MiB, which
+// must be refused with the loader's message before anything is written.
+#[test]
+fn fit_never_writes_a_profile_that_check_refuses() {
+    let dir = scratch("fit-too-large");
+    let message = refused_log_fit(&line_points(&dir, 4000, 250), &dir.join("large.toml"));
+    assert!(
+        message.contains("would not load, so") && message.contains("was not written"),
+        "{message}"
+    );
+    assert!(
+        message.contains("large.toml:1:1: (file): the file is")
+            && message.contains("a profile is at most 1048576 bytes"),
+        "{message}"
+    );
+}
+
 /// (file, model, what the message must name)
 const BAD_POINTS: &[(&str, &str, &str)] = &[
     (
@@ -219,6 +276,11 @@ const BAD_POINTS: &[(&str, &str, &str)] = &[
         "truncated.csv",
         "table",
         "truncated.csv:4: counts: `` is not a finite",
+    ),
+    (
+        "duplicate_applied_column.csv",
+        "table",
+        "duplicate_applied_column.csv:1: (header): two `applied` columns (columns 1 and 3)",
     ),
 ];
 

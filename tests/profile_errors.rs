@@ -1,8 +1,12 @@
 //! Every malformed profile under tests/profiles/bad/ must fail with a message that names the
 //! offending line and field; the shipped profiles must load.
 
+mod common;
+
+use common::demo_diode_with_stale_fit;
 use dbtrail::profile::{
     load_profile, parse_profile, parse_profile_bytes, ProfileError, MAX_PROFILE_BYTES,
+    MAX_PROFILE_POINTS,
 };
 use std::path::Path;
 
@@ -153,6 +157,61 @@ const CASES: &[(&str, usize, &str, &str)] = &[
     ("empty", 1, "(file)", "empty"),
     ("only_comments", 1, "(file)", "only comments"),
     ("binary_junk", 1, "(file)", "not UTF-8"),
+    // Finite values that are far outside any bench: each would read ±inf or a number
+    // with no meaning, so each is refused with its range.
+    (
+        "reference_frequency_huge",
+        2,
+        "reference_frequency",
+        "`1e300GHz` is out of range; a frequency lies from 1 Hz to 1 THz",
+    ),
+    (
+        "log_slope_tiny",
+        10,
+        "model.slope",
+        "1e-300 is out of range; the slope in V/dB is not zero: its size lies from 1 µV/dB to 10 V/dB",
+    ),
+    (
+        "log_slope_subnormal",
+        10,
+        "model.slope",
+        "from 1 µV/dB to 10 V/dB",
+    ),
+    (
+        "log_intercept_huge",
+        11,
+        "model.intercept",
+        "lies from -500 to +500 dBm",
+    ),
+    ("offset_db_huge", 17, "offset.db", "from -200 to +200 dB"),
+    (
+        "correction_db_huge",
+        19,
+        "frequency_correction.points[1].db",
+        "from -200 to +200 dB",
+    ),
+    (
+        "limit_huge",
+        17,
+        "limits.detector_max_dbm",
+        "a level lies from -200 to +100 dBm",
+    ),
+    (
+        "applied_level_tiny",
+        11,
+        "model.points[0].applied",
+        "`1e-300W` is -2970.0 dBm, out of range; a level lies from -200 to +100 dBm",
+    ),
+    ("vref_huge", 6, "adc.vref", "from 1 mV to 100 V"),
+    ("divider_huge", 7, "adc.divider", "from 0.001 to 1000"),
+    ("ohms_huge", 2, "ohms", "from 1 to 10000"),
+    ("diode_vl_huge", 11, "model.vl", "from 1 µV to 10 kV"),
+    (
+        "std_counts_huge",
+        11,
+        "model.points[0].std_counts",
+        "up to the ADC's full scale, 4095",
+    ),
 ];
 
 #[test]
@@ -199,6 +258,64 @@ fn a_huge_file_is_refused_without_parsing() {
         panic!("should fail");
     };
     assert!(problems[0].message.contains("at most"), "{problems:?}");
+}
+
+// Source: the loader's limit of 4096 calibration points (docs/profiles.md), one over it.
+#[test]
+fn more_points_than_the_limit_are_refused_on_the_points_field() {
+    let mut text = String::from(
+        "name = \"many\"\nreference_frequency = \"10MHz\"\n[adc]\nbits = 16\nvref = 4.0\n\
+         [model]\nkind = \"table\"\npoints = [\n",
+    );
+    for i in 0..=MAX_PROFILE_POINTS {
+        text.push_str(&format!(
+            "  {{ applied = \"{}dBm\", counts = {} }},\n",
+            i,
+            i + 1
+        ));
+    }
+    text.push_str("]\n");
+    let Err(ProfileError::Invalid { problems, .. }) = parse_profile(&text, "many.toml") else {
+        panic!("4097 points should be refused");
+    };
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    assert_eq!(
+        (problems[0].line, problems[0].field.as_str()),
+        (8, "model.points")
+    );
+    assert!(
+        problems[0]
+            .message
+            .contains("4097 calibration points; a profile holds at most 4096"),
+        "{problems:?}"
+    );
+}
+
+// Source: the fit limit in src/detector/mod.rs (a model missing its own points by more
+// than 2 dB RMS describes no detector): the demo diode with its fitted n and vl written in
+// and vref changed from 1.2 V to 0.6 V misses its points by about 4.4 dB RMS; it must be
+// refused on the field `n`, with the error and what to do.
+#[test]
+fn parameters_that_miss_their_own_points_are_refused() {
+    let stale = demo_diode_with_stale_fit(0.6);
+    let n_line = stale.lines().position(|l| l.starts_with("n = ")).unwrap() + 1;
+    let Err(ProfileError::Invalid { problems, .. }) = parse_profile(&stale, "stale.toml") else {
+        panic!("a model 4 dB off its own points should be refused");
+    };
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    let problem = &problems[0];
+    assert_eq!((problem.line, problem.field.as_str()), (n_line, "model.n"));
+    for fragment in [
+        "misses its own calibration points by 4.",
+        "dB RMS (worst model.points[",
+        "at most 2 dB",
+        "Delete n and vl to fit them again",
+    ] {
+        assert!(
+            problem.message.contains(fragment),
+            "{problem:?} lacks {fragment}"
+        );
+    }
 }
 
 #[test]

@@ -3,6 +3,7 @@
 use std::path::PathBuf;
 
 use dbtrail::calibration::Calibration;
+use dbtrail::printable::escape_controls;
 use dbtrail::profile::load_profile;
 
 use super::{emit, parse_counts_arg, parse_frequency_arg, summary, BadInput, Failure};
@@ -26,6 +27,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     text.push_str(&summary::resolution(&cal));
     text.push_str(&summary::residuals(&profile));
     text.push_str(&summary::readings(&cal, &args.counts));
-    text.push_str(&format!("\n{} is valid.\n", args.profile.display()));
+    let shown = args.profile.display().to_string();
+    text.push_str(&format!("\n{} is valid.\n", escape_controls(&shown)));
     emit(&text)
 }

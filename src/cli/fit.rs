@@ -6,8 +6,12 @@ use std::path::{Path, PathBuf};
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::points::{read_points, PointRow};
+use dbtrail::printable::escape_controls;
 use dbtrail::profile::raw::{FreqValue, RawAdc, RawModel, RawProfile};
-use dbtrail::profile::{parse_profile, render_profile, Profile, ProfileError};
+use dbtrail::profile::{
+    parse_profile, parse_profile_bytes, render_profile, too_many_points, Profile, ProfileError,
+    MAX_PROFILE_POINTS,
+};
 use dbtrail::units::DEFAULT_OHMS;
 
 use super::{emit, parse_frequency_arg, parse_ohms, summary, BadInput, Failure, Runtime};
@@ -60,9 +64,12 @@ pub fn run(args: Args) -> Result<(), Failure> {
         .with_context(|| format!("cannot read points file {origin}; check the path"))
         .bad_input()?;
     let rows = read_points(&bytes, &origin).bad_input()?;
-    let raw = raw_profile(&args, &rows);
-    let profile = validate(&raw, &rows, &origin).bad_input()?;
-    let raw = with_fitted_params(raw, &profile);
+    if rows.len() > MAX_PROFILE_POINTS {
+        return Err(anyhow!("{origin}: {}", too_many_points(rows.len()))).bad_input();
+    }
+    let raw = raw_profile(&args, &rows, profile_name(&args)?);
+    let fitted = validate(&raw, &rows, &origin).bad_input()?;
+    let raw = with_fitted_params(raw, &fitted);
     let header = format!(
         "Written by dbtrail fit from {origin}.\nApplied levels are at the detector input, measured at {}.",
         dbtrail::units::format_frequency(args.freq)
@@ -70,20 +77,41 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let text = render_profile(&raw, &header)
         .context("cannot render the profile as TOML")
         .runtime()?;
+    let profile = loads_as_written(&text, &args.out).bad_input()?;
     write_new(&args.out, &text, args.force)?;
     let cal = Calibration::new(&profile, None, 0.0);
     let mut report = summary::setup(&profile, &cal);
     report.push_str(&summary::residuals(&profile));
-    report.push_str(&format!("\nWrote {}.\n", args.out.display()));
+    let shown = args.out.display().to_string();
+    report.push_str(&format!("\nWrote {}.\n", escape_controls(&shown)));
     emit(&report)
 }
 
-fn raw_profile(args: &Args, rows: &[PointRow]) -> RawProfile {
+/// `--name`, else the output file's stem; refused when it holds a control character,
+/// which would break the lines of a log or drive the terminal that shows the name.
+fn profile_name(args: &Args) -> Result<String, Failure> {
     let name = args.name.clone().unwrap_or_else(|| {
         args.out
             .file_stem()
             .map_or("detector".into(), |s| s.to_string_lossy().into_owned())
     });
+    if !name.chars().any(char::is_control) {
+        return Ok(name);
+    }
+    let given = if args.name.is_some() {
+        "--name"
+    } else {
+        "the name taken from --out's file name"
+    };
+    Err(anyhow!(
+        "{given} `{}` holds a control character (a line break, tab or escape); a profile's \
+         name is written into logs and shown on screens, so give --name in plain characters",
+        escape_controls(&name)
+    ))
+    .bad_input()
+}
+
+fn raw_profile(args: &Args, rows: &[PointRow], name: String) -> RawProfile {
     RawProfile {
         name,
         description: None,
@@ -137,6 +165,18 @@ fn validate(raw: &RawProfile, rows: &[PointRow], origin: &str) -> anyhow::Result
         }
         Err(e) => Err(e.into()),
     }
+}
+
+/// The profile as `check` will load it from the file about to be written: a fit that
+/// `check` would refuse (too large a file, parameters that miss the points) is refused
+/// here, with the loader's own message, before anything is written.
+fn loads_as_written(text: &str, out: &Path) -> anyhow::Result<Profile> {
+    parse_profile_bytes(text.as_bytes(), &out.display().to_string()).with_context(|| {
+        format!(
+            "the fitted profile would not load, so {} was not written",
+            out.display()
+        )
+    })
 }
 
 /// `model.points[3].counts` → 3.

@@ -5,7 +5,7 @@ use std::path::PathBuf;
 
 use anyhow::{anyhow, Context};
 use dbtrail::decode::Format;
-use dbtrail::profile::{load_profile, parse_profile, Profile};
+use dbtrail::profile::{parse_profile, parse_profile_bytes, read_profile_file, Profile};
 use dbtrail::sim::{Scenario, Simulator};
 
 use crate::source::{open_port, ReplaySpec, Running, SerialSpec, SimSpec};
@@ -107,13 +107,13 @@ pub struct LoadedProfile {
 pub fn load(profile: Option<&PathBuf>, source: &SourceArgs) -> Result<LoadedProfile, Failure> {
     match profile {
         Some(path) => {
-            let bytes = std::fs::read(path)
-                .with_context(|| format!("cannot read profile {}", path.display()))
-                .bad_input()?;
-            let profile = load_profile(path).bad_input()?;
+            // The bytes parsed are the bytes hashed into a recording's context.
+            let origin = path.display().to_string();
+            let bytes = read_profile_file(path).bad_input()?;
+            let profile = parse_profile_bytes(&bytes, &origin).bad_input()?;
             Ok(LoadedProfile {
                 profile,
-                origin: path.display().to_string(),
+                origin,
                 bytes,
             })
         }

@@ -5,6 +5,7 @@ use std::fmt::Write;
 
 use dbtrail::calibration::Calibration;
 use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
+use dbtrail::printable::escape_controls;
 use dbtrail::profile::Profile;
 use dbtrail::units::{format_signed_db, Si};
 
@@ -42,15 +43,15 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
     let mut out = String::new();
     let adc = cal.adc();
     let (lo, hi) = cal.span_dbm();
-    let (dlo, dhi) = cal.detector().span_dbm();
+    let (dlo, dhi) = cal.detector_span_dbm();
     let _ = writeln!(
         out,
         "{}{}",
-        profile.name,
+        escape_controls(&profile.name),
         if profile.description.is_empty() {
             String::new()
         } else {
-            format!(": {}", profile.description)
+            format!(": {}", escape_controls(&profile.description))
         }
     );
     let _ = writeln!(out, "  model      {}", model_line(profile));
@@ -155,7 +156,7 @@ pub fn residuals(profile: &Profile) -> String {
         let _ = write!(
             out,
             "  {:<14} {:>8.2} {:>12.3} {:>+10.3}",
-            point.applied,
+            escape_controls(&point.applied),
             point.counts,
             detector.dbm_at(point.volts),
             errors[i]

@@ -5,16 +5,16 @@
 //! overflows: ln(1 + Vo/V_L) + Vo/(n·Vt) = ln I0(Vpk/(n·Vt)). Both sides rise monotonically,
 //! so either direction is a one-dimensional bracketed root.
 
-use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
+use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind, MAX_FIT_RMS_DB};
 use crate::numeric::{levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton};
 use crate::special::{ln_i0, ln_i0_and_slope, thermal_voltage};
 use crate::units::{watts_to_dbm, Power};
 
-/// Limits of the diode fit: ideality factor n and V_L in volts.
-const N_BOUNDS: (f64, f64) = (0.5, 5.0);
-const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
-/// A diode fit worse than this is no description of the detector.
-const MAX_RMS_DB: f64 = 2.0;
+/// Limits of the diode fit: ideality factor n and V_L in volts (a profile that gives them
+/// must keep within them too).
+pub const N_BOUNDS: (f64, f64) = (0.5, 5.0);
+/// See [`N_BOUNDS`].
+pub const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
 
 /// A diode peak detector with ideality `n`, V_L = Is·RL, at temperature `kelvin`.
 #[derive(Debug, Clone, PartialEq)]
@@ -141,7 +141,7 @@ impl DiodeDetector {
             });
         }
         let rms_db = (fit.sse / sorted.len() as f64).sqrt();
-        if rms_db > MAX_RMS_DB {
+        if rms_db > MAX_FIT_RMS_DB {
             return Err(ModelError::FitFailed {
                 model: ModelKind::Diode,
                 reason: format!(

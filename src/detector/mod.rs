@@ -17,6 +17,11 @@ pub use diode::DiodeDetector;
 pub use log_amp::LogAmpDetector;
 pub use table::{Axis, TableDetector};
 
+/// A model that misses its own calibration points by more than this, RMS in dB, is no
+/// description of the detector: a fit that ends there fails, and parameters given in a
+/// profile that miss by more are refused.
+pub const MAX_FIT_RMS_DB: f64 = 2.0;
+
 /// Which model a profile uses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum ModelKind {

@@ -8,6 +8,7 @@ pub mod raw;
 mod validate;
 
 use std::fmt;
+use std::io::Read;
 use std::path::Path;
 use std::sync::Arc;
 
@@ -22,6 +23,11 @@ pub use raw::RawProfile;
 
 /// The largest profile file read; anything bigger is not a profile.
 pub const MAX_PROFILE_BYTES: usize = 1 << 20;
+
+/// The most calibration points a profile may hold. A bench calibration has tens; a swept
+/// one at 0.1 dB steps over 100 dB has a thousand. Written by `fit` (about 60 to 100 bytes
+/// a point) this many stay well inside [`MAX_PROFILE_BYTES`].
+pub const MAX_PROFILE_POINTS: usize = 4096;
 
 /// One thing wrong with a profile, and where.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -46,6 +52,17 @@ pub enum ProfileError {
         path: String,
         /// What the OS said.
         source: std::io::Error,
+    },
+    /// The path names something other than a regular file (a FIFO, a device, a folder).
+    #[error(
+        "profile {path} is {what}, not a regular file; give the path of a profile file \
+         (TOML), for example one in profiles/"
+    )]
+    NotAFile {
+        /// The path.
+        path: String,
+        /// What it is instead, e.g. `a FIFO (named pipe)`.
+        what: &'static str,
     },
     /// The file was read but is not a valid profile.
     #[error("{}", render_problems(origin, problems))]
@@ -171,17 +188,77 @@ impl Profile {
 
 /// Reads and validates a profile file.
 pub fn load_profile(path: &Path) -> Result<Profile, ProfileError> {
-    let origin = path.display().to_string();
-    let bytes = std::fs::read(path).map_err(|source| ProfileError::Io {
-        path: origin.clone(),
-        source,
-    })?;
-    parse_profile_bytes(&bytes, &origin)
+    let bytes = read_profile_file(path)?;
+    parse_profile_bytes(&bytes, &path.display().to_string())
 }
 
-/// Validates a profile given as bytes; `origin` names it in messages.
-pub fn parse_profile_bytes(bytes: &[u8], origin: &str) -> Result<Profile, ProfileError> {
-    let whole_file = |message: String| ProfileError::Invalid {
+/// The bytes of a profile file, read once and never more than [`MAX_PROFILE_BYTES`]: a
+/// FIFO, a device or a folder is refused before it is opened (and the file is opened so
+/// that a FIFO put in its place meanwhile cannot block), a longer file after the limit.
+pub fn read_profile_file(path: &Path) -> Result<Vec<u8>, ProfileError> {
+    let origin = path.display().to_string();
+    let io_error = |source| ProfileError::Io {
+        path: origin.clone(),
+        source,
+    };
+    refuse_unless_regular(&std::fs::metadata(path).map_err(io_error)?, &origin)?;
+    let file = open_without_blocking(path).map_err(io_error)?;
+    let metadata = file.metadata().map_err(io_error)?;
+    refuse_unless_regular(&metadata, &origin)?;
+    let limit = MAX_PROFILE_BYTES as u64 + 1;
+    let mut bytes = Vec::with_capacity(metadata.len().min(limit) as usize);
+    file.take(limit).read_to_end(&mut bytes).map_err(io_error)?;
+    if bytes.len() > MAX_PROFILE_BYTES {
+        return Err(whole_file_problem(
+            &origin,
+            too_long(metadata.len().max(bytes.len() as u64)),
+        ));
+    }
+    Ok(bytes)
+}
+
+fn open_without_blocking(path: &Path) -> std::io::Result<std::fs::File> {
+    let mut options = std::fs::OpenOptions::new();
+    options.read(true);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        options.custom_flags(libc::O_NONBLOCK);
+    }
+    options.open(path)
+}
+
+fn refuse_unless_regular(metadata: &std::fs::Metadata, origin: &str) -> Result<(), ProfileError> {
+    let kind = metadata.file_type();
+    if kind.is_file() {
+        return Ok(());
+    }
+    let mut what = if kind.is_dir() {
+        "a folder"
+    } else {
+        "something else"
+    };
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileTypeExt;
+        if kind.is_fifo() {
+            what = "a FIFO (named pipe)";
+        } else if kind.is_char_device() {
+            what = "a character device";
+        } else if kind.is_block_device() {
+            what = "a block device";
+        } else if kind.is_socket() {
+            what = "a socket";
+        }
+    }
+    Err(ProfileError::NotAFile {
+        path: origin.to_string(),
+        what,
+    })
+}
+
+fn whole_file_problem(origin: &str, message: String) -> ProfileError {
+    ProfileError::Invalid {
         origin: origin.to_string(),
         problems: vec![Problem {
             line: 1,
@@ -189,13 +266,28 @@ pub fn parse_profile_bytes(bytes: &[u8], origin: &str) -> Result<Profile, Profil
             field: "(file)".into(),
             message,
         }],
-    };
+    }
+}
+
+/// Why `count` calibration points are too many, and what to do.
+pub fn too_many_points(count: usize) -> String {
+    format!(
+        "{count} calibration points; a profile holds at most {MAX_PROFILE_POINTS}: keep every \
+         few tenths of a dB of a sweep (the curve between points is interpolated) or split it"
+    )
+}
+
+fn too_long(bytes: u64) -> String {
+    format!(
+        "the file is {bytes} bytes; a profile is at most {MAX_PROFILE_BYTES} bytes: is this \
+         the right file?"
+    )
+}
+
+/// Validates a profile given as bytes; `origin` names it in messages.
+pub fn parse_profile_bytes(bytes: &[u8], origin: &str) -> Result<Profile, ProfileError> {
     if bytes.len() > MAX_PROFILE_BYTES {
-        return Err(whole_file(format!(
-            "the file is {} bytes; a profile is at most {} bytes: is this the right file?",
-            bytes.len(),
-            MAX_PROFILE_BYTES
-        )));
+        return Err(whole_file_problem(origin, too_long(bytes.len() as u64)));
     }
     let text = std::str::from_utf8(bytes).map_err(|e| {
         let (line, column) = line_col(&String::from_utf8_lossy(bytes), e.valid_up_to());

@@ -162,6 +162,16 @@ impl FreqValue {
     }
 }
 
+/// The frequency as written: the text, or the number of hertz.
+impl fmt::Display for FreqValue {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            FreqValue::Hz(hz) => write!(f, "{hz}"),
+            FreqValue::Text(text) => f.write_str(text),
+        }
+    }
+}
+
 impl Serialize for FreqValue {
     fn serialize<S: Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
         match self {

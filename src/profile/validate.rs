@@ -4,17 +4,80 @@
 use std::sync::Arc;
 
 use super::locate::{did_you_mean, FieldPath};
-use super::raw::{RawAdc, RawFreqPoint, RawModel, RawProfile};
-use super::{Limits, Model, Profile, ProfilePoint};
+use super::raw::{FreqValue, RawAdc, RawFreqPoint, RawModel, RawProfile};
+use super::{too_many_points, Limits, Model, Profile, ProfilePoint, MAX_PROFILE_POINTS};
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{FreqTable, Offset, TableError};
+use crate::detector::diode::{N_BOUNDS, VL_BOUNDS};
 use crate::detector::{
-    ordered_points, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError, ModelKind,
-    TableDetector,
+    ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
+    ModelKind, TableDetector, MAX_FIT_RMS_DB,
 };
 use crate::units::{parse_level, DEFAULT_OHMS};
 
 type Found = Vec<(FieldPath, String)>;
+
+/// Where a profile quantity may lie: wide enough for any bench, narrow enough that no
+/// reading computed from it overflows to an infinity.
+struct Bounds {
+    lo: f64,
+    hi: f64,
+    /// What the quantity is and its range, for messages.
+    what: &'static str,
+}
+
+const FREQUENCY: Bounds = Bounds {
+    lo: 1.0,
+    hi: 1e12,
+    what: "a frequency lies from 1 Hz to 1 THz",
+};
+const OHMS: Bounds = Bounds {
+    lo: 1.0,
+    hi: 1e4,
+    what: "the reference impedance must be greater than 0 ohms, from 1 to 10000 (usually 50)",
+};
+const VREF: Bounds = Bounds {
+    lo: 1e-3,
+    hi: 100.0,
+    what: "the reference voltage must be above 0 V, from 1 mV to 100 V",
+};
+const DIVIDER: Bounds = Bounds {
+    lo: 1e-3,
+    hi: 1e3,
+    what: "the divider ratio (detector volts / ADC pin volts) must be above 0, from 0.001 \
+           to 1000; 1 when there is none",
+};
+const LEVEL_DBM: Bounds = Bounds {
+    lo: -200.0,
+    hi: 100.0,
+    what: "a level lies from -200 to +100 dBm",
+};
+const DB_FIGURE: Bounds = Bounds {
+    lo: -200.0,
+    hi: 200.0,
+    what: "a dB figure lies from -200 to +200 dB",
+};
+const INTERCEPT_DBM: Bounds = Bounds {
+    lo: -500.0,
+    hi: 500.0,
+    what: "the intercept (where the line reaches 0 V) lies from -500 to +500 dBm",
+};
+/// The size of a log-amp slope, V/dB, either sign.
+const SLOPE_V_PER_DB: Bounds = Bounds {
+    lo: 1e-6,
+    hi: 10.0,
+    what: "the slope in V/dB is not zero: its size lies from 1 µV/dB to 10 V/dB, either sign",
+};
+const N: Bounds = Bounds {
+    lo: N_BOUNDS.0,
+    hi: N_BOUNDS.1,
+    what: "the ideality factor n lies from 0.5 to 5",
+};
+const VL: Bounds = Bounds {
+    lo: VL_BOUNDS.0,
+    hi: VL_BOUNDS.1,
+    what: "V_L = Is·RL is a voltage above 0, from 1 µV to 10 kV",
+};
 
 /// Collects problems as they are found, so a profile reports all of them at once.
 #[derive(Default)]
@@ -41,9 +104,47 @@ impl Checker {
             self.fail(path, format!("{value} is not a finite number; {want}"));
             None
         } else {
-            self.fail(path, format!("{value} is out of range; {want}"));
+            self.fail(path, format!("{} is out of range; {want}", shown(value)));
             None
         }
+    }
+
+    /// `value` if it is finite and within `bounds`.
+    fn within(&mut self, path: FieldPath, value: f64, bounds: &Bounds) -> Option<f64> {
+        self.number(
+            path,
+            value,
+            |v| (bounds.lo..=bounds.hi).contains(&v),
+            bounds.what,
+        )
+    }
+
+    /// A frequency as written, in hertz, if it parses and lies within [`FREQUENCY`].
+    fn frequency(&mut self, path: FieldPath, value: &FreqValue) -> Option<f64> {
+        match value.hz() {
+            Ok(hz) if hz.is_finite() && (FREQUENCY.lo..=FREQUENCY.hi).contains(&hz) => Some(hz),
+            Ok(_) => {
+                self.fail(
+                    path,
+                    format!("`{value}` is out of range; {}", FREQUENCY.what),
+                );
+                None
+            }
+            Err(e) => {
+                self.fail(path, e.to_string());
+                None
+            }
+        }
+    }
+}
+
+/// A number as a person wrote it when it is of everyday size, else in exponent form
+/// (`1e-300`, not three hundred zeros).
+fn shown(value: f64) -> String {
+    if value == 0.0 || (1e-4..1e9).contains(&value.abs()) {
+        value.to_string()
+    } else {
+        format!("{value:e}")
     }
 }
 
@@ -55,19 +156,15 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
             "the name is empty; give the profile a short name",
         );
     }
-    let ohms = check.number(
+    let ohms = check.within(
         FieldPath::key("ohms"),
         raw.ohms.unwrap_or(DEFAULT_OHMS),
-        |v| v > 0.0,
-        "the reference impedance must be greater than 0 ohms (usually 50)",
+        &OHMS,
     );
-    let reference_hz = match raw.reference_frequency.hz() {
-        Ok(hz) => Some(hz),
-        Err(e) => {
-            check.fail(FieldPath::key("reference_frequency"), e.to_string());
-            None
-        }
-    };
+    let reference_hz = check.frequency(
+        FieldPath::key("reference_frequency"),
+        &raw.reference_frequency,
+    );
     let adc = check_adc(&mut check, &raw.adc);
     let frequency_correction = raw.frequency_correction.as_ref().and_then(|table| {
         freq_table(
@@ -120,18 +217,8 @@ fn check_adc(check: &mut Checker, raw: &RawAdc) -> Option<Adc> {
         );
         None
     };
-    let vref = check.number(
-        at("vref"),
-        raw.vref,
-        |v| v > 0.0,
-        "the reference voltage must be above 0 V",
-    );
-    let divider = check.number(
-        at("divider"),
-        raw.divider.unwrap_or(1.0),
-        |v| v > 0.0,
-        "the divider ratio (detector volts / ADC pin volts) must be above 0; 1 when there is none",
-    );
+    let vref = check.within(at("vref"), raw.vref, &VREF);
+    let divider = check.within(at("divider"), raw.divider.unwrap_or(1.0), &DIVIDER);
     let clip_margin = check.number(
         at("clip_margin"),
         raw.clip_margin.unwrap_or(DEFAULT_CLIP_MARGIN),
@@ -152,9 +239,10 @@ fn check_adc(check: &mut Checker, raw: &RawAdc) -> Option<Adc> {
 fn freq_table(check: &mut Checker, path: &FieldPath, rows: &[RawFreqPoint]) -> Option<FreqTable> {
     let mut parsed = Vec::with_capacity(rows.len());
     for (i, row) in rows.iter().enumerate() {
-        match row.freq.hz() {
-            Ok(hz) => parsed.push((hz, row.db)),
-            Err(e) => check.fail(path.at(i).then("freq"), e.to_string()),
+        let hz = check.frequency(path.at(i).then("freq"), &row.freq);
+        let db = check.within(path.at(i).then("db"), row.db, &DB_FIGURE);
+        if let (Some(hz), Some(db)) = (hz, db) {
+            parsed.push((hz, db));
         }
     }
     if parsed.len() != rows.len() {
@@ -178,7 +266,7 @@ fn check_offset(check: &mut Checker, raw: &RawProfile) -> Option<Offset> {
     match raw.offset.as_ref().map(|o| (o.db, o.points.as_deref())) {
         None | Some((None, None)) => Some(Offset::Fixed(0.0)),
         Some((Some(db), None)) => check
-            .number(path.then("db"), db, |_| true, "the offset is a dB figure")
+            .within(path.then("db"), db, &DB_FIGURE)
             .map(Offset::Fixed),
         Some((None, Some(rows))) => {
             freq_table(check, &path.then("points"), rows).map(Offset::Table)
@@ -199,7 +287,7 @@ fn check_limits(check: &mut Checker, raw: &RawProfile) -> Limits {
     };
     let path = FieldPath::key("limits");
     let mut level = |field: &str, value: Option<f64>| {
-        value.and_then(|v| check.number(path.then(field), v, |_| true, "a limit is a level in dBm"))
+        value.and_then(|v| check.within(path.then(field), v, &LEVEL_DBM))
     };
     Limits {
         detector_max_dbm: level("detector_max_dbm", limits.detector_max_dbm),
@@ -237,12 +325,66 @@ fn check_model(
             volts: p.volts,
         })
         .collect();
-    let built = match kind {
+    let model = match kind {
         ModelKind::Table => build_table(check, raw, &cal),
         ModelKind::Log => build_log(check, raw, &cal),
         ModelKind::Diode => build_diode(check, raw, &cal, ohms),
-    };
-    built.map(|model| (model, points))
+    }?;
+    check_agreement(check, &model, &points).then_some((model, points))
+}
+
+/// A model must read its own calibration points within the fit limit: parameters left
+/// from another [adc] or impedance would read every level wrong by as much, and nothing
+/// in a reading could show it. False, with the problem noted, when it misses.
+fn check_agreement(check: &mut Checker, model: &Model, points: &[ProfilePoint]) -> bool {
+    if model.kind == ModelKind::Table {
+        return true;
+    }
+    let errors: Vec<f64> = points
+        .iter()
+        .map(|p| model.detector.dbm_at(p.volts) - p.dbm)
+        .collect();
+    let rms_db = rms(&errors);
+    if rms_db <= MAX_FIT_RMS_DB {
+        return true;
+    }
+    let worst = (0..errors.len())
+        .max_by(|&a, &b| errors[a].abs().total_cmp(&errors[b].abs()))
+        .unwrap_or(0);
+    let missed = format!(
+        "misses its own calibration points by {rms_db:.2} dB RMS (worst model.points[{worst}], \
+         {}, by {:+.2} dB); at most {MAX_FIT_RMS_DB} dB is allowed",
+        points[worst].applied, errors[worst]
+    );
+    let model_path = FieldPath::key("model");
+    if model.fitted_at_load {
+        check.fail(
+            model_path.then("points"),
+            format!(
+                "the best {} model {missed}: these points do not follow it (try kind = \"table\"), \
+                 or [adc] is wrong",
+                model.kind
+            ),
+        );
+        return false;
+    }
+    let names: Vec<&str> = model.params.iter().map(|(name, _)| *name).collect();
+    let values: Vec<String> = model
+        .params
+        .iter()
+        .map(|(name, value)| format!("{name} = {value}"))
+        .collect();
+    check.fail(
+        model_path.then(names[0]),
+        format!(
+            "with {} the {} model {missed}. Were they fitted under another [adc] or ohms? \
+             Delete {} to fit them again from the points",
+            values.join(" and "),
+            model.kind,
+            names.join(" and ")
+        ),
+    );
+    false
 }
 
 /// Fields that only some models take must not appear with the others.
@@ -273,6 +415,10 @@ fn check_points(
     kind: ModelKind,
 ) -> Option<Vec<ProfilePoint>> {
     let path = FieldPath::key("model").then("points");
+    if raw.points.len() > MAX_PROFILE_POINTS {
+        check.fail(path, too_many_points(raw.points.len()));
+        return None;
+    }
     if raw.points.len() < kind.min_points() {
         check.fail(
             path.clone(),
@@ -314,12 +460,24 @@ fn check_points(
             check.number(
                 path.at(i).then("std_counts"),
                 std,
-                |v| v >= 0.0,
-                "a standard deviation is 0 or more",
+                |v| (0.0..=adc.full_scale()).contains(&v),
+                &format!(
+                    "a standard deviation of counts is 0 or more, up to the ADC's full scale, {}",
+                    adc.full_scale()
+                ),
             );
         }
-        if let (Some(level), Some(counts)) = (level, counts) {
-            let dbm = level.power(ohms).dbm();
+        let dbm = level.map(|level| level.power(ohms).dbm());
+        if let Some(dbm) = dbm.filter(|dbm| !(LEVEL_DBM.lo..=LEVEL_DBM.hi).contains(dbm)) {
+            check.fail(
+                path.at(i).then("applied"),
+                format!(
+                    "`{}` is {dbm:.1} dBm, out of range; {}",
+                    point.applied, LEVEL_DBM.what
+                ),
+            );
+        }
+        if let (Some(level), Some(dbm), Some(counts)) = (level, dbm, counts) {
             points.push(ProfilePoint {
                 applied: point.applied.clone(),
                 level,
@@ -378,22 +536,29 @@ fn build_log(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Mo
         .ok()?;
     match (raw.slope, raw.intercept) {
         (None, None) => {
+            let fitted_ok = slope_fits(fitted.slope()) && intercept_fits(fitted.intercept());
+            if !fitted_ok {
+                check.fail(
+                    path.then("points"),
+                    format!(
+                        "the line fitted to these points has slope {} V/dB and intercept {} \
+                         dBm; {} and {}: the output hardly changes with level (use kind = \
+                         \"table\"), or [adc] is wrong",
+                        shown(fitted.slope()),
+                        shown(fitted.intercept()),
+                        SLOPE_V_PER_DB.what,
+                        INTERCEPT_DBM.what
+                    ),
+                );
+                return None;
+            }
             let params = vec![("slope", fitted.slope()), ("intercept", fitted.intercept())];
             Some(model(Arc::new(fitted), None, true, Vec::new(), params))
         }
         (Some(slope), Some(intercept)) => {
-            let slope = check.number(
-                path.then("slope"),
-                slope,
-                |v| v != 0.0,
-                "the slope in V/dB is not zero",
-            )?;
-            let intercept = check.number(
-                path.then("intercept"),
-                intercept,
-                |_| true,
-                "the intercept is in dBm",
-            )?;
+            let slope = check.number(path.then("slope"), slope, slope_fits, SLOPE_V_PER_DB.what);
+            let intercept = check.within(path.then("intercept"), intercept, &INTERCEPT_DBM);
+            let (slope, intercept) = (slope?, intercept?);
             let detector = LogAmpDetector::new(slope, intercept, fitted.span_dbm());
             let params = vec![("slope", slope), ("intercept", intercept)];
             Some(model(Arc::new(detector), None, false, Vec::new(), params))
@@ -406,6 +571,14 @@ fn build_log(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Mo
             None
         }
     }
+}
+
+fn slope_fits(slope: f64) -> bool {
+    (SLOPE_V_PER_DB.lo..=SLOPE_V_PER_DB.hi).contains(&slope.abs())
+}
+
+fn intercept_fits(intercept: f64) -> bool {
+    (INTERCEPT_DBM.lo..=INTERCEPT_DBM.hi).contains(&intercept)
 }
 
 fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64) -> Option<Model> {
@@ -439,18 +612,9 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
             let sorted = ordered_points(cal, ModelKind::Diode)
                 .map_err(|e| model_problem(check, e))
                 .ok()?;
-            let n = check.number(
-                path.then("n"),
-                n,
-                |v| (0.5..=5.0).contains(&v),
-                "the ideality factor n lies from 0.5 to 5",
-            )?;
-            let vl = check.number(
-                path.then("vl"),
-                vl,
-                |v| v > 0.0,
-                "V_L = Is·RL is a voltage above 0",
-            )?;
+            let n = check.within(path.then("n"), n, &N);
+            let vl = check.within(path.then("vl"), vl, &VL);
+            let (n, vl) = (n?, vl?);
             let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
             let detector = DiodeDetector::new(n, vl, kelvin, ohms, span);
             Some(model(

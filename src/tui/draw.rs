@@ -83,7 +83,7 @@ fn title_bar(app: &App, area: Rect, buf: &mut Buffer) {
     let cal = &app.cal;
     let text = format!(
         " dbtrail · {} · {} ({:+.2} dB) · offset {:+.2} dB · avg {}",
-        app.profile.name,
+        dbtrail::printable::escape_controls(&app.profile.name),
         Si::new(cal.freq_hz(), "Hz"),
         cal.correction_db(),
         cal.offset_db(),

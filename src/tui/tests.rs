@@ -301,3 +301,18 @@ fn bad_offsets_and_averaging_are_refused_at_the_prompt_and_nothing_changes() {
         assert_eq!(app.shown(), Shown::Level(10.0), "{keys_in:?}");
     }
 }
+
+// Source: the rule in src/printable.rs (a name's control characters are escaped wherever
+// it is shown): a line break in the profile's name must neither push the rest of the
+// title off its one line nor vanish, and the escape sequence shows as text.
+#[test]
+fn a_name_with_control_characters_stays_on_the_title_line_escaped() {
+    let mut profile = parse_profile(HAND_PROFILE, "hand.toml").unwrap();
+    profile.name = "bench\nrig\u{1b}[2J".into();
+    let app = App::new(Arc::new(profile), None, 0.0, "test bench".into());
+    let title = &screen(&app, 120, 30)[0];
+    assert!(
+        title.contains(r" dbtrail · bench\nrig\u{1b}[2J · 10.00 MHz"),
+        "{title:?}"
+    );
+}

@@ -159,3 +159,20 @@ pub fn fifo(dir: &Path, name: &str) -> PathBuf {
     assert!(made.success(), "mkfifo {}", path.display());
     path
 }
+
+/// The demo diode profile with the parameters of its own fit written in and the ADC's
+/// reference voltage changed to `vref`: the points' volts move, the model does not.
+pub fn demo_diode_with_stale_fit(vref: f64) -> String {
+    let text = include_str!("../../profiles/demo-diode.toml");
+    let fitted = dbtrail::profile::parse_profile(text, "demo-diode.toml").unwrap();
+    let (n, vl) = (
+        fitted.model.param("n").unwrap(),
+        fitted.model.param("vl").unwrap(),
+    );
+    text.replacen("vref = 1.2", &format!("vref = {vref}"), 1)
+        .replacen(
+            "temperature = 300",
+            &format!("temperature = 300\nn = {n}\nvl = {vl}"),
+            1,
+        )
+}

@@ -1,0 +1,40 @@
+//! Text from files and the command line made safe to show or write into a line: a profile
+//! name may hold any character TOML allows, and a line break or an escape sequence passed
+//! on as it is would split a log's `#` lines or drive the terminal it is shown on.
+
+use std::borrow::Cow;
+
+/// `text` with every control character (C0, DEL and C1) written as its Rust escape —
+/// `\n`, `\t`, `\u{1b}` — and everything else as it is; borrowed when there is none.
+pub fn escape_controls(text: &str) -> Cow<'_, str> {
+    if !text.chars().any(char::is_control) {
+        return Cow::Borrowed(text);
+    }
+    let mut out = String::with_capacity(text.len() + 8);
+    for c in text.chars() {
+        if c.is_control() {
+            out.extend(c.escape_default());
+        } else {
+            out.push(c);
+        }
+    }
+    Cow::Owned(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Source: the Rust reference's escapes as `char::escape_default` writes them (\n, \r,
+    // \t by name; others as \u{hex}), and Unicode's Cc category (U+0000–U+001F,
+    // U+007F–U+009F) for what counts as a control character.
+    #[test]
+    fn control_characters_are_written_as_escapes_and_nothing_else_changes() {
+        assert_eq!(
+            escape_controls("bench\nrig\r\t\u{1b}[2J\u{7f}\u{9b}"),
+            "bench\\nrig\\r\\t\\u{1b}[2J\\u{7f}\\u{9b}"
+        );
+        assert_eq!(escape_controls("Ω-rig «µ» \\n"), "Ω-rig «µ» \\n");
+        assert!(matches!(escape_controls("plain"), Cow::Borrowed("plain")));
+    }
+}
