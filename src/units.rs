@@ -65,7 +65,7 @@ pub enum UnitError {
         expected: String,
     },
     /// A finite number outside the physical range of its quantity.
-    #[error("`{input}` is out of range: {range}")]
+    #[error("`{input}` is out of range; {range}")]
     OutOfRange {
         /// The text as typed.
         input: String,
@@ -370,8 +370,8 @@ fn within(
     }
 }
 
-/// The frequencies accepted: up to 1 THz, past every detector's reach.
-pub const FREQUENCY_RANGE_HZ: (f64, f64) = (1e-3, 1e12);
+/// The frequencies accepted: 1 Hz to 1 THz, past every detector's reach either way.
+pub const FREQUENCY_RANGE_HZ: (f64, f64) = (1.0, 1e12);
 /// The longest duration accepted: ten years (3650 days), longer than any soak.
 pub const DURATION_MAX_S: f64 = 3650.0 * 86400.0;
 /// The largest dB figure accepted, either sign.
@@ -447,8 +447,21 @@ fn check_positive(text: &str, level: Level, expected: &'static str) -> Result<()
     }
 }
 
-/// Parses a frequency such as `14.2MHz`, `433 MHz`, `2.4GHz`, `10k` or plain Hz; in hertz.
+/// Parses a frequency such as `14.2MHz`, `433 MHz`, `2.4GHz`, `10k` or plain Hz; in hertz,
+/// within [`FREQUENCY_RANGE_HZ`].
 pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
+    let range = "a frequency lies from 1 Hz to 1 THz";
+    let (low, high) = FREQUENCY_RANGE_HZ;
+    match parse_hertz(text) {
+        Ok(hz) => within(text, hz, low..=high, range).map(|()| hz),
+        Err(UnitError::OutOfRange { input, .. }) => Err(UnitError::OutOfRange { input, range }),
+        Err(e) => Err(e),
+    }
+}
+
+/// Parses a positive number of hertz with a frequency's units, any size (a sample rate's
+/// own range is its user's to check).
+pub fn parse_hertz(text: &str) -> Result<f64, UnitError> {
     let text = normalise(text);
     let expected = "a frequency such as 14.2MHz, 433 MHz, 10k or 2.4GHz";
     let (value, unit) = split_number(&text, expected)?;
@@ -474,13 +487,7 @@ pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
             expected,
         });
     }
-    let (low, high) = FREQUENCY_RANGE_HZ;
-    within(
-        &text,
-        hz,
-        low..=high,
-        "a frequency must lie between 1 mHz and 1 THz",
-    )?;
+    within(&text, hz, 0.0..=f64::MAX, "more hertz than a number holds")?;
     Ok(hz)
 }
 

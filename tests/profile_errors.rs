@@ -200,7 +200,7 @@ const CASES: &[(&str, usize, &str, &str)] = &[
         "applied_level_tiny",
         11,
         "model.points[0].applied",
-        "`1e-300W` is -2970.0 dBm, out of range; a level lies from -200 to +100 dBm",
+        "`1e-300W` is out of range; a level must lie between -200 dBm and +200 dBm",
     ),
     ("vref_huge", 6, "adc.vref", "from 1 mV to 100 V"),
     ("divider_huge", 7, "adc.divider", "from 0.001 to 1000"),

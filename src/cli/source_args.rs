@@ -87,7 +87,7 @@ pub const RATE_RANGE_HZ: (f64, f64) = (1e-3, 1e7);
 
 pub fn parse_rate(text: &str) -> Result<f64, String> {
     let (low, high) = RATE_RANGE_HZ;
-    match dbtrail::units::parse_frequency(text) {
+    match dbtrail::units::parse_hertz(text) {
         Ok(hz) if (low..=high).contains(&hz) => Ok(hz),
         Ok(_) | Err(dbtrail::units::UnitError::OutOfRange { .. }) => Err(format!(
             "`{text}` is out of range: a sample rate must lie between 0.001 and 10M samples/s"
