@@ -82,6 +82,13 @@ pub struct DecodeStats {
     pub skipped_bytes: u64,
 }
 
+impl DecodeStats {
+    /// Lines and frames refused: bad lines, over-long lines and frames with a bad CRC.
+    pub fn rejected(&self) -> u64 {
+        self.bad_lines + self.long_lines + self.crc_errors
+    }
+}
+
 impl AddAssign for DecodeStats {
     fn add_assign(&mut self, o: Self) {
         self.frames += o.frames;

@@ -316,7 +316,8 @@ impl App {
                 }
                 Event::LinkDown { .. } => self.connected = false,
                 Event::LinkUp { .. } => self.connected = true,
-                Event::Lost { .. } => {}
+                // Shown from the link counters, which every source keeps.
+                Event::Lost { .. } | Event::Rejected { .. } => {}
             }
         }
         let raised = self.active_warnings().difference(before);
