@@ -8,6 +8,7 @@ use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 use ratatui::Terminal;
 
 use dbtrail::decode::FlatCounts;
+use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::parse_profile;
 use dbtrail::record::{Chunk, Event};
 use dbtrail::stats::AVERAGE_BUCKETS;
@@ -264,6 +265,33 @@ fn a_silent_source_shows_the_time_since_its_last_sample() {
     assert!(has(&lines, "3.2 s ago"), "{lines:#?}");
     app.update(AppEvent::Tick { now: 11.0 });
     assert!(has(&screen(&app, 100, 30), "10.0 s ago"));
+}
+
+// Source: the rule in docs/screen.md: refused input (bad lines, CRC errors) raises a
+// warning that stays up for WARNING_HOLD_S after the counters last grew.
+#[test]
+fn rejected_input_raises_a_warning_that_clears_after() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    let mut link = LinkSnapshot {
+        samples: 1,
+        connected: true,
+        ..LinkSnapshot::default()
+    };
+    app.update(AppEvent::Link(link));
+    assert!(!has(&screen(&app, 100, 30)[..2], "INPUT REJECTED"));
+    link.bad_lines = 4;
+    app.update(AppEvent::Link(link));
+    app.update(AppEvent::Tick { now: 1.0 });
+    let lines = screen(&app, 100, 30);
+    assert!(lines[1].contains("INPUT REJECTED"), "{lines:#?}");
+    // No more refused: the warning goes after its hold.
+    app.update(AppEvent::Link(link));
+    app.update(AppEvent::Tick { now: 3.0 });
+    assert!(!has(&screen(&app, 100, 30)[..2], "INPUT REJECTED"));
+    link.crc_errors = 1;
+    app.update(AppEvent::Link(link));
+    assert!(screen(&app, 100, 30)[1].contains("INPUT REJECTED"));
 }
 
 // Source: common practice: a 12-bit ADC (the hand profile's) gives codes 0 to 4095 only.
