@@ -87,6 +87,12 @@ impl LinkCounters {
 }
 
 impl LinkSnapshot {
+    /// Lines and frames refused so far: bad and over-long lines, frames with a bad CRC
+    /// (as [`DecodeStats::rejected`]).
+    pub fn rejected(&self) -> u64 {
+        self.bad_lines + self.crc_errors
+    }
+
     /// One line for a person: `12034 samples, 0 bad lines, 0 CRC errors, …`.
     pub fn summary(&self) -> String {
         format!(

@@ -1,7 +1,7 @@
 //! Recording: calibrated readings written as CSV, either one row per interval (power-domain
 //! mean, min, max) or one row per sample, with the run's context in `#` lines at the top.
-//! Gaps, reconnects and lost samples are marked in the rows they touch; a row with no
-//! valid reading leaves its numbers empty rather than inventing one.
+//! Gaps, reconnects, lost samples and rejected input are marked in the rows they touch; a
+//! row with no valid reading leaves its numbers empty rather than inventing one.
 
 use std::io::{self, Write};
 use std::time::{Duration, SystemTime};
@@ -94,6 +94,13 @@ pub enum Event {
         /// How many.
         samples: u64,
     },
+    /// The source refused input: bad or over-long lines, or frames with a bad CRC.
+    Rejected {
+        /// When it was noticed.
+        t: f64,
+        /// How many lines or frames.
+        count: u64,
+    },
 }
 
 impl Event {
@@ -106,7 +113,10 @@ impl Event {
     pub fn t(&self) -> f64 {
         match self {
             Event::Samples(chunk) => chunk.t0,
-            Event::LinkDown { t } | Event::LinkUp { t } | Event::Lost { t, .. } => *t,
+            Event::LinkDown { t }
+            | Event::LinkUp { t }
+            | Event::Lost { t, .. }
+            | Event::Rejected { t, .. } => *t,
         }
     }
 
@@ -137,6 +147,11 @@ pub struct RunContext {
     pub every: Duration,
 }
 
+/// The row flag of an interval in which the source refused input (see
+/// [`Event::Rejected`]). A row's mark only, never a reading's, so it is not one of the
+/// readings' [`Flags`]; it follows their names in the flags cell.
+pub const REJECTED: &str = "rejected";
+
 /// How close below an interval's end, in sample periods, a sample stamp counts as on it.
 const EDGE_SLACK: f64 = 1e-6;
 
@@ -155,6 +170,7 @@ pub struct Recorder<W: Write> {
     interval: Option<u64>,
     stats: Vec<PowerStats>,
     row_flags: Flags,
+    rejected: bool,
     link_down: bool,
     rows: u64,
     stamps_noted: bool,
@@ -230,6 +246,7 @@ impl<W: Write> Recorder<W> {
             interval: None,
             stats: Vec::new(),
             row_flags: Flags::empty(),
+            rejected: false,
             link_down: false,
             rows: 0,
             stamps_noted: false,
@@ -300,6 +317,10 @@ impl<W: Write> Recorder<W> {
                 self.mark(t, Flags::GAP | Flags::RECONNECT)
             }
             Event::Lost { t, .. } => self.mark(t, Flags::LOST),
+            Event::Rejected { t, .. } => {
+                self.rejected = true;
+                self.mark(t, Flags::empty())
+            }
         }
     }
 
@@ -324,7 +345,9 @@ impl<W: Write> Recorder<W> {
             self.advance(t)?;
             let current = self.interval.unwrap_or(0);
             let started = current as f64 * self.every;
-            let has_data = self.stats.iter().any(|s| s.samples > 0) || !self.row_flags.is_empty();
+            let has_data = self.stats.iter().any(|s| s.samples > 0)
+                || !self.row_flags.is_empty()
+                || self.rejected;
             // An end a rounding error past an interval's start begins no interval.
             if has_data || t > started + self.every * 1e-9 {
                 self.write_interval(current)?;
@@ -417,10 +440,11 @@ impl<W: Write> Recorder<W> {
         }
         // Only a live source loses its link or samples, and its time is the clock's.
         self.note_stamps(0.0)?;
+        let cell = flags_cell(flags, std::mem::take(&mut self.rejected));
         let channels = self.channel_count();
         let mut row = vec![seconds(t)];
         for _ in 0..channels {
-            row.extend([String::new(), String::new(), String::new(), flags.joined()]);
+            row.extend([String::new(), String::new(), String::new(), cell.clone()]);
         }
         self.write_row(row)
     }
@@ -448,6 +472,7 @@ impl<W: Write> Recorder<W> {
     fn write_interval(&mut self, k: u64) -> io::Result<()> {
         let start = k as f64 * self.every;
         let mut flags = std::mem::take(&mut self.row_flags);
+        let rejected = std::mem::take(&mut self.rejected);
         if self.link_down {
             flags |= Flags::GAP;
         }
@@ -465,7 +490,7 @@ impl<W: Write> Recorder<W> {
             row.push(number(stats.extremes().map(|e| e.0)));
             row.push(number(stats.extremes().map(|e| e.1)));
             row.push(stats.mean_w().map_or(String::new(), |w| format!("{w:.6e}")));
-            row.push(row_flags.joined());
+            row.push(flags_cell(row_flags, rejected));
         }
         self.write_row(row)
     }
@@ -521,6 +546,15 @@ fn seconds(t: f64) -> String {
     format!("{t:.6}")
 }
 
+/// A row's flags cell: the names of `flags`, then [`REJECTED`] when input was refused.
+fn flags_cell(flags: Flags, rejected: bool) -> String {
+    let mut names = flags.names();
+    if rejected {
+        names.push(REJECTED);
+    }
+    names.join("|")
+}
+
 /// The `#` lines that open a recording.
 pub(crate) fn context_lines(cal: &Calibration, c: &RunContext) -> String {
     let every = if c.every.is_zero() {
@@ -533,7 +567,7 @@ pub(crate) fn context_lines(cal: &Calibration, c: &RunContext) -> String {
          # frequency: {freq}; frequency correction {corr:+.2} dB; offset {offset:+.2} dB\n\
          # started: {started}\n# source: {source}\n# rows: {every}; power averaged over watts; \
          flags: {legend}\n",
-        legend = crate::calibration::Flags::all().names().join(" "),
+        legend = flags_cell(Flags::all(), true).replace('|', " "),
         tool = escape_controls(&c.tool),
         profile = escape_controls(&c.profile),
         hash = c.profile_hash,
@@ -614,6 +648,31 @@ mod tests {
         let samples: Vec<&str> = rows.iter().map(|row| row[2].as_str()).collect();
         assert_eq!(samples, ["1", "0", "0", "1"]);
         assert_eq!(rows[1][3], "", "no number where there was no reading");
+    }
+
+    // Source: the rule in docs/recording.md: a row whose interval saw refused input says
+    // so with `rejected`, not only `gap` when nothing else came.
+    #[test]
+    fn rejected_input_flags_its_interval_and_gets_a_marker_row_per_sample() {
+        let mut r = recorder(1.0);
+        for event in [
+            sample(0.2, 2000),
+            Event::Rejected { t: 1.4, count: 3 },
+            Event::Rejected { t: 2.1, count: 1 },
+            sample(2.5, 2000),
+            sample(3.5, 2000),
+        ] {
+            r.handle(&event).unwrap();
+        }
+        r.finish(4.0).unwrap();
+        let flags: Vec<String> = data_rows(r).iter().map(|row| row[7].clone()).collect();
+        assert_eq!(flags, ["", "gap|rejected", "rejected", ""]);
+        let mut r = recorder(0.0);
+        r.handle(&sample(0.1, 2000)).unwrap();
+        r.handle(&Event::Rejected { t: 0.2, count: 1 }).unwrap();
+        r.finish(0.3).unwrap();
+        let rows = data_rows(r);
+        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected"]);
     }
 
     #[test]

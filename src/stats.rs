@@ -3,6 +3,7 @@
 //! holds and trend buckets are all made of it; [`Averager`] is the moving average the
 //! screen shows, [`Settle`] says when that number has stopped moving, and [`Trend`] keeps
 //! min/max buckets so that no peak or dip is lost when history is shown at low resolution.
+//! An average over a time is made of the same buckets, so neither grows with the rate.
 
 use std::collections::VecDeque;
 
@@ -293,25 +294,73 @@ impl Averaging {
     }
 }
 
+/// Buckets a time average keeps, whatever its window and the sample rate: its memory is
+/// fixed, and the window it covers falls short of the asked time by at most one bucket
+/// (a thousandth of the window) at its old end.
+pub const AVERAGE_BUCKETS: usize = 1000;
+
 /// A moving average over watts.
 #[derive(Debug, Clone)]
 pub struct Averager {
     mode: Averaging,
-    window: VecDeque<(f64, f64)>,
-    sum_w: f64,
+    held: Held,
     first_t: Option<f64>,
+}
+
+/// What an [`Averager`] keeps of the readings in its window.
+#[derive(Debug, Clone)]
+enum Held {
+    /// Off or by count: the readings themselves, at most the count.
+    Readings(LastReadings),
+    /// By time: the power sums of [`AVERAGE_BUCKETS`] slices of the window, as the trend
+    /// keeps them, so an hour at any rate takes no more room than a second.
+    Buckets(Trend),
+}
+
+/// The watts of the last few readings and their running sum.
+#[derive(Debug, Clone, Default)]
+struct LastReadings {
+    watts: VecDeque<f64>,
+    sum_w: f64,
     since_exact: usize,
+}
+
+impl LastReadings {
+    fn push(&mut self, w: f64, keep: usize) {
+        self.watts.push_back(w);
+        self.sum_w += w;
+        while self.watts.len() > keep {
+            if let Some(old) = self.watts.pop_front() {
+                self.sum_w -= old;
+                self.since_exact += 1;
+            }
+        }
+        // Running sums drift; add them up afresh now and then.
+        if self.since_exact > 4096 {
+            self.sum_w = self.watts.iter().sum();
+            self.since_exact = 0;
+        }
+    }
+
+    fn scale(&mut self, factor: f64) {
+        for w in &mut self.watts {
+            *w *= factor;
+        }
+        self.sum_w *= factor;
+    }
 }
 
 impl Averager {
     /// An empty average.
     pub fn new(mode: Averaging) -> Self {
+        let held = match mode {
+            Averaging::Seconds(s) => Held::Buckets(Trend::new(s, AVERAGE_BUCKETS)),
+            Averaging::Off | Averaging::Samples(_) => Held::Readings(LastReadings::default()),
+        };
         Averager {
             mode,
-            window: VecDeque::new(),
-            sum_w: 0.0,
+            held,
             first_t: None,
-            since_exact: 0,
         }
     }
 
@@ -326,66 +375,80 @@ impl Averager {
             return;
         }
         self.first_t.get_or_insert(t);
-        let watts = dbm_to_watts(reading.dbm);
-        self.window.push_back((t, watts));
-        self.sum_w += watts;
-        while self.too_long(t) {
-            if let Some((_, old)) = self.window.pop_front() {
-                self.sum_w -= old;
-                self.since_exact += 1;
-            }
-        }
-        // Running sums drift; add them up afresh now and then.
-        if self.since_exact > 4096 {
-            self.sum_w = self.window.iter().map(|(_, w)| w).sum();
-            self.since_exact = 0;
+        let keep = match self.mode {
+            Averaging::Samples(n) => n.max(1),
+            Averaging::Off | Averaging::Seconds(_) => 1,
+        };
+        match &mut self.held {
+            Held::Buckets(buckets) => buckets.push(t, reading),
+            Held::Readings(last) => last.push(dbm_to_watts(reading.dbm), keep),
         }
     }
 
-    fn too_long(&self, now: f64) -> bool {
-        match self.mode {
-            Averaging::Off => self.window.len() > 1,
-            Averaging::Samples(n) => self.window.len() > n.max(1),
-            Averaging::Seconds(s) => self.window.front().is_some_and(|(t, _)| now - t > s),
+    /// Count and power sum of the readings in the window.
+    fn totals(&self) -> (u64, f64) {
+        match &self.held {
+            Held::Readings(last) => (last.watts.len() as u64, last.sum_w),
+            Held::Buckets(buckets) => {
+                let all = buckets.total();
+                (all.valid, all.sum_w)
+            }
         }
     }
 
     /// The mean, dBm.
     pub fn mean_dbm(&self) -> Option<f64> {
-        (!self.window.is_empty()).then(|| watts_to_dbm(self.sum_w / self.window.len() as f64))
+        let (n, sum_w) = self.totals();
+        (n > 0).then(|| watts_to_dbm(sum_w / n as f64))
     }
 
     /// Readings in the window now.
     pub fn len(&self) -> usize {
-        self.window.len()
+        self.totals().0 as usize
     }
 
     /// True when no reading is held.
     pub fn is_empty(&self) -> bool {
-        self.window.is_empty()
+        self.len() == 0
+    }
+
+    /// Entries kept in memory: readings for a count, buckets for a time.
+    pub fn entries(&self) -> usize {
+        match &self.held {
+            Held::Readings(last) => last.watts.len(),
+            Held::Buckets(buckets) => buckets.buckets_held(),
+        }
     }
 
     /// True when the window holds all it is meant to, so the mean is over a full window.
     pub fn is_full(&self, now: f64) -> bool {
         match self.mode {
-            Averaging::Off => !self.window.is_empty(),
-            Averaging::Samples(n) => self.window.len() >= n.max(1),
+            Averaging::Off => !self.is_empty(),
+            Averaging::Samples(n) => self.len() >= n.max(1),
             Averaging::Seconds(s) => self.first_t.is_some_and(|t0| now - t0 >= s),
         }
     }
 
-    /// Forgets everything (a new averaging mode, or a reset).
+    /// Forgets every reading, keeping the room for them: the screen clears the average at
+    /// each reading below the span or at clip.
     pub fn clear(&mut self) {
-        *self = Averager::new(self.mode);
+        match &mut self.held {
+            Held::Buckets(buckets) => buckets.clear(),
+            Held::Readings(last) => {
+                last.watts.clear();
+                last.sum_w = 0.0;
+                last.since_exact = 0;
+            }
+        }
+        self.first_t = None;
     }
 
     /// Moves every level by `db`.
     pub fn shift_db(&mut self, db: f64) {
-        let factor = 10f64.powf(db / 10.0);
-        for (_, w) in &mut self.window {
-            *w *= factor;
+        match &mut self.held {
+            Held::Buckets(buckets) => buckets.shift_db(db),
+            Held::Readings(last) => last.scale(10f64.powf(db / 10.0)),
         }
-        self.sum_w *= factor;
     }
 }
 
@@ -515,6 +578,22 @@ impl Trend {
         out.iter().map(PowerStats::extremes).collect()
     }
 
+    /// Every reading held, merged: those of the last `window_s` seconds up to the newest,
+    /// save any in the bucket last let go, which reached less than one bucket into the
+    /// window.
+    pub fn total(&self) -> PowerStats {
+        let mut all = PowerStats::default();
+        for (_, stats) in &self.buckets {
+            all.merge(stats);
+        }
+        all
+    }
+
+    /// Buckets held now: at most the capacity, however many readings came.
+    pub fn buckets_held(&self) -> usize {
+        self.buckets.len()
+    }
+
     /// Forgets the history.
     pub fn clear(&mut self) {
         self.buckets.clear();
@@ -582,10 +661,145 @@ mod tests {
                 &reading(if i < 12 { 0.0 } else { 10.0 }, Flags::empty()),
             );
         }
-        assert_eq!(by_time.len(), 9, "1.875 s to 2.875 s inclusive");
+        // The last second before 2.875 s reaches back to 1.875 s, a reading on the very
+        // edge; the window's buckets start at the bucket after the edge, so they let it go
+        // (less than one bucket's worth, see `time_average_within_a_bucket_of_the_exact`).
+        assert_eq!(by_time.len(), 8, "2 s to 2.875 s inclusive");
         assert!((by_time.mean_dbm().unwrap() - 10.0).abs() < 1e-9);
         assert!(by_time.is_full(2.875));
         assert!(!Averager::new(Averaging::Seconds(5.0)).is_full(1.0));
+    }
+
+    // Source: the rule of this change: a time average keeps at most AVERAGE_BUCKETS
+    // buckets, whatever its window and the rate (before, an hour at 10 k samples/s kept
+    // 36 M readings). Readings here are a millisecond apart or closer, so every window
+    // below would hold thousands of them.
+    #[test]
+    fn a_time_average_keeps_a_bounded_number_of_buckets_whatever_the_window_and_rate() {
+        for (window_s, rate_hz, seconds) in
+            [(0.5, 100e3, 1.5), (2.0, 20e3, 5.0), (3600.0, 1e3, 4000.0)]
+        {
+            let mut average = Averager::new(Averaging::Seconds(window_s));
+            let n = (rate_hz * seconds) as u64;
+            for i in 0..n {
+                average.push(
+                    i as f64 / rate_hz,
+                    &reading(f64::from((i % 7) as u8), Flags::empty()),
+                );
+            }
+            let what = format!("{window_s} s at {rate_hz} Hz");
+            assert!(
+                average.entries() <= AVERAGE_BUCKETS,
+                "{what}: {} entries",
+                average.entries()
+            );
+            let expected = (window_s * rate_hz) as usize;
+            assert!(
+                average.len().abs_diff(expected) <= expected / AVERAGE_BUCKETS + 1,
+                "{what}: {} readings averaged",
+                average.len()
+            );
+        }
+    }
+
+    /// The plain reference: every reading of the last `window_s` seconds, kept.
+    struct ExactWindow {
+        window_s: f64,
+        readings: VecDeque<(f64, f64)>,
+    }
+
+    impl ExactWindow {
+        fn push(&mut self, t: f64, watts: f64) {
+            self.readings.push_back((t, watts));
+            while self
+                .readings
+                .front()
+                .is_some_and(|(t0, _)| t - t0 > self.window_s)
+            {
+                self.readings.pop_front();
+            }
+        }
+
+        fn mean_w(&self) -> f64 {
+            self.readings.iter().map(|(_, w)| w).sum::<f64>() / self.readings.len() as f64
+        }
+
+        /// Readings at or after `t`.
+        fn since(&self, t: f64) -> usize {
+            self.readings.iter().filter(|(t0, _)| *t0 >= t).count()
+        }
+
+        fn spread_w(&self) -> f64 {
+            let (lo, hi) = self
+                .readings
+                .iter()
+                .fold((f64::INFINITY, 0.0f64), |(lo, hi), (_, w)| {
+                    (lo.min(*w), hi.max(*w))
+                });
+            hi - lo
+        }
+    }
+
+    // Source: the bound worked by hand for this change. The buckets cover the exact window
+    // C less the readings of at most one bucket at its old end, k of them: B ⊆ C with
+    // |C| − |B| = k. Then mean(C) = (|B|·mean(B) + k·mean(C∖B)) / |C|, so
+    // |mean(B) − mean(C)| = k/|C| · |mean(C∖B) − mean(B)| ≤ k/|C| · (max − min) over C, in
+    // watts. Monte-Carlo with a fixed seed: levels in steps of random height and length,
+    // readings at jittered times around 10 k/s, windows that do not fit the bucket grid.
+    #[test]
+    fn a_time_average_is_within_one_bucket_of_the_exact_window() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_pcg::Pcg64::seed_from_u64(20261203);
+        for window_s in [0.0371, 0.25, 1.7] {
+            let bucket_s = window_s / AVERAGE_BUCKETS as f64;
+            let mut average = Averager::new(Averaging::Seconds(window_s));
+            let mut exact = ExactWindow {
+                window_s,
+                readings: VecDeque::new(),
+            };
+            let (mut t, mut level, mut left) = (0.0, 0.0, 0);
+            let mut edge_losses = 0;
+            for i in 0..40_000 {
+                if left == 0 {
+                    (level, left) = (rng.random_range(-20.0..20.0), rng.random_range(1..3000));
+                }
+                left -= 1;
+                t += 1e-4 * rng.random_range(0.5..1.5);
+                average.push(t, &reading(level, Flags::empty()));
+                exact.push(t, dbm_to_watts(level));
+                if i % 37 != 0 {
+                    continue;
+                }
+                let slack = 1e-9;
+                let what = format!("{window_s} s window at t = {t}");
+                let (held, all) = (average.len(), exact.readings.len());
+                // Only readings within one bucket of the old edge may be missing.
+                let surely_in = exact.since(t - window_s + bucket_s + slack);
+                assert!(
+                    surely_in <= held && held <= all,
+                    "{what}: {surely_in} <= {held} <= {all}"
+                );
+                let k = all - held;
+                // Readings are at least 50 µs apart: so many fit in one bucket.
+                assert!(
+                    k as f64 <= bucket_s / 0.5e-4 + 1.0,
+                    "{what}: {k} readings lost at the edge"
+                );
+                edge_losses += k;
+                let bucketed = dbm_to_watts(average.mean_dbm().unwrap());
+                // Plus rounding: sums of n positive terms are good to n·ε, under 1e-10 here.
+                let bound = k as f64 / all as f64 * exact.spread_w() + 1e-10 * exact.mean_w();
+                let error = (bucketed - exact.mean_w()).abs();
+                assert!(
+                    error <= bound,
+                    "{what}: off by {error:e} W, allowed {bound:e} W"
+                );
+            }
+            assert!(
+                edge_losses > 0,
+                "{window_s} s: the edge was never exercised"
+            );
+        }
     }
 
     #[test]

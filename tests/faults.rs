@@ -84,6 +84,97 @@ fn twenty_unplugs_give_twenty_reconnects_every_gap_marked_and_no_row_lost() {
     assert!(gap_runs >= REPLUGS, "{gap_runs} gap runs: {rows:?}");
 }
 
+fn samples_in(rows: &[Vec<String>], samples: usize) -> usize {
+    rows.iter()
+        .map(|r| r[samples].parse::<usize>().unwrap())
+        .sum()
+}
+
+// Source: the rules in docs/protocol.md ("Joining a stream": a port opened again learns
+// the stream afresh) and docs/recording.md (a row whose interval refused input is flagged
+// `rejected`). The values: worked example by hand, `hand_dbm` (1500 counts at 100 MHz
+// read +11 dBm), on the first channel of the two.
+#[test]
+fn a_device_replugged_with_two_channels_is_learned_again_and_refused_lines_are_flagged() {
+    const LINES: usize = 100;
+    let limit = Duration::from_secs(20);
+    let dir = scratch("relearn");
+    let profile = write_profile(&dir);
+    let out = dir.join("relearn.csv");
+    let link = dir.join("port");
+    let (mut master, slave) = pty_pair();
+    repoint(&link, &slave);
+    let mut child = bin();
+    child
+        .args(["record", "--port", link.to_str().unwrap()])
+        .args(["--profile", profile.to_str().unwrap(), "--freq", "100MHz"])
+        .args(["--every", "250ms", "--out", out.to_str().unwrap()])
+        .stderr(Stdio::null());
+    let child = KillOnDrop::new(spawn(&mut child));
+    // A row is written only once the port is open.
+    let header = wait_until(limit, || match rows_so_far(&out) {
+        (header, rows) if !rows.is_empty() => Ok(header),
+        _ => Err("no row yet".to_string()),
+    });
+    let (samples, flags) = (column(&header, "samples"), column(&header, "flags"));
+    let so_far = || rows_so_far(&out).1;
+    master.write_all(b"# one channel\n").unwrap();
+    write_lines(&mut master, std::iter::repeat_n(1500, LINES));
+    write_lines(&mut master, ["12a", "1,,2", "-5"].into_iter());
+    wait_until(limit, || {
+        let rows = so_far();
+        if flagged(&rows, flags, "rejected") > 0 && samples_in(&rows, samples) == LINES {
+            Ok(())
+        } else {
+            Err(format!(
+                "one-channel samples and a `rejected` row: {rows:?}"
+            ))
+        }
+    });
+    drop((master, slave));
+    let (mut master, slave) = pty_pair();
+    repoint(&link, &slave);
+    let reconnected = |rows: &[Vec<String>]| {
+        rows.iter()
+            .position(|r| r[flags].split('|').any(|f| f == "reconnect"))
+    };
+    let back = wait_until(limit, || {
+        let rows = so_far();
+        reconnected(&rows).ok_or(format!("no reconnect yet: {rows:?}"))
+    });
+    // The first line after joining is skipped as perhaps cut: a banner loses nothing.
+    master.write_all(b"# two channels now\n").unwrap();
+    write_lines(&mut master, std::iter::repeat_n("1500,1200", LINES));
+    wait_until(limit, || {
+        let rows = so_far();
+        match samples_in(&rows[back..], samples) {
+            LINES => Ok(()),
+            n => Err(format!(
+                "{n} of {LINES} two-channel samples recorded: {rows:?}"
+            )),
+        }
+    });
+    Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(wait(child.release(), Duration::from_secs(15)).success());
+    let (_, rows) = common::rows(&out);
+    let mean = column(&header, "mean_dbm");
+    assert_eq!(flagged(&rows, flags, "reconnect"), 1, "{rows:?}");
+    assert_eq!(samples_in(&rows[back..], samples), LINES, "{rows:?}");
+    assert_eq!(
+        flagged(&rows[back..], flags, "rejected"),
+        0,
+        "the second device's lines are all good: {rows:?}"
+    );
+    let want = format!("{:.4}", hand_dbm(1500.0));
+    for row in rows.iter().filter(|r| r[samples] != "0") {
+        assert_eq!(row[mean], want, "{row:?}");
+    }
+    drop(slave);
+}
+
 #[test]
 fn a_silent_port_gets_gap_rows_and_the_recorder_goes_on() {
     let dir = scratch("silent");

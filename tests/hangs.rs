@@ -51,8 +51,8 @@ fn a_silent_fifo_writer_gives_up_its_samples_and_every_signal_ends_the_replay() 
         let mut writer = std::fs::OpenOptions::new().write(true).open(&pipe).unwrap();
         let lines: String = (0..50).map(|i| format!("{}\n", 1000 + i)).collect();
         writer.write_all(lines.as_bytes()).unwrap();
-        wait_until(EFFECT_LIMIT, "50 per-sample rows in the CSV", || {
-            rows_so_far(&out) >= 50
+        wait_for(EFFECT_LIMIT, "50 per-sample rows in the CSV", || {
+            row_count(&out) >= 50
         });
         signal(&child, signal_name);
         let status = wait(child, STOP_LIMIT);
@@ -76,9 +76,7 @@ fn interval_rows_of_a_blocked_fifo_hold_every_sample_received_before_the_signal(
     let mut writer = std::fs::OpenOptions::new().write(true).open(&pipe).unwrap();
     let lines: String = (0..50).map(|i| format!("{}\n", 1000 + i)).collect();
     writer.write_all(lines.as_bytes()).unwrap();
-    wait_until(EFFECT_LIMIT, "four interval rows", || {
-        rows_so_far(&out) >= 4
-    });
+    wait_for(EFFECT_LIMIT, "four interval rows", || row_count(&out) >= 4);
     signal(&child, "INT");
     assert!(wait(child, STOP_LIMIT).success());
     assert_eq!(total_samples(&out), 50);
@@ -93,9 +91,7 @@ fn a_pseudo_terminal_given_to_replay_ends_on_a_signal_with_its_samples() {
     let out = dir.join("pty.csv");
     let child = record_replay(Path::new(&slave.name().unwrap()), &out, "0", &profile);
     write_lines(&mut master, 2000..2030);
-    wait_until(EFFECT_LIMIT, "30 per-sample rows", || {
-        rows_so_far(&out) >= 30
-    });
+    wait_for(EFFECT_LIMIT, "30 per-sample rows", || row_count(&out) >= 30);
     signal(&child, "TERM");
     assert!(wait(child, STOP_LIMIT).success());
     let (_, rows) = rows(&out);
@@ -108,7 +104,7 @@ fn an_endless_device_as_a_capture_ends_on_a_signal() {
     let profile = write_profile(&dir);
     let out = dir.join("zero.csv");
     let child = record_replay(Path::new("/dev/zero"), &out, "1s", &profile);
-    wait_until(EFFECT_LIMIT, "the log's context lines", || {
+    wait_for(EFFECT_LIMIT, "the log's context lines", || {
         std::fs::read_to_string(&out).is_ok_and(|t| t.contains("# source:"))
     });
     signal(&child, "INT");
@@ -127,8 +123,8 @@ fn a_fast_simulator_without_a_duration_says_how_to_stop_and_stops_on_a_signal() 
             .args(["--out", out.to_str().unwrap()])
             .stderr(std::fs::File::create(&err).unwrap());
         let child = spawn(&mut command);
-        wait_until(EFFECT_LIMIT, "rows from the fast simulator", || {
-            rows_so_far(&out) > 1000
+        wait_for(EFFECT_LIMIT, "rows from the fast simulator", || {
+            row_count(&out) > 1000
         });
         signal(&child, signal_name);
         assert!(wait(child, STOP_LIMIT).success(), "SIG{signal_name}");
@@ -166,7 +162,7 @@ fn a_signal_during_a_slow_paced_replay_writes_no_rows_for_time_that_did_not_pass
         .args(["--out", out.to_str().unwrap()])
         .stderr(Stdio::null());
     let child = spawn(&mut command);
-    wait_until(EFFECT_LIMIT, "the log's context lines", || {
+    wait_for(EFFECT_LIMIT, "the log's context lines", || {
         std::fs::read_to_string(&out).is_ok_and(|t| t.contains("# source:"))
     });
     signal(&child, "INT");

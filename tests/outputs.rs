@@ -304,8 +304,8 @@ fn a_second_recorder_on_the_same_file_is_refused() {
         ])
         .stderr(Stdio::null());
     let first = spawn(&mut command);
-    wait_until(Duration::from_secs(20), "the first recorder's rows", || {
-        rows_so_far(&log) >= 2
+    wait_for(Duration::from_secs(20), "the first recorder's rows", || {
+        row_count(&log) >= 2
     });
     let second = append(&log, &["--demo", "--fast", "--duration", "1s"]);
     let said = String::from_utf8_lossy(&second.stderr);
@@ -343,8 +343,8 @@ fn recording(log: &std::path::Path, err: &std::path::Path) -> std::process::Chil
         ])
         .stderr(std::fs::File::create(err).unwrap());
     let child = spawn(&mut command);
-    wait_until(Duration::from_secs(20), "the recorder's rows", || {
-        rows_so_far(log) >= 2
+    wait_for(Duration::from_secs(20), "the recorder's rows", || {
+        row_count(log) >= 2
     });
     child
 }

@@ -27,14 +27,16 @@ impl AsciiDecoder {
         }
     }
 
-    /// Forgets any partial line and skips up to the next line end, as after joining a
-    /// stream part-way (a reconnect).
+    /// Forgets any partial line and the channel count learned, and skips up to the next
+    /// line end, as after joining a stream part-way (a reconnect, perhaps of a device now
+    /// sending another number of channels).
     pub fn resync(&mut self) {
         self.line.clear();
         self.discarding = false;
         self.skip_partial = true;
         self.suspect = false;
         self.held = None;
+        self.channels = None;
     }
 
     /// Decodes `bytes`, appending samples to `out`.

@@ -82,6 +82,13 @@ pub struct DecodeStats {
     pub skipped_bytes: u64,
 }
 
+impl DecodeStats {
+    /// Lines and frames refused: bad lines, over-long lines and frames with a bad CRC.
+    pub fn rejected(&self) -> u64 {
+        self.bad_lines + self.long_lines + self.crc_errors
+    }
+}
+
 impl AddAssign for DecodeStats {
     fn add_assign(&mut self, o: Self) {
         self.frames += o.frames;
@@ -240,6 +247,8 @@ pub use binary::{frame_grid, frames_ahead, BinaryDecoder, FramesAhead};
 /// A decoder for either mode, recognising the mode first when asked to.
 #[derive(Debug, Clone)]
 pub struct Decoder {
+    /// The mode asked for: `Auto` goes back to recognising it on a resync.
+    format: Format,
     state: State,
     stats: DecodeStats,
     joined_midway: bool,
@@ -261,6 +270,7 @@ impl Decoder {
             Format::Binary => State::Binary(BinaryDecoder::new()),
         };
         Decoder {
+            format,
             state,
             stats: DecodeStats::default(),
             joined_midway: false,
@@ -321,17 +331,17 @@ impl Decoder {
     }
 
     /// Starts again on a stream joined part-way (a port just opened or reopened): partial
-    /// data is dropped and, in ASCII, the first line, probably cut, is skipped. The mode,
-    /// once known, is kept.
+    /// data is dropped and, in ASCII, the first line, probably cut, is skipped. What was
+    /// learned from the stream is forgotten, for the device may have been replugged or
+    /// set up anew: under `auto` the mode is recognised again, and ASCII lines may bring
+    /// another channel count.
     pub fn resync(&mut self) {
-        match &mut self.state {
-            State::Ascii(d) => d.resync(),
-            State::Binary(d) => d.resync(),
-            State::Probing(probe) => {
-                probe.clear();
-                self.joined_midway = true;
-            }
+        match (&mut self.state, self.format) {
+            (State::Ascii(d), Format::Ascii) => d.resync(),
+            (State::Binary(d), Format::Binary) => d.resync(),
+            (state, _) => *state = State::Probing(Vec::with_capacity(AUTO_PROBE)),
         }
+        self.joined_midway = true;
     }
 
     fn settle(&mut self, format: Format, out: &mut impl FrameSink) {
@@ -483,6 +493,50 @@ mod tests {
             d.finish(&mut out);
             assert_eq!(counts(&out), [[1024], [1025], [1026]], "{format:?}");
         }
+    }
+
+    // Source: the rule in docs/protocol.md ("Joining a stream"): a port opened again learns
+    // the stream afresh, so a device replugged with another channel count, or another
+    // mode under `auto`, is read rather than refused line by line.
+    #[test]
+    fn a_rejoined_stream_learns_its_channel_count_and_mode_again() {
+        for format in [Format::Auto, Format::Ascii] {
+            let mut d = Decoder::new(format);
+            let mut out = Vec::new();
+            d.resync();
+            d.feed(b"# one channel\n1000\n1001\n1002\n", &mut out);
+            d.resync();
+            d.feed(b"# two channels\n812,40\n813,41\n814,42\n", &mut out);
+            d.finish(&mut out);
+            assert_eq!(
+                counts(&out),
+                [
+                    vec![1000],
+                    vec![1001],
+                    vec![1002],
+                    vec![812, 40],
+                    vec![813, 41],
+                    vec![814, 42]
+                ],
+                "{format:?}"
+            );
+            assert_eq!(d.stats().bad_lines, 0, "{format:?}");
+        }
+        let mut d = Decoder::new(Format::Auto);
+        let mut out = Vec::new();
+        d.feed(b"# text first\n1000\n1001\n1002\n", &mut out);
+        d.resync();
+        let mut frames = Vec::new();
+        for seq in 0..4 {
+            encode_binary(seq, &[2000 + seq], &mut frames);
+        }
+        d.feed(&frames, &mut out);
+        d.finish(&mut out);
+        assert_eq!(
+            counts(&out),
+            [[1000], [1001], [1002], [2000], [2001], [2002], [2003]]
+        );
+        assert_eq!(d.format(), Some(Format::Binary));
     }
 
     #[test]

@@ -5,7 +5,7 @@ use std::io::{ErrorKind, Read};
 use std::time::{Duration, Instant};
 
 use anyhow::Context;
-use dbtrail::decode::{Decoder, FlatCounts, Format};
+use dbtrail::decode::{DecodeStats, Decoder, FlatCounts, Format};
 use dbtrail::record::{Chunk, Event};
 use serialport::SerialPort;
 
@@ -62,23 +62,7 @@ fn read_forever(
                 let t = started.elapsed().as_secs_f64();
                 let before = decoder.stats();
                 decoder.feed(&buf[..n], &mut samples);
-                sink.counters.add_decoded(&before, &decoder.stats());
-                let dropped = decoder.stats().dropped_frames - before.dropped_frames;
-                if dropped > 0 {
-                    sink.send(Event::Lost {
-                        t,
-                        samples: dropped,
-                    });
-                }
-                if !samples.is_empty() {
-                    sink.counters.set_last_sample((t * 1e9) as u64);
-                    let chunk = Chunk {
-                        t0: t,
-                        dt: 0.0,
-                        samples: std::mem::take(&mut samples),
-                    };
-                    sink.send(Event::Samples(chunk));
-                }
+                hand_over(sink, t, &before, &decoder.stats(), &mut samples);
                 continue;
             }
             Err(e) if e.kind() == ErrorKind::TimedOut || e.kind() == ErrorKind::Interrupted => {
@@ -95,12 +79,45 @@ fn read_forever(
             return;
         };
         port = reopened;
+        // Perhaps another device, or the same one set up anew: learn its format again.
         decoder.resync();
         sink.counters.add_reconnect();
         sink.counters.set_connected(true);
         sink.send(Event::LinkUp {
             t: started.elapsed().as_secs_f64(),
         });
+    }
+}
+
+/// Hands the consumer what one read gave: the counters' growth, frames found missing,
+/// input refused, and the samples.
+fn hand_over(
+    sink: &mut Sink,
+    t: f64,
+    before: &DecodeStats,
+    after: &DecodeStats,
+    samples: &mut FlatCounts,
+) {
+    sink.counters.add_decoded(before, after);
+    let dropped = after.dropped_frames - before.dropped_frames;
+    if dropped > 0 {
+        sink.send(Event::Lost {
+            t,
+            samples: dropped,
+        });
+    }
+    let rejected = after.rejected() - before.rejected();
+    if rejected > 0 {
+        sink.send(Event::Rejected { t, count: rejected });
+    }
+    if !samples.is_empty() {
+        sink.counters.set_last_sample((t * 1e9) as u64);
+        let chunk = Chunk {
+            t0: t,
+            dt: 0.0,
+            samples: std::mem::take(samples),
+        };
+        sink.send(Event::Samples(chunk));
     }
 }
 

@@ -193,6 +193,9 @@ pub struct App {
     pub best_dbm: Option<f64>,
     /// Flags of the warnings now up, and when each was last raised.
     pub warnings: Vec<(Flags, f64)>,
+    /// When the link counters last showed refused input (bad or over-long lines, CRC
+    /// errors), source seconds.
+    pub rejected_at: Option<f64>,
     /// Where the log goes and how many rows it has, when logging.
     pub logging: Option<(PathBuf, u64)>,
     /// A one-line message for the user (an error from a command, say).
@@ -235,6 +238,7 @@ impl App {
             holds_since: 0.0,
             best_dbm: None,
             warnings: Vec::new(),
+            rejected_at: None,
             logging: None,
             notice: None,
             settle: Settle::new(1.0, 0.1),
@@ -253,6 +257,9 @@ impl App {
             AppEvent::Key(_) => Vec::new(),
             AppEvent::Samples(events) => self.samples(&events),
             AppEvent::Link(link) => {
+                if link.rejected() > self.link.rejected() {
+                    self.rejected_at = Some(self.now);
+                }
                 self.connected = link.connected;
                 self.link = link;
                 Vec::new()
@@ -297,6 +304,12 @@ impl App {
         self.trends[self.trend_window].columns(self.now, columns)
     }
 
+    /// True while the source is refusing input, or did within the warnings' hold time.
+    pub fn is_rejecting(&self) -> bool {
+        self.rejected_at
+            .is_some_and(|t| self.now - t < WARNING_HOLD_S)
+    }
+
     /// The flags of the warnings up now.
     pub fn active_warnings(&self) -> Flags {
         self.warnings
@@ -316,7 +329,8 @@ impl App {
                 }
                 Event::LinkDown { .. } => self.connected = false,
                 Event::LinkUp { .. } => self.connected = true,
-                Event::Lost { .. } => {}
+                // Shown from the link counters, which every source keeps.
+                Event::Lost { .. } | Event::Rejected { .. } => {}
             }
         }
         let raised = self.active_warnings().difference(before);

@@ -111,6 +111,9 @@ fn warning_words(flags: Flags) -> Vec<&'static str> {
 
 fn warning_banner(app: &App, area: Rect, buf: &mut Buffer) {
     let mut words = warning_words(app.active_warnings());
+    if app.is_rejecting() {
+        words.push("INPUT REJECTED: check format, channel count, baud rate");
+    }
     if app.ended {
         words.insert(0, "END OF REPLAY: last reading greyed");
     } else if !app.connected {

@@ -7,8 +7,11 @@ use ratatui::backend::TestBackend;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 use ratatui::Terminal;
 
+use dbtrail::decode::FlatCounts;
+use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::parse_profile;
-use dbtrail::record::Event;
+use dbtrail::record::{Chunk, Event};
+use dbtrail::stats::AVERAGE_BUCKETS;
 
 use super::app::{App, AppEvent, Command, Shown, Units};
 use super::draw::draw;
@@ -264,6 +267,33 @@ fn a_silent_source_shows_the_time_since_its_last_sample() {
     assert!(has(&screen(&app, 100, 30), "10.0 s ago"));
 }
 
+// Source: the rule in docs/screen.md: refused input (bad lines, CRC errors) raises a
+// warning that stays up for WARNING_HOLD_S after the counters last grew.
+#[test]
+fn rejected_input_raises_a_warning_that_clears_after() {
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    let mut link = LinkSnapshot {
+        samples: 1,
+        connected: true,
+        ..LinkSnapshot::default()
+    };
+    app.update(AppEvent::Link(link));
+    assert!(!has(&screen(&app, 100, 30)[..2], "INPUT REJECTED"));
+    link.bad_lines = 4;
+    app.update(AppEvent::Link(link));
+    app.update(AppEvent::Tick { now: 1.0 });
+    let lines = screen(&app, 100, 30);
+    assert!(lines[1].contains("INPUT REJECTED"), "{lines:#?}");
+    // No more refused: the warning goes after its hold.
+    app.update(AppEvent::Link(link));
+    app.update(AppEvent::Tick { now: 3.0 });
+    assert!(!has(&screen(&app, 100, 30)[..2], "INPUT REJECTED"));
+    link.crc_errors = 1;
+    app.update(AppEvent::Link(link));
+    assert!(screen(&app, 100, 30)[1].contains("INPUT REJECTED"));
+}
+
 // Source: common practice: a 12-bit ADC (the hand profile's) gives codes 0 to 4095 only.
 #[test]
 fn a_count_over_full_scale_warns_and_leaves_the_reading_alone() {
@@ -315,4 +345,34 @@ fn a_name_with_control_characters_stays_on_the_title_line_escaped() {
         title.contains(r" dbtrail · bench\nrig\u{1b}[2J · 10.00 MHz"),
         "{title:?}"
     );
+}
+
+// Source: the rule of this change: an average over a time keeps at most AVERAGE_BUCKETS
+// buckets (before, `a` `1h` at 10 k samples/s kept every reading: 36 M in an hour). And
+// the worked example: 1500 counts read +10 dBm.
+#[test]
+fn an_hour_of_averaging_at_ten_thousand_samples_a_second_keeps_bounded_memory() {
+    let mut app = app();
+    keys(&mut app, "a1h\n");
+    for second in 0..5 {
+        let chunk = Chunk {
+            t0: f64::from(second),
+            dt: 1e-4,
+            samples: FlatCounts {
+                channels: 1,
+                counts: vec![1500; 10_000],
+            },
+        };
+        app.update(AppEvent::Samples(vec![Event::Samples(chunk)]));
+    }
+    assert_eq!(app.averager.len(), 50_000, "every reading is averaged");
+    assert!(
+        app.averager.entries() <= AVERAGE_BUCKETS,
+        "{} entries held",
+        app.averager.entries()
+    );
+    let Shown::Level(dbm) = app.shown() else {
+        panic!("{:?}", app.shown())
+    };
+    assert!((dbm - 10.0).abs() < 1e-9, "{dbm}");
 }

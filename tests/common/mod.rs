@@ -40,7 +40,17 @@ pub fn write_profile(dir: &Path) -> PathBuf {
 
 /// Data rows of a recording: the lines after the `#` context and the column header.
 pub fn rows(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
-    let text = std::fs::read_to_string(path).unwrap();
+    parse_rows(&std::fs::read_to_string(path).unwrap())
+}
+
+/// The rows of a recording still being written: only its complete lines, and nothing
+/// before the file or its header exists.
+pub fn rows_so_far(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
+    let text = std::fs::read_to_string(path).unwrap_or_default();
+    parse_rows(&text[..text.rfind('\n').map_or(0, |end| end + 1)])
+}
+
+fn parse_rows(text: &str) -> (Vec<String>, Vec<Vec<String>>) {
     let mut reader = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
         .flexible(true)
@@ -51,6 +61,21 @@ pub fn rows(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
         .map(|r| r.unwrap().iter().map(String::from).collect())
         .collect();
     (header, rows)
+}
+
+/// Checks `ready` every 20 ms until it gives a value; after `limit`, fails with what it
+/// last said was missing.
+pub fn wait_until<T>(limit: Duration, mut ready: impl FnMut() -> Result<T, String>) -> T {
+    let started = Instant::now();
+    loop {
+        match ready() {
+            Ok(value) => return value,
+            Err(missing) if started.elapsed() > limit => {
+                panic!("not within {limit:?}: {missing}")
+            }
+            Err(_) => std::thread::sleep(Duration::from_millis(20)),
+        }
+    }
 }
 
 pub fn column(header: &[String], name: &str) -> usize {
@@ -71,6 +96,33 @@ pub fn wait(mut child: Child, limit: Duration) -> std::process::ExitStatus {
             panic!("the recorder did not finish within {limit:?}");
         }
         std::thread::sleep(Duration::from_millis(20));
+    }
+}
+
+/// A child killed when dropped, so that a test that fails part-way leaves no recorder
+/// running; `release` hands it back for a clean end.
+pub struct KillOnDrop(Option<Child>);
+
+impl KillOnDrop {
+    pub fn new(child: Child) -> Self {
+        KillOnDrop(Some(child))
+    }
+
+    pub fn id(&self) -> u32 {
+        self.0.as_ref().map_or(0, Child::id)
+    }
+
+    pub fn release(mut self) -> Child {
+        self.0.take().expect("released once")
+    }
+}
+
+impl Drop for KillOnDrop {
+    fn drop(&mut self) {
+        if let Some(child) = &mut self.0 {
+            let _ = child.kill();
+            let _ = child.wait();
+        }
     }
 }
 
@@ -105,10 +157,11 @@ pub fn pty_pair() -> (TTYPort, TTYPort) {
     (master, slave)
 }
 
-pub fn write_lines(master: &mut TTYPort, counts: impl Iterator<Item = u32>) {
+/// Writes one line per item (counts, or `a,b` lines of two channels), in batches of 50.
+pub fn write_lines(master: &mut TTYPort, lines: impl Iterator<Item = impl std::fmt::Display>) {
     let mut batch = Vec::new();
-    for (i, c) in counts.enumerate() {
-        batch.extend_from_slice(format!("{c}\n").as_bytes());
+    for (i, line) in lines.enumerate() {
+        batch.extend_from_slice(format!("{line}\n").as_bytes());
         if i % 50 == 49 {
             master.write_all(&batch).unwrap();
             batch.clear();
@@ -125,22 +178,20 @@ pub fn repoint(link: &Path, slave: &TTYPort) {
     std::os::unix::fs::symlink(slave.name().unwrap(), link).unwrap();
 }
 
-/// Waits until `ready` holds, checking every 10 ms; panics naming `what` after `limit`.
-pub fn wait_until(limit: Duration, what: &str, mut ready: impl FnMut() -> bool) {
-    let started = Instant::now();
-    while !ready() {
-        if started.elapsed() > limit {
-            panic!("{what} did not happen within {limit:?}");
+/// Waits until `ready` holds; after `limit`, fails naming `what`.
+pub fn wait_for(limit: Duration, what: &str, mut ready: impl FnMut() -> bool) {
+    wait_until(limit, || {
+        if ready() {
+            Ok(())
+        } else {
+            Err(what.to_string())
         }
-        std::thread::sleep(Duration::from_millis(10));
-    }
+    })
 }
 
-/// Data rows in a recording so far (0 while it has no column header yet).
-pub fn rows_so_far(path: &Path) -> usize {
-    let text = std::fs::read_to_string(path).unwrap_or_default();
-    let lines = text.lines().filter(|l| !l.starts_with('#'));
-    lines.count().saturating_sub(1)
+/// Complete data rows in a recording so far.
+pub fn row_count(path: &Path) -> usize {
+    rows_so_far(path).1.len()
 }
 
 /// Sends `signal` (a name such as INT) to a child.
