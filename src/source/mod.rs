@@ -81,7 +81,7 @@ impl Running {
 
 /// How long a stopped source's thread is waited for: a read blocked on a silent FIFO,
 /// terminal or device never returns, and the process must still end.
-const JOIN_PATIENCE: Duration = Duration::from_millis(300);
+const JOIN_PATIENCE: Duration = Duration::from_millis(100);
 
 impl Drop for Running {
     fn drop(&mut self) {
