@@ -10,7 +10,7 @@ mod common;
 
 use std::io::Write;
 use std::path::Path;
-use std::process::{Child, Stdio};
+use std::process::Stdio;
 use std::time::Duration;
 
 use common::*;
@@ -21,14 +21,14 @@ use serialport::SerialPort;
 const STOP_LIMIT: Duration = Duration::from_secs(10);
 const EFFECT_LIMIT: Duration = Duration::from_secs(20);
 
-fn record_replay(path: &Path, out: &Path, every: &str, profile: &Path) -> Child {
+fn record_replay(path: &Path, out: &Path, every: &str, profile: &Path) -> KillOnDrop {
     let mut command = bin();
     command
         .args(["record", "--replay", path.to_str().unwrap()])
         .args(["--profile", profile.to_str().unwrap(), "--format", "ascii"])
         .args(["--every", every, "--out", out.to_str().unwrap()])
         .stderr(Stdio::null());
-    spawn(&mut command)
+    KillOnDrop::new(spawn(&mut command))
 }
 
 fn total_samples(out: &Path) -> usize {
@@ -55,7 +55,7 @@ fn a_silent_fifo_writer_gives_up_its_samples_and_every_signal_ends_the_replay() 
             row_count(&out) >= 50
         });
         signal(&child, signal_name);
-        let status = wait(child, STOP_LIMIT);
+        let status = wait(child.release(), STOP_LIMIT);
         assert!(status.success(), "SIG{signal_name}: {status:?}");
         let (header, rows) = rows(&out);
         let counts = column(&header, "counts");
@@ -78,7 +78,7 @@ fn interval_rows_of_a_blocked_fifo_hold_every_sample_received_before_the_signal(
     writer.write_all(lines.as_bytes()).unwrap();
     wait_for(EFFECT_LIMIT, "four interval rows", || row_count(&out) >= 4);
     signal(&child, "INT");
-    assert!(wait(child, STOP_LIMIT).success());
+    assert!(wait(child.release(), STOP_LIMIT).success());
     assert_eq!(total_samples(&out), 50);
     drop(writer);
 }
@@ -93,7 +93,7 @@ fn a_pseudo_terminal_given_to_replay_ends_on_a_signal_with_its_samples() {
     write_lines(&mut master, 2000..2030);
     wait_for(EFFECT_LIMIT, "30 per-sample rows", || row_count(&out) >= 30);
     signal(&child, "TERM");
-    assert!(wait(child, STOP_LIMIT).success());
+    assert!(wait(child.release(), STOP_LIMIT).success());
     let (_, rows) = rows(&out);
     assert_eq!(rows.len(), 30);
 }
@@ -108,7 +108,7 @@ fn an_endless_device_as_a_capture_ends_on_a_signal() {
         std::fs::read_to_string(&out).is_ok_and(|t| t.contains("# source:"))
     });
     signal(&child, "INT");
-    assert!(wait(child, STOP_LIMIT).success());
+    assert!(wait(child.release(), STOP_LIMIT).success());
 }
 
 #[test]
@@ -122,12 +122,15 @@ fn a_fast_simulator_without_a_duration_says_how_to_stop_and_stops_on_a_signal() 
             .args(["record", "--demo", "--fast", "--every", "0"])
             .args(["--out", out.to_str().unwrap()])
             .stderr(std::fs::File::create(&err).unwrap());
-        let child = spawn(&mut command);
+        let child = KillOnDrop::new(spawn(&mut command));
         wait_for(EFFECT_LIMIT, "rows from the fast simulator", || {
             row_count(&out) > 1000
         });
         signal(&child, signal_name);
-        assert!(wait(child, STOP_LIMIT).success(), "SIG{signal_name}");
+        assert!(
+            wait(child.release(), STOP_LIMIT).success(),
+            "SIG{signal_name}"
+        );
         let said = std::fs::read_to_string(&err).unwrap();
         assert!(said.contains("Ctrl-C"), "{said}");
         // Every row is whole: the last one too.
@@ -161,12 +164,12 @@ fn a_signal_during_a_slow_paced_replay_writes_no_rows_for_time_that_did_not_pass
         .args(["--profile", profile.to_str().unwrap()])
         .args(["--out", out.to_str().unwrap()])
         .stderr(Stdio::null());
-    let child = spawn(&mut command);
+    let child = KillOnDrop::new(spawn(&mut command));
     wait_for(EFFECT_LIMIT, "the log's context lines", || {
         std::fs::read_to_string(&out).is_ok_and(|t| t.contains("# source:"))
     });
     signal(&child, "INT");
-    assert!(wait(child, STOP_LIMIT).success());
+    assert!(wait(child.release(), STOP_LIMIT).success());
     let (header, rows) = rows(&out);
     let time = column(&header, "time_s");
     let last: f64 = rows.last().map_or(0.0, |r| r[time].parse().unwrap());

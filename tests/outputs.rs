@@ -14,6 +14,12 @@ use std::time::Duration;
 
 use common::*;
 
+/// Asserts a run succeeded, showing what it said if not.
+fn succeeded(out: &std::process::Output) {
+    let said = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{said}");
+}
+
 fn demo_record(out: &str, extra: &[&str]) -> std::process::Output {
     let mut command = bin();
     command
@@ -37,11 +43,7 @@ fn outputs_that_cannot_be_synced_take_the_whole_run() {
         .stdout(Stdio::piped())
         .stderr(Stdio::piped());
     let piped = spawn(&mut command).wait_with_output().unwrap();
-    assert!(
-        piped.status.success(),
-        "{}",
-        String::from_utf8_lossy(&piped.stderr)
-    );
+    succeeded(&piped);
     let text = String::from_utf8_lossy(&piped.stdout);
     assert_eq!(
         text.lines().filter(|l| l.starts_with("1.0")).count(),
@@ -66,11 +68,7 @@ fn a_fifo_as_the_output_takes_every_row() {
         })
     };
     let out = demo_record(pipe.to_str().unwrap(), &["--force"]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    succeeded(&out);
     let text = reader.join().unwrap();
     let data = text.lines().filter(|l| !l.starts_with('#')).count();
     assert_eq!(data, 1 + 3, "header and three rows: {text}");
@@ -91,11 +89,7 @@ fn fit_can_write_its_profile_to_dev_null() {
     command.args(["--adc-bits", "12", "--vref", "4.095", "--freq", "10MHz"]);
     command.args(["--out", "/dev/null", "--force"]);
     let out = output(&mut command);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    succeeded(&out);
 }
 
 #[test]
@@ -243,11 +237,7 @@ fn a_run_made_another_way_is_appended_as_a_run_of_its_own() {
     let mut command = bin();
     let report = output(command.args(["report", log.to_str().unwrap()]));
     let shown = String::from_utf8_lossy(&report.stdout);
-    assert!(
-        report.status.success(),
-        "{}",
-        String::from_utf8_lossy(&report.stderr)
-    );
+    succeeded(&report);
     assert!(
         shown.contains("Run 2 of 2") && shown.contains("2 rows of 2.000 s"),
         "{shown}"
@@ -267,11 +257,7 @@ fn a_row_cut_part_way_stays_on_its_own_line_when_a_run_is_appended() {
         &log,
         &["--demo", "--fast", "--duration", "2s", "--every", "2s"],
     );
-    assert!(
-        got.status.success(),
-        "{}",
-        String::from_utf8_lossy(&got.stderr)
-    );
+    succeeded(&got);
     let after = std::fs::read_to_string(&log).unwrap();
     let cut_line = after
         .lines()
@@ -281,11 +267,7 @@ fn a_row_cut_part_way_stays_on_its_own_line_when_a_run_is_appended() {
     assert!(next.starts_with("\n# resumed "), "set apart: {after}");
     let mut command = bin();
     let report = output(command.args(["report", log.to_str().unwrap()]));
-    assert!(
-        report.status.success(),
-        "{}",
-        String::from_utf8_lossy(&report.stderr)
-    );
+    succeeded(&report);
 }
 
 #[test]
@@ -303,7 +285,7 @@ fn a_second_recorder_on_the_same_file_is_refused() {
             log.to_str().unwrap(),
         ])
         .stderr(Stdio::null());
-    let first = spawn(&mut command);
+    let first = KillOnDrop::new(spawn(&mut command));
     wait_for(Duration::from_secs(20), "the first recorder's rows", || {
         row_count(&log) >= 2
     });
@@ -323,14 +305,14 @@ fn a_second_recorder_on_the_same_file_is_refused() {
         "--force does not take a log in use either"
     );
     signal(&first, "INT");
-    assert!(wait(first, Duration::from_secs(10)).success());
+    assert!(wait(first.release(), Duration::from_secs(10)).success());
     let (_, rows) = rows(&log);
     assert!(rows.len() >= 2, "the first recorder's rows are all there");
 }
 
 /// Starts a real-time recording into `log` (its messages into `err`) and waits for its
 /// first rows.
-fn recording(log: &std::path::Path, err: &std::path::Path) -> std::process::Child {
+fn recording(log: &std::path::Path, err: &std::path::Path) -> KillOnDrop {
     let mut command = bin();
     command
         .args([
@@ -342,16 +324,16 @@ fn recording(log: &std::path::Path, err: &std::path::Path) -> std::process::Chil
             log.to_str().unwrap(),
         ])
         .stderr(std::fs::File::create(err).unwrap());
-    let child = spawn(&mut command);
+    let child = KillOnDrop::new(spawn(&mut command));
     wait_for(Duration::from_secs(20), "the recorder's rows", || {
         row_count(log) >= 2
     });
     child
 }
 
-fn ended_with(child: std::process::Child, err: &std::path::Path, code: i32, words: &str) {
+fn ended_with(child: KillOnDrop, err: &std::path::Path, code: i32, words: &str) {
     // A sync, and with it the check, comes every 2 s.
-    let status = wait(child, Duration::from_secs(20));
+    let status = wait(child.release(), Duration::from_secs(20));
     let said = std::fs::read_to_string(err).unwrap();
     assert_eq!(status.code(), Some(code), "{said}");
     assert!(said.contains(words), "says {words:?}: {said}");

@@ -195,7 +195,7 @@ pub fn row_count(path: &Path) -> usize {
 }
 
 /// Sends `signal` (a name such as INT) to a child.
-pub fn signal(child: &Child, signal: &str) {
+pub fn signal(child: &KillOnDrop, signal: &str) {
     let sent = Command::new("kill")
         .args([format!("-{signal}"), child.id().to_string()])
         .status()
