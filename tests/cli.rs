@@ -508,3 +508,46 @@ fn a_record_with_a_bad_profile_or_capture_leaves_no_output_file() {
     }
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+// Source: the rule in docs/reliability.md (bad input exits 2 with a message saying what
+// is wrong; nothing grows without bound on user input): /dev/zero never ends, so a points
+// file that is a device is refused before it is read, and one past its limit at the limit.
+#[test]
+fn a_device_or_a_huge_file_as_points_is_refused_without_reading_it_all() {
+    let fit = |points: &str| {
+        dbtrail(&[
+            "fit",
+            points,
+            "--model",
+            "log",
+            "--adc-bits",
+            "12",
+            "--vref",
+            "4.095",
+            "--freq",
+            "10MHz",
+            "--out",
+            "never.toml",
+        ])
+    };
+    let out = fit("/dev/zero");
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out).contains("not a regular file"),
+        "{}",
+        stderr(&out)
+    );
+    let dir = std::env::temp_dir().join(format!("dbtrail-cli-{}-huge-points", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let huge = dir.join("huge.csv");
+    let row = "-10dBm,1000\n";
+    std::fs::write(
+        &huge,
+        format!("applied,counts\n{}", row.repeat((17 << 20) / row.len())),
+    )
+    .unwrap();
+    let out = fit(huge.to_str().unwrap());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("over 16 MiB"), "{}", stderr(&out));
+    assert!(!std::path::Path::new("never.toml").exists());
+}

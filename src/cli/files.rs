@@ -170,3 +170,33 @@ fn lock(file: &File, path: &Path) -> Result<(), Failure> {
         }
     }
 }
+
+/// Reads a small input file whole, at most `limit` bytes: a FIFO or a device (which may
+/// never end, as /dev/zero) is refused before it is read, a longer file at the limit.
+pub fn read_bounded(path: &Path, limit: u64, what: &str) -> Result<Vec<u8>, Failure> {
+    use std::io::Read as _;
+    let name = path.display();
+    let meta = std::fs::metadata(path)
+        .with_context(|| format!("cannot read {what} {name}; check the path"))
+        .bad_input()?;
+    if !meta.is_file() {
+        return Err(anyhow!(
+            "{what} {name} is not a regular file (a FIFO, a device or a folder); give the \
+             path of a file"
+        ))
+        .bad_input();
+    }
+    let mut bytes = Vec::new();
+    File::open(path)
+        .and_then(|file| file.take(limit + 1).read_to_end(&mut bytes))
+        .with_context(|| format!("cannot read {what} {name}"))
+        .bad_input()?;
+    if bytes.len() as u64 > limit {
+        return Err(anyhow!(
+            "{what} {name} is over {} MiB, more than it could ever need; give the right file",
+            limit >> 20
+        ))
+        .bad_input();
+    }
+    Ok(bytes)
+}

@@ -58,11 +58,13 @@ pub struct Args {
     force: bool,
 }
 
+/// The largest points file read: far more than the most points a profile holds, written
+/// out with every column a points file may have.
+const POINTS_MAX_BYTES: u64 = 16 << 20;
+
 pub fn run(args: Args) -> Result<(), Failure> {
     let origin = args.points.display().to_string();
-    let bytes = std::fs::read(&args.points)
-        .with_context(|| format!("cannot read points file {origin}; check the path"))
-        .bad_input()?;
+    let bytes = super::files::read_bounded(&args.points, POINTS_MAX_BYTES, "points file")?;
     let rows = read_points(&bytes, &origin).bad_input()?;
     if rows.len() > MAX_PROFILE_POINTS {
         return Err(anyhow!("{origin}: {}", too_many_points(rows.len()))).bad_input();
