@@ -953,3 +953,45 @@ fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
     let mean = value["mean_dbm"].as_f64().unwrap();
     assert!(mean > 25.5 && mean <= 30.2, "{mean}");
 }
+
+// Source: the rule in docs/recording.md: a clipped sample of a per-sample log shows its
+// bound, flagged `at-least`, where before its `dbm` cell was left empty.
+#[test]
+fn a_clipped_sample_of_a_per_sample_log_shows_its_bound() {
+    let dir = scratch("overload-samples");
+    let log = dir.join("samples.csv");
+    let out = dbtrail(&[
+        "record",
+        "--demo",
+        "overload",
+        "--every",
+        "0",
+        "--fast",
+        "--duration",
+        "21s",
+        "--force",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&log).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    assert_eq!(
+        header,
+        ["time_s", "counts", "volts", "dbm", "flags", "bound"]
+    );
+    let clipped: Vec<Vec<&str>> = lines
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|cells| cells[4].split('|').any(|f| f == "clip"))
+        .collect();
+    assert!(!clipped.is_empty(), "the burst clips");
+    for cells in &clipped {
+        assert_eq!(cells[5], "at-least", "{cells:?}");
+        assert!(cells[3].parse::<f64>().is_ok(), "{cells:?}");
+    }
+}
