@@ -364,6 +364,35 @@ fn check_shows_readings_and_end_points_stay_inside_their_span() {
     assert!(line("4090").contains("clip"), "{}", line("4090"));
 }
 
+// Source: profiles/demo-diode.toml — `detector_max_dbm = 18` and a +2.6 dB correction at
+// 440 MHz; docs/calibration.md ("Limits"): the limit is on the true detector input, the
+// shown detector dBm (the curve's, 17.900 by dbtrail's diode model) plus the correction:
+// 17.9 + 2.6 = 20.5 dBm, over 18 (worked by hand).
+#[test]
+fn check_flags_the_detector_limit_after_the_frequency_correction() {
+    let dir = scratch("detector-limit");
+    let profile = dir.join("rated-high.toml");
+    let text = std::fs::read_to_string("profiles/demo-diode.toml").unwrap();
+    let text = text.replacen("reference_max_dbm = 37", "reference_max_dbm = 60", 1);
+    std::fs::write(&profile, text).unwrap();
+    let out = dbtrail(&[
+        "check",
+        profile.to_str().unwrap(),
+        "--freq",
+        "440MHz",
+        "--counts",
+        "4000",
+    ]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = stdout(&out);
+    let line = text
+        .lines()
+        .find(|l| l.trim_start().starts_with("4000"))
+        .unwrap();
+    assert!(line.contains("17.900"), "{line}");
+    assert!(line.contains("[above|over-detector-max]"), "{line}");
+}
+
 #[test]
 fn a_missing_profile_is_named_once_with_the_os_reason() {
     let out = dbtrail(&["check", "no/such/profile.toml"]);
