@@ -55,6 +55,32 @@ fn convert_text_at_75_ohms() {
     );
 }
 
+// Source: docs/calibration.md, "Calibrating a peak detector by DC injection": DC reads RF
+// low by 0.4 to 4.7 dB with the demo's diode, so a Vpk equal to the DC is only the ideal;
+// the rule is that the label says so and names the section that gives the bias.
+#[test]
+fn convert_calls_the_dc_for_injection_ideal_and_points_to_its_bias() {
+    const SECTION: &str = "Calibrating a peak detector by DC injection";
+    let out = dbtrail(&["convert", "-10dBm"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = stdout(&out);
+    let vpk = text.lines().find(|l| l.contains("Vpk")).unwrap();
+    assert!(
+        vpk.contains("100.0 mV") && vpk.contains("ideal DC"),
+        "{vpk}"
+    );
+    assert!(
+        vpk.contains(SECTION) && vpk.contains("docs/calibration.md"),
+        "{vpk}"
+    );
+    assert!(!vpk.contains("= the DC"), "{vpk}");
+    let doc = std::fs::read_to_string("docs/calibration.md").unwrap();
+    assert!(
+        doc.contains(&format!("\n## {SECTION}\n")),
+        "no such section"
+    );
+}
+
 #[test]
 fn convert_refuses_bad_quantities_with_exit_2_and_the_accepted_list() {
     for bad in ["0W", "-3mW", "-1Vpk", "NaN dBm", "12 parsecs", "1MW"] {
