@@ -371,6 +371,13 @@ impl Calibration {
         self.fixed_flags
     }
 
+    /// The true level at the detector input for what the curve indicates: the curve was
+    /// taken at the reference frequency, and the frequency correction (true minus
+    /// indicated) makes it the level actually there, the one the safe input limits.
+    fn detector_input_dbm(&self, indicated_dbm: f64) -> f64 {
+        indicated_dbm + self.correction_db
+    }
+
     /// Reference-plane dBm for a detector-input dBm.
     pub fn to_reference(&self, detector_dbm: f64) -> f64 {
         detector_dbm + self.correction_db + self.offset_db
@@ -427,7 +434,7 @@ impl Calibration {
         if self
             .limits
             .detector_max_dbm
-            .is_some_and(|max| detector_dbm > max)
+            .is_some_and(|max| self.detector_input_dbm(detector_dbm) > max)
         {
             flags |= Flags::OVER_DETECTOR_MAX;
         }

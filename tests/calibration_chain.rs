@@ -287,3 +287,40 @@ fn readings_outside_the_span_are_flagged_even_where_the_model_misses_its_end_poi
         );
     }
 }
+
+/// The shipped demo diode with its attenuator rating raised out of the way, so that only
+/// the detector's own limit can flag a reading.
+fn demo_diode_rated_high() -> Profile {
+    let text = include_str!("../profiles/demo-diode.toml").replacen(
+        "reference_max_dbm = 37",
+        "reference_max_dbm = 60",
+        1,
+    );
+    parse_profile(&text, "demo-diode.toml").unwrap_or_else(|e| panic!("{e}"))
+}
+
+// Source: profiles/demo-diode.toml — the correction row at 440 MHz is +2.6 dB (true minus
+// indicated) and `detector_max_dbm = 18`; by docs/calibration.md ("Limits", "Sign
+// conventions") the limit is on the true detector input, indicated + correction. 4000
+// counts indicates just under 18 dBm (dbtrail's own diode model, asserted first), so the
+// true input is over 17.8 + 2.6 > 18 at 440 MHz, while at 10 MHz (correction 0) it is
+// under the limit.
+#[test]
+fn the_detector_limit_applies_after_the_frequency_correction() {
+    let profile = demo_diode_rated_high();
+    let at_440 = Calibration::new(&profile, Some(440e6), 0.0);
+    assert_eq!(at_440.correction_db(), 2.6);
+    let r = at_440.reading(4000.0);
+    assert!(
+        r.detector_dbm > 17.8 && r.detector_dbm < 18.0,
+        "{}",
+        r.detector_dbm
+    );
+    assert_eq!(r.flags, Flags::ABOVE_SPAN | Flags::OVER_DETECTOR_MAX);
+    // The per-code table of the fast statistics path agrees with the exact reading.
+    assert_eq!(at_440.code_entry(4000).unwrap().flags, r.flags);
+    let at_10 = Calibration::new(&profile, Some(10e6), 0.0);
+    assert_eq!(at_10.correction_db(), 0.0);
+    assert_eq!(at_10.reading(4000.0).flags, Flags::ABOVE_SPAN);
+    assert_eq!(at_10.code_entry(4000).unwrap().flags, Flags::ABOVE_SPAN);
+}

@@ -57,11 +57,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
             "vpk" => "Vpk ",
             _ => "Vpp ",
         };
-        let note = if key == "vpk" {
-            "   (= the DC to inject when calibrating a peak detector)"
-        } else {
-            ""
-        };
+        let note = if key == "vpk" { DC_INJECTION_NOTE } else { "" };
         text.push_str(&format!(
             "  {label}  {:>12}{note}\n",
             Si::new(volts, "V").to_string()
@@ -69,3 +65,8 @@ pub fn run(args: Args) -> Result<(), Failure> {
     }
     emit(&text)
 }
+
+/// The Vpk line's note: the DC equal to the peak is only the ideal, since with DC the
+/// diode conducts all the time and reads differently from RF; the docs give the bias.
+const DC_INJECTION_NOTE: &str = "   (ideal DC to inject into a peak detector; for its bias see \
+     \"Calibrating a peak detector by DC injection\" in docs/calibration.md)";

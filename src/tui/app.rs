@@ -13,6 +13,8 @@ use dbtrail::record::Event;
 use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend};
 use dbtrail::units::{parse_db, parse_frequency};
 
+use super::noise::ReadingSpread;
+
 /// Everything that can happen to the screen.
 #[derive(Debug, Clone)]
 pub enum AppEvent {
@@ -189,8 +191,11 @@ pub struct App {
     pub holds: PowerStats,
     /// When the holds were reset, source seconds.
     pub holds_since: f64,
-    /// The best shown level since the reset, dBm (the peaking aid).
+    /// The best shown level since the reset, dBm (the peaking aid): taken only from a
+    /// full averaging window, never from the few readings of one just started.
     pub best_dbm: Option<f64>,
+    /// The single readings of the averaging window, for the noise shown beside the best.
+    pub spread: ReadingSpread,
     /// Flags of the warnings now up, and when each was last raised.
     pub warnings: Vec<(Flags, f64)>,
     /// When the link counters last showed refused input (bad or over-long lines, CRC
@@ -237,6 +242,7 @@ impl App {
             holds: PowerStats::default(),
             holds_since: 0.0,
             best_dbm: None,
+            spread: ReadingSpread::new(Averaging::Samples(16)),
             warnings: Vec::new(),
             rejected_at: None,
             logging: None,
@@ -362,8 +368,10 @@ impl App {
         {
             // The level has left what the average can describe; start it afresh.
             self.averager.clear();
+            self.spread.clear();
         } else if !reading.flags.contains(Flags::OVER_FULL_SCALE) {
             self.averager.push(t, &reading);
+            self.spread.push(t, reading.dbm);
         }
         self.holds.add(&reading);
         for trend in &mut self.trends {
@@ -375,7 +383,11 @@ impl App {
         self.now = self.now.max(now);
         if let Shown::Level(dbm) = self.live_shown() {
             self.settle.push(self.now, dbm);
-            self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+            // A window just started holds a few readings whose noise is barely averaged:
+            // their maximum would stand well above the level.
+            if self.averager.is_full(self.now) {
+                self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+            }
         }
         let (t0, n0) = self.rate_mark;
         if self.now - t0 >= 1.0 {
@@ -501,6 +513,7 @@ impl App {
             Ask::Averaging => {
                 let mode = Averaging::parse(text).map_err(|e| e.to_string())?;
                 self.averager = Averager::new(mode);
+                self.spread = ReadingSpread::new(mode);
                 self.settle.clear();
                 Ok(Vec::new())
             }
@@ -524,6 +537,7 @@ impl App {
         self.averager.shift_db(shift);
         self.settle.shift_db(shift);
         self.holds.shift_db(shift);
+        self.spread.shift_db(shift);
         for trend in &mut self.trends {
             trend.shift_db(shift);
         }

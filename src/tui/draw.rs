@@ -306,8 +306,12 @@ fn peak_line(app: &App) -> String {
         Some(_) => "steady".into(),
         None => "…".into(),
     };
+    let noise = app
+        .spread
+        .std_db()
+        .map_or("σ …".into(), |sd| format!("σ {sd:.2} dB"));
     format!(
-        "  peak   best {best:+.2} dBm   now {:.2} dB below it   {direction}",
+        "  peak   best {best:+.2} dBm ({noise})   now {:.2} dB below it   {direction}",
         best - now
     )
 }

@@ -6,6 +6,7 @@ pub mod app;
 pub mod calibrate;
 pub mod digits;
 pub mod draw;
+pub mod noise;
 #[cfg(test)]
 mod tests;
 
