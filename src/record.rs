@@ -9,7 +9,7 @@ use std::time::{Duration, SystemTime};
 use crate::calibration::{Calibration, Flags};
 use crate::decode::{FlatCounts, FrameSink};
 use crate::printable::escape_controls;
-use crate::stats::PowerStats;
+use crate::stats::{PowerStats, NOT_A_VALUE};
 use crate::units::format_frequency;
 
 /// A run of samples from one source, evenly spaced in time from `t0` (all at `t0` when
@@ -419,17 +419,15 @@ impl<W: Write> Recorder<W> {
         let channels = self.channel_count();
         for &code in counts.iter().take(channels) {
             let r = self.cal.reading_code(code);
-            // One reading's statistics: its level, or its bound, and which it is.
-            let mut one = PowerStats::default();
-            one.add_within(&r, self.cal.span_dbm().1);
+            let value = !r.flags.intersects(NOT_A_VALUE);
             row.push(format!("{}", r.counts));
             row.push(format!("{:.6}", r.volts));
-            row.push(
-                one.mean_dbm()
-                    .map_or(String::new(), |dbm| format!("{dbm:.4}")),
-            );
+            row.push(if value {
+                format!("{:.4}", r.dbm)
+            } else {
+                String::new()
+            });
             row.push(r.flags.joined());
-            row.push(one.bound().cell().to_string());
         }
         self.write_row(row)
     }
@@ -446,13 +444,7 @@ impl<W: Write> Recorder<W> {
         let channels = self.channel_count();
         let mut row = vec![seconds(t)];
         for _ in 0..channels {
-            row.extend([
-                String::new(),
-                String::new(),
-                String::new(),
-                cell.clone(),
-                String::new(),
-            ]);
+            row.extend([String::new(), String::new(), String::new(), cell.clone()]);
         }
         self.write_row(row)
     }
@@ -499,8 +491,6 @@ impl<W: Write> Recorder<W> {
             row.push(number(stats.extremes().map(|e| e.1)));
             row.push(stats.mean_w().map_or(String::new(), |w| format!("{w:.6e}")));
             row.push(flags_cell(row_flags, rejected));
-            row.push(stats.bound().cell().to_string());
-            row.push(stats.averaged().to_string());
         }
         self.write_row(row)
     }
@@ -519,9 +509,11 @@ impl<W: Write> Recorder<W> {
 
     fn column_names(&self) -> Vec<String> {
         let per_channel: &[&str] = if self.every > 0.0 {
-            &PER_INTERVAL_COLUMNS
+            &[
+                "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
+            ]
         } else {
-            &PER_SAMPLE_COLUMNS
+            &["counts", "volts", "dbm", "flags"]
         };
         let mut names = vec!["time_s".to_string()];
         if self.every > 0.0 {
@@ -538,13 +530,6 @@ impl<W: Write> Recorder<W> {
         names
     }
 }
-
-/// The columns of each channel in a log of one row per sample.
-pub const PER_SAMPLE_COLUMNS: [&str; 5] = ["counts", "volts", "dbm", "flags", "bound"];
-/// The columns of each channel in a log of one row per interval.
-pub const PER_INTERVAL_COLUMNS: [&str; 8] = [
-    "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags", "bound", "averaged",
-];
 
 /// The calendar time `t` seconds after `started`; empty past what the clock can hold, so
 /// an absurd stamp costs its cell, never the rows after it.
@@ -687,7 +672,7 @@ mod tests {
         r.handle(&Event::Rejected { t: 0.2, count: 1 }).unwrap();
         r.finish(0.3).unwrap();
         let rows = data_rows(r);
-        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected", ""]);
+        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected"]);
     }
 
     #[test]

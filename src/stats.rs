@@ -10,79 +10,10 @@ use std::collections::VecDeque;
 use crate::calibration::{Calibration, CodeEntry, Flags, Reading};
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
-/// Readings with these flags are not values: the calibration's table and the screen's
-/// average leave them out. Interval statistics count clipped and below-span readings at
-/// their bound instead (see [`Bound`]).
+/// Readings with these flags are bounds, not values, and are left out of means and extremes.
 pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
     .union(Flags::ADC_CLIP)
     .union(Flags::OVER_FULL_SCALE);
-
-/// What the mean, minimum and maximum of a set of readings are: values, or bounds on the
-/// true figures because some readings were counted at a bound of what can be measured.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Bound {
-    /// Every reading counted was a value.
-    Exact,
-    /// Clipped or above-span readings were counted at the clip level or the span's top:
-    /// the true figure is at least the one shown.
-    AtLeast,
-    /// Below-span readings were counted at the span's bottom: the true figure is at most
-    /// the one shown.
-    AtMost,
-    /// Bounds both ways, or readings of which none had a level: no figure can be given.
-    Unknown,
-}
-
-impl Bound {
-    /// The log's `bound` cell: empty for a value.
-    pub fn cell(self) -> &'static str {
-        match self {
-            Bound::Exact => "",
-            Bound::AtLeast => "at-least",
-            Bound::AtMost => "at-most",
-            Bound::Unknown => "none",
-        }
-    }
-
-    /// Reads a `bound` cell back; None for text that is not one.
-    pub fn from_cell(text: &str) -> Option<Bound> {
-        [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown]
-            .into_iter()
-            .find(|b| b.cell() == text.trim())
-    }
-
-    /// The bound of figures made of readings with bounds `self` and `other`.
-    pub fn join(self, other: Bound) -> Bound {
-        match (self, other) {
-            (Bound::Exact, b) | (b, Bound::Exact) => b,
-            (a, b) if a == b => a,
-            _ => Bound::Unknown,
-        }
-    }
-}
-
-/// How one reading counts in interval statistics.
-enum Counted {
-    Value(f64),
-    AtLeast(f64),
-    AtMost(f64),
-    /// No level at all (over the ADC's full scale, NaN): left out.
-    Nothing,
-}
-
-/// A reading's part in the mean: below span at its level (the span's bottom), clipped or
-/// above span at its level but no higher than the span's top `span_top_dbm`.
-fn counted(flags: Flags, dbm: f64, span_top_dbm: f64) -> Counted {
-    if flags.contains(Flags::OVER_FULL_SCALE) || dbm.is_nan() {
-        Counted::Nothing
-    } else if flags.contains(Flags::BELOW_SPAN) {
-        Counted::AtMost(dbm)
-    } else if flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
-        Counted::AtLeast(dbm.min(span_top_dbm))
-    } else {
-        Counted::Value(dbm)
-    }
-}
 
 /// What `add_codes` keeps in registers over a run of table look-ups (the sums apart).
 struct TableRun {
@@ -91,21 +22,16 @@ struct TableRun {
     lo: f64,
     hi: f64,
     flags: Flags,
-    /// Readings counted at a bound, kept apart from the values.
-    bounds: PowerStats,
-    span_top_dbm: f64,
 }
 
-impl TableRun {
-    fn new(stats: &PowerStats, cal: &Calibration) -> Self {
+impl From<&PowerStats> for TableRun {
+    fn from(stats: &PowerStats) -> Self {
         TableRun {
             taken: 0,
             valid: 0,
             lo: stats.min_dbm,
             hi: stats.max_dbm,
             flags: Flags::empty(),
-            bounds: PowerStats::default(),
-            span_top_dbm: cal.span_dbm().1,
         }
     }
 }
@@ -147,18 +73,14 @@ impl TableRun {
         let Some((lowest, highest)) = runs.extreme_codes(lo, hi) else {
             return false;
         };
-        let table = cal.code_table();
-        let (low, high) = (&table[lowest as usize], &table[highest as usize]);
-        // Above-span codes are counted at the span's top, not at their table watts.
-        if low.flags.contains(Flags::ABOVE_SPAN) {
-            return false;
-        }
         // Every code of the block is at most `hi`, inside the table: the mask only
         // spares the loop its bounds checks.
         let watts = &*runs.watts;
         sum_by_fours(block, sums, |code, sum| {
             *sum += watts[code as usize & 0xFFFF]
         });
+        let table = cal.code_table();
+        let (low, high) = (&table[lowest as usize], &table[highest as usize]);
         self.taken += block.len() as u64;
         self.valid += block.len() as u64;
         self.flags |= low.flags;
@@ -168,25 +90,11 @@ impl TableRun {
 
     #[inline(always)]
     fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
-        if entry.valid == 0 || entry.flags.contains(Flags::ABOVE_SPAN) {
-            self.take_bound(entry);
-            return;
-        }
         self.taken += 1;
         self.flags |= entry.flags;
         self.valid += u64::from(entry.valid);
         *sum_w += entry.watts;
         self.widen(entry.dbm + entry.exclude, entry.dbm - entry.exclude);
-    }
-
-    /// A code that is not a plain value, out of the hot loop: counted at its bound.
-    #[cold]
-    #[inline(never)]
-    fn take_bound(&mut self, entry: &CodeEntry) {
-        self.bounds.add_counted(
-            entry.flags,
-            counted(entry.flags, entry.dbm, self.span_top_dbm),
-        );
     }
 
     /// Plain comparisons (one instruction each): a NaN key, as −∞ + ∞ for a bound at zero
@@ -207,17 +115,13 @@ impl TableRun {
 pub struct PowerStats {
     /// Readings seen, valid or not.
     pub samples: u64,
-    /// Readings that are values (in the span, not clipped).
+    /// Readings that are values (not below span, not clipped).
     pub valid: u64,
-    /// Clipped or above-span readings, counted at the clip level or the span's top.
-    pub at_least: u64,
-    /// Below-span readings, counted at the span's bottom.
-    pub at_most: u64,
-    /// Sum in watts of the readings counted: the values and the bounds.
+    /// Sum of the valid readings in watts.
     pub sum_w: f64,
-    /// Lowest reading counted, dBm (+∞ when none).
+    /// Lowest valid reading, dBm (+∞ when none).
     pub min_dbm: f64,
-    /// Highest reading counted, dBm (−∞ when none).
+    /// Highest valid reading, dBm (−∞ when none).
     pub max_dbm: f64,
     /// Every flag any reading carried.
     pub flags: Flags,
@@ -228,8 +132,6 @@ impl Default for PowerStats {
         PowerStats {
             samples: 0,
             valid: 0,
-            at_least: 0,
-            at_most: 0,
             sum_w: 0.0,
             min_dbm: f64::INFINITY,
             max_dbm: f64::NEG_INFINITY,
@@ -239,42 +141,17 @@ impl Default for PowerStats {
 }
 
 impl PowerStats {
-    /// Adds one reading, an above-span one at its own (extrapolated) level: without a
-    /// calibration the span's top is not known (see `add_within`).
+    /// Adds one reading.
     pub fn add(&mut self, reading: &Reading) {
-        self.add_within(reading, f64::INFINITY);
-    }
-
-    /// Adds one reading of a calibration whose span tops out at `span_top_dbm`
-    /// (reference plane): a clipped or above-span reading counts no higher than that.
-    pub fn add_within(&mut self, reading: &Reading, span_top_dbm: f64) {
-        self.add_counted(
-            reading.flags,
-            counted(reading.flags, reading.dbm, span_top_dbm),
-        );
-    }
-
-    fn add_counted(&mut self, flags: Flags, counted: Counted) {
         self.samples += 1;
-        self.flags |= flags;
-        let dbm = match counted {
-            Counted::Nothing => return,
-            Counted::Value(dbm) => {
-                self.valid += 1;
-                dbm
-            }
-            Counted::AtLeast(dbm) => {
-                self.at_least += 1;
-                dbm
-            }
-            Counted::AtMost(dbm) => {
-                self.at_most += 1;
-                dbm
-            }
-        };
-        self.sum_w += dbm_to_watts(dbm);
-        self.min_dbm = self.min_dbm.min(dbm);
-        self.max_dbm = self.max_dbm.max(dbm);
+        self.flags |= reading.flags;
+        if reading.flags.intersects(NOT_A_VALUE) {
+            return;
+        }
+        self.valid += 1;
+        self.sum_w += dbm_to_watts(reading.dbm);
+        self.min_dbm = self.min_dbm.min(reading.dbm);
+        self.max_dbm = self.max_dbm.max(reading.dbm);
     }
 
     /// Adds one ADC code through the calibration's precomputed table, falling back to the
@@ -288,7 +165,7 @@ impl PowerStats {
     /// additions would hold the loop to an add's latency per sample.
     pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
         let table = cal.code_table();
-        let mut run = TableRun::new(self, cal);
+        let mut run = TableRun::from(&*self);
         let mut sums = [0.0; 4];
         // Codes that swing over the table rarely fall in one run: after a block that did
         // not, the next few go the long way without looking (the result is the same).
@@ -315,7 +192,6 @@ impl PowerStats {
         self.min_dbm = self.min_dbm.min(run.lo);
         self.max_dbm = self.max_dbm.max(run.hi);
         self.flags |= run.flags;
-        self.merge(&run.bounds);
     }
 
     /// The exact model for a code the table does not cover (above the ADC's full scale):
@@ -323,7 +199,7 @@ impl PowerStats {
     #[cold]
     #[inline(never)]
     fn add_untabled(&mut self, cal: &Calibration, code: u32) {
-        self.add_within(&cal.reading_code(code), cal.span_dbm().1);
+        self.add(&cal.reading_code(code));
     }
 
     /// Adds every `width`-th code of `counts` from `first` on: one channel of
@@ -350,39 +226,15 @@ impl PowerStats {
     pub fn merge(&mut self, other: &PowerStats) {
         self.samples += other.samples;
         self.valid += other.valid;
-        self.at_least += other.at_least;
-        self.at_most += other.at_most;
         self.sum_w += other.sum_w;
         self.min_dbm = self.min_dbm.min(other.min_dbm);
         self.max_dbm = self.max_dbm.max(other.max_dbm);
         self.flags |= other.flags;
     }
 
-    /// Whether the mean and extremes are values or bounds.
-    pub fn bound(&self) -> Bound {
-        match (self.at_least > 0, self.at_most > 0) {
-            (true, true) => Bound::Unknown,
-            _ if self.averaged() == 0 && self.samples > 0 => Bound::Unknown,
-            (true, false) => Bound::AtLeast,
-            (false, true) => Bound::AtMost,
-            (false, false) => Bound::Exact,
-        }
-    }
-
-    /// Readings that went into the mean: the values and those counted at a bound; 0 when
-    /// the bounds go both ways and there is no mean.
-    pub fn averaged(&self) -> u64 {
-        if self.at_least > 0 && self.at_most > 0 {
-            0
-        } else {
-            self.valid + self.at_least + self.at_most
-        }
-    }
-
-    /// Mean power in watts over the readings counted (see [`PowerStats::bound`]).
+    /// Mean power in watts over the valid readings.
     pub fn mean_w(&self) -> Option<f64> {
-        let n = self.averaged();
-        (n > 0).then(|| self.sum_w / n as f64)
+        (self.valid > 0).then(|| self.sum_w / self.valid as f64)
     }
 
     /// Mean power in dBm (of the mean in watts).
@@ -390,9 +242,9 @@ impl PowerStats {
         self.mean_w().map(watts_to_dbm)
     }
 
-    /// Lowest and highest reading counted, dBm.
+    /// Lowest and highest valid reading, dBm.
     pub fn extremes(&self) -> Option<(f64, f64)> {
-        (self.averaged() > 0).then_some((self.min_dbm, self.max_dbm))
+        (self.valid > 0).then_some((self.min_dbm, self.max_dbm))
     }
 
     /// Moves every level by `db` (the offset or frequency correction changed).
@@ -539,7 +391,7 @@ impl Averager {
             Held::Readings(last) => (last.watts.len() as u64, last.sum_w),
             Held::Buckets(buckets) => {
                 let all = buckets.total();
-                (all.averaged(), all.sum_w)
+                (all.valid, all.sum_w)
             }
         }
     }
@@ -781,76 +633,16 @@ mod tests {
         assert_eq!(s.extremes(), Some((0.0, 10.0)));
     }
 
-    /// Three readings at 0 dBm and `fourth`, as `add_within` counts them under a span
-    /// topping out at +6 dBm.
-    fn three_at_zero_and(fourth: Reading) -> PowerStats {
+    #[test]
+    fn bounds_are_flagged_but_not_averaged() {
         let mut s = PowerStats::default();
-        for _ in 0..3 {
-            s.add_within(&reading(0.0, Flags::empty()), 6.0);
-        }
-        s.add_within(&fourth, 6.0);
-        s
-    }
-
-    // Source: worked by hand (power-domain mean, common practice). Three readings of
-    // 0 dBm (1 mW each) and one clipped at +5 dBm, counted at its clip level (3.16228 mW):
-    // (3 + 3.16228) / 4 = 1.54057 mW = +1.8768 dBm, and the true mean is at least that.
-    // Above the span (+12 dBm extrapolated) it counts at the span's top, +6 dBm
-    // (3.98107 mW): (3 + 3.98107) / 4 = 1.74527 mW = +2.4186 dBm. Before bounds were
-    // counted, both gave a plain 0 dBm.
-    #[test]
-    fn clipped_and_above_span_readings_count_at_their_bound_and_make_the_mean_at_least() {
-        let clipped = three_at_zero_and(reading(5.0, Flags::ADC_CLIP));
-        assert!((clipped.mean_dbm().unwrap() - 1.876_812_716).abs() < 1e-8);
-        assert_eq!(clipped.bound(), Bound::AtLeast);
-        assert_eq!(clipped.extremes(), Some((0.0, 5.0)));
-        assert_eq!((clipped.samples, clipped.averaged()), (4, 4));
-        let above = three_at_zero_and(reading(12.0, Flags::ABOVE_SPAN));
-        assert!((above.mean_dbm().unwrap() - 2.418_621_075).abs() < 1e-8);
-        assert_eq!(above.bound(), Bound::AtLeast);
-        assert_eq!(above.extremes(), Some((0.0, 6.0)));
-        assert_eq!(above.bound().cell(), "at-least");
-    }
-
-    // Source: worked by hand. Three readings of 0 dBm and one below the span, read at the
-    // span's bottom, −10 dBm (0.1 mW): (3 + 0.1) / 4 = 0.775 mW = −1.10698 dBm, and the
-    // true mean is at most that. Before, the mean was a plain 0 dBm.
-    #[test]
-    fn below_span_readings_count_at_the_bottom_and_make_the_mean_at_most() {
-        let s = three_at_zero_and(reading(-10.0, Flags::BELOW_SPAN));
-        assert!((s.mean_dbm().unwrap() - -1.106_982_975).abs() < 1e-8);
-        assert_eq!(s.bound(), Bound::AtMost);
-        assert_eq!(s.bound().cell(), "at-most");
-        assert_eq!(s.extremes(), Some((-10.0, 0.0)));
-    }
-
-    // Source: the rule in docs/recording.md: bounds both ways, or no reading with a level,
-    // give no figure (`none`); readings with no level stay out of the mean.
-    #[test]
-    fn bounds_both_ways_or_no_level_give_no_figure() {
-        let mut both = three_at_zero_and(reading(-10.0, Flags::BELOW_SPAN));
-        both.add_within(&reading(5.0, Flags::ADC_CLIP), 6.0);
-        assert_eq!(both.bound(), Bound::Unknown);
-        assert_eq!(both.bound().cell(), "none");
-        assert_eq!((both.mean_dbm(), both.extremes()), (None, None));
-        let mut damaged = PowerStats::default();
-        damaged.add(&reading(f64::NAN, Flags::OVER_FULL_SCALE));
-        assert_eq!(damaged.bound(), Bound::Unknown);
-        assert_eq!(damaged.mean_dbm(), None);
-        let mixed = three_at_zero_and(reading(f64::NAN, Flags::OVER_FULL_SCALE));
-        assert_eq!(mixed.bound(), Bound::Exact);
-        assert_eq!((mixed.samples, mixed.averaged()), (4, 3));
-        assert!(mixed.mean_dbm().unwrap().abs() < 1e-12);
-        assert_eq!(
-            PowerStats::default().bound(),
-            Bound::Exact,
-            "a row of no samples"
-        );
-        assert_eq!(Bound::AtLeast.join(Bound::Exact), Bound::AtLeast);
-        assert_eq!(Bound::AtLeast.join(Bound::AtMost), Bound::Unknown);
-        for bound in [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown] {
-            assert_eq!(Bound::from_cell(bound.cell()), Some(bound));
-        }
+        s.add(&reading(-30.0, Flags::BELOW_SPAN));
+        assert_eq!(s.mean_dbm(), None);
+        s.add(&reading(3.0, Flags::ABOVE_SPAN));
+        assert_eq!(s.samples, 2);
+        assert_eq!(s.valid, 1);
+        assert!((s.mean_dbm().unwrap() - 3.0).abs() < 1e-12);
+        assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ABOVE_SPAN);
     }
 
     #[test]
