@@ -1,5 +1,7 @@
 //! The `dbtrail` binary as a user meets it: output, exit codes and messages.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -132,20 +134,10 @@ fn scratch(name: &str) -> PathBuf {
 }
 
 fn fit_args<'a>(points: &'a str, model: &'a str, out: &'a str) -> Vec<&'a str> {
-    vec![
-        "fit",
-        points,
-        "--model",
-        model,
-        "--adc-bits",
-        "12",
-        "--vref",
-        "4.095",
-        "--freq",
-        "10MHz",
-        "--out",
-        out,
-    ]
+    let mut args = vec!["fit", points, "--model", model];
+    args.extend(common::FIT_ADC_AND_FREQ);
+    args.extend(["--out", out]);
+    args
 }
 
 // Source: worked example — points on V = 0.025·(P + 80) with 1 mV per count must fit to a
@@ -569,22 +561,7 @@ fn a_record_with_a_bad_profile_or_capture_leaves_no_output_file() {
 // file that is a device is refused before it is read, and one past its limit at the limit.
 #[test]
 fn a_device_or_a_huge_file_as_points_is_refused_without_reading_it_all() {
-    let fit = |points: &str| {
-        dbtrail(&[
-            "fit",
-            points,
-            "--model",
-            "log",
-            "--adc-bits",
-            "12",
-            "--vref",
-            "4.095",
-            "--freq",
-            "10MHz",
-            "--out",
-            "never.toml",
-        ])
-    };
+    let fit = |points: &str| dbtrail(&fit_args(points, "log", "never.toml"));
     let out = fit("/dev/zero");
     assert_eq!(out.status.code(), Some(2));
     assert!(

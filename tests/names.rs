@@ -6,7 +6,7 @@ mod common;
 
 use std::path::{Path, PathBuf};
 
-use common::{bin, output, scratch};
+use common::{bin, output, scratch, FIT_ADC_AND_FREQ};
 
 /// A name with a line break and the terminal's clear-screen sequence, as TOML writes it,
 /// and as dbtrail must show it.
@@ -108,16 +108,8 @@ fn fit_refuses_a_name_with_control_characters() {
     ];
     for (name, out_path, says) in cases {
         let mut command = bin();
-        command.arg("fit").arg(&points).args([
-            "--model",
-            "log",
-            "--adc-bits",
-            "12",
-            "--vref",
-            "4.095",
-            "--freq",
-            "10MHz",
-        ]);
+        command.arg("fit").arg(&points).args(["--model", "log"]);
+        command.args(FIT_ADC_AND_FREQ);
         command.arg("--out").arg(out_path);
         if let Some(name) = name {
             command.args(["--name", name]);

@@ -86,7 +86,7 @@ fn fit_can_write_its_profile_to_dev_null() {
     std::fs::write(&points, csv).unwrap();
     let mut command = bin();
     command.args(["fit", points.to_str().unwrap(), "--model", "log"]);
-    command.args(["--adc-bits", "12", "--vref", "4.095", "--freq", "10MHz"]);
+    command.args(FIT_ADC_AND_FREQ);
     command.args(["--out", "/dev/null", "--force"]);
     let out = output(&mut command);
     succeeded(&out);
@@ -274,21 +274,7 @@ fn a_row_cut_part_way_stays_on_its_own_line_when_a_run_is_appended() {
 fn a_second_recorder_on_the_same_file_is_refused() {
     let dir = scratch("append-lock");
     let log = dir.join("locked.csv");
-    let mut command = bin();
-    command
-        .args([
-            "record",
-            "--demo",
-            "--every",
-            "100ms",
-            "--out",
-            log.to_str().unwrap(),
-        ])
-        .stderr(Stdio::null());
-    let first = KillOnDrop::new(spawn(&mut command));
-    wait_for(Duration::from_secs(20), "the first recorder's rows", || {
-        row_count(&log) >= 2
-    });
+    let first = recording(&log, &dir.join("first.txt"));
     let second = append(&log, &["--demo", "--fast", "--duration", "1s"]);
     let said = String::from_utf8_lossy(&second.stderr);
     assert_eq!(second.status.code(), Some(2), "{said}");

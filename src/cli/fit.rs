@@ -216,25 +216,7 @@ fn with_fitted_params(mut raw: RawProfile, profile: &Profile) -> RawProfile {
 
 /// Writes a new file, refusing to replace one unless `force`.
 fn write_new(path: &Path, text: &str, force: bool) -> Result<(), Failure> {
-    let mut options = std::fs::OpenOptions::new();
-    options.write(true);
-    if force {
-        options.create(true).truncate(true);
-    } else {
-        options.create_new(true);
-    }
-    let mut file = match options.open(path) {
-        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
-            return Err(anyhow!(
-                "{} already exists; choose another --out or add --force to overwrite it",
-                path.display()
-            ))
-            .bad_input();
-        }
-        other => other
-            .with_context(|| format!("cannot create {}", path.display()))
-            .runtime()?,
-    };
+    let mut file = super::files::create(path, force)?;
     file.write_all(text.as_bytes())
         .and_then(|()| super::files::sync(&file))
         .with_context(|| format!("cannot write {}", path.display()))

@@ -221,6 +221,9 @@ fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
                 path.display()
             )
         })?;
+    // The same advisory lock as `record` takes, so a recorder is refused this file too.
+    file.try_lock()
+        .with_context(|| format!("cannot lock {}", path.display()))?;
     let context = RunContext {
         tool: session.tool.clone(),
         profile: app.profile.name.clone(),
