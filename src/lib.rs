@@ -13,6 +13,7 @@
 //! - [`link`]: link-health counters shared with reader threads;
 //! - [`record`]: CSV recording of readings, per interval or per sample;
 //! - [`capture`]: the calibration procedure: settle, average, fit, save a profile;
+//! - [`uncertainty`]: the uncertainty budget of a reading or a mean (GUM, k = 2);
 //! - [`report`]: the soak report: drift, settling, gaps, and decimation for plots;
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
 //! - [`points`]: the calibration points CSV that `fit` reads;
@@ -40,4 +41,5 @@ pub mod resume;
 pub mod sim;
 pub mod special;
 pub mod stats;
+pub mod uncertainty;
 pub mod units;

@@ -145,6 +145,12 @@ pub trait Detector: fmt::Debug + Send + Sync {
     fn volts_at(&self, dbm: f64) -> f64;
     /// The calibrated span of input levels, (lowest, highest) dBm.
     fn span_dbm(&self) -> (f64, f64);
+    /// The standard uncertainty of the model itself at a detector-input level, dB: how
+    /// far the curve may be from the detector's true one there (from the fit's residuals
+    /// and its parameters' covariance). None when the model cannot say.
+    fn model_u_db(&self, _detector_dbm: f64) -> Option<f64> {
+        None
+    }
 }
 
 /// Each point's error in dB: the model's dBm for the point's volts minus the applied dBm.

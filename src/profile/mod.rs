@@ -164,6 +164,8 @@ pub struct Profile {
     pub offset: Offset,
     /// Safe levels.
     pub limits: Limits,
+    /// The inputs of the uncertainty budget (the `[uncertainty]` table).
+    pub uncertainty: crate::uncertainty::Inputs,
     /// The fields as written.
     pub raw: RawProfile,
 }

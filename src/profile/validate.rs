@@ -199,6 +199,7 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
                 frequency_correction,
                 offset,
                 limits,
+                uncertainty: crate::uncertainty::Inputs::default(),
                 raw,
             })
         }
