@@ -11,9 +11,10 @@ use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::Profile;
 use dbtrail::record::Event;
 use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend};
+use dbtrail::uncertainty::{Budget, Uncertainty};
 use dbtrail::units::{parse_db, parse_frequency};
 
-use super::noise::ReadingSpread;
+use super::noise::{CountWindow, ReadingSpread};
 
 /// Everything that can happen to the screen.
 #[derive(Debug, Clone)]
@@ -106,6 +107,32 @@ pub enum Shown {
     Clipped(f64),
 }
 
+/// The ± beside the main reading, or why there is none.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Plusminus {
+    /// No reading yet.
+    Waiting,
+    /// The reading is a bound (below the span, at ADC clip): a bound has no uncertainty.
+    Bound,
+    /// The averaging window holds readings above the calibrated span, where the model is
+    /// read beyond its points: not a value with a budget.
+    AboveSpan,
+    /// Counts over the ADC's full scale came within the warnings' hold time: the samples
+    /// around them are not to be trusted.
+    OverFullScale,
+    /// The budget at the shown level, with the noise of the averaging window.
+    Budget(Budget),
+}
+
+/// The shown value held by the freeze key, with its ±.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Frozen {
+    /// The reading.
+    pub shown: Shown,
+    /// Its ± when it was frozen.
+    pub plusminus: Plusminus,
+}
+
 /// What the input line is asking for.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Ask {
@@ -155,6 +182,8 @@ pub struct App {
     pub profile: Arc<Profile>,
     /// The calibration for the current frequency and offset.
     pub cal: Calibration,
+    /// The uncertainty budget for the same frequency and offset, rebuilt with `cal`.
+    pub uncertainty: Uncertainty,
     /// Offset added to the profile's, dB.
     pub extra_offset_db: f64,
     /// What the samples come from.
@@ -170,7 +199,7 @@ pub struct App {
     /// Which of [`TREND_WINDOWS`] is shown.
     pub trend_window: usize,
     /// The shown value held by the freeze key.
-    pub frozen: Option<Shown>,
+    pub frozen: Option<Frozen>,
     /// Link counters as last reported.
     pub link: LinkSnapshot,
     /// Samples per second, measured.
@@ -196,6 +225,8 @@ pub struct App {
     pub best_dbm: Option<f64>,
     /// The single readings of the averaging window, for the noise shown beside the best.
     pub spread: ReadingSpread,
+    /// The raw counts of the averaging window, for the noise term of the ±.
+    pub counts: CountWindow,
     /// Flags of the warnings now up, and when each was last raised.
     pub warnings: Vec<(Flags, f64)>,
     /// When the link counters last showed refused input (bad or over-long lines, CRC
@@ -221,6 +252,7 @@ impl App {
     ) -> Self {
         let cal = Calibration::new(&profile, freq_hz, extra_offset_db);
         App {
+            uncertainty: Uncertainty::new(&profile, &cal),
             profile,
             cal,
             extra_offset_db,
@@ -243,6 +275,7 @@ impl App {
             holds_since: 0.0,
             best_dbm: None,
             spread: ReadingSpread::new(Averaging::Samples(16)),
+            counts: CountWindow::new(Averaging::Samples(16)),
             warnings: Vec::new(),
             rejected_at: None,
             logging: None,
@@ -280,7 +313,30 @@ impl App {
 
     /// The level the main reading shows now (or the frozen one).
     pub fn shown(&self) -> Shown {
-        self.frozen.unwrap_or_else(|| self.live_shown())
+        self.frozen
+            .as_ref()
+            .map_or_else(|| self.live_shown(), |f| f.shown)
+    }
+
+    /// The ± of the main reading now (or the frozen one's).
+    pub fn plusminus(&self) -> Plusminus {
+        self.frozen
+            .as_ref()
+            .map_or_else(|| self.live_plusminus(), |f| f.plusminus.clone())
+    }
+
+    fn live_plusminus(&self) -> Plusminus {
+        match self.live_shown() {
+            Shown::Waiting => Plusminus::Waiting,
+            Shown::Below(_) | Shown::Clipped(_) => Plusminus::Bound,
+            Shown::Level(_) if self.active_warnings().contains(Flags::OVER_FULL_SCALE) => {
+                Plusminus::OverFullScale
+            }
+            Shown::Level(_) if self.counts.sums().above_span() > 0 => Plusminus::AboveSpan,
+            Shown::Level(dbm) => {
+                Plusminus::Budget(self.uncertainty.budget(dbm, self.counts.noise()))
+            }
+        }
     }
 
     fn live_shown(&self) -> Shown {
@@ -369,9 +425,12 @@ impl App {
             // The level has left what the average can describe; start it afresh.
             self.averager.clear();
             self.spread.clear();
+            self.counts.clear();
         } else if !reading.flags.contains(Flags::OVER_FULL_SCALE) {
             self.averager.push(t, &reading);
             self.spread.push(t, reading.dbm);
+            self.counts
+                .push(t, code, reading.flags.contains(Flags::ABOVE_SPAN));
         }
         self.holds.add(&reading);
         for trend in &mut self.trends {
@@ -447,7 +506,10 @@ impl App {
                 self.frozen = if self.frozen.is_some() {
                     None
                 } else {
-                    Some(self.live_shown())
+                    Some(Frozen {
+                        shown: self.live_shown(),
+                        plusminus: self.live_plusminus(),
+                    })
                 }
             }
             _ => {}
@@ -514,6 +576,7 @@ impl App {
                 let mode = Averaging::parse(text).map_err(|e| e.to_string())?;
                 self.averager = Averager::new(mode);
                 self.spread = ReadingSpread::new(mode);
+                self.counts = CountWindow::new(mode);
                 self.settle.clear();
                 Ok(Vec::new())
             }
@@ -532,6 +595,8 @@ impl App {
     fn recalibrate(&mut self, freq_hz: Option<f64>, extra_offset_db: f64) -> Vec<Command> {
         let before = self.cal.correction_db() + self.cal.offset_db();
         self.cal = Calibration::new(&self.profile, freq_hz, extra_offset_db);
+        // The budget's terms depend on the level at the detector and the frequency.
+        self.uncertainty = Uncertainty::new(&self.profile, &self.cal);
         self.extra_offset_db = extra_offset_db;
         let shift = self.cal.correction_db() + self.cal.offset_db() - before;
         self.averager.shift_db(shift);

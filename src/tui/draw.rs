@@ -8,9 +8,10 @@ use ratatui::widgets::{Block, Clear, Paragraph, Widget, Wrap};
 use ratatui::Frame;
 
 use dbtrail::calibration::Flags;
+use dbtrail::uncertainty::{TermKind, COVERAGE_K};
 use dbtrail::units::{Power, Si, VoltageForm};
 
-use super::app::{App, Mode, Shown, Units, TREND_WINDOWS};
+use super::app::{App, Mode, Plusminus, Shown, Units, TREND_WINDOWS};
 use super::digits;
 
 /// The smallest screen that gets the large digits.
@@ -169,8 +170,137 @@ fn in_units(app: &App, dbm: f64, units: Units) -> (String, String) {
     }
 }
 
+/// A budget term's name on the screen.
+pub fn term_name(kind: TermKind) -> &'static str {
+    match kind {
+        TermKind::Quantisation => "quantisation",
+        TermKind::Noise => "noise",
+        TermKind::Model => "model",
+        TermKind::Source => "source",
+        TermKind::MismatchCalibration => "mismatch at calibration",
+        TermKind::MismatchUse => "mismatch in use",
+        TermKind::Offset => "offset",
+        TermKind::FrequencyInterpolation => "frequency interpolation",
+        TermKind::Temperature => "temperature",
+    }
+}
+
+/// An expanded uncertainty in dB as the screen shows it.
+pub fn plusminus_db(u_db: f64) -> String {
+    format!("±{u_db:.2} dB")
+}
+
+/// An expanded uncertainty in dB as a percentage of a power (`per_decade` 10) or a
+/// voltage (20): the wider of its two sides, 10^(U/per_decade) − 1, since +U dB is more
+/// per cent than −U dB.
+pub fn plusminus_percent(u_db: f64, per_decade: f64) -> String {
+    let percent = (10f64.powf(u_db / per_decade) - 1.0) * 100.0;
+    let digits = if percent < 1.0 {
+        2
+    } else if percent < 10.0 {
+        1
+    } else {
+        0
+    };
+    format!("±{percent:.digits$} %")
+}
+
+/// What the screen says about the main reading's uncertainty.
+#[derive(Debug, Default)]
+struct Beside {
+    /// The ± figure with its partial marker, or why there is none; empty while waiting.
+    figure: String,
+    /// What the figure is.
+    about: String,
+    /// The terms the budget left out.
+    left_out: Vec<&'static str>,
+}
+
+fn beside(app: &App) -> Beside {
+    let marker = |text: &str| Beside {
+        figure: text.into(),
+        ..Beside::default()
+    };
+    let budget = match app.plusminus() {
+        Plusminus::Waiting => return Beside::default(),
+        Plusminus::Bound => return marker("· a bound, no ±"),
+        Plusminus::AboveSpan => return marker("no ±: readings above the calibrated span"),
+        Plusminus::OverFullScale => return marker("no ±: counts over ADC full scale"),
+        Plusminus::Budget(budget) => budget,
+    };
+    let u_db = budget.expanded_db();
+    let coverage = format!("k = {COVERAGE_K}, about 95 %");
+    let (figure, about) = match app.units {
+        Units::Relative => return marker("no ± in dB relative (? says why)"),
+        Units::Dbm => (plusminus_db(u_db), coverage),
+        Units::Watts => (
+            plusminus_percent(u_db, 10.0),
+            format!("{}, {coverage}", plusminus_db(u_db)),
+        ),
+        Units::Vrms | Units::Vpk | Units::Vpp => (
+            plusminus_percent(u_db, 20.0),
+            format!("{}, {coverage}", plusminus_db(u_db)),
+        ),
+    };
+    let partial = if budget.missing.is_empty() {
+        ""
+    } else {
+        " (partial)"
+    };
+    Beside {
+        figure: format!("{figure}{partial}"),
+        about,
+        left_out: budget.missing.iter().map(|k| term_name(*k)).collect(),
+    }
+}
+
+/// `items` joined by spaces in lines of at most `width` characters, broken only between
+/// items, the lines after the first starting with `indent`.
+fn flow(items: &[String], indent: &str, width: usize) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    for item in items {
+        match lines.last_mut() {
+            Some(line) if line.chars().count() + 1 + item.chars().count() <= width => {
+                line.push(' ');
+                line.push_str(item);
+            }
+            Some(_) => lines.push(format!("{indent}{item}")),
+            None => lines.push(item.clone()),
+        }
+    }
+    lines
+}
+
+/// `head` and then `names`, comma-separated, `end` after the last, as items to flow.
+fn listed(head: &str, names: &[&str], end: &str) -> Vec<String> {
+    let mut items = vec![head.to_string()];
+    for (i, name) in names.iter().enumerate() {
+        let after = if i + 1 < names.len() { "," } else { end };
+        items.push(format!("{name}{after}"));
+    }
+    items
+}
+
+/// The left-out terms in lines that fit `width` and `rows`, or their count and a pointer
+/// to the help when they do not.
+fn left_out_lines(left_out: &[&str], width: usize, rows: usize) -> Vec<String> {
+    if left_out.is_empty() {
+        return Vec::new();
+    }
+    let lines = flow(&listed("not in the ±:", left_out, ""), "", width);
+    if lines.len() <= rows && lines.iter().all(|l| l.chars().count() <= width) {
+        lines
+    } else {
+        vec![format!(
+            "not in the ±: {} terms (? names them)",
+            left_out.len()
+        )]
+    }
+}
+
 fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
     let (number, unit) = main_text(app);
+    let beside = beside(app);
     let style = reading_style(app);
     let style = match app.shown() {
         Shown::Below(_) | Shown::Clipped(_) => style.patch(paint(app, Color::Yellow, None)),
@@ -184,7 +314,12 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         "  ○ settling"
     };
     if !full || number.is_empty() {
-        let text = format!(" {number} {unit}{frozen}");
+        let figure = if beside.figure.is_empty() {
+            String::new()
+        } else {
+            format!(" {}", beside.figure)
+        };
+        let text = format!(" {number} {unit}{figure}{frozen}");
         let row = Rect {
             y: area.y + area.height.saturating_sub(1) / 2,
             height: 1,
@@ -205,6 +340,33 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
     Paragraph::new(format!("{unit}{frozen}"))
         .style(style)
         .render(unit_row, buf);
+    let side = Rect {
+        y: area.y,
+        height: digits::HEIGHT - 1,
+        ..unit_row
+    };
+    beside_digits(app, &beside, side, buf);
+}
+
+/// The ± and what it is on the top row beside the large digits, and the terms left out
+/// on the rows under it.
+fn beside_digits(app: &App, beside: &Beside, area: Rect, buf: &mut Buffer) {
+    let rows = usize::from(area.height.saturating_sub(1));
+    let about = if beside.about.is_empty() {
+        String::new()
+    } else {
+        format!(" · {}", beside.about)
+    };
+    let mut lines = vec![Line::from(vec![
+        Span::styled(beside.figure.clone(), reading_style(app)),
+        Span::styled(about, paint(app, Color::Gray, None)),
+    ])];
+    lines.extend(
+        left_out_lines(&beside.left_out, usize::from(area.width), rows)
+            .into_iter()
+            .map(|l| Line::styled(l, paint(app, Color::Gray, None))),
+    );
+    Paragraph::new(lines).render(area, buf);
 }
 
 fn other_forms(app: &App) -> Line<'static> {
@@ -470,8 +632,8 @@ fn key_hints(width: usize) -> String {
     text
 }
 
-/// The keys, and the safety cautions in brief.
-pub const HELP: &[&str] = &[
+/// The keys.
+pub const HELP_KEYS: &[&str] = &[
     "f        set the frequency (e.g. 145.5MHz): applies its correction",
     "o        set an extra offset in dB (another attenuator, a coupler)",
     "a        averaging: off, a count (32) or a time (500ms, 2s), over watts",
@@ -482,16 +644,61 @@ pub const HELP: &[&str] = &[
     "space    freeze the reading (press again to go on)",
     "l        start or stop logging to a CSV file (as `record` writes)",
     "q, Esc   quit          any key closes this help",
-    "",
+];
+
+/// The safety cautions in brief.
+pub const SAFETY: &[&str] = &[
     "Safety: RF burns; keep clear of live antennas, feed lines and loads.",
     "Stay within the ratings of loads, attenuators and the detector.",
     "Transmit only as your licence and local regulations allow;",
     "local codes and licensed practice come first.",
 ];
 
+/// Width of the help box, and of its text inside the border and a margin.
+const HELP_WIDTH: u16 = 76;
+const HELP_TEXT_WIDTH: usize = HELP_WIDTH as usize - 3;
+
+/// What the ± means, with the terms in it and left out of it now.
+fn plusminus_help(app: &App) -> Vec<String> {
+    const INDENT: &str = "         ";
+    let mut items = vec![
+        format!("±        the true level lies within ± about 95 % of the time (k = {COVERAGE_K});"),
+        "in W and V as a % (the wider side).".into(),
+    ];
+    match app.plusminus() {
+        Plusminus::Budget(budget) => {
+            let included: Vec<_> = budget.terms.iter().map(|t| term_name(t.kind)).collect();
+            let missing: Vec<_> = budget.missing.iter().map(|k| term_name(*k)).collect();
+            items.extend(listed("In it:", &included, "."));
+            if !missing.is_empty() {
+                items.extend(listed("Not in it:", &missing, "."));
+            }
+        }
+        _ => items.push("Its terms are named here while a reading has one.".into()),
+    }
+    let mut lines = flow(&items, INDENT, HELP_TEXT_WIDTH);
+    lines.push(format!(
+        "{INDENT}None on a bound (below or above the span, at clip), nor in dB"
+    ));
+    lines.push(format!(
+        "{INDENT}relative: a ratio of two readings has a budget of its own."
+    ));
+    lines
+}
+
+/// The help: keys, the ±, the safety cautions.
+fn help_lines(app: &App) -> Vec<String> {
+    let mut lines: Vec<String> = HELP_KEYS.iter().map(|l| l.to_string()).collect();
+    lines.extend(plusminus_help(app));
+    lines.push(String::new());
+    lines.extend(SAFETY.iter().map(|l| l.to_string()));
+    lines
+}
+
 fn help_overlay(app: &App, area: Rect, buf: &mut Buffer) {
-    let width = 76.min(area.width);
-    let height = (HELP.len() as u16 + 2).min(area.height);
+    let help = help_lines(app);
+    let width = HELP_WIDTH.min(area.width);
+    let height = (help.len() as u16 + 2).min(area.height);
     let rect = Rect {
         x: area.x + (area.width - width) / 2,
         y: area.y + (area.height - height) / 2,
@@ -499,7 +706,7 @@ fn help_overlay(app: &App, area: Rect, buf: &mut Buffer) {
         height,
     };
     Clear.render(rect, buf);
-    let lines: Vec<Line> = HELP.iter().map(|l| Line::from(format!(" {l}"))).collect();
+    let lines: Vec<Line> = help.iter().map(|l| Line::from(format!(" {l}"))).collect();
     Paragraph::new(lines)
         .wrap(Wrap { trim: false })
         .block(

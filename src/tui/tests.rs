@@ -7,14 +7,17 @@ use ratatui::backend::TestBackend;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 use ratatui::Terminal;
 
+use dbtrail::calibration::Calibration;
 use dbtrail::decode::FlatCounts;
 use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::parse_profile;
 use dbtrail::record::{Chunk, Event};
 use dbtrail::stats::AVERAGE_BUCKETS;
+use dbtrail::uncertainty::{Budget, Noise, Uncertainty};
 
-use super::app::{App, AppEvent, Command, Shown, Units};
-use super::draw::draw;
+use super::app::{App, AppEvent, Command, Plusminus, Shown, Units};
+use super::draw::{draw, term_name};
+use super::noise::NOISE_MIN_COUNTS;
 
 /// The hand-worked log-amp (see the file): C counts read C/25 − 80 + 30 dBm at 10 MHz,
 /// one dB more at 100 MHz; limits −5 dBm at the detector, +20 dBm at the reference plane.
@@ -371,6 +374,16 @@ fn an_hour_of_averaging_at_ten_thousand_samples_a_second_keeps_bounded_memory() 
         "{} entries held",
         app.averager.entries()
     );
+    assert_eq!(
+        app.counts.sums().len(),
+        50_000,
+        "every count is in the ± window"
+    );
+    assert!(
+        app.counts.entries() <= AVERAGE_BUCKETS + NOISE_MIN_COUNTS,
+        "{} count entries held",
+        app.counts.entries()
+    );
     let Shown::Level(dbm) = app.shown() else {
         panic!("{:?}", app.shown())
     };
@@ -432,4 +445,210 @@ fn with_noisy_readings_of_a_steady_level_the_best_stays_within_the_noise() {
     // estimated from 16 readings; from readings not yet averaged (a single one is over σ
     // one time in six) it happens in about a fifth of the trials.
     assert!(outside <= trials / 20, "{outside} of {trials} trials");
+}
+
+/// The demo diode profile: its dB per count changes along the curve, so a budget made at
+/// the wrong frequency gives a different figure.
+const DIODE_PROFILE: &str = include_str!("../../profiles/demo-diode.toml");
+
+/// The budget the library gives for `profile` at a frequency and level, with the noise.
+fn library_budget(profile: &str, freq_hz: Option<f64>, dbm: f64, noise: Noise) -> Budget {
+    let profile = parse_profile(profile, "test.toml").unwrap();
+    let cal = Calibration::new(&profile, freq_hz, 0.0);
+    Uncertainty::new(&profile, &cal).budget(dbm, Some(noise))
+}
+
+/// True when a ± with a number follows it anywhere on the screen.
+fn shows_a_figure(lines: &[String]) -> bool {
+    lines.iter().any(|l| {
+        l.split('±')
+            .skip(1)
+            .any(|rest| rest.starts_with(|c: char| c.is_ascii_digit()))
+    })
+}
+
+/// Sixteen readings alternating 1500 and 1525 counts (+10 and +11 dBm, HAND_PROFILE),
+/// filling the default window.
+fn alternating(app: &mut App) {
+    for i in 0..16 {
+        sample(
+            app,
+            f64::from(i) * 0.01,
+            if i % 2 == 0 { 1500 } else { 1525 },
+        );
+    }
+}
+
+/// The state `alternating` leaves, worked by hand: the mean over watts
+/// 10·log10((10 + 12.589)/2) dBm; counts ±12.5 about 1512.5, so σ = √(16 · 12.5² / 15);
+/// every lag product −12.5², ρ = −15/16, held at 0, so N_eff = 16.
+fn alternating_budget() -> Budget {
+    let dbm = 10.0 * ((10f64.powf(1.0) + 10f64.powf(1.1)) / 2.0).log10();
+    let noise = Noise {
+        sigma_counts: (16.0 * 12.5f64.powi(2) / 15.0).sqrt(),
+        n_eff: 16.0,
+    };
+    library_budget(HAND_PROFILE, None, dbm, noise)
+}
+
+// Source: the state worked by hand in `alternating_budget`, its budget from the library
+// (Uncertainty::budget, expanded k = 2), shown to two decimals beside the reading in the
+// large-digit layouts and in the one-line one.
+#[test]
+fn the_reading_shows_the_expanded_uncertainty_of_its_budget() {
+    let mut app = app();
+    alternating(&mut app);
+    let budget = alternating_budget();
+    let figure = format!("±{:.2} dB", budget.expanded_db());
+    for (width, height) in [(80, 24), (100, 30), (60, 20)] {
+        let lines = screen(&app, width, height);
+        // The top row of the large digits, or the one line of a small screen.
+        assert!(lines[2].contains(&figure), "{width}×{height}: {lines:#?}");
+    }
+    let Plusminus::Budget(shown) = app.plusminus() else {
+        panic!("{:?}", app.plusminus())
+    };
+    assert!((shown.expanded_db() - budget.expanded_db()).abs() < 1e-12);
+}
+
+// Source: dB to ratios (common practice): +U dB is a power ratio of 10^(U/10) and a
+// voltage ratio of 10^(U/20); the screen shows the wider side as a percentage.
+#[test]
+fn in_watts_and_volts_the_uncertainty_is_a_percentage() {
+    let mut app = app();
+    alternating(&mut app);
+    let u = alternating_budget().expanded_db();
+    keys(&mut app, "u");
+    let power = (10f64.powf(u / 10.0) - 1.0) * 100.0;
+    let lines = screen(&app, 100, 30);
+    assert!(lines[2].contains(&format!("±{power:.1} %")), "{lines:#?}");
+    assert!(lines[2].contains(&format!("±{u:.2} dB")), "{lines:#?}");
+    keys(&mut app, "u");
+    let voltage = (10f64.powf(u / 20.0) - 1.0) * 100.0;
+    let lines = screen(&app, 100, 30);
+    assert!(lines[2].contains(&format!("±{voltage:.1} %")), "{lines:#?}");
+}
+
+// Source: the rule in docs/screen.md — a bound has no uncertainty: below the span, at
+// clip, above the span (while the window holds such a reading) and while counts over
+// full scale come, no ± figure is shown. HAND_PROFILE: 400 counts are below its span,
+// 2100 above it (+4 dBm at the detector), 4090 at clip, 5000 over the 12-bit full scale.
+#[test]
+fn a_bound_reading_shows_no_uncertainty() {
+    for (counts, marker) in [
+        (400, "a bound, no ±"),
+        (4090, "a bound, no ±"),
+        (2100, "no ±: readings above the calibrated span"),
+        (5000, "no ±: counts over ADC full scale"),
+    ] {
+        let mut app = app();
+        alternating(&mut app);
+        assert!(shows_a_figure(&screen(&app, 100, 30)));
+        sample(&mut app, 0.5, counts);
+        for (width, height) in [(100, 30), (60, 20)] {
+            let lines = screen(&app, width, height);
+            assert!(!shows_a_figure(&lines), "{counts}: {lines:#?}");
+            assert!(has(&lines, marker), "{counts}: {lines:#?}");
+        }
+    }
+}
+
+// Source: the rule in docs/screen.md — the ± comes back once the window no longer holds
+// a reading above the span: after 16 readings in the span with 16-sample averaging.
+#[test]
+fn the_uncertainty_returns_when_the_reading_above_the_span_leaves_the_window() {
+    let mut app = app();
+    sample(&mut app, 0.0, 2100);
+    for i in 1..16 {
+        sample(&mut app, f64::from(i) * 0.01, 1500);
+        assert_eq!(app.plusminus(), Plusminus::AboveSpan, "after {i}");
+    }
+    sample(&mut app, 0.2, 1500);
+    assert!(shows_a_figure(&screen(&app, 100, 30)));
+}
+
+// Source: the rule in issue 14 — where an input is missing its term is left out and the
+// output says so: "(partial)" beside the figure and the missing terms named.
+#[test]
+fn a_partial_budget_is_marked_and_its_missing_terms_named() {
+    let mut app = app();
+    alternating(&mut app);
+    let budget = alternating_budget();
+    let lines = screen(&app, 100, 30);
+    assert_eq!(
+        lines[2].contains("(partial)"),
+        !budget.missing.is_empty(),
+        "{budget:?}: {lines:#?}"
+    );
+    // Beside the digits, broken only between names, never inside one.
+    for kind in &budget.missing {
+        let name = term_name(*kind);
+        assert!(has(&lines[3..6], name), "{name}: {lines:#?}");
+    }
+}
+
+// Source: the rule in docs/screen.md — the help says what ± means (k = 2, about 95 %)
+// and names the terms in it and those left out, keeping the safety cautions.
+#[test]
+fn help_explains_the_uncertainty_and_names_its_terms() {
+    let mut app = app();
+    alternating(&mut app);
+    keys(&mut app, "?");
+    let budget = alternating_budget();
+    for (width, height) in [(80, 24), (100, 30)] {
+        let lines = screen(&app, width, height);
+        assert!(has(&lines, "95 %") && has(&lines, "k = 2"), "{lines:#?}");
+        for term in &budget.terms {
+            assert!(has(&lines, term_name(term.kind)), "{lines:#?}");
+        }
+        for kind in &budget.missing {
+            assert!(has(&lines, term_name(*kind)), "{lines:#?}");
+        }
+        assert!(
+            has(&lines, "RF burns") && has(&lines, "licensed practice come first"),
+            "the whole help fits {width}×{height}: {lines:#?}"
+        );
+    }
+}
+
+// Source: the demo diode profile — the correction and offset at 440 MHz (2.6 dB and
+// 20.3 dB) move the level; the figure must be the budget made at 440 MHz (14 counts,
+// low on the curve where a count is a large step, steady, so σ = 0), which differs from
+// one made at the profile's 10 MHz.
+#[test]
+fn changing_the_frequency_rebuilds_the_uncertainty() {
+    let profile = parse_profile(DIODE_PROFILE, "diode.toml").unwrap();
+    let mut app = App::new(Arc::new(profile), None, 0.0, "test bench".into());
+    for i in 0..16 {
+        sample(&mut app, f64::from(i) * 0.01, 14);
+    }
+    keys(&mut app, "f440MHz\n");
+    let Shown::Level(dbm) = app.shown() else {
+        panic!("{:?}", app.shown())
+    };
+    let still = Noise {
+        sigma_counts: 0.0,
+        n_eff: 16.0,
+    };
+    let fresh = library_budget(DIODE_PROFILE, Some(440e6), dbm, still).expanded_db();
+    let stale = library_budget(DIODE_PROFILE, None, dbm, still).expanded_db();
+    assert!(
+        format!("{fresh:.2}") != format!("{stale:.2}"),
+        "{fresh} {stale}"
+    );
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, &format!("±{fresh:.2} dB")), "{lines:#?}");
+}
+
+// Source: the rule in docs/screen.md — space freezes the reading with its ±.
+#[test]
+fn a_frozen_reading_keeps_its_uncertainty() {
+    let mut app = app();
+    alternating(&mut app);
+    keys(&mut app, " ");
+    let held = app.plusminus();
+    sample(&mut app, 1.0, 400);
+    assert_eq!(app.plusminus(), held);
+    keys(&mut app, " ");
+    assert_eq!(app.plusminus(), Plusminus::Bound);
 }
