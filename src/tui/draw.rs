@@ -185,14 +185,22 @@ pub fn term_name(kind: TermKind) -> &'static str {
     }
 }
 
-/// An expanded uncertainty in dB as the screen shows it.
+/// `value` rounded up at `decimals` places: a shown uncertainty never claims less than
+/// its budget (a figure under the last digit shows as one of it, never as zero). A
+/// sliver under one ten-millionth of the digit is taken as floating-point error.
+pub fn round_up(value: f64, decimals: usize) -> f64 {
+    let scale = 10f64.powi(decimals as i32);
+    (value * scale - 1e-7).ceil().max(0.0) / scale
+}
+
+/// An expanded uncertainty in dB as the screen shows it, rounded up to 0.01 dB.
 pub fn plusminus_db(u_db: f64) -> String {
-    format!("±{u_db:.2} dB")
+    format!("±{:.2} dB", round_up(u_db, 2))
 }
 
 /// An expanded uncertainty in dB as a percentage of a power (`per_decade` 10) or a
 /// voltage (20): the wider of its two sides, 10^(U/per_decade) − 1, since +U dB is more
-/// per cent than −U dB.
+/// per cent than −U dB; rounded up to two significant digits (one from 10 %).
 pub fn plusminus_percent(u_db: f64, per_decade: f64) -> String {
     let percent = (10f64.powf(u_db / per_decade) - 1.0) * 100.0;
     let digits = if percent < 1.0 {
@@ -202,7 +210,7 @@ pub fn plusminus_percent(u_db: f64, per_decade: f64) -> String {
     } else {
         0
     };
-    format!("±{percent:.digits$} %")
+    format!("±{:.digits$} %", round_up(percent, digits))
 }
 
 /// What the screen says about the main reading's uncertainty.

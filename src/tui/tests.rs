@@ -458,6 +458,12 @@ fn library_budget(profile: &str, freq_hz: Option<f64>, dbm: f64, noise: Noise) -
     Uncertainty::new(&profile, &cal).budget(dbm, Some(noise))
 }
 
+/// `value` rounded up at `decimals` places, as the screen shows an uncertainty, formatted.
+fn shown_up(value: f64, decimals: usize) -> String {
+    let scale = 10f64.powi(decimals as i32);
+    format!("{:.decimals$}", (value * scale - 1e-7).ceil() / scale)
+}
+
 /// True when a ± with a number follows it anywhere on the screen.
 fn shows_a_figure(lines: &[String]) -> bool {
     lines.iter().any(|l| {
@@ -492,14 +498,15 @@ fn alternating_budget() -> Budget {
 }
 
 // Source: the state worked by hand in `alternating_budget`, its budget from the library
-// (Uncertainty::budget, expanded k = 2), shown to two decimals beside the reading in the
+// (Uncertainty::budget, expanded k = 2), shown rounded up to 0.01 dB (the GUM allows an
+// uncertainty to be rounded up; from memory, its 7.2.6) beside the reading in the
 // large-digit layouts and in the one-line one.
 #[test]
 fn the_reading_shows_the_expanded_uncertainty_of_its_budget() {
     let mut app = app();
     alternating(&mut app);
     let budget = alternating_budget();
-    let figure = format!("±{:.2} dB", budget.expanded_db());
+    let figure = format!("±{} dB", shown_up(budget.expanded_db(), 2));
     for (width, height) in [(80, 24), (100, 30), (60, 20)] {
         let lines = screen(&app, width, height);
         // The top row of the large digits, or the one line of a small screen.
@@ -521,12 +528,21 @@ fn in_watts_and_volts_the_uncertainty_is_a_percentage() {
     keys(&mut app, "u");
     let power = (10f64.powf(u / 10.0) - 1.0) * 100.0;
     let lines = screen(&app, 100, 30);
-    assert!(lines[2].contains(&format!("±{power:.1} %")), "{lines:#?}");
-    assert!(lines[2].contains(&format!("±{u:.2} dB")), "{lines:#?}");
+    assert!(
+        lines[2].contains(&format!("±{} %", shown_up(power, 1))),
+        "{lines:#?}"
+    );
+    assert!(
+        lines[2].contains(&format!("±{} dB", shown_up(u, 2))),
+        "{lines:#?}"
+    );
     keys(&mut app, "u");
     let voltage = (10f64.powf(u / 20.0) - 1.0) * 100.0;
     let lines = screen(&app, 100, 30);
-    assert!(lines[2].contains(&format!("±{voltage:.1} %")), "{lines:#?}");
+    assert!(
+        lines[2].contains(&format!("±{} %", shown_up(voltage, 1))),
+        "{lines:#?}"
+    );
 }
 
 // Source: the rule in docs/screen.md — a bound has no uncertainty: below the span, at
@@ -632,12 +648,12 @@ fn changing_the_frequency_rebuilds_the_uncertainty() {
     };
     let fresh = library_budget(DIODE_PROFILE, Some(440e6), dbm, still).expanded_db();
     let stale = library_budget(DIODE_PROFILE, None, dbm, still).expanded_db();
-    assert!(
-        format!("{fresh:.2}") != format!("{stale:.2}"),
-        "{fresh} {stale}"
-    );
+    assert!(shown_up(fresh, 2) != shown_up(stale, 2), "{fresh} {stale}");
     let lines = screen(&app, 100, 30);
-    assert!(has(&lines, &format!("±{fresh:.2} dB")), "{lines:#?}");
+    assert!(
+        has(&lines, &format!("±{} dB", shown_up(fresh, 2))),
+        "{lines:#?}"
+    );
 }
 
 // Source: the rule in docs/screen.md — space freezes the reading with its ±.
@@ -651,4 +667,17 @@ fn a_frozen_reading_keeps_its_uncertainty() {
     assert_eq!(app.plusminus(), held);
     keys(&mut app, " ");
     assert_eq!(app.plusminus(), Plusminus::Bound);
+}
+
+// Source: the GUM's advice (from memory, 7.2.6) that an uncertainty may be rounded up
+// rather than to the nearest digit: a budget of 0.003 dB shows as ±0.01 dB, not ±0.00.
+#[test]
+fn a_tiny_uncertainty_shows_as_the_last_digit_not_as_zero() {
+    use super::draw::{plusminus_db, plusminus_percent};
+    assert_eq!(plusminus_db(0.003), "±0.01 dB");
+    assert_eq!(plusminus_db(0.26), "±0.26 dB");
+    assert_eq!(plusminus_db(0.2601), "±0.27 dB");
+    // 10^(0.26/10) − 1 = 6.1705 %; 10^(0.001/20) − 1 = 0.0115 %.
+    assert_eq!(plusminus_percent(0.26, 10.0), "±6.2 %");
+    assert_eq!(plusminus_percent(0.001, 20.0), "±0.02 %");
 }
