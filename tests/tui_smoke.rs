@@ -1,10 +1,10 @@
-//! Runs tests/tui_smoke.sh (the live screen in tmux: a reading, the quit key, the terminal
-//! restored) when tmux is installed; .ci/run installs it.
+//! Runs tests/tui_smoke.sh (the live screen in tmux: a reading and its ±, the quit key,
+//! the terminal restored) when tmux is installed; .ci/run installs it.
 
 use std::process::Command;
 
 #[test]
-fn watch_in_tmux_shows_a_reading_quits_and_restores_the_terminal() {
+fn watch_in_tmux_shows_a_reading_with_its_uncertainty_quits_and_restores_the_terminal() {
     if Command::new("tmux").arg("-V").output().is_err() {
         eprintln!("tmux is not installed: skipping the live-screen smoke test");
         return;

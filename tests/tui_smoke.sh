@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Smoke test of the live screen in a real terminal: tmux runs `dbtrail watch --demo`, we
-# wait for a reading, press the quit key, and check that the program exited with 0 and
+# wait for a reading and its ±, press the quit key, and check that the program exited with 0 and
 # left the terminal in its normal (canonical, echoing) mode.
 # Usage: tests/tui_smoke.sh PATH_TO_DBTRAIL
 set -euo pipefail
@@ -20,6 +20,14 @@ for _ in $(seq 1 100); do
     sleep 0.1
 done
 [ -n "$seen" ] || { echo "no reading appeared"; tm capture-pane -p; exit 1; }
+
+# The reading carries its uncertainty (k = 2) once its window has two counts or more.
+seen=""
+for _ in $(seq 1 100); do
+    if tm capture-pane -p | grep -Eq "±[0-9]+\.[0-9]{2} dB.* k = 2, about 95 %"; then seen=yes; break; fi
+    sleep 0.1
+done
+[ -n "$seen" ] || { echo "no ± beside the reading"; tm capture-pane -p; exit 1; }
 
 # Waits for the exit code and terminal modes the shell writes after watch ends, then
 # checks the code was $1 and the terminal is back in canonical, echoing mode.
