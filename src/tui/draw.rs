@@ -662,12 +662,13 @@ pub const SAFETY: &[&str] = &[
     "local codes and licensed practice come first.",
 ];
 
-/// Width of the help box, and of its text inside the border and a margin.
+/// Width of the help box at most.
 const HELP_WIDTH: u16 = 76;
-const HELP_TEXT_WIDTH: usize = HELP_WIDTH as usize - 3;
+/// What the ± means when the help has no room for the whole of it.
+const PLUSMINUS_SHORT: &str = "±        k = 2, about 95 %; its terms: this help at 80×24";
 
-/// What the ± means, with the terms in it and left out of it now.
-fn plusminus_help(app: &App) -> Vec<String> {
+/// What the ± means, with the terms in it and left out of it now, in lines of `width`.
+fn plusminus_help(app: &App, width: usize) -> Vec<String> {
     const INDENT: &str = "         ";
     let mut items = vec![
         format!("±        the true level lies within ± about 95 % of the time (k = {COVERAGE_K});"),
@@ -684,7 +685,7 @@ fn plusminus_help(app: &App) -> Vec<String> {
         }
         _ => items.push("Its terms are named here while a reading has one.".into()),
     }
-    let mut lines = flow(&items, INDENT, HELP_TEXT_WIDTH);
+    let mut lines = flow(&items, INDENT, width);
     lines.push(format!(
         "{INDENT}None on a bound (below or above the span, at clip), nor in dB"
     ));
@@ -694,19 +695,57 @@ fn plusminus_help(app: &App) -> Vec<String> {
     lines
 }
 
-/// The help: keys, the ±, the safety cautions.
-fn help_lines(app: &App) -> Vec<String> {
-    let mut lines: Vec<String> = HELP_KEYS.iter().map(|l| l.to_string()).collect();
-    lines.extend(plusminus_help(app));
-    lines.push(String::new());
-    lines.extend(SAFETY.iter().map(|l| l.to_string()));
+/// Rows `line` takes when wrapped between words at `width`.
+fn wrapped_rows(line: &str, width: usize) -> usize {
+    let words: Vec<String> = line.split(' ').map(String::from).collect();
+    flow(&words, "", width.max(1)).len()
+}
+
+/// Rows the help's `lines` take in a box `width` wide (each after a one-space margin).
+fn help_rows(lines: &[String], width: u16) -> usize {
+    let inside = usize::from(width.saturating_sub(2));
     lines
+        .iter()
+        .map(|l| wrapped_rows(&format!(" {l}"), inside))
+        .sum()
+}
+
+/// The help for a box of `width` × `height` cells: keys, the ±, the safety cautions. When
+/// they do not all fit, the ± in one line; when even that does not, the safety cautions
+/// first, so that they are never the part cut off.
+fn help_lines(app: &App, width: u16, height: u16) -> Vec<String> {
+    let fits = |lines: &[String]| help_rows(lines, width) + 2 <= usize::from(height);
+    let keys = HELP_KEYS.iter().map(|l| l.to_string());
+    let safety = SAFETY.iter().map(|l| l.to_string());
+    let blank = || std::iter::once(String::new());
+    // Inside the border, after the margin.
+    let text_width = usize::from(width.saturating_sub(3));
+    let full: Vec<String> = keys
+        .clone()
+        .chain(plusminus_help(app, text_width))
+        .chain(blank())
+        .chain(safety.clone())
+        .collect();
+    if fits(&full) {
+        return full;
+    }
+    let short = || std::iter::once(PLUSMINUS_SHORT.to_string());
+    let brief: Vec<String> = keys
+        .clone()
+        .chain(short())
+        .chain(blank())
+        .chain(safety.clone())
+        .collect();
+    if fits(&brief) {
+        return brief;
+    }
+    safety.chain(blank()).chain(short()).chain(keys).collect()
 }
 
 fn help_overlay(app: &App, area: Rect, buf: &mut Buffer) {
-    let help = help_lines(app);
     let width = HELP_WIDTH.min(area.width);
-    let height = (help.len() as u16 + 2).min(area.height);
+    let help = help_lines(app, width, area.height);
+    let height = (help_rows(&help, width) as u16 + 2).min(area.height);
     let rect = Rect {
         x: area.x + (area.width - width) / 2,
         y: area.y + (area.height - height) / 2,
@@ -719,7 +758,7 @@ fn help_overlay(app: &App, area: Rect, buf: &mut Buffer) {
         .wrap(Wrap { trim: false })
         .block(
             Block::bordered()
-                .title(" keys ")
+                .title(" help · any key closes it ")
                 .style(paint(app, Color::White, None)),
         )
         .render(rect, buf);

@@ -627,6 +627,28 @@ fn help_explains_the_uncertainty_and_names_its_terms() {
     }
 }
 
+// Source: the project rule (notes/rules.md) that help texts about power keep the safety
+// cautions: on a screen too small for the whole help (60×20, where the keys alone wrap to
+// more rows than there are) the cautions are shown whole, the ± in one line, and how to
+// close the help is in its title.
+#[test]
+fn on_a_small_screen_the_help_keeps_the_safety_cautions_whole() {
+    let mut app = app();
+    alternating(&mut app);
+    keys(&mut app, "?");
+    let lines = screen(&app, 60, 20);
+    for caution in [
+        "RF burns",
+        "Stay within the ratings",
+        "licence",
+        "licensed practice come first",
+    ] {
+        assert!(has(&lines, caution), "{caution}: {lines:#?}");
+    }
+    assert!(has(&lines, "k = 2, about 95 %"), "{lines:#?}");
+    assert!(has(&lines, "any key closes"), "{lines:#?}");
+}
+
 // Source: the demo diode profile — the correction and offset at 440 MHz (2.6 dB and
 // 20.3 dB) move the level; the figure must be the budget made at 440 MHz (14 counts,
 // low on the curve where a count is a large step, steady, so σ = 0), which differs from
