@@ -496,6 +496,50 @@ mod count_tests {
         assert_eq!(window.sums().above_span(), 0, "the early one has left");
     }
 
+    // Source: the first-order autoregressive process (common practice in time-series
+    // texts; from memory): xᵢ = ρ·xᵢ₋₁ + eᵢ has lag-1 correlation ρ, and the mean of N of
+    // its samples varies about (1 + ρ)/(1 − ρ) times as much as that of N independent
+    // ones, which is what N_eff = N(1 − ρ)/(1 + ρ) claims. Counts at 2000 with σ of 20 (so
+    // rounding to counts does not matter), ρ = 0.6 and independent, N = 256, 400 windows
+    // each, fixed seed: the stated σ/√N_eff against the spread of the window means.
+    #[test]
+    fn the_stated_noise_of_the_mean_matches_the_spread_of_means_of_correlated_counts() {
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, Normal};
+        let mut rng = rand_pcg::Pcg64::seed_from_u64(20261202);
+        for rho in [0.0, 0.6] {
+            let innovation = Normal::new(0.0, 20.0 * (1.0f64 - rho * rho).sqrt()).unwrap();
+            let (mut means, mut stated) = (Vec::new(), Vec::new());
+            let mut x = 0.0;
+            for _ in 0..400 {
+                let mut window = CountWindow::new(Averaging::Samples(256));
+                let mut total = 0.0;
+                for i in 0..256 {
+                    x = rho * x + innovation.sample(&mut rng);
+                    let code = (2000.0 + x).round() as u32;
+                    window.push(f64::from(i), code, false);
+                    total += f64::from(code);
+                }
+                means.push(total / 256.0);
+                let noise = window.noise().unwrap();
+                stated.push(noise.sigma_counts / noise.n_eff.sqrt());
+            }
+            let mean_of_means = means.iter().sum::<f64>() / 400.0;
+            let spread = (means
+                .iter()
+                .map(|m| (m - mean_of_means).powi(2))
+                .sum::<f64>()
+                / 399.0)
+                .sqrt();
+            let stated = stated.iter().sum::<f64>() / 400.0;
+            // The spread itself is good to about 1/√800 = 3.5 %.
+            assert!(
+                (stated / spread - 1.0).abs() < 0.12,
+                "ρ = {rho}: stated {stated:.3}, spread of means {spread:.3}"
+            );
+        }
+    }
+
     proptest! {
         // The joined slices against the counts added one by one.
         #[test]
