@@ -14,20 +14,19 @@ tm new-session -d -x 100 -y 30 "bash --norc --noprofile"
 tm send-keys "PS1='ready> '" Enter
 tm send-keys "'$bin' watch --demo tune; echo \"exit=\$?\" > '$out'; stty -a >> '$out'" Enter
 
-seen=""
-for _ in $(seq 1 100); do
-    if tm capture-pane -p | grep -q "dBm  [●○]"; then seen=yes; break; fi
-    sleep 0.1
-done
-[ -n "$seen" ] || { echo "no reading appeared"; tm capture-pane -p; exit 1; }
+# Waits (10 s at most) until the screen matches the extended regular expression $1, or
+# fails saying $2 and showing the screen.
+wait_for_screen() {
+    for _ in $(seq 1 100); do
+        if tm capture-pane -p | grep -Eq "$1"; then return 0; fi
+        sleep 0.1
+    done
+    echo "$2"; tm capture-pane -p; exit 1
+}
 
+wait_for_screen "dBm  [●○]" "no reading appeared"
 # The reading carries its uncertainty (k = 2) once its window has two counts or more.
-seen=""
-for _ in $(seq 1 100); do
-    if tm capture-pane -p | grep -Eq "±[0-9]+\.[0-9]{2} dB.* k = 2, about 95 %"; then seen=yes; break; fi
-    sleep 0.1
-done
-[ -n "$seen" ] || { echo "no ± beside the reading"; tm capture-pane -p; exit 1; }
+wait_for_screen "±[0-9]+\.[0-9]{2} dB.* k = 2, about 95 %" "no ± beside the reading"
 
 # Waits for the exit code and terminal modes the shell writes after watch ends, then
 # checks the code was $1 and the terminal is back in canonical, echoing mode.
