@@ -590,16 +590,18 @@ fn a_partial_budget_is_marked_and_its_missing_terms_named() {
     let mut app = app();
     alternating(&mut app);
     let budget = alternating_budget();
-    let lines = screen(&app, 100, 30);
-    assert_eq!(
-        lines[2].contains("(partial)"),
-        !budget.missing.is_empty(),
-        "{budget:?}: {lines:#?}"
-    );
-    // Beside the digits, broken only between names, never inside one.
-    for kind in &budget.missing {
-        let name = term_name(*kind);
-        assert!(has(&lines[3..6], name), "{name}: {lines:#?}");
+    for (width, height) in [(80, 24), (100, 30)] {
+        let lines = screen(&app, width, height);
+        assert_eq!(
+            lines[2].contains("(partial)"),
+            !budget.missing.is_empty(),
+            "{budget:?}: {lines:#?}"
+        );
+        // Beside the digits, broken only between names, never inside one.
+        for kind in &budget.missing {
+            let name = term_name(*kind);
+            assert!(has(&lines[3..6], name), "{name}: {lines:#?}");
+        }
     }
 }
 
