@@ -4,15 +4,19 @@
 use std::sync::Arc;
 
 use super::locate::{did_you_mean, FieldPath};
-use super::raw::{FreqValue, RawAdc, RawFreqPoint, RawModel, RawProfile};
+use super::raw::{
+    FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawMatch, RawModel, RawProfile,
+    RawReturnLossRow, RawSpread, RawSwrRow, RawUncertainty,
+};
 use super::{too_many_points, Limits, Model, Profile, ProfilePoint, MAX_PROFILE_POINTS};
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
-use crate::correction::{FreqTable, Offset, TableError};
+use crate::correction::{CorrectionKind, FreqTable, FrequencyCorrection, Offset, TableError};
 use crate::detector::diode::{N_BOUNDS, VL_BOUNDS};
 use crate::detector::{
     ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
     ModelKind, TableDetector, MAX_FIT_RMS_DB,
 };
+use crate::uncertainty::Inputs;
 use crate::units::{parse_level, DEFAULT_OHMS};
 
 type Found = Vec<(FieldPath, String)>;
@@ -166,15 +170,17 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
         &raw.reference_frequency,
     );
     let adc = check_adc(&mut check, &raw.adc);
-    let frequency_correction = raw.frequency_correction.as_ref().and_then(|table| {
-        freq_table(
-            &mut check,
-            &FieldPath::key("frequency_correction").then("points"),
-            &table.points,
-        )
-    });
+    let frequency_correction = raw
+        .frequency_correction
+        .as_ref()
+        .and_then(|table| check_frequency_correction(&mut check, table));
     let offset = check_offset(&mut check, &raw);
     let limits = check_limits(&mut check, &raw);
+    let uncertainty = raw
+        .uncertainty
+        .as_ref()
+        .map(|table| check_uncertainty(&mut check, table))
+        .unwrap_or_default();
     let model_and_points = match (adc.as_ref(), ohms) {
         (Some(adc), Some(ohms)) => check_model(&mut check, &raw.model, adc, ohms),
         _ => None,
@@ -199,7 +205,7 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
                 frequency_correction,
                 offset,
                 limits,
-                uncertainty: crate::uncertainty::Inputs::default(),
+                uncertainty,
                 raw,
             })
         }
@@ -238,28 +244,204 @@ fn check_adc(check: &mut Checker, raw: &RawAdc) -> Option<Adc> {
 }
 
 fn freq_table(check: &mut Checker, path: &FieldPath, rows: &[RawFreqPoint]) -> Option<FreqTable> {
-    let mut parsed = Vec::with_capacity(rows.len());
-    for (i, row) in rows.iter().enumerate() {
-        let hz = check.frequency(path.at(i).then("freq"), &row.freq);
-        let db = check.within(path.at(i).then("db"), row.db, &DB_FIGURE);
-        if let (Some(hz), Some(db)) = (hz, db) {
-            parsed.push((hz, db));
-        }
-    }
-    if parsed.len() != rows.len() {
-        return None;
-    }
-    FreqTable::new(parsed)
+    let parsed = rows
+        .iter()
+        .enumerate()
+        .map(|(i, row)| {
+            let hz = check.frequency(path.at(i).then("freq"), &row.freq);
+            let db = check.within(path.at(i).then("db"), row.db, &DB_FIGURE);
+            hz.zip(db)
+        })
+        .collect();
+    table_of(check, path, parsed, "db")
+}
+
+/// The table of rows that each parsed (None where a row had a problem, already noted);
+/// `value` names the rows' second field in messages.
+fn table_of(
+    check: &mut Checker,
+    path: &FieldPath,
+    parsed: Vec<Option<(f64, f64)>>,
+    value: &str,
+) -> Option<FreqTable> {
+    let parsed: Option<Vec<(f64, f64)>> = parsed.into_iter().collect();
+    FreqTable::new(parsed?)
         .map_err(|e| {
             let field = match e {
                 TableError::Empty => path.clone(),
-                TableError::BadDb { index } => path.at(index).then("db"),
+                TableError::BadDb { index } => path.at(index).then(value),
                 TableError::BadFrequency { index, .. }
                 | TableError::NotIncreasing { index, .. } => path.at(index).then("freq"),
             };
             check.fail(field, e.to_string());
         })
         .ok()
+}
+
+fn check_frequency_correction(
+    check: &mut Checker,
+    raw: &RawFreqTable,
+) -> Option<FrequencyCorrection> {
+    let path = FieldPath::key("frequency_correction");
+    let kind = match raw.kind.as_deref() {
+        None => Some(CorrectionKind::Table),
+        Some(name) => CorrectionKind::from_name(name).or_else(|| {
+            let names = CorrectionKind::NAMES.map(|(n, _)| n);
+            let hint = did_you_mean(name, &names)
+                .map(|c| format!("did you mean `{c}`? "))
+                .unwrap_or_default();
+            check.fail(
+                path.then("kind"),
+                format!(
+                    "unknown kind `{name}`; {hint}choose table (the rows, interpolated) or \
+                     roll-off (a single pole fitted to the rows)"
+                ),
+            );
+            None
+        }),
+    };
+    let table = freq_table(check, &path.then("points"), &raw.points);
+    FrequencyCorrection::new(table?, kind?)
+        .map_err(|e| check.fail(path.then("kind"), e.to_string()))
+        .ok()
+}
+
+/// The largest uncertainty or return loss a profile may give, dB: beyond it the figure
+/// describes no bench.
+const MATCH_DB_MAX: f64 = 200.0;
+
+fn check_uncertainty(check: &mut Checker, raw: &RawUncertainty) -> Inputs {
+    let path = FieldPath::key("uncertainty");
+    let mut spread = |field: &str, value: &Option<RawSpread>| {
+        value
+            .as_ref()
+            .and_then(|v| standard_uncertainty(check, &path.then(field), v))
+    };
+    let source_u_db = spread("source", &raw.source);
+    let offset_u_db = spread("offset", &raw.offset);
+    let mut gamma =
+        |part: &str, swr: &Option<RawMatch<RawSwrRow>>, rl: &Option<RawMatch<RawReturnLossRow>>| {
+            reflection(check, &path, part, swr.as_ref(), rl.as_ref())
+        };
+    Inputs {
+        source_u_db,
+        offset_u_db,
+        source_gamma: gamma("source", &raw.source_swr, &raw.source_return_loss),
+        detector_gamma: gamma("detector", &raw.detector_swr, &raw.detector_return_loss),
+        front_gamma: gamma("front", &raw.front_swr, &raw.front_return_loss),
+        dut_gamma: gamma("dut", &raw.dut_swr, &raw.dut_return_loss),
+        front_is_attenuator: raw.front_is_attenuator.unwrap_or(false),
+    }
+}
+
+/// An uncertainty written at coverage factor k, brought to k = 1.
+fn standard_uncertainty(check: &mut Checker, path: &FieldPath, raw: &RawSpread) -> Option<f64> {
+    let db = check.number(
+        path.then("db"),
+        raw.db,
+        |v| (0.0..=MATCH_DB_MAX).contains(&v),
+        "an uncertainty is 0 dB or more, up to 200 dB",
+    );
+    let k = check.number(
+        path.then("k"),
+        raw.k.unwrap_or(1.0),
+        |v| v > 0.0 && v <= 10.0,
+        "the coverage factor k is above 0, up to 10 (2 for about 95 %; leave it out for a \
+         standard uncertainty)",
+    );
+    Some(db? / k?)
+}
+
+/// |Γ| of one part against frequency, from its SWR or its return loss (not both).
+fn reflection(
+    check: &mut Checker,
+    path: &FieldPath,
+    part: &str,
+    swr: Option<&RawMatch<RawSwrRow>>,
+    return_loss: Option<&RawMatch<RawReturnLossRow>>,
+) -> Option<FreqTable> {
+    let (swr_key, rl_key) = (format!("{part}_swr"), format!("{part}_return_loss"));
+    match (swr, return_loss) {
+        (None, None) => None,
+        (Some(_), Some(_)) => {
+            check.fail(
+                path.then(&rl_key),
+                format!("give either `{swr_key}` or `{rl_key}`, not both"),
+            );
+            None
+        }
+        (Some(swr), None) => gamma_table(
+            check,
+            &path.then(&swr_key),
+            swr,
+            "swr",
+            |r| (&r.freq, r.swr),
+            gamma_of_swr,
+        ),
+        (None, Some(rl)) => gamma_table(
+            check,
+            &path.then(&rl_key),
+            rl,
+            "return_loss",
+            |r| (&r.freq, r.return_loss),
+            gamma_of_return_loss,
+        ),
+    }
+}
+
+/// A |Γ| table from one figure (the same at every frequency) or from rows, each figure
+/// turned into |Γ| by `to_gamma`; `value` names the rows' figure field.
+fn gamma_table<Row>(
+    check: &mut Checker,
+    path: &FieldPath,
+    raw: &RawMatch<Row>,
+    value: &str,
+    fields: impl Fn(&Row) -> (&FreqValue, f64),
+    to_gamma: fn(&mut Checker, FieldPath, f64) -> Option<f64>,
+) -> Option<FreqTable> {
+    match raw {
+        RawMatch::Single(figure) => {
+            let gamma = to_gamma(check, path.clone(), *figure)?;
+            FreqTable::new(vec![(FREQUENCY.lo, gamma), (FREQUENCY.hi, gamma)]).ok()
+        }
+        RawMatch::Rows(rows) => {
+            let parsed = rows
+                .iter()
+                .enumerate()
+                .map(|(i, row)| {
+                    let (freq, figure) = fields(row);
+                    let hz = check.frequency(path.at(i).then("freq"), freq);
+                    let gamma = to_gamma(check, path.at(i).then(value), figure);
+                    hz.zip(gamma)
+                })
+                .collect();
+            table_of(check, path, parsed, value)
+        }
+    }
+}
+
+/// |Γ| = (SWR − 1)/(SWR + 1), for an SWR of 1 or more.
+fn gamma_of_swr(check: &mut Checker, path: FieldPath, swr: f64) -> Option<f64> {
+    check
+        .number(
+            path,
+            swr,
+            |v| v >= 1.0,
+            "an SWR is 1 (a perfect match) or more, e.g. 1.2",
+        )
+        .map(|swr| (swr - 1.0) / (swr + 1.0))
+}
+
+/// |Γ| = 10^(−RL/20), for a return loss above 0 dB.
+fn gamma_of_return_loss(check: &mut Checker, path: FieldPath, rl: f64) -> Option<f64> {
+    check
+        .number(
+            path,
+            rl,
+            |v| v > 0.0 && v <= MATCH_DB_MAX,
+            "a return loss is above 0 dB, up to 200 dB, e.g. 20 (written as a positive number)",
+        )
+        .map(|rl| 10f64.powf(-rl / 20.0))
 }
 
 fn check_offset(check: &mut Checker, raw: &RawProfile) -> Option<Offset> {
