@@ -178,7 +178,8 @@ pub struct RollOff {
 pub enum RollOffError {
     /// Fewer than [`ROLL_OFF_MIN_ROWS`] rows.
     #[error(
-        "the roll-off is fitted to the rows and needs at least {ROLL_OFF_MIN_ROWS}; {count}          given: add rows or use kind = \"table\""
+        "the roll-off is fitted to the rows and needs at least {ROLL_OFF_MIN_ROWS}; {count} \
+         given: add rows or use kind = \"table\""
     )]
     TooFewRows {
         /// Rows given.
@@ -187,8 +188,8 @@ pub enum RollOffError {
     /// The least-squares fit did not settle, or its corner ended on the edge of its search
     /// range (the rows are flat or fall with frequency, so no corner describes them).
     #[error(
-        "the rows do not rise like a single-pole roll-off (they are flat, fall with frequency \
-         or jump), so no corner frequency fits them; use kind = \"table\""
+        "the rows do not rise with frequency as a single-pole roll-off does, so no corner \
+         frequency fits them; use kind = \"table\""
     )]
     NoFit,
 }

@@ -191,7 +191,11 @@ pub struct RawUncertainty {
 /// An uncertainty as a datasheet or certificate gives it: `{ db = 0.3, k = 2 }` for an
 /// expanded value with its coverage factor, `{ db = 0.15 }` for a standard one.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "an uncertainty as a table: { db = 0.3, k = 2 } for an expanded value with \
+                 its coverage factor, or { db = 0.15 } for a standard one"
+)]
 pub struct RawSpread {
     /// The uncertainty, dB, at coverage factor `k`.
     pub db: f64,

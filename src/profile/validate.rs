@@ -851,3 +851,83 @@ fn model(
         params,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::profile::parse_profile;
+
+    const BASE: &str = "name = \"u\"\nreference_frequency = \"10MHz\"\n[adc]\nbits = 12\n\
+                        vref = 3.3\n[model]\nkind = \"table\"\npoints = [\n\
+                        { applied = \"-20dBm\", counts = 100 },\n\
+                        { applied = \"0dBm\", counts = 1500 },\n]\n";
+
+    fn inputs(table: &str) -> crate::uncertainty::Inputs {
+        let text = format!("{BASE}[uncertainty]\n{table}");
+        parse_profile(&text, "u.toml")
+            .unwrap_or_else(|e| panic!("{e}"))
+            .uncertainty
+    }
+
+    fn gamma_at(table: &Option<crate::correction::FreqTable>, hz: f64) -> f64 {
+        table.as_ref().expect("a reflection table").at(hz).db
+    }
+
+    // Source: ../shared/REFERENCES.md (Pozar, from memory; recomputed here):
+    // |Γ| = (SWR − 1)/(SWR + 1) and return loss = −20·log10|Γ|, so SWR 1.5 ↔ |Γ| 0.2 ↔
+    // 13.979 dB, SWR 2 ↔ 0.33333 ↔ 9.5424 dB, SWR 1.2 ↔ 0.090909 ↔ 20.828 dB.
+    #[test]
+    fn swr_and_return_loss_become_the_same_reflection() {
+        let from_swr = inputs("source_swr = 1.5\ndetector_swr = 2\ndut_swr = 1.2\n");
+        let from_rl = inputs(
+            "source_return_loss = 13.979400087\ndetector_return_loss = 9.542425094\n\
+             dut_return_loss = 20.827853703\n",
+        );
+        for (inputs, tolerance) in [(&from_swr, 1e-12), (&from_rl, 1e-9)] {
+            for hz in [1e6, 435e6, 10e9] {
+                assert!((gamma_at(&inputs.source_gamma, hz) - 0.2).abs() < tolerance);
+                assert!((gamma_at(&inputs.detector_gamma, hz) - 1.0 / 3.0).abs() < tolerance);
+                assert!((gamma_at(&inputs.dut_gamma, hz) - 1.0 / 11.0).abs() < tolerance);
+            }
+        }
+        assert_eq!(from_swr.front_gamma, None);
+        assert!(!from_swr.front_is_attenuator);
+    }
+
+    // Source: worked by hand — rows are kept against frequency, each turned into |Γ|:
+    // SWR 1.5 at 146 MHz is 0.2 and SWR 2 at 440 MHz is 1/3; a return loss of 20 dB is
+    // |Γ| = 10^(−20/20) = 0.1.
+    #[test]
+    fn rows_against_frequency_keep_their_frequencies() {
+        let got = inputs(
+            "front_swr = [ { freq = \"146MHz\", swr = 1.5 }, { freq = \"440MHz\", swr = 2 } ]\n\
+             detector_return_loss = [ { freq = \"1GHz\", return_loss = 20 } ]\n\
+             front_is_attenuator = true\n",
+        );
+        let front = got.front_gamma.as_ref().unwrap();
+        assert_eq!(front.rows().len(), 2);
+        assert_eq!(front.rows()[0].0, 146e6);
+        assert!((front.at(146e6).db - 0.2).abs() < 1e-12);
+        assert!((front.at(440e6).db - 1.0 / 3.0).abs() < 1e-12);
+        assert!((gamma_at(&got.detector_gamma, 1e9) - 0.1).abs() < 1e-12);
+        assert!(got.front_is_attenuator);
+    }
+
+    // Source: GUM (JCGM 100) §2.3.5, from memory — an expanded uncertainty U at coverage factor k is
+    // k times the standard uncertainty, so 0.3 dB at k = 2 is 0.15 dB standard; without k
+    // the value is taken as standard.
+    #[test]
+    fn uncertainties_are_stored_at_k_one() {
+        let got = inputs("source = { db = 0.3, k = 2 }\noffset = { db = 0.07 }\n");
+        assert!((got.source_u_db.unwrap() - 0.15).abs() < 1e-15);
+        assert_eq!(got.offset_u_db, Some(0.07));
+        assert_eq!(got.source_gamma, None);
+    }
+
+    // Source: the rule in docs/profiles.md — `[uncertainty]` is optional; a profile
+    // without it has no inputs.
+    #[test]
+    fn a_profile_without_the_table_has_no_inputs() {
+        let profile = parse_profile(BASE, "u.toml").unwrap();
+        assert_eq!(profile.uncertainty, crate::uncertainty::Inputs::default());
+    }
+}
