@@ -23,7 +23,7 @@ pub struct Args {
     #[arg(long, allow_hyphen_values = true, value_parser = parse_frequency_arg)]
     freq: Option<f64>,
     /// Also show the reading for these ADC counts (fractional averages allowed)
-    #[arg(long, num_args = 1.., value_name = "COUNTS", allow_hyphen_values = true, value_parser = parse_counts_arg)]
+    #[arg(long, num_args = 1.., value_name = "COUNTS", allow_negative_numbers = true, value_parser = parse_counts_arg)]
     counts: Vec<f64>,
     /// Print one JSON object: the frequency correction and the uncertainty budgets
     #[arg(long)]
@@ -349,6 +349,50 @@ fn json_object(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Valu
 #[cfg(test)]
 mod tests {
     use super::*;
+    use dbtrail::uncertainty::Term;
+
+    // Source: worked by hand — terms of 0.3 and 0.4 dB combine by root sum of squares to
+    // 0.5 dB (3-4-5), expanded with k = 2 to ±1.000 dB; a term no column has gets no row.
+    #[test]
+    fn a_block_prints_each_term_the_combined_and_the_expanded() {
+        let budget = Budget {
+            terms: vec![
+                Term {
+                    kind: TermKind::Quantisation,
+                    u_db: 0.3,
+                },
+                Term {
+                    kind: TermKind::Source,
+                    u_db: 0.4,
+                },
+            ],
+            missing: vec![TermKind::Offset],
+        };
+        let text = budget_block("t", &[&at_minus_five(Some(budget)), &at_minus_five(None)]);
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(
+            lines,
+            [
+                "  t",
+                "    level, dBm                  -5.00    -5.00",
+                "    counts                       12.0     12.0",
+                "    ADC quantisation            0.300        -",
+                "    calibration source          0.400        -",
+                "    combined                    0.500        -",
+                "    expanded, k = 2            ±1.000        -",
+                "    (-: outside the span or at clip, so the level is a bound)",
+            ]
+        );
+    }
+
+    fn at_minus_five(budget: Option<Budget>) -> Column {
+        Column {
+            dbm: -5.0,
+            counts: 12.0,
+            given: false,
+            budget,
+        }
+    }
 
     // Source: the rule that every budget term has a label and a JSON name of its own.
     #[test]
