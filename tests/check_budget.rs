@@ -151,12 +151,12 @@ fn the_printed_terms_are_the_budget_at_each_level_across_the_span() {
 fn the_interpolation_estimate_is_nonzero_between_rows_and_zero_on_a_row() {
     let between = check(&[DEMO, "--freq", "300MHz"]);
     assert!(
-        between.contains("  table       +1.719 dB, interpolation u 0.022 dB\n"),
+        between.contains("  table       +1.719 dB, interpolation u = 0.022 dB\n"),
         "{between}"
     );
     let on_row = check(&[DEMO, "--freq", "440MHz"]);
     assert!(
-        on_row.contains("  table       +2.600 dB, interpolation u 0.000 dB\n"),
+        on_row.contains("  table       +2.600 dB, interpolation u = 0.000 dB\n"),
         "{on_row}"
     );
     let json = check_json(&[DEMO, "--freq", "300MHz"]);

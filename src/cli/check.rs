@@ -184,7 +184,7 @@ fn correction_text(profile: &Profile, hz: f64) -> String {
     );
     let _ = writeln!(
         out,
-        "  table       {:+.3} dB, interpolation u {:.3} dB",
+        "  table       {:+.3} dB, interpolation u = {:.3} dB",
         table.at(hz).db,
         table.interpolation_u_db(hz)
     );
@@ -192,7 +192,7 @@ fn correction_text(profile: &Profile, hz: f64) -> String {
         Some(fit) => {
             let _ = writeln!(
                 out,
-                "  roll-off    {:+.3} dB, corner {}, constant {:+.3} dB, residual {:.3} dB",
+                "  roll-off    {:+.3} dB, corner {}, constant {:+.3} dB, residual u = {:.3} dB",
                 fit.db(hz),
                 Si::new(fit.corner_hz, "Hz"),
                 fit.constant_db,
@@ -241,13 +241,14 @@ fn budget_text(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Stri
         return out;
     }
     out.push_str("  Not included:\n");
-    for &kind in &missing {
-        let _ = writeln!(out, "    {:<24}{}", label(kind), why_missing(kind, profile));
-    }
-    if missing
+    let reasons: Vec<(TermKind, String)> = missing
         .iter()
-        .any(|k| matches!(k, TermKind::MismatchCalibration | TermKind::MismatchUse))
-    {
+        .map(|&kind| (kind, why_missing(kind, profile)))
+        .collect();
+    for (kind, why) in &reasons {
+        let _ = writeln!(out, "    {:<24}{why}", label(*kind));
+    }
+    if reasons.iter().any(|(_, why)| why.contains("_swr`")) {
         out.push_str("    (any `_swr` may be given as `_return_loss` instead)\n");
     }
     out
