@@ -28,36 +28,41 @@ fn check_json(args: &[&str]) -> serde_json::Value {
     serde_json::from_str(&check(&with_json)).unwrap()
 }
 
-/// The rows of the budget block titled `title`: label, then one cell per column.
-fn block(text: &str, title: &str) -> Vec<(String, Vec<String>)> {
+/// The indented lines under the line `header`, up to the first that is not indented
+/// four spaces or is a footnote in brackets, each split at the label column.
+fn lines_under<'a>(text: &'a str, header: &str) -> Vec<(String, &'a str)> {
     let start = text
         .lines()
-        .position(|l| l == format!("  {title}"))
-        .unwrap_or_else(|| panic!("no block `{title}` in\n{text}"));
+        .position(|l| l == header)
+        .unwrap_or_else(|| panic!("no `{header}` in\n{text}"));
     text.lines()
         .skip(start + 1)
         .take_while(|l| l.starts_with("    ") && !l.starts_with("    ("))
         .map(|l| {
-            let (label, cells) = l.split_at(28);
-            let cells = cells.split_whitespace().map(str::to_string).collect();
-            (label.trim().to_string(), cells)
+            let (label, rest) = l.split_at(28);
+            (label.trim().to_string(), rest)
+        })
+        .collect()
+}
+
+/// The rows of the budget block titled `title`: label, then one cell per column.
+fn block(text: &str, title: &str) -> Vec<(String, Vec<String>)> {
+    lines_under(text, &format!("  {title}"))
+        .into_iter()
+        .map(|(label, cells)| {
+            (
+                label,
+                cells.split_whitespace().map(str::to_string).collect(),
+            )
         })
         .collect()
 }
 
 /// The "Not included" lines: term label → reason.
 fn not_included(text: &str) -> BTreeMap<String, String> {
-    let start = text
-        .lines()
-        .position(|l| l == "  Not included:")
-        .unwrap_or_else(|| panic!("no missing list in\n{text}"));
-    text.lines()
-        .skip(start + 1)
-        .take_while(|l| l.starts_with("    ") && !l.starts_with("    ("))
-        .map(|l| {
-            let (label, why) = l.split_at(28);
-            (label.trim().to_string(), why.trim().to_string())
-        })
+    lines_under(text, "  Not included:")
+        .into_iter()
+        .map(|(label, why)| (label, why.trim().to_string()))
         .collect()
 }
 

@@ -930,4 +930,23 @@ mod tests {
         let profile = parse_profile(BASE, "u.toml").unwrap();
         assert_eq!(profile.uncertainty, crate::uncertainty::Inputs::default());
     }
+
+    // Source: the rule that `calibrate --base` and `fit` write what `check` reads: the demo
+    // profile's [uncertainty] and correction kind survive rendering back to TOML.
+    #[test]
+    fn uncertainty_and_kind_survive_rendering() {
+        let text = include_str!("../../profiles/demo-logamp.toml").replace(
+            "[frequency_correction]\n",
+            "[frequency_correction]\nkind = \"table\"\n",
+        );
+        let first = parse_profile(&text, "demo.toml").unwrap();
+        let rendered = crate::profile::render_profile(&first.raw, "again").unwrap();
+        let again = parse_profile(&rendered, "again.toml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(again.uncertainty, first.uncertainty);
+        assert!(again.uncertainty.dut_gamma.is_some() && again.uncertainty.offset_u_db.is_some());
+        assert_eq!(
+            again.raw.frequency_correction,
+            first.raw.frequency_correction
+        );
+    }
 }
