@@ -338,3 +338,21 @@ fn the_correction_and_budget_fit_in_a_hundred_columns() {
         assert!(line.chars().count() <= 100, "{line}");
     }
 }
+
+// Source: the rule in issue 14 that each term left out says why: with no [offset] there
+// is nothing whose uncertainty could be given, so no key is asked for.
+#[test]
+fn with_no_offset_the_offset_term_asks_for_no_key() {
+    let text = demo_without_uncertainty();
+    let (before, after) = text.split_at(text.find("# The 20 dB attenuator").unwrap());
+    let no_offset = format!("{before}{}", &after[after.find("[limits]").unwrap()..]);
+    let dir = common::scratch("check-budget-no-offset");
+    let path = dir.join("no-offset.toml");
+    std::fs::write(&path, no_offset).unwrap();
+    let missing = not_included(&check(&[path.to_str().unwrap(), "--freq", "440MHz"]));
+    assert_eq!(
+        missing.get("offset").map(String::as_str),
+        Some("the profile has no [offset]"),
+        "{missing:?}"
+    );
+}

@@ -133,6 +133,9 @@ fn why_missing(kind: TermKind, profile: &Profile) -> String {
         }
         TermKind::Temperature => Some("not modelled yet".to_string()),
         TermKind::Source => lacks(&[("source", inputs.source_u_db.is_some())]),
+        TermKind::Offset if profile.raw.offset.is_none() => {
+            Some("the profile has no [offset]".to_string())
+        }
         TermKind::Offset => lacks(&[("offset", inputs.offset_u_db.is_some())]),
         TermKind::MismatchCalibration => lacks(&[
             ("source_swr", inputs.source_gamma.is_some()),
