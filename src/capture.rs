@@ -450,6 +450,7 @@ impl Session {
         };
         if with_table && !self.freq_entries.is_empty() {
             raw.frequency_correction = Some(RawFreqTable {
+                kind: None,
                 points: self.frequency_rows(),
             });
         }
@@ -512,6 +513,7 @@ pub fn base_profile(name: &str, adc: RawAdc, ohms: f64, reference_hz: f64) -> Ra
         frequency_correction: None,
         offset: None,
         limits: None,
+        uncertainty: None,
     }
 }
 

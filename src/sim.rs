@@ -11,7 +11,7 @@ use rand_distr::{Distribution, Normal};
 use rand_pcg::Pcg64;
 
 use crate::adc::Adc;
-use crate::correction::{FreqTable, Offset};
+use crate::correction::{FrequencyCorrection, Offset};
 use crate::detector::{Detector, DiodeDetector, ModelKind};
 use crate::profile::Profile;
 
@@ -136,7 +136,7 @@ pub struct Simulator {
     adc: Adc,
     detector: Arc<dyn Detector>,
     diode: Option<DiodeParams>,
-    correction: Option<FreqTable>,
+    correction: Option<FrequencyCorrection>,
     offset: Offset,
     rng: Pcg64,
     noise: Normal<f64>,

@@ -212,6 +212,95 @@ const CASES: &[(&str, usize, &str, &str)] = &[
         "model.points[0].std_counts",
         "up to the ADC's full scale, 4095",
     ),
+    // [uncertainty] and the roll-off form; source: the rules in docs/profiles.md (SWR ≥ 1,
+    // return loss > 0 dB, uncertainties ≥ 0 and finite, 0 < k ≤ 10, rows in rising
+    // frequency, one of SWR or return loss per part, three rows for a roll-off).
+    ("uncertainty_swr_below_one", 18, "uncertainty.dut_swr", "an SWR is 1"),
+    (
+        "uncertainty_return_loss_negative",
+        18,
+        "uncertainty.detector_return_loss",
+        "a return loss is above 0 dB",
+    ),
+    (
+        "uncertainty_rows_unsorted",
+        20,
+        "uncertainty.detector_swr[1].freq",
+        "rising order",
+    ),
+    (
+        "uncertainty_row_swr_nan",
+        19,
+        "uncertainty.source_swr[0].swr",
+        "not a finite number",
+    ),
+    (
+        "uncertainty_row_return_loss_zero",
+        20,
+        "uncertainty.front_return_loss[1].return_loss",
+        "0 is out of range; a return loss is above 0 dB",
+    ),
+    (
+        "uncertainty_row_bad_frequency",
+        20,
+        "uncertainty.dut_return_loss[1].freq",
+        "write M or MHz",
+    ),
+    ("uncertainty_k_zero", 18, "uncertainty.source.k", "k is above 0"),
+    (
+        "uncertainty_negative",
+        18,
+        "uncertainty.offset.db",
+        "an uncertainty is 0 dB or more",
+    ),
+    (
+        "uncertainty_infinite",
+        18,
+        "uncertainty.source.db",
+        "not a finite number",
+    ),
+    (
+        "uncertainty_swr_and_return_loss",
+        19,
+        "uncertainty.front_return_loss",
+        "give either `front_swr` or `front_return_loss`, not both",
+    ),
+    (
+        "uncertainty_unknown_key",
+        18,
+        "uncertainty.dut_vswr",
+        "did you mean `dut_swr`",
+    ),
+    (
+        "uncertainty_unknown_row_key",
+        19,
+        "uncertainty.detector_swr[0].vswr",
+        "did you mean `swr`",
+    ),
+    (
+        "uncertainty_plain_number",
+        18,
+        "uncertainty.source",
+        "{ db = 0.3, k = 2 } for an expanded value",
+    ),
+    (
+        "correction_kind_unknown",
+        17,
+        "frequency_correction.kind",
+        "did you mean `roll-off`",
+    ),
+    (
+        "correction_roll_off_two_rows",
+        17,
+        "frequency_correction.kind",
+        "needs at least 3; 2 given",
+    ),
+    (
+        "correction_roll_off_falling",
+        17,
+        "frequency_correction.kind",
+        "do not rise with frequency",
+    ),
 ];
 
 #[test]

@@ -139,6 +139,7 @@ fn raw_profile(args: &Args, rows: &[PointRow], name: String) -> RawProfile {
         frequency_correction: None,
         offset: None,
         limits: None,
+        uncertainty: None,
     }
 }
 

@@ -9,7 +9,8 @@ use dbtrail::printable::escape_controls;
 use dbtrail::profile::Profile;
 use dbtrail::units::{format_signed_db, Si};
 
-/// The model line: which model and its parameters.
+/// The model lines: which model and how it was set, then its parameters on a line of
+/// their own (so the block stays inside 100 columns).
 fn model_line(profile: &Profile) -> String {
     let model = &profile.model;
     let source = if model.fitted_at_load {
@@ -19,21 +20,30 @@ fn model_line(profile: &Profile) -> String {
     };
     let count = profile.points.len();
     let raw = &profile.raw.model;
+    let params = |kind: &str, params: String| {
+        format!("{kind}, {source} over {count} points:\n             {params}")
+    };
     match model.kind {
         ModelKind::Table => format!(
             "table of {count} points, PCHIP on {} axis",
             model.axis.map_or("log-volts", |a| a.name())
         ),
-        ModelKind::Log => format!(
-            "log-amp, {source} over {count} points: slope {:.3} mV/dB, intercept {:.2} dBm",
-            model.param("slope").unwrap_or(f64::NAN) * 1e3,
-            model.param("intercept").unwrap_or(f64::NAN)
+        ModelKind::Log => params(
+            "log-amp",
+            format!(
+                "slope {:.3} mV/dB, intercept {:.2} dBm",
+                model.param("slope").unwrap_or(f64::NAN) * 1e3,
+                model.param("intercept").unwrap_or(f64::NAN)
+            ),
         ),
-        ModelKind::Diode => format!(
-            "diode peak detector, {source} over {count} points: n = {:.4}, V_L = Is·RL = {}, T = {} K",
-            model.param("n").unwrap_or(f64::NAN),
-            Si::new(model.param("vl").unwrap_or(f64::NAN), "V"),
-            raw.temperature.unwrap_or(300.0)
+        ModelKind::Diode => params(
+            "diode peak detector",
+            format!(
+                "n = {:.4}, V_L = Is·RL = {}, T = {} K",
+                model.param("n").unwrap_or(f64::NAN),
+                Si::new(model.param("vl").unwrap_or(f64::NAN), "V"),
+                raw.temperature.unwrap_or(300.0)
+            ),
         ),
     }
 }

@@ -15,7 +15,7 @@ use std::sync::Arc;
 use thiserror::Error;
 
 use crate::adc::Adc;
-use crate::correction::{FreqTable, Offset};
+use crate::correction::{FrequencyCorrection, Offset};
 use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind};
 use crate::units::Level;
 use locate::{line_col, Located};
@@ -158,8 +158,9 @@ pub struct Profile {
     pub model: Model,
     /// The calibration points.
     pub points: Vec<ProfilePoint>,
-    /// Frequency correction (true minus indicated), if any.
-    pub frequency_correction: Option<FreqTable>,
+    /// Frequency correction (true minus indicated), if any: the table, or the roll-off
+    /// fitted to it.
+    pub frequency_correction: Option<FrequencyCorrection>,
     /// Offset of what sits in front of the detector.
     pub offset: Offset,
     /// Safe levels.

@@ -35,6 +35,9 @@ pub struct RawProfile {
     /// Safe levels.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub limits: Option<RawLimits>,
+    /// Inputs of the uncertainty budget that cannot be measured here.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub uncertainty: Option<RawUncertainty>,
 }
 
 /// `[adc]`.
@@ -105,6 +108,9 @@ pub struct RawPoint {
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
 #[serde(deny_unknown_fields)]
 pub struct RawFreqTable {
+    /// `table` (default) or `roll-off`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub kind: Option<String>,
     /// Rows in rising frequency.
     pub points: Vec<RawFreqPoint>,
 }
@@ -141,6 +147,124 @@ pub struct RawLimits {
     /// The rated maximum at the reference plane (load or attenuator), dBm.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub reference_max_dbm: Option<f64>,
+}
+
+/// `[uncertainty]`: every key optional.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, Default)]
+#[serde(deny_unknown_fields)]
+pub struct RawUncertainty {
+    /// The calibration source's level uncertainty.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub source: Option<RawSpread>,
+    /// The offset's (attenuator's or coupler's) uncertainty.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub offset: Option<RawSpread>,
+    /// The calibration source's output SWR.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub source_swr: Option<RawMatch<RawSwrRow>>,
+    /// The calibration source's output return loss, dB.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub source_return_loss: Option<RawMatch<RawReturnLossRow>>,
+    /// The detector input's SWR.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub detector_swr: Option<RawMatch<RawSwrRow>>,
+    /// The detector input's return loss, dB.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub detector_return_loss: Option<RawMatch<RawReturnLossRow>>,
+    /// The SWR at the input of what sits in front of the detector.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub front_swr: Option<RawMatch<RawSwrRow>>,
+    /// The return loss at the input of what sits in front, dB.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub front_return_loss: Option<RawMatch<RawReturnLossRow>>,
+    /// True when what sits in front is an attenuator (default false).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub front_is_attenuator: Option<bool>,
+    /// The device under test's output SWR.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub dut_swr: Option<RawMatch<RawSwrRow>>,
+    /// The device under test's output return loss, dB.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub dut_return_loss: Option<RawMatch<RawReturnLossRow>>,
+}
+
+/// An uncertainty as a datasheet or certificate gives it: `{ db = 0.3, k = 2 }` for an
+/// expanded value with its coverage factor, `{ db = 0.15 }` for a standard one.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "an uncertainty as a table: { db = 0.3, k = 2 } for an expanded value with \
+                 its coverage factor, or { db = 0.15 } for a standard one"
+)]
+pub struct RawSpread {
+    /// The uncertainty, dB, at coverage factor `k`.
+    pub db: f64,
+    /// The coverage factor (default 1: a standard uncertainty).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub k: Option<f64>,
+}
+
+/// A match figure: one value at every frequency, or rows against frequency.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RawMatch<Row> {
+    /// The same figure at every frequency.
+    Single(f64),
+    /// Rows in rising frequency.
+    Rows(Vec<Row>),
+}
+
+/// One `{ freq, swr }` row.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawSwrRow {
+    /// Frequency.
+    pub freq: FreqValue,
+    /// SWR at that frequency, 1 or more.
+    pub swr: f64,
+}
+
+/// One `{ freq, return_loss }` row.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawReturnLossRow {
+    /// Frequency.
+    pub freq: FreqValue,
+    /// Return loss at that frequency, dB above 0.
+    pub return_loss: f64,
+}
+
+impl<Row: Serialize> Serialize for RawMatch<Row> {
+    fn serialize<S: Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        match self {
+            RawMatch::Single(value) => serializer.serialize_f64(*value),
+            RawMatch::Rows(rows) => rows.serialize(serializer),
+        }
+    }
+}
+
+impl<'de, Row: Deserialize<'de>> Deserialize<'de> for RawMatch<Row> {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        struct MatchVisitor<Row>(std::marker::PhantomData<Row>);
+        impl<'de, Row: Deserialize<'de>> Visitor<'de> for MatchVisitor<Row> {
+            type Value = RawMatch<Row>;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("a number, or a list [ … ] of rows with `freq`")
+            }
+            fn visit_f64<E: de::Error>(self, v: f64) -> Result<Self::Value, E> {
+                Ok(RawMatch::Single(v))
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<Self::Value, E> {
+                Ok(RawMatch::Single(v as f64))
+            }
+            fn visit_u64<E: de::Error>(self, v: u64) -> Result<Self::Value, E> {
+                Ok(RawMatch::Single(v as f64))
+            }
+            fn visit_seq<A: de::SeqAccess<'de>>(self, seq: A) -> Result<Self::Value, A::Error> {
+                Vec::deserialize(de::value::SeqAccessDeserializer::new(seq)).map(RawMatch::Rows)
+            }
+        }
+        deserializer.deserialize_any(MatchVisitor(std::marker::PhantomData))
+    }
 }
 
 /// A frequency written as text with a unit (`"14.2MHz"`) or as a number of hertz.

@@ -4,15 +4,19 @@
 use std::sync::Arc;
 
 use super::locate::{did_you_mean, FieldPath};
-use super::raw::{FreqValue, RawAdc, RawFreqPoint, RawModel, RawProfile};
+use super::raw::{
+    FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawMatch, RawModel, RawProfile,
+    RawReturnLossRow, RawSpread, RawSwrRow, RawUncertainty,
+};
 use super::{too_many_points, Limits, Model, Profile, ProfilePoint, MAX_PROFILE_POINTS};
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
-use crate::correction::{FreqTable, Offset, TableError};
+use crate::correction::{CorrectionKind, FreqTable, FrequencyCorrection, Offset, TableError};
 use crate::detector::diode::{N_BOUNDS, VL_BOUNDS};
 use crate::detector::{
     ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
     ModelKind, TableDetector, MAX_FIT_RMS_DB,
 };
+use crate::uncertainty::Inputs;
 use crate::units::{parse_level, DEFAULT_OHMS};
 
 type Found = Vec<(FieldPath, String)>;
@@ -166,15 +170,17 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
         &raw.reference_frequency,
     );
     let adc = check_adc(&mut check, &raw.adc);
-    let frequency_correction = raw.frequency_correction.as_ref().and_then(|table| {
-        freq_table(
-            &mut check,
-            &FieldPath::key("frequency_correction").then("points"),
-            &table.points,
-        )
-    });
+    let frequency_correction = raw
+        .frequency_correction
+        .as_ref()
+        .and_then(|table| check_frequency_correction(&mut check, table));
     let offset = check_offset(&mut check, &raw);
     let limits = check_limits(&mut check, &raw);
+    let uncertainty = raw
+        .uncertainty
+        .as_ref()
+        .map(|table| check_uncertainty(&mut check, table))
+        .unwrap_or_default();
     let model_and_points = match (adc.as_ref(), ohms) {
         (Some(adc), Some(ohms)) => check_model(&mut check, &raw.model, adc, ohms),
         _ => None,
@@ -199,7 +205,7 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
                 frequency_correction,
                 offset,
                 limits,
-                uncertainty: crate::uncertainty::Inputs::default(),
+                uncertainty,
                 raw,
             })
         }
@@ -238,28 +244,204 @@ fn check_adc(check: &mut Checker, raw: &RawAdc) -> Option<Adc> {
 }
 
 fn freq_table(check: &mut Checker, path: &FieldPath, rows: &[RawFreqPoint]) -> Option<FreqTable> {
-    let mut parsed = Vec::with_capacity(rows.len());
-    for (i, row) in rows.iter().enumerate() {
-        let hz = check.frequency(path.at(i).then("freq"), &row.freq);
-        let db = check.within(path.at(i).then("db"), row.db, &DB_FIGURE);
-        if let (Some(hz), Some(db)) = (hz, db) {
-            parsed.push((hz, db));
-        }
-    }
-    if parsed.len() != rows.len() {
-        return None;
-    }
-    FreqTable::new(parsed)
+    let parsed = rows
+        .iter()
+        .enumerate()
+        .map(|(i, row)| {
+            let hz = check.frequency(path.at(i).then("freq"), &row.freq);
+            let db = check.within(path.at(i).then("db"), row.db, &DB_FIGURE);
+            hz.zip(db)
+        })
+        .collect();
+    table_of(check, path, parsed, "db")
+}
+
+/// The table of rows that each parsed (None where a row had a problem, already noted);
+/// `value` names the rows' second field in messages.
+fn table_of(
+    check: &mut Checker,
+    path: &FieldPath,
+    parsed: Vec<Option<(f64, f64)>>,
+    value: &str,
+) -> Option<FreqTable> {
+    let parsed: Option<Vec<(f64, f64)>> = parsed.into_iter().collect();
+    FreqTable::new(parsed?)
         .map_err(|e| {
             let field = match e {
                 TableError::Empty => path.clone(),
-                TableError::BadDb { index } => path.at(index).then("db"),
+                TableError::BadDb { index } => path.at(index).then(value),
                 TableError::BadFrequency { index, .. }
                 | TableError::NotIncreasing { index, .. } => path.at(index).then("freq"),
             };
             check.fail(field, e.to_string());
         })
         .ok()
+}
+
+fn check_frequency_correction(
+    check: &mut Checker,
+    raw: &RawFreqTable,
+) -> Option<FrequencyCorrection> {
+    let path = FieldPath::key("frequency_correction");
+    let kind = match raw.kind.as_deref() {
+        None => Some(CorrectionKind::Table),
+        Some(name) => CorrectionKind::from_name(name).or_else(|| {
+            let names = CorrectionKind::NAMES.map(|(n, _)| n);
+            let hint = did_you_mean(name, &names)
+                .map(|c| format!("did you mean `{c}`? "))
+                .unwrap_or_default();
+            check.fail(
+                path.then("kind"),
+                format!(
+                    "unknown kind `{name}`; {hint}choose table (the rows, interpolated) or \
+                     roll-off (a single pole fitted to the rows)"
+                ),
+            );
+            None
+        }),
+    };
+    let table = freq_table(check, &path.then("points"), &raw.points);
+    FrequencyCorrection::new(table?, kind?)
+        .map_err(|e| check.fail(path.then("kind"), e.to_string()))
+        .ok()
+}
+
+/// The largest uncertainty or return loss a profile may give, dB: beyond it the figure
+/// describes no bench.
+const MATCH_DB_MAX: f64 = 200.0;
+
+fn check_uncertainty(check: &mut Checker, raw: &RawUncertainty) -> Inputs {
+    let path = FieldPath::key("uncertainty");
+    let mut spread = |field: &str, value: &Option<RawSpread>| {
+        value
+            .as_ref()
+            .and_then(|v| standard_uncertainty(check, &path.then(field), v))
+    };
+    let source_u_db = spread("source", &raw.source);
+    let offset_u_db = spread("offset", &raw.offset);
+    let mut gamma =
+        |part: &str, swr: &Option<RawMatch<RawSwrRow>>, rl: &Option<RawMatch<RawReturnLossRow>>| {
+            reflection(check, &path, part, swr.as_ref(), rl.as_ref())
+        };
+    Inputs {
+        source_u_db,
+        offset_u_db,
+        source_gamma: gamma("source", &raw.source_swr, &raw.source_return_loss),
+        detector_gamma: gamma("detector", &raw.detector_swr, &raw.detector_return_loss),
+        front_gamma: gamma("front", &raw.front_swr, &raw.front_return_loss),
+        dut_gamma: gamma("dut", &raw.dut_swr, &raw.dut_return_loss),
+        front_is_attenuator: raw.front_is_attenuator.unwrap_or(false),
+    }
+}
+
+/// An uncertainty written at coverage factor k, brought to k = 1.
+fn standard_uncertainty(check: &mut Checker, path: &FieldPath, raw: &RawSpread) -> Option<f64> {
+    let db = check.number(
+        path.then("db"),
+        raw.db,
+        |v| (0.0..=MATCH_DB_MAX).contains(&v),
+        "an uncertainty is 0 dB or more, up to 200 dB",
+    );
+    let k = check.number(
+        path.then("k"),
+        raw.k.unwrap_or(1.0),
+        |v| v > 0.0 && v <= 10.0,
+        "the coverage factor k is above 0, up to 10 (2 for about 95 %; leave it out for a \
+         standard uncertainty)",
+    );
+    Some(db? / k?)
+}
+
+/// |Γ| of one part against frequency, from its SWR or its return loss (not both).
+fn reflection(
+    check: &mut Checker,
+    path: &FieldPath,
+    part: &str,
+    swr: Option<&RawMatch<RawSwrRow>>,
+    return_loss: Option<&RawMatch<RawReturnLossRow>>,
+) -> Option<FreqTable> {
+    let (swr_key, rl_key) = (format!("{part}_swr"), format!("{part}_return_loss"));
+    match (swr, return_loss) {
+        (None, None) => None,
+        (Some(_), Some(_)) => {
+            check.fail(
+                path.then(&rl_key),
+                format!("give either `{swr_key}` or `{rl_key}`, not both"),
+            );
+            None
+        }
+        (Some(swr), None) => gamma_table(
+            check,
+            &path.then(&swr_key),
+            swr,
+            "swr",
+            |r| (&r.freq, r.swr),
+            gamma_of_swr,
+        ),
+        (None, Some(rl)) => gamma_table(
+            check,
+            &path.then(&rl_key),
+            rl,
+            "return_loss",
+            |r| (&r.freq, r.return_loss),
+            gamma_of_return_loss,
+        ),
+    }
+}
+
+/// A |Γ| table from one figure (the same at every frequency) or from rows, each figure
+/// turned into |Γ| by `to_gamma`; `value` names the rows' figure field.
+fn gamma_table<Row>(
+    check: &mut Checker,
+    path: &FieldPath,
+    raw: &RawMatch<Row>,
+    value: &str,
+    fields: impl Fn(&Row) -> (&FreqValue, f64),
+    to_gamma: fn(&mut Checker, FieldPath, f64) -> Option<f64>,
+) -> Option<FreqTable> {
+    match raw {
+        RawMatch::Single(figure) => {
+            let gamma = to_gamma(check, path.clone(), *figure)?;
+            FreqTable::new(vec![(FREQUENCY.lo, gamma), (FREQUENCY.hi, gamma)]).ok()
+        }
+        RawMatch::Rows(rows) => {
+            let parsed = rows
+                .iter()
+                .enumerate()
+                .map(|(i, row)| {
+                    let (freq, figure) = fields(row);
+                    let hz = check.frequency(path.at(i).then("freq"), freq);
+                    let gamma = to_gamma(check, path.at(i).then(value), figure);
+                    hz.zip(gamma)
+                })
+                .collect();
+            table_of(check, path, parsed, value)
+        }
+    }
+}
+
+/// |Γ| = (SWR − 1)/(SWR + 1), for an SWR of 1 or more.
+fn gamma_of_swr(check: &mut Checker, path: FieldPath, swr: f64) -> Option<f64> {
+    check
+        .number(
+            path,
+            swr,
+            |v| v >= 1.0,
+            "an SWR is 1 (a perfect match) or more, e.g. 1.2",
+        )
+        .map(|swr| (swr - 1.0) / (swr + 1.0))
+}
+
+/// |Γ| = 10^(−RL/20), for a return loss above 0 dB.
+fn gamma_of_return_loss(check: &mut Checker, path: FieldPath, rl: f64) -> Option<f64> {
+    check
+        .number(
+            path,
+            rl,
+            |v| v > 0.0 && v <= MATCH_DB_MAX,
+            "a return loss is above 0 dB, up to 200 dB, e.g. 20 (written as a positive number)",
+        )
+        .map(|rl| 10f64.powf(-rl / 20.0))
 }
 
 fn check_offset(check: &mut Checker, raw: &RawProfile) -> Option<Offset> {
@@ -667,5 +849,104 @@ fn model(
         fitted_at_load,
         notes,
         params,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::profile::parse_profile;
+
+    const BASE: &str = "name = \"u\"\nreference_frequency = \"10MHz\"\n[adc]\nbits = 12\n\
+                        vref = 3.3\n[model]\nkind = \"table\"\npoints = [\n\
+                        { applied = \"-20dBm\", counts = 100 },\n\
+                        { applied = \"0dBm\", counts = 1500 },\n]\n";
+
+    fn inputs(table: &str) -> crate::uncertainty::Inputs {
+        let text = format!("{BASE}[uncertainty]\n{table}");
+        parse_profile(&text, "u.toml")
+            .unwrap_or_else(|e| panic!("{e}"))
+            .uncertainty
+    }
+
+    fn gamma_at(table: &Option<crate::correction::FreqTable>, hz: f64) -> f64 {
+        table.as_ref().expect("a reflection table").at(hz).db
+    }
+
+    // Source: ../shared/REFERENCES.md (Pozar, from memory; recomputed here):
+    // |Γ| = (SWR − 1)/(SWR + 1) and return loss = −20·log10|Γ|, so SWR 1.5 ↔ |Γ| 0.2 ↔
+    // 13.979 dB, SWR 2 ↔ 0.33333 ↔ 9.5424 dB, SWR 1.2 ↔ 0.090909 ↔ 20.828 dB.
+    #[test]
+    fn swr_and_return_loss_become_the_same_reflection() {
+        let from_swr = inputs("source_swr = 1.5\ndetector_swr = 2\ndut_swr = 1.2\n");
+        let from_rl = inputs(
+            "source_return_loss = 13.979400087\ndetector_return_loss = 9.542425094\n\
+             dut_return_loss = 20.827853703\n",
+        );
+        for (inputs, tolerance) in [(&from_swr, 1e-12), (&from_rl, 1e-9)] {
+            for hz in [1e6, 435e6, 10e9] {
+                assert!((gamma_at(&inputs.source_gamma, hz) - 0.2).abs() < tolerance);
+                assert!((gamma_at(&inputs.detector_gamma, hz) - 1.0 / 3.0).abs() < tolerance);
+                assert!((gamma_at(&inputs.dut_gamma, hz) - 1.0 / 11.0).abs() < tolerance);
+            }
+        }
+        assert_eq!(from_swr.front_gamma, None);
+        assert!(!from_swr.front_is_attenuator);
+    }
+
+    // Source: worked by hand — rows are kept against frequency, each turned into |Γ|:
+    // SWR 1.5 at 146 MHz is 0.2 and SWR 2 at 440 MHz is 1/3; a return loss of 20 dB is
+    // |Γ| = 10^(−20/20) = 0.1.
+    #[test]
+    fn rows_against_frequency_keep_their_frequencies() {
+        let got = inputs(
+            "front_swr = [ { freq = \"146MHz\", swr = 1.5 }, { freq = \"440MHz\", swr = 2 } ]\n\
+             detector_return_loss = [ { freq = \"1GHz\", return_loss = 20 } ]\n\
+             front_is_attenuator = true\n",
+        );
+        let front = got.front_gamma.as_ref().unwrap();
+        assert_eq!(front.rows().len(), 2);
+        assert_eq!(front.rows()[0].0, 146e6);
+        assert!((front.at(146e6).db - 0.2).abs() < 1e-12);
+        assert!((front.at(440e6).db - 1.0 / 3.0).abs() < 1e-12);
+        assert!((gamma_at(&got.detector_gamma, 1e9) - 0.1).abs() < 1e-12);
+        assert!(got.front_is_attenuator);
+    }
+
+    // Source: GUM (JCGM 100) §2.3.5, from memory — an expanded uncertainty U at coverage factor k is
+    // k times the standard uncertainty, so 0.3 dB at k = 2 is 0.15 dB standard; without k
+    // the value is taken as standard.
+    #[test]
+    fn uncertainties_are_stored_at_k_one() {
+        let got = inputs("source = { db = 0.3, k = 2 }\noffset = { db = 0.07 }\n");
+        assert!((got.source_u_db.unwrap() - 0.15).abs() < 1e-15);
+        assert_eq!(got.offset_u_db, Some(0.07));
+        assert_eq!(got.source_gamma, None);
+    }
+
+    // Source: the rule in docs/profiles.md — `[uncertainty]` is optional; a profile
+    // without it has no inputs.
+    #[test]
+    fn a_profile_without_the_table_has_no_inputs() {
+        let profile = parse_profile(BASE, "u.toml").unwrap();
+        assert_eq!(profile.uncertainty, crate::uncertainty::Inputs::default());
+    }
+
+    // Source: the rule that `calibrate --base` and `fit` write what `check` reads: the demo
+    // profile's [uncertainty] and correction kind survive rendering back to TOML.
+    #[test]
+    fn uncertainty_and_kind_survive_rendering() {
+        let text = include_str!("../../profiles/demo-logamp.toml").replace(
+            "[frequency_correction]\n",
+            "[frequency_correction]\nkind = \"table\"\n",
+        );
+        let first = parse_profile(&text, "demo.toml").unwrap();
+        let rendered = crate::profile::render_profile(&first.raw, "again").unwrap();
+        let again = parse_profile(&rendered, "again.toml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(again.uncertainty, first.uncertainty);
+        assert!(again.uncertainty.dut_gamma.is_some() && again.uncertainty.offset_u_db.is_some());
+        assert_eq!(
+            again.raw.frequency_correction,
+            first.raw.frequency_correction
+        );
     }
 }
