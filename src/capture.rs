@@ -303,9 +303,11 @@ impl Session {
         let adc = self.adc();
         self.points
             .iter()
-            .map(|p| CalPoint {
-                dbm: p.level.power(self.ohms()).dbm(),
-                volts: adc.volts(p.measured.counts),
+            .map(|p| {
+                CalPoint::new(
+                    p.level.power(self.ohms()).dbm(),
+                    adc.volts(p.measured.counts),
+                )
             })
             .collect()
     }

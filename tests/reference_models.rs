@@ -163,10 +163,7 @@ fn diode_square_law_and_linear_limits() {
 
 fn diode_points(det: &DiodeDetector, levels: impl Iterator<Item = f64>) -> Vec<CalPoint> {
     levels
-        .map(|dbm| CalPoint {
-            dbm,
-            volts: det.volts_at(dbm),
-        })
+        .map(|dbm| CalPoint::new(dbm, det.volts_at(dbm)))
         .collect()
 }
 
@@ -280,7 +277,7 @@ mod properties {
             let mut volts = 0.005;
             let points: Vec<CalPoint> = steps.iter().enumerate().map(|(i, s)| {
                 volts += s;
-                CalPoint { dbm: -30.0 + 3.0 * i as f64, volts }
+                CalPoint::new(-30.0 + 3.0 * i as f64, volts)
             }).collect();
             for axis in [Axis::LogVolts, Axis::Volts] {
                 let table = TableDetector::new(&points, axis).unwrap();
