@@ -301,9 +301,23 @@ pub fn levenberg_marquardt(
                 let small_step =
                     (0..2).all(|i| (trial[i] - p[i]).abs() <= 1e-12 * (1.0 + p[i].abs()));
                 let small_gain = sse - trial_sse <= 1e-14 * sse + 1e-30;
+                // How much of the reduction the linear model promised came true: a step
+                // that overshoots across a narrow curved valley lowers the SSE a little
+                // yet far less than promised, and more damping stops the zig-zag.
+                let promised = -2.0 * (step[0] * jtr[0] + step[1] * jtr[1])
+                    - (0..2)
+                        .map(|a| step[a] * (jtj[a][0] * step[0] + jtj[a][1] * step[1]))
+                        .sum::<f64>();
+                let gain = (sse - trial_sse) / promised;
                 p = trial;
                 sse = sse_at(p, &mut r);
-                lambda = (lambda / 3.0).max(1e-12);
+                lambda = if gain > 0.75 {
+                    (lambda / 3.0).max(1e-12)
+                } else if gain < 0.25 {
+                    lambda * 2.0
+                } else {
+                    lambda
+                };
                 improved = true;
                 if small_step || small_gain {
                     return Fit2 {

@@ -321,3 +321,35 @@ fn point_uncertainty_from_stored_counts() {
         PointU::Unknown
     );
 }
+
+// Source: the fit's own stopping rule (a step must lower the SSE; the search ends when it
+// no longer can) and scipy's curve_fit on the same points (n = 1.06036, V_L = 0.217198 V,
+// computed with tests/reference/make_fit_fixtures.py's diode model, trf, 3-point
+// Jacobian). A weighted diode fit whose n and ln V_L correlate at 0.998 used to zig-zag
+// across the narrow valley, lowering the SSE a little each step, until it ran out of
+// iterations and the profile was refused.
+#[test]
+fn a_weighted_diode_fit_along_a_narrow_valley_converges() {
+    let volts_per_count = 1.2 / 1023.0;
+    let measured = [
+        (-12.0, 31.34375, 1.842323),
+        (-9.0, 53.03125, 2.402745),
+        (-6.0, 84.875, 2.01206),
+        (-3.0, 133.1875, 1.533234),
+        (0.0, 202.90625, 1.747983),
+        (3.0, 304.1875, 1.874059),
+        (6.0, 450.9375, 1.966453),
+        (9.0, 661.40625, 2.029768),
+    ];
+    let points: Vec<CalPoint> = measured
+        .iter()
+        .map(|&(dbm, counts, std)| CalPoint {
+            dbm,
+            volts: counts * volts_per_count,
+            u_volts: PointU::from_counts(Some(std), Some(32), volts_per_count),
+        })
+        .collect();
+    let fit = DiodeDetector::fit(&points, 300.0, 50.0).unwrap();
+    assert_close(fit.detector.n(), 1.06036, 1e-5, "n");
+    assert_close(fit.detector.vl(), 0.217198, 1e-5, "V_L");
+}
