@@ -55,7 +55,7 @@ fn case_points(case: &Value) -> Vec<CalPoint> {
 fn assert_close(got: f64, want: f64, rel: f64, what: &str) {
     assert!(
         (got - want).abs() <= rel * want.abs(),
-        "{what}: {got} against scipy's {want}"
+        "{what}: {got}, expected {want}"
     );
 }
 
@@ -352,4 +352,41 @@ fn a_weighted_diode_fit_along_a_narrow_valley_converges() {
     let fit = DiodeDetector::fit(&points, 300.0, 50.0).unwrap();
     assert_close(fit.detector.n(), 1.06036, 1e-5, "n");
     assert_close(fit.detector.vl(), 0.217198, 1e-5, "V_L");
+}
+
+// Source: the rule in docs/calibration.md ("The model term"): for weighted points the
+// residual term speaks only for the levels around it (the dB residuals interpolated), so
+// large residuals of the noisy bottom points do not spread to the quiet top. With every
+// uncertainty understated 20 times the chi-square test fails; at the top point the term
+// must be that point's own residual, far below the residuals' pooled deviation.
+#[test]
+fn noisy_bottom_points_do_not_widen_the_residual_term_at_the_top() {
+    let mut u = [0.0004; 9];
+    u[0] = 0.02;
+    u[1] = 0.02;
+    let understated: Vec<CalPoint> = noisy_line(&u, 11)
+        .into_iter()
+        .zip(u)
+        .map(|(p, u)| CalPoint {
+            u_volts: PointU::Standard(u / 20.0),
+            ..p
+        })
+        .collect();
+    let fit = LogAmpDetector::fit(&understated).unwrap();
+    let c = fit.covariance().unwrap();
+    assert!(c.residual_term);
+    let top = understated[8];
+    let own = (fit.dbm_at(top.volts) - top.dbm).abs();
+    assert_close(
+        c.residual_u_db(top.dbm),
+        own,
+        1e-12,
+        "the top point's own residual",
+    );
+    let errors: Vec<f64> = understated
+        .iter()
+        .map(|p| fit.dbm_at(p.volts) - p.dbm)
+        .collect();
+    let pooled = (errors.iter().map(|e| e * e).sum::<f64>() / 7.0).sqrt();
+    assert!(own < 0.2 * pooled, "own {own} against pooled {pooled}");
 }

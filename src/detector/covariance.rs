@@ -11,8 +11,9 @@
 //!   own scatter (χ²/(n − 2)) and the residual term is always added, since nothing says
 //!   the scatter is noise rather than a curve the model cannot follow.
 //!
-//! The residual term at a level is the larger of the residuals' standard deviation
-//! (√(Σr²/(n − 2)), dB) and the squared dB residuals interpolated linearly in level.
+//! The residual term at a level is the squared dB residuals interpolated linearly in
+//! level; for an unweighted fit, whose points count as equally well known in dB, it is at
+//! least the residuals' standard deviation √(Σr²/(n − 2)).
 
 use super::Weighting;
 
@@ -69,10 +70,14 @@ impl FitCovariance {
         if !self.residual_term {
             return 0.0;
         }
+        let local = squared_residual_at(&self.residuals_db, dbm);
+        if self.weighting != Weighting::Unweighted {
+            // Weighted points differ in how well they are known, so their dB residuals
+            // are not of one size: only the local ones speak for a level.
+            return local.sqrt();
+        }
         let pooled = self.residuals_db.iter().map(|(_, r)| r * r).sum::<f64>() / self.dof as f64;
-        pooled
-            .max(squared_residual_at(&self.residuals_db, dbm))
-            .sqrt()
+        pooled.max(local).sqrt()
     }
 
     /// The standard uncertainty the parameters give at a level where the model's dBm
