@@ -98,11 +98,6 @@ impl DiodeDetector {
         self
     }
 
-    /// The parameters' covariance and residuals, when the detector carries them.
-    pub fn covariance(&self) -> Option<&FitCovariance> {
-        self.covariance.as_ref()
-    }
-
     /// Ideality factor n.
     pub fn n(&self) -> f64 {
         self.n
@@ -284,6 +279,10 @@ impl Detector for DiodeDetector {
 
     /// The parameters' covariance propagated to the level (the gradient of the dBm read
     /// at that level's volts with respect to n and ln V_L), with the residual term.
+    fn covariance(&self) -> Option<&FitCovariance> {
+        self.covariance.as_ref()
+    }
+
     fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
         let covariance = self.covariance.as_ref()?;
         let volts = self.volts_at(detector_dbm);

@@ -81,11 +81,6 @@ impl LogAmpDetector {
         self
     }
 
-    /// The parameters' covariance and residuals, when the detector carries them.
-    pub fn covariance(&self) -> Option<&FitCovariance> {
-        self.covariance.as_ref()
-    }
-
     /// Slope in volts per dB.
     pub fn slope(&self) -> f64 {
         self.slope
@@ -111,6 +106,10 @@ impl Detector for LogAmpDetector {
     }
     /// dBm = (V − b0)/slope with b0 = −slope·intercept, so ∂dBm/∂slope = −(V − b0)/slope²
     /// and ∂dBm/∂b0 = −1/slope, propagated through the covariance, with the residual term.
+    fn covariance(&self) -> Option<&FitCovariance> {
+        self.covariance.as_ref()
+    }
+
     fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
         let covariance = self.covariance.as_ref()?;
         let b0 = -self.slope * self.intercept;

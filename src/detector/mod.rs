@@ -252,6 +252,10 @@ pub trait Detector: fmt::Debug + Send + Sync {
     fn model_u_db(&self, _detector_dbm: f64) -> Option<f64> {
         None
     }
+    /// The fitted parameters' covariance and residuals, for models with parameters.
+    fn covariance(&self) -> Option<&covariance::FitCovariance> {
+        None
+    }
 }
 
 /// Each point's error in dB: the model's dBm for the point's volts minus the applied dBm.
