@@ -220,7 +220,7 @@ pub fn fit_line_weighted(x: &[f64], y: &[f64], sigma: &[f64]) -> Option<Weighted
         sxx += w * (xi - mean_x) * (xi - mean_x);
         sxy += w * (xi - mean_x) * (yi - mean_y);
     }
-    if !(sxx > 0.0) {
+    if sxx.is_nan() || sxx <= 0.0 {
         return None;
     }
     let slope = sxy / sxx;

@@ -2,10 +2,10 @@
 
 mod common;
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
-fn fit(points: &str, out: &PathBuf) -> Output {
+fn fit(points: &str, out: &Path) -> Output {
     let mut args = vec!["fit", points, "--model", "log"];
     args.extend(common::FIT_ADC_AND_FREQ);
     args.extend(["--out", out.to_str().unwrap(), "--force"]);
@@ -42,7 +42,7 @@ fn points_file(name: &str, columns: bool) -> PathBuf {
     path
 }
 
-fn fitted_slope(out: &PathBuf) -> f64 {
+fn fitted_slope(out: &Path) -> f64 {
     dbtrail::profile::load_profile(out)
         .unwrap()
         .raw
