@@ -8,20 +8,10 @@ use dbtrail::detector::{
 use dbtrail::pchip::Pchip;
 use dbtrail::special::{i0, i0e, ln_i0, thermal_voltage};
 use dbtrail::units::{Power, VoltageForm};
-use serde_json::Value;
 
-fn fixture(name: &str) -> Value {
-    let path = format!("{}/tests/reference/{name}", env!("CARGO_MANIFEST_DIR"));
-    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
-}
+mod common;
 
-fn floats(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
+use common::{floats, reference_fixture as fixture};
 
 fn rel_err(got: f64, want: f64) -> f64 {
     if want == 0.0 {

@@ -9,20 +9,18 @@ use dbtrail::detector::{
 };
 use serde_json::Value;
 
+mod common;
+
+use common::{floats, reference_fixture};
+
 fn fixture() -> Value {
-    let path = format!(
-        "{}/tests/reference/weighted_fits.json",
-        env!("CARGO_MANIFEST_DIR")
-    );
-    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
+    reference_fixture("weighted_fits.json")
 }
 
-fn floats(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
+/// The fixture's fit cases of one model.
+fn cases_of(model: &str) -> Vec<Value> {
+    let cases = fixture()["cases"].as_array().unwrap().clone();
+    cases.into_iter().filter(|c| c["model"] == model).collect()
 }
 
 fn matrix(v: &Value) -> [[f64; 2]; 2] {
@@ -78,11 +76,7 @@ fn assert_covariance(got: [[f64; 2]; 2], want: [[f64; 2]; 2], rel: f64, what: &s
 // tests/reference/weighted_fits.json; the diode's parameters are (n, ln V_L).
 #[test]
 fn weighted_diode_fit_and_covariance_match_scipy_curve_fit() {
-    let data = fixture();
-    for case in data["cases"].as_array().unwrap() {
-        if case["model"] != "diode" {
-            continue;
-        }
+    for case in &cases_of("diode") {
         let points = case_points(case);
         let kelvin = case["kelvin"].as_f64().unwrap();
         let ohms = case["ohms"].as_f64().unwrap();
@@ -111,11 +105,7 @@ fn weighted_diode_fit_and_covariance_match_scipy_curve_fit() {
 // tests/reference/weighted_fits.json; the line's parameters are (slope, volts at 0 dBm).
 #[test]
 fn weighted_log_amp_fit_and_covariance_match_scipy_curve_fit() {
-    let data = fixture();
-    for case in data["cases"].as_array().unwrap() {
-        if case["model"] != "log" {
-            continue;
-        }
+    for case in &cases_of("log") {
         let fit = LogAmpDetector::fit(&case_points(case)).unwrap();
         let want = floats(&case["params"]);
         let what = format!("log, absolute_sigma={}", case["absolute_sigma"]);
