@@ -10,7 +10,7 @@ use thiserror::Error;
 
 use crate::adc::Adc;
 use crate::calibration::Calibration;
-use crate::detector::{ordered_points, CalPoint, ModelError, ModelKind};
+use crate::detector::{ordered_points, CalPoint, ModelError, ModelKind, PointU};
 use crate::numeric::fit_line;
 use crate::profile::raw::{
     FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile,
@@ -306,6 +306,11 @@ impl Session {
             .map(|p| CalPoint {
                 dbm: p.level.power(self.ohms()).dbm(),
                 volts: adc.volts(p.measured.counts),
+                u_volts: PointU::from_counts(
+                    Some(p.measured.std_counts),
+                    Some(p.measured.samples),
+                    adc.volts_per_count(),
+                ),
             })
             .collect()
     }

@@ -1,5 +1,6 @@
 //! Small numerical tools the models share: bracketed root finders, straight-line least
-//! squares with standard errors, and a two-parameter Levenberg–Marquardt fit.
+//! squares (plain and weighted) with standard errors, and a two-parameter
+//! Levenberg–Marquardt fit with the covariance of its parameters.
 
 use thiserror::Error;
 
@@ -186,6 +187,62 @@ pub fn fit_line(x: &[f64], y: &[f64]) -> Option<LineFit> {
     })
 }
 
+/// A straight line y = slope·x + intercept fitted by weighted least squares.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WeightedLine {
+    /// Slope.
+    pub slope: f64,
+    /// Intercept.
+    pub intercept: f64,
+    /// (JᵀWJ)⁻¹ for (slope, intercept): their covariance when the weights are 1/σ² of
+    /// each y, before any scaling by the residuals.
+    pub unscaled_covariance: [[f64; 2]; 2],
+    /// Σ((y − line)/σ)².
+    pub weighted_sse: f64,
+}
+
+/// Weighted least-squares line through (x, y) with y's standard uncertainties `sigma`
+/// (weights 1/σ²), in centred form so that large x do not cost precision. None when x has
+/// no spread or a σ is not positive.
+pub fn fit_line_weighted(x: &[f64], y: &[f64], sigma: &[f64]) -> Option<WeightedLine> {
+    if x.len() < 2 || x.len() != y.len() || x.len() != sigma.len() {
+        return None;
+    }
+    if !sigma.iter().all(|s| s.is_finite() && *s > 0.0) {
+        return None;
+    }
+    let weights: Vec<f64> = sigma.iter().map(|s| 1.0 / (s * s)).collect();
+    let total: f64 = weights.iter().sum();
+    let weighted_mean = |v: &[f64]| v.iter().zip(&weights).map(|(a, w)| a * w).sum::<f64>() / total;
+    let (mean_x, mean_y) = (weighted_mean(x), weighted_mean(y));
+    let (mut sxx, mut sxy) = (0.0, 0.0);
+    for ((xi, yi), w) in x.iter().zip(y).zip(&weights) {
+        sxx += w * (xi - mean_x) * (xi - mean_x);
+        sxy += w * (xi - mean_x) * (yi - mean_y);
+    }
+    if sxx.is_nan() || sxx <= 0.0 {
+        return None;
+    }
+    let slope = sxy / sxx;
+    let intercept = mean_y - slope * mean_x;
+    let weighted_sse = x
+        .iter()
+        .zip(y)
+        .zip(&weights)
+        .map(|((xi, yi), w)| w * (yi - intercept - slope * xi).powi(2))
+        .sum();
+    let cross = -mean_x / sxx;
+    Some(WeightedLine {
+        slope,
+        intercept,
+        unscaled_covariance: [
+            [1.0 / sxx, cross],
+            [cross, 1.0 / total + mean_x * mean_x / sxx],
+        ],
+        weighted_sse,
+    })
+}
+
 /// The outcome of a least-squares fit of two parameters.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Fit2 {
@@ -244,9 +301,23 @@ pub fn levenberg_marquardt(
                 let small_step =
                     (0..2).all(|i| (trial[i] - p[i]).abs() <= 1e-12 * (1.0 + p[i].abs()));
                 let small_gain = sse - trial_sse <= 1e-14 * sse + 1e-30;
+                // How much of the reduction the linear model promised came true: a step
+                // that overshoots across a narrow curved valley lowers the SSE a little
+                // yet far less than promised, and more damping stops the zig-zag.
+                let promised = -2.0 * (step[0] * jtr[0] + step[1] * jtr[1])
+                    - (0..2)
+                        .map(|a| step[a] * (jtj[a][0] * step[0] + jtj[a][1] * step[1]))
+                        .sum::<f64>();
+                let gain = (sse - trial_sse) / promised;
                 p = trial;
                 sse = sse_at(p, &mut r);
-                lambda = (lambda / 3.0).max(1e-12);
+                lambda = if gain > 0.75 {
+                    (lambda / 3.0).max(1e-12)
+                } else if gain < 0.25 {
+                    lambda * 2.0
+                } else {
+                    lambda
+                };
                 improved = true;
                 if small_step || small_gain {
                     return Fit2 {
@@ -276,6 +347,30 @@ pub fn levenberg_marquardt(
         iterations: 300,
         converged: false,
     }
+}
+
+/// (JᵀJ)⁻¹ at `params` for the residuals of a fit, with a central-difference Jacobian:
+/// the parameters' covariance when each residual is divided by its standard uncertainty.
+/// None where the model cannot be evaluated or JᵀJ is singular.
+pub fn unscaled_covariance(
+    residuals: &impl Fn([f64; 2], &mut [f64]) -> bool,
+    count: usize,
+    params: [f64; 2],
+) -> Option<[[f64; 2]; 2]> {
+    let mut scratch = vec![0.0; count];
+    let mut jac = vec![[0.0; 2]; count];
+    if !jacobian(residuals, params, &mut scratch, &mut jac) {
+        return None;
+    }
+    let (jtj, _) = normal_equations(&jac, &scratch);
+    let det = jtj[0][0] * jtj[1][1] - jtj[0][1] * jtj[1][0];
+    if !det.is_normal() || det < 0.0 {
+        return None;
+    }
+    Some([
+        [jtj[1][1] / det, -jtj[0][1] / det],
+        [-jtj[1][0] / det, jtj[0][0] / det],
+    ])
 }
 
 fn jacobian(

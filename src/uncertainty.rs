@@ -109,16 +109,84 @@ impl Budget {
     }
 }
 
+/// dB per neper-like unit of a small reflection product: 20/ln 10 = 8.686 dB, the slope
+/// of 20·log10(1 + x) at x = 0.
+const DB_PER_UNIT: f64 = 20.0 / std::f64::consts::LN_10;
+
+/// The limits of the mismatch error between a source and a load of reflections `gamma_s`
+/// and `gamma_l`: (20·log10(1 + |Γs||Γl|), 20·log10(1 − |Γs||Γl|)) dB, when the phases
+/// line up one way or the other.
+pub fn mismatch_limits_db(gamma_s: f64, gamma_l: f64) -> (f64, f64) {
+    let product = gamma_s * gamma_l;
+    (
+        20.0 * (1.0 + product).log10(),
+        20.0 * (1.0 - product).log10(),
+    )
+}
+
+/// The standard uncertainty of a mismatch of unknown phase: the U-shaped (arcsine)
+/// distribution of half-width 8.686·|Γs||Γl| dB has standard deviation 8.686·|Γs||Γl|/√2.
+pub fn mismatch_u_db(gamma_s: f64, gamma_l: f64) -> f64 {
+    DB_PER_UNIT * gamma_s * gamma_l / std::f64::consts::SQRT_2
+}
+
+/// A reflection |Γ| seen through a pad of `pad_db` dB: the wave crosses the pad twice, so
+/// the return loss improves by 2·`pad_db` and |Γ| falls by 10^(−pad_db/10).
+pub fn gamma_through_pad(gamma: f64, pad_db: f64) -> f64 {
+    gamma * 10f64.powf(-pad_db.max(0.0) / 10.0)
+}
+
 /// A profile's uncertainty made ready at one frequency and offset.
 #[derive(Debug, Clone)]
 pub struct Uncertainty {
     cal: Calibration,
+    /// The terms that do not depend on the level, in [`TermKind`] order.
+    fixed: Vec<Term>,
+    /// The level-independent terms whose input is missing.
+    fixed_missing: Vec<TermKind>,
 }
 
 impl Uncertainty {
-    /// Prepares the budget of `profile` as calibrated by `cal`.
-    pub fn new(_profile: &Profile, cal: &Calibration) -> Self {
-        Uncertainty { cal: cal.clone() }
+    /// Prepares the budget of `profile` as calibrated by `cal` (at its frequency and with
+    /// its offset in use).
+    pub fn new(profile: &Profile, cal: &Calibration) -> Self {
+        let inputs = &profile.uncertainty;
+        let hz = cal.freq_hz();
+        let gamma = |table: &Option<FreqTable>, at: f64| table.as_ref().map(|t| t.at(at).db);
+        let offset_in_use = cal.offset_db();
+        let calibration_mismatch = gamma(&inputs.source_gamma, profile.reference_hz)
+            .zip(gamma(&inputs.detector_gamma, profile.reference_hz))
+            .map(|(s, d)| mismatch_u_db(s, d));
+        let use_mismatch = gamma(&inputs.dut_gamma, hz)
+            .zip(load_gamma(inputs, hz, offset_in_use))
+            .map(|(dut, load)| mismatch_u_db(dut, load));
+        let offset = match inputs.offset_u_db {
+            Some(u) => Known::Value(u),
+            None if offset_in_use == 0.0 => Known::NotNeeded,
+            None => Known::Missing,
+        };
+        let interpolation = match &profile.frequency_correction {
+            Some(table) => Some(table.interpolation_u_db(hz)),
+            None => (hz == profile.reference_hz).then_some(0.0),
+        };
+        let mut fixed = Vec::new();
+        let mut fixed_missing = Vec::new();
+        let mut put = |kind: TermKind, known: Known| match known {
+            Known::Value(u_db) => fixed.push(Term { kind, u_db }),
+            Known::Missing => fixed_missing.push(kind),
+            Known::NotNeeded => {}
+        };
+        put(TermKind::Source, inputs.source_u_db.into());
+        put(TermKind::MismatchCalibration, calibration_mismatch.into());
+        put(TermKind::MismatchUse, use_mismatch.into());
+        put(TermKind::Offset, offset);
+        put(TermKind::FrequencyInterpolation, interpolation.into());
+        put(TermKind::Temperature, Known::Missing);
+        Uncertainty {
+            cal: cal.clone(),
+            fixed,
+            fixed_missing,
+        }
     }
 
     /// The budget of a reading or mean at `dbm` (reference plane), with the samples'
@@ -126,10 +194,14 @@ impl Uncertainty {
     pub fn budget(&self, dbm: f64, noise: Option<Noise>) -> Budget {
         let per_count = self.cal.db_per_count(dbm);
         let mut budget = Budget::default();
-        budget.terms.push(Term {
-            kind: TermKind::Quantisation,
-            u_db: per_count / 12f64.sqrt(),
-        });
+        // Noise of half a count or more dithers the steps away in a mean; below that the
+        // steps stay.
+        if noise.is_none_or(|n| n.sigma_counts < 0.5) {
+            budget.terms.push(Term {
+                kind: TermKind::Quantisation,
+                u_db: per_count / 12f64.sqrt(),
+            });
+        }
         match noise {
             Some(n) => budget.terms.push(Term {
                 kind: TermKind::Noise,
@@ -137,15 +209,52 @@ impl Uncertainty {
             }),
             None => budget.missing.push(TermKind::Noise),
         }
-        budget.missing.extend([
-            TermKind::Model,
-            TermKind::Source,
-            TermKind::MismatchCalibration,
-            TermKind::MismatchUse,
-            TermKind::Offset,
-            TermKind::FrequencyInterpolation,
-            TermKind::Temperature,
-        ]);
+        let detector_dbm = dbm - self.cal.correction_db() - self.cal.offset_db();
+        match self.cal.detector().model_u_db(detector_dbm) {
+            Some(u_db) => budget.terms.push(Term {
+                kind: TermKind::Model,
+                u_db,
+            }),
+            None => budget.missing.push(TermKind::Model),
+        }
+        budget.terms.extend_from_slice(&self.fixed);
+        budget.missing.extend_from_slice(&self.fixed_missing);
         budget
+    }
+}
+
+/// What is known of a level-independent term.
+enum Known {
+    /// Its standard uncertainty, dB.
+    Value(f64),
+    /// An input it needs is missing.
+    Missing,
+    /// Nothing it covers is there (no offset in use).
+    NotNeeded,
+}
+
+impl From<Option<f64>> for Known {
+    fn from(value: Option<f64>) -> Self {
+        value.map_or(Known::Missing, Known::Value)
+    }
+}
+
+/// |Γ| of the load the device under test sees at the reference plane, when known:
+/// through an attenuator, the detector's reflection reduced by the pad's loss twice plus
+/// the pad's own input reflection when given (the two added, as when their phases line
+/// up); in front of anything else, that thing's own input reflection; with nothing in
+/// front (no offset), the detector's.
+fn load_gamma(inputs: &Inputs, hz: f64, offset_db: f64) -> Option<f64> {
+    let at = |table: &Option<FreqTable>| table.as_ref().map(|t| t.at(hz).db);
+    let detector = at(&inputs.detector_gamma);
+    let front = at(&inputs.front_gamma);
+    if inputs.front_is_attenuator {
+        let through = gamma_through_pad(detector?, offset_db);
+        return Some((front.unwrap_or(0.0) + through).min(1.0));
+    }
+    match front {
+        Some(front) => Some(front),
+        None if offset_db == 0.0 => detector,
+        None => None,
     }
 }

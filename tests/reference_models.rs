@@ -8,20 +8,10 @@ use dbtrail::detector::{
 use dbtrail::pchip::Pchip;
 use dbtrail::special::{i0, i0e, ln_i0, thermal_voltage};
 use dbtrail::units::{Power, VoltageForm};
-use serde_json::Value;
 
-fn fixture(name: &str) -> Value {
-    let path = format!("{}/tests/reference/{name}", env!("CARGO_MANIFEST_DIR"));
-    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
-}
+mod common;
 
-fn floats(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
+use common::{floats, reference_fixture as fixture};
 
 fn rel_err(got: f64, want: f64) -> f64 {
     if want == 0.0 {
@@ -163,10 +153,7 @@ fn diode_square_law_and_linear_limits() {
 
 fn diode_points(det: &DiodeDetector, levels: impl Iterator<Item = f64>) -> Vec<CalPoint> {
     levels
-        .map(|dbm| CalPoint {
-            dbm,
-            volts: det.volts_at(dbm),
-        })
+        .map(|dbm| CalPoint::new(dbm, det.volts_at(dbm)))
         .collect()
 }
 
@@ -280,7 +267,7 @@ mod properties {
             let mut volts = 0.005;
             let points: Vec<CalPoint> = steps.iter().enumerate().map(|(i, s)| {
                 volts += s;
-                CalPoint { dbm: -30.0 + 3.0 * i as f64, volts }
+                CalPoint::new(-30.0 + 3.0 * i as f64, volts)
             }).collect();
             for axis in [Axis::LogVolts, Axis::Volts] {
                 let table = TableDetector::new(&points, axis).unwrap();

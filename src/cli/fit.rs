@@ -5,6 +5,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
+use dbtrail::detector::Weighting;
 use dbtrail::points::{read_points, PointRow};
 use dbtrail::printable::escape_controls;
 use dbtrail::profile::raw::{FreqValue, RawAdc, RawModel, RawProfile};
@@ -84,9 +85,38 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let cal = Calibration::new(&profile, None, 0.0);
     let mut report = summary::setup(&profile, &cal);
     report.push_str(&summary::residuals(&profile));
+    report.push_str(&weighting_note(&profile));
     let shown = args.out.display().to_string();
     report.push_str(&format!("\nWrote {}.\n", escape_controls(&shown)));
     emit(&report)
+}
+
+/// How the fit weighed the points and what its residuals said of the stated noise.
+fn weighting_note(profile: &Profile) -> String {
+    let Some(fit) = profile.model.detector.covariance() else {
+        return String::new();
+    };
+    let how = match fit.weighting {
+        Weighting::Absolute => "weighted by each point's std_counts/√samples",
+        Weighting::Relative => {
+            "weighted by each point's std_counts (no samples column, so only relative weights)"
+        }
+        Weighting::Unweighted => {
+            "unweighted (give std_counts and samples for every point to weight it)"
+        }
+    };
+    let verdict = match (fit.weighting, fit.residual_term) {
+        (Weighting::Absolute, false) => "the scatter is what the stated noise explains",
+        (Weighting::Absolute, true) => {
+            "more scatter than the stated noise explains: the model's uncertainty is widened \
+             by the residuals (re-measure, or check that the model suits the detector)"
+        }
+        _ => "the scatter sets the model's uncertainty",
+    };
+    format!(
+        "\nFit {how}; χ²/(n − 2) = {:.3} over {} degrees of freedom: {verdict}.\n",
+        fit.reduced_chi2, fit.dof
+    )
 }
 
 /// `--name`, else the output file's stem; refused when it holds a control character,

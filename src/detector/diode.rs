@@ -5,8 +5,14 @@
 //! overflows: ln(1 + Vo/V_L) + Vo/(n·Vt) = ln I0(Vpk/(n·Vt)). Both sides rise monotonically,
 //! so either direction is a one-dimensional bracketed root.
 
-use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind, MAX_FIT_RMS_DB};
-use crate::numeric::{levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton};
+use super::covariance::{gradient, FitCovariance};
+use super::{
+    ordered_points, point_u_volts, residuals_db, rms, CalPoint, Detector, ModelError, ModelKind,
+    Weighting, MAX_FIT_RMS_DB,
+};
+use crate::numeric::{
+    levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton, unscaled_covariance,
+};
 use crate::special::{ln_i0, ln_i0_and_slope, thermal_voltage};
 use crate::units::{watts_to_dbm, Power};
 
@@ -25,6 +31,7 @@ pub struct DiodeDetector {
     ohms: f64,
     n_vt: f64,
     span: (f64, f64),
+    covariance: Option<FitCovariance>,
 }
 
 /// A diode fit and how it went.
@@ -49,7 +56,46 @@ impl DiodeDetector {
             ohms,
             n_vt: n * thermal_voltage(kelvin),
             span,
+            covariance: None,
         }
+    }
+
+    /// The same detector, carrying the covariance that `points` give its parameters
+    /// (n, ln V_L) at their present values, with the weighting the points allow. For a
+    /// fit this is the fit's own covariance; for parameters given from elsewhere it is what
+    /// the points say about parameters near those, and a misfit enlarges it through the
+    /// residuals. Unchanged when V_L is infinite or the curve cannot be evaluated there.
+    pub fn with_covariance(mut self, points: &[CalPoint]) -> Self {
+        let params = [self.n, self.vl.ln()];
+        if !params.iter().all(|p| p.is_finite()) {
+            return self;
+        }
+        let weighting = Weighting::of(points);
+        let u = point_u_volts(points, weighting);
+        let residuals = |p: [f64; 2], out: &mut [f64]| {
+            let model = DiodeDetector::new(p[0], p[1].exp(), self.kelvin, self.ohms, self.span);
+            fit_residuals(&model, points, &u, weighting, out)
+        };
+        let mut r = vec![0.0; points.len()];
+        if !residuals(params, &mut r) {
+            return self;
+        }
+        let Some(unscaled) = unscaled_covariance(&residuals, points.len(), params) else {
+            return self;
+        };
+        let weighted_sse = r.iter().map(|v| v * v).sum();
+        let by_level = points
+            .iter()
+            .zip(residuals_db(&self, points))
+            .map(|(p, e)| (p.dbm, e))
+            .collect();
+        self.covariance = Some(FitCovariance::new(
+            weighting,
+            unscaled,
+            weighted_sse,
+            by_level,
+        ));
+        self
     }
 
     /// Ideality factor n.
@@ -102,7 +148,9 @@ impl DiodeDetector {
         x * self.n_vt
     }
 
-    /// Fits n and ln V_L to at least four points by Levenberg–Marquardt on the dB residuals.
+    /// Fits n and ln V_L to at least four points by Levenberg–Marquardt: on the volts
+    /// residuals divided by each point's uncertainty when every point has one, else on the
+    /// dB residuals with equal weights. The fitted detector carries its covariance.
     pub fn fit(points: &[CalPoint], kelvin: f64, ohms: f64) -> Result<DiodeFit, ModelError> {
         let sorted = ordered_points(points, ModelKind::Diode)?;
         if let Some(index) = points.iter().position(|p| p.volts <= 0.0) {
@@ -113,14 +161,11 @@ impl DiodeDetector {
             });
         }
         let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
+        let weighting = Weighting::of(&sorted);
+        let u = point_u_volts(&sorted, weighting);
         let model = |p: [f64; 2]| DiodeDetector::new(p[0], p[1].exp(), kelvin, ohms, span);
-        let residuals = |p: [f64; 2], out: &mut [f64]| {
-            let det = model(p);
-            for (slot, point) in out.iter_mut().zip(&sorted) {
-                *slot = det.dbm_at(point.volts) - point.dbm;
-            }
-            out.iter().all(|r| r.is_finite())
-        };
+        let residuals =
+            |p: [f64; 2], out: &mut [f64]| fit_residuals(&model(p), &sorted, &u, weighting, out);
         let bounds = [N_BOUNDS, (VL_BOUNDS.0.ln(), VL_BOUNDS.1.ln())];
         // Several valleys can exist; descending from the best few grid points finds the
         // deepest one.
@@ -129,18 +174,18 @@ impl DiodeDetector {
             .map(|start| levenberg_marquardt(&residuals, sorted.len(), start, bounds))
             .min_by(|a, b| a.sse.total_cmp(&b.sse))
             .expect("the grid always yields a start");
+        let detector = model(fit.params);
+        let rms_db = rms(&residuals_db(&detector, &sorted));
         if !fit.converged || !fit.sse.is_finite() {
             return Err(ModelError::FitFailed {
                 model: ModelKind::Diode,
                 reason: format!(
-                    "no convergence after {} iterations (RMS error {:.3} dB); check that all \
-                     points come from one detector and ADC set-up, or use the table model",
+                    "no convergence after {} iterations (RMS error {rms_db:.3} dB); check that \
+                     all points come from one detector and ADC set-up, or use the table model",
                     fit.iterations,
-                    (fit.sse / sorted.len() as f64).sqrt()
                 ),
             });
         }
-        let rms_db = (fit.sse / sorted.len() as f64).sqrt();
         if rms_db > MAX_FIT_RMS_DB {
             return Err(ModelError::FitFailed {
                 model: ModelKind::Diode,
@@ -160,11 +205,33 @@ impl DiodeDetector {
             at_bound.push("vl");
         }
         Ok(DiodeFit {
-            detector: model(fit.params),
+            detector: detector.with_covariance(&sorted),
             iterations: fit.iterations,
             at_bound,
         })
     }
+}
+
+/// The residuals a diode fit minimises: (model volts − measured volts)/u for weighted
+/// points, since the noise is in the counts; model dBm − applied dBm for unweighted ones,
+/// so that no level dominates by the size of its output. False where the curve cannot
+/// be evaluated.
+fn fit_residuals(
+    model: &DiodeDetector,
+    points: &[CalPoint],
+    u: &[f64],
+    weighting: Weighting,
+    out: &mut [f64],
+) -> bool {
+    for ((slot, point), u) in out.iter_mut().zip(points).zip(u) {
+        *slot = match weighting {
+            Weighting::Unweighted => model.dbm_at(point.volts) - point.dbm,
+            Weighting::Relative | Weighting::Absolute => {
+                (model.volts_at(point.dbm) - point.volts) / u
+            }
+        };
+    }
+    out.iter().all(|r| r.is_finite())
 }
 
 /// The best few points of a coarse grid of starting values, one per ideality factor.
@@ -208,5 +275,21 @@ impl Detector for DiodeDetector {
 
     fn span_dbm(&self) -> (f64, f64) {
         self.span
+    }
+
+    /// The parameters' covariance propagated to the level (the gradient of the dBm read
+    /// at that level's volts with respect to n and ln V_L), with the residual term.
+    fn covariance(&self) -> Option<&FitCovariance> {
+        self.covariance.as_ref()
+    }
+
+    fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
+        let covariance = self.covariance.as_ref()?;
+        let volts = self.volts_at(detector_dbm);
+        let (kelvin, ohms, span) = (self.kelvin, self.ohms, self.span);
+        let dbm_with =
+            |p: [f64; 2]| DiodeDetector::new(p[0], p[1].exp(), kelvin, ohms, span).dbm_at(volts);
+        let g = gradient(dbm_with, [self.n, self.vl.ln()]);
+        Some(covariance.u_db(g, detector_dbm)).filter(|u| u.is_finite())
     }
 }

@@ -1,9 +1,14 @@
 //! The log-amp model: the output is a straight line in dB, V = slope·(P_dBm − intercept),
-//! with slope and intercept fitted by least squares. Each point's conformance error (how
-//! far the real curve bends away from the line) is reported in dB.
+//! with slope and intercept fitted by least squares, weighted by each point's volts
+//! uncertainty when every point has one. Each point's conformance error (how far the real
+//! curve bends away from the line) is reported in dB.
 
-use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
-use crate::numeric::fit_line;
+use super::covariance::FitCovariance;
+use super::{
+    ordered_points, point_u_volts, residuals_db, CalPoint, Detector, ModelError, ModelKind,
+    Weighting,
+};
+use crate::numeric::fit_line_weighted;
 
 /// A logarithmic-amplifier detector.
 #[derive(Debug, Clone, PartialEq)]
@@ -11,6 +16,7 @@ pub struct LogAmpDetector {
     slope: f64,
     intercept: f64,
     span: (f64, f64),
+    covariance: Option<FitCovariance>,
 }
 
 impl LogAmpDetector {
@@ -21,23 +27,58 @@ impl LogAmpDetector {
             slope,
             intercept,
             span,
+            covariance: None,
         }
     }
 
-    /// Fits slope and intercept to at least three points by least squares of volts on dBm.
+    /// Fits slope and intercept to at least three points by least squares of volts on
+    /// dBm (weighted when every point has an uncertainty); the fitted detector carries
+    /// its covariance.
     pub fn fit(points: &[CalPoint]) -> Result<Self, ModelError> {
         let sorted = ordered_points(points, ModelKind::Log)?;
         let dbm: Vec<f64> = sorted.iter().map(|p| p.dbm).collect();
         let volts: Vec<f64> = sorted.iter().map(|p| p.volts).collect();
-        let line = fit_line(&dbm, &volts).ok_or_else(|| ModelError::FitFailed {
+        let u = point_u_volts(&sorted, Weighting::of(&sorted));
+        let line = fit_line_weighted(&dbm, &volts, &u).ok_or_else(|| ModelError::FitFailed {
             model: ModelKind::Log,
             reason: "the applied levels have no spread".into(),
         })?;
-        Ok(LogAmpDetector {
-            slope: line.slope,
-            intercept: -line.intercept / line.slope,
-            span: (dbm[0], dbm[dbm.len() - 1]),
-        })
+        let span = (dbm[0], dbm[dbm.len() - 1]);
+        Ok(
+            LogAmpDetector::new(line.slope, -line.intercept / line.slope, span)
+                .with_covariance(&sorted),
+        )
+    }
+
+    /// The same detector, carrying the covariance that `points` give the line's slope and
+    /// zero-dBm output (the line's own pair, V = slope·P + b0) and the residuals at the
+    /// present slope and intercept: for a fit, the fit's own; for given parameters, what
+    /// the points say about a line near them.
+    pub fn with_covariance(mut self, points: &[CalPoint]) -> Self {
+        let weighting = Weighting::of(points);
+        let u = point_u_volts(points, weighting);
+        let dbm: Vec<f64> = points.iter().map(|p| p.dbm).collect();
+        let volts: Vec<f64> = points.iter().map(|p| p.volts).collect();
+        let Some(line) = fit_line_weighted(&dbm, &volts, &u) else {
+            return self;
+        };
+        let weighted_sse = points
+            .iter()
+            .zip(&u)
+            .map(|(p, u)| ((self.volts_at(p.dbm) - p.volts) / u).powi(2))
+            .sum();
+        let by_level = dbm
+            .iter()
+            .copied()
+            .zip(residuals_db(&self, points))
+            .collect();
+        self.covariance = Some(FitCovariance::new(
+            weighting,
+            line.unscaled_covariance,
+            weighted_sse,
+            by_level,
+        ));
+        self
     }
 
     /// Slope in volts per dB.
@@ -63,6 +104,19 @@ impl Detector for LogAmpDetector {
     fn span_dbm(&self) -> (f64, f64) {
         self.span
     }
+    /// dBm = (V − b0)/slope with b0 = −slope·intercept, so ∂dBm/∂slope = −(V − b0)/slope²
+    /// and ∂dBm/∂b0 = −1/slope, propagated through the covariance, with the residual term.
+    fn covariance(&self) -> Option<&FitCovariance> {
+        self.covariance.as_ref()
+    }
+
+    fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
+        let covariance = self.covariance.as_ref()?;
+        let b0 = -self.slope * self.intercept;
+        let volts = self.volts_at(detector_dbm);
+        let g = [-(volts - b0) / (self.slope * self.slope), -1.0 / self.slope];
+        Some(covariance.u_db(g, detector_dbm)).filter(|u| u.is_finite())
+    }
 }
 
 #[cfg(test)]
@@ -76,10 +130,7 @@ mod tests {
     fn exact_fit_on_linear_data() {
         let points: Vec<CalPoint> = (-60..=0)
             .step_by(10)
-            .map(|p| CalPoint {
-                dbm: f64::from(p),
-                volts: 0.025 * (f64::from(p) + 84.0),
-            })
+            .map(|p| CalPoint::new(f64::from(p), 0.025 * (f64::from(p) + 84.0)))
             .collect();
         let det = LogAmpDetector::fit(&points).unwrap();
         assert!((det.slope() - 0.025).abs() < 1e-14);
@@ -96,10 +147,7 @@ mod tests {
         let b = 0.3;
         let points: Vec<CalPoint> = [-1.0, 0.0, 1.0]
             .iter()
-            .map(|&u: &f64| CalPoint {
-                dbm: 10.0 * u - 30.0,
-                volts: 1.0 + 0.04 * (u + b * u * u),
-            })
+            .map(|&u: &f64| CalPoint::new(10.0 * u - 30.0, 1.0 + 0.04 * (u + b * u * u)))
             .collect();
         let det = LogAmpDetector::fit(&points).unwrap();
         let errors = residuals_db(&det, &points);

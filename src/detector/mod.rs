@@ -5,6 +5,7 @@
 //! logarithmic-amplifier line ([`log_amp`]) and the exponential-diode peak detector
 //! ([`diode`]). Fits and their residuals live here too, since they belong to the model.
 
+pub mod covariance;
 pub mod diode;
 pub mod log_amp;
 pub mod table;
@@ -73,6 +74,106 @@ pub struct CalPoint {
     pub dbm: f64,
     /// Detector output, volts.
     pub volts: f64,
+    /// How well `volts` is known.
+    pub u_volts: PointU,
+}
+
+impl CalPoint {
+    /// A point whose volts have no stated uncertainty.
+    pub fn new(dbm: f64, volts: f64) -> Self {
+        CalPoint {
+            dbm,
+            volts,
+            u_volts: PointU::Unknown,
+        }
+    }
+}
+
+/// The standard uncertainty of a calibration point's volts (the mean of its counts).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum PointU {
+    /// Nothing is known: the point is weighted like every other.
+    #[default]
+    Unknown,
+    /// Known up to a factor common to all points (the counts' spread was stored, but not
+    /// how many samples went into the mean), volts.
+    Relative(f64),
+    /// A standard uncertainty, volts.
+    Standard(f64),
+}
+
+impl PointU {
+    /// From a point's stored counts: u = std_counts/√samples, with the quantisation of
+    /// one count (1/√12) added in quadrature when the spread is below half a count, where
+    /// averaging no longer smooths the steps away. Without `samples` the figure is only
+    /// relative (as if from one sample); without `std_counts` nothing is known.
+    pub fn from_counts(
+        std_counts: Option<f64>,
+        samples: Option<u64>,
+        volts_per_count: f64,
+    ) -> Self {
+        let Some(std) = std_counts else {
+            return PointU::Unknown;
+        };
+        let per_sample = samples.map_or(1.0, |n| n.max(1) as f64);
+        let quantisation = if std < 0.5 { 1.0 / 12.0 } else { 0.0 };
+        let u = (std * std / per_sample + quantisation).sqrt() * volts_per_count;
+        match samples {
+            Some(_) => PointU::Standard(u),
+            None => PointU::Relative(u),
+        }
+    }
+
+    fn value(self) -> Option<f64> {
+        match self {
+            PointU::Unknown => None,
+            PointU::Relative(u) | PointU::Standard(u) => Some(u),
+        }
+    }
+}
+
+/// How a fit weighs its points, decided over all of them.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Weighting {
+    /// Some point has no uncertainty: every point weighs the same (in dB for the diode,
+    /// in volts for the log-amp line); the scatter of the residuals sets the covariance.
+    Unweighted,
+    /// Every point has a relative uncertainty: weights 1/u², and the scatter of the
+    /// weighted residuals sets the covariance's scale.
+    Relative,
+    /// Every point has a standard uncertainty: weights 1/u², and the covariance stands as
+    /// it is unless the residuals fail the chi-square test.
+    Absolute,
+}
+
+impl Weighting {
+    /// The weighting a set of points allows.
+    pub fn of(points: &[CalPoint]) -> Self {
+        if points
+            .iter()
+            .all(|p| matches!(p.u_volts, PointU::Standard(u) if u > 0.0))
+        {
+            Weighting::Absolute
+        } else if points
+            .iter()
+            .all(|p| p.u_volts.value().is_some_and(|u| u > 0.0))
+        {
+            Weighting::Relative
+        } else {
+            Weighting::Unweighted
+        }
+    }
+}
+
+/// Each point's volts uncertainty under `weighting` (1 for every point when unweighted).
+pub fn point_u_volts(points: &[CalPoint], weighting: Weighting) -> Vec<f64> {
+    points
+        .iter()
+        .map(|p| match weighting {
+            Weighting::Unweighted => 1.0,
+            _ => p.u_volts.value().unwrap_or(1.0),
+        })
+        .collect()
 }
 
 /// Why a model could not be built from its points or parameters.
@@ -149,6 +250,10 @@ pub trait Detector: fmt::Debug + Send + Sync {
     /// far the curve may be from the detector's true one there (from the fit's residuals
     /// and its parameters' covariance). None when the model cannot say.
     fn model_u_db(&self, _detector_dbm: f64) -> Option<f64> {
+        None
+    }
+    /// The fitted parameters' covariance and residuals, for models with parameters.
+    fn covariance(&self) -> Option<&covariance::FitCovariance> {
         None
     }
 }
@@ -232,7 +337,7 @@ mod tests {
     use super::*;
 
     fn pt(dbm: f64, volts: f64) -> CalPoint {
-        CalPoint { dbm, volts }
+        CalPoint::new(dbm, volts)
     }
 
     #[test]

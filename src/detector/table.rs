@@ -54,11 +54,26 @@ pub struct TableDetector {
     axis: Axis,
     curve: Pchip,
     span: (f64, f64),
+    /// (applied dBm, |leave-one-out error| dB) of each interior point, rising in level.
+    left_out_db: Vec<(f64, f64)>,
 }
 
 impl TableDetector {
-    /// Builds the table from at least two points with strictly monotone output.
+    /// Builds the table from at least two points with strictly monotone output, with
+    /// each interior point's leave-one-out error kept for [`Detector::model_u_db`].
     pub fn new(points: &[CalPoint], axis: Axis) -> Result<Self, ModelError> {
+        let mut table = Self::build(points, axis)?;
+        let mut left_out: Vec<(f64, f64)> = points
+            .iter()
+            .zip(leave_one_out_db(points, axis))
+            .filter_map(|(p, e)| e.map(|e| (p.dbm, e.abs())))
+            .collect();
+        left_out.sort_by(|a, b| a.0.total_cmp(&b.0));
+        table.left_out_db = left_out;
+        Ok(table)
+    }
+
+    fn build(points: &[CalPoint], axis: Axis) -> Result<Self, ModelError> {
         if axis == Axis::LogVolts {
             if let Some(index) = points.iter().position(|p| p.volts <= 0.0) {
                 return Err(ModelError::NonPositiveOutput {
@@ -77,7 +92,12 @@ impl TableDetector {
             model: ModelKind::Table,
             reason: "the points do not form a usable curve (non-finite values)".into(),
         })?;
-        Ok(TableDetector { axis, curve, span })
+        Ok(TableDetector {
+            axis,
+            curve,
+            span,
+            left_out_db: Vec::new(),
+        })
     }
 
     /// The interpolation axis.
@@ -143,6 +163,24 @@ impl Detector for TableDetector {
     fn span_dbm(&self) -> (f64, f64) {
         self.span
     }
+
+    /// The interior points' leave-one-out errors interpolated linearly in level, held at
+    /// the outermost ones' values towards the ends; None with no interior point. A table
+    /// with every other point left out has twice the spacing, so this overstates the full
+    /// table's error between points: a cautious figure, never a hidden one.
+    fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
+        let errors = &self.left_out_db;
+        let (first, last) = (errors.first()?, errors.last()?);
+        if detector_dbm <= first.0 {
+            return Some(first.1);
+        }
+        if detector_dbm >= last.0 {
+            return Some(last.1);
+        }
+        let k = errors.partition_point(|&(level, _)| level <= detector_dbm) - 1;
+        let ((l0, e0), (l1, e1)) = (errors[k], errors[k + 1]);
+        Some(e0 + (e1 - e0) * (detector_dbm - l0) / (l1 - l0))
+    }
 }
 
 /// For each interior point, the table's error there when that point is left out: an honest
@@ -167,7 +205,7 @@ pub fn leave_one_out_db(points: &[CalPoint], axis: Axis) -> Vec<Option<f64>> {
             .map(|&i| points[i])
             .collect();
         let left_out = points[order[k]];
-        errors[order[k]] = TableDetector::new(&nearby, axis)
+        errors[order[k]] = TableDetector::build(&nearby, axis)
             .ok()
             .map(|table| table.dbm_at(left_out.volts) - left_out.dbm);
     }
@@ -181,7 +219,7 @@ mod tests {
     fn pts(pairs: &[(f64, f64)]) -> Vec<CalPoint> {
         pairs
             .iter()
-            .map(|&(dbm, volts)| CalPoint { dbm, volts })
+            .map(|&(dbm, volts)| CalPoint::new(dbm, volts))
             .collect()
     }
 
@@ -231,10 +269,7 @@ mod tests {
                 .map(|_| {
                     volts += rng.random_range(0.001..0.5);
                     dbm += rng.random_range(0.1..6.0);
-                    CalPoint {
-                        dbm: if falling { -dbm } else { dbm },
-                        volts,
-                    }
+                    CalPoint::new(if falling { -dbm } else { dbm }, volts)
                 })
                 .collect();
             points.shuffle(&mut rng);

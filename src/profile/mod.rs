@@ -16,7 +16,7 @@ use thiserror::Error;
 
 use crate::adc::Adc;
 use crate::correction::{FrequencyCorrection, Offset};
-use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind};
+use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind, PointU};
 use crate::units::Level;
 use locate::{line_col, Located};
 pub use raw::RawProfile;
@@ -130,6 +130,19 @@ pub struct ProfilePoint {
     pub counts: f64,
     /// Detector output volts for those counts.
     pub volts: f64,
+    /// How well those volts are known (from `std_counts` and `samples`).
+    pub u_volts: PointU,
+}
+
+impl ProfilePoint {
+    /// The point as the models take it.
+    pub fn cal_point(&self) -> CalPoint {
+        CalPoint {
+            dbm: self.dbm,
+            volts: self.volts,
+            u_volts: self.u_volts,
+        }
+    }
 }
 
 /// Safe levels from the profile.
@@ -174,13 +187,7 @@ pub struct Profile {
 impl Profile {
     /// The points as the models take them.
     pub fn cal_points(&self) -> Vec<CalPoint> {
-        self.points
-            .iter()
-            .map(|p| CalPoint {
-                dbm: p.dbm,
-                volts: p.volts,
-            })
-            .collect()
+        self.points.iter().map(ProfilePoint::cal_point).collect()
     }
 
     /// Each point's error in dB under the model.

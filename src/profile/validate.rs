@@ -14,7 +14,7 @@ use crate::correction::{CorrectionKind, FreqTable, FrequencyCorrection, Offset, 
 use crate::detector::diode::{N_BOUNDS, VL_BOUNDS};
 use crate::detector::{
     ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
-    ModelKind, TableDetector, MAX_FIT_RMS_DB,
+    ModelKind, PointU, TableDetector, MAX_FIT_RMS_DB,
 };
 use crate::uncertainty::Inputs;
 use crate::units::{parse_level, DEFAULT_OHMS};
@@ -501,13 +501,7 @@ fn check_model(
     };
     check_fields_belong(check, raw, kind);
     let points = check_points(check, raw, adc, ohms, kind)?;
-    let cal: Vec<CalPoint> = points
-        .iter()
-        .map(|p| CalPoint {
-            dbm: p.dbm,
-            volts: p.volts,
-        })
-        .collect();
+    let cal: Vec<CalPoint> = points.iter().map(ProfilePoint::cal_point).collect();
     let model = match kind {
         ModelKind::Table => build_table(check, raw, &cal),
         ModelKind::Log => build_log(check, raw, &cal),
@@ -667,6 +661,11 @@ fn check_points(
                 dbm,
                 counts,
                 volts: adc.volts(counts),
+                u_volts: PointU::from_counts(
+                    point.std_counts,
+                    point.samples,
+                    adc.volts_per_count(),
+                ),
             });
         }
     }
@@ -742,7 +741,8 @@ fn build_log(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Mo
             let slope = check.number(path.then("slope"), slope, slope_fits, SLOPE_V_PER_DB.what);
             let intercept = check.within(path.then("intercept"), intercept, &INTERCEPT_DBM);
             let (slope, intercept) = (slope?, intercept?);
-            let detector = LogAmpDetector::new(slope, intercept, fitted.span_dbm());
+            let detector =
+                LogAmpDetector::new(slope, intercept, fitted.span_dbm()).with_covariance(cal);
             let params = vec![("slope", slope), ("intercept", intercept)];
             Some(model(Arc::new(detector), None, false, Vec::new(), params))
         }
@@ -799,7 +799,7 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
             let vl = check.within(path.then("vl"), vl, &VL);
             let (n, vl) = (n?, vl?);
             let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
-            let detector = DiodeDetector::new(n, vl, kelvin, ohms, span);
+            let detector = DiodeDetector::new(n, vl, kelvin, ohms, span).with_covariance(&sorted);
             Some(model(
                 Arc::new(detector),
                 None,

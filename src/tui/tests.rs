@@ -672,7 +672,14 @@ fn changing_the_frequency_rebuilds_the_uncertainty() {
     };
     let fresh = library_budget(DIODE_PROFILE, Some(440e6), dbm, still).expanded_db();
     let stale = library_budget(DIODE_PROFILE, None, dbm, still).expanded_db();
-    assert!(shown_up(fresh, 2) != shown_up(stale, 2), "{fresh} {stale}");
+    assert!((fresh - stale).abs() > 1e-4, "{fresh} {stale}");
+    let Plusminus::Budget(held) = app.plusminus() else {
+        panic!("{:?}", app.plusminus())
+    };
+    assert!(
+        (held.expanded_db() - fresh).abs() < 1e-12,
+        "{held:?} {fresh}"
+    );
     let lines = screen(&app, 100, 30);
     assert!(
         has(&lines, &format!("±{} dB", shown_up(fresh, 2))),

@@ -232,3 +232,18 @@ pub fn demo_diode_with_stale_fit(vref: f64) -> String {
             1,
         )
 }
+
+/// A JSON fixture from tests/reference/ (written by the scripts there).
+pub fn reference_fixture(name: &str) -> serde_json::Value {
+    let path = format!("{}/tests/reference/{name}", env!("CARGO_MANIFEST_DIR"));
+    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
+}
+
+/// A JSON array of numbers.
+pub fn floats(v: &serde_json::Value) -> Vec<f64> {
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_f64().unwrap())
+        .collect()
+}
