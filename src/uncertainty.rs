@@ -60,6 +60,51 @@ pub enum TermKind {
     Temperature,
 }
 
+impl TermKind {
+    /// Every term, in the order a budget is read.
+    pub const ALL: [TermKind; 9] = [
+        TermKind::Quantisation,
+        TermKind::Noise,
+        TermKind::Model,
+        TermKind::Source,
+        TermKind::MismatchCalibration,
+        TermKind::MismatchUse,
+        TermKind::Offset,
+        TermKind::FrequencyInterpolation,
+        TermKind::Temperature,
+    ];
+
+    /// The term's name for people: on the screen, in `check` and in logs.
+    pub fn label(self) -> &'static str {
+        match self {
+            TermKind::Quantisation => "ADC quantisation",
+            TermKind::Noise => "noise of the mean",
+            TermKind::Model => "detector model",
+            TermKind::Source => "calibration source",
+            TermKind::MismatchCalibration => "mismatch at calibration",
+            TermKind::MismatchUse => "mismatch in use",
+            TermKind::Offset => "offset",
+            TermKind::FrequencyInterpolation => "frequency interpolation",
+            TermKind::Temperature => "temperature",
+        }
+    }
+
+    /// The term's name in JSON and CSV: the label in snake case.
+    pub fn key(self) -> &'static str {
+        match self {
+            TermKind::Quantisation => "quantisation",
+            TermKind::Noise => "noise",
+            TermKind::Model => "model",
+            TermKind::Source => "source",
+            TermKind::MismatchCalibration => "mismatch_calibration",
+            TermKind::MismatchUse => "mismatch_use",
+            TermKind::Offset => "offset",
+            TermKind::FrequencyInterpolation => "frequency_interpolation",
+            TermKind::Temperature => "temperature",
+        }
+    }
+}
+
 /// One term's standard uncertainty, dB.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Term {

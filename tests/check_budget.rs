@@ -176,13 +176,13 @@ fn the_interpolation_estimate_is_nonzero_between_rows_and_zero_on_a_row() {
 #[test]
 fn the_budget_carries_the_interpolation_term_between_rows_only() {
     let between = block(&check(&[DEMO, "--freq", "300MHz"]), "across the span");
-    for cell in row(&between, "frequency correction") {
+    for cell in row(&between, "frequency interpolation") {
         assert!((number(cell) - 0.022).abs() < 0.0011, "{cell}");
     }
     let on_row = block(&check(&[DEMO, "--freq", "440MHz"]), "across the span");
     let zero = on_row
         .iter()
-        .find(|r| r.0 == "frequency correction")
+        .find(|r| r.0 == "frequency interpolation")
         .is_none_or(|r| r.1.iter().all(|c| number(c) == 0.0));
     assert!(zero, "{on_row:?}");
 }
@@ -210,7 +210,7 @@ fn the_missing_list_names_exactly_what_the_profile_lacks() {
     assert_eq!(
         named(demo.clone()),
         BTreeMap::from([(
-            "mismatch, in use".to_string(),
+            "mismatch in use".to_string(),
             "needs `dut_swr` in [uncertainty]".to_string()
         )]),
         "{demo:?}"
@@ -222,11 +222,11 @@ fn the_missing_list_names_exactly_what_the_profile_lacks() {
     let want = [
         ("calibration source", "needs `source` in [uncertainty]"),
         (
-            "mismatch, calibration",
+            "mismatch at calibration",
             "needs `source_swr` and `detector_swr` in [uncertainty]",
         ),
         (
-            "mismatch, in use",
+            "mismatch in use",
             "needs `dut_swr` and (`front_swr` or `detector_swr`) in [uncertainty]",
         ),
         ("offset", "needs `offset` in [uncertainty]"),

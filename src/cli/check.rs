@@ -94,35 +94,6 @@ fn budget_columns(cal: &Calibration, uncertainty: &Uncertainty, counts: &[f64]) 
     across.chain(given).collect()
 }
 
-/// Every term in the order a budget is read, with its label and its JSON name.
-const TERMS: [(TermKind, &str, &str); 9] = [
-    (TermKind::Quantisation, "ADC quantisation", "quantisation"),
-    (TermKind::Noise, "noise of the mean", "noise"),
-    (TermKind::Model, "detector model", "model"),
-    (TermKind::Source, "calibration source", "source"),
-    (
-        TermKind::MismatchCalibration,
-        "mismatch, calibration",
-        "mismatch_calibration",
-    ),
-    (TermKind::MismatchUse, "mismatch, in use", "mismatch_use"),
-    (TermKind::Offset, "offset", "offset"),
-    (
-        TermKind::FrequencyInterpolation,
-        "frequency correction",
-        "frequency_interpolation",
-    ),
-    (TermKind::Temperature, "temperature", "temperature"),
-];
-
-fn label(kind: TermKind) -> &'static str {
-    TERMS.iter().find(|t| t.0 == kind).map_or("?", |t| t.1)
-}
-
-fn json_name(kind: TermKind) -> &'static str {
-    TERMS.iter().find(|t| t.0 == kind).map_or("?", |t| t.2)
-}
-
 /// Why a term is not in the budget: the `[uncertainty]` keys it needs that the profile
 /// lacks, or why no input can give it here.
 fn why_missing(kind: TermKind, profile: &Profile) -> String {
@@ -249,7 +220,7 @@ fn budget_text(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Stri
         .map(|&kind| (kind, why_missing(kind, profile)))
         .collect();
     for (kind, why) in &reasons {
-        let _ = writeln!(out, "    {:<24}{why}", label(*kind));
+        let _ = writeln!(out, "    {:<24}{why}", TermKind::label(*kind));
     }
     if reasons.iter().any(|(_, why)| why.contains("_swr`")) {
         out.push_str("    (any `_swr` may be given as `_return_loss` instead)\n");
@@ -261,7 +232,8 @@ fn budget_block(title: &str, columns: &[&Column]) -> String {
     let mut out = format!("  {title}\n");
     out.push_str(&row("level, dBm", columns, |c| format!("{:+.2}", c.dbm)));
     out.push_str(&row("counts", columns, |c| format!("{:.1}", c.counts)));
-    for (kind, name, _) in TERMS {
+    for kind in TermKind::ALL {
+        let name = kind.label();
         let included = |c: &&Column| c.budget.as_ref().is_some_and(|b| b.term(kind).is_some());
         if columns.iter().any(included) {
             out.push_str(&row(name, columns, |c| {
@@ -318,12 +290,12 @@ fn json_object(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Valu
         let terms: Vec<Value> = budget
             .terms
             .iter()
-            .map(|t| json!({ "term": json_name(t.kind), "u_db": t.u_db }))
+            .map(|t| json!({ "term": TermKind::key(t.kind), "u_db": t.u_db }))
             .collect();
         let missing: Vec<Value> = budget
             .missing
             .iter()
-            .map(|&k| json!({ "term": json_name(k), "why": why_missing(k, profile) }))
+            .map(|&k| json!({ "term": TermKind::key(k), "why": why_missing(k, profile) }))
             .collect();
         Some(json!({
             "terms": terms,
@@ -401,13 +373,11 @@ mod tests {
     // Source: the rule that every budget term has a label and a JSON name of its own.
     #[test]
     fn every_term_has_one_label_and_one_name() {
-        for (i, a) in TERMS.iter().enumerate() {
-            for b in &TERMS[i + 1..] {
+        for (i, a) in TermKind::ALL.iter().enumerate() {
+            for b in &TermKind::ALL[i + 1..] {
                 assert!(
-                    a.0 != b.0 && a.1 != b.1 && a.2 != b.2,
-                    "{:?} / {:?}",
-                    a.0,
-                    b.0
+                    a.label() != b.label() && a.key() != b.key(),
+                    "{a:?} / {b:?}"
                 );
             }
         }

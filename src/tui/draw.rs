@@ -8,7 +8,7 @@ use ratatui::widgets::{Block, Clear, Paragraph, Widget, Wrap};
 use ratatui::Frame;
 
 use dbtrail::calibration::Flags;
-use dbtrail::uncertainty::{TermKind, COVERAGE_K};
+use dbtrail::uncertainty::COVERAGE_K;
 use dbtrail::units::{Power, Si, VoltageForm};
 
 use super::app::{App, Mode, Plusminus, Shown, Units, TREND_WINDOWS};
@@ -170,21 +170,6 @@ fn in_units(app: &App, dbm: f64, units: Units) -> (String, String) {
     }
 }
 
-/// A budget term's name on the screen.
-pub fn term_name(kind: TermKind) -> &'static str {
-    match kind {
-        TermKind::Quantisation => "quantisation",
-        TermKind::Noise => "noise",
-        TermKind::Model => "model",
-        TermKind::Source => "source",
-        TermKind::MismatchCalibration => "mismatch at calibration",
-        TermKind::MismatchUse => "mismatch in use",
-        TermKind::Offset => "offset",
-        TermKind::FrequencyInterpolation => "frequency interpolation",
-        TermKind::Temperature => "temperature",
-    }
-}
-
 /// `value` rounded up at `decimals` places: a shown uncertainty never claims less than
 /// its budget (a figure under the last digit shows as one of it, never as zero). A
 /// sliver under one ten-millionth of the digit is taken as floating-point error.
@@ -258,7 +243,7 @@ fn beside(app: &App) -> Beside {
     Beside {
         figure: format!("{figure}{partial}"),
         about,
-        left_out: budget.missing.iter().map(|k| term_name(*k)).collect(),
+        left_out: budget.missing.iter().map(|k| k.label()).collect(),
     }
 }
 
@@ -676,8 +661,8 @@ fn plusminus_help(app: &App, width: usize) -> Vec<String> {
     ];
     match app.plusminus() {
         Plusminus::Budget(budget) => {
-            let included: Vec<_> = budget.terms.iter().map(|t| term_name(t.kind)).collect();
-            let missing: Vec<_> = budget.missing.iter().map(|k| term_name(*k)).collect();
+            let included: Vec<_> = budget.terms.iter().map(|t| t.kind.label()).collect();
+            let missing: Vec<_> = budget.missing.iter().map(|k| k.label()).collect();
             items.extend(listed("In it:", &included, "."));
             if !missing.is_empty() {
                 items.extend(listed("Not in it:", &missing, "."));

@@ -16,7 +16,7 @@ use dbtrail::stats::AVERAGE_BUCKETS;
 use dbtrail::uncertainty::{Budget, Noise, Uncertainty};
 
 use super::app::{App, AppEvent, Command, Plusminus, Shown, Units};
-use super::draw::{draw, term_name};
+use super::draw::draw;
 use super::noise::NOISE_MIN_COUNTS;
 
 /// The hand-worked log-amp (see the file): C counts read C/25 − 80 + 30 dBm at 10 MHz,
@@ -599,7 +599,7 @@ fn a_partial_budget_is_marked_and_its_missing_terms_named() {
         );
         // Beside the digits, broken only between names, never inside one.
         for kind in &budget.missing {
-            let name = term_name(*kind);
+            let name = kind.label();
             assert!(has(&lines[3..6], name), "{name}: {lines:#?}");
         }
     }
@@ -617,10 +617,10 @@ fn help_explains_the_uncertainty_and_names_its_terms() {
         let lines = screen(&app, width, height);
         assert!(has(&lines, "95 %") && has(&lines, "k = 2"), "{lines:#?}");
         for term in &budget.terms {
-            assert!(has(&lines, term_name(term.kind)), "{lines:#?}");
+            assert!(has(&lines, term.kind.label()), "{lines:#?}");
         }
         for kind in &budget.missing {
-            assert!(has(&lines, term_name(*kind)), "{lines:#?}");
+            assert!(has(&lines, kind.label()), "{lines:#?}");
         }
         assert!(
             has(&lines, "RF burns") && has(&lines, "licensed practice come first"),
