@@ -9,7 +9,7 @@ use std::time::{Duration, SystemTime};
 use crate::calibration::{Calibration, Flags};
 use crate::decode::{FlatCounts, FrameSink};
 use crate::printable::escape_controls;
-use crate::stats::{PowerStats, NOT_A_VALUE};
+use crate::stats::PowerStats;
 use crate::units::format_frequency;
 
 /// A run of samples from one source, evenly spaced in time from `t0` (all at `t0` when
@@ -419,15 +419,17 @@ impl<W: Write> Recorder<W> {
         let channels = self.channel_count();
         for &code in counts.iter().take(channels) {
             let r = self.cal.reading_code(code);
-            let value = !r.flags.intersects(NOT_A_VALUE);
+            // One reading's statistics: its level, or its bound, and which it is.
+            let mut one = PowerStats::default();
+            one.add_within(&r, self.cal.span_dbm().1);
             row.push(format!("{}", r.counts));
             row.push(format!("{:.6}", r.volts));
-            row.push(if value {
-                format!("{:.4}", r.dbm)
-            } else {
-                String::new()
-            });
+            row.push(
+                one.mean_dbm()
+                    .map_or(String::new(), |dbm| format!("{dbm:.4}")),
+            );
             row.push(r.flags.joined());
+            row.push(one.bound().cell().to_string());
         }
         self.write_row(row)
     }
@@ -444,7 +446,13 @@ impl<W: Write> Recorder<W> {
         let channels = self.channel_count();
         let mut row = vec![seconds(t)];
         for _ in 0..channels {
-            row.extend([String::new(), String::new(), String::new(), cell.clone()]);
+            row.extend([
+                String::new(),
+                String::new(),
+                String::new(),
+                cell.clone(),
+                String::new(),
+            ]);
         }
         self.write_row(row)
     }
@@ -486,11 +494,14 @@ impl<W: Write> Recorder<W> {
             }
             let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
             row.push(stats.samples.to_string());
-            row.push(number(stats.mean_dbm()));
-            row.push(number(stats.extremes().map(|e| e.0)));
-            row.push(number(stats.extremes().map(|e| e.1)));
-            row.push(stats.mean_w().map_or(String::new(), |w| format!("{w:.6e}")));
+            let figures = stats.figures();
+            row.push(number(figures.mean_dbm));
+            row.push(number(figures.min_dbm));
+            row.push(number(figures.max_dbm));
+            row.push(figures.mean_w.map_or(String::new(), |w| format!("{w:.6e}")));
             row.push(flags_cell(row_flags, rejected));
+            row.push(figures.bound.cell().to_string());
+            row.push(figures.averaged.to_string());
         }
         self.write_row(row)
     }
@@ -509,11 +520,9 @@ impl<W: Write> Recorder<W> {
 
     fn column_names(&self) -> Vec<String> {
         let per_channel: &[&str] = if self.every > 0.0 {
-            &[
-                "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
-            ]
+            &PER_INTERVAL_COLUMNS
         } else {
-            &["counts", "volts", "dbm", "flags"]
+            &PER_SAMPLE_COLUMNS
         };
         let mut names = vec!["time_s".to_string()];
         if self.every > 0.0 {
@@ -530,6 +539,13 @@ impl<W: Write> Recorder<W> {
         names
     }
 }
+
+/// The columns of each channel in a log of one row per sample.
+pub const PER_SAMPLE_COLUMNS: [&str; 5] = ["counts", "volts", "dbm", "flags", "bound"];
+/// The columns of each channel in a log of one row per interval.
+pub const PER_INTERVAL_COLUMNS: [&str; 8] = [
+    "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags", "bound", "averaged",
+];
 
 /// The calendar time `t` seconds after `started`; empty past what the clock can hold, so
 /// an absurd stamp costs its cell, never the rows after it.
@@ -672,7 +688,7 @@ mod tests {
         r.handle(&Event::Rejected { t: 0.2, count: 1 }).unwrap();
         r.finish(0.3).unwrap();
         let rows = data_rows(r);
-        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected"]);
+        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected", ""]);
     }
 
     #[test]
@@ -764,6 +780,63 @@ mod tests {
         r.handle(&Event::Samples(steady(0.001))).unwrap();
         r.finish(1.0).unwrap();
         assert!(!text(r).contains("# stamps"));
+    }
+
+    /// The bound, averaged, mean and min cells of one interval of `codes`.
+    fn bound_cells(codes: &[u32]) -> (String, String, String, String) {
+        let mut r = recorder(1.0);
+        let events: Vec<Event> = codes
+            .iter()
+            .enumerate()
+            .map(|(i, &c)| sample(0.1 + 0.01 * i as f64, c))
+            .collect();
+        for event in &events {
+            r.handle(event).unwrap();
+        }
+        r.finish(1.0).unwrap();
+        let row = data_rows(r).remove(0);
+        (
+            row[8].clone(),
+            row[9].clone(),
+            row[3].clone(),
+            row[4].clone(),
+        )
+    }
+
+    // Source: the rule in docs/recording.md ("Bounds"): clipped samples make a row
+    // `at-least`, below-span ones `at-most`, both `none` with no figures, and samples over
+    // full scale stay out of `averaged`. On the demo log amp 2000 counts is a value,
+    // 4095 clips, 100 lies below the span and 5000 is over the 12-bit full scale. Before
+    // the bound column these rows showed plain means of their values alone.
+    #[test]
+    fn interval_rows_name_their_bound_and_the_samples_averaged() {
+        let cal = recorder(1.0).cal;
+        let bottom = format!("{:.4}", cal.span_dbm().0);
+        let (bound, averaged, mean, _) = bound_cells(&[2000, 2000, 2000]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("", "3"));
+        let plain: f64 = mean.parse().unwrap();
+        let (bound, averaged, mean, _) = bound_cells(&[2000, 2000, 4095]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("at-least", "3"));
+        assert!(
+            mean.parse::<f64>().unwrap() > plain,
+            "{mean} against {plain}"
+        );
+        let (bound, averaged, mean, min) = bound_cells(&[2000, 100, 2000]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("at-most", "3"));
+        assert!(
+            mean.parse::<f64>().unwrap() < plain,
+            "{mean} against {plain}"
+        );
+        assert_eq!(
+            min, bottom,
+            "the below-span sample counts at the span's bottom"
+        );
+        let (bound, averaged, mean, min) = bound_cells(&[2000, 100, 4095]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("none", "0"));
+        assert_eq!((mean.as_str(), min.as_str()), ("", ""));
+        let (bound, averaged, mean, _) = bound_cells(&[2000, 5000, 2000]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("", "2"));
+        assert_eq!(mean.parse::<f64>().unwrap(), plain);
     }
 
     #[test]

@@ -9,6 +9,7 @@ use serde::Serialize;
 use thiserror::Error;
 
 use crate::numeric::fit_line;
+use crate::stats::Bound;
 use crate::units::{dbm_to_watts, format_clock, watts_to_dbm};
 
 mod read;
@@ -89,6 +90,26 @@ pub struct LogRow {
     pub max_dbm: Option<f64>,
     /// Flags of the row.
     pub flags: Vec<String>,
+    /// Whether the row's figures are values or bounds (`Exact` in logs before the `bound`
+    /// column).
+    pub bound: Bound,
+    /// Samples that went into the row's mean (all of them in logs before the `averaged`
+    /// column).
+    pub averaged: u64,
+}
+
+impl LogRow {
+    /// The row's part in the run's bound: a `none` row counts only when it held bounds
+    /// both ways; one with no level at all is a row without a reading, as a gap is.
+    fn part_in_bound(&self) -> Bound {
+        let flagged = |name: &str| self.flags.iter().any(|f| f == name);
+        match self.bound {
+            Bound::Unknown if !(flagged("below") && (flagged("clip") || flagged("above"))) => {
+                Bound::Exact
+            }
+            bound => bound,
+        }
+    }
 }
 
 /// How a run's rows are spaced in time.
@@ -227,10 +248,14 @@ pub struct Report {
     pub duration_s: f64,
     /// Samples in the span.
     pub samples: u64,
-    /// Mean power, dBm (of the mean in watts).
-    pub mean_dbm: f64,
-    /// Mean power, watts.
-    pub mean_w: f64,
+    /// Mean power, dBm (of the mean in watts); null when `mean_bound` is `none`.
+    pub mean_dbm: Option<f64>,
+    /// Mean power, watts; null when `mean_bound` is `none`.
+    pub mean_w: Option<f64>,
+    /// Null when the mean is a value; `at-least`, `at-most` or `none` when rows counted
+    /// samples at a bound (see docs/report.md).
+    #[serde(serialize_with = "bound_cell")]
+    pub mean_bound: Bound,
     /// Lowest reading, dBm.
     pub min_dbm: f64,
     /// Highest reading, dBm.
@@ -330,7 +355,7 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     let step = run.spacing.step_s();
     let start = rows[0].t;
     let end = rows[rows.len() - 1].t + step;
-    let weight = |r: &&LogRow| r.samples.max(1) as f64;
+    let weight = |r: &&LogRow| r.averaged.max(1) as f64;
     let (sum_w, weights) =
         rows.iter()
             .filter(|r| r.mean_dbm.is_some())
@@ -340,7 +365,10 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
                     n + weight(r),
                 )
             });
-    let mean_w = sum_w / weights;
+    let mean_bound = rows
+        .iter()
+        .fold(Bound::Exact, |bound, r| bound.join(r.part_in_bound()));
+    let mean_w = (mean_bound != Bound::Unknown).then_some(sum_w / weights);
     let min_dbm = rows
         .iter()
         .filter_map(|r| r.min_dbm.or(r.mean_dbm))
@@ -361,8 +389,9 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     Ok(Report {
         duration_s: end - start,
         samples,
-        mean_dbm: watts_to_dbm(mean_w),
+        mean_dbm: mean_w.map(watts_to_dbm),
         mean_w,
+        mean_bound,
         min_dbm,
         max_dbm,
         pk_pk_db: max_dbm - min_dbm,
@@ -378,6 +407,14 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         start_s: start,
         gap_spans,
     })
+}
+
+/// `mean_bound` in JSON: null for a value, else the log's cell text.
+fn bound_cell<S: serde::Serializer>(bound: &Bound, serializer: S) -> Result<S::Ok, S::Error> {
+    match bound {
+        Bound::Exact => serializer.serialize_none(),
+        other => serializer.serialize_str(other.cell()),
+    }
 }
 
 fn std_dev(values: &[f64]) -> f64 {
@@ -482,6 +519,8 @@ mod tests {
             min_dbm: Some(dbm - 0.1),
             max_dbm: Some(dbm + 0.1),
             flags: Vec::new(),
+            bound: Bound::Exact,
+            averaged: 10,
         }
     }
 

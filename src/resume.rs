@@ -7,7 +7,7 @@ use std::io::{self, BufRead};
 use thiserror::Error;
 
 use crate::calibration::Calibration;
-use crate::record::{context_lines, RunContext};
+use crate::record::{context_lines, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS};
 
 /// What a log's rows look like, and how its last run was made.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -44,6 +44,15 @@ pub enum ShapeError {
         /// Its line number, from 1.
         line: u64,
     },
+    /// A log written before rows said whether their figures are bounds.
+    #[error(
+        "its column header (line {line}) has no `bound` column: it was written by an earlier \
+         dbtrail, whose rows the new ones would not fit; record to a new file"
+    )]
+    BeforeBounds {
+        /// Its line number, from 1.
+        line: u64,
+    },
     /// The file could not be read.
     #[error("cannot read it: {0}")]
     Io(#[from] io::Error),
@@ -52,8 +61,9 @@ pub enum ShapeError {
 /// The context lines that say how a run was made: a change in any of them makes a new run.
 const MADE_BY: [&str; 3] = ["# profile:", "# frequency:", "# rows:"];
 
-const PER_SAMPLE: [&str; 4] = ["counts", "volts", "dbm", "flags"];
-const PER_INTERVAL: [&str; 6] = [
+/// The columns logs had before the `bound` column: rows of today's layout cannot be added.
+const PER_SAMPLE_BEFORE_BOUNDS: [&str; 4] = ["counts", "volts", "dbm", "flags"];
+const PER_INTERVAL_BEFORE_BOUNDS: [&str; 6] = [
     "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
 ];
 
@@ -151,11 +161,16 @@ fn columns(header: &str, line: u64) -> Result<(usize, bool), ShapeError> {
         (channels > 0 && rest.len() % per.len() == 0 && rest.iter().copied().eq(expected))
             .then_some(channels)
     };
-    if let Some(channels) = fits(&["time_s"], &PER_SAMPLE) {
+    if let Some(channels) = fits(&["time_s"], &PER_SAMPLE_COLUMNS) {
         return Ok((channels, true));
     }
-    if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL) {
+    if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL_COLUMNS) {
         return Ok((channels, false));
+    }
+    if fits(&["time_s"], &PER_SAMPLE_BEFORE_BOUNDS).is_some()
+        || fits(&["time_s", "utc"], &PER_INTERVAL_BEFORE_BOUNDS).is_some()
+    {
+        return Err(ShapeError::BeforeBounds { line });
     }
     Err(ShapeError::Columns {
         header: shortened(header),

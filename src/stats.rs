@@ -1,24 +1,121 @@
-//! Statistics over readings, always in the power domain: means are taken over watts and
-//! only then turned into dBm. [`PowerStats`] is a value type that merges, so intervals,
-//! holds and trend buckets are all made of it; [`Averager`] is the moving average the
-//! screen shows, [`Settle`] says when that number has stopped moving, and [`Trend`] keeps
-//! min/max buckets so that no peak or dip is lost when history is shown at low resolution.
-//! An average over a time is made of the same buckets, so neither grows with the rate.
+//! Statistics over readings, in the power domain: means are taken over watts and only then
+//! turned into dBm. [`PowerStats`] is a value type that merges, so
+//! intervals, holds and trend buckets are all made of it; [`Averager`] is the moving
+//! average the screen shows, [`Settle`] says when that number has stopped moving, and
+//! [`Trend`] keeps min/max buckets so that no peak or dip is lost when history is shown at
+//! low resolution. An average over a time is made of the same buckets, so neither grows
+//! with the rate.
 
 use std::collections::VecDeque;
 
-use crate::calibration::{Calibration, CodeEntry, Flags, Reading};
+use crate::calibration::{
+    untally, Calibration, CodeEntry, Flags, Reading, TALLY_AT_LEAST, TALLY_AT_MOST, TALLY_VALUE,
+};
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
-/// Readings with these flags are bounds, not values, and are left out of means and extremes.
+/// Readings with these flags are not values: the screen's holds, trend and average leave
+/// them out. Interval statistics count clipped and below-span readings at their bound
+/// instead (see [`Bound`]).
 pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
     .union(Flags::ADC_CLIP)
     .union(Flags::OVER_FULL_SCALE);
+
+/// What the mean, minimum and maximum of a set of readings are: values, or bounds on the
+/// true figures because some readings were counted at a bound of what can be measured.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Bound {
+    /// Every reading counted was a value.
+    Exact,
+    /// Clipped or above-span readings were counted at the clip level or the span's top:
+    /// the true figure is at least the one shown.
+    AtLeast,
+    /// Below-span readings were counted at the span's bottom: the true figure is at most
+    /// the one shown.
+    AtMost,
+    /// Bounds both ways, or readings of which none had a level: no figure can be given.
+    Unknown,
+}
+
+impl Bound {
+    /// The log's `bound` cell: empty for a value.
+    pub fn cell(self) -> &'static str {
+        match self {
+            Bound::Exact => "",
+            Bound::AtLeast => "at-least",
+            Bound::AtMost => "at-most",
+            Bound::Unknown => "none",
+        }
+    }
+
+    /// Reads a `bound` cell back; None for text that is not one.
+    pub fn from_cell(text: &str) -> Option<Bound> {
+        [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown]
+            .into_iter()
+            .find(|b| b.cell() == text.trim())
+    }
+
+    /// The bound of figures made of readings with bounds `self` and `other`.
+    pub fn join(self, other: Bound) -> Bound {
+        match (self, other) {
+            (Bound::Exact, b) | (b, Bound::Exact) => b,
+            (a, b) if a == b => a,
+            _ => Bound::Unknown,
+        }
+    }
+}
+
+/// How one reading counts in interval statistics.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Counted {
+    Value(f64),
+    AtLeast(f64),
+    AtMost(f64),
+    /// No level at all (over the ADC's full scale, NaN): left out.
+    Nothing,
+}
+
+impl Counted {
+    /// A reading's part in the mean: below span at its level (the span's bottom), clipped
+    /// or above span at its level but no higher than the span's top `span_top_dbm`.
+    pub(crate) fn of(flags: Flags, dbm: f64, span_top_dbm: f64) -> Counted {
+        if flags.contains(Flags::OVER_FULL_SCALE) || dbm.is_nan() {
+            Counted::Nothing
+        } else if flags.contains(Flags::BELOW_SPAN) {
+            Counted::AtMost(dbm)
+        } else if flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
+            Counted::AtLeast(dbm.min(span_top_dbm))
+        } else {
+            Counted::Value(dbm)
+        }
+    }
+
+    /// The level counted; NaN for none, which leaves extremes as they are (see `widen`).
+    pub(crate) fn dbm(self) -> f64 {
+        match self {
+            Counted::Value(dbm) | Counted::AtLeast(dbm) | Counted::AtMost(dbm) => dbm,
+            Counted::Nothing => f64::NAN,
+        }
+    }
+
+    /// Its kind as a table entry's tally (see `CodeEntry::tally`).
+    pub(crate) fn tally(self) -> u32 {
+        match self {
+            Counted::Value(_) => TALLY_VALUE,
+            Counted::AtLeast(_) => TALLY_AT_LEAST,
+            Counted::AtMost(_) => TALLY_AT_MOST,
+            Counted::Nothing => 0,
+        }
+    }
+}
 
 /// What `add_codes` keeps in registers over a run of table look-ups (the sums apart).
 struct TableRun {
     taken: u64,
     valid: u64,
+    at_least: u64,
+    at_most: u64,
+    /// The tallies of the block being taken, added into the counts at its end.
+    tally: u32,
     lo: f64,
     hi: f64,
     flags: Flags,
@@ -29,6 +126,9 @@ impl From<&PowerStats> for TableRun {
         TableRun {
             taken: 0,
             valid: 0,
+            at_least: 0,
+            at_most: 0,
+            tally: 0,
             lo: stats.min_dbm,
             hi: stats.max_dbm,
             flags: Flags::empty(),
@@ -62,8 +162,8 @@ fn sum_by_fours(codes: &[u32], sums: &mut [f64; 4], mut step: impl FnMut(u32, &m
 
 impl TableRun {
     /// Takes a block whose codes all lie in one run of the table (see `CodeRuns`): watts
-    /// looked up per code, the rest from the block's end codes. False, taking nothing,
-    /// for any other block.
+    /// looked up per code, the rest from the block's end codes (a run's codes are all of
+    /// one kind, values or bounds of one way). False, taking nothing, for any other block.
     #[inline(always)]
     fn take_steady(&mut self, cal: &Calibration, block: &[u32], sums: &mut [f64; 4]) -> bool {
         let runs = cal.code_runs();
@@ -81,24 +181,37 @@ impl TableRun {
         });
         let table = cal.code_table();
         let (low, high) = (&table[lowest as usize], &table[highest as usize]);
-        self.taken += block.len() as u64;
-        self.valid += block.len() as u64;
+        let n = block.len() as u64;
+        let (valid, at_least, at_most) = untally(low.tally);
+        self.taken += n;
+        self.valid += n * valid;
+        self.at_least += n * at_least;
+        self.at_most += n * at_most;
         self.flags |= low.flags;
-        self.widen(low.dbm + low.exclude, high.dbm - high.exclude);
+        self.widen(low.counted_dbm, high.counted_dbm);
         true
     }
 
     #[inline(always)]
     fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
-        self.taken += 1;
         self.flags |= entry.flags;
-        self.valid += u64::from(entry.valid);
+        self.tally += entry.tally;
         *sum_w += entry.watts;
-        self.widen(entry.dbm + entry.exclude, entry.dbm - entry.exclude);
+        self.widen(entry.counted_dbm, entry.counted_dbm);
     }
 
-    /// Plain comparisons (one instruction each): a NaN key, as −∞ + ∞ for a bound at zero
-    /// output, compares false and leaves the extreme as it was.
+    /// Ends a block taken code by code: its tallies into the counts.
+    #[inline(always)]
+    fn end_block(&mut self, tabled: usize) {
+        let (valid, at_least, at_most) = untally(std::mem::take(&mut self.tally));
+        self.taken += tabled as u64;
+        self.valid += valid;
+        self.at_least += at_least;
+        self.at_most += at_most;
+    }
+
+    /// Plain comparisons (one instruction each): a NaN key, the level of a code never
+    /// counted, compares false and leaves the extreme as it was.
     #[inline(always)]
     fn widen(&mut self, low_key: f64, high_key: f64) {
         self.lo = if low_key < self.lo { low_key } else { self.lo };
@@ -115,13 +228,17 @@ impl TableRun {
 pub struct PowerStats {
     /// Readings seen, valid or not.
     pub samples: u64,
-    /// Readings that are values (not below span, not clipped).
+    /// Readings that are values (in the span, not clipped).
     pub valid: u64,
-    /// Sum of the valid readings in watts.
+    /// Clipped or above-span readings, counted at the clip level or the span's top.
+    pub at_least: u64,
+    /// Below-span readings, counted at the span's bottom.
+    pub at_most: u64,
+    /// Sum in watts of the readings counted: the values and the bounds.
     pub sum_w: f64,
-    /// Lowest valid reading, dBm (+∞ when none).
+    /// Lowest reading counted, dBm (+∞ when none).
     pub min_dbm: f64,
-    /// Highest valid reading, dBm (−∞ when none).
+    /// Highest reading counted, dBm (−∞ when none).
     pub max_dbm: f64,
     /// Every flag any reading carried.
     pub flags: Flags,
@@ -132,6 +249,8 @@ impl Default for PowerStats {
         PowerStats {
             samples: 0,
             valid: 0,
+            at_least: 0,
+            at_most: 0,
             sum_w: 0.0,
             min_dbm: f64::INFINITY,
             max_dbm: f64::NEG_INFINITY,
@@ -140,18 +259,53 @@ impl Default for PowerStats {
     }
 }
 
+/// An interval's figures as a row gives them.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Figures {
+    /// Whether the mean is a value or a bound.
+    pub bound: Bound,
+    /// The mean, dBm; None when the bound is `Unknown` or nothing was counted.
+    pub mean_dbm: Option<f64>,
+    /// The mean, watts.
+    pub mean_w: Option<f64>,
+    /// Lowest and highest reading counted (bounds as the mean is); None when unknown.
+    pub min_dbm: Option<f64>,
+    /// See `min_dbm`.
+    pub max_dbm: Option<f64>,
+    /// Samples that went into the mean.
+    pub averaged: u64,
+}
+
 impl PowerStats {
-    /// Adds one reading.
+    /// Adds one reading as the screen's holds and trend keep them: a value, or only its
+    /// flags for a bound (see [`NOT_A_VALUE`]).
     pub fn add(&mut self, reading: &Reading) {
-        self.samples += 1;
-        self.flags |= reading.flags;
         if reading.flags.intersects(NOT_A_VALUE) {
+            self.samples += 1;
+            self.flags |= reading.flags;
             return;
         }
-        self.valid += 1;
-        self.sum_w += dbm_to_watts(reading.dbm);
-        self.min_dbm = self.min_dbm.min(reading.dbm);
-        self.max_dbm = self.max_dbm.max(reading.dbm);
+        self.add_within(reading, f64::INFINITY);
+    }
+
+    /// Adds one reading of a calibration whose span tops out at `span_top_dbm`
+    /// (reference plane), as interval statistics count it: a clipped or above-span reading
+    /// at its level but no higher than that, a below-span one at the span's bottom.
+    pub fn add_within(&mut self, reading: &Reading, span_top_dbm: f64) {
+        let counted = Counted::of(reading.flags, reading.dbm, span_top_dbm);
+        self.samples += 1;
+        self.flags |= reading.flags;
+        let (valid, at_least, at_most) = untally(counted.tally());
+        self.valid += valid;
+        self.at_least += at_least;
+        self.at_most += at_most;
+        if counted == Counted::Nothing {
+            return;
+        }
+        let dbm = counted.dbm();
+        self.sum_w += dbm_to_watts(dbm);
+        self.min_dbm = self.min_dbm.min(dbm);
+        self.max_dbm = self.max_dbm.max(dbm);
     }
 
     /// Adds one ADC code through the calibration's precomputed table, falling back to the
@@ -160,9 +314,9 @@ impl PowerStats {
         self.add_codes(cal, &[code]);
     }
 
-    /// Adds a run of ADC codes, as `add_code` for each (the recorder's inner loop). The
-    /// codes take four partial sums in turn, added together at the end: one chain of float
-    /// additions would hold the loop to an add's latency per sample.
+    /// Adds a run of ADC codes, as `add_within` of each code's reading (the recorder's
+    /// inner loop). The codes take four partial sums in turn, added together at the end:
+    /// one chain of float additions would hold the loop to an add's latency per sample.
     pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
         let table = cal.code_table();
         let mut run = TableRun::from(&*self);
@@ -178,16 +332,23 @@ impl PowerStats {
             } else {
                 unlooked = BLOCKS_UNLOOKED;
             }
+            let mut untabled = 0;
             sum_by_fours(block, &mut sums, |code, sum| {
                 match table.get(code as usize) {
                     Some(entry) => run.take(entry, sum),
-                    None => self.add_untabled(cal, code),
+                    None => {
+                        untabled += 1;
+                        self.add_untabled(cal, code)
+                    }
                 }
             });
+            run.end_block(block.len() - untabled);
         }
         let [s0, s1, s2, s3] = sums;
         self.samples += run.taken;
         self.valid += run.valid;
+        self.at_least += run.at_least;
+        self.at_most += run.at_most;
         self.sum_w += (s0 + s1) + (s2 + s3);
         self.min_dbm = self.min_dbm.min(run.lo);
         self.max_dbm = self.max_dbm.max(run.hi);
@@ -199,7 +360,7 @@ impl PowerStats {
     #[cold]
     #[inline(never)]
     fn add_untabled(&mut self, cal: &Calibration, code: u32) {
-        self.add(&cal.reading_code(code));
+        self.add_within(&cal.reading_code(code), cal.span_dbm().1);
     }
 
     /// Adds every `width`-th code of `counts` from `first` on: one channel of
@@ -222,19 +383,44 @@ impl PowerStats {
         }
     }
 
-    /// Adds another set (as if its readings had been added one by one).
+    /// Adds another set, whose readings came after these (as if they had been added one by
+    /// one).
     pub fn merge(&mut self, other: &PowerStats) {
         self.samples += other.samples;
         self.valid += other.valid;
+        self.at_least += other.at_least;
+        self.at_most += other.at_most;
         self.sum_w += other.sum_w;
         self.min_dbm = self.min_dbm.min(other.min_dbm);
         self.max_dbm = self.max_dbm.max(other.max_dbm);
         self.flags |= other.flags;
     }
 
-    /// Mean power in watts over the valid readings.
+    /// Whether the mean and extremes over watts are values or bounds.
+    pub fn bound(&self) -> Bound {
+        match (self.at_least > 0, self.at_most > 0) {
+            (true, true) => Bound::Unknown,
+            _ if self.averaged() == 0 && self.samples > 0 => Bound::Unknown,
+            (true, false) => Bound::AtLeast,
+            (false, true) => Bound::AtMost,
+            (false, false) => Bound::Exact,
+        }
+    }
+
+    /// Readings that went into the mean over watts: the values and those counted at a
+    /// bound; 0 when the bounds go both ways and there is no mean.
+    pub fn averaged(&self) -> u64 {
+        if self.at_least > 0 && self.at_most > 0 {
+            0
+        } else {
+            self.valid + self.at_least + self.at_most
+        }
+    }
+
+    /// Mean power in watts over the readings counted (see [`PowerStats::bound`]).
     pub fn mean_w(&self) -> Option<f64> {
-        (self.valid > 0).then(|| self.sum_w / self.valid as f64)
+        let n = self.averaged();
+        (n > 0).then(|| self.sum_w / n as f64)
     }
 
     /// Mean power in dBm (of the mean in watts).
@@ -242,9 +428,21 @@ impl PowerStats {
         self.mean_w().map(watts_to_dbm)
     }
 
-    /// Lowest and highest valid reading, dBm.
+    /// Lowest and highest reading counted, dBm.
     pub fn extremes(&self) -> Option<(f64, f64)> {
-        (self.valid > 0).then_some((self.min_dbm, self.max_dbm))
+        (self.averaged() > 0).then_some((self.min_dbm, self.max_dbm))
+    }
+
+    /// The figures of a row, over watts with their bound.
+    pub fn figures(&self) -> Figures {
+        Figures {
+            bound: self.bound(),
+            mean_dbm: self.mean_dbm(),
+            mean_w: self.mean_w(),
+            min_dbm: self.extremes().map(|e| e.0),
+            max_dbm: self.extremes().map(|e| e.1),
+            averaged: self.averaged(),
+        }
     }
 
     /// Moves every level by `db` (the offset or frequency correction changed).
@@ -391,7 +589,7 @@ impl Averager {
             Held::Readings(last) => (last.watts.len() as u64, last.sum_w),
             Held::Buckets(buckets) => {
                 let all = buckets.total();
-                (all.valid, all.sum_w)
+                (all.averaged(), all.sum_w)
             }
         }
     }
@@ -633,16 +831,125 @@ mod tests {
         assert_eq!(s.extremes(), Some((0.0, 10.0)));
     }
 
+    /// Three readings at 0 dBm and `fourth`, as `add_within` counts them under a span
+    /// topping out at +6 dBm.
+    fn three_at_zero_and(fourth: Reading) -> PowerStats {
+        let mut s = PowerStats::default();
+        for _ in 0..3 {
+            s.add_within(&reading(0.0, Flags::empty()), 6.0);
+        }
+        s.add_within(&fourth, 6.0);
+        s
+    }
+
+    // Source: worked by hand (power-domain mean, common practice). Three readings of
+    // 0 dBm (1 mW each) and one clipped at +5 dBm, counted at its clip level (3.16228 mW):
+    // (3 + 3.16228) / 4 = 1.54057 mW = +1.8768 dBm, and the true mean is at least that.
+    // Above the span (+12 dBm extrapolated) it counts at the span's top, +6 dBm
+    // (3.98107 mW): (3 + 3.98107) / 4 = 1.74527 mW = +2.4186 dBm. Before bounds were
+    // counted, both gave a plain 0 dBm.
     #[test]
-    fn bounds_are_flagged_but_not_averaged() {
+    fn clipped_and_above_span_readings_count_at_their_bound_and_make_the_mean_at_least() {
+        let clipped = three_at_zero_and(reading(5.0, Flags::ADC_CLIP));
+        assert!((clipped.mean_dbm().unwrap() - 1.876_812_716).abs() < 1e-8);
+        assert_eq!(clipped.bound(), Bound::AtLeast);
+        assert_eq!(clipped.extremes(), Some((0.0, 5.0)));
+        assert_eq!((clipped.samples, clipped.averaged()), (4, 4));
+        let above = three_at_zero_and(reading(12.0, Flags::ABOVE_SPAN));
+        assert!((above.mean_dbm().unwrap() - 2.418_621_075).abs() < 1e-8);
+        assert_eq!(above.bound(), Bound::AtLeast);
+        assert_eq!(above.extremes(), Some((0.0, 6.0)));
+        assert_eq!(above.bound().cell(), "at-least");
+    }
+
+    // Source: worked by hand. Three readings of 0 dBm and one below the span, read at the
+    // span's bottom, −10 dBm (0.1 mW): (3 + 0.1) / 4 = 0.775 mW = −1.10698 dBm, and the
+    // true mean is at most that. Before, the mean was a plain 0 dBm.
+    #[test]
+    fn below_span_readings_count_at_the_bottom_and_make_the_mean_at_most() {
+        let s = three_at_zero_and(reading(-10.0, Flags::BELOW_SPAN));
+        assert!((s.mean_dbm().unwrap() - -1.106_982_975).abs() < 1e-8);
+        assert_eq!(s.bound(), Bound::AtMost);
+        assert_eq!(s.bound().cell(), "at-most");
+        assert_eq!(s.extremes(), Some((-10.0, 0.0)));
+    }
+
+    // Source: the rule in docs/recording.md: bounds both ways, or no reading with a level,
+    // give no figure (`none`); readings with no level stay out of the mean.
+    #[test]
+    fn bounds_both_ways_or_no_level_give_no_figure() {
+        let mut both = three_at_zero_and(reading(-10.0, Flags::BELOW_SPAN));
+        both.add_within(&reading(5.0, Flags::ADC_CLIP), 6.0);
+        assert_eq!(both.bound(), Bound::Unknown);
+        assert_eq!(both.bound().cell(), "none");
+        assert_eq!((both.mean_dbm(), both.extremes()), (None, None));
+        let mut damaged = PowerStats::default();
+        damaged.add(&reading(f64::NAN, Flags::OVER_FULL_SCALE));
+        assert_eq!(damaged.bound(), Bound::Unknown);
+        assert_eq!(damaged.mean_dbm(), None);
+        let mixed = three_at_zero_and(reading(f64::NAN, Flags::OVER_FULL_SCALE));
+        assert_eq!(mixed.bound(), Bound::Exact);
+        assert_eq!((mixed.samples, mixed.averaged()), (4, 3));
+        assert!(mixed.mean_dbm().unwrap().abs() < 1e-12);
+        assert_eq!(
+            PowerStats::default().bound(),
+            Bound::Exact,
+            "a row of no samples"
+        );
+        assert_eq!(Bound::AtLeast.join(Bound::Exact), Bound::AtLeast);
+        assert_eq!(Bound::AtLeast.join(Bound::AtMost), Bound::Unknown);
+        for bound in [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown] {
+            assert_eq!(Bound::from_cell(bound.cell()), Some(bound));
+        }
+    }
+
+    fn demo_log_amp() -> Calibration {
+        let profile = crate::profile::parse_profile(
+            include_str!("../profiles/demo-logamp.toml"),
+            "demo-logamp.toml",
+        )
+        .unwrap();
+        Calibration::new(&profile, None, 0.0)
+    }
+
+    // Source: the rule in docs/recording.md ("Bounds"), through the per-code table and its
+    // blocks: 512 codes below the demo log amp's span (100 counts) count at the span's
+    // bottom, at most; 512 clipped codes (4095) at no more than the span's top, at least.
+    // Before, the table gave bounds no watts and both sets had no mean.
+    #[test]
+    fn the_code_table_counts_runs_of_bounded_codes_at_their_bound() {
+        let cal = demo_log_amp();
+        let (bottom, top) = cal.span_dbm();
+        let mut below = PowerStats::default();
+        below.add_codes(&cal, &[100; 512]);
+        assert_eq!((below.valid, below.at_least, below.at_most), (0, 0, 512));
+        assert_eq!(below.bound(), Bound::AtMost);
+        assert_eq!(below.extremes(), Some((bottom, bottom)));
+        assert!((below.mean_dbm().unwrap() - bottom).abs() < 1e-9);
+        let mut clipped = PowerStats::default();
+        clipped.add_codes(&cal, &[4095; 512]);
+        assert_eq!(
+            (clipped.valid, clipped.at_least, clipped.at_most),
+            (0, 512, 0)
+        );
+        assert_eq!(clipped.bound(), Bound::AtLeast);
+        let level = cal.reading(4095.0).dbm.min(top);
+        assert_eq!(clipped.extremes(), Some((level, level)));
+        assert!(clipped.flags.contains(Flags::ADC_CLIP));
+    }
+
+    // Source: the rule in docs/screen.md: readings below the span or at ADC clip "are left
+    // out of holds and trend values"; they raise their flags only.
+    #[test]
+    fn the_screens_add_keeps_values_only() {
         let mut s = PowerStats::default();
         s.add(&reading(-30.0, Flags::BELOW_SPAN));
-        assert_eq!(s.mean_dbm(), None);
-        s.add(&reading(3.0, Flags::ABOVE_SPAN));
-        assert_eq!(s.samples, 2);
-        assert_eq!(s.valid, 1);
-        assert!((s.mean_dbm().unwrap() - 3.0).abs() < 1e-12);
-        assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ABOVE_SPAN);
+        s.add(&reading(9.0, Flags::ADC_CLIP));
+        assert_eq!(s.extremes(), None);
+        s.add(&reading(3.0, Flags::empty()));
+        assert_eq!((s.samples, s.valid, s.at_least, s.at_most), (3, 1, 0, 0));
+        assert_eq!(s.extremes(), Some((3.0, 3.0)));
+        assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ADC_CLIP);
     }
 
     #[test]

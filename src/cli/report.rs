@@ -7,6 +7,7 @@ use anyhow::{anyhow, Context};
 use dbtrail::report::{
     analyse, decimate, read_log, span_rows, Report, ReportOptions, Run, Spacing,
 };
+use dbtrail::stats::Bound;
 use dbtrail::units::{format_clock, parse_duration, Si};
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -293,6 +294,29 @@ struct RunReport<'a> {
 
 /// One object for a single run, as always; an array of objects, each with its run's number
 /// and first line, for several.
+/// The mean power line: its bound before the number, or why there is no number.
+fn mean_power(r: &Report) -> String {
+    let (Some(dbm), Some(w)) = (r.mean_dbm, r.mean_w) else {
+        return "none: rows counted samples at bounds both ways (clipped or above the span, \
+                and below it), so no bound holds"
+            .into();
+    };
+    let lead = match r.mean_bound {
+        Bound::AtLeast => "at least ",
+        Bound::AtMost => "at most ",
+        Bound::Exact | Bound::Unknown => "",
+    };
+    let why = match r.mean_bound {
+        Bound::AtLeast => "; clipped or above-span samples counted at their bound",
+        Bound::AtMost => "; below-span samples counted at the span's bottom",
+        Bound::Exact | Bound::Unknown => "",
+    };
+    format!(
+        "{lead}{dbm:+.3} dBm ({}), averaged over watts{why}",
+        Si::new(w, "W")
+    )
+}
+
 fn json(runs: &[&Run], reports: &[Report]) -> serde_json::Result<String> {
     let text = if let [report] = reports {
         serde_json::to_string(report)?
@@ -376,14 +400,7 @@ fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
     };
     let lines = [
         ("samples", r.samples.to_string()),
-        (
-            "mean power",
-            format!(
-                "{:+.3} dBm ({}), averaged over watts",
-                r.mean_dbm,
-                Si::new(r.mean_w, "W")
-            ),
-        ),
+        ("mean power", mean_power(r)),
         (
             "min / max",
             format!(

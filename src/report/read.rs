@@ -7,6 +7,7 @@
 use std::time::SystemTime;
 
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
+use crate::stats::Bound;
 
 /// The range of power a cell may hold, dBm: no detector reads outside it (thermal noise in
 /// 1 Hz at 290 K is −174 dBm; +200 dBm is 10^17 W).
@@ -41,6 +42,8 @@ struct Columns {
     min: Option<usize>,
     max: Option<usize>,
     flags: usize,
+    bound: Option<usize>,
+    averaged: Option<usize>,
     names: Vec<String>,
 }
 
@@ -466,6 +469,8 @@ fn columns(
         min: find("min_dbm"),
         max: find("max_dbm"),
         flags,
+        bound: find("bound"),
+        averaged: find("averaged"),
         names,
     })
 }
@@ -530,11 +535,41 @@ fn parse_row(
     };
     let t = time(number(cols.time)?, cell(cols.time), line, origin)?;
     let mean_dbm = dbm(cols.mean)?;
+    let count = |i: usize| samples(cell(i), name(i), line, origin);
     let samples = match cols.samples {
-        Some(i) => samples(cell(i), name(i), line, origin)?,
+        Some(i) => count(i)?,
         None => 1,
     };
     let pick = |col: Option<usize>| col.map_or(Ok(mean_dbm), dbm);
+    let bound = match cols.bound {
+        Some(i) => Bound::from_cell(cell(i)).ok_or_else(|| {
+            bad(
+                origin,
+                line,
+                name(i),
+                format!(
+                    "`{}` is not a bound (empty, `at-least`, `at-most` or `none`); fix or \
+                     remove the row",
+                    cell(i)
+                ),
+            )
+        })?,
+        None => Bound::Exact,
+    };
+    let averaged = match cols.averaged {
+        Some(i) => match count(i)? {
+            n if n > samples => {
+                return Err(bad(
+                    origin,
+                    line,
+                    name(i),
+                    format!("{n} averaged of {samples} samples; fix or remove the row"),
+                ))
+            }
+            n => n,
+        },
+        None => samples,
+    };
     Ok(LogRow {
         t,
         samples,
@@ -546,6 +581,8 @@ fn parse_row(
             .filter(|f| !f.is_empty())
             .map(String::from)
             .collect(),
+        bound,
+        averaged,
     })
 }
 
