@@ -494,7 +494,7 @@ impl<W: Write> Recorder<W> {
             }
             let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
             row.push(stats.samples.to_string());
-            let figures = stats.figures();
+            let figures = stats.figures(&self.cal);
             row.push(number(figures.mean_dbm));
             row.push(number(figures.min_dbm));
             row.push(number(figures.max_dbm));

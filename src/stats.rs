@@ -1,5 +1,6 @@
 //! Statistics over readings, in the power domain: means are taken over watts and only then
-//! turned into dBm. [`PowerStats`] is a value type that merges, so
+//! turned into dBm, save for a steady level, whose mean is the reading of its mean count
+//! (see [`CountMoments::is_steady`]). [`PowerStats`] is a value type that merges, so
 //! intervals, holds and trend buckets are all made of it; [`Averager`] is the moving
 //! average the screen shows, [`Settle`] says when that number has stopped moving, and
 //! [`Trend`] keeps min/max buckets so that no peak or dip is lost when history is shown at
@@ -11,6 +12,7 @@ use std::collections::VecDeque;
 use crate::calibration::{
     untally, Calibration, CodeEntry, Flags, Reading, TALLY_AT_LEAST, TALLY_AT_MOST, TALLY_VALUE,
 };
+use crate::uncertainty::Noise;
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
 /// Readings with these flags are not values: the screen's holds, trend and average leave
@@ -223,7 +225,190 @@ impl TableRun {
     }
 }
 
-/// Count, power-domain sum, extremes and flags of a set of readings.
+/// Moments of a run of ADC counts in time order: their number, sum, sum of squares and the
+/// sum of squared differences of successive counts, held about the first count so that a
+/// spread of a few counts on a level of thousands keeps its digits. They tell a steady
+/// level with white noise from a changing one (see [`CountMoments::is_steady`]) and give
+/// the noise of the mean. Whole counts add as integers in `add_codes`' blocks.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct CountMoments {
+    /// Counts taken.
+    pub n: u64,
+    /// The first count (0 when none), the origin of the sums.
+    first: f64,
+    /// The last count, for the difference to the next.
+    last: f64,
+    /// Σ (c − first).
+    sum: f64,
+    /// Σ (c − first)².
+    sum_sq: f64,
+    /// Σ (c_i − c_{i−1})² over successive counts.
+    sum_diff_sq: f64,
+}
+
+/// Fewest counts whose spread and succession say whether a level is steady.
+pub const STEADY_MIN_COUNTS: u64 = 16;
+/// Largest standard deviation of a steady level's counts: ADC noise of a few counts, not a
+/// modulation.
+pub const STEADY_MAX_SIGMA_COUNTS: f64 = 3.0;
+/// Two-sided normal quantile of the test of white noise (0.1 % of white-noise intervals
+/// are taken for changing ones and averaged over watts, as before).
+const WHITE_NOISE_Z: f64 = 3.29;
+
+impl CountMoments {
+    /// Adds one count (after those added before).
+    pub fn add(&mut self, count: f64) {
+        if self.n == 0 {
+            self.first = count;
+        } else {
+            self.sum_diff_sq += (count - self.last).powi(2);
+        }
+        let x = count - self.first;
+        self.n += 1;
+        self.sum += x;
+        self.sum_sq += x * x;
+        self.last = count;
+    }
+
+    /// The moments of a block of at most [`CODE_BLOCK`] whole counts of a table of at most
+    /// 4096 codes (12 bits), summed as integers about the first: each count's offset and
+    /// each successive difference lies within ±4095, so they are 16-bit numbers whose
+    /// squares (under 2^24) sum exactly in 32 bits for 256 of them, eight to a vector
+    /// register. Counts of wider tables take [`CountMoments::of_wide_block`].
+    fn of_block(codes: &[u32]) -> CountMoments {
+        let Some((&head, &tail)) = codes.first().zip(codes.last()) else {
+            return CountMoments::default();
+        };
+        let mut offsets = [0i16; CODE_BLOCK];
+        let offsets = &mut offsets[..codes.len()];
+        for (x, &c) in offsets.iter_mut().zip(codes) {
+            // Within ±4095 already: the clamp lets the narrowing be one saturating pack.
+            *x = (c as i32 - head as i32).clamp(-32768, 32767) as i16;
+        }
+        let offsets = &*offsets;
+        let square = |v: i32| (v * v) as u32;
+        // The first count's offset is 0: its sums start empty.
+        let (mut sum, mut sum_sq, mut diff_sq) = (0i32, 0u32, 0u32);
+        for (&before, &x) in offsets.iter().zip(&offsets[1..]) {
+            let (x, before) = (i32::from(x), i32::from(before));
+            sum += x;
+            sum_sq = sum_sq.wrapping_add(square(x));
+            diff_sq = diff_sq.wrapping_add(square(x - before));
+        }
+        CountMoments {
+            n: codes.len() as u64,
+            first: f64::from(head),
+            last: f64::from(tail),
+            sum: f64::from(sum),
+            sum_sq: f64::from(sum_sq),
+            sum_diff_sq: f64::from(diff_sq),
+        }
+    }
+
+    /// As [`CountMoments::of_block`] for counts below 2^16 (a table of up to 16 bits), in
+    /// 64-bit sums.
+    fn of_wide_block(codes: &[u32]) -> CountMoments {
+        let Some((&head, &tail)) = codes.first().zip(codes.last()) else {
+            return CountMoments::default();
+        };
+        let sum: u64 = codes.iter().map(|&c| u64::from(c)).sum();
+        let sum_sq: u64 = codes.iter().map(|&c| u64::from(c) * u64::from(c)).sum();
+        let diff_sq: u64 = codes
+            .iter()
+            .zip(&codes[1..])
+            .map(|(&a, &b)| u64::from(a.abs_diff(b)).pow(2))
+            .sum();
+        let (n, origin) = (codes.len() as i64, i64::from(head));
+        let (sum, sum_sq) = (sum as i64, sum_sq as i64);
+        CountMoments {
+            n: n as u64,
+            first: f64::from(head),
+            last: f64::from(tail),
+            sum: (sum - n * origin) as f64,
+            sum_sq: (sum_sq - 2 * origin * sum + n * origin * origin) as f64,
+            sum_diff_sq: diff_sq as f64,
+        }
+    }
+
+    /// Adds the counts of `other`, which came after these.
+    pub fn merge(&mut self, other: &CountMoments) {
+        if other.n == 0 {
+            return;
+        }
+        if self.n == 0 {
+            *self = *other;
+            return;
+        }
+        let shift = other.first - self.first;
+        let n = other.n as f64;
+        self.sum_sq += other.sum_sq + 2.0 * shift * other.sum + n * shift * shift;
+        self.sum += other.sum + n * shift;
+        self.sum_diff_sq += other.sum_diff_sq + (other.first - self.last).powi(2);
+        self.n += other.n;
+        self.last = other.last;
+    }
+
+    /// The mean count.
+    pub fn mean(&self) -> Option<f64> {
+        (self.n > 0).then(|| self.first + self.sum / self.n as f64)
+    }
+
+    /// The sample variance of the counts (n − 1 in the denominator).
+    pub fn variance(&self) -> Option<f64> {
+        (self.n > 1).then(|| {
+            let n = self.n as f64;
+            ((self.sum_sq - self.sum * self.sum / n) / (n - 1.0)).max(0.0)
+        })
+    }
+
+    /// The von Neumann ratio: mean squared successive difference over the variance, 2 for
+    /// white noise, near 0 for a level that moves slowly against the sample rate, above 2
+    /// for one that alternates. None for fewer than two counts or counts all alike.
+    pub fn successive_ratio(&self) -> Option<f64> {
+        let var = self.variance().filter(|v| *v > 0.0)?;
+        Some(self.sum_diff_sq / (self.n - 1) as f64 / var)
+    }
+
+    /// Whether the counts are a steady level with white noise of a few counts: at least
+    /// [`STEADY_MIN_COUNTS`], a standard deviation of at most [`STEADY_MAX_SIGMA_COUNTS`],
+    /// and a von Neumann ratio within [`WHITE_NOISE_Z`] standard errors of white noise's
+    /// 2 (its variance is 4(n − 2)/((n − 1)(n + 1)) for normal white noise). Counts all
+    /// alike are steady.
+    pub fn is_steady(&self) -> bool {
+        let (Some(var), true) = (self.variance(), self.n >= STEADY_MIN_COUNTS) else {
+            return false;
+        };
+        if var.sqrt() > STEADY_MAX_SIGMA_COUNTS {
+            return false;
+        }
+        let Some(ratio) = self.successive_ratio() else {
+            return true;
+        };
+        let n = self.n as f64;
+        let se = (4.0 * (n - 2.0) / ((n - 1.0) * (n + 1.0))).sqrt();
+        (ratio - 2.0).abs() <= WHITE_NOISE_Z * se
+    }
+
+    /// The lag-one autocorrelation from the successive differences, ρ = 1 − ratio / 2,
+    /// held at 0 or above (negative correlation would claim more than N samples' worth).
+    pub fn lag_one(&self) -> Option<f64> {
+        Some((1.0 - self.successive_ratio()? / 2.0).clamp(0.0, 1.0))
+    }
+
+    /// The counts' standard deviation and their effective number, N(1 − ρ)/(1 + ρ), for
+    /// the noise of the mean; None for fewer than two counts.
+    pub fn noise(&self) -> Option<Noise> {
+        let sigma_counts = self.variance()?.sqrt();
+        let rho = self.lag_one().unwrap_or(0.0);
+        Some(Noise {
+            sigma_counts,
+            n_eff: (self.n as f64 * (1.0 - rho) / (1.0 + rho)).max(1.0),
+        })
+    }
+}
+
+/// Count, power-domain sum, extremes and flags of a set of readings, and the moments of
+/// their counts.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PowerStats {
     /// Readings seen, valid or not.
@@ -242,6 +427,11 @@ pub struct PowerStats {
     pub max_dbm: f64,
     /// Every flag any reading carried.
     pub flags: Flags,
+    /// Moments of the counts of the readings added with their code (`add_codes`,
+    /// `add_within` of a whole count): `moments.n` falls short of `samples` otherwise, as
+    /// it does after a block of `add_codes` that held a code past the table (over full
+    /// scale; see [`PowerStats::counts_complete`]).
+    pub moments: CountMoments,
 }
 
 impl Default for PowerStats {
@@ -255,6 +445,7 @@ impl Default for PowerStats {
             min_dbm: f64::INFINITY,
             max_dbm: f64::NEG_INFINITY,
             flags: Flags::empty(),
+            moments: CountMoments::default(),
         }
     }
 }
@@ -274,6 +465,12 @@ pub struct Figures {
     pub max_dbm: Option<f64>,
     /// Samples that went into the mean.
     pub averaged: u64,
+    /// True when the mean is the reading of the mean count of a steady level.
+    pub steady: bool,
+    /// The noise of the counts, for the mean's uncertainty: None for a bound, for fewer
+    /// than two counts, or when a sample's count says nothing of the level (clipped, over
+    /// full scale).
+    pub noise: Option<Noise>,
 }
 
 impl PowerStats {
@@ -295,6 +492,9 @@ impl PowerStats {
         let counted = Counted::of(reading.flags, reading.dbm, span_top_dbm);
         self.samples += 1;
         self.flags |= reading.flags;
+        if reading.counts.fract() == 0.0 {
+            self.moments.add(reading.counts);
+        }
         let (valid, at_least, at_most) = untally(counted.tally());
         self.valid += valid;
         self.at_least += at_least;
@@ -328,6 +528,8 @@ impl PowerStats {
             if unlooked > 0 {
                 unlooked -= 1;
             } else if run.take_steady(cal, block, &mut sums) {
+                // A run lies inside the table.
+                self.add_moments(table.len(), block);
                 continue;
             } else {
                 unlooked = BLOCKS_UNLOOKED;
@@ -343,6 +545,9 @@ impl PowerStats {
                 }
             });
             run.end_block(block.len() - untabled);
+            if untabled == 0 {
+                self.add_moments(table.len(), block);
+            }
         }
         let [s0, s1, s2, s3] = sums;
         self.samples += run.taken;
@@ -353,6 +558,20 @@ impl PowerStats {
         self.min_dbm = self.min_dbm.min(run.lo);
         self.max_dbm = self.max_dbm.max(run.hi);
         self.flags |= run.flags;
+    }
+
+    /// The count moments of a block whose every code lies in the table. A block with a
+    /// code past it (over full scale) is left out, so the moments no longer cover every
+    /// sample (see [`PowerStats::counts_complete`]); without a table, `add_within` adds
+    /// each count.
+    #[inline(always)]
+    fn add_moments(&mut self, table_len: usize, block: &[u32]) {
+        let block = if table_len <= 4096 {
+            CountMoments::of_block(block)
+        } else {
+            CountMoments::of_wide_block(block)
+        };
+        self.moments.merge(&block);
     }
 
     /// The exact model for a code the table does not cover (above the ADC's full scale):
@@ -394,6 +613,12 @@ impl PowerStats {
         self.min_dbm = self.min_dbm.min(other.min_dbm);
         self.max_dbm = self.max_dbm.max(other.max_dbm);
         self.flags |= other.flags;
+        self.moments.merge(&other.moments);
+    }
+
+    /// Whether the count moments cover every reading.
+    pub fn counts_complete(&self) -> bool {
+        self.moments.n == self.samples
     }
 
     /// Whether the mean and extremes over watts are values or bounds.
@@ -433,15 +658,55 @@ impl PowerStats {
         (self.averaged() > 0).then_some((self.min_dbm, self.max_dbm))
     }
 
-    /// The figures of a row, over watts with their bound.
-    pub fn figures(&self) -> Figures {
+    /// The reading of the mean count when the counts are a steady level (see
+    /// [`CountMoments::is_steady`]) whose every count is a measured one (none clipped,
+    /// none over full scale) and whose mean count lies in the span: the estimator of a
+    /// steady level, unbiased where the curve bends (docs/calibration.md, "Means near the
+    /// bottom of the span"). Samples of such a level may stray past the span's ends.
+    pub fn steady_reading(&self, cal: &Calibration) -> Option<Reading> {
+        let unmeasured = Flags::ADC_CLIP | Flags::OVER_FULL_SCALE;
+        if self.flags.intersects(unmeasured) || !self.counts_complete() {
+            return None;
+        }
+        if !self.moments.is_steady() {
+            return None;
+        }
+        let reading = cal.reading(self.moments.mean()?);
+        let outside = NOT_A_VALUE | Flags::ABOVE_SPAN;
+        (!reading.flags.intersects(outside)).then_some(reading)
+    }
+
+    /// The figures of a row: over watts with their bound, or the steady reading.
+    pub fn figures(&self, cal: &Calibration) -> Figures {
+        if let Some(reading) = self.steady_reading(cal) {
+            return Figures {
+                bound: Bound::Exact,
+                mean_dbm: Some(reading.dbm),
+                mean_w: Some(reading.watts()),
+                // A sample past a span's end has no value to show as an extreme.
+                min_dbm: (self.at_most == 0).then_some(self.min_dbm),
+                max_dbm: (self.at_least == 0).then_some(self.max_dbm),
+                averaged: self.samples,
+                steady: true,
+                noise: self.moments.noise(),
+            };
+        }
+        let bound = self.bound();
+        let measured = !self
+            .flags
+            .intersects(Flags::ADC_CLIP | Flags::OVER_FULL_SCALE);
         Figures {
-            bound: self.bound(),
+            bound,
             mean_dbm: self.mean_dbm(),
             mean_w: self.mean_w(),
             min_dbm: self.extremes().map(|e| e.0),
             max_dbm: self.extremes().map(|e| e.1),
             averaged: self.averaged(),
+            steady: false,
+            noise: self
+                .moments
+                .noise()
+                .filter(|_| bound == Bound::Exact && measured && self.counts_complete()),
         }
     }
 
@@ -950,6 +1215,40 @@ mod tests {
         assert_eq!((s.samples, s.valid, s.at_least, s.at_most), (3, 1, 0, 0));
         assert_eq!(s.extremes(), Some((3.0, 3.0)));
         assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ADC_CLIP);
+    }
+
+    // Source: worked by hand. Counts 1, 2, 3, 4: mean 2.5, sample variance 5/3, squared
+    // successive differences 3 over 3 pairs, so the von Neumann ratio is 1 / (5/3) = 0.6
+    // and ρ = 1 − 0.6/2 = 0.7, N_eff = 4·0.3/1.7 < 1, held at 1. Counts 0, 2, 0, 2: mean
+    // 1, variance 4/3, differences 12 over 3, ratio 3, ρ = −0.5 held at 0, N_eff = 4.
+    // Merging 1, 2 and 3, 4 (the second after the first) gives the same as one run.
+    #[test]
+    fn count_moments_by_hand() {
+        let of = |counts: &[f64]| {
+            let mut m = CountMoments::default();
+            counts.iter().for_each(|&c| m.add(c));
+            m
+        };
+        let ramp = of(&[1.0, 2.0, 3.0, 4.0]);
+        assert_eq!(ramp.mean(), Some(2.5));
+        assert!((ramp.variance().unwrap() - 5.0 / 3.0).abs() < 1e-12);
+        assert!((ramp.successive_ratio().unwrap() - 0.6).abs() < 1e-12);
+        assert!((ramp.lag_one().unwrap() - 0.7).abs() < 1e-12);
+        assert_eq!(ramp.noise().unwrap().n_eff, 1.0);
+        let alternating = of(&[0.0, 2.0, 0.0, 2.0]);
+        assert!((alternating.successive_ratio().unwrap() - 3.0).abs() < 1e-12);
+        assert_eq!(alternating.lag_one(), Some(0.0));
+        assert_eq!(alternating.noise().unwrap().n_eff, 4.0);
+        let mut merged = of(&[1.0, 2.0]);
+        merged.merge(&of(&[3.0, 4.0]));
+        assert_eq!(merged, ramp);
+        assert_eq!(CountMoments::of_block(&[1, 2, 3, 4]), ramp);
+        assert_eq!(CountMoments::of_wide_block(&[1, 2, 3, 4]), ramp);
+        // Offsets both ways from the first count, up to the 12-bit table's ±4095.
+        let swing = [2000, 0, 4095, 1, 4094, 2000];
+        let one_by_one = of(&swing.map(f64::from));
+        assert_eq!(CountMoments::of_block(&swing), one_by_one);
+        assert_eq!(CountMoments::of_wide_block(&swing), one_by_one);
     }
 
     #[test]

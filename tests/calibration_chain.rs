@@ -239,7 +239,22 @@ mod batched_statistics {
                     column.add_within(&reading, span_top);
                 }
             }
+            let tabled = codes.iter().all(|&c| c <= 4095);
             for (fast, slow) in [(batched, single), (channel, column)] {
+                // Count moments are kept over whole blocks of tabled codes only.
+                if tabled {
+                    prop_assert_eq!(fast.moments.n, slow.moments.n);
+                    prop_assert_eq!(fast.moments.mean(), slow.moments.mean());
+                    let close = |a: Option<f64>, b: Option<f64>| match (a, b) {
+                        (Some(a), Some(b)) => (a - b).abs() <= 1e-9 * b.abs().max(1.0),
+                        (a, b) => a == b,
+                    };
+                    prop_assert!(close(fast.moments.variance(), slow.moments.variance()));
+                    prop_assert!(close(
+                        fast.moments.successive_ratio(),
+                        slow.moments.successive_ratio()
+                    ));
+                }
                 prop_assert_eq!(fast.samples, slow.samples);
                 prop_assert_eq!(fast.valid, slow.valid);
                 prop_assert_eq!(fast.at_least, slow.at_least);
