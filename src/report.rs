@@ -96,6 +96,9 @@ pub struct LogRow {
     /// Samples that went into the row's mean (all of them in logs before the `averaged`
     /// column).
     pub averaged: u64,
+    /// Expanded uncertainty (k = 2) of the row's mean, dB; None for a bound and in logs
+    /// before the `u_db` column.
+    pub u_db: Option<f64>,
 }
 
 impl LogRow {
@@ -256,6 +259,13 @@ pub struct Report {
     /// samples at a bound (see docs/report.md).
     #[serde(serialize_with = "bound_cell")]
     pub mean_bound: Bound,
+    /// Expanded uncertainty (k = 2) of the mean power, dB: the rows' `u_db` taken as wholly
+    /// systematic, so not reduced by their number (see docs/report.md); null when the mean
+    /// is a bound or a row with a mean has no `u_db`.
+    pub mean_u_db: Option<f64>,
+    /// The budget terms the rows' `u_db` leaves out, as the log's `# u_db:` line names
+    /// them; null when the log has no such line.
+    pub u_leaves_out: Option<String>,
     /// Lowest reading, dBm.
     pub min_dbm: f64,
     /// Highest reading, dBm.
@@ -369,6 +379,9 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         .iter()
         .fold(Bound::Exact, |bound, r| bound.join(r.part_in_bound()));
     let mean_w = (mean_bound != Bound::Unknown).then_some(sum_w / weights);
+    let mean_u_db = (mean_bound == Bound::Exact)
+        .then(|| systematic_u_db(&rows, weight))
+        .flatten();
     let min_dbm = rows
         .iter()
         .filter_map(|r| r.min_dbm.or(r.mean_dbm))
@@ -392,6 +405,11 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         mean_dbm: mean_w.map(watts_to_dbm),
         mean_w,
         mean_bound,
+        mean_u_db,
+        u_leaves_out: run
+            .context_value("u_db:")
+            .and_then(|line| line.split_once("leaves out:"))
+            .map(|(_, terms)| terms.trim().to_string()),
         min_dbm,
         max_dbm,
         pk_pk_db: max_dbm - min_dbm,
@@ -407,6 +425,22 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         start_s: start,
         gap_spans,
     })
+}
+
+/// The expanded uncertainty of the mean power from the rows' own, each taken as wholly
+/// systematic (the budget gives one figure per row, not its noise apart): errors that
+/// repeat from row to row add linearly, so the mean's relative uncertainty is the rows'
+/// weighted by their share of the energy, Σ wᵢPᵢuᵢ / Σ wᵢPᵢ, no smaller for more rows.
+/// None when a row with a mean has no `u_db`.
+fn systematic_u_db(rows: &[&LogRow], weight: impl Fn(&&LogRow) -> f64) -> Option<f64> {
+    let (mut weighted, mut energy) = (0.0, 0.0);
+    for row in rows {
+        let Some(mean) = row.mean_dbm else { continue };
+        let share = dbm_to_watts(mean) * weight(row);
+        weighted += share * row.u_db?;
+        energy += share;
+    }
+    (energy > 0.0).then(|| weighted / energy)
 }
 
 /// `mean_bound` in JSON: null for a value, else the log's cell text.
@@ -521,6 +555,7 @@ mod tests {
             flags: Vec::new(),
             bound: Bound::Exact,
             averaged: 10,
+            u_db: None,
         }
     }
 

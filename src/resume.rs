@@ -44,12 +44,13 @@ pub enum ShapeError {
         /// Its line number, from 1.
         line: u64,
     },
-    /// A log written before rows said whether their figures are bounds.
+    /// A log written before rows said whether their figures are bounds, or before they
+    /// carried their uncertainty.
     #[error(
-        "its column header (line {line}) has no `bound` column: it was written by an earlier \
-         dbtrail, whose rows the new ones would not fit; record to a new file"
+        "its column header (line {line}) lacks the `bound` or `u_db` columns: it was written \
+         by an earlier dbtrail, and the new rows would not fit it; record to a new file"
     )]
-    BeforeBounds {
+    EarlierColumns {
         /// Its line number, from 1.
         line: u64,
     },
@@ -61,11 +62,10 @@ pub enum ShapeError {
 /// The context lines that say how a run was made: a change in any of them makes a new run.
 const MADE_BY: [&str; 3] = ["# profile:", "# frequency:", "# rows:"];
 
-/// The columns logs had before the `bound` column: rows of today's layout cannot be added.
-const PER_SAMPLE_BEFORE_BOUNDS: [&str; 4] = ["counts", "volts", "dbm", "flags"];
-const PER_INTERVAL_BEFORE_BOUNDS: [&str; 6] = [
-    "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
-];
+/// Columns of each channel that logs had before the `bound` column (the first of today's):
+/// the earlier layouts are today's cut short, before `bound` or before `u_db`.
+const PER_SAMPLE_BEFORE_BOUNDS: usize = 4;
+const PER_INTERVAL_BEFORE_BOUNDS: usize = 6;
 
 impl LogShape {
     /// Reads a log to its end (a line at a time, so a log of any size costs one line of
@@ -167,10 +167,17 @@ fn columns(header: &str, line: u64) -> Result<(usize, bool), ShapeError> {
     if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL_COLUMNS) {
         return Ok((channels, false));
     }
-    if fits(&["time_s"], &PER_SAMPLE_BEFORE_BOUNDS).is_some()
-        || fits(&["time_s", "utc"], &PER_INTERVAL_BEFORE_BOUNDS).is_some()
+    let earlier = |lead: &[&str], columns: &[&str], first: usize| {
+        (first..columns.len()).any(|n| fits(lead, &columns[..n]).is_some())
+    };
+    if earlier(&["time_s"], &PER_SAMPLE_COLUMNS, PER_SAMPLE_BEFORE_BOUNDS)
+        || earlier(
+            &["time_s", "utc"],
+            &PER_INTERVAL_COLUMNS,
+            PER_INTERVAL_BEFORE_BOUNDS,
+        )
     {
-        return Err(ShapeError::BeforeBounds { line });
+        return Err(ShapeError::EarlierColumns { line });
     }
     Err(ShapeError::Columns {
         header: shortened(header),

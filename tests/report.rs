@@ -65,6 +65,7 @@ fn drift_matches_the_norris_certified_slope_and_error() {
                 flags: Vec::new(),
                 bound: dbtrail::stats::Bound::Exact,
                 averaged: 10,
+                u_db: None,
             })
         })
         .collect();
@@ -375,12 +376,14 @@ fn json_has_exactly_the_documented_keys() {
             "max_dbm",
             "mean_bound",
             "mean_dbm",
+            "mean_u_db",
             "mean_w",
             "min_dbm",
             "pk_pk_db",
             "samples",
             "settled_after_s",
-            "std_db"
+            "std_db",
+            "u_leaves_out"
         ]
     );
 }
@@ -983,15 +986,89 @@ fn a_clipped_sample_of_a_per_sample_log_shows_its_bound() {
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     assert_eq!(
         header,
-        ["time_s", "counts", "volts", "dbm", "flags", "bound"]
+        ["time_s", "counts", "volts", "dbm", "flags", "bound", "u_db"]
     );
-    let clipped: Vec<Vec<&str>> = lines
-        .map(|l| l.split(',').collect::<Vec<_>>())
-        .filter(|cells| cells[4].split('|').any(|f| f == "clip"))
-        .collect();
+    let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect::<Vec<_>>()).collect();
+    let (clipped, values): (Vec<_>, Vec<_>) = rows
+        .iter()
+        .partition(|cells| cells[4].split('|').any(|f| f == "clip"));
     assert!(!clipped.is_empty(), "the burst clips");
     for cells in &clipped {
         assert_eq!(cells[5], "at-least", "{cells:?}");
         assert!(cells[3].parse::<f64>().is_ok(), "{cells:?}");
+        assert_eq!(cells[6], "", "a bound has no uncertainty: {cells:?}");
     }
+    // Rows of the carrier alone are values, each with its uncertainty.
+    for cells in values.iter().filter(|cells| cells[4].is_empty()) {
+        assert!(cells[6].parse::<f64>().unwrap() > 0.0, "{cells:?}");
+    }
+}
+
+/// A log of today's interval format with `u_db`: (time s, mean dBm, u_db cell).
+fn u_log_text(rows: &[(f64, f64, &str)]) -> String {
+    let mut text = String::from(
+        "# dbtrail 0.1.0 record\n# profile: synthetic; sha256 0\n# source: test\n# rows: every 1s; power averaged over watts\n\
+         # u_db: expanded uncertainty (k = 2) of the row's mean, dB; empty for a bound; leaves out: model, source\n\
+         time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags,bound,averaged,u_db\n",
+    );
+    for (t, mean, u) in rows {
+        text.push_str(&format!("{t},x,10,{mean},{mean},{mean},,,,10,{u}\n"));
+    }
+    text
+}
+
+// Source: worked by hand, with the combination stated in docs/report.md: the rows'
+// expanded uncertainties are taken as wholly systematic (the same error in every row), so
+// they add linearly, weighted by each row's share of the energy. Rows at 0 dBm (1 mW,
+// ±0.2 dB) and +10 dBm (10 mW, ±0.4 dB), ten samples each: (1·0.2 + 10·0.4) / 11 =
+// 0.381818 dB, not reduced by the number of rows. A row with no `u_db` leaves the mean's
+// uncertainty unknown, and the log's `# u_db:` line says what the figures leave out.
+#[test]
+fn the_reports_uncertainty_takes_the_rows_own_as_systematic() {
+    let text = u_log_text(&[(0.0, 0.0, "0.2"), (1.0, 10.0, "0.4")]);
+    let report = analysed(&text, &ReportOptions::default());
+    assert!((report.mean_u_db.unwrap() - 0.381_818_18).abs() < 1e-6);
+    assert_eq!(report.u_leaves_out.as_deref(), Some("model, source"));
+    let doubled = u_log_text(&[
+        (0.0, 0.0, "0.2"),
+        (1.0, 10.0, "0.4"),
+        (2.0, 0.0, "0.2"),
+        (3.0, 10.0, "0.4"),
+    ]);
+    let report = analysed(&doubled, &ReportOptions::default());
+    assert!((report.mean_u_db.unwrap() - 0.381_818_18).abs() < 1e-6);
+    let missing = u_log_text(&[(0.0, 0.0, "0.2"), (1.0, 10.0, "")]);
+    assert_eq!(
+        analysed(&missing, &ReportOptions::default()).mean_u_db,
+        None
+    );
+    let dir = scratch("uncertainty");
+    let log = dir.join("u.csv");
+    std::fs::write(&log, &text).unwrap();
+    let out = dbtrail(&["report", log.to_str().unwrap()]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("uncertainty   ±0.382 dB (k = 2)")
+            && stdout.contains("leaves out: model, source"),
+        "{stdout}"
+    );
+    let out = dbtrail(&["report", log.to_str().unwrap(), "--json"]);
+    let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!((value["mean_u_db"].as_f64().unwrap() - 0.381_818_18).abs() < 1e-6);
+}
+
+// Source: the rule in docs/report.md: a mean that is a bound has no uncertainty, and a log
+// from before the `u_db` column reads as before, with the uncertainty unknown.
+#[test]
+fn bounds_and_old_logs_give_no_uncertainty() {
+    let at_least = bounded_log_text(&[
+        (0.0, 10, Some(0.0), "", "", 10),
+        (1.0, 10, Some(10.0), "clip", "at-least", 10),
+    ]);
+    let report = analysed(&at_least, &ReportOptions::default());
+    assert_eq!((report.mean_u_db, report.u_leaves_out), (None, None));
+    let old = log_text(1.0, &[(0.0, Some(0.0), ""), (1.0, Some(10.0), "")]);
+    let report = analysed(&old, &ReportOptions::default());
+    assert!((report.mean_dbm.unwrap() - 7.403_626_89).abs() < 1e-6);
+    assert_eq!(report.mean_u_db, None);
 }

@@ -292,8 +292,6 @@ struct RunReport<'a> {
     report: &'a Report,
 }
 
-/// One object for a single run, as always; an array of objects, each with its run's number
-/// and first line, for several.
 /// The mean power line: its bound before the number, or why there is no number.
 fn mean_power(r: &Report) -> String {
     let (Some(dbm), Some(w)) = (r.mean_dbm, r.mean_w) else {
@@ -317,6 +315,29 @@ fn mean_power(r: &Report) -> String {
     )
 }
 
+/// The uncertainty line: the mean's expanded uncertainty and what it leaves out, or why
+/// there is none.
+fn mean_uncertainty(r: &Report) -> String {
+    let left_out = r
+        .u_leaves_out
+        .as_deref()
+        .map_or(String::new(), |terms| format!("; leaves out: {terms}"));
+    match (r.mean_u_db, r.mean_bound) {
+        (Some(u), _) => format!(
+            "±{u:.3} dB (k = 2), the rows' own taken as systematic, so not reduced by their \
+             number{left_out}"
+        ),
+        (None, Bound::Exact) => {
+            "not known: rows with a mean carry no u_db (a log from before that column, or \
+             rows without the noise of their counts)"
+                .into()
+        }
+        (None, _) => "none: the mean is a bound, not a value".into(),
+    }
+}
+
+/// One object for a single run, as always; an array of objects, each with its run's number
+/// and first line, for several.
 fn json(runs: &[&Run], reports: &[Report]) -> serde_json::Result<String> {
     let text = if let [report] = reports {
         serde_json::to_string(report)?
@@ -401,6 +422,7 @@ fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
     let lines = [
         ("samples", r.samples.to_string()),
         ("mean power", mean_power(r)),
+        ("uncertainty", mean_uncertainty(r)),
         (
             "min / max",
             format!(

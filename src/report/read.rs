@@ -12,6 +12,9 @@ use crate::stats::Bound;
 /// The range of power a cell may hold, dBm: no detector reads outside it (thermal noise in
 /// 1 Hz at 290 K is −174 dBm; +200 dBm is 10^17 W).
 pub const DBM_RANGE: (f64, f64) = (-200.0, 200.0);
+
+/// The largest `u_db` a cell may hold, dB: an uncertainty of a factor of 10^10 says nothing.
+const U_DB_MAX: f64 = 100.0;
 /// The latest time a row may carry, seconds since the run started (about 32 years).
 pub const MAX_TIME_S: f64 = 1e9;
 /// The most samples one row may count: a million a second for over eleven days.
@@ -44,6 +47,7 @@ struct Columns {
     flags: usize,
     bound: Option<usize>,
     averaged: Option<usize>,
+    u_db: Option<usize>,
     names: Vec<String>,
 }
 
@@ -471,6 +475,7 @@ fn columns(
         flags,
         bound: find("bound"),
         averaged: find("averaged"),
+        u_db: find("u_db"),
         names,
     })
 }
@@ -570,6 +575,23 @@ fn parse_row(
         },
         None => samples,
     };
+    let u_db = match cols.u_db {
+        Some(i) => match number(i)? {
+            Some(u) if !(0.0..=U_DB_MAX).contains(&u) => {
+                return Err(bad(
+                    origin,
+                    line,
+                    name(i),
+                    format!(
+                        "`{u}` dB is not an expanded uncertainty (0 to {U_DB_MAX} dB); fix or \
+                         remove the row"
+                    ),
+                ))
+            }
+            u => u,
+        },
+        None => None,
+    };
     Ok(LogRow {
         t,
         samples,
@@ -583,6 +605,7 @@ fn parse_row(
             .collect(),
         bound,
         averaged,
+        u_db,
     })
 }
 
