@@ -905,24 +905,18 @@ fn below_span_rows_give_at_most_and_bounds_both_ways_give_none() {
     assert_eq!((report.mean_dbm, report.mean_w), (None, None));
 }
 
-// Source: the simulator's scenario (docs/recording.md: a steady +25 dBm carrier with a
-// 1.5 s burst to +40 dBm every 20 s) worked by hand: over 40 s, 37 s at 0.3162 W and 3 s
-// at 10 W average 1.0425 W = +30.18 dBm. The clipped samples are counted at their bound,
-// so every clipped row says `at-least` and the report's mean lies between the carrier
-// alone (+25 dBm, what leaving the bursts out gave: +25.0x) and that true mean.
-#[test]
-fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
-    let dir = scratch("overload");
-    let log = dir.join("overload.csv");
+/// A log of the overload demo, rows `every`, for `duration`: its path and text.
+fn overload_log(name: &str, every: &str, duration: &str) -> (PathBuf, String) {
+    let log = scratch(name).join("overload.csv");
     let out = dbtrail(&[
         "record",
         "--demo",
         "overload",
         "--every",
-        "5s",
+        every,
         "--fast",
         "--duration",
-        "40s",
+        duration,
         "--force",
         "--out",
         log.to_str().unwrap(),
@@ -933,6 +927,17 @@ fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
         String::from_utf8_lossy(&out.stderr)
     );
     let text = std::fs::read_to_string(&log).unwrap();
+    (log, text)
+}
+
+// Source: the simulator's scenario (docs/recording.md: a steady +25 dBm carrier with a
+// 1.5 s burst to +40 dBm every 20 s) worked by hand: over 40 s, 37 s at 0.3162 W and 3 s
+// at 10 W average 1.0425 W = +30.18 dBm. The clipped samples are counted at their bound,
+// so every clipped row says `at-least` and the report's mean lies between the carrier
+// alone (+25 dBm, what leaving the bursts out gave: +25.0x) and that true mean.
+#[test]
+fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
+    let (log, text) = overload_log("overload", "5s", "40s");
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
@@ -961,27 +966,7 @@ fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
 // bound, flagged `at-least`, where before its `dbm` cell was left empty.
 #[test]
 fn a_clipped_sample_of_a_per_sample_log_shows_its_bound() {
-    let dir = scratch("overload-samples");
-    let log = dir.join("samples.csv");
-    let out = dbtrail(&[
-        "record",
-        "--demo",
-        "overload",
-        "--every",
-        "0",
-        "--fast",
-        "--duration",
-        "21s",
-        "--force",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let text = std::fs::read_to_string(&log).unwrap();
+    let (_, text) = overload_log("overload-samples", "0", "21s");
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     assert_eq!(
