@@ -141,21 +141,47 @@ fn dense_watts(table: &[CodeEntry]) -> Box<[f64; TABLE_MAX_CODES as usize]> {
 pub const TABLE_MAX_CODES: u32 = 1 << 16;
 
 /// One ADC code's reading, computed once: what the hot path needs per sample, laid out
-/// so that a sample adds to a set of statistics without a branch.
+/// so that a sample adds to a set of statistics without a branch, whether it is a value or
+/// a bound (see `stats::Bound`).
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[repr(align(32))]
 pub struct CodeEntry {
-    /// Reference-plane dBm.
+    /// Reference-plane dBm, as the reading shows it (the span's low end below the span).
     pub dbm: f64,
-    /// The same in watts; 0 for a reading that is not a value (below span, clip).
+    /// The watts interval statistics count: the value's, or its bound's; 0 for a code
+    /// never counted.
     pub watts: f64,
-    /// 0 for a value, +∞ for a bound: `dbm + exclude` and `dbm − exclude` leave the
-    /// lowest and highest value unchanged for a bound.
-    pub exclude: f64,
+    /// The level interval statistics count: `dbm` for a value, the span's top for an
+    /// above-span code or a clipped one above it; NaN for a code never counted, which
+    /// leaves the lowest and highest level unchanged.
+    pub counted_dbm: f64,
     /// Its flags.
     pub flags: Flags,
-    /// 1 for a value, 0 for a bound.
-    pub valid: u16,
+    /// Its kind as one tally, [`TALLY_VALUE`], [`TALLY_AT_LEAST`], [`TALLY_AT_MOST`] or 0
+    /// (never counted): one integer addition per sample counts all three kinds, each in
+    /// its own 10-bit lane, for up to 1023 samples (a block of `stats::add_codes`).
+    pub tally: u32,
+}
+
+/// The tally of a value (see [`CodeEntry::tally`]).
+pub const TALLY_VALUE: u32 = 1;
+/// The tally of a code counted at a bound the true level is at least (clip, above span).
+pub const TALLY_AT_LEAST: u32 = 1 << 10;
+/// The tally of a code counted at a bound the true level is at most (below span).
+pub const TALLY_AT_MOST: u32 = 1 << 20;
+
+/// (values, at least, at most) of a sum of at most 1023 tallies.
+#[inline(always)]
+pub fn untally(tally: u32) -> (u64, u64, u64) {
+    let lane = |shift: u32| u64::from((tally >> shift) & 0x3FF);
+    (lane(0), lane(10), lane(20))
+}
+
+impl CodeEntry {
+    /// 1 for a value, 0 for a bound or a code never counted.
+    pub fn valid(&self) -> u64 {
+        untally(self.tally).0
+    }
 }
 
 /// A profile made ready for one frequency and offset.
@@ -177,16 +203,16 @@ pub struct Calibration {
 }
 
 /// The table arranged for whole blocks of codes: when a block's lowest and highest code
-/// lie in one run of codes that are values with the same flags and levels that move one
-/// way only, its extremes and flags are those of its end codes, and only its watts need a
-/// look-up per code.
+/// lie in one run of counted codes with the same flags (so all values, or all bounds of
+/// one way) and counted levels that move one way only, its extremes, flags and kinds are
+/// those of its end codes, and only its watts need a look-up per code.
 #[derive(Debug, Clone)]
 pub struct CodeRuns {
     /// Each code's watts, packed densely for the summing loop, in an array as long as
     /// the largest table so that a 16-bit index needs no bounds check (only the codes'
     /// pages are touched).
     pub(crate) watts: Box<[f64; TABLE_MAX_CODES as usize]>,
-    /// For each code that is a value, the last code of the run it lies in.
+    /// For each code that is counted, the last code of the run it lies in.
     run_end: Vec<Option<u32>>,
     /// Levels fall as codes rise (a detector whose output falls with power).
     falling: bool,
@@ -194,21 +220,23 @@ pub struct CodeRuns {
 
 impl CodeRuns {
     fn of(table: &[CodeEntry]) -> CodeRuns {
-        let values = || table.iter().filter(|e| e.valid == 1);
+        let values = || table.iter().filter(|e| e.tally == TALLY_VALUE);
         let falling = match (values().next(), values().next_back()) {
             (Some(first), Some(last)) => last.dbm < first.dbm,
             _ => false,
         };
+        let counted = |e: &CodeEntry| !e.counted_dbm.is_nan();
+        // Equal flags make equal kinds: values, or bounds of one way.
         let joins = |a: &CodeEntry, b: &CodeEntry| {
             let steady = if falling {
-                b.dbm <= a.dbm
+                b.counted_dbm <= a.counted_dbm
             } else {
-                b.dbm >= a.dbm
+                b.counted_dbm >= a.counted_dbm
             };
-            a.valid == 1 && b.valid == 1 && a.flags == b.flags && steady
+            counted(a) && counted(b) && a.flags == b.flags && steady
         };
         let mut run_end: Vec<Option<u32>> = (0..table.len() as u32)
-            .map(|code| (table[code as usize].valid == 1).then_some(code))
+            .map(|code| counted(&table[code as usize]).then_some(code))
             .collect();
         for code in (1..table.len()).rev() {
             if joins(&table[code - 1], &table[code]) {
@@ -305,13 +333,18 @@ impl Calibration {
 
     fn exact_entry(&self, code: u32) -> CodeEntry {
         let r = self.reading(f64::from(code));
-        let value = !r.flags.intersects(crate::stats::NOT_A_VALUE);
+        let counted = crate::stats::Counted::of(r.flags, r.dbm, self.span_dbm().1);
+        let counted_dbm = counted.dbm();
         CodeEntry {
             dbm: r.dbm,
-            watts: if value { r.watts() } else { 0.0 },
-            exclude: if value { 0.0 } else { f64::INFINITY },
+            watts: if counted_dbm.is_nan() {
+                0.0
+            } else {
+                dbm_to_watts(counted_dbm)
+            },
+            counted_dbm,
             flags: r.flags,
-            valid: u16::from(value),
+            tally: counted.tally(),
         }
     }
 

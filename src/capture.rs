@@ -16,6 +16,7 @@ use crate::profile::raw::{
     FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile,
 };
 use crate::profile::{parse_profile, render_profile, Profile, ProfileError};
+use crate::stats::CountMoments;
 use crate::units::{format_frequency, parse_level, Level, UnitError};
 
 /// When a level counts as settled.
@@ -140,32 +141,28 @@ fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
     (std, slope)
 }
 
+/// Averages a settled level in counts, through the estimator of a steady level that
+/// interval rows use too ([`CountMoments`]: its mean count and spread), so that a point
+/// and a recording of the same level agree (docs/calibration.md, "Means near the bottom
+/// of the span").
 fn average(
     samples: impl Iterator<Item = (f64, f64)>,
     span: Span,
 ) -> Result<Measured, MeasureError> {
-    let (mut n, mut sum, mut sum_sq) = (0u64, 0.0, 0.0);
+    let mut moments = CountMoments::default();
     let mut first = None;
     for (t, c) in samples {
         let t0 = *first.get_or_insert(t);
-        n += 1;
-        sum += c;
-        sum_sq += c * c;
+        moments.add(c);
         let done = match span {
-            Span::Samples(want) => n >= want.max(1),
+            Span::Samples(want) => moments.n >= want.max(1),
             Span::Seconds(s) => t - t0 >= s,
         };
         if done {
-            let mean = sum / n as f64;
-            let var = if n > 1 {
-                ((sum_sq - sum * mean) / (n - 1) as f64).max(0.0)
-            } else {
-                0.0
-            };
             return Ok(Measured {
-                counts: mean,
-                std_counts: var.sqrt(),
-                samples: n,
+                counts: moments.mean().unwrap_or(c),
+                std_counts: moments.variance().unwrap_or(0.0).sqrt(),
+                samples: moments.n,
             });
         }
     }

@@ -9,7 +9,8 @@ use std::time::{Duration, SystemTime};
 use crate::calibration::{Calibration, Flags};
 use crate::decode::{FlatCounts, FrameSink};
 use crate::printable::escape_controls;
-use crate::stats::{PowerStats, NOT_A_VALUE};
+use crate::stats::{Bound, Figures, PowerStats};
+use crate::uncertainty::{Noise, TermKind, Uncertainty};
 use crate::units::format_frequency;
 
 /// A run of samples from one source, evenly spaced in time from `t0` (all at `t0` when
@@ -163,6 +164,9 @@ pub const STAMPED_BY_CLOCK: &str = "by the clock as each read arrived (a live po
 pub struct Recorder<W: Write> {
     out: csv::Writer<W>,
     cal: Calibration,
+    budget: Option<Uncertainty>,
+    /// Per-sample rows' `u_db` by code, worked out at a code's first sample.
+    per_code_u_db: Vec<Option<f64>>,
     every: f64,
     started: SystemTime,
     channels: Option<usize>,
@@ -205,26 +209,43 @@ pub struct ChannelMismatch {
 }
 
 impl<W: Write> Recorder<W> {
-    /// A recorder writing to `out`, opening as `opening` says.
+    /// A recorder writing to `out`, opening as `opening` says, with no uncertainty budget:
+    /// its `u_db` cells are empty, as its `# u_db:` line says.
     pub fn new(
-        mut out: W,
+        out: W,
         cal: Calibration,
         context: &RunContext,
         opening: Opening,
     ) -> io::Result<Self> {
+        Self::with_uncertainty(out, cal, None, context, opening)
+    }
+
+    /// A recorder whose rows carry the expanded uncertainty of their means from `budget`
+    /// (the profile's, at this calibration).
+    pub fn with_uncertainty(
+        mut out: W,
+        cal: Calibration,
+        budget: Option<Uncertainty>,
+        context: &RunContext,
+        opening: Opening,
+    ) -> io::Result<Self> {
+        let lines = format!(
+            "{}{}",
+            context_lines(&cal, context),
+            uncertainty_line(budget.as_ref(), &cal, context.every.is_zero())
+        );
         let (pending, log_channels) = match opening {
             Opening::Fresh => {
-                out.write_all(context_lines(&cal, context).as_bytes())?;
+                out.write_all(lines.as_bytes())?;
                 (None, None)
             }
             Opening::Resume { channels, cut } => {
                 let resumed = humantime::format_rfc3339_millis(context.started);
                 let block = format!(
-                    "{}# resumed {resumed} by {} from {}\n{}",
+                    "{}# resumed {resumed} by {} from {}\n{lines}",
                     if cut { "\n" } else { "" },
                     escape_controls(&context.tool),
                     escape_controls(&context.source),
-                    context_lines(&cal, context)
                 );
                 (Some(block), Some(channels))
             }
@@ -236,7 +257,9 @@ impl<W: Write> Recorder<W> {
                 .flexible(true)
                 .quote_style(csv::QuoteStyle::Never)
                 .from_writer(out),
+            per_code_u_db: vec![None; cal.code_table().len()],
             cal,
+            budget,
             every: context.every.as_secs_f64(),
             started: context.started,
             channels: None,
@@ -419,17 +442,31 @@ impl<W: Write> Recorder<W> {
         let channels = self.channel_count();
         for &code in counts.iter().take(channels) {
             let r = self.cal.reading_code(code);
-            let value = !r.flags.intersects(NOT_A_VALUE);
+            // One reading's statistics: its level, or its bound, and which it is.
+            let mut one = PowerStats::default();
+            one.add_within(&r, self.cal.span_dbm().1);
             row.push(format!("{}", r.counts));
             row.push(format!("{:.6}", r.volts));
-            row.push(if value {
-                format!("{:.4}", r.dbm)
-            } else {
-                String::new()
-            });
+            row.push(
+                one.mean_dbm()
+                    .map_or(String::new(), |dbm| format!("{dbm:.4}")),
+            );
             row.push(r.flags.joined());
+            row.push(one.bound().cell().to_string());
+            let value = (one.bound() == Bound::Exact).then_some(r.dbm);
+            row.push(u_cell(value.and_then(|dbm| self.sample_u_db(code, dbm))));
         }
         self.write_row(row)
+    }
+
+    /// The expanded uncertainty of one sample's value (its noise is not known), by code.
+    fn sample_u_db(&mut self, code: u32, dbm: f64) -> Option<f64> {
+        let budget = self.budget.as_ref()?;
+        let u = || budget.budget(dbm, None).expanded_db();
+        match self.per_code_u_db.get_mut(code as usize) {
+            Some(cached) => Some(*cached.get_or_insert_with(u)),
+            None => Some(u()),
+        }
     }
 
     /// Marks the interval holding `t` (or, per sample, writes a marker row).
@@ -444,7 +481,14 @@ impl<W: Write> Recorder<W> {
         let channels = self.channel_count();
         let mut row = vec![seconds(t)];
         for _ in 0..channels {
-            row.extend([String::new(), String::new(), String::new(), cell.clone()]);
+            row.extend([
+                String::new(),
+                String::new(),
+                String::new(),
+                cell.clone(),
+                String::new(),
+                String::new(),
+            ]);
         }
         self.write_row(row)
     }
@@ -486,13 +530,24 @@ impl<W: Write> Recorder<W> {
             }
             let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
             row.push(stats.samples.to_string());
-            row.push(number(stats.mean_dbm()));
-            row.push(number(stats.extremes().map(|e| e.0)));
-            row.push(number(stats.extremes().map(|e| e.1)));
-            row.push(stats.mean_w().map_or(String::new(), |w| format!("{w:.6e}")));
+            let figures = stats.figures(&self.cal);
+            row.push(number(figures.mean_dbm));
+            row.push(number(figures.min_dbm));
+            row.push(number(figures.max_dbm));
+            row.push(figures.mean_w.map_or(String::new(), |w| format!("{w:.6e}")));
             row.push(flags_cell(row_flags, rejected));
+            row.push(figures.bound.cell().to_string());
+            row.push(figures.averaged.to_string());
+            row.push(u_cell(self.interval_u_db(&figures)));
         }
         self.write_row(row)
+    }
+
+    /// The expanded uncertainty of an interval's mean: none for a bound, or without the
+    /// noise of its counts (a single sample, a clipped one or one over full scale).
+    fn interval_u_db(&self, figures: &Figures) -> Option<f64> {
+        let (budget, mean, noise) = (self.budget.as_ref()?, figures.mean_dbm?, figures.noise?);
+        (figures.bound == Bound::Exact).then(|| budget.budget(mean, Some(noise)).expanded_db())
     }
 
     fn write_row(&mut self, row: Vec<String>) -> io::Result<()> {
@@ -509,11 +564,9 @@ impl<W: Write> Recorder<W> {
 
     fn column_names(&self) -> Vec<String> {
         let per_channel: &[&str] = if self.every > 0.0 {
-            &[
-                "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
-            ]
+            &PER_INTERVAL_COLUMNS
         } else {
-            &["counts", "volts", "dbm", "flags"]
+            &PER_SAMPLE_COLUMNS
         };
         let mut names = vec!["time_s".to_string()];
         if self.every > 0.0 {
@@ -529,6 +582,67 @@ impl<W: Write> Recorder<W> {
         }
         names
     }
+}
+
+/// The columns of each channel in a log of one row per sample.
+pub const PER_SAMPLE_COLUMNS: [&str; 6] = ["counts", "volts", "dbm", "flags", "bound", "u_db"];
+/// The columns of each channel in a log of one row per interval.
+pub const PER_INTERVAL_COLUMNS: [&str; 9] = [
+    "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags", "bound", "averaged", "u_db",
+];
+
+/// A `u_db` cell: the expanded uncertainty to 0.1 mdB, or empty.
+fn u_cell(u_db: Option<f64>) -> String {
+    u_db.map_or(String::new(), |u| format!("{u:.4}"))
+}
+
+/// A budget term's name in the `# u_db:` line: `MismatchUse` → `mismatch-use`.
+fn term_name(kind: TermKind) -> String {
+    let mut name = String::new();
+    for (i, c) in format!("{kind:?}").chars().enumerate() {
+        if c.is_uppercase() && i > 0 {
+            name.push('-');
+        }
+        name.push(c.to_ascii_lowercase());
+    }
+    name
+}
+
+/// The `# u_db:` line: what the column holds and which terms of the budget it leaves out
+/// (those whose inputs are missing at the span's ends and middle, and the noise of one
+/// sample in per-sample rows), so that nothing is claimed silently.
+fn uncertainty_line(budget: Option<&Uncertainty>, cal: &Calibration, per_sample: bool) -> String {
+    let Some(budget) = budget else {
+        return "# u_db: not worked out (no uncertainty budget was given); the column is \
+                empty\n"
+            .into();
+    };
+    let (lo, hi) = cal.span_dbm();
+    // Any noise stands for the rows' own: which terms are missing does not depend on it.
+    let noise = (!per_sample).then_some(Noise {
+        sigma_counts: 1.0,
+        n_eff: 100.0,
+    });
+    let mut missing: Vec<TermKind> = Vec::new();
+    for level in [lo, (lo + hi) / 2.0, hi] {
+        for kind in budget.budget(level, noise).missing {
+            if !missing.contains(&kind) {
+                missing.push(kind);
+            }
+        }
+    }
+    let names: Vec<String> = missing.into_iter().map(term_name).collect();
+    let left_out = if names.is_empty() {
+        "nothing".to_string()
+    } else {
+        names.join(", ")
+    };
+    format!(
+        "# u_db: expanded uncertainty (k = {}) of the row's {}, dB; empty for a bound; \
+         leaves out: {left_out}\n",
+        crate::uncertainty::COVERAGE_K,
+        if per_sample { "reading" } else { "mean" }
+    )
 }
 
 /// The calendar time `t` seconds after `started`; empty past what the clock can hold, so
@@ -607,6 +721,19 @@ mod tests {
         .unwrap()
     }
 
+    impl Recorder<Vec<u8>> {
+        fn context_for_test(&self) -> RunContext {
+            RunContext {
+                tool: "dbtrail test".into(),
+                profile: "demo-logamp".into(),
+                profile_hash: "0".into(),
+                started: self.started,
+                source: "test".into(),
+                every: Duration::from_secs_f64(self.every),
+            }
+        }
+    }
+
     fn sample(t: f64, counts: u32) -> Event {
         Event::sample(t, &[counts])
     }
@@ -672,7 +799,7 @@ mod tests {
         r.handle(&Event::Rejected { t: 0.2, count: 1 }).unwrap();
         r.finish(0.3).unwrap();
         let rows = data_rows(r);
-        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected"]);
+        assert_eq!(rows[1], ["0.200000", "", "", "", "rejected", "", ""]);
     }
 
     #[test]
@@ -764,6 +891,118 @@ mod tests {
         r.handle(&Event::Samples(steady(0.001))).unwrap();
         r.finish(1.0).unwrap();
         assert!(!text(r).contains("# stamps"));
+    }
+
+    /// The bound, averaged, mean and min cells of one interval of `codes`.
+    fn bound_cells(codes: &[u32]) -> (String, String, String, String) {
+        let mut r = recorder(1.0);
+        let events: Vec<Event> = codes
+            .iter()
+            .enumerate()
+            .map(|(i, &c)| sample(0.1 + 0.01 * i as f64, c))
+            .collect();
+        for event in &events {
+            r.handle(event).unwrap();
+        }
+        r.finish(1.0).unwrap();
+        let row = data_rows(r).remove(0);
+        (
+            row[8].clone(),
+            row[9].clone(),
+            row[3].clone(),
+            row[4].clone(),
+        )
+    }
+
+    // Source: the rule in docs/recording.md ("Bounds"): clipped samples make a row
+    // `at-least`, below-span ones `at-most`, both `none` with no figures, and samples over
+    // full scale stay out of `averaged`. On the demo log amp 2000 counts is a value,
+    // 4095 clips, 100 lies below the span and 5000 is over the 12-bit full scale. Before
+    // the bound column these rows showed plain means of their values alone.
+    #[test]
+    fn interval_rows_name_their_bound_and_the_samples_averaged() {
+        let cal = recorder(1.0).cal;
+        let bottom = format!("{:.4}", cal.span_dbm().0);
+        let (bound, averaged, mean, _) = bound_cells(&[2000, 2000, 2000]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("", "3"));
+        let plain: f64 = mean.parse().unwrap();
+        let (bound, averaged, mean, _) = bound_cells(&[2000, 2000, 4095]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("at-least", "3"));
+        assert!(
+            mean.parse::<f64>().unwrap() > plain,
+            "{mean} against {plain}"
+        );
+        let (bound, averaged, mean, min) = bound_cells(&[2000, 100, 2000]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("at-most", "3"));
+        assert!(
+            mean.parse::<f64>().unwrap() < plain,
+            "{mean} against {plain}"
+        );
+        assert_eq!(
+            min, bottom,
+            "the below-span sample counts at the span's bottom"
+        );
+        let (bound, averaged, mean, min) = bound_cells(&[2000, 100, 4095]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("none", "0"));
+        assert_eq!((mean.as_str(), min.as_str()), ("", ""));
+        let (bound, averaged, mean, _) = bound_cells(&[2000, 5000, 2000]);
+        assert_eq!((bound.as_str(), averaged.as_str()), ("", "2"));
+        assert_eq!(mean.parse::<f64>().unwrap(), plain);
+    }
+
+    fn recorder_with_budget(every: f64) -> Recorder<Vec<u8>> {
+        let profile = parse_profile(
+            include_str!("../profiles/demo-logamp.toml"),
+            "demo-logamp.toml",
+        )
+        .unwrap();
+        let cal = Calibration::new(&profile, None, 0.0);
+        let budget = Uncertainty::new(&profile, &cal);
+        let context = RunContext {
+            every: Duration::from_secs_f64(every),
+            ..recorder(every).context_for_test()
+        };
+        Recorder::with_uncertainty(Vec::new(), cal, Some(budget), &context, Opening::Fresh).unwrap()
+    }
+
+    // Source: ADC quantisation, a step ÷ √12 (common practice), expanded with k = 2 (the
+    // GUM), worked by hand from the demo log amp's points: 80 dB over 2961.4 − 544.1 =
+    // 2417.3 counts is 0.033095 dB a count, so a constant count (no noise) has
+    // u_db = 2 × 0.033095 / √12 = 0.0191 dB, in interval and per-sample rows alike. A
+    // clipped row has none. The `# u_db:` line names the terms the budget leaves out,
+    // once. Before, rows had no u_db column.
+    #[test]
+    fn rows_carry_their_uncertainty_and_the_log_says_what_it_leaves_out() {
+        let quantisation = 2.0 * (80.0 / 2417.3) / 12f64.sqrt();
+        for every in [1.0, 0.0] {
+            let mut r = recorder_with_budget(every);
+            for i in 0..20 {
+                r.handle(&sample(0.01 * f64::from(i), 2000)).unwrap();
+            }
+            r.handle(&sample(1.5, 4095)).unwrap();
+            r.finish(2.0).unwrap();
+            let text = text(r);
+            let rows: Vec<Vec<&str>> = text
+                .lines()
+                .filter(|l| !l.starts_with('#') && !l.starts_with("time_s"))
+                .map(|l| l.split(',').collect())
+                .collect();
+            let u_col = if every > 0.0 { 10 } else { 6 };
+            let u: f64 = rows[0][u_col].parse().unwrap();
+            assert!(
+                (u - quantisation).abs() < 2e-4,
+                "every {every}: {u} against {quantisation}"
+            );
+            assert_eq!(rows.last().unwrap()[u_col], "", "a clipped row has no u_db");
+            let line: Vec<&str> = text.lines().filter(|l| l.starts_with("# u_db:")).collect();
+            assert_eq!(line.len(), 1, "{text}");
+            assert!(
+                line[0].contains("model, source, mismatch-calibration"),
+                "{}",
+                line[0]
+            );
+            assert_eq!(line[0].contains("noise"), every == 0.0, "{}", line[0]);
+        }
     }
 
     #[test]

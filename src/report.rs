@@ -9,6 +9,7 @@ use serde::Serialize;
 use thiserror::Error;
 
 use crate::numeric::fit_line;
+use crate::stats::Bound;
 use crate::units::{dbm_to_watts, format_clock, watts_to_dbm};
 
 mod read;
@@ -89,6 +90,29 @@ pub struct LogRow {
     pub max_dbm: Option<f64>,
     /// Flags of the row.
     pub flags: Vec<String>,
+    /// Whether the row's figures are values or bounds (`Exact` in logs before the `bound`
+    /// column).
+    pub bound: Bound,
+    /// Samples that went into the row's mean (all of them in logs before the `averaged`
+    /// column).
+    pub averaged: u64,
+    /// Expanded uncertainty (k = 2) of the row's mean, dB; None for a bound and in logs
+    /// before the `u_db` column.
+    pub u_db: Option<f64>,
+}
+
+impl LogRow {
+    /// The row's part in the run's bound: a `none` row counts only when it held bounds
+    /// both ways; one with no level at all is a row without a reading, as a gap is.
+    fn part_in_bound(&self) -> Bound {
+        let flagged = |name: &str| self.flags.iter().any(|f| f == name);
+        match self.bound {
+            Bound::Unknown if !(flagged("below") && (flagged("clip") || flagged("above"))) => {
+                Bound::Exact
+            }
+            bound => bound,
+        }
+    }
 }
 
 /// How a run's rows are spaced in time.
@@ -227,10 +251,21 @@ pub struct Report {
     pub duration_s: f64,
     /// Samples in the span.
     pub samples: u64,
-    /// Mean power, dBm (of the mean in watts).
-    pub mean_dbm: f64,
-    /// Mean power, watts.
-    pub mean_w: f64,
+    /// Mean power, dBm (of the mean in watts); null when `mean_bound` is `none`.
+    pub mean_dbm: Option<f64>,
+    /// Mean power, watts; null when `mean_bound` is `none`.
+    pub mean_w: Option<f64>,
+    /// Null when the mean is a value; `at-least`, `at-most` or `none` when rows counted
+    /// samples at a bound (see docs/report.md).
+    #[serde(serialize_with = "bound_cell")]
+    pub mean_bound: Bound,
+    /// Expanded uncertainty (k = 2) of the mean power, dB: the rows' `u_db` taken as wholly
+    /// systematic, so not reduced by their number (see docs/report.md); null when the mean
+    /// is a bound or a row with a mean has no `u_db`.
+    pub mean_u_db: Option<f64>,
+    /// The budget terms the rows' `u_db` leaves out, as the log's `# u_db:` line names
+    /// them; null when the log has no such line.
+    pub u_leaves_out: Option<String>,
     /// Lowest reading, dBm.
     pub min_dbm: f64,
     /// Highest reading, dBm.
@@ -330,7 +365,7 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     let step = run.spacing.step_s();
     let start = rows[0].t;
     let end = rows[rows.len() - 1].t + step;
-    let weight = |r: &&LogRow| r.samples.max(1) as f64;
+    let weight = |r: &&LogRow| r.averaged.max(1) as f64;
     let (sum_w, weights) =
         rows.iter()
             .filter(|r| r.mean_dbm.is_some())
@@ -340,7 +375,13 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
                     n + weight(r),
                 )
             });
-    let mean_w = sum_w / weights;
+    let mean_bound = rows
+        .iter()
+        .fold(Bound::Exact, |bound, r| bound.join(r.part_in_bound()));
+    let mean_w = (mean_bound != Bound::Unknown).then_some(sum_w / weights);
+    let mean_u_db = (mean_bound == Bound::Exact)
+        .then(|| systematic_u_db(&rows, weight))
+        .flatten();
     let min_dbm = rows
         .iter()
         .filter_map(|r| r.min_dbm.or(r.mean_dbm))
@@ -361,8 +402,14 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     Ok(Report {
         duration_s: end - start,
         samples,
-        mean_dbm: watts_to_dbm(mean_w),
+        mean_dbm: mean_w.map(watts_to_dbm),
         mean_w,
+        mean_bound,
+        mean_u_db,
+        u_leaves_out: run
+            .context_value("u_db:")
+            .and_then(|line| line.split_once("leaves out:"))
+            .map(|(_, terms)| terms.trim().to_string()),
         min_dbm,
         max_dbm,
         pk_pk_db: max_dbm - min_dbm,
@@ -378,6 +425,30 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         start_s: start,
         gap_spans,
     })
+}
+
+/// The expanded uncertainty of the mean power from the rows' own, each taken as wholly
+/// systematic (the budget gives one figure per row, not its noise apart): errors that
+/// repeat from row to row add linearly, so the mean's relative uncertainty is the rows'
+/// weighted by their share of the energy, Σ wᵢPᵢuᵢ / Σ wᵢPᵢ, no smaller for more rows.
+/// None when a row with a mean has no `u_db`.
+fn systematic_u_db(rows: &[&LogRow], weight: impl Fn(&&LogRow) -> f64) -> Option<f64> {
+    let (mut weighted, mut energy) = (0.0, 0.0);
+    for row in rows {
+        let Some(mean) = row.mean_dbm else { continue };
+        let share = dbm_to_watts(mean) * weight(row);
+        weighted += share * row.u_db?;
+        energy += share;
+    }
+    (energy > 0.0).then(|| weighted / energy)
+}
+
+/// `mean_bound` in JSON: null for a value, else the log's cell text.
+fn bound_cell<S: serde::Serializer>(bound: &Bound, serializer: S) -> Result<S::Ok, S::Error> {
+    match bound {
+        Bound::Exact => serializer.serialize_none(),
+        other => serializer.serialize_str(other.cell()),
+    }
 }
 
 fn std_dev(values: &[f64]) -> f64 {
@@ -482,6 +553,9 @@ mod tests {
             min_dbm: Some(dbm - 0.1),
             max_dbm: Some(dbm + 0.1),
             flags: Vec::new(),
+            bound: Bound::Exact,
+            averaged: 10,
+            u_db: None,
         }
     }
 

@@ -7,7 +7,7 @@ use std::io::{self, BufRead};
 use thiserror::Error;
 
 use crate::calibration::Calibration;
-use crate::record::{context_lines, RunContext};
+use crate::record::{context_lines, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS};
 
 /// What a log's rows look like, and how its last run was made.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -44,6 +44,16 @@ pub enum ShapeError {
         /// Its line number, from 1.
         line: u64,
     },
+    /// A log written before rows said whether their figures are bounds, or before they
+    /// carried their uncertainty.
+    #[error(
+        "its column header (line {line}) lacks the `bound` or `u_db` columns: it was written \
+         by an earlier dbtrail, and the new rows would not fit it; record to a new file"
+    )]
+    EarlierColumns {
+        /// Its line number, from 1.
+        line: u64,
+    },
     /// The file could not be read.
     #[error("cannot read it: {0}")]
     Io(#[from] io::Error),
@@ -52,10 +62,10 @@ pub enum ShapeError {
 /// The context lines that say how a run was made: a change in any of them makes a new run.
 const MADE_BY: [&str; 3] = ["# profile:", "# frequency:", "# rows:"];
 
-const PER_SAMPLE: [&str; 4] = ["counts", "volts", "dbm", "flags"];
-const PER_INTERVAL: [&str; 6] = [
-    "samples", "mean_dbm", "min_dbm", "max_dbm", "mean_w", "flags",
-];
+/// Columns of each channel that logs had before the `bound` column (the first of today's):
+/// the earlier layouts are today's cut short, before `bound` or before `u_db`.
+const PER_SAMPLE_BEFORE_BOUNDS: usize = 4;
+const PER_INTERVAL_BEFORE_BOUNDS: usize = 6;
 
 impl LogShape {
     /// Reads a log to its end (a line at a time, so a log of any size costs one line of
@@ -151,11 +161,23 @@ fn columns(header: &str, line: u64) -> Result<(usize, bool), ShapeError> {
         (channels > 0 && rest.len() % per.len() == 0 && rest.iter().copied().eq(expected))
             .then_some(channels)
     };
-    if let Some(channels) = fits(&["time_s"], &PER_SAMPLE) {
+    if let Some(channels) = fits(&["time_s"], &PER_SAMPLE_COLUMNS) {
         return Ok((channels, true));
     }
-    if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL) {
+    if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL_COLUMNS) {
         return Ok((channels, false));
+    }
+    let earlier = |lead: &[&str], columns: &[&str], first: usize| {
+        (first..columns.len()).any(|n| fits(lead, &columns[..n]).is_some())
+    };
+    if earlier(&["time_s"], &PER_SAMPLE_COLUMNS, PER_SAMPLE_BEFORE_BOUNDS)
+        || earlier(
+            &["time_s", "utc"],
+            &PER_INTERVAL_COLUMNS,
+            PER_INTERVAL_BEFORE_BOUNDS,
+        )
+    {
+        return Err(ShapeError::EarlierColumns { line });
     }
     Err(ShapeError::Columns {
         header: shortened(header),

@@ -1,24 +1,123 @@
-//! Statistics over readings, always in the power domain: means are taken over watts and
-//! only then turned into dBm. [`PowerStats`] is a value type that merges, so intervals,
-//! holds and trend buckets are all made of it; [`Averager`] is the moving average the
-//! screen shows, [`Settle`] says when that number has stopped moving, and [`Trend`] keeps
-//! min/max buckets so that no peak or dip is lost when history is shown at low resolution.
-//! An average over a time is made of the same buckets, so neither grows with the rate.
+//! Statistics over readings, in the power domain: means are taken over watts and only then
+//! turned into dBm, save for a steady level, whose mean is the reading of its mean count
+//! (see [`CountMoments::is_steady`]). [`PowerStats`] is a value type that merges, so
+//! intervals, holds and trend buckets are all made of it; [`Averager`] is the moving
+//! average the screen shows, [`Settle`] says when that number has stopped moving, and
+//! [`Trend`] keeps min/max buckets so that no peak or dip is lost when history is shown at
+//! low resolution. An average over a time is made of the same buckets, so neither grows
+//! with the rate.
 
 use std::collections::VecDeque;
 
-use crate::calibration::{Calibration, CodeEntry, Flags, Reading};
+use crate::calibration::{
+    untally, Calibration, CodeEntry, Flags, Reading, TALLY_AT_LEAST, TALLY_AT_MOST, TALLY_VALUE,
+};
+use crate::uncertainty::Noise;
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
-/// Readings with these flags are bounds, not values, and are left out of means and extremes.
+/// Readings with these flags are not values: the screen's holds, trend and average leave
+/// them out. Interval statistics count clipped and below-span readings at their bound
+/// instead (see [`Bound`]).
 pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
     .union(Flags::ADC_CLIP)
     .union(Flags::OVER_FULL_SCALE);
+
+/// What the mean, minimum and maximum of a set of readings are: values, or bounds on the
+/// true figures because some readings were counted at a bound of what can be measured.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Bound {
+    /// Every reading counted was a value.
+    Exact,
+    /// Clipped or above-span readings were counted at the clip level or the span's top:
+    /// the true figure is at least the one shown.
+    AtLeast,
+    /// Below-span readings were counted at the span's bottom: the true figure is at most
+    /// the one shown.
+    AtMost,
+    /// Bounds both ways, or readings of which none had a level: no figure can be given.
+    Unknown,
+}
+
+impl Bound {
+    /// The log's `bound` cell: empty for a value.
+    pub fn cell(self) -> &'static str {
+        match self {
+            Bound::Exact => "",
+            Bound::AtLeast => "at-least",
+            Bound::AtMost => "at-most",
+            Bound::Unknown => "none",
+        }
+    }
+
+    /// Reads a `bound` cell back; None for text that is not one.
+    pub fn from_cell(text: &str) -> Option<Bound> {
+        [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown]
+            .into_iter()
+            .find(|b| b.cell() == text.trim())
+    }
+
+    /// The bound of figures made of readings with bounds `self` and `other`.
+    pub fn join(self, other: Bound) -> Bound {
+        match (self, other) {
+            (Bound::Exact, b) | (b, Bound::Exact) => b,
+            (a, b) if a == b => a,
+            _ => Bound::Unknown,
+        }
+    }
+}
+
+/// How one reading counts in interval statistics.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Counted {
+    Value(f64),
+    AtLeast(f64),
+    AtMost(f64),
+    /// No level at all (over the ADC's full scale, NaN): left out.
+    Nothing,
+}
+
+impl Counted {
+    /// A reading's part in the mean: below span at its level (the span's bottom), clipped
+    /// or above span at its level but no higher than the span's top `span_top_dbm`.
+    pub(crate) fn of(flags: Flags, dbm: f64, span_top_dbm: f64) -> Counted {
+        if flags.contains(Flags::OVER_FULL_SCALE) || dbm.is_nan() {
+            Counted::Nothing
+        } else if flags.contains(Flags::BELOW_SPAN) {
+            Counted::AtMost(dbm)
+        } else if flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
+            Counted::AtLeast(dbm.min(span_top_dbm))
+        } else {
+            Counted::Value(dbm)
+        }
+    }
+
+    /// The level counted; NaN for none, which leaves extremes as they are (see `widen`).
+    pub(crate) fn dbm(self) -> f64 {
+        match self {
+            Counted::Value(dbm) | Counted::AtLeast(dbm) | Counted::AtMost(dbm) => dbm,
+            Counted::Nothing => f64::NAN,
+        }
+    }
+
+    /// Its kind as a table entry's tally (see `CodeEntry::tally`).
+    pub(crate) fn tally(self) -> u32 {
+        match self {
+            Counted::Value(_) => TALLY_VALUE,
+            Counted::AtLeast(_) => TALLY_AT_LEAST,
+            Counted::AtMost(_) => TALLY_AT_MOST,
+            Counted::Nothing => 0,
+        }
+    }
+}
 
 /// What `add_codes` keeps in registers over a run of table look-ups (the sums apart).
 struct TableRun {
     taken: u64,
     valid: u64,
+    at_least: u64,
+    at_most: u64,
+    /// The tallies of the block being taken, added into the counts at its end.
+    tally: u32,
     lo: f64,
     hi: f64,
     flags: Flags,
@@ -29,6 +128,9 @@ impl From<&PowerStats> for TableRun {
         TableRun {
             taken: 0,
             valid: 0,
+            at_least: 0,
+            at_most: 0,
+            tally: 0,
             lo: stats.min_dbm,
             hi: stats.max_dbm,
             flags: Flags::empty(),
@@ -62,8 +164,8 @@ fn sum_by_fours(codes: &[u32], sums: &mut [f64; 4], mut step: impl FnMut(u32, &m
 
 impl TableRun {
     /// Takes a block whose codes all lie in one run of the table (see `CodeRuns`): watts
-    /// looked up per code, the rest from the block's end codes. False, taking nothing,
-    /// for any other block.
+    /// looked up per code, the rest from the block's end codes (a run's codes are all of
+    /// one kind, values or bounds of one way). False, taking nothing, for any other block.
     #[inline(always)]
     fn take_steady(&mut self, cal: &Calibration, block: &[u32], sums: &mut [f64; 4]) -> bool {
         let runs = cal.code_runs();
@@ -81,24 +183,37 @@ impl TableRun {
         });
         let table = cal.code_table();
         let (low, high) = (&table[lowest as usize], &table[highest as usize]);
-        self.taken += block.len() as u64;
-        self.valid += block.len() as u64;
+        let n = block.len() as u64;
+        let (valid, at_least, at_most) = untally(low.tally);
+        self.taken += n;
+        self.valid += n * valid;
+        self.at_least += n * at_least;
+        self.at_most += n * at_most;
         self.flags |= low.flags;
-        self.widen(low.dbm + low.exclude, high.dbm - high.exclude);
+        self.widen(low.counted_dbm, high.counted_dbm);
         true
     }
 
     #[inline(always)]
     fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
-        self.taken += 1;
         self.flags |= entry.flags;
-        self.valid += u64::from(entry.valid);
+        self.tally += entry.tally;
         *sum_w += entry.watts;
-        self.widen(entry.dbm + entry.exclude, entry.dbm - entry.exclude);
+        self.widen(entry.counted_dbm, entry.counted_dbm);
     }
 
-    /// Plain comparisons (one instruction each): a NaN key, as −∞ + ∞ for a bound at zero
-    /// output, compares false and leaves the extreme as it was.
+    /// Ends a block taken code by code: its tallies into the counts.
+    #[inline(always)]
+    fn end_block(&mut self, tabled: usize) {
+        let (valid, at_least, at_most) = untally(std::mem::take(&mut self.tally));
+        self.taken += tabled as u64;
+        self.valid += valid;
+        self.at_least += at_least;
+        self.at_most += at_most;
+    }
+
+    /// Plain comparisons (one instruction each): a NaN key, the level of a code never
+    /// counted, compares false and leaves the extreme as it was.
     #[inline(always)]
     fn widen(&mut self, low_key: f64, high_key: f64) {
         self.lo = if low_key < self.lo { low_key } else { self.lo };
@@ -110,21 +225,213 @@ impl TableRun {
     }
 }
 
-/// Count, power-domain sum, extremes and flags of a set of readings.
+/// Moments of a run of ADC counts in time order: their number, sum, sum of squares and the
+/// sum of squared differences of successive counts, held about the first count so that a
+/// spread of a few counts on a level of thousands keeps its digits. They tell a steady
+/// level with white noise from a changing one (see [`CountMoments::is_steady`]) and give
+/// the noise of the mean. Whole counts add as integers in `add_codes`' blocks.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct CountMoments {
+    /// Counts taken.
+    pub n: u64,
+    /// The first count (0 when none), the origin of the sums.
+    first: f64,
+    /// The last count, for the difference to the next.
+    last: f64,
+    /// Σ (c − first).
+    sum: f64,
+    /// Σ (c − first)².
+    sum_sq: f64,
+    /// Σ (c_i − c_{i−1})² over successive counts.
+    sum_diff_sq: f64,
+}
+
+/// Fewest counts whose spread and succession say whether a level is steady.
+pub const STEADY_MIN_COUNTS: u64 = 16;
+/// Largest standard deviation of a steady level's counts: ADC noise of a few counts, not a
+/// modulation.
+pub const STEADY_MAX_SIGMA_COUNTS: f64 = 3.0;
+/// Two-sided normal quantile of the test of white noise (0.1 % of white-noise intervals
+/// are taken for changing ones and averaged over watts, as before).
+const WHITE_NOISE_Z: f64 = 3.29;
+
+impl CountMoments {
+    /// Adds one count (after those added before).
+    pub fn add(&mut self, count: f64) {
+        if self.n == 0 {
+            self.first = count;
+        } else {
+            self.sum_diff_sq += (count - self.last).powi(2);
+        }
+        let x = count - self.first;
+        self.n += 1;
+        self.sum += x;
+        self.sum_sq += x * x;
+        self.last = count;
+    }
+
+    /// The moments of a block of at most [`CODE_BLOCK`] whole counts of a table of at most
+    /// 4096 codes (12 bits), summed as integers about the first: each count's offset and
+    /// each successive difference lies within ±4095, so they are 16-bit numbers whose
+    /// squares (under 2^24) sum exactly in 32 bits for 256 of them, eight to a vector
+    /// register. Counts of wider tables take [`CountMoments::of_wide_block`].
+    fn of_block(codes: &[u32]) -> CountMoments {
+        let Some((&head, &tail)) = codes.first().zip(codes.last()) else {
+            return CountMoments::default();
+        };
+        let mut offsets = [0i16; CODE_BLOCK];
+        let offsets = &mut offsets[..codes.len()];
+        for (x, &c) in offsets.iter_mut().zip(codes) {
+            // Within ±4095 already: the clamp lets the narrowing be one saturating pack.
+            *x = (c as i32 - head as i32).clamp(-32768, 32767) as i16;
+        }
+        let offsets = &*offsets;
+        let square = |v: i32| (v * v) as u32;
+        // The first count's offset is 0: its sums start empty.
+        let (mut sum, mut sum_sq, mut diff_sq) = (0i32, 0u32, 0u32);
+        for (&before, &x) in offsets.iter().zip(&offsets[1..]) {
+            let (x, before) = (i32::from(x), i32::from(before));
+            sum += x;
+            sum_sq = sum_sq.wrapping_add(square(x));
+            diff_sq = diff_sq.wrapping_add(square(x - before));
+        }
+        CountMoments {
+            n: codes.len() as u64,
+            first: f64::from(head),
+            last: f64::from(tail),
+            sum: f64::from(sum),
+            sum_sq: f64::from(sum_sq),
+            sum_diff_sq: f64::from(diff_sq),
+        }
+    }
+
+    /// As [`CountMoments::of_block`] for counts below 2^16 (a table of up to 16 bits), in
+    /// 64-bit sums.
+    fn of_wide_block(codes: &[u32]) -> CountMoments {
+        let Some((&head, &tail)) = codes.first().zip(codes.last()) else {
+            return CountMoments::default();
+        };
+        let sum: u64 = codes.iter().map(|&c| u64::from(c)).sum();
+        let sum_sq: u64 = codes.iter().map(|&c| u64::from(c) * u64::from(c)).sum();
+        let diff_sq: u64 = codes
+            .iter()
+            .zip(&codes[1..])
+            .map(|(&a, &b)| u64::from(a.abs_diff(b)).pow(2))
+            .sum();
+        let (n, origin) = (codes.len() as i64, i64::from(head));
+        let (sum, sum_sq) = (sum as i64, sum_sq as i64);
+        CountMoments {
+            n: n as u64,
+            first: f64::from(head),
+            last: f64::from(tail),
+            sum: (sum - n * origin) as f64,
+            sum_sq: (sum_sq - 2 * origin * sum + n * origin * origin) as f64,
+            sum_diff_sq: diff_sq as f64,
+        }
+    }
+
+    /// Adds the counts of `other`, which came after these.
+    pub fn merge(&mut self, other: &CountMoments) {
+        if other.n == 0 {
+            return;
+        }
+        if self.n == 0 {
+            *self = *other;
+            return;
+        }
+        let shift = other.first - self.first;
+        let n = other.n as f64;
+        self.sum_sq += other.sum_sq + 2.0 * shift * other.sum + n * shift * shift;
+        self.sum += other.sum + n * shift;
+        self.sum_diff_sq += other.sum_diff_sq + (other.first - self.last).powi(2);
+        self.n += other.n;
+        self.last = other.last;
+    }
+
+    /// The mean count.
+    pub fn mean(&self) -> Option<f64> {
+        (self.n > 0).then(|| self.first + self.sum / self.n as f64)
+    }
+
+    /// The sample variance of the counts (n − 1 in the denominator).
+    pub fn variance(&self) -> Option<f64> {
+        (self.n > 1).then(|| {
+            let n = self.n as f64;
+            ((self.sum_sq - self.sum * self.sum / n) / (n - 1.0)).max(0.0)
+        })
+    }
+
+    /// The von Neumann ratio: mean squared successive difference over the variance, 2 for
+    /// white noise, near 0 for a level that moves slowly against the sample rate, above 2
+    /// for one that alternates. None for fewer than two counts or counts all alike.
+    pub fn successive_ratio(&self) -> Option<f64> {
+        let var = self.variance().filter(|v| *v > 0.0)?;
+        Some(self.sum_diff_sq / (self.n - 1) as f64 / var)
+    }
+
+    /// Whether the counts are a steady level with white noise of a few counts: at least
+    /// [`STEADY_MIN_COUNTS`], a standard deviation of at most [`STEADY_MAX_SIGMA_COUNTS`],
+    /// and a von Neumann ratio within [`WHITE_NOISE_Z`] standard errors of white noise's
+    /// 2 (its variance is 4(n − 2)/((n − 1)(n + 1)) for normal white noise). Counts all
+    /// alike are steady.
+    pub fn is_steady(&self) -> bool {
+        let (Some(var), true) = (self.variance(), self.n >= STEADY_MIN_COUNTS) else {
+            return false;
+        };
+        if var.sqrt() > STEADY_MAX_SIGMA_COUNTS {
+            return false;
+        }
+        let Some(ratio) = self.successive_ratio() else {
+            return true;
+        };
+        let n = self.n as f64;
+        let se = (4.0 * (n - 2.0) / ((n - 1.0) * (n + 1.0))).sqrt();
+        (ratio - 2.0).abs() <= WHITE_NOISE_Z * se
+    }
+
+    /// The lag-one autocorrelation from the successive differences, ρ = 1 − ratio / 2,
+    /// held at 0 or above (negative correlation would claim more than N samples' worth).
+    pub fn lag_one(&self) -> Option<f64> {
+        Some((1.0 - self.successive_ratio()? / 2.0).clamp(0.0, 1.0))
+    }
+
+    /// The counts' standard deviation and their effective number, N(1 − ρ)/(1 + ρ), for
+    /// the noise of the mean; None for fewer than two counts.
+    pub fn noise(&self) -> Option<Noise> {
+        let sigma_counts = self.variance()?.sqrt();
+        let rho = self.lag_one().unwrap_or(0.0);
+        Some(Noise {
+            sigma_counts,
+            n_eff: (self.n as f64 * (1.0 - rho) / (1.0 + rho)).max(1.0),
+        })
+    }
+}
+
+/// Count, power-domain sum, extremes and flags of a set of readings, and the moments of
+/// their counts.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PowerStats {
     /// Readings seen, valid or not.
     pub samples: u64,
-    /// Readings that are values (not below span, not clipped).
+    /// Readings that are values (in the span, not clipped).
     pub valid: u64,
-    /// Sum of the valid readings in watts.
+    /// Clipped or above-span readings, counted at the clip level or the span's top.
+    pub at_least: u64,
+    /// Below-span readings, counted at the span's bottom.
+    pub at_most: u64,
+    /// Sum in watts of the readings counted: the values and the bounds.
     pub sum_w: f64,
-    /// Lowest valid reading, dBm (+∞ when none).
+    /// Lowest reading counted, dBm (+∞ when none).
     pub min_dbm: f64,
-    /// Highest valid reading, dBm (−∞ when none).
+    /// Highest reading counted, dBm (−∞ when none).
     pub max_dbm: f64,
     /// Every flag any reading carried.
     pub flags: Flags,
+    /// Moments of the counts of the readings added with their code (`add_codes`,
+    /// `add_within` of a whole count): `moments.n` falls short of `samples` otherwise, as
+    /// it does after a block of `add_codes` that held a code past the table (over full
+    /// scale; see [`PowerStats::counts_complete`]).
+    pub moments: CountMoments,
 }
 
 impl Default for PowerStats {
@@ -132,26 +439,73 @@ impl Default for PowerStats {
         PowerStats {
             samples: 0,
             valid: 0,
+            at_least: 0,
+            at_most: 0,
             sum_w: 0.0,
             min_dbm: f64::INFINITY,
             max_dbm: f64::NEG_INFINITY,
             flags: Flags::empty(),
+            moments: CountMoments::default(),
         }
     }
 }
 
+/// An interval's figures as a row gives them.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Figures {
+    /// Whether the mean is a value or a bound.
+    pub bound: Bound,
+    /// The mean, dBm; None when the bound is `Unknown` or nothing was counted.
+    pub mean_dbm: Option<f64>,
+    /// The mean, watts.
+    pub mean_w: Option<f64>,
+    /// Lowest and highest reading counted (bounds as the mean is); None when unknown.
+    pub min_dbm: Option<f64>,
+    /// See `min_dbm`.
+    pub max_dbm: Option<f64>,
+    /// Samples that went into the mean.
+    pub averaged: u64,
+    /// True when the mean is the reading of the mean count of a steady level.
+    pub steady: bool,
+    /// The noise of the counts, for the mean's uncertainty: None for a bound, for fewer
+    /// than two counts, or when a sample's count says nothing of the level (clipped, over
+    /// full scale).
+    pub noise: Option<Noise>,
+}
+
 impl PowerStats {
-    /// Adds one reading.
+    /// Adds one reading as the screen's holds and trend keep them: a value, or only its
+    /// flags for a bound (see [`NOT_A_VALUE`]).
     pub fn add(&mut self, reading: &Reading) {
-        self.samples += 1;
-        self.flags |= reading.flags;
         if reading.flags.intersects(NOT_A_VALUE) {
+            self.samples += 1;
+            self.flags |= reading.flags;
             return;
         }
-        self.valid += 1;
-        self.sum_w += dbm_to_watts(reading.dbm);
-        self.min_dbm = self.min_dbm.min(reading.dbm);
-        self.max_dbm = self.max_dbm.max(reading.dbm);
+        self.add_within(reading, f64::INFINITY);
+    }
+
+    /// Adds one reading of a calibration whose span tops out at `span_top_dbm`
+    /// (reference plane), as interval statistics count it: a clipped or above-span reading
+    /// at its level but no higher than that, a below-span one at the span's bottom.
+    pub fn add_within(&mut self, reading: &Reading, span_top_dbm: f64) {
+        let counted = Counted::of(reading.flags, reading.dbm, span_top_dbm);
+        self.samples += 1;
+        self.flags |= reading.flags;
+        if reading.counts.fract() == 0.0 {
+            self.moments.add(reading.counts);
+        }
+        let (valid, at_least, at_most) = untally(counted.tally());
+        self.valid += valid;
+        self.at_least += at_least;
+        self.at_most += at_most;
+        if counted == Counted::Nothing {
+            return;
+        }
+        let dbm = counted.dbm();
+        self.sum_w += dbm_to_watts(dbm);
+        self.min_dbm = self.min_dbm.min(dbm);
+        self.max_dbm = self.max_dbm.max(dbm);
     }
 
     /// Adds one ADC code through the calibration's precomputed table, falling back to the
@@ -160,9 +514,9 @@ impl PowerStats {
         self.add_codes(cal, &[code]);
     }
 
-    /// Adds a run of ADC codes, as `add_code` for each (the recorder's inner loop). The
-    /// codes take four partial sums in turn, added together at the end: one chain of float
-    /// additions would hold the loop to an add's latency per sample.
+    /// Adds a run of ADC codes, as `add_within` of each code's reading (the recorder's
+    /// inner loop). The codes take four partial sums in turn, added together at the end:
+    /// one chain of float additions would hold the loop to an add's latency per sample.
     pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
         let table = cal.code_table();
         let mut run = TableRun::from(&*self);
@@ -174,24 +528,50 @@ impl PowerStats {
             if unlooked > 0 {
                 unlooked -= 1;
             } else if run.take_steady(cal, block, &mut sums) {
+                // A run lies inside the table.
+                self.add_moments(table.len(), block);
                 continue;
             } else {
                 unlooked = BLOCKS_UNLOOKED;
             }
+            let mut untabled = 0;
             sum_by_fours(block, &mut sums, |code, sum| {
                 match table.get(code as usize) {
                     Some(entry) => run.take(entry, sum),
-                    None => self.add_untabled(cal, code),
+                    None => {
+                        untabled += 1;
+                        self.add_untabled(cal, code)
+                    }
                 }
             });
+            run.end_block(block.len() - untabled);
+            if untabled == 0 {
+                self.add_moments(table.len(), block);
+            }
         }
         let [s0, s1, s2, s3] = sums;
         self.samples += run.taken;
         self.valid += run.valid;
+        self.at_least += run.at_least;
+        self.at_most += run.at_most;
         self.sum_w += (s0 + s1) + (s2 + s3);
         self.min_dbm = self.min_dbm.min(run.lo);
         self.max_dbm = self.max_dbm.max(run.hi);
         self.flags |= run.flags;
+    }
+
+    /// The count moments of a block whose every code lies in the table. A block with a
+    /// code past it (over full scale) is left out, so the moments no longer cover every
+    /// sample (see [`PowerStats::counts_complete`]); without a table, `add_within` adds
+    /// each count.
+    #[inline(always)]
+    fn add_moments(&mut self, table_len: usize, block: &[u32]) {
+        let block = if table_len <= 4096 {
+            CountMoments::of_block(block)
+        } else {
+            CountMoments::of_wide_block(block)
+        };
+        self.moments.merge(&block);
     }
 
     /// The exact model for a code the table does not cover (above the ADC's full scale):
@@ -199,7 +579,7 @@ impl PowerStats {
     #[cold]
     #[inline(never)]
     fn add_untabled(&mut self, cal: &Calibration, code: u32) {
-        self.add(&cal.reading_code(code));
+        self.add_within(&cal.reading_code(code), cal.span_dbm().1);
     }
 
     /// Adds every `width`-th code of `counts` from `first` on: one channel of
@@ -222,19 +602,50 @@ impl PowerStats {
         }
     }
 
-    /// Adds another set (as if its readings had been added one by one).
+    /// Adds another set, whose readings came after these (as if they had been added one by
+    /// one).
     pub fn merge(&mut self, other: &PowerStats) {
         self.samples += other.samples;
         self.valid += other.valid;
+        self.at_least += other.at_least;
+        self.at_most += other.at_most;
         self.sum_w += other.sum_w;
         self.min_dbm = self.min_dbm.min(other.min_dbm);
         self.max_dbm = self.max_dbm.max(other.max_dbm);
         self.flags |= other.flags;
+        self.moments.merge(&other.moments);
     }
 
-    /// Mean power in watts over the valid readings.
+    /// Whether the count moments cover every reading.
+    pub fn counts_complete(&self) -> bool {
+        self.moments.n == self.samples
+    }
+
+    /// Whether the mean and extremes over watts are values or bounds.
+    pub fn bound(&self) -> Bound {
+        match (self.at_least > 0, self.at_most > 0) {
+            (true, true) => Bound::Unknown,
+            _ if self.averaged() == 0 && self.samples > 0 => Bound::Unknown,
+            (true, false) => Bound::AtLeast,
+            (false, true) => Bound::AtMost,
+            (false, false) => Bound::Exact,
+        }
+    }
+
+    /// Readings that went into the mean over watts: the values and those counted at a
+    /// bound; 0 when the bounds go both ways and there is no mean.
+    pub fn averaged(&self) -> u64 {
+        if self.at_least > 0 && self.at_most > 0 {
+            0
+        } else {
+            self.valid + self.at_least + self.at_most
+        }
+    }
+
+    /// Mean power in watts over the readings counted (see [`PowerStats::bound`]).
     pub fn mean_w(&self) -> Option<f64> {
-        (self.valid > 0).then(|| self.sum_w / self.valid as f64)
+        let n = self.averaged();
+        (n > 0).then(|| self.sum_w / n as f64)
     }
 
     /// Mean power in dBm (of the mean in watts).
@@ -242,9 +653,61 @@ impl PowerStats {
         self.mean_w().map(watts_to_dbm)
     }
 
-    /// Lowest and highest valid reading, dBm.
+    /// Lowest and highest reading counted, dBm.
     pub fn extremes(&self) -> Option<(f64, f64)> {
-        (self.valid > 0).then_some((self.min_dbm, self.max_dbm))
+        (self.averaged() > 0).then_some((self.min_dbm, self.max_dbm))
+    }
+
+    /// The reading of the mean count when the counts are a steady level (see
+    /// [`CountMoments::is_steady`]) whose every count is a measured one (none clipped,
+    /// none over full scale) and whose mean count lies in the span: the estimator of a
+    /// steady level, unbiased where the curve bends (docs/calibration.md, "Means near the
+    /// bottom of the span"). Samples of such a level may stray past the span's ends.
+    pub fn steady_reading(&self, cal: &Calibration) -> Option<Reading> {
+        let unmeasured = Flags::ADC_CLIP | Flags::OVER_FULL_SCALE;
+        if self.flags.intersects(unmeasured) || !self.counts_complete() {
+            return None;
+        }
+        if !self.moments.is_steady() {
+            return None;
+        }
+        let reading = cal.reading(self.moments.mean()?);
+        let outside = NOT_A_VALUE | Flags::ABOVE_SPAN;
+        (!reading.flags.intersects(outside)).then_some(reading)
+    }
+
+    /// The figures of a row: over watts with their bound, or the steady reading.
+    pub fn figures(&self, cal: &Calibration) -> Figures {
+        if let Some(reading) = self.steady_reading(cal) {
+            return Figures {
+                bound: Bound::Exact,
+                mean_dbm: Some(reading.dbm),
+                mean_w: Some(reading.watts()),
+                // A sample past a span's end has no value to show as an extreme.
+                min_dbm: (self.at_most == 0).then_some(self.min_dbm),
+                max_dbm: (self.at_least == 0).then_some(self.max_dbm),
+                averaged: self.samples,
+                steady: true,
+                noise: self.moments.noise(),
+            };
+        }
+        let bound = self.bound();
+        let measured = !self
+            .flags
+            .intersects(Flags::ADC_CLIP | Flags::OVER_FULL_SCALE);
+        Figures {
+            bound,
+            mean_dbm: self.mean_dbm(),
+            mean_w: self.mean_w(),
+            min_dbm: self.extremes().map(|e| e.0),
+            max_dbm: self.extremes().map(|e| e.1),
+            averaged: self.averaged(),
+            steady: false,
+            noise: self
+                .moments
+                .noise()
+                .filter(|_| bound == Bound::Exact && measured && self.counts_complete()),
+        }
     }
 
     /// Moves every level by `db` (the offset or frequency correction changed).
@@ -391,7 +854,7 @@ impl Averager {
             Held::Readings(last) => (last.watts.len() as u64, last.sum_w),
             Held::Buckets(buckets) => {
                 let all = buckets.total();
-                (all.valid, all.sum_w)
+                (all.averaged(), all.sum_w)
             }
         }
     }
@@ -633,16 +1096,159 @@ mod tests {
         assert_eq!(s.extremes(), Some((0.0, 10.0)));
     }
 
+    /// Three readings at 0 dBm and `fourth`, as `add_within` counts them under a span
+    /// topping out at +6 dBm.
+    fn three_at_zero_and(fourth: Reading) -> PowerStats {
+        let mut s = PowerStats::default();
+        for _ in 0..3 {
+            s.add_within(&reading(0.0, Flags::empty()), 6.0);
+        }
+        s.add_within(&fourth, 6.0);
+        s
+    }
+
+    // Source: worked by hand (power-domain mean, common practice). Three readings of
+    // 0 dBm (1 mW each) and one clipped at +5 dBm, counted at its clip level (3.16228 mW):
+    // (3 + 3.16228) / 4 = 1.54057 mW = +1.8768 dBm, and the true mean is at least that.
+    // Above the span (+12 dBm extrapolated) it counts at the span's top, +6 dBm
+    // (3.98107 mW): (3 + 3.98107) / 4 = 1.74527 mW = +2.4186 dBm. Before bounds were
+    // counted, both gave a plain 0 dBm.
     #[test]
-    fn bounds_are_flagged_but_not_averaged() {
+    fn clipped_and_above_span_readings_count_at_their_bound_and_make_the_mean_at_least() {
+        let clipped = three_at_zero_and(reading(5.0, Flags::ADC_CLIP));
+        assert!((clipped.mean_dbm().unwrap() - 1.876_812_716).abs() < 1e-8);
+        assert_eq!(clipped.bound(), Bound::AtLeast);
+        assert_eq!(clipped.extremes(), Some((0.0, 5.0)));
+        assert_eq!((clipped.samples, clipped.averaged()), (4, 4));
+        let above = three_at_zero_and(reading(12.0, Flags::ABOVE_SPAN));
+        assert!((above.mean_dbm().unwrap() - 2.418_621_075).abs() < 1e-8);
+        assert_eq!(above.bound(), Bound::AtLeast);
+        assert_eq!(above.extremes(), Some((0.0, 6.0)));
+        assert_eq!(above.bound().cell(), "at-least");
+    }
+
+    // Source: worked by hand. Three readings of 0 dBm and one below the span, read at the
+    // span's bottom, −10 dBm (0.1 mW): (3 + 0.1) / 4 = 0.775 mW = −1.10698 dBm, and the
+    // true mean is at most that. Before, the mean was a plain 0 dBm.
+    #[test]
+    fn below_span_readings_count_at_the_bottom_and_make_the_mean_at_most() {
+        let s = three_at_zero_and(reading(-10.0, Flags::BELOW_SPAN));
+        assert!((s.mean_dbm().unwrap() - -1.106_982_975).abs() < 1e-8);
+        assert_eq!(s.bound(), Bound::AtMost);
+        assert_eq!(s.bound().cell(), "at-most");
+        assert_eq!(s.extremes(), Some((-10.0, 0.0)));
+    }
+
+    // Source: the rule in docs/recording.md: bounds both ways, or no reading with a level,
+    // give no figure (`none`); readings with no level stay out of the mean.
+    #[test]
+    fn bounds_both_ways_or_no_level_give_no_figure() {
+        let mut both = three_at_zero_and(reading(-10.0, Flags::BELOW_SPAN));
+        both.add_within(&reading(5.0, Flags::ADC_CLIP), 6.0);
+        assert_eq!(both.bound(), Bound::Unknown);
+        assert_eq!(both.bound().cell(), "none");
+        assert_eq!((both.mean_dbm(), both.extremes()), (None, None));
+        let mut damaged = PowerStats::default();
+        damaged.add(&reading(f64::NAN, Flags::OVER_FULL_SCALE));
+        assert_eq!(damaged.bound(), Bound::Unknown);
+        assert_eq!(damaged.mean_dbm(), None);
+        let mixed = three_at_zero_and(reading(f64::NAN, Flags::OVER_FULL_SCALE));
+        assert_eq!(mixed.bound(), Bound::Exact);
+        assert_eq!((mixed.samples, mixed.averaged()), (4, 3));
+        assert!(mixed.mean_dbm().unwrap().abs() < 1e-12);
+        assert_eq!(
+            PowerStats::default().bound(),
+            Bound::Exact,
+            "a row of no samples"
+        );
+        assert_eq!(Bound::AtLeast.join(Bound::Exact), Bound::AtLeast);
+        assert_eq!(Bound::AtLeast.join(Bound::AtMost), Bound::Unknown);
+        for bound in [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown] {
+            assert_eq!(Bound::from_cell(bound.cell()), Some(bound));
+        }
+    }
+
+    fn demo_log_amp() -> Calibration {
+        let profile = crate::profile::parse_profile(
+            include_str!("../profiles/demo-logamp.toml"),
+            "demo-logamp.toml",
+        )
+        .unwrap();
+        Calibration::new(&profile, None, 0.0)
+    }
+
+    // Source: the rule in docs/recording.md ("Bounds"), through the per-code table and its
+    // blocks: 512 codes below the demo log amp's span (100 counts) count at the span's
+    // bottom, at most; 512 clipped codes (4095) at no more than the span's top, at least.
+    // Before, the table gave bounds no watts and both sets had no mean.
+    #[test]
+    fn the_code_table_counts_runs_of_bounded_codes_at_their_bound() {
+        let cal = demo_log_amp();
+        let (bottom, top) = cal.span_dbm();
+        let mut below = PowerStats::default();
+        below.add_codes(&cal, &[100; 512]);
+        assert_eq!((below.valid, below.at_least, below.at_most), (0, 0, 512));
+        assert_eq!(below.bound(), Bound::AtMost);
+        assert_eq!(below.extremes(), Some((bottom, bottom)));
+        assert!((below.mean_dbm().unwrap() - bottom).abs() < 1e-9);
+        let mut clipped = PowerStats::default();
+        clipped.add_codes(&cal, &[4095; 512]);
+        assert_eq!(
+            (clipped.valid, clipped.at_least, clipped.at_most),
+            (0, 512, 0)
+        );
+        assert_eq!(clipped.bound(), Bound::AtLeast);
+        let level = cal.reading(4095.0).dbm.min(top);
+        assert_eq!(clipped.extremes(), Some((level, level)));
+        assert!(clipped.flags.contains(Flags::ADC_CLIP));
+    }
+
+    // Source: the rule in docs/screen.md: readings below the span or at ADC clip "are left
+    // out of holds and trend values"; they raise their flags only.
+    #[test]
+    fn the_screens_add_keeps_values_only() {
         let mut s = PowerStats::default();
         s.add(&reading(-30.0, Flags::BELOW_SPAN));
-        assert_eq!(s.mean_dbm(), None);
-        s.add(&reading(3.0, Flags::ABOVE_SPAN));
-        assert_eq!(s.samples, 2);
-        assert_eq!(s.valid, 1);
-        assert!((s.mean_dbm().unwrap() - 3.0).abs() < 1e-12);
-        assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ABOVE_SPAN);
+        s.add(&reading(9.0, Flags::ADC_CLIP));
+        assert_eq!(s.extremes(), None);
+        s.add(&reading(3.0, Flags::empty()));
+        assert_eq!((s.samples, s.valid, s.at_least, s.at_most), (3, 1, 0, 0));
+        assert_eq!(s.extremes(), Some((3.0, 3.0)));
+        assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ADC_CLIP);
+    }
+
+    // Source: worked by hand. Counts 1, 2, 3, 4: mean 2.5, sample variance 5/3, squared
+    // successive differences 3 over 3 pairs, so the von Neumann ratio is 1 / (5/3) = 0.6
+    // and ρ = 1 − 0.6/2 = 0.7, N_eff = 4·0.3/1.7 < 1, held at 1. Counts 0, 2, 0, 2: mean
+    // 1, variance 4/3, differences 12 over 3, ratio 3, ρ = −0.5 held at 0, N_eff = 4.
+    // Merging 1, 2 and 3, 4 (the second after the first) gives the same as one run.
+    #[test]
+    fn count_moments_by_hand() {
+        let of = |counts: &[f64]| {
+            let mut m = CountMoments::default();
+            counts.iter().for_each(|&c| m.add(c));
+            m
+        };
+        let ramp = of(&[1.0, 2.0, 3.0, 4.0]);
+        assert_eq!(ramp.mean(), Some(2.5));
+        assert!((ramp.variance().unwrap() - 5.0 / 3.0).abs() < 1e-12);
+        assert!((ramp.successive_ratio().unwrap() - 0.6).abs() < 1e-12);
+        assert!((ramp.lag_one().unwrap() - 0.7).abs() < 1e-12);
+        assert_eq!(ramp.noise().unwrap().n_eff, 1.0);
+        let alternating = of(&[0.0, 2.0, 0.0, 2.0]);
+        assert!((alternating.successive_ratio().unwrap() - 3.0).abs() < 1e-12);
+        assert_eq!(alternating.lag_one(), Some(0.0));
+        assert_eq!(alternating.noise().unwrap().n_eff, 4.0);
+        let mut merged = of(&[1.0, 2.0]);
+        merged.merge(&of(&[3.0, 4.0]));
+        assert_eq!(merged, ramp);
+        assert_eq!(CountMoments::of_block(&[1, 2, 3, 4]), ramp);
+        assert_eq!(CountMoments::of_wide_block(&[1, 2, 3, 4]), ramp);
+        // Offsets both ways from the first count, up to the 12-bit table's ±4095.
+        let swing = [2000, 0, 4095, 1, 4094, 2000];
+        let one_by_one = of(&swing.map(f64::from));
+        assert_eq!(CountMoments::of_block(&swing), one_by_one);
+        assert_eq!(CountMoments::of_wide_block(&swing), one_by_one);
     }
 
     #[test]

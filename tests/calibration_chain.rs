@@ -3,7 +3,7 @@
 mod common;
 
 use common::demo_diode_with_stale_fit;
-use dbtrail::calibration::{Calibration, Flags};
+use dbtrail::calibration::{Calibration, CodeEntry, Flags};
 use dbtrail::profile::{parse_profile, Profile};
 
 /// A log-amp on a 12-bit ADC with vref 4.095 V, so one count is exactly 1 mV, following
@@ -103,10 +103,11 @@ fn a_falling_output_log_amp_is_flagged_the_right_way_round() {
 
 // Source: common practice — a detector's level moves one way with its output (up for a
 // diode or most log amps, down for a negative-slope log amp). A run of the code table is a
-// stretch of codes that are all values with one set of flags, so a block of codes inside
-// one takes its extremes from the run's order and its flags from any of its codes.
+// stretch of counted codes with one set of flags (values, or bounds of one way), so a
+// block of codes inside one takes its extremes from the run's order and its flags and
+// kinds from any of its codes.
 #[test]
-fn runs_of_the_code_table_hold_values_of_one_kind_in_level_order() {
+fn runs_of_the_code_table_hold_codes_of_one_kind_in_level_order() {
     for (slope, intercept) in [(0.025, -80.0), (-0.025, 20.0)] {
         let cal = Calibration::new(&log_amp_profile(slope, intercept, CORRECTIONS), None, 0.0);
         let (table, runs) = (cal.code_table(), cal.code_runs());
@@ -116,9 +117,15 @@ fn runs_of_the_code_table_hold_values_of_one_kind_in_level_order() {
                     continue;
                 };
                 let (lowest, highest) = (&table[lowest as usize], &table[highest as usize]);
+                let first = &table[lo as usize];
                 for entry in &table[lo as usize..=hi as usize] {
-                    assert_eq!((entry.valid, entry.flags), (1, table[lo as usize].flags));
-                    assert!(lowest.dbm <= entry.dbm && entry.dbm <= highest.dbm);
+                    let kind = |e: &CodeEntry| (e.tally, e.flags);
+                    assert_eq!(kind(entry), kind(first));
+                    assert!(!entry.counted_dbm.is_nan());
+                    assert!(
+                        lowest.counted_dbm <= entry.counted_dbm
+                            && entry.counted_dbm <= highest.counted_dbm
+                    );
                 }
             }
         }
@@ -199,7 +206,8 @@ mod batched_statistics {
         // Steady codes (a level with a few counts of noise, now and then a code from
         // anywhere) and slow ramps across the flags' edges, over several blocks, on a
         // detector whose output rises with power and on one whose output falls, exercise
-        // the blocks taken by runs of the table.
+        // the blocks taken by runs of the table. Clipped, above- and below-span codes are
+        // counted at their bound on both paths, and the counts of each kind agree.
         #[test]
         fn batched_codes_equal_readings_added_one_by_one(
             codes in prop_oneof![
@@ -223,19 +231,38 @@ mod batched_statistics {
             channel.add_channel(&cal, &codes, width - 1, width);
             let mut single = PowerStats::default();
             let mut column = PowerStats::default();
+            let span_top = cal.span_dbm().1;
             for (i, &code) in codes.iter().enumerate() {
                 let reading = cal.reading(f64::from(code));
-                single.add(&reading);
+                single.add_within(&reading, span_top);
                 if i % width == width - 1 {
-                    column.add(&reading);
+                    column.add_within(&reading, span_top);
                 }
             }
+            let tabled = codes.iter().all(|&c| c <= 4095);
             for (fast, slow) in [(batched, single), (channel, column)] {
+                // Count moments are kept over whole blocks of tabled codes only.
+                if tabled {
+                    prop_assert_eq!(fast.moments.n, slow.moments.n);
+                    prop_assert_eq!(fast.moments.mean(), slow.moments.mean());
+                    let close = |a: Option<f64>, b: Option<f64>| match (a, b) {
+                        (Some(a), Some(b)) => (a - b).abs() <= 1e-9 * b.abs().max(1.0),
+                        (a, b) => a == b,
+                    };
+                    prop_assert!(close(fast.moments.variance(), slow.moments.variance()));
+                    prop_assert!(close(
+                        fast.moments.successive_ratio(),
+                        slow.moments.successive_ratio()
+                    ));
+                }
                 prop_assert_eq!(fast.samples, slow.samples);
                 prop_assert_eq!(fast.valid, slow.valid);
+                prop_assert_eq!(fast.at_least, slow.at_least);
+                prop_assert_eq!(fast.at_most, slow.at_most);
+                prop_assert_eq!(fast.bound(), slow.bound());
                 prop_assert_eq!(fast.flags, slow.flags);
                 prop_assert!((fast.sum_w - slow.sum_w).abs() <= 1e-12 * slow.sum_w.abs());
-                if slow.valid > 0 {
+                if slow.averaged() > 0 {
                     prop_assert!((fast.min_dbm - slow.min_dbm).abs() < 1e-9);
                     prop_assert!((fast.max_dbm - slow.max_dbm).abs() < 1e-9);
                 }

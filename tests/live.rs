@@ -385,16 +385,20 @@ fn two_channel_capture_gets_suffixed_columns_and_append_adds_rows() {
             "volts",
             "dbm",
             "flags",
+            "bound",
+            "u_db",
             "counts_ch2",
             "volts_ch2",
             "dbm_ch2",
-            "flags_ch2"
+            "flags_ch2",
+            "bound_ch2",
+            "u_db_ch2"
         ]
     );
     // Source: worked example by hand at the reference frequency (no correction): 1000 counts
     // → 40 − 80 + 30 = −10 dBm; 1500 counts → +10 dBm.
     assert_eq!(rows[0][3], "-10.0000");
-    assert_eq!(rows[0][7], "10.0000");
+    assert_eq!(rows[0][9], "10.0000");
     assert!(run(&["--append"]).status.success());
     let (_, rows) = self::rows(&out);
     assert_eq!(rows.len(), 4);

@@ -214,6 +214,49 @@ fn append_refuses_rows_that_would_not_fit_and_leaves_the_log_as_it_was() {
     refused_unchanged(&intervals, &replay, &["1 channel(s)", "sends 2"]);
 }
 
+// Source: the rule in docs/recording.md ("Bounds"): a log written before the `bound`
+// column, or before the `u_db` column, is refused by `--append`, exit 2, naming its
+// header line, and left as it was. The logs here are fresh ones with their rows cut back
+// to the columns of those times (8 and 10 cells).
+#[test]
+fn append_refuses_a_log_of_earlier_columns() {
+    let dir = scratch("append-earlier-columns");
+    for (cells, header) in [
+        (
+            8,
+            "time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags",
+        ),
+        (
+            10,
+            "time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags,bound,averaged",
+        ),
+    ] {
+        let log = three_row_log(&dir, &format!("old-{cells}.csv"));
+        let text = std::fs::read_to_string(&log).unwrap();
+        let old: String = text
+            .lines()
+            .map(|line| match line.starts_with('#') {
+                true => format!("{line}\n"),
+                false => format!(
+                    "{}\n",
+                    line.split(',').take(cells).collect::<Vec<_>>().join(",")
+                ),
+            })
+            .collect();
+        assert!(old.contains(&format!("\n{header}\n")), "{old}");
+        std::fs::write(&log, old).unwrap();
+        let header_line = text.lines().position(|l| l.starts_with("time_s")).unwrap() + 1;
+        refused_unchanged(
+            &log,
+            &["--demo", "--fast", "--duration", "2s"],
+            &[
+                "written by an earlier dbtrail",
+                &format!("line {header_line}"),
+            ],
+        );
+    }
+}
+
 #[test]
 fn a_run_made_another_way_is_appended_as_a_run_of_its_own() {
     let dir = scratch("append-runs");

@@ -63,6 +63,9 @@ fn drift_matches_the_norris_certified_slope_and_error() {
                 min_dbm: Some(v[0]),
                 max_dbm: Some(v[0]),
                 flags: Vec::new(),
+                bound: dbtrail::stats::Bound::Exact,
+                averaged: 10,
+                u_db: None,
             })
         })
         .collect();
@@ -184,7 +187,7 @@ fn mean_power_is_over_watts_and_the_span_can_be_cut() {
         .map(|i| (f64::from(i), Some(if i % 2 == 0 { 0.0 } else { 10.0 }), ""))
         .collect();
     let report = analysed(&log_text(1.0, &rows), &ReportOptions::default());
-    assert!((report.mean_dbm - 7.403626894942439).abs() < 1e-9);
+    assert!((report.mean_dbm.unwrap() - 7.403626894942439).abs() < 1e-9);
     let cut = analysed(
         &log_text(1.0, &rows),
         &ReportOptions {
@@ -193,7 +196,7 @@ fn mean_power_is_over_watts_and_the_span_can_be_cut() {
             ..ReportOptions::default()
         },
     );
-    assert!((cut.mean_dbm - 0.0).abs() < 1e-9);
+    assert!((cut.mean_dbm.unwrap() - 0.0).abs() < 1e-9);
     assert_eq!(cut.duration_s, 1.0);
 }
 
@@ -329,7 +332,11 @@ fn log_columns_are_found_by_name_in_any_order() {
         serde_json::to_value(&swapped).unwrap()
     );
     // Mean over watts of 1 dBm and 3 dBm: 10·log10((1.2589 + 1.9953)/2) = 2.1141 dBm.
-    assert!((plain.mean_dbm - 2.1141).abs() < 1e-3, "{}", plain.mean_dbm);
+    assert!(
+        (plain.mean_dbm.unwrap() - 2.1141).abs() < 1e-3,
+        "{:?}",
+        plain.mean_dbm
+    );
 }
 
 #[test]
@@ -367,13 +374,16 @@ fn json_has_exactly_the_documented_keys() {
             "gap_s",
             "gaps",
             "max_dbm",
+            "mean_bound",
             "mean_dbm",
+            "mean_u_db",
             "mean_w",
             "min_dbm",
             "pk_pk_db",
             "samples",
             "settled_after_s",
-            "std_db"
+            "std_db",
+            "u_leaves_out"
         ]
     );
 }
@@ -813,4 +823,237 @@ fn negative_option_values_get_the_options_own_message() {
         refused(&out, &[want]);
         assert!(!String::from_utf8_lossy(&out.stderr).contains("unexpected argument"));
     }
+}
+
+/// One row of today's interval format: (time s, samples, mean dBm, flags, bound, averaged).
+type BoundedRow<'a> = (f64, u64, Option<f64>, &'a str, &'a str, u64);
+
+/// A log of today's interval format.
+fn bounded_log_text(rows: &[BoundedRow]) -> String {
+    let mut text = String::from(
+        "# dbtrail 0.1.0 record\n# profile: synthetic; sha256 0\n# source: test\n# rows: every 1s; power averaged over watts\n\
+         time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags,bound,averaged\n",
+    );
+    for (t, samples, mean, flags, bound, averaged) in rows {
+        let m = mean.map_or(String::new(), |m| m.to_string());
+        text.push_str(&format!(
+            "{t},x,{samples},{m},{m},{m},,{flags},{bound},{averaged}\n"
+        ));
+    }
+    text
+}
+
+// Source: worked by hand (power-domain mean, common practice). Three rows at 0 dBm (1 mW)
+// and one at-least row at +10 dBm (10 mW), ten samples each: (3 + 10) / 4 = 3.25 mW =
+// +5.1188 dBm, and the run's mean is at least that. Before, the report gave a plain mean
+// with no bound.
+#[test]
+fn a_row_counted_at_a_bound_makes_the_reports_mean_at_least() {
+    let text = bounded_log_text(&[
+        (0.0, 10, Some(0.0), "", "", 10),
+        (1.0, 10, Some(0.0), "", "", 10),
+        (2.0, 10, Some(10.0), "clip", "at-least", 10),
+        (3.0, 10, Some(0.0), "", "", 10),
+    ]);
+    let report = analysed(&text, &ReportOptions::default());
+    assert!((report.mean_dbm.unwrap() - 5.118_833_61).abs() < 1e-6);
+    assert_eq!(report.mean_bound, dbtrail::stats::Bound::AtLeast);
+    let dir = scratch("at-least");
+    let log = dir.join("a.csv");
+    std::fs::write(&log, &text).unwrap();
+    let out = dbtrail(&["report", log.to_str().unwrap()]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("at least +5.119 dBm"), "{stdout}");
+    let out = dbtrail(&["report", log.to_str().unwrap(), "--json"]);
+    let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(value["mean_bound"], "at-least");
+}
+
+// Source: worked by hand. Rows are weighted by the samples that went into their means
+// (`averaged`): 10 samples at 0 dBm and 2 of 10 at +10 dBm (8 were over full scale):
+// (10·1 + 2·10) / 12 = 2.5 mW = +3.9794 dBm; weighting by all samples would give
+// 5.5 mW = +7.4036 dBm, as the report did before.
+#[test]
+fn rows_are_weighted_by_the_samples_in_their_means() {
+    let text = bounded_log_text(&[
+        (0.0, 10, Some(0.0), "", "", 10),
+        (1.0, 10, Some(10.0), "over-full-scale", "", 2),
+    ]);
+    let report = analysed(&text, &ReportOptions::default());
+    assert!((report.mean_dbm.unwrap() - 3.979_400_09).abs() < 1e-6);
+    assert_eq!(report.mean_bound, dbtrail::stats::Bound::Exact);
+}
+
+// Source: worked by hand, and the rule in docs/report.md: below-span rows make the mean
+// at most (1 mW and 0.1 mW: 0.55 mW = −2.5964 dBm); bounds both ways leave no mean.
+#[test]
+fn below_span_rows_give_at_most_and_bounds_both_ways_give_none() {
+    let below = bounded_log_text(&[
+        (0.0, 10, Some(0.0), "", "", 10),
+        (1.0, 10, Some(-10.0), "below", "at-most", 10),
+    ]);
+    let report = analysed(&below, &ReportOptions::default());
+    assert!((report.mean_dbm.unwrap() - -2.596_373_1).abs() < 1e-6);
+    assert_eq!(report.mean_bound, dbtrail::stats::Bound::AtMost);
+    let both = bounded_log_text(&[
+        (0.0, 10, Some(0.0), "", "", 10),
+        (1.0, 10, None, "clip|below", "none", 0),
+        (2.0, 10, Some(0.0), "", "", 10),
+    ]);
+    let report = analysed(&both, &ReportOptions::default());
+    assert_eq!(report.mean_bound, dbtrail::stats::Bound::Unknown);
+    assert_eq!((report.mean_dbm, report.mean_w), (None, None));
+}
+
+/// A log of the overload demo, rows `every`, for `duration`: its path and text.
+fn overload_log(name: &str, every: &str, duration: &str) -> (PathBuf, String) {
+    let log = scratch(name).join("overload.csv");
+    let out = dbtrail(&[
+        "record",
+        "--demo",
+        "overload",
+        "--every",
+        every,
+        "--fast",
+        "--duration",
+        duration,
+        "--force",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&log).unwrap();
+    (log, text)
+}
+
+// Source: the simulator's scenario (docs/recording.md: a steady +25 dBm carrier with a
+// 1.5 s burst to +40 dBm every 20 s) worked by hand: over 40 s, 37 s at 0.3162 W and 3 s
+// at 10 W average 1.0425 W = +30.18 dBm. The clipped samples are counted at their bound,
+// so every clipped row says `at-least` and the report's mean lies between the carrier
+// alone (+25 dBm, what leaving the bursts out gave: +25.0x) and that true mean.
+#[test]
+fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
+    let (log, text) = overload_log("overload", "5s", "40s");
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (flags, bound, mean) = (col("flags"), col("bound"), col("mean_dbm"));
+    let mut clipped = 0;
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        if cells[flags].split('|').any(|f| f == "clip") {
+            clipped += 1;
+            assert_eq!(cells[bound], "at-least", "{line}");
+            assert!(!cells[mean].is_empty(), "{line}");
+        }
+    }
+    assert!(clipped >= 2, "the bursts clip: {clipped} rows");
+    let out = dbtrail(&["report", log.to_str().unwrap()]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("mean power    at least +"), "{stdout}");
+    let out = dbtrail(&["report", log.to_str().unwrap(), "--json"]);
+    let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(value["mean_bound"], "at-least");
+    let mean = value["mean_dbm"].as_f64().unwrap();
+    assert!(mean > 25.5 && mean <= 30.2, "{mean}");
+}
+
+// Source: the rule in docs/recording.md: a clipped sample of a per-sample log shows its
+// bound, flagged `at-least`, where before its `dbm` cell was left empty.
+#[test]
+fn a_clipped_sample_of_a_per_sample_log_shows_its_bound() {
+    let (_, text) = overload_log("overload-samples", "0", "21s");
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    assert_eq!(
+        header,
+        ["time_s", "counts", "volts", "dbm", "flags", "bound", "u_db"]
+    );
+    let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect::<Vec<_>>()).collect();
+    let (clipped, values): (Vec<_>, Vec<_>) = rows
+        .iter()
+        .partition(|cells| cells[4].split('|').any(|f| f == "clip"));
+    assert!(!clipped.is_empty(), "the burst clips");
+    for cells in &clipped {
+        assert_eq!(cells[5], "at-least", "{cells:?}");
+        assert!(cells[3].parse::<f64>().is_ok(), "{cells:?}");
+        assert_eq!(cells[6], "", "a bound has no uncertainty: {cells:?}");
+    }
+    // Rows of the carrier alone are values, each with its uncertainty.
+    for cells in values.iter().filter(|cells| cells[4].is_empty()) {
+        assert!(cells[6].parse::<f64>().unwrap() > 0.0, "{cells:?}");
+    }
+}
+
+/// A log of today's interval format with `u_db`: (time s, mean dBm, u_db cell).
+fn u_log_text(rows: &[(f64, f64, &str)]) -> String {
+    let mut text = String::from(
+        "# dbtrail 0.1.0 record\n# profile: synthetic; sha256 0\n# source: test\n# rows: every 1s; power averaged over watts\n\
+         # u_db: expanded uncertainty (k = 2) of the row's mean, dB; empty for a bound; leaves out: model, source\n\
+         time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags,bound,averaged,u_db\n",
+    );
+    for (t, mean, u) in rows {
+        text.push_str(&format!("{t},x,10,{mean},{mean},{mean},,,,10,{u}\n"));
+    }
+    text
+}
+
+// Source: worked by hand, with the combination stated in docs/report.md: the rows'
+// expanded uncertainties are taken as wholly systematic (the same error in every row), so
+// they add linearly, weighted by each row's share of the energy. Rows at 0 dBm (1 mW,
+// ±0.2 dB) and +10 dBm (10 mW, ±0.4 dB), ten samples each: (1·0.2 + 10·0.4) / 11 =
+// 0.381818 dB, not reduced by the number of rows. A row with no `u_db` leaves the mean's
+// uncertainty unknown, and the log's `# u_db:` line says what the figures leave out.
+#[test]
+fn the_reports_uncertainty_takes_the_rows_own_as_systematic() {
+    let text = u_log_text(&[(0.0, 0.0, "0.2"), (1.0, 10.0, "0.4")]);
+    let report = analysed(&text, &ReportOptions::default());
+    assert!((report.mean_u_db.unwrap() - 0.381_818_18).abs() < 1e-6);
+    assert_eq!(report.u_leaves_out.as_deref(), Some("model, source"));
+    let doubled = u_log_text(&[
+        (0.0, 0.0, "0.2"),
+        (1.0, 10.0, "0.4"),
+        (2.0, 0.0, "0.2"),
+        (3.0, 10.0, "0.4"),
+    ]);
+    let report = analysed(&doubled, &ReportOptions::default());
+    assert!((report.mean_u_db.unwrap() - 0.381_818_18).abs() < 1e-6);
+    let missing = u_log_text(&[(0.0, 0.0, "0.2"), (1.0, 10.0, "")]);
+    assert_eq!(
+        analysed(&missing, &ReportOptions::default()).mean_u_db,
+        None
+    );
+    let dir = scratch("uncertainty");
+    let log = dir.join("u.csv");
+    std::fs::write(&log, &text).unwrap();
+    let out = dbtrail(&["report", log.to_str().unwrap()]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("uncertainty   ±0.382 dB (k = 2)")
+            && stdout.contains("leaves out: model, source"),
+        "{stdout}"
+    );
+    let out = dbtrail(&["report", log.to_str().unwrap(), "--json"]);
+    let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!((value["mean_u_db"].as_f64().unwrap() - 0.381_818_18).abs() < 1e-6);
+}
+
+// Source: the rule in docs/report.md: a mean that is a bound has no uncertainty, and a log
+// from before the `u_db` column reads as before, with the uncertainty unknown.
+#[test]
+fn bounds_and_old_logs_give_no_uncertainty() {
+    let at_least = bounded_log_text(&[
+        (0.0, 10, Some(0.0), "", "", 10),
+        (1.0, 10, Some(10.0), "clip", "at-least", 10),
+    ]);
+    let report = analysed(&at_least, &ReportOptions::default());
+    assert_eq!((report.mean_u_db, report.u_leaves_out), (None, None));
+    let old = log_text(1.0, &[(0.0, Some(0.0), ""), (1.0, Some(10.0), "")]);
+    let report = analysed(&old, &ReportOptions::default());
+    assert!((report.mean_dbm.unwrap() - 7.403_626_89).abs() < 1e-6);
+    assert_eq!(report.mean_u_db, None);
 }

@@ -11,6 +11,7 @@ use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::record::{ChannelMismatch, Event, Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
+use dbtrail::uncertainty::Uncertainty;
 use sha2::{Digest, Sha256};
 
 use super::files::{LogFile, LogTampered};
@@ -107,7 +108,8 @@ pub fn run(args: Args) -> Result<(), Failure> {
     } else {
         args.out.clone()
     };
-    let mut recorder = Recorder::new(out, cal, &context, opening)
+    let budget = Uncertainty::new(&loaded.profile, &cal);
+    let mut recorder = Recorder::with_uncertainty(out, cal, Some(budget), &context, opening)
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
     let outcome = pump(

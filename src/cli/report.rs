@@ -7,6 +7,7 @@ use anyhow::{anyhow, Context};
 use dbtrail::report::{
     analyse, decimate, read_log, span_rows, Report, ReportOptions, Run, Spacing,
 };
+use dbtrail::stats::Bound;
 use dbtrail::units::{format_clock, parse_duration, Si};
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -291,6 +292,50 @@ struct RunReport<'a> {
     report: &'a Report,
 }
 
+/// The mean power line: its bound before the number, or why there is no number.
+fn mean_power(r: &Report) -> String {
+    let (Some(dbm), Some(w)) = (r.mean_dbm, r.mean_w) else {
+        return "none: rows counted samples at bounds both ways (clipped or above the span, \
+                and below it), so no bound holds"
+            .into();
+    };
+    let lead = match r.mean_bound {
+        Bound::AtLeast => "at least ",
+        Bound::AtMost => "at most ",
+        Bound::Exact | Bound::Unknown => "",
+    };
+    let why = match r.mean_bound {
+        Bound::AtLeast => "; clipped or above-span samples counted at their bound",
+        Bound::AtMost => "; below-span samples counted at the span's bottom",
+        Bound::Exact | Bound::Unknown => "",
+    };
+    format!(
+        "{lead}{dbm:+.3} dBm ({}), averaged over watts{why}",
+        Si::new(w, "W")
+    )
+}
+
+/// The uncertainty line: the mean's expanded uncertainty and what it leaves out, or why
+/// there is none.
+fn mean_uncertainty(r: &Report) -> String {
+    let left_out = r
+        .u_leaves_out
+        .as_deref()
+        .map_or(String::new(), |terms| format!("; leaves out: {terms}"));
+    match (r.mean_u_db, r.mean_bound) {
+        (Some(u), _) => format!(
+            "±{u:.3} dB (k = 2), the rows' own taken as systematic, so not reduced by their \
+             number{left_out}"
+        ),
+        (None, Bound::Exact) => {
+            "not known: rows with a mean carry no u_db (a log from before that column, or \
+             rows without the noise of their counts)"
+                .into()
+        }
+        (None, _) => "none: the mean is a bound, not a value".into(),
+    }
+}
+
 /// One object for a single run, as always; an array of objects, each with its run's number
 /// and first line, for several.
 fn json(runs: &[&Run], reports: &[Report]) -> serde_json::Result<String> {
@@ -376,14 +421,8 @@ fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
     };
     let lines = [
         ("samples", r.samples.to_string()),
-        (
-            "mean power",
-            format!(
-                "{:+.3} dBm ({}), averaged over watts",
-                r.mean_dbm,
-                Si::new(r.mean_w, "W")
-            ),
-        ),
+        ("mean power", mean_power(r)),
+        ("uncertainty", mean_uncertainty(r)),
         (
             "min / max",
             format!(

@@ -7,10 +7,14 @@
 use std::time::SystemTime;
 
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
+use crate::stats::Bound;
 
 /// The range of power a cell may hold, dBm: no detector reads outside it (thermal noise in
 /// 1 Hz at 290 K is −174 dBm; +200 dBm is 10^17 W).
 pub const DBM_RANGE: (f64, f64) = (-200.0, 200.0);
+
+/// The largest `u_db` a cell may hold, dB: an uncertainty of a factor of 10^10 says nothing.
+const U_DB_MAX: f64 = 100.0;
 /// The latest time a row may carry, seconds since the run started (about 32 years).
 pub const MAX_TIME_S: f64 = 1e9;
 /// The most samples one row may count: a million a second for over eleven days.
@@ -41,6 +45,9 @@ struct Columns {
     min: Option<usize>,
     max: Option<usize>,
     flags: usize,
+    bound: Option<usize>,
+    averaged: Option<usize>,
+    u_db: Option<usize>,
     names: Vec<String>,
 }
 
@@ -466,6 +473,9 @@ fn columns(
         min: find("min_dbm"),
         max: find("max_dbm"),
         flags,
+        bound: find("bound"),
+        averaged: find("averaged"),
+        u_db: find("u_db"),
         names,
     })
 }
@@ -530,11 +540,58 @@ fn parse_row(
     };
     let t = time(number(cols.time)?, cell(cols.time), line, origin)?;
     let mean_dbm = dbm(cols.mean)?;
+    let count = |i: usize| samples(cell(i), name(i), line, origin);
     let samples = match cols.samples {
-        Some(i) => samples(cell(i), name(i), line, origin)?,
+        Some(i) => count(i)?,
         None => 1,
     };
     let pick = |col: Option<usize>| col.map_or(Ok(mean_dbm), dbm);
+    let bound = match cols.bound {
+        Some(i) => Bound::from_cell(cell(i)).ok_or_else(|| {
+            bad(
+                origin,
+                line,
+                name(i),
+                format!(
+                    "`{}` is not a bound (empty, `at-least`, `at-most` or `none`); fix or \
+                     remove the row",
+                    cell(i)
+                ),
+            )
+        })?,
+        None => Bound::Exact,
+    };
+    let averaged = match cols.averaged {
+        Some(i) => match count(i)? {
+            n if n > samples => {
+                return Err(bad(
+                    origin,
+                    line,
+                    name(i),
+                    format!("{n} averaged of {samples} samples; fix or remove the row"),
+                ))
+            }
+            n => n,
+        },
+        None => samples,
+    };
+    let u_db = match cols.u_db {
+        Some(i) => match number(i)? {
+            Some(u) if !(0.0..=U_DB_MAX).contains(&u) => {
+                return Err(bad(
+                    origin,
+                    line,
+                    name(i),
+                    format!(
+                        "`{u}` dB is not an expanded uncertainty (0 to {U_DB_MAX} dB); fix or \
+                         remove the row"
+                    ),
+                ))
+            }
+            u => u,
+        },
+        None => None,
+    };
     Ok(LogRow {
         t,
         samples,
@@ -546,6 +603,9 @@ fn parse_row(
             .filter(|f| !f.is_empty())
             .map(String::from)
             .collect(),
+        bound,
+        averaged,
+        u_db,
     })
 }
 
