@@ -597,17 +597,6 @@ fn u_cell(u_db: Option<f64>) -> String {
 }
 
 /// A budget term's name in the `# u_db:` line: `MismatchUse` → `mismatch-use`.
-fn term_name(kind: TermKind) -> String {
-    let mut name = String::new();
-    for (i, c) in format!("{kind:?}").chars().enumerate() {
-        if c.is_uppercase() && i > 0 {
-            name.push('-');
-        }
-        name.push(c.to_ascii_lowercase());
-    }
-    name
-}
-
 /// The `# u_db:` line: what the column holds and which terms of the budget it leaves out
 /// (those whose inputs are missing at the span's ends and middle, and the noise of one
 /// sample in per-sample rows), so that nothing is claimed silently.
@@ -631,7 +620,7 @@ fn uncertainty_line(budget: Option<&Uncertainty>, cal: &Calibration, per_sample:
             }
         }
     }
-    let names: Vec<String> = missing.into_iter().map(term_name).collect();
+    let names: Vec<String> = missing.into_iter().map(|k| k.label().to_string()).collect();
     let left_out = if names.is_empty() {
         "nothing".to_string()
     } else {
@@ -965,16 +954,40 @@ mod tests {
         Recorder::with_uncertainty(Vec::new(), cal, Some(budget), &context, Opening::Fresh).unwrap()
     }
 
-    // Source: ADC quantisation, a step ÷ √12 (common practice), expanded with k = 2 (the
-    // GUM), worked by hand from the demo log amp's points: 80 dB over 2961.4 − 544.1 =
-    // 2417.3 counts is 0.033095 dB a count, so a constant count (no noise) has
-    // u_db = 2 × 0.033095 / √12 = 0.0191 dB, in interval and per-sample rows alike. A
-    // clipped row has none. The `# u_db:` line names the terms the budget leaves out,
-    // once. Before, rows had no u_db column.
+    // Source: ADC quantisation, a step ÷ √12 (common practice), worked by hand from the
+    // demo log amp's points: 80 dB over 2961.4 − 544.1 = 2417.3 counts is 0.033095 dB a
+    // count, so a constant count has a quantisation term of 0.033095 / √12 = 0.00955 dB;
+    // the row's u_db is the whole budget at its level expanded with k = 2 (the GUM), in
+    // interval and per-sample rows alike. A clipped row has none. The `# u_db:` line
+    // names the terms the budget leaves out, once. Before, rows had no u_db column.
     #[test]
     fn rows_carry_their_uncertainty_and_the_log_says_what_it_leaves_out() {
-        let quantisation = 2.0 * (80.0 / 2417.3) / 12f64.sqrt();
+        let profile = parse_profile(
+            include_str!("../profiles/demo-logamp.toml"),
+            "demo-logamp.toml",
+        )
+        .unwrap();
+        let cal = Calibration::new(&profile, None, 0.0);
+        let level = cal.reading_code(2000).dbm;
+        let steady = Noise {
+            sigma_counts: 0.0,
+            n_eff: 20.0,
+        };
+        let whole = Uncertainty::new(&profile, &cal).budget(level, Some(steady));
+        let by_hand = 80.0 / 2417.3 / 12f64.sqrt();
+        let quantisation = whole.term(TermKind::Quantisation).unwrap();
+        assert!(
+            (quantisation - by_hand).abs() < 1e-4,
+            "{quantisation} {by_hand}"
+        );
         for every in [1.0, 0.0] {
+            let expected = if every > 0.0 {
+                whole.expanded_db()
+            } else {
+                Uncertainty::new(&profile, &cal)
+                    .budget(level, None)
+                    .expanded_db()
+            };
             let mut r = recorder_with_budget(every);
             for i in 0..20 {
                 r.handle(&sample(0.01 * f64::from(i), 2000)).unwrap();
@@ -990,18 +1003,18 @@ mod tests {
             let u_col = if every > 0.0 { 10 } else { 6 };
             let u: f64 = rows[0][u_col].parse().unwrap();
             assert!(
-                (u - quantisation).abs() < 2e-4,
-                "every {every}: {u} against {quantisation}"
+                (u - expected).abs() < 1e-4,
+                "every {every}: {u} against {expected}"
             );
             assert_eq!(rows.last().unwrap()[u_col], "", "a clipped row has no u_db");
             let line: Vec<&str> = text.lines().filter(|l| l.starts_with("# u_db:")).collect();
             assert_eq!(line.len(), 1, "{text}");
-            assert!(
-                line[0].contains("model, source, mismatch-calibration"),
-                "{}",
-                line[0]
-            );
-            assert_eq!(line[0].contains("noise"), every == 0.0, "{}", line[0]);
+            let left_out = if every > 0.0 {
+                "leaves out: temperature"
+            } else {
+                "leaves out: noise of the mean, temperature"
+            };
+            assert!(line[0].ends_with(left_out), "{}", line[0]);
         }
     }
 

@@ -232,8 +232,10 @@ fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
         source: session.source.description.clone(),
         every: Duration::from_secs(1),
     };
-    let mut recorder = Recorder::new(file, app.cal.clone(), &context, Opening::Fresh)
-        .with_context(|| format!("cannot write {}", path.display()))?;
+    let budget = Some(app.uncertainty.clone());
+    let mut recorder =
+        Recorder::with_uncertainty(file, app.cal.clone(), budget, &context, Opening::Fresh)
+            .with_context(|| format!("cannot write {}", path.display()))?;
     recorder.begin_at(session.source.now());
     Ok(Log {
         recorder,
