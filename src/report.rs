@@ -11,8 +11,12 @@ use thiserror::Error;
 use crate::numeric::fit_line;
 use crate::stats::Bound;
 use crate::units::{dbm_to_watts, format_clock, watts_to_dbm};
+use allan::AllanPoint;
+use soak::{SoakFit, SoakModel};
 
+pub mod allan;
 mod read;
+pub mod soak;
 
 pub use read::{DBM_RANGE, MAX_ROW_SAMPLES, MAX_TIME_S};
 
@@ -274,10 +278,37 @@ pub struct Report {
     pub pk_pk_db: f64,
     /// Standard deviation of the interval means, dB.
     pub std_db: f64,
-    /// Least-squares slope of interval mean dBm against time, dB per hour.
-    pub drift_db_per_hour: f64,
-    /// Its standard error (null with fewer than three rows).
+    /// The model chosen for the interval means.
+    pub model: SoakModel,
+    /// Why it was chosen (the criterion and its figures).
+    pub model_choice: String,
+    /// Seconds from the span's start after which the warm-up stays within the settle
+    /// tolerance; null when no warm-up was found.
+    pub warmup_s: Option<f64>,
+    /// The warm-up's time constant τ, seconds.
+    pub warmup_tau_s: Option<f64>,
+    /// The warm-up's amplitude A at the span's start, dB.
+    pub warmup_amplitude_db: Option<f64>,
+    /// Where the drift's fit begins, seconds from the span's start (after the warm-up).
+    pub drift_from_s: f64,
+    /// Drift of the interval means after the warm-up, dB per hour; null when the run is
+    /// too short after the warm-up (`drift_missing` says why).
+    pub drift_db_per_hour: Option<f64>,
+    /// Its standard error.
     pub drift_stderr_db_per_hour: Option<f64>,
+    /// How that standard error was worked out.
+    pub drift_stderr_method: Option<&'static str>,
+    /// Why there is no drift after the warm-up, when there is none.
+    pub drift_missing: Option<String>,
+    /// Drift over the whole span, dB per hour.
+    pub drift_whole_db_per_hour: Option<f64>,
+    /// Its standard error.
+    pub drift_whole_stderr_db_per_hour: Option<f64>,
+    /// Overlapping Allan deviation of the interval means at octave-spaced averaging times.
+    pub allan: Vec<AllanPoint>,
+    /// The fitted model, for drawing.
+    #[serde(skip)]
+    pub fit: SoakFit,
     /// Seconds from the start after which every interval stays within the tolerance of the
     /// final mean; null when it never settled.
     pub settled_after_s: Option<f64>,
@@ -393,6 +424,16 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     let means: Vec<f64> = valid.iter().map(|(_, m)| *m).collect();
     let hours: Vec<f64> = valid.iter().map(|(t, _)| (t - start) / 3600.0).collect();
     let line = fit_line(&hours, &means);
+    let since: Vec<f64> = valid.iter().map(|(t, _)| t - start).collect();
+    let u_db: Vec<Option<f64>> = rows
+        .iter()
+        .filter(|r| r.mean_dbm.is_some())
+        .map(|r| r.u_db)
+        .collect();
+    let fit = soak::fit(&since, &means, &u_db, options.settle_tol_db);
+    let drift_from_s = fit.warmup_s.unwrap_or(0.0);
+    let late = soak::drift(&since, &means, drift_from_s);
+    let whole = soak::drift(&since, &means, 0.0).ok();
     let (gaps, gap_spans) = find_gaps(&rows, run.spacing);
     let mut flagged_rows = BTreeMap::new();
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {
@@ -414,8 +455,20 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         max_dbm,
         pk_pk_db: max_dbm - min_dbm,
         std_db: std_dev(&means),
-        drift_db_per_hour: line.map_or(0.0, |l| l.slope),
-        drift_stderr_db_per_hour: line.map(|l| l.slope_stderr).filter(|s| s.is_finite()),
+        model: fit.model,
+        model_choice: fit.choice.clone(),
+        warmup_s: fit.warmup_s,
+        warmup_tau_s: fit.warmup.map(|w| w.tau_s),
+        warmup_amplitude_db: fit.warmup.map(|w| w.amplitude_db),
+        drift_from_s,
+        drift_db_per_hour: late.as_ref().ok().map(|d| d.db_per_hour),
+        drift_stderr_db_per_hour: late.as_ref().ok().and_then(|d| d.stderr_db_per_hour),
+        drift_stderr_method: late.as_ref().ok().map(|d| d.method),
+        drift_missing: late.as_ref().err().cloned(),
+        drift_whole_db_per_hour: whole.as_ref().map(|d| d.db_per_hour),
+        drift_whole_stderr_db_per_hour: whole.as_ref().and_then(|d| d.stderr_db_per_hour),
+        allan: allan::overlapping_adev(&means, run.spacing.step_s()),
+        fit,
         settled_after_s,
         gaps,
         gap_s: gap_spans.iter().fold(0.0, |total, (a, b)| total + (b - a)),

@@ -439,7 +439,10 @@ fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
         ),
         (
             "drift",
-            format!("{:+.4} dB/h {stderr}", r.drift_db_per_hour),
+            format!(
+                "{:+.4} dB/h {stderr}",
+                r.drift_db_per_hour.unwrap_or(f64::NAN)
+            ),
         ),
         ("settled", settled),
         ("gaps", format!("{}, {:.1} s in all", r.gaps, r.gap_s)),
@@ -557,14 +560,19 @@ where
         .map_err(fail)?
         .label("interval mean (over watts)")
         .legend(|(x, y)| PathElement::new(vec![(x - 8, y), (x + 8, y)], BLUE));
-    let drift = |t: f64| report.drift_at_start_dbm + report.drift_db_per_hour * (t - t0) / 3600.0;
+    let drift = |t: f64| {
+        report.drift_at_start_dbm + report.drift_db_per_hour.unwrap_or(0.0) * (t - t0) / 3600.0
+    };
     chart
         .draw_series(LineSeries::new(
             [(t0 / scale, drift(t0)), (t1 / scale, drift(t1))],
             RED.stroke_width(2),
         ))
         .map_err(fail)?
-        .label(format!("drift {:+.3} dB/h", report.drift_db_per_hour))
+        .label(format!(
+            "drift {:+.3} dB/h",
+            report.drift_db_per_hour.unwrap_or(f64::NAN)
+        ))
         .legend(|(x, y)| PathElement::new(vec![(x - 8, y), (x + 8, y)], RED));
     if let Some(after) = report.settled_after_s {
         let t = (t0 + after) / scale;
