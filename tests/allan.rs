@@ -4,7 +4,7 @@
 //! hand, the trade's shapes (white noise, drift, a constant) and the definition itself
 //! summed term by term, and the rules in docs/allan.md for τ, missing rows and bad input.
 
-use dbtrail::report::allan::{on_time_grid, overlapping_adev, AllanPoint};
+use dbtrail::report::allan::{on_time_grid, overlapping_adev, overlapping_adev_at, AllanPoint};
 use proptest::prelude::*;
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
@@ -76,12 +76,12 @@ fn matches_allantools_on_every_fixture_case() {
 }
 
 /// Source: NIST SP 1065 (Riley, Handbook of Frequency Stability Analysis, 2008), its
-/// nine-point test data 892, 809, 823, 798, 671, 644, 883, 903, 677 (τ0 = 1); the data and
-/// the Allan deviation 91.22945 at τ = 1 are from memory. Worked by hand here: the first
-/// differences −83, 14, −25, −127, −27, 239, 20, −226 have squares summing to 133 165, so
-/// σ²(1) = 133 165 / (2·8) = 8322.8125 and σ(1) = 91.229450 (recomputed with allantools in
-/// the fixture too). At τ = 2 the handbook's overlapping figure we could not re-read;
-/// 85.95287 is allantools' (docs REFERENCES.md, recomputed), checked here to its digits.
+/// nine-point test data 892, 809, 823, 798, 671, 644, 883, 903, 677 (τ0 = 1), and its
+/// published overlapping Allan deviations 91.22945 (τ = 1) and 85.95287 (τ = 2), as quoted
+/// in allantools' own test suite (its nbs14 test, which cites the handbook's table); the
+/// handbook itself was not re-read here. τ = 1 also worked by hand: the first differences
+/// −83, 14, −25, −127, −27, 239, 20, −226 have squares summing to 133 165, so
+/// σ²(1) = 133 165 / (2·8) = 8322.8125 and σ(1) = 91.229450.
 #[test]
 fn nist_nine_point_data_by_hand() {
     let nine = case("nist_nine_point").series();
@@ -92,6 +92,59 @@ fn nist_nine_point_data_by_hand() {
     assert_eq!(points[0].pairs, 8);
     assert!((points[1].adev_db - 85.95287).abs() < 5e-6);
     assert_eq!(points[1].pairs, 6);
+}
+
+/// The 1000-point test data of NIST SP 1065: n₀ = 1 234 567 890, nᵢ₊₁ = 16 807·nᵢ mod
+/// 2 147 483 647, values nᵢ / 2 147 483 647 for i = 0 … 999 (the generator from memory;
+/// that it is right is shown by the published figures it reproduces, below and in
+/// allantools).
+fn nist_thousand_point() -> Vec<f64> {
+    const MODULUS: u64 = 2_147_483_647;
+    std::iter::successors(Some(1_234_567_890u64), |n| Some(16_807 * n % MODULUS))
+        .take(1000)
+        .map(|n| n as f64 / MODULUS as f64)
+        .collect()
+}
+
+/// Source: NIST SP 1065, the published overlapping Allan deviations of its 1000-point test
+/// data, 2.922319e−01 (τ = 1), 9.159953e−02 (τ = 10), 3.241343e−02 (τ = 100), as quoted in
+/// allantools' test suite (its nbs14 test); allantools 2024.06 gives 0.29223188,
+/// 0.09159953, 0.03241343 on the same data (run while writing this test). τ = 1 is also
+/// the first point of the octave list.
+#[test]
+fn nist_thousand_point_data() {
+    let data = nist_thousand_point();
+    let published = [(1, 2.922319e-01), (10, 9.159953e-02), (100, 3.241343e-02)];
+    for (m, want) in published {
+        let point = overlapping_adev_at(&data, 1.0, m).unwrap();
+        assert_eq!((point.tau_s, point.pairs), (m as f64, 1001 - 2 * m));
+        assert!(
+            relative(point.adev_db, want) < 2e-7,
+            "τ = {m}: {} against {want}",
+            point.adev_db
+        );
+    }
+    assert_eq!(
+        overlapping_adev(&data, 1.0)[0],
+        overlapping_adev_at(&data, 1.0, 1).unwrap()
+    );
+}
+
+/// Source: the rule in docs/allan.md: one averaging time gives what the octave list gives
+/// there, and none past N ≥ 4m (1000 values: m = 250, not 251), for m = 0 or a bad τ0.
+#[test]
+fn one_averaging_time_follows_the_same_rules() {
+    let data = nist_thousand_point();
+    let octaves = overlapping_adev(&data, 2.0);
+    assert_eq!(octaves.len(), 8, "m = 1 … 128");
+    for (k, point) in octaves.iter().enumerate() {
+        assert_eq!(Some(*point), overlapping_adev_at(&data, 2.0, 1 << k));
+    }
+    assert!(overlapping_adev_at(&data, 2.0, 250).is_some());
+    assert!(overlapping_adev_at(&data, 2.0, 251).is_none());
+    assert!(overlapping_adev_at(&data, 2.0, 0).is_none());
+    assert!(overlapping_adev_at(&data, -2.0, 4).is_none());
+    assert!(overlapping_adev_at(&data, 2.0, usize::MAX).is_none());
 }
 
 /// Source: worked by hand from the formula in docs/allan.md. y_i = a + D·i·τ0: each

@@ -31,7 +31,7 @@ pub struct AllanPoint {
 /// values: while N ≥ 4m). Values that are not finite count as missing. Empty when `tau0_s`
 /// is not a positive number or there are too few values.
 pub fn overlapping_adev(values: &[f64], tau0_s: f64) -> Vec<AllanPoint> {
-    if !(tau0_s.is_finite() && tau0_s > 0.0) {
+    if !usable_spacing(tau0_s) {
         return Vec::new();
     }
     let sums = BlockSums::new(values);
@@ -40,17 +40,31 @@ pub fn overlapping_adev(values: &[f64], tau0_s: f64) -> Vec<AllanPoint> {
         .collect()
 }
 
+/// The overlapping Allan deviation of `values` at the one averaging time τ = m·τ0, any
+/// m ≥ 1, under the same rules as [`overlapping_adev`]; None where that gives no point.
+pub fn overlapping_adev_at(values: &[f64], tau0_s: f64, m: usize) -> Option<AllanPoint> {
+    if !usable_spacing(tau0_s) || m == 0 {
+        return None;
+    }
+    point_at(&BlockSums::new(values), m, tau0_s)
+}
+
+/// Whether `tau0_s` can space a series: a positive number of seconds.
+fn usable_spacing(tau0_s: f64) -> bool {
+    tau0_s.is_finite() && tau0_s > 0.0
+}
+
 /// The point at averaging factor `m`, or None when fewer than 2m + 1 pairs are complete
 /// (few pairs that overlap this much hold little more than one independent difference).
 fn point_at(sums: &BlockSums, m: usize, tau0_s: f64) -> Option<AllanPoint> {
-    let last_start = sums.len().checked_sub(2 * m)?;
+    let last_start = sums.len().checked_sub(m.checked_mul(2)?)?;
     let (pairs, squares) = (0..=last_start)
         .filter(|&j| sums.complete(j, j + 2 * m))
         .map(|j| sums.total(j + m, j + 2 * m) - sums.total(j, j + m))
         .fold((0usize, 0.0), |(n, s), d| (n + 1, s + d * d));
     (pairs > 2 * m).then(|| AllanPoint {
         tau_s: m as f64 * tau0_s,
-        adev_db: (squares / (2.0 * (m * m) as f64 * pairs as f64)).sqrt(),
+        adev_db: (squares / (2.0 * (m as f64).powi(2) * pairs as f64)).sqrt(),
         pairs,
     })
 }
@@ -128,7 +142,7 @@ const MOST_SLOTS_PER_ROW: usize = 4;
 /// finite, the times do not increase, two rows fall into one slot (they are not equally
 /// spaced), or the grid would hold more than four slots per row.
 pub fn on_time_grid(times_s: &[f64], values: &[f64], tau0_s: f64) -> Option<Vec<f64>> {
-    if times_s.len() != values.len() || !(tau0_s.is_finite() && tau0_s > 0.0) {
+    if times_s.len() != values.len() || !usable_spacing(tau0_s) {
         return None;
     }
     let first = *times_s.first()?;
