@@ -467,7 +467,8 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         drift_missing: late.as_ref().err().cloned(),
         drift_whole_db_per_hour: whole.as_ref().map(|d| d.db_per_hour),
         drift_whole_stderr_db_per_hour: whole.as_ref().and_then(|d| d.stderr_db_per_hour),
-        allan: allan::overlapping_adev(&means, run.spacing.step_s()),
+        allan: allan::on_time_grid(&since, &means, step)
+            .map_or_else(Vec::new, |grid| allan::overlapping_adev(&grid, step)),
         fit,
         settled_after_s,
         gaps,
