@@ -432,14 +432,25 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         .collect();
     let fit = soak::fit(&since, &means, &u_db, options.settle_tol_db);
     let drift_from_s = fit.warmup_s.unwrap_or(0.0);
-    let late = soak::drift(&since, &means, drift_from_s);
+    // The fitted warm-up term comes off first: what is left of it after `warmup_s` (up
+    // to the tolerance, falling fast) would otherwise tilt a short stretch's line.
+    let settled_means: Vec<f64> = since
+        .iter()
+        .zip(&means)
+        .map(|(t, m)| m - fit.warmup_db(*t))
+        .collect();
+    let late = soak::drift(&since, &settled_means, drift_from_s);
     let whole = soak::drift(&since, &means, 0.0).ok();
     let (gaps, gap_spans) = find_gaps(&rows, run.spacing);
     let mut flagged_rows = BTreeMap::new();
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {
         *flagged_rows.entry(flag.clone()).or_insert(0) += 1;
     }
-    let (settled_after_s, settled_dbm) = settle(&valid, start, end, options);
+    let settled_dbm = settled_level(&valid, start, end, options);
+    let settled_after_s = match fit.warmup_s {
+        Some(t) => (t <= end - start).then_some(t),
+        None => (!fit.still_warming).then_some(0.0),
+    };
     Ok(Report {
         duration_s: end - start,
         samples,
@@ -532,13 +543,8 @@ fn find_gaps(rows: &[&LogRow], spacing: Spacing) -> (u64, Vec<(f64, f64)>) {
     (spans.len() as u64, spans)
 }
 
-/// The settling time and the settled level (power mean of the final window).
-fn settle(
-    valid: &[(f64, f64)],
-    start: f64,
-    end: f64,
-    options: &ReportOptions,
-) -> (Option<f64>, f64) {
+/// The settled level: the power mean of the final window.
+fn settled_level(valid: &[(f64, f64)], start: f64, end: f64, options: &ReportOptions) -> f64 {
     let duration = end - start;
     let window = options
         .settle_window_s
@@ -549,18 +555,11 @@ fn settle(
         .filter(|(t, _)| *t >= end - window)
         .map(|(_, m)| dbm_to_watts(*m))
         .collect();
-    let settled_dbm = if last.is_empty() {
+    if last.is_empty() {
         valid[valid.len() - 1].1
     } else {
         watts_to_dbm(last.iter().sum::<f64>() / last.len() as f64)
-    };
-    let outside = |m: f64| (m - settled_dbm).abs() > options.settle_tol_db;
-    let settled_after = match valid.iter().rposition(|(_, m)| outside(*m)) {
-        None => Some(0.0),
-        Some(i) if i + 1 == valid.len() => None,
-        Some(i) => Some(valid[i + 1].0 - start),
-    };
-    (settled_after, settled_dbm)
+    }
 }
 
 /// A log drawn at `columns` across: each column keeps the lowest minimum, the highest
