@@ -243,3 +243,50 @@ fn the_warmup_time_does_not_depend_on_how_long_the_recording_goes_on() {
         }
     }
 }
+
+// Source: the simulator's truth in src/sim.rs, `Scenario::Soak.true_dbm`: 30 dBm −
+// 0.8 dB·e^(−t/480 s) − 0.12 dB/h·t, read here through the library (so a change to the
+// scenario shows). The detector board also warms by 6 K with τ = 900 s
+// (`board_kelvin`), which the demo profile does not correct, so the readings carry a
+// small temperature term besides; the bounds (±0.02 dB/h, τ near 480 s) allow for it.
+#[test]
+fn the_demo_soak_gives_back_the_simulators_late_drift_and_warmup() {
+    let truth = |t: f64| Scenario::Soak.true_dbm(t);
+    let late_slope = truth(3.0 * 3600.0) - truth(2.0 * 3600.0);
+    assert!((late_slope + 0.12).abs() < 1e-6, "{late_slope}");
+    assert!((truth(0.0) - (30.0 - 0.8)).abs() < 1e-12);
+
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("soak.csv");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_dbtrail"))
+        .args([
+            "record",
+            "--demo",
+            "soak",
+            "--fast",
+            "--duration",
+            "3h",
+            "--every",
+            "10s",
+        ])
+        .arg("--out")
+        .arg(&path)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let log = read_log(&std::fs::read(&path).unwrap(), "soak.csv", 1).unwrap();
+    let report = analyse(&log.runs[0], "soak.csv", &ReportOptions::default()).unwrap();
+    assert_eq!(report.model, SoakModel::Warmup, "{}", report.model_choice);
+    let drift = report.drift_db_per_hour.unwrap();
+    assert!((drift + 0.12).abs() <= 0.02, "late drift {drift} dB/h");
+    let tau = report.warmup_tau_s.unwrap();
+    assert!((tau - 480.0).abs() <= 0.05 * 480.0, "τ {tau} s");
+    // The warm-up time follows from τ and A: 480·ln 8 = 998 s for the truth.
+    let warmup = report.warmup_s.unwrap();
+    assert!(relative(warmup, 998.13) < 0.05, "warm-up {warmup} s");
+    assert!(report.drift_from_s == warmup && report.settled_after_s == Some(warmup));
+}
