@@ -424,23 +424,25 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     let means: Vec<f64> = valid.iter().map(|(_, m)| *m).collect();
     let hours: Vec<f64> = valid.iter().map(|(t, _)| (t - start) / 3600.0).collect();
     let line = fit_line(&hours, &means);
-    let since: Vec<f64> = valid.iter().map(|(t, _)| t - start).collect();
     let u_db: Vec<Option<f64>> = rows
         .iter()
         .filter(|r| r.mean_dbm.is_some())
         .map(|r| r.u_db)
         .collect();
-    let fit = soak::fit(&since, &means, &u_db, options.settle_tol_db);
+    let since: Vec<f64> = valid.iter().map(|(t, _)| t - start).collect();
+    let (since, model_means, u_db) = soak::thinned(&since, &means, &u_db);
+
+    let fit = soak::fit(&since, &model_means, &u_db, options.settle_tol_db);
     let drift_from_s = fit.warmup_s.unwrap_or(0.0);
     // The fitted warm-up term comes off first: what is left of it after `warmup_s` (up
     // to the tolerance, falling fast) would otherwise tilt a short stretch's line.
     let settled_means: Vec<f64> = since
         .iter()
-        .zip(&means)
+        .zip(&model_means)
         .map(|(t, m)| m - fit.warmup_db(*t))
         .collect();
     let late = soak::drift(&since, &settled_means, drift_from_s);
-    let whole = soak::drift(&since, &means, 0.0).ok();
+    let whole = soak::drift(&since, &model_means, 0.0).ok();
     let (gaps, gap_spans) = find_gaps(&rows, run.spacing);
     let mut flagged_rows = BTreeMap::new();
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {

@@ -501,3 +501,35 @@ pub fn ar1_coefficient(u: &[f64]) -> f64 {
     }
     u.windows(2).map(|p| p[0] * p[1]).sum::<f64>() / below
 }
+
+/// Most rows the model and the drifts are fitted to; a longer span is thinned to means of
+/// consecutive rows first, so that a day of 1 s rows costs what 4096 rows cost (the
+/// kernel sum grows with rows times bandwidth).
+pub const MAX_MODEL_ROWS: usize = 4096;
+
+/// Interval means thinned for the model: groups of ⌈n / `MAX_MODEL_ROWS`⌉ consecutive
+/// rows become one point at their mean time with their mean level (and mean `u_db`,
+/// None when a row of the group has none); a span of at most `MAX_MODEL_ROWS` rows is
+/// returned as it is.
+pub fn thinned(
+    t_s: &[f64],
+    dbm: &[f64],
+    u_db: &[Option<f64>],
+) -> (Vec<f64>, Vec<f64>, Vec<Option<f64>>) {
+    let group = t_s.len().div_ceil(MAX_MODEL_ROWS).max(1);
+    let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    let u: Vec<Option<f64>> = u_db
+        .chunks(group)
+        .map(|c| {
+            c.iter()
+                .copied()
+                .collect::<Option<Vec<f64>>>()
+                .map(|u| mean(&u))
+        })
+        .collect();
+    (
+        t_s.chunks(group).map(mean).collect(),
+        dbm.chunks(group).map(mean).collect(),
+        u,
+    )
+}
