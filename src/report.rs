@@ -226,10 +226,11 @@ fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {
 /// Choices for a report.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ReportOptions {
-    /// Settled means within ± this many dB of the final mean.
+    /// The settle tolerance, dB: the warm-up is over once its term stays within ± this,
+    /// and a warm-up smaller than this is no warm-up (docs/report.md, "The model").
     pub settle_tol_db: f64,
-    /// The final window whose mean is the settled level, seconds; None: 10 minutes, or
-    /// the last fifth of a log shorter than 50 minutes.
+    /// The final window whose mean is the settled level (drawn in the plot), seconds;
+    /// None: 10 minutes, or the last fifth of a log shorter than 50 minutes.
     pub settle_window_s: Option<f64>,
     /// Start of the span, seconds since the run started.
     pub from_s: Option<f64>,
@@ -280,37 +281,44 @@ pub struct Report {
     pub std_db: f64,
     /// The model chosen for the interval means.
     pub model: SoakModel,
-    /// Why it was chosen (the criterion and its figures).
+    /// Why it was chosen (the criterion and its figures, or the test the warm-up model
+    /// failed).
     pub model_choice: String,
-    /// Seconds from the span's start after which the warm-up stays within the settle
-    /// tolerance; null when no warm-up was found.
+    /// Seconds from the span's start after which the warm-up term stays within the
+    /// settle tolerance, τ·ln(|A|/tol); null for a line (no warm-up found).
     pub warmup_s: Option<f64>,
     /// The warm-up's time constant τ, seconds.
     pub warmup_tau_s: Option<f64>,
     /// The warm-up's amplitude A at the span's start, dB.
     pub warmup_amplitude_db: Option<f64>,
-    /// Where the drift's fit begins, seconds from the span's start (after the warm-up).
+    /// Where the drift's fit begins, seconds from the span's start: `warmup_s`, or 0 for
+    /// a line.
     pub drift_from_s: f64,
-    /// Drift of the interval means after the warm-up, dB per hour; null when the run is
-    /// too short after the warm-up (`drift_missing` says why).
+    /// Drift of the interval means after the warm-up (with the fitted warm-up term taken
+    /// off), dB per hour; null when the run is too short after the warm-up: fewer than
+    /// 30 rows, or residuals correlated over more than half of them (`drift_missing`
+    /// says which).
     pub drift_db_per_hour: Option<f64>,
-    /// Its standard error.
+    /// Its standard error: prewhitened Newey–West with Andrews' plug-in bandwidth, valid
+    /// for autocorrelated residuals.
     pub drift_stderr_db_per_hour: Option<f64>,
-    /// How that standard error was worked out.
+    /// How that standard error was worked out, naming the estimator.
     pub drift_stderr_method: Option<&'static str>,
     /// Why there is no drift after the warm-up, when there is none.
     pub drift_missing: Option<String>,
-    /// Drift over the whole span, dB per hour.
+    /// Drift over the whole span, warm-up and all, dB per hour; null by the same rule as
+    /// the drift after the warm-up.
     pub drift_whole_db_per_hour: Option<f64>,
-    /// Its standard error.
+    /// Its standard error, by the same method.
     pub drift_whole_stderr_db_per_hour: Option<f64>,
     /// Overlapping Allan deviation of the interval means at octave-spaced averaging times.
     pub allan: Vec<AllanPoint>,
     /// The fitted model, for drawing.
     #[serde(skip)]
     pub fit: SoakFit,
-    /// Seconds from the start after which every interval stays within the tolerance of the
-    /// final mean; null when it never settled.
+    /// Seconds from the start after which the run is settled: `warmup_s` (null when that
+    /// lies past the span's end), or 0 for a line; null for a line chosen because the
+    /// warm-up fitted is too slow for the span, so the run was not seen to settle.
     pub settled_after_s: Option<f64>,
     /// Gaps: stretches of missing or gap-flagged rows.
     pub gaps: u64,
@@ -321,7 +329,7 @@ pub struct Report {
     /// The drift line's value at the span's start, dBm (for drawing).
     #[serde(skip)]
     pub drift_at_start_dbm: f64,
-    /// The settled level the settle test used, dBm.
+    /// The settled level: the power mean of the final window, dBm.
     #[serde(skip)]
     pub settled_dbm: f64,
     /// The span's first row time, seconds since the run started.

@@ -290,3 +290,39 @@ fn the_demo_soak_gives_back_the_simulators_late_drift_and_warmup() {
     assert!(relative(warmup, 998.13) < 0.05, "warm-up {warmup} s");
     assert!(report.drift_from_s == warmup && report.settled_after_s == Some(warmup));
 }
+
+// Source: the rule in docs/report.md ("The model"): a span of more than 4096 rows is
+// thinned to means of consecutive rows before the fit, which must not move the figures
+// beyond their own scatter. Fenced by the plain reference: the same rows fitted one by
+// one through `soak::fit` and `soak::drift` directly.
+#[test]
+fn thinning_a_long_span_keeps_the_warmup_and_the_drift() {
+    use dbtrail::report::soak::{drift, fit, MAX_MODEL_ROWS};
+    let t: Vec<f64> = (0..3 * MAX_MODEL_ROWS).map(|i| i as f64 * 3.0).collect();
+    let mut rng = Pcg64::seed_from_u64(7);
+    let noise = ar1_noise(&mut rng, t.len(), 0.9, 0.01);
+    let dbm: Vec<f64> = t
+        .iter()
+        .zip(&noise)
+        .map(|(t, e)| warmup_truth(*t) + e)
+        .collect();
+    let thinned = analyse(&run_of(&t, &dbm), "long", &ReportOptions::default()).unwrap();
+    let u = vec![Some(0.4); t.len()];
+    let full = fit(&t, &dbm, &u, 0.1);
+    let full_warmup = full.warmup_s.unwrap();
+    let settled: Vec<f64> = t
+        .iter()
+        .zip(&dbm)
+        .map(|(t, m)| m - full.warmup_db(*t))
+        .collect();
+    let full_drift = drift(&t, &settled, full_warmup).unwrap();
+    assert!(relative(thinned.warmup_s.unwrap(), full_warmup) < 0.01);
+    let se = full_drift.stderr_db_per_hour.unwrap();
+    let got = thinned.drift_db_per_hour.unwrap();
+    assert!(
+        (got - full_drift.db_per_hour).abs() < se,
+        "{got} vs {full_drift:?}"
+    );
+    let thinned_se = thinned.drift_stderr_db_per_hour.unwrap();
+    assert!(relative(thinned_se, se) < 0.3, "{thinned_se} vs {se}");
+}
