@@ -136,11 +136,11 @@ fn andrews_bandwidth_matches_a_hand_computation_and_the_fixture() {
     }
 }
 
-/// The share of `logs` zero-drift logs of AR(1) noise whose drift lies beyond two of
-/// its standard errors.
-fn false_drift_rate(rho: f64, logs: u64) -> f64 {
+/// Over `logs` zero-drift logs of AR(1) noise: the share whose drift lies beyond two of
+/// its standard errors, and the share given a warm-up they do not have.
+fn false_drift_rate(rho: f64, logs: u64) -> (f64, f64) {
     let t = times(720);
-    let mut beyond = 0;
+    let (mut beyond, mut warmups) = (0, 0);
     for seed in 0..logs {
         let mut rng = Pcg64::seed_from_u64(seed);
         let dbm: Vec<f64> = ar1_noise(&mut rng, t.len(), rho, 0.02)
@@ -152,20 +152,32 @@ fn false_drift_rate(rho: f64, logs: u64) -> f64 {
         if drift.abs() > 2.0 * report.drift_stderr_db_per_hour.unwrap() {
             beyond += 1;
         }
+        if report.model == SoakModel::Warmup {
+            warmups += 1;
+        }
     }
-    beyond as f64 / logs as f64
+    (beyond as f64 / logs as f64, warmups as f64 / logs as f64)
 }
 
-/// Asserts the rate of `false_drift_rate` stays within 2 % to 10 %.
+/// Asserts the rate of `false_drift_rate` stays within 2 % to 10 %, and that at most 2 %
+/// of the logs are given a warm-up (the choice's criterion is meant to refuse noise).
 fn assert_false_drift_rate(rho: f64) {
-    let rate = false_drift_rate(rho, 400);
-    eprintln!("rho {rho}: |drift| > 2 SE in {:.1} % of logs", 100.0 * rate);
+    let (rate, warmups) = false_drift_rate(rho, 400);
+    eprintln!(
+        "rho {rho}: |drift| > 2 SE in {:.1} % of logs, a warm-up in {:.1} %",
+        100.0 * rate,
+        100.0 * warmups
+    );
     assert!((0.02..=0.10).contains(&rate), "rho {rho}: {rate}");
+    assert!(warmups <= 0.02, "rho {rho}: warm-up in {warmups}");
 }
 
 // Source: the definition of a standard error: with no drift, |drift| > 2·SE should happen
 // in about 5 % of logs (the issue asks for 2 % to 10 %); the independent-residual error
-// gave 64 % here. Monte-Carlo, fixed seeds, 400 logs of 720 rows of AR(1) noise, σ = 0.02 dB.
+// gave 64 % here. And the rule in docs/report.md ("The model"): the warm-up model is
+// chosen only for a warm-up beyond the tolerance that stands clear of the noise, so logs
+// of noise alone get a line. Monte-Carlo, fixed seeds, 400 logs of 720 rows of AR(1)
+// noise, σ = 0.02 dB.
 #[test]
 fn zero_drift_in_noise_correlated_at_0_9_is_flagged_as_often_as_two_errors_promise() {
     assert_false_drift_rate(0.9);
