@@ -311,6 +311,10 @@ pub struct Report {
     pub drift_whole_db_per_hour: Option<f64>,
     /// Its standard error, by the same method.
     pub drift_whole_stderr_db_per_hour: Option<f64>,
+    /// Why there is no whole-span drift, when there is none (for the text; not a JSON
+    /// key).
+    #[serde(skip)]
+    pub drift_whole_missing: Option<String>,
     /// Overlapping Allan deviation of the interval means at octave-spaced averaging times.
     pub allan: Vec<AllanPoint>,
     /// The fitted model, for drawing.
@@ -450,7 +454,7 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         .map(|(t, m)| m - fit.warmup_db(*t))
         .collect();
     let late = soak::drift(&since, &settled_means, drift_from_s);
-    let whole = soak::drift(&since, &model_means, 0.0).ok();
+    let whole = soak::drift(&since, &model_means, 0.0);
     let (gaps, gap_spans) = find_gaps(&rows, run.spacing);
     let mut flagged_rows = BTreeMap::new();
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {
@@ -486,8 +490,9 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         drift_stderr_db_per_hour: late.as_ref().ok().and_then(|d| d.stderr_db_per_hour),
         drift_stderr_method: late.as_ref().ok().map(|d| d.method),
         drift_missing: late.as_ref().err().cloned(),
-        drift_whole_db_per_hour: whole.as_ref().map(|d| d.db_per_hour),
-        drift_whole_stderr_db_per_hour: whole.as_ref().and_then(|d| d.stderr_db_per_hour),
+        drift_whole_db_per_hour: whole.as_ref().ok().map(|d| d.db_per_hour),
+        drift_whole_stderr_db_per_hour: whole.as_ref().ok().and_then(|d| d.stderr_db_per_hour),
+        drift_whole_missing: whole.as_ref().err().cloned(),
         allan: allan::overlapping_adev(&means, run.spacing.step_s()),
         fit,
         settled_after_s,
