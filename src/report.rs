@@ -226,10 +226,11 @@ fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {
 /// Choices for a report.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ReportOptions {
-    /// Settled means within ± this many dB of the final mean.
+    /// The settle tolerance, dB: the warm-up is over once its term stays within ± this,
+    /// and a warm-up smaller than this is no warm-up (docs/report.md, "The model").
     pub settle_tol_db: f64,
-    /// The final window whose mean is the settled level, seconds; None: 10 minutes, or
-    /// the last fifth of a log shorter than 50 minutes.
+    /// The final window whose mean is the settled level (drawn in the plot), seconds;
+    /// None: 10 minutes, or the last fifth of a log shorter than 50 minutes.
     pub settle_window_s: Option<f64>,
     /// Start of the span, seconds since the run started.
     pub from_s: Option<f64>,
@@ -280,37 +281,48 @@ pub struct Report {
     pub std_db: f64,
     /// The model chosen for the interval means.
     pub model: SoakModel,
-    /// Why it was chosen (the criterion and its figures).
+    /// Why it was chosen (the criterion and its figures, or the test the warm-up model
+    /// failed).
     pub model_choice: String,
-    /// Seconds from the span's start after which the warm-up stays within the settle
-    /// tolerance; null when no warm-up was found.
+    /// Seconds from the span's start after which the warm-up term stays within the
+    /// settle tolerance, τ·ln(|A|/tol); null for a line (no warm-up found).
     pub warmup_s: Option<f64>,
     /// The warm-up's time constant τ, seconds.
     pub warmup_tau_s: Option<f64>,
     /// The warm-up's amplitude A at the span's start, dB.
     pub warmup_amplitude_db: Option<f64>,
-    /// Where the drift's fit begins, seconds from the span's start (after the warm-up).
+    /// Where the drift's fit begins, seconds from the span's start: `warmup_s`, or 0 for
+    /// a line.
     pub drift_from_s: f64,
-    /// Drift of the interval means after the warm-up, dB per hour; null when the run is
-    /// too short after the warm-up (`drift_missing` says why).
+    /// Drift of the interval means after the warm-up (with the fitted warm-up term taken
+    /// off), dB per hour; null when the run is too short after the warm-up: fewer than
+    /// 30 rows, or residuals correlated over more than half of them (`drift_missing`
+    /// says which).
     pub drift_db_per_hour: Option<f64>,
-    /// Its standard error.
+    /// Its standard error: prewhitened Newey–West with Andrews' plug-in bandwidth, valid
+    /// for autocorrelated residuals.
     pub drift_stderr_db_per_hour: Option<f64>,
-    /// How that standard error was worked out.
+    /// How that standard error was worked out, naming the estimator.
     pub drift_stderr_method: Option<&'static str>,
     /// Why there is no drift after the warm-up, when there is none.
     pub drift_missing: Option<String>,
-    /// Drift over the whole span, dB per hour.
+    /// Drift over the whole span, warm-up and all, dB per hour; null by the same rule as
+    /// the drift after the warm-up.
     pub drift_whole_db_per_hour: Option<f64>,
-    /// Its standard error.
+    /// Its standard error, by the same method.
     pub drift_whole_stderr_db_per_hour: Option<f64>,
+    /// Why there is no whole-span drift, when there is none (for the text; not a JSON
+    /// key).
+    #[serde(skip)]
+    pub drift_whole_missing: Option<String>,
     /// Overlapping Allan deviation of the interval means at octave-spaced averaging times.
     pub allan: Vec<AllanPoint>,
     /// The fitted model, for drawing.
     #[serde(skip)]
     pub fit: SoakFit,
-    /// Seconds from the start after which every interval stays within the tolerance of the
-    /// final mean; null when it never settled.
+    /// Seconds from the start after which the run is settled: `warmup_s` (null when that
+    /// lies past the span's end), or 0 for a line; null for a line chosen because the
+    /// warm-up fitted is too slow for the span, so the run was not seen to settle.
     pub settled_after_s: Option<f64>,
     /// Gaps: stretches of missing or gap-flagged rows.
     pub gaps: u64,
@@ -321,7 +333,7 @@ pub struct Report {
     /// The drift line's value at the span's start, dBm (for drawing).
     #[serde(skip)]
     pub drift_at_start_dbm: f64,
-    /// The settled level the settle test used, dBm.
+    /// The settled level: the power mean of the final window, dBm.
     #[serde(skip)]
     pub settled_dbm: f64,
     /// The span's first row time, seconds since the run started.
@@ -424,22 +436,35 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     let means: Vec<f64> = valid.iter().map(|(_, m)| *m).collect();
     let hours: Vec<f64> = valid.iter().map(|(t, _)| (t - start) / 3600.0).collect();
     let line = fit_line(&hours, &means);
-    let since: Vec<f64> = valid.iter().map(|(t, _)| t - start).collect();
     let u_db: Vec<Option<f64>> = rows
         .iter()
         .filter(|r| r.mean_dbm.is_some())
         .map(|r| r.u_db)
         .collect();
-    let fit = soak::fit(&since, &means, &u_db, options.settle_tol_db);
+    let times: Vec<f64> = valid.iter().map(|(t, _)| t - start).collect();
+    let (since, model_means, u_db) = soak::thinned(&times, &means, &u_db);
+
+    let fit = soak::fit(&since, &model_means, &u_db, options.settle_tol_db);
     let drift_from_s = fit.warmup_s.unwrap_or(0.0);
-    let late = soak::drift(&since, &means, drift_from_s);
-    let whole = soak::drift(&since, &means, 0.0).ok();
+    // The fitted warm-up term comes off first: what is left of it after `warmup_s` (up
+    // to the tolerance, falling fast) would otherwise tilt a short stretch's line.
+    let settled_means: Vec<f64> = since
+        .iter()
+        .zip(&model_means)
+        .map(|(t, m)| m - fit.warmup_db(*t))
+        .collect();
+    let late = soak::drift(&since, &settled_means, drift_from_s);
+    let whole = soak::drift(&since, &model_means, 0.0);
     let (gaps, gap_spans) = find_gaps(&rows, run.spacing);
     let mut flagged_rows = BTreeMap::new();
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {
         *flagged_rows.entry(flag.clone()).or_insert(0) += 1;
     }
-    let (settled_after_s, settled_dbm) = settle(&valid, start, end, options);
+    let settled_dbm = settled_level(&valid, start, end, options);
+    let settled_after_s = match fit.warmup_s {
+        Some(t) => (t <= end - start).then_some(t),
+        None => (!fit.still_warming).then_some(0.0),
+    };
     Ok(Report {
         duration_s: end - start,
         samples,
@@ -465,9 +490,10 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         drift_stderr_db_per_hour: late.as_ref().ok().and_then(|d| d.stderr_db_per_hour),
         drift_stderr_method: late.as_ref().ok().map(|d| d.method),
         drift_missing: late.as_ref().err().cloned(),
-        drift_whole_db_per_hour: whole.as_ref().map(|d| d.db_per_hour),
-        drift_whole_stderr_db_per_hour: whole.as_ref().and_then(|d| d.stderr_db_per_hour),
-        allan: allan::on_time_grid(&since, &means, step)
+        drift_whole_db_per_hour: whole.as_ref().ok().map(|d| d.db_per_hour),
+        drift_whole_stderr_db_per_hour: whole.as_ref().ok().and_then(|d| d.stderr_db_per_hour),
+        drift_whole_missing: whole.as_ref().err().cloned(),
+        allan: allan::on_time_grid(&times, &means, step)
             .map_or_else(Vec::new, |grid| allan::overlapping_adev(&grid, step)),
         fit,
         settled_after_s,
@@ -533,13 +559,8 @@ fn find_gaps(rows: &[&LogRow], spacing: Spacing) -> (u64, Vec<(f64, f64)>) {
     (spans.len() as u64, spans)
 }
 
-/// The settling time and the settled level (power mean of the final window).
-fn settle(
-    valid: &[(f64, f64)],
-    start: f64,
-    end: f64,
-    options: &ReportOptions,
-) -> (Option<f64>, f64) {
+/// The settled level: the power mean of the final window.
+fn settled_level(valid: &[(f64, f64)], start: f64, end: f64, options: &ReportOptions) -> f64 {
     let duration = end - start;
     let window = options
         .settle_window_s
@@ -550,18 +571,11 @@ fn settle(
         .filter(|(t, _)| *t >= end - window)
         .map(|(_, m)| dbm_to_watts(*m))
         .collect();
-    let settled_dbm = if last.is_empty() {
+    if last.is_empty() {
         valid[valid.len() - 1].1
     } else {
         watts_to_dbm(last.iter().sum::<f64>() / last.len() as f64)
-    };
-    let outside = |m: f64| (m - settled_dbm).abs() > options.settle_tol_db;
-    let settled_after = match valid.iter().rposition(|(_, m)| outside(*m)) {
-        None => Some(0.0),
-        Some(i) if i + 1 == valid.len() => None,
-        Some(i) => Some(valid[i + 1].0 - start),
-    };
-    (settled_after, settled_dbm)
+    }
 }
 
 /// A log drawn at `columns` across: each column keeps the lowest minimum, the highest
