@@ -238,7 +238,7 @@ fn plots_are_valid_svg_and_png_of_the_stated_size() {
     let svg_text = std::fs::read_to_string(&svg).unwrap();
     assert!(svg_text.starts_with("<svg") && svg_text.trim_end().ends_with("</svg>"));
     assert!(svg_text.contains(r#"width="900""#) && svg_text.contains(r#"height="500""#));
-    assert!(svg_text.contains("time since start") && svg_text.contains("dBm"));
+    assert!(svg_text.contains("time since the run started") && svg_text.contains("dBm"));
     let bytes = std::fs::read(&png).unwrap();
     assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
     let width = u32::from_be_bytes(bytes[16..20].try_into().unwrap());
@@ -654,7 +654,7 @@ fn two_run_log() -> String {
 fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
     let dir = scratch("runs");
     let value = json_of(&report_on(&dir, "two.csv", &two_run_log(), &["--json"]));
-    let runs = value.as_array().expect("an array of runs");
+    let runs = value["runs"].as_array().expect("an array of runs under `runs`");
     assert_eq!(runs.len(), 2);
     assert_eq!(
         (runs[0]["run"].as_u64(), runs[0]["first_line"].as_u64()),
