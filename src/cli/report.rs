@@ -14,6 +14,8 @@ use serde_json::Value;
 use super::{emit, parse_duration_arg, BadInput, Failure, Runtime};
 
 mod plot;
+#[cfg(test)]
+mod sample;
 mod text;
 
 #[derive(clap::Args)]

@@ -344,3 +344,111 @@ pub fn together_table(all: &Together) -> String {
         .map(|(label, value)| labelled(label, value))
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::super::parse_seconds;
+    use super::super::sample::warm_run;
+    use super::*;
+
+    fn warm_table() -> String {
+        let (run, report) = warm_run(3.0);
+        table(&run, &report, &ReportOptions::default())
+    }
+
+    /// The value of the line labelled `label`, its wrapped lines joined.
+    fn value_of(table: &str, label: &str) -> String {
+        let start = format!("  {label:<LABEL_WIDTH$} ");
+        let mut lines = table.lines().skip_while(|l| !l.starts_with(&start));
+        let first = lines
+            .next()
+            .unwrap_or_else(|| panic!("no `{label}` in\n{table}"));
+        let indent = " ".repeat(LABEL_WIDTH + 3);
+        let rest = lines.take_while(|l| l.starts_with(&indent)).map(str::trim);
+        std::iter::once(first[start.len()..].trim())
+            .chain(rest)
+            .collect::<Vec<_>>()
+            .join(" ")
+    }
+
+    // Source: the rule in issue 15 item 1 (within 100 columns) and the report's own
+    // figures: τ = 480 s, A = −0.6 dB and a warm-up time of 480·ln(6) = 860 s (14:20)
+    // worked by hand for the tolerance of 0.1 dB.
+    #[test]
+    fn the_table_says_the_model_warm_up_and_both_drifts() {
+        let text = warm_table();
+        assert!(text.lines().all(|l| l.chars().count() <= COLUMNS), "{text}");
+        assert!(value_of(&text, "model")
+            .starts_with("a warm-up on a drift, P∞ + D·t + A·e^(−t/τ): by hand"));
+        assert_eq!(
+            value_of(&text, "warm-up"),
+            "14:20 (860 s), until the warm-up term |A|·e^(−t/τ) stays within ±0.10 dB; \
+             τ = 08:00 (480 s), A = -0.600 dB"
+        );
+        assert_eq!(
+            value_of(&text, "drift"),
+            "-0.1200 dB/h ± 0.0040 dB/h (standard error, by hand); fitted from 14:20 (860 s) \
+             to the end, after the warm-up"
+        );
+        assert!(value_of(&text, "whole span").starts_with("-0.0500 dB/h ± 0.0100 dB/h"));
+        assert_eq!(
+            value_of(&text, "settled"),
+            "after 14:20 (860 s), the warm-up time"
+        );
+    }
+
+    // Source: the rule in issue 15 item 3: when the run is too short after the warm-up
+    // the report says why instead of printing a number.
+    #[test]
+    fn a_missing_drift_is_explained_not_printed() {
+        let (run, mut report) = warm_run(3.0);
+        report.drift_db_per_hour = None;
+        report.drift_missing = Some("only 5 rows after the warm-up".into());
+        let text = table(&run, &report, &ReportOptions::default());
+        assert_eq!(
+            value_of(&text, "drift"),
+            "none after the warm-up: only 5 rows after the warm-up"
+        );
+    }
+
+    // Source: the hand-built report's Allan points (τ = 10·2^k s, adev = 0.01/√(τ/10) +
+    // 2e-5·τ, so 0.0102 dB at 10 s) and the octave arithmetic: 160 s is 2 min 40 s and
+    // 2560 s is 42 min 40 s.
+    #[test]
+    fn the_allan_table_lists_every_point_in_human_units() {
+        let text = warm_table();
+        let rows: Vec<&str> = text
+            .lines()
+            .skip_while(|l| !l.trim_start().starts_with("τ "))
+            .skip(1)
+            .take_while(|l| l.ends_with(" dB"))
+            .collect();
+        assert_eq!(rows.len(), 9, "{text}");
+        assert!(rows[0].trim_start().starts_with("10 s ") && rows[0].ends_with("0.0102 dB"));
+        assert!(rows[4].trim_start().starts_with("2 min 40 s "));
+        assert!(rows[8].trim_start().starts_with("42 min 40 s "));
+    }
+
+    // Source: the rule in issue 15 item 7: --from and --to accept every form the report
+    // prints; each averaging time printed reads back as the same number of seconds.
+    #[test]
+    fn printed_averaging_times_read_back_as_times() {
+        for tau in [0.004, 0.5, 10.0, 160.0, 3600.0, 5120.0, 90061.0] {
+            let printed = human_duration(tau);
+            let read = parse_seconds(&printed).unwrap();
+            assert!(
+                (read - tau).abs() < 1e-9,
+                "{tau} s printed `{printed}` read {read}"
+            );
+        }
+        assert_eq!(human_duration(5120.0), "1 h 25 min 20 s");
+    }
+
+    // Source: worked by hand: three significant digits without an exponent.
+    #[test]
+    fn small_deviations_keep_three_digits() {
+        assert_eq!(three_digits(0.000523), "0.000523");
+        assert_eq!(three_digits(0.0213), "0.0213");
+        assert_eq!(three_digits(1.5), "1.50");
+    }
+}
