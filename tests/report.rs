@@ -1193,7 +1193,11 @@ fn the_text_report_fits_100_columns() {
             "no {label} in\n{stdout}"
         );
     }
-    assert_eq!(stdout.matches("description").count(), 12, "the whole line kept");
+    assert_eq!(
+        stdout.matches("description").count(),
+        12,
+        "the whole line kept"
+    );
 }
 
 // Source: the rule in issue 15 item 7: --from and --to take every form the report prints
