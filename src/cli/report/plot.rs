@@ -9,6 +9,7 @@ use anyhow::{anyhow, Context};
 use dbtrail::report::soak::SoakModel;
 use dbtrail::report::{decimate, span_rows, Report, ReportOptions, Run};
 use dbtrail::units::format_clock;
+use plotters::chart::MeshStyle;
 use plotters::coord::ranged1d::{DefaultFormatting, KeyPointHint};
 use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
@@ -380,6 +381,39 @@ where
     Ok(())
 }
 
+/// What drawing on a backend gives.
+type Drawn<T, DB> = Result<T, DrawingAreaErrorKind<<DB as DrawingBackend>::ErrorType>>;
+
+/// A panel's chart on `area` with room for its labels, `(top, bottom)` margins, and its
+/// plotting area tinted.
+fn panel<'a, DB: DrawingBackend, X: Ranged, Y: Ranged>(
+    area: &'a DrawingArea<DB, Shift>,
+    (top, bottom): (u32, u32),
+    x: X,
+    y: Y,
+) -> Drawn<ChartContext<'a, DB, Cartesian2d<X, Y>>, DB> {
+    let chart = ChartBuilder::on(area)
+        .margin_top(top)
+        .margin_bottom(bottom)
+        .margin_left(12)
+        .margin_right(RIGHT_MARGIN)
+        .x_label_area_size(X_LABEL_AREA)
+        .y_label_area_size(Y_LABEL_AREA)
+        .build_cartesian_2d(x, y)?;
+    chart.plotting_area().fill(&PANEL)?;
+    Ok(chart)
+}
+
+/// The grid, axes and labels of every panel.
+fn house_style<'m, 'a, 'b, X: Ranged, Y: Ranged, DB: DrawingBackend>(
+    mesh: &'m mut MeshStyle<'a, 'b, X, Y, DB>,
+) -> &'m mut MeshStyle<'a, 'b, X, Y, DB> {
+    mesh.bold_line_style(GRID)
+        .axis_style(INK)
+        .label_style(label_font())
+        .axis_desc_style(label_font())
+}
+
 fn label_font() -> TextStyle<'static> {
     ("sans-serif", 14).into_font().color(&INK)
 }
@@ -425,23 +459,13 @@ fn draw_time_panel<DB: DrawingBackend>(
     let (y0, y1) = (report.min_dbm - pad, report.max_dbm + pad);
     let plot_py = f64::from(area.dim_in_pixel().1.saturating_sub(X_LABEL_AREA + 10));
     let (y_ticks, y_decimals) = ticks(y0, y1, &decade_steps(), (plot_py / 45.0) as usize);
-    let mut chart = ChartBuilder::on(area)
-        .margin_top(8)
-        .margin_left(12)
-        .margin_right(RIGHT_MARGIN)
-        .x_label_area_size(X_LABEL_AREA)
-        .y_label_area_size(Y_LABEL_AREA)
-        .build_cartesian_2d(
-            linear(t0 / scale, t1 / scale, x_ticks),
-            linear(y0, y1, y_ticks),
-        )?;
-    chart.plotting_area().fill(&PANEL)?;
-    chart
-        .configure_mesh()
-        .bold_line_style(GRID)
-        .axis_style(INK)
-        .label_style(label_font())
-        .axis_desc_style(label_font())
+    let mut chart = panel(
+        area,
+        (8, 0),
+        linear(t0 / scale, t1 / scale, x_ticks),
+        linear(y0, y1, y_ticks),
+    )?;
+    house_style(&mut chart.configure_mesh())
         .x_label_formatter(&|v| format!("{v:.x_decimals$}"))
         .y_label_formatter(&|v| format!("{v:.y_decimals$}"))
         .x_desc(format!("time since the run started ({unit})"))
@@ -563,21 +587,13 @@ fn draw_allan_panel<DB: DrawingBackend>(
         .filter(|t| (x0..=x1).contains(t))
         .collect();
     let y_ticks = log_ticks(y0, y1);
-    let mut chart = ChartBuilder::on(area)
-        .margin_top(14)
-        .margin_bottom(6)
-        .margin_left(12)
-        .margin_right(RIGHT_MARGIN)
-        .x_label_area_size(X_LABEL_AREA)
-        .y_label_area_size(Y_LABEL_AREA)
-        .build_cartesian_2d(logarithmic(x0, x1, x_ticks), logarithmic(y0, y1, y_ticks))?;
-    chart.plotting_area().fill(&PANEL)?;
-    chart
-        .configure_mesh()
-        .bold_line_style(GRID)
-        .axis_style(INK)
-        .label_style(label_font())
-        .axis_desc_style(label_font())
+    let mut chart = panel(
+        area,
+        (14, 6),
+        logarithmic(x0, x1, x_ticks),
+        logarithmic(y0, y1, y_ticks),
+    )?;
+    house_style(&mut chart.configure_mesh())
         .x_label_formatter(&|v| human_duration(*v))
         .y_label_formatter(&|v| format!("{v:.*}", decimals_of(*v)))
         .x_desc("averaging time τ (Allan deviation of the interval means)")
@@ -778,6 +794,7 @@ mod tests {
             let width = u32::from_be_bytes(bytes[16..20].try_into().unwrap());
             let height = u32::from_be_bytes(bytes[20..24].try_into().unwrap());
             assert_eq!((width, height), size);
+            std::fs::remove_file(&path).unwrap();
         }
     }
 
