@@ -34,16 +34,16 @@ pub struct Args {
     /// Size of the plot in pixels, WIDTHxHEIGHT
     #[arg(long, default_value = "1200x700", allow_hyphen_values = true, value_parser = parse_size)]
     size: (u32, u32),
-    /// Settled means every interval stays within ± this many dB of the final mean
+    /// The warm-up is over, and the output settled, once the warm-up term stays within ± this many dB
     #[arg(long, default_value = "0.1dB", allow_hyphen_values = true, value_parser = parse_tolerance)]
     settle_tol: f64,
-    /// The final window whose mean is the settled level (default 10m, or the last fifth of a shorter log)
+    /// Accepted as before, but no figure printed depends on it now: the settled time is the warm-up's, not a final window's
     #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
     settle_window: Option<std::time::Duration>,
-    /// Start of the span to report on, time since the run started (e.g. 30m, or 0:30:00 as the report prints times)
+    /// Start of the span to report on, time since the run started (e.g. 30m, 1h30m, or as the report prints times: 1:05:10, 54:50, 3910 s, 2 min 40 s)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     from: Option<f64>,
-    /// End of the span, time since the run started (e.g. 2h, or 2:00:00)
+    /// End of the span, time since the run started (e.g. 2h, 2:00:00, or 1 h 25 min 20 s)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     to: Option<f64>,
     /// Channel to report on, from 1

@@ -488,17 +488,16 @@ fn draw_time_panel<DB: DrawingBackend>(
             .map(|&(a, b)| shade(a, b, GAP, 0.35)),
     )?;
     let rows = span_rows(run, options);
-    let columns = decimate(&rows, (plot_px as usize).max(10));
-    chart.draw_series(columns.iter().map(|&(t, lo, hi, _)| {
-        PathElement::new(
-            vec![(t / scale, lo), (t / scale, hi)],
-            BAND.mix(BAND_ALPHA).stroke_width(1),
-        )
-    }))?;
-    chart.draw_series(LineSeries::new(
-        columns.iter().map(|&(t, _, _, m)| (t / scale, m)),
-        MEAN.stroke_width(1),
-    ))?;
+    let count = (plot_px as usize).max(10);
+    let columns = decimate(&rows, count);
+    let width = report.duration_s / count as f64;
+    let longest = run.spacing.longest_step_s().max(1.5 * width);
+    for stretch in stretches(&columns, longest) {
+        chart.draw_series(std::iter::once(Polygon::new(
+            band_outline(stretch, width / 2.0, scale),
+            BAND.mix(BAND_ALPHA).filled(),
+        )))?;
+    }
     let steps = 400;
     chart.draw_series(LineSeries::new(
         (0..=steps).map(|i| {
@@ -507,6 +506,12 @@ fn draw_time_panel<DB: DrawingBackend>(
         }),
         MODEL.stroke_width(2),
     ))?;
+    for stretch in stretches(&columns, longest) {
+        chart.draw_series(LineSeries::new(
+            stretch.iter().map(|&(t, _, _, m)| (t / scale, m)),
+            MEAN.stroke_width(1),
+        ))?;
+    }
     if let Some(ends) = drift_ends(run, report, options) {
         chart.draw_series(DashedLineSeries::new(
             ends.map(|(t, m)| (t / scale, m)),
@@ -516,6 +521,36 @@ fn draw_time_panel<DB: DrawingBackend>(
         ))?;
     }
     Ok(())
+}
+
+/// A decimated column: (time, lowest, highest, mean).
+type Column = (f64, f64, f64, f64);
+
+/// The columns in stretches without a gap: a step longer than `longest` seconds starts a
+/// new one, so neither the band nor the mean line bridges missing rows.
+fn stretches(columns: &[Column], longest: f64) -> Vec<&[Column]> {
+    let mut out = Vec::new();
+    let mut start = 0;
+    for i in 1..=columns.len() {
+        if i == columns.len() || columns[i].0 - columns[i - 1].0 > longest {
+            out.push(&columns[start..i]);
+            start = i;
+        }
+    }
+    out.retain(|s| !s.is_empty());
+    out
+}
+
+/// The min–max band of a stretch as one outline: along the highs, back along the lows;
+/// a lone column `half` seconds either side of its time.
+fn band_outline(stretch: &[Column], half: f64, scale: f64) -> Vec<(f64, f64)> {
+    let widened: Vec<Column> = match stretch {
+        [(t, lo, hi, m)] => vec![(t - half, *lo, *hi, *m), (t + half, *lo, *hi, *m)],
+        _ => stretch.to_vec(),
+    };
+    let highs = widened.iter().map(|&(t, _, hi, _)| (t / scale, hi));
+    let lows = widened.iter().rev().map(|&(t, lo, _, _)| (t / scale, lo));
+    highs.chain(lows).collect()
 }
 
 /// An axis whose ticks are the ones given, labelled by the mesh's formatter: plotters'
@@ -796,6 +831,22 @@ mod tests {
             assert_eq!((width, height), size);
             std::fs::remove_file(&path).unwrap();
         }
+    }
+
+    // Source: worked by hand: columns 10 s apart with one 60 s step, split where the step
+    // passes 15 s (1.5 rows): two stretches of 3 and 2.
+    #[test]
+    fn gaps_split_the_band_and_the_mean_line() {
+        let columns: Vec<Column> = [0.0, 10.0, 20.0, 80.0, 90.0]
+            .map(|t| (t, 1.0, 2.0, 1.5))
+            .to_vec();
+        let parts = stretches(&columns, 15.0);
+        assert_eq!(parts.iter().map(|p| p.len()).collect::<Vec<_>>(), [3, 2]);
+        let outline = band_outline(parts[1], 5.0, 1.0);
+        assert_eq!(
+            outline,
+            [(80.0, 2.0), (90.0, 2.0), (90.0, 1.0), (80.0, 1.0)]
+        );
     }
 
     // Source: the rule in issue 15 item 6: the drift line only over the stretch it was

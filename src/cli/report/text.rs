@@ -173,8 +173,10 @@ fn warmup_words(r: &Report, tol_db: f64) -> String {
 
 fn slope_words(db_per_hour: f64, stderr: Option<f64>, method: Option<&str>) -> String {
     let error = match (stderr, method) {
-        (Some(se), Some(method)) => format!(" ± {se:.4} dB/h (standard error, {method})"),
-        (Some(se), None) => format!(" ± {se:.4} dB/h (standard error)"),
+        (Some(se), Some(method)) => {
+            format!(" ± {} dB/h (standard error, {method})", three_digits(se))
+        }
+        (Some(se), None) => format!(" ± {} dB/h (standard error)", three_digits(se)),
         (None, _) => " (too few rows for a standard error)".into(),
     };
     format!("{db_per_hour:+.4} dB/h{error}")
@@ -202,8 +204,13 @@ fn drift_words(r: &Report) -> String {
 fn whole_drift_words(r: &Report) -> String {
     match r.drift_whole_db_per_hour {
         Some(d) => format!(
-            "{}; the warm-up included, for comparison",
-            slope_words(d, r.drift_whole_stderr_db_per_hour, None)
+            "{}; {}",
+            slope_words(d, r.drift_whole_stderr_db_per_hour, None),
+            if r.drift_from_s > 0.0 {
+                "the warm-up included, for comparison"
+            } else {
+                "the same stretch as the drift, there being no warm-up to leave out"
+            }
         ),
         None => "none: fewer than two rows with a spread in time".into(),
     }
@@ -387,10 +394,11 @@ mod tests {
         );
         assert_eq!(
             value_of(&text, "drift"),
-            "-0.1200 dB/h ± 0.0040 dB/h (standard error, by hand); fitted from 14:20 (860 s) \
+            "-0.1200 dB/h ± 0.00400 dB/h (standard error, by hand); fitted from 14:20 (860 s) \
              to the end, after the warm-up"
         );
-        assert!(value_of(&text, "whole span").starts_with("-0.0500 dB/h ± 0.0100 dB/h"));
+        assert!(value_of(&text, "whole span")
+            .starts_with("-0.0500 dB/h ± 0.0100 dB/h (standard error); the warm-up included"));
         assert_eq!(
             value_of(&text, "settled"),
             "after 14:20 (860 s), the warm-up time"
