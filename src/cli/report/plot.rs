@@ -168,19 +168,27 @@ fn decade_steps() -> Vec<f64> {
         .collect()
 }
 
-/// Whole-unit steps for the time axis: below one unit only for a span that short.
-fn time_steps(unit: &str) -> Vec<f64> {
-    let whole: &[f64] = match unit {
+/// Whole-unit steps for the time axis.
+fn time_steps(unit: &str) -> &'static [f64] {
+    match unit {
         "h" => &[
             1.0, 2.0, 3.0, 6.0, 12.0, 24.0, 48.0, 96.0, 168.0, 336.0, 720.0,
         ],
         _ => &[
             1.0, 2.0, 5.0, 10.0, 15.0, 20.0, 30.0, 60.0, 120.0, 300.0, 600.0,
         ],
-    };
-    let mut steps: Vec<f64> = decade_steps().into_iter().filter(|s| *s < 1.0).collect();
-    steps.extend_from_slice(whole);
-    steps
+    }
+}
+
+/// Time ticks in whole units when at least three fit the span, else in fractions of
+/// one for a span that short.
+fn time_ticks(from: f64, to: f64, unit: &str, most: usize) -> (Vec<f64>, usize) {
+    let whole = ticks(from, to, time_steps(unit), most);
+    if whole.0.len() >= 3 {
+        return whole;
+    }
+    let fractions: Vec<f64> = decade_steps().into_iter().filter(|s| *s < 1.0).collect();
+    ticks(from, to, &fractions, most)
 }
 
 /// One legend entry's sample: a stroke of a line or a patch of a shading.
@@ -449,10 +457,10 @@ fn draw_time_panel<DB: DrawingBackend>(
     let (t0, t1) = (report.start_s, report.start_s + report.duration_s);
     let (unit, scale) = time_unit(report.duration_s);
     let plot_px = f64::from(area.dim_in_pixel().0.saturating_sub(Y_LABEL_AREA + 42));
-    let (x_ticks, x_decimals) = ticks(
+    let (x_ticks, x_decimals) = time_ticks(
         t0 / scale,
         t1 / scale,
-        &time_steps(unit),
+        unit,
         (plot_px / TICK_SPACING_PX) as usize,
     );
     let pad = (report.pk_pk_db * 0.08).max(0.05);
@@ -863,13 +871,18 @@ mod tests {
     // steps (20 min would make 10): 0, 30 … 180, all whole.
     #[test]
     fn time_ticks_are_whole_and_end_inside_the_axis() {
-        let (points, decimals) = ticks(0.0, 180.0, &time_steps("min"), 7);
+        let (points, decimals) = time_ticks(0.0, 180.0, "min", 7);
         assert_eq!(points, [0.0, 30.0, 60.0, 90.0, 120.0, 150.0, 180.0]);
         assert_eq!(decimals, 0);
-        let (late, _) = ticks(7.3, 171.9, &time_steps("min"), 7);
+        let (late, _) = time_ticks(7.3, 171.9, "min", 7);
         assert_eq!(late.first(), Some(&30.0));
         assert_eq!(late.last(), Some(&150.0));
         assert!(late.iter().all(|t| (7.3..=171.9).contains(t)));
+        // A 2 s span takes whole seconds, 0, 1 and 2, though halves would fit; a 0.6 s
+        // span has no three whole seconds, so tenths.
+        assert_eq!(time_ticks(0.0, 2.0, "s", 9), (vec![0.0, 1.0, 2.0], 0));
+        let (short, decimals) = time_ticks(0.0, 0.6, "s", 9);
+        assert_eq!((short.len(), decimals), (7, 1));
     }
 
     // Source: worked by hand: a 0.6 dB range with at most 7 ticks takes steps of 0.1
