@@ -499,7 +499,9 @@ fn draw_time_panel<DB: DrawingBackend>(
     let count = (plot_px as usize).max(10);
     let columns = decimate(&rows, count);
     let width = report.duration_s / count as f64;
-    let longest = run.spacing.longest_step_s().max(1.5 * width);
+    // Rows a little sparser than columns leave some columns empty: a step across one
+    // is not a gap.
+    let longest = run.spacing.longest_step_s() + 2.0 * width;
     for stretch in stretches(&columns, longest) {
         chart.draw_series(std::iter::once(Polygon::new(
             band_outline(stretch, width / 2.0, scale),
