@@ -387,11 +387,19 @@ fn together(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> Toget
     }
 }
 
+/// A struct's fields as a JSON object, to add keys to.
+fn object_of(value: &impl Serialize) -> serde_json::Result<serde_json::Map<String, Value>> {
+    match serde_json::to_value(value)? {
+        Value::Object(object) => Ok(object),
+        other => Err(serde::ser::Error::custom(format!(
+            "the report's figures made {other} where an object was due"
+        ))),
+    }
+}
+
 /// One run's object: the report's keys with `settled_after_s` as the warm-up time.
 fn run_object(report: &Report) -> serde_json::Result<serde_json::Map<String, Value>> {
-    let Value::Object(mut object) = serde_json::to_value(report)? else {
-        unreachable!("a struct serialises to a JSON object");
-    };
+    let mut object = object_of(report)?;
     object.insert("settled_after_s".into(), settled_after_s(report).into());
     Ok(object)
 }
@@ -413,9 +421,7 @@ fn json(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> serde_jso
                 Ok(Value::Object(object))
             })
             .collect::<serde_json::Result<Vec<_>>>()?;
-        let Value::Object(mut all) = serde_json::to_value(together(runs, reports, options))? else {
-            unreachable!("a struct serialises to a JSON object");
-        };
+        let mut all = object_of(&together(runs, reports, options))?;
         all.insert("runs".into(), Value::Array(per_run));
         Value::Object(all)
     };
