@@ -241,7 +241,7 @@ fn plots_are_valid_svg_and_png_of_the_stated_size() {
     let svg_text = std::fs::read_to_string(&svg).unwrap();
     assert!(svg_text.starts_with("<svg") && svg_text.trim_end().ends_with("</svg>"));
     assert!(svg_text.contains(r#"width="900""#) && svg_text.contains(r#"height="500""#));
-    assert!(svg_text.contains("time since start") && svg_text.contains("dBm"));
+    assert!(svg_text.contains("time since the run started") && svg_text.contains("dBm"));
     let bytes = std::fs::read(&png).unwrap();
     assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
     let width = u32::from_be_bytes(bytes[16..20].try_into().unwrap());
@@ -657,7 +657,9 @@ fn two_run_log() -> String {
 fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
     let dir = scratch("runs");
     let value = json_of(&report_on(&dir, "two.csv", &two_run_log(), &["--json"]));
-    let runs = value.as_array().expect("an array of runs");
+    let runs = value["runs"]
+        .as_array()
+        .expect("an array of runs under `runs`");
     assert_eq!(runs.len(), 2);
     assert_eq!(
         (runs[0]["run"].as_u64(), runs[0]["first_line"].as_u64()),
@@ -1072,4 +1074,150 @@ fn bounds_and_old_logs_give_no_uncertainty() {
     let report = analysed(&old, &ReportOptions::default());
     assert!((report.mean_dbm.unwrap() - 7.403_626_89).abs() < 1e-6);
     assert_eq!(report.mean_u_db, None);
+}
+
+// Output of the soak report (issue 15, items 1, 2, 5 and 7).
+
+// Source: the rule in issue 15 item 8: settled_after_s is the warm-up time, or 0 when no
+// warm-up was found, whatever the final window's mean says. The exponential log above
+// stays outside ±0.1 dB of its final mean until 898.7 s, so a final-window test gives a
+// figure that is not the warm-up time.
+#[test]
+fn settled_after_is_the_warm_up_time_in_json_and_text() {
+    let dir = scratch("settled");
+    let (tau, a) = (300.0, 2.0);
+    let rows: Vec<(f64, Option<f64>, &str)> = (0..3600)
+        .map(|i| {
+            let t = f64::from(i) * 3.0;
+            (t, Some(27.0 - a * (-t / tau).exp()), "")
+        })
+        .collect();
+    let text = log_text(3.0, &rows);
+    let value = json_of(&report_on(&dir, "warm.csv", &text, &["--json"]));
+    let warmup = value["warmup_s"].as_f64().unwrap_or(0.0);
+    near(&value, "settled_after_s", warmup);
+    let table = report_on(&dir, "warm.csv", &text, &[]);
+    let stdout = String::from_utf8_lossy(&table.stdout);
+    let settled = stdout
+        .lines()
+        .find(|l| l.trim_start().starts_with("settled "))
+        .unwrap_or_else(|| panic!("no settled line in\n{stdout}"));
+    if warmup > 0.0 {
+        assert!(
+            settled.contains(&format!("({warmup:.0} s), the warm-up time")),
+            "{settled}"
+        );
+    } else {
+        assert!(settled.contains("from the start: no warm-up"), "{settled}");
+    }
+}
+
+// Source: worked by hand from two_run_log: 4 rows of 1 dBm and 4 of 5 dBm, each of 10
+// samples, so the mean over watts is 10·log10((10^0.1 + 10^0.5)/2) = 3.44510 dBm (the
+// log's mean_w cells are not used), 40 s + 4 s of span, 80 samples, 1 to 5 dBm.
+#[test]
+fn several_runs_are_reported_together_where_that_makes_sense() {
+    let dir = scratch("together");
+    let value = json_of(&report_on(&dir, "two.csv", &two_run_log(), &["--json"]));
+    let mut keys: Vec<&str> = value
+        .as_object()
+        .unwrap()
+        .keys()
+        .map(String::as_str)
+        .collect();
+    keys.sort_unstable();
+    assert_eq!(
+        keys,
+        [
+            "duration_s",
+            "flagged_rows",
+            "gap_s",
+            "gaps",
+            "max_dbm",
+            "mean_bound",
+            "mean_dbm",
+            "mean_w",
+            "min_dbm",
+            "pk_pk_db",
+            "runs",
+            "samples"
+        ]
+    );
+    assert!((value["mean_dbm"].as_f64().unwrap() - 3.44510).abs() < 1e-4);
+    near(&value, "duration_s", 44.0);
+    near(&value, "min_dbm", 1.0);
+    near(&value, "max_dbm", 5.0);
+    assert_eq!(value["samples"].as_u64(), Some(80));
+    assert_eq!(value["mean_bound"], serde_json::Value::Null);
+    let runs = value["runs"].as_array().unwrap();
+    assert!(runs
+        .iter()
+        .all(|r| r["settled_after_s"].is_number() && r["model"].is_string()));
+    let text = report_on(&dir, "two.csv", &two_run_log(), &[]);
+    let stdout = String::from_utf8_lossy(&text.stdout);
+    let together = stdout
+        .split("\nAll 2 runs together\n")
+        .nth(1)
+        .unwrap_or_else(|| panic!("no section for the runs together in\n{stdout}"));
+    assert!(together.contains("mean power    +3.445 dBm"), "{together}");
+    assert!(
+        together.contains("span          00:44 (44 s) in all"),
+        "{together}"
+    );
+}
+
+// Source: the rule in issue 15 item 1: the text stays within 100 columns, a long context
+// line wrapped under its label.
+#[test]
+fn the_text_report_fits_100_columns() {
+    let dir = scratch("columns");
+    let long_source = format!("# source: {}\n", "a very long description ".repeat(12));
+    let text = two_hour_log().replacen("# source: test\n", &long_source, 1);
+    let out = report_on(&dir, "wide.csv", &text, &[]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success());
+    for line in stdout.lines() {
+        assert!(
+            line.chars().count() <= 100,
+            "{} columns: {line}",
+            line.chars().count()
+        );
+    }
+    for label in [
+        "model",
+        "warm-up",
+        "drift",
+        "whole span",
+        "settled",
+        "stability",
+    ] {
+        assert!(
+            stdout.contains(&format!("\n  {label:<13} ")),
+            "no {label} in\n{stdout}"
+        );
+    }
+    assert_eq!(
+        stdout.matches("description").count(),
+        12,
+        "the whole line kept"
+    );
+}
+
+// Source: the rule in issue 15 item 7: --from and --to take every form the report prints
+// (h:mm:ss, m:ss, seconds, the Allan table's `2 min 40 s`) and the durations 30m, 1h30m.
+#[test]
+fn every_printed_time_form_is_a_from_or_to() {
+    let dir = scratch("time-forms");
+    let pairs = [
+        (["54:50", "1:05:10"], ["3290s", "3910s"]),
+        (["2 min 40 s", "1 h 25 min 20 s"], ["160s", "5120s"]),
+        (["30m", "1h30m"], ["1800 s", "5400 s"]),
+    ];
+    for (printed, plain) in pairs {
+        let by_form =
+            report_on_two_hours(&dir, &["--json", "--from", printed[0], "--to", printed[1]]);
+        let by_seconds =
+            report_on_two_hours(&dir, &["--json", "--from", plain[0], "--to", plain[1]]);
+        assert_eq!(json_of(&by_form), json_of(&by_seconds), "{printed:?}");
+    }
 }

@@ -1,19 +1,22 @@
 //! `dbtrail report`: the figures of a recorded soak, as text or JSON, and a plot. A log
 //! appended to with another profile or spacing holds several runs, reported one by one.
 
-use std::path::{Path, PathBuf};
+use std::collections::BTreeMap;
+use std::path::PathBuf;
 
 use anyhow::{anyhow, Context};
-use dbtrail::report::{
-    analyse, decimate, read_log, span_rows, Report, ReportOptions, Run, Spacing,
-};
+use dbtrail::report::{analyse, read_log, span_rows, Report, ReportOptions, Run};
 use dbtrail::stats::Bound;
-use dbtrail::units::{format_clock, parse_duration, Si};
-use plotters::coord::Shift;
-use plotters::prelude::*;
+use dbtrail::units::{format_clock, parse_duration, watts_to_dbm};
 use serde::Serialize;
+use serde_json::Value;
 
 use super::{emit, parse_duration_arg, BadInput, Failure, Runtime};
+
+mod plot;
+#[cfg(test)]
+mod sample;
+mod text;
 
 #[derive(clap::Args)]
 pub struct Args {
@@ -31,16 +34,16 @@ pub struct Args {
     /// Size of the plot in pixels, WIDTHxHEIGHT
     #[arg(long, default_value = "1200x700", allow_hyphen_values = true, value_parser = parse_size)]
     size: (u32, u32),
-    /// Settled means every interval stays within ± this many dB of the final mean
+    /// The warm-up is over, and the output settled, once the warm-up term stays within ± this many dB
     #[arg(long, default_value = "0.1dB", allow_hyphen_values = true, value_parser = parse_tolerance)]
     settle_tol: f64,
-    /// The final window whose mean is the settled level (default 10m, or the last fifth of a shorter log)
+    /// Accepted as before, but no figure printed depends on it now: the settled time is the warm-up's, not a final window's
     #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
     settle_window: Option<std::time::Duration>,
-    /// Start of the span to report on, time since the run started (e.g. 30m, or 0:30:00 as the report prints times)
+    /// Start of the span to report on, time since the run started (e.g. 30m, 1h30m, or as the report prints times: 1:05:10, 54:50, 3910 s, 2 min 40 s)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     from: Option<f64>,
-    /// End of the span, time since the run started (e.g. 2h, or 2:00:00)
+    /// End of the span, time since the run started (e.g. 2h, 2:00:00, or 1 h 25 min 20 s)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     to: Option<f64>,
     /// Channel to report on, from 1
@@ -169,40 +172,61 @@ pub fn run(args: Args) -> Result<(), Failure> {
         })
         .bad_input()?;
     if let Some(path) = &args.plot {
-        plot(path, args.size, runs[0], &reports[0], &options).runtime()?;
+        plot::plot(path, args.size, runs[0], &reports[0], &options).runtime()?;
+        say_err!("dbtrail: plot written to {}", path.display());
     }
     let text = if args.json {
-        json(&runs, &reports).map_err(|e| Failure::Runtime(e.into()))?
+        json(&runs, &reports, &options).map_err(|e| Failure::Runtime(e.into()))?
     } else {
-        let mut out = format!("Soak report: {origin}, channel {}", args.channel);
-        if let ([run], true) = (runs.as_slice(), several) {
-            out.push_str(&format!(
-                ", run {} of {} (from line {})",
-                run.number,
-                log.runs.len(),
-                run.first_line
-            ));
-        } else if several {
-            out.push_str(&format!(
-                ", {} runs (at each `# resumed` line that changed the profile or the rows' spacing)",
-                runs.len()
-            ));
-        }
-        out.push('\n');
-        for (run, report) in runs.iter().zip(&reports) {
-            if runs.len() > 1 {
-                out.push_str(&format!(
-                    "\nRun {} of {}, from line {}\n",
-                    run.number,
-                    log.runs.len(),
-                    run.first_line
-                ));
-            }
-            out.push_str(&table(run, report, &options));
-        }
-        out
+        text_report(
+            &origin,
+            args.channel,
+            log.runs.len(),
+            &runs,
+            &reports,
+            &options,
+        )
     };
     emit(&text)
+}
+
+/// The whole text report: a heading, a section per run and, for several, the runs
+/// together.
+fn text_report(
+    origin: &str,
+    channel: u64,
+    in_log: usize,
+    runs: &[&Run],
+    reports: &[Report],
+    options: &ReportOptions,
+) -> String {
+    let mut out = format!("Soak report: {origin}, channel {channel}");
+    if let ([run], true) = (runs, in_log > 1) {
+        out.push_str(&format!(
+            ", run {} of {in_log} (from line {})",
+            run.number, run.first_line
+        ));
+    } else if in_log > 1 {
+        out.push_str(&format!(
+            ", {} runs (at each `# resumed` line that changed the profile or the rows' spacing)",
+            runs.len()
+        ));
+    }
+    out.push('\n');
+    for (run, report) in runs.iter().zip(reports) {
+        if runs.len() > 1 {
+            out.push_str(&format!(
+                "\nRun {} of {in_log}, from line {}\n",
+                run.number, run.first_line
+            ));
+        }
+        out.push_str(&text::table(run, report, options));
+    }
+    if runs.len() > 1 {
+        out.push_str(&format!("\nAll {} runs together\n", runs.len()));
+        out.push_str(&text::together_table(&together(runs, reports, options)));
+    }
+    out
 }
 
 /// A plot needs a format it can draw and may not replace a file unasked: both are known
@@ -283,315 +307,114 @@ fn run_label(origin: &str, run: &Run, several: bool) -> String {
     }
 }
 
-/// One run's figures in a JSON array of runs.
-#[derive(Serialize)]
-struct RunReport<'a> {
-    run: usize,
-    first_line: u64,
-    #[serde(flatten)]
-    report: &'a Report,
+/// The figures of several runs that still mean something taken together: how long and
+/// how many, the mean power over watts and the extremes. The model, warm-up, drift and
+/// Allan deviation are left to each run, since every run starts its own warm-up.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub(crate) struct Together {
+    duration_s: f64,
+    samples: u64,
+    mean_dbm: Option<f64>,
+    mean_w: Option<f64>,
+    /// As in a run: null for a value, else the bound's cell text.
+    mean_bound: Option<&'static str>,
+    #[serde(skip)]
+    bound: Bound,
+    min_dbm: f64,
+    max_dbm: f64,
+    pk_pk_db: f64,
+    gaps: u64,
+    gap_s: f64,
+    flagged_rows: BTreeMap<String, u64>,
 }
 
-/// The mean power line: its bound before the number, or why there is no number.
-fn mean_power(r: &Report) -> String {
-    let (Some(dbm), Some(w)) = (r.mean_dbm, r.mean_w) else {
-        return "none: rows counted samples at bounds both ways (clipped or above the span, \
-                and below it), so no bound holds"
-            .into();
-    };
-    let lead = match r.mean_bound {
-        Bound::AtLeast => "at least ",
-        Bound::AtMost => "at most ",
-        Bound::Exact | Bound::Unknown => "",
-    };
-    let why = match r.mean_bound {
-        Bound::AtLeast => "; clipped or above-span samples counted at their bound",
-        Bound::AtMost => "; below-span samples counted at the span's bottom",
-        Bound::Exact | Bound::Unknown => "",
-    };
-    format!(
-        "{lead}{dbm:+.3} dBm ({}), averaged over watts{why}",
-        Si::new(w, "W")
-    )
+/// The weight a run's mean power carries among runs: the samples in its rows' means, as
+/// each row is weighted inside a run.
+fn run_weight(run: &Run, options: &ReportOptions) -> f64 {
+    span_rows(run, options)
+        .iter()
+        .filter(|r| r.mean_dbm.is_some())
+        .map(|r| r.averaged.max(1) as f64)
+        .sum()
 }
 
-/// The uncertainty line: the mean's expanded uncertainty and what it leaves out, or why
-/// there is none.
-fn mean_uncertainty(r: &Report) -> String {
-    let left_out = r
-        .u_leaves_out
-        .as_deref()
-        .map_or(String::new(), |terms| format!("; leaves out: {terms}"));
-    match (r.mean_u_db, r.mean_bound) {
-        (Some(u), _) => format!(
-            "±{u:.3} dB (k = 2), the rows' own taken as systematic, so not reduced by their \
-             number{left_out}"
-        ),
-        (None, Bound::Exact) => {
-            "not known: rows with a mean carry no u_db (a log from before that column, or \
-             rows without the noise of their counts)"
-                .into()
-        }
-        (None, _) => "none: the mean is a bound, not a value".into(),
+fn together(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> Together {
+    let bound = reports
+        .iter()
+        .fold(Bound::Exact, |b, r| b.join(r.mean_bound));
+    let weighted: Option<(f64, f64)> =
+        runs.iter()
+            .zip(reports)
+            .try_fold((0.0, 0.0), |(sum, weights), (run, report)| {
+                let w = run_weight(run, options);
+                Some((sum + report.mean_w? * w, weights + w))
+            });
+    let mean_w = weighted
+        .filter(|(_, weights)| *weights > 0.0 && bound != Bound::Unknown)
+        .map(|(sum, weights)| sum / weights);
+    let min_dbm = reports
+        .iter()
+        .map(|r| r.min_dbm)
+        .fold(f64::INFINITY, f64::min);
+    let max_dbm = reports
+        .iter()
+        .map(|r| r.max_dbm)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut flagged_rows = BTreeMap::new();
+    for (flag, n) in reports.iter().flat_map(|r| &r.flagged_rows) {
+        *flagged_rows.entry(flag.clone()).or_insert(0) += n;
+    }
+    Together {
+        duration_s: reports.iter().map(|r| r.duration_s).sum(),
+        samples: reports.iter().map(|r| r.samples).sum(),
+        mean_dbm: mean_w.map(watts_to_dbm),
+        mean_w,
+        mean_bound: (bound != Bound::Exact).then(|| bound.cell()),
+        bound,
+        min_dbm,
+        max_dbm,
+        pk_pk_db: max_dbm - min_dbm,
+        gaps: reports.iter().map(|r| r.gaps).sum(),
+        gap_s: reports.iter().map(|r| r.gap_s).sum(),
+        flagged_rows,
     }
 }
 
-/// One object for a single run, as always; an array of objects, each with its run's number
-/// and first line, for several.
-fn json(runs: &[&Run], reports: &[Report]) -> serde_json::Result<String> {
-    let text = if let [report] = reports {
-        serde_json::to_string(report)?
+/// A struct's fields as a JSON object, to add keys to.
+fn object_of(value: &impl Serialize) -> serde_json::Result<serde_json::Map<String, Value>> {
+    match serde_json::to_value(value)? {
+        Value::Object(object) => Ok(object),
+        other => Err(serde::ser::Error::custom(format!(
+            "the report's figures made {other} where an object was due"
+        ))),
+    }
+}
+
+/// One run's object: the report's keys.
+fn run_object(report: &Report) -> serde_json::Result<serde_json::Map<String, Value>> {
+    object_of(report)
+}
+
+/// One object for a single run, with the figures at the top level; for several runs,
+/// one object with the figures taken together at the top level and `runs`, one object
+/// per run with its number and first line.
+fn json(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> serde_json::Result<String> {
+    let value = if let [report] = reports {
+        Value::Object(run_object(report)?)
     } else {
-        let all: Vec<RunReport> = runs
+        let per_run = runs
             .iter()
             .zip(reports)
-            .map(|(run, report)| RunReport {
-                run: run.number,
-                first_line: run.first_line,
-                report,
+            .map(|(run, report)| {
+                let mut object = run_object(report)?;
+                object.insert("run".into(), run.number.into());
+                object.insert("first_line".into(), run.first_line.into());
+                Ok(Value::Object(object))
             })
-            .collect();
-        serde_json::to_string(&all)?
+            .collect::<serde_json::Result<Vec<_>>>()?;
+        let mut all = object_of(&together(runs, reports, options))?;
+        all.insert("runs".into(), Value::Array(per_run));
+        Value::Object(all)
     };
-    Ok(format!("{text}\n"))
-}
-
-/// How the rows are spaced, in words: `rows of 10 s`, `rows, one per sample at 1000
-/// samples/s`.
-fn spacing_words(spacing: Spacing) -> String {
-    match spacing {
-        Spacing::Interval(s) | Spacing::MedianStep(s) => format!("rows of {}", Si::new(s, "s")),
-        Spacing::Rate(rate) => format!("rows, one per sample at {rate} samples/s"),
-        Spacing::Clock(_) => format!(
-            "rows, one per sample stamped by the clock (a gap is a step over {})",
-            Si::new(spacing.longest_step_s(), "s")
-        ),
-    }
-}
-
-fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
-    let mut out = String::new();
-    for key in ["profile:", "frequency:", "source:", "started:"] {
-        if let Some(value) = run.context_value(key) {
-            out.push_str(&format!("  {:<13} {value}\n", key.trim_end_matches(':')));
-        }
-    }
-    if !run.resumed_lines.is_empty() {
-        let lines: Vec<String> = run.resumed_lines.iter().map(u64::to_string).collect();
-        out.push_str(&format!(
-            "  {:<13} at line {}, placed in time by the `# resumed` stamps\n",
-            "resumed",
-            lines.join(", ")
-        ));
-    }
-    let rows = span_rows(run, options).len();
-    out.push_str(&format!(
-        "  {:<13} {} ({:.0} s) from {:.0} s, {rows} {}\n",
-        "span",
-        format_clock(r.duration_s),
-        r.duration_s,
-        r.start_s,
-        spacing_words(run.spacing)
-    ));
-    let settled = match r.settled_after_s {
-        Some(s) => format!(
-            "after {} ({s:.0} s) within ±{:.2} dB of {:+.2} dBm",
-            format_clock(s),
-            options.settle_tol_db,
-            r.settled_dbm
-        ),
-        None => format!(
-            "never: the last interval is more than ±{:.2} dB from {:+.2} dBm",
-            options.settle_tol_db, r.settled_dbm
-        ),
-    };
-    let stderr = r
-        .drift_stderr_db_per_hour
-        .map_or("(too few rows for a standard error)".into(), |s| {
-            format!("± {s:.4} dB/h (standard error)")
-        });
-    let flags = if r.flagged_rows.is_empty() {
-        "none".to_string()
-    } else {
-        r.flagged_rows
-            .iter()
-            .map(|(f, n)| format!("{f} {n}"))
-            .collect::<Vec<_>>()
-            .join(", ")
-    };
-    let lines = [
-        ("samples", r.samples.to_string()),
-        ("mean power", mean_power(r)),
-        ("uncertainty", mean_uncertainty(r)),
-        (
-            "min / max",
-            format!(
-                "{:+.3} / {:+.3} dBm (peak to peak {:.3} dB)",
-                r.min_dbm, r.max_dbm, r.pk_pk_db
-            ),
-        ),
-        (
-            "spread",
-            format!(
-                "{:.3} dB, standard deviation of the interval means",
-                r.std_db
-            ),
-        ),
-        (
-            "drift",
-            format!(
-                "{:+.4} dB/h {stderr}",
-                r.drift_db_per_hour.unwrap_or(f64::NAN)
-            ),
-        ),
-        ("settled", settled),
-        ("gaps", format!("{}, {:.1} s in all", r.gaps, r.gap_s)),
-        ("flagged rows", flags),
-    ];
-    for (label, value) in lines {
-        out.push_str(&format!("  {label:<13} {value}\n"));
-    }
-    out
-}
-
-/// The font embedded for bitmap plots (DejaVu Sans; see assets/fonts/DejaVuSans.COPYRIGHT).
-const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
-
-fn plot(
-    path: &Path,
-    size: (u32, u32),
-    run: &Run,
-    report: &Report,
-    options: &ReportOptions,
-) -> anyhow::Result<()> {
-    let extension = path
-        .extension()
-        .and_then(|e| e.to_str())
-        .map(str::to_ascii_lowercase);
-    let _ = plotters::style::register_font("sans-serif", FontStyle::Normal, FONT);
-    let drawn = match extension.as_deref() {
-        Some("svg") => draw(
-            SVGBackend::new(path, size).into_drawing_area(),
-            run,
-            report,
-            options,
-        ),
-        Some("png") => draw(
-            BitMapBackend::new(path, size).into_drawing_area(),
-            run,
-            report,
-            options,
-        ),
-        _ => {
-            return Err(anyhow!(
-                "cannot tell the plot format of {}: name it .svg or .png",
-                path.display()
-            ))
-        }
-    };
-    drawn.with_context(|| format!("cannot draw the plot to {}", path.display()))
-}
-
-fn draw<DB: DrawingBackend>(
-    root: DrawingArea<DB, Shift>,
-    run: &Run,
-    report: &Report,
-    options: &ReportOptions,
-) -> anyhow::Result<()>
-where
-    DB::ErrorType: 'static,
-{
-    let fail = |e: DrawingAreaErrorKind<DB::ErrorType>| anyhow!("{e}");
-    root.fill(&WHITE).map_err(fail)?;
-    let rows = span_rows(run, options);
-    let width = root.dim_in_pixel().0 as usize;
-    let columns = decimate(&rows, width.saturating_sub(120).max(10));
-    let (t0, t1) = (report.start_s, report.start_s + report.duration_s);
-    let (unit, scale) = if report.duration_s > 3.0 * 3600.0 {
-        ("h", 3600.0)
-    } else if report.duration_s > 180.0 {
-        ("min", 60.0)
-    } else {
-        ("s", 1.0)
-    };
-    let pad = (report.pk_pk_db * 0.08).max(0.05);
-    let (y0, y1) = (report.min_dbm - pad, report.max_dbm + pad);
-    let title = format!(
-        "{} · {}",
-        run.context_value("profile:").unwrap_or("dbtrail log"),
-        run.context_value("started:")
-            .map_or(String::new(), |s| format!("started {s}"))
-    );
-    let mut chart = ChartBuilder::on(&root)
-        .caption(title, ("sans-serif", 20))
-        .margin(12)
-        .x_label_area_size(40)
-        .y_label_area_size(70)
-        .build_cartesian_2d(t0 / scale..t1 / scale, y0..y1)
-        .map_err(fail)?;
-    chart
-        .configure_mesh()
-        .x_desc(format!("time since start ({unit})"))
-        .y_desc("power at the reference plane (dBm)")
-        .draw()
-        .map_err(fail)?;
-    for (a, b) in &report.gap_spans {
-        let shade = RGBColor(255, 200, 120).mix(0.45).filled();
-        chart
-            .draw_series(std::iter::once(Rectangle::new(
-                [(a / scale, y0), (b / scale, y1)],
-                shade,
-            )))
-            .map_err(fail)?;
-    }
-    let band = RGBColor(120, 160, 220);
-    chart
-        .draw_series(columns.iter().map(|&(t, lo, hi, _)| {
-            PathElement::new(vec![(t / scale, lo), (t / scale, hi)], band.stroke_width(1))
-        }))
-        .map_err(fail)?
-        .label("min–max of each interval")
-        .legend(move |(x, y)| PathElement::new(vec![(x, y - 6), (x, y + 6)], band));
-    chart
-        .draw_series(LineSeries::new(
-            columns.iter().map(|&(t, _, _, m)| (t / scale, m)),
-            BLUE.stroke_width(1),
-        ))
-        .map_err(fail)?
-        .label("interval mean (over watts)")
-        .legend(|(x, y)| PathElement::new(vec![(x - 8, y), (x + 8, y)], BLUE));
-    let drift = |t: f64| {
-        report.drift_at_start_dbm + report.drift_db_per_hour.unwrap_or(0.0) * (t - t0) / 3600.0
-    };
-    chart
-        .draw_series(LineSeries::new(
-            [(t0 / scale, drift(t0)), (t1 / scale, drift(t1))],
-            RED.stroke_width(2),
-        ))
-        .map_err(fail)?
-        .label(format!(
-            "drift {:+.3} dB/h",
-            report.drift_db_per_hour.unwrap_or(f64::NAN)
-        ))
-        .legend(|(x, y)| PathElement::new(vec![(x - 8, y), (x + 8, y)], RED));
-    if let Some(after) = report.settled_after_s {
-        let t = (t0 + after) / scale;
-        let green = RGBColor(0, 140, 60);
-        chart
-            .draw_series(std::iter::once(PathElement::new(
-                vec![(t, y0), (t, y1)],
-                green.stroke_width(2),
-            )))
-            .map_err(fail)?
-            .label(format!("settled after {}", format_clock(after)))
-            .legend(move |(x, y)| PathElement::new(vec![(x, y - 6), (x, y + 6)], green));
-    }
-    chart
-        .configure_series_labels()
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .draw()
-        .map_err(fail)?;
-    root.present().map_err(fail)?;
-    Ok(())
+    Ok(format!("{}\n", serde_json::to_string(&value)?))
 }
