@@ -1221,3 +1221,41 @@ fn every_printed_time_form_is_a_from_or_to() {
         assert_eq!(json_of(&by_form), json_of(&by_seconds), "{printed:?}");
     }
 }
+
+// Source: the rule in issue 15 items 2 and 3 (say so instead of printing a number) and the
+// demo soak's warm-up (τ = 480 s in src/sim.rs): a 20 min recording holds barely two time
+// constants, so the report must say the warm-up is too slow to describe and the run has
+// not settled, and each missing drift must give its own reason, never a generic one.
+#[test]
+fn a_soak_cut_short_in_its_warm_up_says_what_it_cannot_tell() {
+    let dir = scratch("short-soak");
+    let log = dir.join("short.csv");
+    let recorded = dbtrail(&[
+        "record",
+        "--demo",
+        "soak",
+        "--fast",
+        "--duration",
+        "20m",
+        "--every",
+        "10s",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(recorded.status.success(), "{recorded:?}");
+    let out = dbtrail(&["report", log.to_str().unwrap()]);
+    let text = String::from_utf8_lossy(&out.stdout);
+    let line = |label: &str| {
+        text.lines()
+            .find(|l| l.trim_start().starts_with(label))
+            .unwrap_or_else(|| panic!("no {label} in\n{text}"))
+            .to_string()
+    };
+    assert!(line("warm-up").contains("too slow for this span"), "{text}");
+    assert!(line("settled").contains("not within the span"), "{text}");
+    assert!(line("whole span").contains("none: the residuals"), "{text}");
+    let value = json_of(&dbtrail(&["report", log.to_str().unwrap(), "--json"]));
+    assert_eq!(value["model"], "line");
+    assert!(value["settled_after_s"].is_null(), "{value}");
+    assert!(value["drift_db_per_hour"].is_null(), "{value}");
+}

@@ -114,17 +114,17 @@ pub fn fit(t_s: &[f64], dbm: &[f64], u_db: &[Option<f64>], tol_db: f64) -> SoakF
     };
     let candidate = match rows.warmup_candidate() {
         Ok(candidate) => candidate,
-        Err(why) => return line(format!("a straight line: {why}")),
+        Err(why) => return line(why),
     };
     match candidate.judge(rows.span_s(), tol_db) {
         Err(why) => SoakFit {
             still_warming: candidate.warmup.amplitude_db.abs() > tol_db
                 && SPAN_TAUS * candidate.warmup.tau_s > rows.span_s(),
-            ..line(format!("a straight line: {why}"))
+            ..line(why)
         },
         Ok(words) => SoakFit {
             model: SoakModel::Warmup,
-            choice: format!("the warm-up model: {words}"),
+            choice: words,
             level_dbm: candidate.level_dbm,
             slope_db_per_s: candidate.slope_db_per_s,
             warmup: Some(candidate.warmup),

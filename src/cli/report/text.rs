@@ -154,12 +154,17 @@ fn model_words(r: &Report) -> String {
         SoakModel::Line => "a straight line, P0 + D·t",
         SoakModel::Warmup => "a warm-up on a drift, P∞ + D·t + A·e^(−t/τ)",
     };
-    format!("{form}: {}", r.model_choice)
+    format!("{form}, chosen because {}", r.model_choice)
 }
 
 fn warmup_words(r: &Report, tol_db: f64) -> String {
     let shape = match (r.warmup_tau_s, r.warmup_amplitude_db) {
         (Some(tau), Some(a)) => format!("τ = {}, A = {a:+.3} dB", clock(tau)),
+        _ if r.settled_after_s.is_none() => {
+            return "not measured: a warm-up is under way but too slow for this span to \
+                    describe (see the model line); record longer"
+                .into()
+        }
         _ => return "none: the straight line describes the span".into(),
     };
     match r.warmup_s {
@@ -212,7 +217,12 @@ fn whole_drift_words(r: &Report) -> String {
                 "the same stretch as the drift, there being no warm-up to leave out"
             }
         ),
-        None => "none: fewer than two rows with a spread in time".into(),
+        None => format!(
+            "none: {}",
+            r.drift_whole_missing
+                .as_deref()
+                .unwrap_or("fewer than two rows with a spread in time")
+        ),
     }
 }
 
@@ -387,7 +397,7 @@ mod tests {
         let text = warm_table();
         assert!(text.lines().all(|l| l.chars().count() <= COLUMNS), "{text}");
         assert!(value_of(&text, "model")
-            .starts_with("a warm-up on a drift, P∞ + D·t + A·e^(−t/τ): by hand"));
+            .starts_with("a warm-up on a drift, P∞ + D·t + A·e^(−t/τ), chosen because by hand"));
         assert_eq!(
             value_of(&text, "warm-up"),
             "14:20 (860 s), until the warm-up term |A|·e^(−t/τ) stays within ±0.10 dB; \
