@@ -229,9 +229,6 @@ pub struct ReportOptions {
     /// The settle tolerance, dB: the warm-up is over once its term stays within ± this,
     /// and a warm-up smaller than this is no warm-up (docs/report.md, "The model").
     pub settle_tol_db: f64,
-    /// The final window whose mean is the settled level (drawn in the plot), seconds;
-    /// None: 10 minutes, or the last fifth of a log shorter than 50 minutes.
-    pub settle_window_s: Option<f64>,
     /// Start of the span, seconds since the run started.
     pub from_s: Option<f64>,
     /// End of the span.
@@ -242,7 +239,6 @@ impl Default for ReportOptions {
     fn default() -> Self {
         ReportOptions {
             settle_tol_db: 0.1,
-            settle_window_s: None,
             from_s: None,
             to_s: None,
         }
@@ -333,9 +329,6 @@ pub struct Report {
     /// The drift line's value at the span's start, dBm (for drawing).
     #[serde(skip)]
     pub drift_at_start_dbm: f64,
-    /// The settled level: the power mean of the final window, dBm.
-    #[serde(skip)]
-    pub settled_dbm: f64,
     /// The span's first row time, seconds since the run started.
     #[serde(skip)]
     pub start_s: f64,
@@ -460,7 +453,6 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     for flag in rows.iter().flat_map(|r| r.flags.iter()) {
         *flagged_rows.entry(flag.clone()).or_insert(0) += 1;
     }
-    let settled_dbm = settled_level(&valid, start, end, options);
     let settled_after_s = match fit.warmup_s {
         Some(t) => (t <= end - start).then_some(t),
         None => (!fit.still_warming).then_some(0.0),
@@ -501,7 +493,6 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         gap_s: gap_spans.iter().fold(0.0, |total, (a, b)| total + (b - a)),
         flagged_rows,
         drift_at_start_dbm: line.map_or(means[0], |l| l.intercept),
-        settled_dbm,
         start_s: start,
         gap_spans,
     })
@@ -557,25 +548,6 @@ fn find_gaps(rows: &[&LogRow], spacing: Spacing) -> (u64, Vec<(f64, f64)>) {
         }
     }
     (spans.len() as u64, spans)
-}
-
-/// The settled level: the power mean of the final window.
-fn settled_level(valid: &[(f64, f64)], start: f64, end: f64, options: &ReportOptions) -> f64 {
-    let duration = end - start;
-    let window = options
-        .settle_window_s
-        .unwrap_or_else(|| 600f64.min(duration / 5.0))
-        .min(duration);
-    let last: Vec<f64> = valid
-        .iter()
-        .filter(|(t, _)| *t >= end - window)
-        .map(|(_, m)| dbm_to_watts(*m))
-        .collect();
-    if last.is_empty() {
-        valid[valid.len() - 1].1
-    } else {
-        watts_to_dbm(last.iter().sum::<f64>() / last.len() as f64)
-    }
 }
 
 /// A log drawn at `columns` across: each column keeps the lowest minimum, the highest

@@ -160,7 +160,6 @@ fn exponential_warm_up_settles_when_the_maths_says() {
     // of ±0.01 dB the last interval is itself outside, so it never settled.
     let still_rising = ReportOptions {
         settle_tol_db: 0.01,
-        settle_window_s: Some(60.0),
         ..options
     };
     let never = analysed(&log_text(1.0, &rows[..600]), &still_rising);

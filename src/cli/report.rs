@@ -11,7 +11,7 @@ use dbtrail::units::{format_clock, parse_duration, watts_to_dbm};
 use serde::Serialize;
 use serde_json::Value;
 
-use super::{emit, parse_duration_arg, BadInput, Failure, Runtime};
+use super::{emit, BadInput, Failure, Runtime};
 
 mod plot;
 #[cfg(test)]
@@ -37,9 +37,6 @@ pub struct Args {
     /// The warm-up is over, and the output settled, once the warm-up term stays within ± this many dB
     #[arg(long, default_value = "0.1dB", allow_hyphen_values = true, value_parser = parse_tolerance)]
     settle_tol: f64,
-    /// Accepted as before, but no figure printed depends on it now: the settled time is the warm-up's, not a final window's
-    #[arg(long, allow_hyphen_values = true, value_parser = parse_duration_arg)]
-    settle_window: Option<std::time::Duration>,
     /// Start of the span to report on, time since the run started (e.g. 30m, 1h30m, or as the report prints times: 1:05:10, 54:50, 3910 s, 2 min 40 s)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     from: Option<f64>,
@@ -155,7 +152,6 @@ pub fn run(args: Args) -> Result<(), Failure> {
     }
     let options = ReportOptions {
         settle_tol_db: args.settle_tol,
-        settle_window_s: args.settle_window.map(|d| d.as_secs_f64()),
         from_s: args.from,
         to_s: args.to,
     };

@@ -90,7 +90,6 @@ pub fn warm_run(hours: f64) -> (Run, Report) {
         gap_s: 300.0,
         flagged_rows: BTreeMap::new(),
         drift_at_start_dbm: 29.8,
-        settled_dbm: 29.6,
         start_s: 0.0,
         gap_spans: vec![(5000.0, 5300.0)],
     };
