@@ -462,10 +462,26 @@ fn draw_time_panel<DB: DrawingBackend>(
         unit,
         (plot_px / TICK_SPACING_PX) as usize,
     );
-    let pad = (report.pk_pk_db * 0.08).max(0.05);
-    let (y0, y1) = (report.min_dbm - pad, report.max_dbm + pad);
+    let steps = 400;
+    let model: Vec<(f64, f64)> = (0..=steps)
+        .map(|i| {
+            let since = report.duration_s * f64::from(i) / f64::from(steps);
+            ((t0 + since) / scale, report.fit.at(since))
+        })
+        .collect();
+    // The model may leave the readings' range (a line through a curve ends beyond it):
+    // the axis holds both, so no drawn line runs along its edge.
+    let (lo, hi) = model
+        .iter()
+        .map(|&(_, m)| m)
+        .filter(|m| m.is_finite())
+        .fold((report.min_dbm, report.max_dbm), |(lo, hi), m| {
+            (lo.min(m), hi.max(m))
+        });
+    let pad = ((hi - lo) * 0.08).max(0.05);
+    let (y0, y1) = (lo - pad, hi + pad);
     let plot_py = f64::from(area.dim_in_pixel().1.saturating_sub(X_LABEL_AREA + 10));
-    let (y_ticks, y_decimals) = ticks(y0, y1, &decade_steps(), (plot_py / 45.0) as usize);
+    let (y_ticks, y_decimals) = ticks(y0, y1, &decade_steps(), (plot_py / 30.0) as usize);
     let mut chart = panel(
         area,
         (8, 0),
@@ -507,14 +523,7 @@ fn draw_time_panel<DB: DrawingBackend>(
             BAND.mix(BAND_ALPHA).filled(),
         )))?;
     }
-    let steps = 400;
-    chart.draw_series(LineSeries::new(
-        (0..=steps).map(|i| {
-            let since = report.duration_s * f64::from(i) / f64::from(steps);
-            ((t0 + since) / scale, report.fit.at(since))
-        }),
-        MODEL.stroke_width(2),
-    ))?;
+    chart.draw_series(LineSeries::new(model, MODEL.stroke_width(2)))?;
     for stretch in stretches(&columns, longest) {
         chart.draw_series(LineSeries::new(
             stretch.iter().map(|&(t, _, _, m)| (t / scale, m)),
