@@ -753,6 +753,47 @@ mod tests {
         }
     }
 
+    /// The y coordinates of every polyline drawn in `colour`.
+    fn line_ys(svg: &str, colour: RGBColor) -> Vec<f64> {
+        let stroke = format!(
+            "stroke=\"#{:02X}{:02X}{:02X}\"",
+            colour.0, colour.1, colour.2
+        );
+        svg.split("<polyline")
+            .skip(1)
+            .map(|chunk| chunk.split('>').next().unwrap())
+            .filter(|tag| tag.contains(&stroke))
+            .flat_map(|tag| {
+                attribute(tag, "points")
+                    .unwrap_or("")
+                    .split_whitespace()
+                    .filter_map(|p| p.split_once(',').and_then(|(_, y)| y.parse().ok()))
+                    .collect::<Vec<f64>>()
+            })
+            .collect()
+    }
+
+    // Source: the rule in issue 15 item 6 (nothing drawn is cut): a model that leaves the
+    // readings' range, as a straight line through a warm-up does at its ends, must still
+    // lie inside the plotting area, not run along its edge.
+    #[test]
+    fn a_model_beyond_the_readings_stays_inside_the_panel() {
+        let (run, mut report) = warm_run(1.0);
+        report.fit.warmup = None;
+        report.fit.level_dbm = report.min_dbm - 0.3;
+        report.fit.slope_db_per_s = (report.max_dbm + 0.3 - report.fit.level_dbm) / 3600.0;
+        let svg = svg_of(&run, &report, (800, 600));
+        let [_, top, _, bottom] = panels(&svg)[0];
+        let ys = line_ys(&svg, MODEL);
+        assert!(ys.len() > 100, "{} points", ys.len());
+        for y in ys {
+            assert!(
+                y > top + 1.0 && y < bottom - 1.0,
+                "{y} against {top}..{bottom}"
+            );
+        }
+    }
+
     // Source: the rules in issue 15 item 6: the frequency in the title, and no tick label
     // past the end of its axis or the picture.
     #[test]
