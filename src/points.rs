@@ -94,11 +94,11 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
         let std_counts = optional(columns.std_counts.map(cell), "std_counts", line, &fail)?;
         let samples = match columns.samples.map(cell).filter(|s| !s.is_empty()) {
             None => None,
-            Some(s) => Some(s.parse::<u64>().map_err(|_| {
+            Some(s) => Some(s.parse::<u64>().ok().filter(|&n| n >= 1).ok_or_else(|| {
                 fail(
                     line,
                     "samples",
-                    format!("`{s}` is not a whole number of samples"),
+                    format!("`{s}` is not a whole number of samples, 1 or more"),
                 )
             })?),
         };

@@ -628,9 +628,10 @@ fn uncertainty_line(budget: Option<&Uncertainty>, cal: &Calibration, per_sample:
     };
     format!(
         "# u_db: expanded uncertainty (k = {}) of the row's {}, dB; empty for a bound; \
-         leaves out: {left_out}\n",
+         leaves out: {left_out}; not modelled: {}\n",
         crate::uncertainty::COVERAGE_K,
-        if per_sample { "reading" } else { "mean" }
+        if per_sample { "reading" } else { "mean" },
+        crate::uncertainty::NOT_MODELLED
     )
 }
 
@@ -1010,11 +1011,16 @@ mod tests {
             let line: Vec<&str> = text.lines().filter(|l| l.starts_with("# u_db:")).collect();
             assert_eq!(line.len(), 1, "{text}");
             let left_out = if every > 0.0 {
-                "leaves out: temperature"
+                "leaves out: temperature; not modelled: "
             } else {
-                "leaves out: noise of the mean, temperature"
+                "leaves out: noise of the mean, temperature; not modelled: "
             };
-            assert!(line[0].ends_with(left_out), "{}", line[0]);
+            assert!(line[0].contains(left_out), "{}", line[0]);
+            assert!(
+                line[0].ends_with(crate::uncertainty::NOT_MODELLED),
+                "{}",
+                line[0]
+            );
         }
     }
 

@@ -12,6 +12,11 @@ use crate::calibration::Calibration;
 use crate::correction::FreqTable;
 use crate::profile::Profile;
 
+/// What no budget includes yet, besides the temperature term (docs/calibration.md, "What
+/// is not in the budget yet"): named wherever a budget says what it leaves out.
+pub const NOT_MODELLED: &str = "the correction rows' own uncertainty, the ADC's \
+                                reference and divider, drift since calibration";
+
 /// The coverage factor of every expanded uncertainty dbtrail prints (about 95 %).
 pub const COVERAGE_K: f64 = 2.0;
 
@@ -211,6 +216,8 @@ impl Uncertainty {
             None => Known::Missing,
         };
         let interpolation = match &profile.frequency_correction {
+            // Beyond the rows the end value stands in (flagged): its error is unknown.
+            Some(table) if table.at(hz).outside => None,
             Some(table) => Some(table.interpolation_u_db(hz)),
             None => (hz == profile.reference_hz).then_some(0.0),
         };

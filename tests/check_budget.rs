@@ -257,7 +257,7 @@ fn json_carries_the_terms_the_missing_and_the_counts_given() {
         assert!(!terms.is_empty());
         let rss = terms
             .iter()
-            .map(|t| t["u_db"].as_f64().unwrap().powi(2))
+            .map(|t| t["standard_u_db"].as_f64().unwrap().powi(2))
             .sum::<f64>()
             .sqrt();
         assert_eq!(budget["k"].as_f64(), Some(2.0));
@@ -358,4 +358,57 @@ fn with_no_offset_the_offset_term_asks_for_no_key() {
         !budget.lines().any(|l| l.trim_start().starts_with("offset")),
         "{budget}"
     );
+}
+
+// Source: the rule in docs/reliability.md that nothing panics on user input and bad input
+// exits 2; and the ADC's own range (common practice): counts lie from 0 to full scale
+// (4095 for the demo's 12 bits). Counts over full scale have no level, clipped ones and
+// those outside the span are bounds and are marked so. Before, 4096 counts panicked in the
+// model term and the bounds read like values.
+#[test]
+fn counts_past_full_scale_or_outside_the_span_are_marked_and_negative_counts_refused() {
+    let text = check(&[DEMO, "--freq", "146MHz", "--counts", "2", "4095", "4096"]);
+    let given = block(&text, "at the counts given");
+    let levels = row(&given, "level, dBm");
+    assert!(levels[0].starts_with('≤'), "{levels:?}");
+    assert!(levels[1].starts_with('≥'), "{levels:?}");
+    assert_eq!(levels[2], "over-FS", "{levels:?}");
+    assert!(
+        row(&given, "expanded, k = 2").iter().all(|c| c == "-"),
+        "{text}"
+    );
+    let out = common::output(common::bin().args(["check", DEMO, "--counts", "-1"]));
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        String::from_utf8_lossy(&out.stderr).contains("never gives negative counts"),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+// Source: the rule in docs/calibration.md ("The uncertainty budget") that a term whose
+// input is missing is named, never guessed: beyond the correction table's last row
+// (440 MHz in the demo) the end value stands in and how far off it is there is unknown,
+// so the interpolation term is left out with that reason, where before it read 0.000.
+#[test]
+fn beyond_the_correction_table_the_interpolation_term_is_named_as_unknown() {
+    let text = check(&[DEMO, "--freq", "5GHz"]);
+    let missing = not_included(&text);
+    assert!(
+        missing
+            .get("frequency interpolation")
+            .is_some_and(|why| why.contains("outside the table")),
+        "{missing:?}"
+    );
+    let profile = load_profile(Path::new(DEMO)).unwrap();
+    let cal = Calibration::new(&profile, Some(5e9), 0.0);
+    let budget = Uncertainty::new(&profile, &cal).budget(10.0, None);
+    assert!(budget
+        .missing
+        .contains(&dbtrail::uncertainty::TermKind::FrequencyInterpolation));
+    let inside = Calibration::new(&profile, Some(300e6), 0.0);
+    let within = Uncertainty::new(&profile, &inside).budget(10.0, None);
+    assert!(within
+        .term(dbtrail::uncertainty::TermKind::FrequencyInterpolation)
+        .is_some_and(|u| u > 0.0));
 }

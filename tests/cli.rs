@@ -300,6 +300,11 @@ const BAD_POINTS: &[(&str, &str, &str)] = &[
         "table",
         "duplicate_applied_column.csv:1: (header): two `applied` columns (columns 1 and 3)",
     ),
+    (
+        "zero_samples.csv",
+        "table",
+        "zero_samples.csv:3: samples: `0` is not a whole number of samples, 1 or more",
+    ),
 ];
 
 // Source: worked example — the same log-amp line as above with its columns swapped (and

@@ -77,9 +77,10 @@ fn fit_weighs_points_by_their_stored_noise_and_says_so() {
     let out = plain_points.with_file_name("unweighted.toml");
     let run = fit(plain_points.to_str().unwrap(), &out);
     let text = String::from_utf8_lossy(&run.stdout);
+    assert!(text.contains("Fit unweighted: the scatter"), "{text}");
     assert!(
-        text.contains("unweighted (give std_counts and samples"),
-        "{text}"
+        !text.contains("χ²"),
+        "an unweighted fit states no χ²: {text}"
     );
     let unweighted = fitted_slope(&out);
     assert!(unweighted < 0.025 * 0.98, "{unweighted}");

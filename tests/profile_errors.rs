@@ -112,6 +112,13 @@ const CASES: &[(&str, usize, &str, &str)] = &[
         "belongs to the table model",
     ),
     ("unknown_axis", 10, "model.axis", "unknown axis `log`"),
+    // Source: the rule in docs/profiles.md: a point is the mean of 1 or more samples.
+    (
+        "zero_samples",
+        12,
+        "model.points[1].samples",
+        "at least one sample",
+    ),
     (
         "temperature_in_celsius",
         10,

@@ -10,7 +10,7 @@ use dbtrail::calibration::{Calibration, Flags};
 use dbtrail::correction::{FrequencyCorrection, ROLL_OFF_MIN_ROWS};
 use dbtrail::printable::escape_controls;
 use dbtrail::profile::{load_profile, Profile};
-use dbtrail::uncertainty::{Budget, TermKind, Uncertainty, COVERAGE_K};
+use dbtrail::uncertainty::{Budget, TermKind, Uncertainty, COVERAGE_K, NOT_MODELLED};
 use dbtrail::units::Si;
 
 use super::{emit, parse_counts_arg, parse_frequency_arg, summary, BadInput, Failure};
@@ -66,6 +66,36 @@ struct Column {
     given: bool,
     /// The budget; None for given counts outside the span (their level is a bound).
     budget: Option<Budget>,
+    /// The reading's flags (empty across the span).
+    flags: Flags,
+}
+
+/// Which way a column's level leans, as the recorder's `bound` cells name it; None for a
+/// value.
+fn bound_key(flags: Flags) -> Option<&'static str> {
+    if flags.contains(Flags::OVER_FULL_SCALE) {
+        Some("none")
+    } else if flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
+        Some("at-least")
+    } else if flags.contains(Flags::BELOW_SPAN) {
+        Some("at-most")
+    } else {
+        None
+    }
+}
+
+/// A column's level as a person should read it: a bound says which way it leans
+/// (≥ for clip or above the span, ≤ below it), counts over full scale have none.
+fn level_cell(c: &Column) -> String {
+    if !c.dbm.is_finite() {
+        "over-FS".into()
+    } else if c.flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
+        format!("≥{:+.2}", c.dbm)
+    } else if c.flags.contains(Flags::BELOW_SPAN) {
+        format!("≤{:+.2}", c.dbm)
+    } else {
+        format!("{:+.2}", c.dbm)
+    }
 }
 
 /// The budget at levels across the span, then at each of `counts`.
@@ -78,9 +108,10 @@ fn budget_columns(cal: &Calibration, uncertainty: &Uncertainty, counts: &[f64]) 
             counts: cal.counts_for(dbm),
             given: false,
             budget: Some(uncertainty.budget(dbm, None)),
+            flags: Flags::empty(),
         }
     });
-    let bounds = Flags::BELOW_SPAN | Flags::ABOVE_SPAN | Flags::ADC_CLIP;
+    let bounds = Flags::BELOW_SPAN | Flags::ABOVE_SPAN | Flags::ADC_CLIP | Flags::OVER_FULL_SCALE;
     let given = counts.iter().map(|&c| {
         let reading = cal.reading(c);
         let inside = !reading.flags.intersects(bounds);
@@ -89,6 +120,7 @@ fn budget_columns(cal: &Calibration, uncertainty: &Uncertainty, counts: &[f64]) 
             counts: c,
             given: true,
             budget: inside.then(|| uncertainty.budget(reading.dbm, None)),
+            flags: reading.flags,
         }
     });
     across.chain(given).collect()
@@ -96,7 +128,7 @@ fn budget_columns(cal: &Calibration, uncertainty: &Uncertainty, counts: &[f64]) 
 
 /// Why a term is not in the budget: the `[uncertainty]` keys it needs that the profile
 /// lacks, or why no input can give it here.
-fn why_missing(kind: TermKind, profile: &Profile) -> String {
+fn why_missing(kind: TermKind, profile: &Profile, hz: f64) -> String {
     let inputs = &profile.uncertainty;
     let reason = match kind {
         TermKind::Noise => {
@@ -119,10 +151,13 @@ fn why_missing(kind: TermKind, profile: &Profile) -> String {
                 inputs.front_gamma.is_some() || inputs.detector_gamma.is_some(),
             ),
         ]),
-        TermKind::FrequencyInterpolation => profile
-            .frequency_correction
-            .is_none()
-            .then(|| "the profile has no frequency correction".to_string()),
+        TermKind::FrequencyInterpolation => Some(match &profile.frequency_correction {
+            None => "the profile has no frequency correction".to_string(),
+            Some(_) => format!(
+                "{} is outside the table: its end value is used, error unknown",
+                dbtrail::units::format_frequency(hz)
+            ),
+        }),
         TermKind::Quantisation | TermKind::Model => None,
     };
     reason.unwrap_or_else(|| "not computed yet".into())
@@ -217,7 +252,7 @@ fn budget_text(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Stri
     out.push_str("  Not included:\n");
     let reasons: Vec<(TermKind, String)> = missing
         .iter()
-        .map(|&kind| (kind, why_missing(kind, profile)))
+        .map(|&kind| (kind, why_missing(kind, profile, cal.freq_hz())))
         .collect();
     for (kind, why) in &reasons {
         let _ = writeln!(out, "    {:<24}{why}", TermKind::label(*kind));
@@ -225,12 +260,32 @@ fn budget_text(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Stri
     if reasons.iter().any(|(_, why)| why.contains("_swr`")) {
         out.push_str("    (any `_swr` may be given as `_return_loss` instead)\n");
     }
+    let mut label = "not modelled";
+    for line in wrapped(NOT_MODELLED, 70) {
+        let _ = writeln!(out, "    {label:<24}{line}");
+        label = "";
+    }
     out
+}
+
+/// `text` broken at spaces into lines of at most `width` characters.
+fn wrapped(text: &str, width: usize) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    for word in text.split_whitespace() {
+        match lines.last_mut() {
+            Some(line) if line.chars().count() + 1 + word.chars().count() <= width => {
+                line.push(' ');
+                line.push_str(word);
+            }
+            _ => lines.push(word.to_string()),
+        }
+    }
+    lines
 }
 
 fn budget_block(title: &str, columns: &[&Column]) -> String {
     let mut out = format!("  {title}\n");
-    out.push_str(&row("level, dBm", columns, |c| format!("{:+.2}", c.dbm)));
+    out.push_str(&row("level, dBm", columns, level_cell));
     out.push_str(&row("counts", columns, |c| format!("{:.1}", c.counts)));
     for kind in TermKind::ALL {
         let name = kind.label();
@@ -250,7 +305,10 @@ fn budget_block(title: &str, columns: &[&Column]) -> String {
         budget_cell(c, |b| format!("±{:.3}", b.expanded_db()))
     }));
     if columns.iter().any(|c| c.budget.is_none()) {
-        out.push_str("    (-: outside the span or at clip, so the level is a bound)\n");
+        out.push_str(
+            "    (-: no uncertainty, the level is a bound: ≥ at clip or above the span,\n     \
+             ≤ below it; over-FS: counts over the ADC's full scale)\n",
+        );
     }
     out
 }
@@ -290,12 +348,12 @@ fn json_object(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Valu
         let terms: Vec<Value> = budget
             .terms
             .iter()
-            .map(|t| json!({ "term": TermKind::key(t.kind), "u_db": t.u_db }))
+            .map(|t| json!({ "term": TermKind::key(t.kind), "standard_u_db": t.u_db }))
             .collect();
         let missing: Vec<Value> = budget
             .missing
             .iter()
-            .map(|&k| json!({ "term": TermKind::key(k), "why": why_missing(k, profile) }))
+            .map(|&k| json!({ "term": TermKind::key(k), "why": why_missing(k, profile, hz) }))
             .collect();
         Some(json!({
             "terms": terms,
@@ -309,7 +367,14 @@ fn json_object(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Valu
         columns
             .iter()
             .filter(|c| c.given == given)
-            .map(|c| json!({ "dbm": c.dbm, "counts": c.counts, "budget": budget_json(c) }))
+            .map(|c| {
+                json!({
+                    "dbm": c.dbm,
+                    "bound": bound_key(c.flags),
+                    "counts": c.counts,
+                    "budget": budget_json(c),
+                })
+            })
             .collect()
     };
     json!({
@@ -317,6 +382,7 @@ fn json_object(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Valu
         "valid": true,
         "freq_hz": hz,
         "frequency_correction": correction,
+        "not_modelled": NOT_MODELLED,
         "across_span": levels(false),
         "counts_given": levels(true),
     })
@@ -344,19 +410,24 @@ mod tests {
             ],
             missing: vec![TermKind::Offset],
         };
-        let text = budget_block("t", &[&at_minus_five(Some(budget)), &at_minus_five(None)]);
+        let below = Column {
+            flags: Flags::BELOW_SPAN,
+            ..at_minus_five(None)
+        };
+        let text = budget_block("t", &[&at_minus_five(Some(budget)), &below]);
         let lines: Vec<&str> = text.lines().collect();
         assert_eq!(
             lines,
             [
                 "  t",
-                "    level, dBm                  -5.00    -5.00",
+                "    level, dBm                  -5.00   ≤-5.00",
                 "    counts                       12.0     12.0",
                 "    ADC quantisation            0.300        -",
                 "    calibration source          0.400        -",
                 "    combined                    0.500        -",
                 "    expanded, k = 2            ±1.000        -",
-                "    (-: outside the span or at clip, so the level is a bound)",
+                "    (-: no uncertainty, the level is a bound: ≥ at clip or above the span,",
+                "     ≤ below it; over-FS: counts over the ADC's full scale)",
             ]
         );
     }
@@ -367,6 +438,7 @@ mod tests {
             counts: 12.0,
             given: false,
             budget,
+            flags: Flags::empty(),
         }
     }
 

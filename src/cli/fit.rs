@@ -99,22 +99,25 @@ fn weighting_note(profile: &Profile) -> String {
     let how = match fit.weighting {
         Weighting::Absolute => "weighted by each point's std_counts/√samples",
         Weighting::Relative => {
-            "weighted by each point's std_counts (no samples column, so only relative weights)"
+            "weighted by each point's std_counts only (some points lack `samples`,\n\
+             so the weights are relative)"
         }
         Weighting::Unweighted => {
-            "unweighted (give std_counts and samples for every point to weight it)"
+            return "\nFit unweighted: the scatter of the points sets the model's uncertainty\n\
+                    (give std_counts and samples for every point to weight it).\n"
+                .into()
         }
     };
     let verdict = match (fit.weighting, fit.residual_term) {
         (Weighting::Absolute, false) => "the scatter is what the stated noise explains",
         (Weighting::Absolute, true) => {
-            "more scatter than the stated noise explains: the model's uncertainty is widened \
-             by the residuals (re-measure, or check that the model suits the detector)"
+            "more scatter than the stated noise explains:\nthe model's uncertainty is widened \
+             by the residuals (re-measure, or check that the model\nsuits the detector)"
         }
         _ => "the scatter sets the model's uncertainty",
     };
     format!(
-        "\nFit {how}; χ²/(n − 2) = {:.3} over {} degrees of freedom: {verdict}.\n",
+        "\nFit {how};\nχ²/(n − 2) = {:.3} over {} degrees of freedom: {verdict}.\n",
         fit.reduced_chi2, fit.dof
     )
 }

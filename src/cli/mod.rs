@@ -166,7 +166,11 @@ pub fn parse_duration_arg(text: &str) -> Result<std::time::Duration, String> {
 /// clap adapter for ADC counts: a finite number, fractional for an average.
 pub fn parse_counts_arg(text: &str) -> Result<f64, String> {
     match text.trim().parse::<f64>() {
-        Ok(v) if v.is_finite() => Ok(v),
+        Ok(v) if v.is_finite() && v >= 0.0 => Ok(v),
+        Ok(v) if v < 0.0 => Err(format!(
+            "`{text}` is below zero, and an ADC never gives negative counts; give counts \
+             such as 1234 or 1234.5"
+        )),
         _ => Err(format!(
             "`{text}` is not a number of ADC counts; give counts such as 1234 or 1234.5"
         )),

@@ -100,6 +100,9 @@ impl FitCovariance {
 /// r² interpolated linearly in level between the two points around `dbm`, held at the
 /// end points' value beyond them.
 fn squared_residual_at(residuals: &[(f64, f64)], dbm: f64) -> f64 {
+    if !dbm.is_finite() || residuals.is_empty() {
+        return f64::NAN;
+    }
     let squared = |i: usize| residuals[i].1 * residuals[i].1;
     let last = residuals.len() - 1;
     if dbm <= residuals[0].0 {

@@ -644,6 +644,13 @@ fn check_points(
                 ),
             );
         }
+        if point.samples == Some(0) {
+            check.fail(
+                path.at(i).then("samples"),
+                "a point is the mean of at least one sample; give how many were averaged \
+                 (1 or more), or leave `samples` out",
+            );
+        }
         let dbm = level.map(|level| level.power(ohms).dbm());
         if let Some(dbm) = dbm.filter(|dbm| !(LEVEL_DBM.lo..=LEVEL_DBM.hi).contains(dbm)) {
             check.fail(
