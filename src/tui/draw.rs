@@ -185,16 +185,24 @@ pub fn plusminus_db(u_db: f64) -> String {
 
 /// An expanded uncertainty in dB as a percentage of a power (`per_decade` 10) or a
 /// voltage (20): the wider of its two sides, 10^(U/per_decade) − 1, since +U dB is more
-/// per cent than −U dB; rounded up to two significant digits (one from 10 %).
+/// per cent than −U dB. It is worked from the dB figure as [`plusminus_db`] shows it
+/// (rounded up), so the pair on the screen agree, and rounded up to two significant
+/// digits (one from 10 %).
 pub fn plusminus_percent(u_db: f64, per_decade: f64) -> String {
-    let percent = (10f64.powf(u_db / per_decade) - 1.0) * 100.0;
-    let digits = if percent < 1.0 {
-        2
-    } else if percent < 10.0 {
-        1
-    } else {
-        0
+    let shown_db = round_up(u_db, 2);
+    let percent = (10f64.powf(shown_db / per_decade) - 1.0) * 100.0;
+    let digits_for = |p: f64| {
+        if p < 1.0 {
+            2
+        } else if p < 10.0 {
+            1
+        } else {
+            0
+        }
     };
+    // Rounding up can carry into the next decade (9.95 % to 10.0 %), which takes one
+    // digit fewer.
+    let digits = digits_for(round_up(percent, digits_for(percent)));
     format!("±{:.digits$} %", round_up(percent, digits))
 }
 

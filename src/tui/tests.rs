@@ -526,6 +526,8 @@ fn in_watts_and_volts_the_uncertainty_is_a_percentage() {
     alternating(&mut app);
     let u = alternating_budget().expanded_db();
     keys(&mut app, "u");
+    // The percentage is that of the dB figure shown, rounded up.
+    let u = shown_up(u, 2).parse::<f64>().unwrap();
     let power = (10f64.powf(u / 10.0) - 1.0) * 100.0;
     let lines = screen(&app, 100, 30);
     assert!(
@@ -708,7 +710,44 @@ fn a_tiny_uncertainty_shows_as_the_last_digit_not_as_zero() {
     assert_eq!(plusminus_db(0.003), "±0.01 dB");
     assert_eq!(plusminus_db(0.26), "±0.26 dB");
     assert_eq!(plusminus_db(0.2601), "±0.27 dB");
-    // 10^(0.26/10) − 1 = 6.1705 %; 10^(0.001/20) − 1 = 0.0115 %.
+    // 10^(0.26/10) − 1 = 6.1705 %; 0.001 dB shows as ±0.01 dB, whose percentage is
+    // 10^(0.01/20) − 1 = 0.1152 %.
     assert_eq!(plusminus_percent(0.26, 10.0), "±6.2 %");
-    assert_eq!(plusminus_percent(0.001, 20.0), "±0.02 %");
+    assert_eq!(plusminus_percent(0.001, 20.0), "±0.12 %");
+}
+
+/// The screen frozen on +10 dBm with a budget whose expanded uncertainty is `u_db`.
+fn frozen_with_uncertainty(u_db: f64) -> App {
+    use super::app::Frozen;
+    use dbtrail::uncertainty::{Term, TermKind};
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    let budget = Budget {
+        terms: vec![Term {
+            kind: TermKind::Model,
+            u_db: u_db / dbtrail::uncertainty::COVERAGE_K,
+        }],
+        missing: Vec::new(),
+    };
+    app.frozen = Some(Frozen {
+        shown: Shown::Level(10.0),
+        plusminus: Plusminus::Budget(budget),
+    });
+    app
+}
+
+// Source: dB to ratios (common practice) worked by hand: a budget of 0.403 dB shows as
+// ±0.41 dB (rounded up), and the percentage beside it must be that figure's:
+// 10^(0.041) − 1 = 9.90 % of a power, rounded up at its second digit 10 %;
+// 10^(0.0205) − 1 = 4.83 % of a voltage, 4.9 %. From the unrounded 0.403 dB they were
+// 9.72 % and 4.75 %, shown as ±9.8 % and ±4.8 % beside ±0.41 dB.
+#[test]
+fn the_percentage_in_watts_is_that_of_the_rounded_up_db_figure_beside_it() {
+    let mut app = frozen_with_uncertainty(0.403);
+    keys(&mut app, "u");
+    let lines = screen(&app, 100, 30);
+    assert!(lines[2].contains("±10 % · ±0.41 dB"), "{lines:#?}");
+    keys(&mut app, "u");
+    let lines = screen(&app, 100, 30);
+    assert!(lines[2].contains("±4.9 % · ±0.41 dB"), "{lines:#?}");
 }
