@@ -140,7 +140,10 @@ pub fn main_text(app: &App) -> (String, String) {
     match app.shown() {
         Shown::Waiting => (String::new(), "waiting for samples".into()),
         Shown::Below(lo) => (String::new(), format!("below {lo:+.2} dBm")),
-        Shown::Clipped(at) => (String::new(), format!("at least {at:+.2} dBm (ADC clip)")),
+        Shown::AtLeast(at, why) => (
+            String::new(),
+            format!("at least {at:+.2} dBm ({})", why.reason()),
+        ),
         Shown::Level(dbm) => in_units(app, dbm, app.units),
     }
 }
@@ -225,7 +228,6 @@ fn beside(app: &App) -> Beside {
     let budget = match app.plusminus() {
         Plusminus::Waiting => return Beside::default(),
         Plusminus::Bound => return marker("· a bound, no ±"),
-        Plusminus::AboveSpan => return marker("no ±: readings above the calibrated span"),
         Plusminus::OverFullScale => return marker("no ±: counts over ADC full scale"),
         Plusminus::Budget(budget) => budget,
     };
@@ -304,11 +306,14 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
     let beside = beside(app);
     let style = reading_style(app);
     let style = match app.shown() {
-        Shown::Below(_) | Shown::Clipped(_) => style.patch(paint(app, Color::Yellow, None)),
+        Shown::Below(_) | Shown::AtLeast(..) => style.patch(paint(app, Color::Yellow, None)),
         _ => style,
     };
     let frozen = if app.frozen.is_some() {
         "  [frozen]"
+    } else if !matches!(app.shown(), Shown::Level(_)) {
+        // A bound is not a value that could settle.
+        ""
     } else if app.is_settled() {
         "  ● settled"
     } else {
@@ -320,7 +325,11 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         } else {
             format!(" {}", beside.figure)
         };
-        let text = format!(" {number} {unit}{figure}{frozen}");
+        let mut text = format!(" {number} {unit}{figure}{frozen}");
+        if number.is_empty() && text.chars().count() > usize::from(area.width) {
+            // A bound's phrase says it is one; the reason matters more than the marker.
+            text = format!(" {unit}{frozen}");
+        }
         let row = Rect {
             y: area.y + area.height.saturating_sub(1) / 2,
             height: 1,
@@ -416,7 +425,7 @@ fn level_bar(app: &App, bar: Rect, markers: Rect, buf: &mut Buffer) {
     buf.set_string(bar.x, bar.y, &left, Style::new());
     buf.set_string(x0 + width, bar.y, &right, Style::new());
     let level = match app.shown() {
-        Shown::Level(v) | Shown::Clipped(v) => Some(v),
+        Shown::Level(v) | Shown::AtLeast(v, _) => Some(v),
         Shown::Below(_) | Shown::Waiting => None,
     };
     let fill = level.map_or(0.0, |v| bar_position(v, span, width));
