@@ -484,14 +484,23 @@ impl App {
 
     fn tick(&mut self, now: f64) -> Vec<Command> {
         self.now = self.now.max(now);
-        if let Shown::Level(dbm) = self.live_shown() {
-            self.settle.push(self.now, dbm);
-            // A window just started holds a few readings whose noise is barely averaged:
-            // their maximum would stand well above the level.
-            if self.averager.is_full(self.now) {
-                self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+        match self.live_shown() {
+            Shown::Level(dbm) => {
+                self.settle.push(self.now, dbm);
+                // A window just started holds a few readings whose noise is barely
+                // averaged: their maximum would stand well above the level.
+                if self.averager.is_full(self.now) {
+                    self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+                }
             }
+            // Settled counts from the first value shown after a bound, not from before it.
+            _ => self.settle.clear(),
         }
+        self.tick_counters()
+    }
+
+    /// The measured rate and the warnings' hold, on every frame.
+    fn tick_counters(&mut self) -> Vec<Command> {
         let (t0, n0) = self.rate_mark;
         if self.now - t0 >= 1.0 {
             self.rate = (self.link.samples.saturating_sub(n0)) as f64 / (self.now - t0);

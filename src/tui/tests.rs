@@ -851,3 +851,27 @@ fn a_mean_over_a_window_holding_a_reading_above_the_span_is_an_at_least_bound() 
     };
     assert!((dbm - 10.0).abs() < 1e-9, "{dbm}");
 }
+
+// Source: the rule in docs/screen.md: settled means the shown value has stayed within
+// 0.1 dB for a second. After a burst at clip, a fifth of a second of readings back at
+// +10 dBm (HAND_PROFILE, 1500 counts) is not a second of them: before, the screen said
+// settled at once, going by the values shown before the burst.
+#[test]
+fn after_a_bound_the_reading_is_not_settled_until_a_second_of_values() {
+    let mut app = app();
+    settled_at_ten_dbm(&mut app, 3.0);
+    sample(&mut app, 3.0, 4090);
+    app.update(AppEvent::Tick { now: 3.04 });
+    for i in 1..=16 {
+        let t = 3.0 + f64::from(i) * 0.0125;
+        sample(&mut app, t, 1500);
+        app.update(AppEvent::Tick { now: t });
+    }
+    assert!(has(&screen(&app, 100, 30), "○ settling"));
+    for i in 1..=30 {
+        let t = 3.2 + f64::from(i) * 0.04;
+        sample(&mut app, t, 1500);
+        app.update(AppEvent::Tick { now: t });
+    }
+    assert!(has(&screen(&app, 100, 30), "● settled"));
+}
