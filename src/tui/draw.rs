@@ -469,8 +469,12 @@ fn holds_line(app: &App) -> String {
 }
 
 fn peak_line(app: &App) -> String {
-    let (Some(best), Shown::Level(now)) = (app.best_dbm, app.shown()) else {
-        return "  peak   waiting for a valid reading".into();
+    let (best, now) = match (app.best_dbm, app.shown()) {
+        (Some(best), Shown::Level(now)) => (best, now),
+        (Some(best), Shown::Below(_) | Shown::AtLeast(..)) => {
+            return format!("  peak   best {best:+.2} dBm   now a bound, not compared");
+        }
+        _ => return "  peak   waiting for a valid reading".into(),
     };
     let direction = match app.change_over_last_second() {
         Some(d) if d > 0.05 => format!("rising {d:+.2} dB/s"),

@@ -875,3 +875,21 @@ fn after_a_bound_the_reading_is_not_settled_until_a_second_of_values() {
     }
     assert!(has(&screen(&app, 100, 30), "● settled"));
 }
+
+// Source: the rule in docs/screen.md ("Peak"): the best since the reset stands until `r`;
+// a bound is not compared with it. Before, during a burst at clip the peak line said
+// "waiting for a valid reading", as if there had never been a best (+10.00 dBm here,
+// HAND_PROFILE, 1500 counts).
+#[test]
+fn during_a_bound_the_peak_line_keeps_the_best_and_says_now_is_a_bound() {
+    let mut app = app();
+    settled_at_ten_dbm(&mut app, 3.0);
+    sample(&mut app, 3.0, 4090);
+    app.update(AppEvent::Tick { now: 3.04 });
+    let lines = screen(&app, 100, 30);
+    let peak = lines.iter().find(|l| l.contains("peak")).unwrap();
+    assert!(
+        peak.contains("best +10.00 dBm   now a bound, not compared"),
+        "{lines:#?}"
+    );
+}
