@@ -10,7 +10,7 @@ use dbtrail::calibration::{Calibration, Flags, Reading};
 use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::Profile;
 use dbtrail::record::Event;
-use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend};
+use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend, NOT_A_VALUE};
 use dbtrail::uncertainty::{Budget, Uncertainty};
 use dbtrail::units::{parse_db, parse_frequency};
 
@@ -103,8 +103,32 @@ pub enum Shown {
     Level(f64),
     /// Below the calibrated span, whose low end is given.
     Below(f64),
-    /// At ADC clip: at least this level.
-    Clipped(f64),
+    /// At least this level, dBm, and why it is a bound: as the recorder counts them, a
+    /// reading at clip or above the span at its own level or the span's top, whichever
+    /// is lower, and a mean over readings some of which were counted so.
+    AtLeast(f64, Ceiling),
+}
+
+/// Why a reading is only a level the true one is at least.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Ceiling {
+    /// The last reading was at ADC clip.
+    AdcClip,
+    /// The last reading was above the calibrated span.
+    AboveSpan,
+    /// The averaging window holds readings above the span, counted at its top.
+    WindowAboveSpan,
+}
+
+impl Ceiling {
+    /// Why, as the screen says it.
+    pub fn reason(self) -> &'static str {
+        match self {
+            Ceiling::AdcClip => "ADC clip",
+            Ceiling::AboveSpan => "above the calibrated span",
+            Ceiling::WindowAboveSpan => "window has readings above the span",
+        }
+    }
 }
 
 /// The ± beside the main reading, or why there is none.
@@ -112,11 +136,9 @@ pub enum Shown {
 pub enum Plusminus {
     /// No reading yet.
     Waiting,
-    /// The reading is a bound (below the span, at ADC clip): a bound has no uncertainty.
+    /// The reading is a bound (below the span, above it, at ADC clip, or a mean over
+    /// readings above it): a bound has no uncertainty.
     Bound,
-    /// The averaging window holds readings above the calibrated span, where the model is
-    /// read beyond its points: not a value with a budget.
-    AboveSpan,
     /// Counts over the ADC's full scale came within the warnings' hold time: the samples
     /// around them are not to be trusted.
     OverFullScale,
@@ -328,11 +350,10 @@ impl App {
     fn live_plusminus(&self) -> Plusminus {
         match self.live_shown() {
             Shown::Waiting => Plusminus::Waiting,
-            Shown::Below(_) | Shown::Clipped(_) => Plusminus::Bound,
+            Shown::Below(_) | Shown::AtLeast(..) => Plusminus::Bound,
             Shown::Level(_) if self.active_warnings().contains(Flags::OVER_FULL_SCALE) => {
                 Plusminus::OverFullScale
             }
-            Shown::Level(_) if self.counts.sums().above_span() > 0 => Plusminus::AboveSpan,
             Shown::Level(dbm) => {
                 Plusminus::Budget(self.uncertainty.budget(dbm, self.counts.noise()))
             }
@@ -340,20 +361,34 @@ impl App {
     }
 
     fn live_shown(&self) -> Shown {
+        let at_least = |dbm: f64, why| Shown::AtLeast(self.counted_dbm(dbm), why);
         match self.last {
             None => Shown::Waiting,
             Some(r) if r.flags.contains(Flags::BELOW_SPAN) => Shown::Below(r.dbm),
-            Some(r) if r.flags.contains(Flags::ADC_CLIP) => Shown::Clipped(r.dbm),
-            Some(_) => self
-                .averager
-                .mean_dbm()
-                .map_or(Shown::Waiting, Shown::Level),
+            Some(r) if r.flags.contains(Flags::ADC_CLIP) => at_least(r.dbm, Ceiling::AdcClip),
+            Some(r) if r.flags.contains(Flags::ABOVE_SPAN) => at_least(r.dbm, Ceiling::AboveSpan),
+            Some(_) => match self.averager.mean_dbm() {
+                None => Shown::Waiting,
+                Some(mean) if self.counts.sums().above_span() > 0 => {
+                    Shown::AtLeast(mean, Ceiling::WindowAboveSpan)
+                }
+                Some(mean) => Shown::Level(mean),
+            },
         }
     }
 
-    /// True when the averaging window is full and the shown value has stopped moving.
+    /// A level past the span's top as the recorder counts it: no higher than the top
+    /// (`CodeEntry::counted_dbm`), since the model read beyond its points says no more.
+    fn counted_dbm(&self, dbm: f64) -> f64 {
+        dbm.min(self.cal.span_dbm().1)
+    }
+
+    /// True when a value is shown (not a bound), the averaging window is full and the
+    /// shown value has stopped moving.
     pub fn is_settled(&self) -> bool {
-        self.averager.is_full(self.now) && self.settle.is_settled(self.now)
+        matches!(self.live_shown(), Shown::Level(_))
+            && self.averager.is_full(self.now)
+            && self.settle.is_settled(self.now)
     }
 
     /// How the shown value moved over the last second, dB.
@@ -427,27 +462,45 @@ impl App {
             self.spread.clear();
             self.counts.clear();
         } else if !reading.flags.contains(Flags::OVER_FULL_SCALE) {
-            self.averager.push(t, &reading);
-            self.spread.push(t, reading.dbm);
+            // Above the span the reading counts at the span's top, as in a log's mean;
+            // the window then says it holds such a reading, and the mean is a bound.
+            let counted = Reading {
+                dbm: self.counted_dbm(reading.dbm),
+                ..reading
+            };
+            self.averager.push(t, &counted);
+            self.spread.push(t, counted.dbm);
             self.counts
                 .push(t, code, reading.flags.contains(Flags::ABOVE_SPAN));
         }
-        self.holds.add(&reading);
-        for trend in &mut self.trends {
-            trend.push(t, &reading);
+        // The holds and the trend keep values only; a bound is not a level reached.
+        if !reading.flags.intersects(NOT_A_VALUE | Flags::ABOVE_SPAN) {
+            self.holds.add(&reading);
+            for trend in &mut self.trends {
+                trend.push(t, &reading);
+            }
         }
     }
 
     fn tick(&mut self, now: f64) -> Vec<Command> {
         self.now = self.now.max(now);
-        if let Shown::Level(dbm) = self.live_shown() {
-            self.settle.push(self.now, dbm);
-            // A window just started holds a few readings whose noise is barely averaged:
-            // their maximum would stand well above the level.
-            if self.averager.is_full(self.now) {
-                self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+        match self.live_shown() {
+            Shown::Level(dbm) => {
+                self.settle.push(self.now, dbm);
+                // A window just started holds a few readings whose noise is barely
+                // averaged: their maximum would stand well above the level.
+                if self.averager.is_full(self.now) {
+                    self.best_dbm = Some(self.best_dbm.map_or(dbm, |b| b.max(dbm)));
+                }
             }
+            // Settled counts from the first value shown after a bound, not from before it.
+            _ => self.settle.clear(),
         }
+        self.tick_counters()
+    }
+
+    /// The measured rate and the warnings' hold, on every frame.
+    fn tick_counters(&mut self) -> Vec<Command> {
         let (t0, n0) = self.rate_mark;
         if self.now - t0 >= 1.0 {
             self.rate = (self.link.samples.saturating_sub(n0)) as f64 / (self.now - t0);

@@ -140,7 +140,10 @@ pub fn main_text(app: &App) -> (String, String) {
     match app.shown() {
         Shown::Waiting => (String::new(), "waiting for samples".into()),
         Shown::Below(lo) => (String::new(), format!("below {lo:+.2} dBm")),
-        Shown::Clipped(at) => (String::new(), format!("at least {at:+.2} dBm (ADC clip)")),
+        Shown::AtLeast(at, why) => (
+            String::new(),
+            format!("at least {at:+.2} dBm ({})", why.reason()),
+        ),
         Shown::Level(dbm) => in_units(app, dbm, app.units),
     }
 }
@@ -185,16 +188,24 @@ pub fn plusminus_db(u_db: f64) -> String {
 
 /// An expanded uncertainty in dB as a percentage of a power (`per_decade` 10) or a
 /// voltage (20): the wider of its two sides, 10^(U/per_decade) − 1, since +U dB is more
-/// per cent than −U dB; rounded up to two significant digits (one from 10 %).
+/// per cent than −U dB. It is worked from the dB figure as [`plusminus_db`] shows it
+/// (rounded up), so the pair on the screen agree, and rounded up to two significant
+/// digits (one from 10 %).
 pub fn plusminus_percent(u_db: f64, per_decade: f64) -> String {
-    let percent = (10f64.powf(u_db / per_decade) - 1.0) * 100.0;
-    let digits = if percent < 1.0 {
-        2
-    } else if percent < 10.0 {
-        1
-    } else {
-        0
+    let shown_db = round_up(u_db, 2);
+    let percent = (10f64.powf(shown_db / per_decade) - 1.0) * 100.0;
+    let digits_for = |p: f64| {
+        if p < 1.0 {
+            2
+        } else if p < 10.0 {
+            1
+        } else {
+            0
+        }
     };
+    // Rounding up can carry into the next decade (9.95 % to 10.0 %), which takes one
+    // digit fewer.
+    let digits = digits_for(round_up(percent, digits_for(percent)));
     format!("±{:.digits$} %", round_up(percent, digits))
 }
 
@@ -217,7 +228,6 @@ fn beside(app: &App) -> Beside {
     let budget = match app.plusminus() {
         Plusminus::Waiting => return Beside::default(),
         Plusminus::Bound => return marker("· a bound, no ±"),
-        Plusminus::AboveSpan => return marker("no ±: readings above the calibrated span"),
         Plusminus::OverFullScale => return marker("no ±: counts over ADC full scale"),
         Plusminus::Budget(budget) => budget,
     };
@@ -296,11 +306,14 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
     let beside = beside(app);
     let style = reading_style(app);
     let style = match app.shown() {
-        Shown::Below(_) | Shown::Clipped(_) => style.patch(paint(app, Color::Yellow, None)),
+        Shown::Below(_) | Shown::AtLeast(..) => style.patch(paint(app, Color::Yellow, None)),
         _ => style,
     };
     let frozen = if app.frozen.is_some() {
         "  [frozen]"
+    } else if !matches!(app.shown(), Shown::Level(_)) {
+        // A bound is not a value that could settle.
+        ""
     } else if app.is_settled() {
         "  ● settled"
     } else {
@@ -312,7 +325,11 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         } else {
             format!(" {}", beside.figure)
         };
-        let text = format!(" {number} {unit}{figure}{frozen}");
+        let mut text = format!(" {number} {unit}{figure}{frozen}");
+        if number.is_empty() && text.chars().count() > usize::from(area.width) {
+            // A bound's phrase says it is one; the reason matters more than the marker.
+            text = format!(" {unit}{frozen}");
+        }
         let row = Rect {
             y: area.y + area.height.saturating_sub(1) / 2,
             height: 1,
@@ -408,7 +425,7 @@ fn level_bar(app: &App, bar: Rect, markers: Rect, buf: &mut Buffer) {
     buf.set_string(bar.x, bar.y, &left, Style::new());
     buf.set_string(x0 + width, bar.y, &right, Style::new());
     let level = match app.shown() {
-        Shown::Level(v) | Shown::Clipped(v) => Some(v),
+        Shown::Level(v) | Shown::AtLeast(v, _) => Some(v),
         Shown::Below(_) | Shown::Waiting => None,
     };
     let fill = level.map_or(0.0, |v| bar_position(v, span, width));
@@ -452,8 +469,12 @@ fn holds_line(app: &App) -> String {
 }
 
 fn peak_line(app: &App) -> String {
-    let (Some(best), Shown::Level(now)) = (app.best_dbm, app.shown()) else {
-        return "  peak   waiting for a valid reading".into();
+    let (best, now) = match (app.best_dbm, app.shown()) {
+        (Some(best), Shown::Level(now)) => (best, now),
+        (Some(best), Shown::Below(_) | Shown::AtLeast(..)) => {
+            return format!("  peak   best {best:+.2} dBm   now a bound, not compared");
+        }
+        _ => return "  peak   waiting for a valid reading".into(),
     };
     let direction = match app.change_over_last_second() {
         Some(d) if d > 0.05 => format!("rising {d:+.2} dB/s"),

@@ -526,6 +526,8 @@ fn in_watts_and_volts_the_uncertainty_is_a_percentage() {
     alternating(&mut app);
     let u = alternating_budget().expanded_db();
     keys(&mut app, "u");
+    // The percentage is that of the dB figure shown, rounded up.
+    let u = shown_up(u, 2).parse::<f64>().unwrap();
     let power = (10f64.powf(u / 10.0) - 1.0) * 100.0;
     let lines = screen(&app, 100, 30);
     assert!(
@@ -546,15 +548,16 @@ fn in_watts_and_volts_the_uncertainty_is_a_percentage() {
 }
 
 // Source: the rule in docs/screen.md — a bound has no uncertainty: below the span, at
-// clip, above the span (while the window holds such a reading) and while counts over
-// full scale come, no ± figure is shown. HAND_PROFILE: 400 counts are below its span,
+// clip, above the span (and a mean over a window holding such a reading) and while counts
+// over full scale come, no ± figure is shown (on one line at 60×20 a long reason leaves no
+// room for the words that say so; "at least" says it). HAND_PROFILE: 400 counts are below its span,
 // 2100 above it (+4 dBm at the detector), 4090 at clip, 5000 over the 12-bit full scale.
 #[test]
 fn a_bound_reading_shows_no_uncertainty() {
     for (counts, marker) in [
         (400, "a bound, no ±"),
         (4090, "a bound, no ±"),
-        (2100, "no ±: readings above the calibrated span"),
+        (2100, "at least +30.00 dBm (above the calibrated span)"),
         (5000, "no ±: counts over ADC full scale"),
     ] {
         let mut app = app();
@@ -569,15 +572,16 @@ fn a_bound_reading_shows_no_uncertainty() {
     }
 }
 
-// Source: the rule in docs/screen.md — the ± comes back once the window no longer holds
-// a reading above the span: after 16 readings in the span with 16-sample averaging.
+// Source: the rule in docs/screen.md — a mean over a window holding a reading above the
+// span is a bound, and the ± comes back once the window no longer holds one: after 16
+// readings in the span with 16-sample averaging.
 #[test]
 fn the_uncertainty_returns_when_the_reading_above_the_span_leaves_the_window() {
     let mut app = app();
     sample(&mut app, 0.0, 2100);
     for i in 1..16 {
         sample(&mut app, f64::from(i) * 0.01, 1500);
-        assert_eq!(app.plusminus(), Plusminus::AboveSpan, "after {i}");
+        assert_eq!(app.plusminus(), Plusminus::Bound, "after {i}");
     }
     sample(&mut app, 0.2, 1500);
     assert!(shows_a_figure(&screen(&app, 100, 30)));
@@ -708,7 +712,184 @@ fn a_tiny_uncertainty_shows_as_the_last_digit_not_as_zero() {
     assert_eq!(plusminus_db(0.003), "±0.01 dB");
     assert_eq!(plusminus_db(0.26), "±0.26 dB");
     assert_eq!(plusminus_db(0.2601), "±0.27 dB");
-    // 10^(0.26/10) − 1 = 6.1705 %; 10^(0.001/20) − 1 = 0.0115 %.
+    // 10^(0.26/10) − 1 = 6.1705 %; 0.001 dB shows as ±0.01 dB, whose percentage is
+    // 10^(0.01/20) − 1 = 0.1152 %.
     assert_eq!(plusminus_percent(0.26, 10.0), "±6.2 %");
-    assert_eq!(plusminus_percent(0.001, 20.0), "±0.02 %");
+    assert_eq!(plusminus_percent(0.001, 20.0), "±0.12 %");
+}
+
+/// The screen frozen on +10 dBm with a budget whose expanded uncertainty is `u_db`.
+fn frozen_with_uncertainty(u_db: f64) -> App {
+    use super::app::Frozen;
+    use dbtrail::uncertainty::{Term, TermKind};
+    let mut app = app();
+    sample(&mut app, 0.0, 1500);
+    let budget = Budget {
+        terms: vec![Term {
+            kind: TermKind::Model,
+            u_db: u_db / dbtrail::uncertainty::COVERAGE_K,
+        }],
+        missing: Vec::new(),
+    };
+    app.frozen = Some(Frozen {
+        shown: Shown::Level(10.0),
+        plusminus: Plusminus::Budget(budget),
+    });
+    app
+}
+
+// Source: dB to ratios (common practice) worked by hand: a budget of 0.403 dB shows as
+// ±0.41 dB (rounded up), and the percentage beside it must be that figure's:
+// 10^(0.041) − 1 = 9.90 % of a power, rounded up at its second digit 10 %;
+// 10^(0.0205) − 1 = 4.83 % of a voltage, 4.9 %. From the unrounded 0.403 dB they were
+// 9.72 % and 4.75 %, shown as ±9.8 % and ±4.8 % beside ±0.41 dB.
+#[test]
+fn the_percentage_in_watts_is_that_of_the_rounded_up_db_figure_beside_it() {
+    let mut app = frozen_with_uncertainty(0.403);
+    keys(&mut app, "u");
+    let lines = screen(&app, 100, 30);
+    assert!(lines[2].contains("±10 % · ±0.41 dB"), "{lines:#?}");
+    keys(&mut app, "u");
+    let lines = screen(&app, 100, 30);
+    assert!(lines[2].contains("±4.9 % · ±0.41 dB"), "{lines:#?}");
+}
+
+/// Sixteen readings of +10 dBm (1500 counts, HAND_PROFILE) over 1.5 s, each followed by a
+/// frame, and frames on to `until` seconds: a full window that has settled.
+fn settled_at_ten_dbm(app: &mut App, until: f64) {
+    for i in 0..16 {
+        let t = f64::from(i) * 0.1;
+        sample(app, t, 1500);
+        app.update(AppEvent::Tick { now: t });
+    }
+    app.update(AppEvent::Tick { now: until });
+}
+
+// Source: the recorder's rule in docs/recording.md ("Bounds"): a clipped sample counts at
+// its own level or the span's top, whichever is lower, as an at-least bound. Worked by
+// hand (HAND_PROFILE): the span tops out at its 0 dBm point, +30 dBm at the reference
+// plane; 4090 counts (clipped) read 4090/25 − 50 = +113.60 dBm off the model, so the
+// screen says at least +30.00 dBm. Before, it said at least +113.60 dBm.
+#[test]
+fn a_clipped_reading_is_at_least_the_span_top_as_in_the_log() {
+    let mut app = app();
+    sample(&mut app, 0.0, 4090);
+    for (width, height) in [(100, 30), (60, 20)] {
+        let lines = screen(&app, width, height);
+        assert!(
+            has(&lines, "at least +30.00 dBm (ADC clip)"),
+            "{width}×{height}: {lines:#?}"
+        );
+        assert!(!has(&lines, "113.6"), "{lines:#?}");
+        assert!(
+            !has(&lines, "settl"),
+            "a bound neither settles nor settling: {lines:#?}"
+        );
+    }
+}
+
+// Source: the recorder's rule in docs/recording.md ("Bounds"): an above-span sample counts
+// at the span's top, at least; and docs/screen.md: the holds and trend keep values only.
+// Worked by hand (HAND_PROFILE): 2100 counts read +34.00 dBm off the model, above the
+// span's top of +30.00 dBm. Before, the screen averaged +34.00 in as a value (the big
+// digits showed a plain number, settled), and the hold and trend took +34.00.
+#[test]
+fn an_above_span_reading_is_an_at_least_bound_and_stays_out_of_holds_and_peak() {
+    let mut app = app();
+    settled_at_ten_dbm(&mut app, 3.0);
+    assert!(has(&screen(&app, 100, 30), "● settled"));
+    sample(&mut app, 3.0, 2100);
+    app.update(AppEvent::Tick { now: 3.04 });
+    for (width, height) in [(100, 30), (60, 20)] {
+        let lines = screen(&app, width, height);
+        assert!(
+            has(&lines, "at least +30.00 dBm (above the calibrated span)"),
+            "{width}×{height}: {lines:#?}"
+        );
+        assert!(!has(&lines, "34.00"), "{lines:#?}");
+        assert!(!has(&lines, "settl"), "{lines:#?}");
+    }
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "a bound, no ±"), "{lines:#?}");
+    assert!(
+        has(&lines, "min +10.00 dBm   max +10.00 dBm"),
+        "the hold keeps values only: {lines:#?}"
+    );
+    assert_eq!(app.best_dbm, Some(10.0));
+}
+
+// Source: the recorder's rule in docs/recording.md ("Bounds"): a mean over samples some of
+// which are bounds is itself a bound. Worked by hand (HAND_PROFILE): a 16-reading window
+// of fifteen at +10 dBm (10 mW) and one above the span counted at its top, +30 dBm
+// (1000 mW), has a mean of 1150/16 = 71.875 mW, +18.57 dBm, at least; once the reading
+// above the span has left the window the mean is a value again, with its ±.
+#[test]
+fn a_mean_over_a_window_holding_a_reading_above_the_span_is_an_at_least_bound() {
+    let mut app = app();
+    settled_at_ten_dbm(&mut app, 3.0);
+    sample(&mut app, 3.0, 2100);
+    sample(&mut app, 3.1, 1500);
+    app.update(AppEvent::Tick { now: 3.1 });
+    let lines = screen(&app, 100, 30);
+    assert!(
+        has(
+            &lines,
+            "at least +18.57 dBm (window has readings above the span)"
+        ),
+        "{lines:#?}"
+    );
+    assert!(!has(&lines, "settl"), "{lines:#?}");
+    assert!(has(&lines, "max +10.00 dBm"), "{lines:#?}");
+    for i in 1..16 {
+        sample(&mut app, 3.1 + f64::from(i) * 0.1, 1500);
+    }
+    let lines = screen(&app, 100, 30);
+    assert!(!has(&lines, "at least"), "{lines:#?}");
+    assert!(shows_a_figure(&lines), "{lines:#?}");
+    let Shown::Level(dbm) = app.shown() else {
+        panic!("{:?}", app.shown())
+    };
+    assert!((dbm - 10.0).abs() < 1e-9, "{dbm}");
+}
+
+// Source: the rule in docs/screen.md: settled means the shown value has stayed within
+// 0.1 dB for a second. After a burst at clip, a fifth of a second of readings back at
+// +10 dBm (HAND_PROFILE, 1500 counts) is not a second of them: before, the screen said
+// settled at once, going by the values shown before the burst.
+#[test]
+fn after_a_bound_the_reading_is_not_settled_until_a_second_of_values() {
+    let mut app = app();
+    settled_at_ten_dbm(&mut app, 3.0);
+    sample(&mut app, 3.0, 4090);
+    app.update(AppEvent::Tick { now: 3.04 });
+    for i in 1..=16 {
+        let t = 3.0 + f64::from(i) * 0.0125;
+        sample(&mut app, t, 1500);
+        app.update(AppEvent::Tick { now: t });
+    }
+    assert!(has(&screen(&app, 100, 30), "○ settling"));
+    for i in 1..=30 {
+        let t = 3.2 + f64::from(i) * 0.04;
+        sample(&mut app, t, 1500);
+        app.update(AppEvent::Tick { now: t });
+    }
+    assert!(has(&screen(&app, 100, 30), "● settled"));
+}
+
+// Source: the rule in docs/screen.md ("Peak"): the best since the reset stands until `r`;
+// a bound is not compared with it. Before, during a burst at clip the peak line said
+// "waiting for a valid reading", as if there had never been a best (+10.00 dBm here,
+// HAND_PROFILE, 1500 counts).
+#[test]
+fn during_a_bound_the_peak_line_keeps_the_best_and_says_now_is_a_bound() {
+    let mut app = app();
+    settled_at_ten_dbm(&mut app, 3.0);
+    sample(&mut app, 3.0, 4090);
+    app.update(AppEvent::Tick { now: 3.04 });
+    let lines = screen(&app, 100, 30);
+    let peak = lines.iter().find(|l| l.contains("peak")).unwrap();
+    assert!(
+        peak.contains("best +10.00 dBm   now a bound, not compared"),
+        "{lines:#?}"
+    );
 }
