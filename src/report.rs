@@ -16,9 +16,11 @@ use soak::{SoakFit, SoakModel};
 
 pub mod allan;
 mod read;
+pub mod reduce;
 pub mod soak;
 
 pub use read::{DBM_RANGE, MAX_ROW_SAMPLES, MAX_TIME_S};
+pub use reduce::Reduction;
 
 /// A log that could not be read, with where and what to do.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -183,6 +185,9 @@ pub struct Run {
     pub rows: Vec<LogRow>,
     /// The `# resumed` lines that continued this run.
     pub resumed_lines: Vec<u64>,
+    /// The width its rows were folded into while read, seconds (see [`Reduction`]); None
+    /// when they are as logged.
+    pub reduced_to_s: Option<f64>,
 }
 
 impl Run {
@@ -201,8 +206,19 @@ pub struct Log {
 }
 
 /// Reads a log written by `record` (or the screen's logging), per interval or per sample,
-/// for `channel` (1 is the first).
+/// for `channel` (1 is the first); a run of more rows than [`reduce::MOST_ROWS`] is folded
+/// into intervals (see [`Reduction`]).
 pub fn read_log(bytes: &[u8], origin: &str, channel: usize) -> Result<Log, LogError> {
+    read_log_folded(bytes, origin, channel, Reduction::default())
+}
+
+/// [`read_log`], its rows folded into intervals as `reduction` says.
+pub fn read_log_folded(
+    bytes: &[u8],
+    origin: &str,
+    channel: usize,
+    reduction: Reduction,
+) -> Result<Log, LogError> {
     let text = std::str::from_utf8(bytes).map_err(|e| LogError::NotText {
         origin: origin.into(),
         line: bytes[..e.valid_up_to()]
@@ -211,7 +227,7 @@ pub fn read_log(bytes: &[u8], origin: &str, channel: usize) -> Result<Log, LogEr
             .count() as u64
             + 1,
     })?;
-    read::read_runs(text, origin, channel)
+    read::read_runs(text, origin, channel, reduction)
 }
 
 fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {
@@ -250,6 +266,9 @@ impl Default for ReportOptions {
 pub struct Report {
     /// Length of the span, seconds.
     pub duration_s: f64,
+    /// The width the log's rows were folded into while read, seconds; null when the
+    /// figures are from the rows as logged.
+    pub reduced_to_s: Option<f64>,
     /// Samples in the span.
     pub samples: u64,
     /// Mean power, dBm (of the mean in watts); null when `mean_bound` is `none`.
@@ -459,6 +478,7 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     };
     Ok(Report {
         duration_s: end - start,
+        reduced_to_s: run.reduced_to_s,
         samples,
         mean_dbm: mean_w.map(watts_to_dbm),
         mean_w,
@@ -627,6 +647,7 @@ mod tests {
             per_sample: false,
             rows,
             resumed_lines: Vec::new(),
+            reduced_to_s: None,
         };
         let outcome = analyse(&run, "huge.csv", &ReportOptions::default());
         assert_eq!(

@@ -6,6 +6,7 @@
 
 use std::time::SystemTime;
 
+use super::reduce::{Folder, Reduction};
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
 use crate::stats::Bound;
 
@@ -73,6 +74,8 @@ struct Current {
     last: Option<(f64, u64)>,
     /// True for the first row of a resumed leg.
     leg_start: bool,
+    /// The run's rows, as logged or folded into intervals.
+    folder: Folder,
 }
 
 struct Reader<'a> {
@@ -82,10 +85,17 @@ struct Reader<'a> {
     done: Vec<Run>,
     current: Current,
     pending: Option<Pending>,
+    reduction: Reduction,
 }
 
-/// Reads every run of `text` for `channel` (1 is the first).
-pub(super) fn read_runs(text: &str, origin: &str, channel: usize) -> Result<Log, LogError> {
+/// Reads every run of `text` for `channel` (1 is the first), folding its rows as
+/// `reduction` says.
+pub(super) fn read_runs(
+    text: &str,
+    origin: &str,
+    channel: usize,
+    reduction: Reduction,
+) -> Result<Log, LogError> {
     if !text.starts_with('#') || !body(text.lines().next().unwrap_or("")).starts_with("dbtrail") {
         return Err(LogError::NotALog {
             origin: origin.into(),
@@ -97,8 +107,9 @@ pub(super) fn read_runs(text: &str, origin: &str, channel: usize) -> Result<Log,
         channel,
         columns: None,
         done: Vec::new(),
-        current: Current::new(1, 1, Vec::new()),
+        current: Current::new(1, 1, Vec::new(), reduction),
         pending: None,
+        reduction,
     };
     let mut csv = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
@@ -176,7 +187,12 @@ impl<'a> Lines<'a> {
 }
 
 impl Current {
-    fn new(number: usize, first_line: u64, context: Vec<(u64, String)>) -> Self {
+    fn new(
+        number: usize,
+        first_line: u64,
+        context: Vec<(u64, String)>,
+        reduction: Reduction,
+    ) -> Self {
         let (context_at, context): (Vec<u64>, Vec<String>) = context.into_iter().unzip();
         Current {
             context_at,
@@ -188,12 +204,14 @@ impl Current {
                 per_sample: false,
                 rows: Vec::new(),
                 resumed_lines: Vec::new(),
+                reduced_to_s: None,
             },
             declared: Declared::Unknown,
             base: None,
             offset: 0.0,
             last: None,
             leg_start: false,
+            folder: Folder::new(reduction, None),
         }
     }
 }
@@ -240,7 +258,8 @@ impl Reader<'_> {
     ) -> Result<(), LogError> {
         if self.columns.is_none() {
             let columns = columns(record, line, self.channel, self.origin)?;
-            self.current.declare(&columns, self.origin)?;
+            self.current
+                .declare(&columns, self.reduction, self.origin)?;
             self.columns = Some(columns);
             return Ok(());
         }
@@ -264,7 +283,7 @@ impl Reader<'_> {
         let mut row = parse_row(record, columns, line, rest, self.origin)?;
         row.t += self.current.offset;
         self.current.check_order(row.t, line, self.origin)?;
-        self.current.run.rows.push(row);
+        self.current.folder.push(row);
         Ok(())
     }
 
@@ -276,9 +295,9 @@ impl Reader<'_> {
         let fresh: Vec<String> = pending.context.iter().map(|(_, l)| l.clone()).collect();
         if changes(&fresh, &run.context) || columns.per_sample != run.per_sample {
             let context = self.current.carried_into(pending.context);
-            let mut next = Current::new(run.number + 1, pending.line, context);
+            let mut next = Current::new(run.number + 1, pending.line, context, self.reduction);
             next.base = next.base.or(pending.stamp);
-            next.declare(columns, self.origin)?;
+            next.declare(columns, self.reduction, self.origin)?;
             let done = std::mem::replace(&mut self.current, next);
             self.done.push(done.finish());
             return Ok(());
@@ -322,7 +341,12 @@ impl Reader<'_> {
 
 impl Current {
     /// Takes the run's spacing from its `#` lines and the columns' format.
-    fn declare(&mut self, columns: &Columns, origin: &str) -> Result<(), LogError> {
+    fn declare(
+        &mut self,
+        columns: &Columns,
+        reduction: Reduction,
+        origin: &str,
+    ) -> Result<(), LogError> {
         self.base = context_value(&self.run.context, "started:")
             .and_then(parse_utc)
             .or(self.base);
@@ -338,6 +362,11 @@ impl Current {
         } else {
             interval_from_context(&self.run.context).map_or(Declared::Unknown, Declared::Interval)
         };
+        let interval = match self.declared {
+            Declared::Interval(s) => Some(s),
+            _ => None,
+        };
+        self.folder = Folder::new(reduction, interval);
         Ok(())
     }
 
@@ -420,13 +449,23 @@ impl Current {
 
     fn finish(self) -> Run {
         let mut run = self.run;
-        run.spacing = match self.declared {
-            Declared::Interval(s) => Spacing::Interval(s),
-            Declared::Rate(r) => Spacing::Rate(r),
-            Declared::Clock => Spacing::Clock(median_clock_step(&run.rows)),
-            Declared::Unknown => Spacing::MedianStep(median_step(&run.rows)),
+        run.reduced_to_s = self.folder.width_s();
+        run.rows = self.folder.into_rows();
+        run.spacing = match (run.reduced_to_s, self.declared) {
+            (Some(width), _) => Spacing::Interval(width),
+            (None, declared) => declared_spacing(declared, &run.rows),
         };
         run
+    }
+}
+
+/// The spacing of rows as logged: as the `#` lines declare it, or judged from the times.
+fn declared_spacing(declared: Declared, rows: &[LogRow]) -> Spacing {
+    match declared {
+        Declared::Interval(s) => Spacing::Interval(s),
+        Declared::Rate(r) => Spacing::Rate(r),
+        Declared::Clock => Spacing::Clock(median_clock_step(rows)),
+        Declared::Unknown => Spacing::MedianStep(median_step(rows)),
     }
 }
 
