@@ -33,6 +33,16 @@ pub enum LogError {
         /// Line of the first bad byte.
         line: u64,
     },
+    /// The file could not be read on.
+    #[error("{origin}:{line}: cannot read the log on from this line: {why}; check the file and the disk")]
+    Unreadable {
+        /// File.
+        origin: String,
+        /// The line it stopped at.
+        line: u64,
+        /// The system's reason.
+        why: String,
+    },
     /// Not written by dbtrail.
     #[error("{origin}: not a dbtrail log: {why}; give a file written by `dbtrail record` or by logging in `dbtrail watch`")]
     NotALog {
@@ -212,22 +222,15 @@ pub fn read_log(bytes: &[u8], origin: &str, channel: usize) -> Result<Log, LogEr
     read_log_folded(bytes, origin, channel, Reduction::default())
 }
 
-/// [`read_log`], its rows folded into intervals as `reduction` says.
+/// [`read_log`] from any buffered input (a file, read a line at a time, so that a log of
+/// any size is read in bounded memory), its rows folded into intervals as `reduction` says.
 pub fn read_log_folded(
-    bytes: &[u8],
+    input: impl std::io::BufRead,
     origin: &str,
     channel: usize,
     reduction: Reduction,
 ) -> Result<Log, LogError> {
-    let text = std::str::from_utf8(bytes).map_err(|e| LogError::NotText {
-        origin: origin.into(),
-        line: bytes[..e.valid_up_to()]
-            .iter()
-            .filter(|&&b| b == b'\n')
-            .count() as u64
-            + 1,
-    })?;
-    read::read_runs(text, origin, channel, reduction)
+    read::read_runs(input, origin, channel, reduction)
 }
 
 fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {

@@ -1394,3 +1394,23 @@ fn a_per_sample_log_past_the_cap_is_folded_and_says_so() {
     assert_eq!(json["reduced_to_s"], 1.0);
     assert_eq!(json["samples"], 100_001);
 }
+
+// Source: the rule in docs/report.md ("Long logs") and docs/reliability.md: a bad row stops
+// the reading there with its line number, the rest of the file unread; the bytes that are
+// not UTF-8 further on (line 12) are never reached, so they are not what is reported.
+#[test]
+fn a_bad_row_half_way_is_reported_without_reading_the_rest() {
+    let dir = scratch("bad-half-way");
+    let mut text = context("every 1s", "0", "2026-12-01T10:00:00.000Z").into_bytes();
+    text.extend_from_slice(INTERVAL_HEADER.as_bytes());
+    for t in 0..3 {
+        text.extend_from_slice(interval_row(f64::from(t), 10.0).as_bytes());
+    }
+    text.extend_from_slice(b"3,x,10,loud,10,10,0.01,\n");
+    text.extend_from_slice(interval_row(4.0, 10.0).as_bytes());
+    text.extend_from_slice(b"5,x,10,\xff\xfe,10,10,0.01,\n");
+    let path = dir.join("bad.csv");
+    std::fs::write(&path, &text).unwrap();
+    let out = dbtrail(&["report", path.to_str().unwrap()]);
+    refused(&out, &["bad.csv:10: mean_dbm: `loud` is not a number"]);
+}

@@ -151,14 +151,20 @@ pub fn run(args: Args) -> Result<(), Failure> {
     check_plot_target(&args)?;
     check_span(args.from, args.to)?;
     let origin = args.log.display().to_string();
-    let bytes = std::fs::read(&args.log)
+    let file = std::fs::File::open(&args.log)
         .with_context(|| format!("cannot read {origin}"))
         .bad_input()?;
     let reduction = Reduction {
         width_s: args.every,
         ..Reduction::default()
     };
-    let log = read_log_folded(&bytes, &origin, args.channel as usize, reduction).bad_input()?;
+    let log = read_log_folded(
+        std::io::BufReader::with_capacity(1 << 16, file),
+        &origin,
+        args.channel as usize,
+        reduction,
+    )
+    .bad_input()?;
     let runs = chosen_runs(&log.runs, args.run, &origin)?;
     if runs.len() > 1 && args.plot.is_some() {
         return Err(anyhow!(

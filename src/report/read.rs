@@ -4,6 +4,7 @@
 //! spacing starts a new run, reported on its own. Rows must move forward in time through a
 //! run; every message names the file's real line.
 
+use std::io::BufRead;
 use std::time::SystemTime;
 
 use super::reduce::{Folder, Reduction};
@@ -88,15 +89,20 @@ struct Reader<'a> {
     reduction: Reduction,
 }
 
-/// Reads every run of `text` for `channel` (1 is the first), folding its rows as
-/// `reduction` says.
+/// Reads every run of the log `input` for `channel` (1 is the first), a line at a time,
+/// folding its rows as `reduction` says: nothing but the runs' rows is held, and a bad
+/// line stops the reading there.
 pub(super) fn read_runs(
-    text: &str,
+    input: impl BufRead,
     origin: &str,
     channel: usize,
     reduction: Reduction,
 ) -> Result<Log, LogError> {
-    if !text.starts_with('#') || !body(text.lines().next().unwrap_or("")).starts_with("dbtrail") {
+    let mut lines = Lines::new(input, origin);
+    let opens_as_a_log = lines.peek()?.is_some_and(|first| {
+        first.text.starts_with('#') && body(&first.text).starts_with("dbtrail")
+    });
+    if !opens_as_a_log {
         return Err(LogError::NotALog {
             origin: origin.into(),
             why: "it does not open with dbtrail's `# dbtrail` context lines".into(),
@@ -111,32 +117,24 @@ pub(super) fn read_runs(
         pending: None,
         reduction,
     };
-    let mut csv = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .has_headers(false)
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let mut lines = Lines {
-        text,
-        at: 0,
-        line: 1,
-    };
     let mut record = csv::StringRecord::new();
-    loop {
-        let start = csv.position().byte() as usize;
-        let more = csv.read_record(&mut record);
-        // The reader passes over `#` and blank lines unseen: take them here, in order.
-        lines.move_to(start);
-        for (line, comment) in lines.skip_comments() {
-            reader.comment(line, body(comment))?;
+    while let Some(line) = lines.next()? {
+        if line.text.starts_with('#') {
+            reader.comment(line.number, body(&line.text))?;
+            continue;
         }
-        match more {
-            Ok(true) => {}
-            Ok(false) => break,
-            Err(e) => return Err(bad(origin, lines.line, "(row)", e.to_string())),
+        if line.text.is_empty() {
+            continue;
         }
-        reader.record(&record, lines.line, &text[lines.at..])?;
-        lines.move_to(csv.position().byte() as usize);
+        split_cells(&line.text, &mut record)
+            .map_err(|e| bad(origin, line.number, "(row)", e.to_string()))?;
+        let next = lines.peek()?.map(|next| next.text.as_str());
+        let place = Place {
+            line: line.number,
+            ended: line.ended,
+            before_resuming: next.is_some_and(|next| next.starts_with("# resumed")),
+        };
+        reader.record(&record, place)?;
     }
     reader.finish()
 }
@@ -146,44 +144,100 @@ fn body(line: &str) -> &str {
     line.trim_start_matches('#').trim()
 }
 
-/// Walks the text a line at a time, counting lines.
-struct Lines<'a> {
-    text: &'a str,
-    at: usize,
-    line: u64,
+/// One line of the log, without its line end.
+struct Line {
+    number: u64,
+    text: String,
+    /// False for a last line with no line end.
+    ended: bool,
 }
 
-impl<'a> Lines<'a> {
-    fn move_to(&mut self, byte: usize) {
-        let byte = byte.clamp(self.at, self.text.len());
-        self.line += self.text.as_bytes()[self.at..byte]
-            .iter()
-            .filter(|&&b| b == b'\n')
-            .count() as u64;
-        self.at = byte;
+/// Where a row stands in the file.
+#[derive(Clone, Copy)]
+struct Place {
+    line: u64,
+    /// False for a last line with no line end (a recording cut off mid-row).
+    ended: bool,
+    /// True when the next line is a `# resumed` line.
+    before_resuming: bool,
+}
+
+/// The log's lines one at a time, with one line of look-ahead.
+struct Lines<'a, R> {
+    input: R,
+    origin: &'a str,
+    number: u64,
+    ahead: Option<Line>,
+    bytes: Vec<u8>,
+}
+
+impl<'a, R: BufRead> Lines<'a, R> {
+    fn new(input: R, origin: &'a str) -> Self {
+        Lines {
+            input,
+            origin,
+            number: 0,
+            ahead: None,
+            bytes: Vec::new(),
+        }
     }
 
-    /// The `#` lines from here up to the next other line (blank lines passed over), each
-    /// with its line number.
-    fn skip_comments(&mut self) -> Vec<(u64, &'a str)> {
-        let mut comments = Vec::new();
-        while self.at < self.text.len() {
-            let rest = &self.text[self.at..];
-            // Most records are rows: no need to find their end.
-            if !rest.starts_with(['#', '\n', '\r']) {
-                break;
-            }
-            let end = rest.find('\n').map_or(rest.len(), |i| i + 1);
-            let line = rest[..end].trim_end_matches(['\n', '\r']);
-            if line.starts_with('#') {
-                comments.push((self.line, line));
-            } else if !line.is_empty() {
-                break;
-            }
-            self.move_to(self.at + end);
+    fn peek(&mut self) -> Result<Option<&Line>, LogError> {
+        if self.ahead.is_none() {
+            self.ahead = self.read()?;
         }
-        comments
+        Ok(self.ahead.as_ref())
     }
+
+    fn next(&mut self) -> Result<Option<Line>, LogError> {
+        match self.ahead.take() {
+            Some(line) => Ok(Some(line)),
+            None => self.read(),
+        }
+    }
+
+    fn read(&mut self) -> Result<Option<Line>, LogError> {
+        self.bytes.clear();
+        let read =
+            self.input
+                .read_until(b'\n', &mut self.bytes)
+                .map_err(|e| LogError::Unreadable {
+                    origin: self.origin.into(),
+                    line: self.number + 1,
+                    why: e.to_string(),
+                })?;
+        if read == 0 {
+            return Ok(None);
+        }
+        self.number += 1;
+        let ended = self.bytes.ends_with(b"\n");
+        let text = std::str::from_utf8(&self.bytes).map_err(|_| LogError::NotText {
+            origin: self.origin.into(),
+            line: self.number,
+        })?;
+        Ok(Some(Line {
+            number: self.number,
+            text: text.trim_end_matches(['\n', '\r']).to_string(),
+            ended,
+        }))
+    }
+}
+
+/// The cells of a row: split at commas, or read as CSV when the line holds quotes (which
+/// dbtrail never writes, but a spreadsheet may).
+fn split_cells(line: &str, record: &mut csv::StringRecord) -> Result<(), csv::Error> {
+    record.clear();
+    if !line.contains('"') {
+        for cell in line.split(',') {
+            record.push_field(cell);
+        }
+        return Ok(());
+    }
+    let mut csv = csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .from_reader(line.as_bytes());
+    csv.read_record(record).map(|_| ())
 }
 
 impl Current {
@@ -248,14 +302,9 @@ impl Reader<'_> {
         )
     }
 
-    /// Takes one record: the column header, a later one at a resumed leg, or a row;
-    /// `rest` is the text from its line on.
-    fn record(
-        &mut self,
-        record: &csv::StringRecord,
-        line: u64,
-        rest: &str,
-    ) -> Result<(), LogError> {
+    /// Takes one record: the column header, a later one at a resumed leg, or a row.
+    fn record(&mut self, record: &csv::StringRecord, place: Place) -> Result<(), LogError> {
+        let line = place.line;
         if self.columns.is_none() {
             let columns = columns(record, line, self.channel, self.origin)?;
             self.current
@@ -277,10 +326,13 @@ impl Reader<'_> {
             self.begin_leg(pending)?;
         }
         let columns = self.columns.as_ref().expect("set at the header");
-        if cut_before_resuming(record, columns, rest) {
+        // A row cut part-way when a recording stopped, which the next run's `# resumed`
+        // line follows on a line of its own (`record --append` never joins them): passed
+        // over.
+        if record.len() < columns.width && place.before_resuming {
             return Ok(());
         }
-        let mut row = parse_row(record, columns, line, rest, self.origin)?;
+        let mut row = parse_row(record, columns, place, self.origin)?;
         row.t += self.current.offset;
         self.current.check_order(row.t, line, self.origin)?;
         self.current.folder.push(row);
@@ -519,23 +571,16 @@ fn columns(
     })
 }
 
-/// A row cut part-way when a recording stopped, which the next run's `# resumed` line
-/// follows on a line of its own (`record --append` never joins them): passed over.
-fn cut_before_resuming(record: &csv::StringRecord, cols: &Columns, rest: &str) -> bool {
-    let next = rest.find('\n').map(|end| &rest[end + 1..]);
-    record.len() < cols.width && next.is_some_and(|next| next.starts_with("# resumed"))
-}
-
 fn parse_row(
     record: &csv::StringRecord,
     cols: &Columns,
-    line: u64,
-    rest: &str,
+    place: Place,
     origin: &str,
 ) -> Result<LogRow, LogError> {
+    let line = place.line;
     if record.len() != cols.width {
         // A short last line with no line end: the recording was cut off mid-row.
-        let message = if !rest.contains('\n') {
+        let message = if !place.ended {
             "the file ends part-way through this row (was the recording cut off?); remove the last line, or use --to to stop before it".to_string()
         } else {
             format!(
