@@ -101,7 +101,7 @@ impl Folder {
     /// The width the rows were folded into, seconds; None when they are as logged.
     pub(super) fn width_s(&self) -> Option<f64> {
         self.doublings
-            .map(|d| self.first_width_s * f64::from(2u32.pow(d.min(31))))
+            .map(|d| self.first_width_s * 2f64.powi(d as i32))
     }
 
     /// The rows held: as logged, or one per interval (stamped at its start).
@@ -114,7 +114,7 @@ impl Folder {
 
     fn fold(&mut self, row: LogRow) {
         let first = (row.t / self.first_width_s).floor().max(0.0) as u64;
-        let index = first >> self.doublings.unwrap_or(0).min(63);
+        let index = first.checked_shr(self.doublings.unwrap_or(0)).unwrap_or(0);
         match self.intervals.last_mut() {
             // A resumed leg may start a few milliseconds before the rows above it end:
             // such a row joins the interval those rows are in.
@@ -299,7 +299,7 @@ mod tests {
             places.len()
         };
         let doublings = (0..64).find(|d| count(*d) <= reduction.most_rows).unwrap();
-        let width = first * f64::from(2u32.pow(doublings));
+        let width = first * 2f64.powi(doublings as i32);
         let mut out = Vec::new();
         let mut from = 0;
         while from < rows.len() {
