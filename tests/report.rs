@@ -1414,3 +1414,73 @@ fn a_bad_row_half_way_is_reported_without_reading_the_rest() {
     let out = dbtrail(&["report", path.to_str().unwrap()]);
     refused(&out, &["bad.csv:10: mean_dbm: `loud` is not a number"]);
 }
+
+// Source: the rule in docs/report.md ("Long logs"): the same simulated soak recorded once
+// per sample and once at --every 10s gives the same figures when the per-sample log is
+// folded to 10 s. The per-sample log holds each reading to 4 decimals, so a mean or a
+// spread may differ by the rounding, 5e-5 dB at most; the extremes are the same readings.
+#[test]
+fn a_per_sample_recording_folded_to_10_s_agrees_with_the_same_run_recorded_at_10_s() {
+    let dir = scratch("same-run");
+    let (samples, intervals) = (dir.join("s.csv"), dir.join("i.csv"));
+    for (every, log) in [("0", &samples), ("10s", &intervals)] {
+        let out = dbtrail(&[
+            "record",
+            "--demo",
+            "soak",
+            "--duration",
+            "5m",
+            "--fast",
+            "--every",
+            every,
+            "--out",
+            log.to_str().unwrap(),
+            "--force",
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    let folded = json_of(&dbtrail(&[
+        "report",
+        samples.to_str().unwrap(),
+        "--every",
+        "10s",
+        "--json",
+    ]));
+    let recorded = json_of(&dbtrail(&["report", intervals.to_str().unwrap(), "--json"]));
+    assert_eq!(folded["reduced_to_s"], 10.0);
+    for key in ["samples", "gaps", "min_dbm", "max_dbm", "duration_s"] {
+        assert_eq!(folded[key], recorded[key], "{key}");
+    }
+    for key in ["mean_dbm", "std_db", "pk_pk_db"] {
+        near_within(&folded, key, recorded[key].as_f64().unwrap(), 1e-4);
+    }
+    // The rows' u_db differ in what they hold (a reading's against an interval mean's),
+    // by far less than the ±0.4 dB they state.
+    near_within(
+        &folded,
+        "mean_u_db",
+        recorded["mean_u_db"].as_f64().unwrap(),
+        1e-3,
+    );
+    let (a, b) = (
+        folded["allan"].as_array().unwrap(),
+        recorded["allan"].as_array().unwrap(),
+    );
+    assert_eq!(a.len(), b.len());
+    for (p, q) in a.iter().zip(b) {
+        assert_eq!(p["tau_s"], q["tau_s"]);
+        near_within(p, "adev_db", q["adev_db"].as_f64().unwrap(), 1e-4);
+    }
+}
+
+fn near_within(report: &serde_json::Value, key: &str, want: f64, within: f64) {
+    let got = report[key].as_f64();
+    assert!(
+        got.is_some_and(|v| (v - want).abs() <= within),
+        "{key}: {got:?} where {want} ± {within} was due"
+    );
+}
