@@ -1484,3 +1484,13 @@ fn near_within(report: &serde_json::Value, key: &str, want: f64, within: f64) {
         "{key}: {got:?} where {want} ± {within} was due"
     );
 }
+
+// Source: the rule in docs/reliability.md: bad input exits 2 with a message naming the
+// option; an interval of no time cannot hold a row.
+#[test]
+fn an_every_of_no_time_is_refused_naming_the_option() {
+    let dir = scratch("every-zero");
+    let text = log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.0), "")]);
+    let out = report_on(&dir, "z.csv", &text, &["--every", "0s"]);
+    refused(&out, &["--every", "`0s` is no interval to fold rows into"]);
+}
