@@ -831,3 +831,72 @@ fn median_step(rows: &[LogRow]) -> f64 {
     steps.sort_by(f64::total_cmp);
     steps.get(steps.len() / 2).copied().unwrap_or(1.0)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// A cell as a log or a spreadsheet may hold it, commas and quotes left out (a line
+    /// with a quote goes to the CSV reader itself).
+    fn cell() -> impl Strategy<Value = String> {
+        "[ a-z0-9.|+\\-\\t]{0,8}"
+    }
+
+    proptest! {
+        // Source: the csv crate's reader, which the rows went through before: splitting
+        // a line without quotes at its commas gives the cells it gives.
+        #[test]
+        fn splitting_at_commas_gives_the_csv_readers_cells(
+            cells in proptest::collection::vec(cell(), 1..10),
+        ) {
+            let line = cells.join(",");
+            let mut split = csv::StringRecord::new();
+            split_cells(&line, &mut split).unwrap();
+            let mut reference = csv::StringRecord::new();
+            csv::ReaderBuilder::new()
+                .has_headers(false)
+                .flexible(true)
+                .from_reader(line.as_bytes())
+                .read_record(&mut reference)
+                .unwrap();
+            if line.trim().is_empty() && cells.len() == 1 {
+                // The csv reader skips an empty line; the log reader never sends one.
+                return Ok(());
+            }
+            prop_assert_eq!(split, reference);
+        }
+
+        // Source: the same bytes read whole: a log read through a buffer of a few bytes,
+        // so that lines break across reads, gives the same runs, or the same error.
+        #[test]
+        fn a_log_read_in_small_pieces_reads_as_the_whole(
+            steps in proptest::collection::vec((0u32..3, proptest::option::of(-50.0..20.0f64)), 1..40),
+            bad_at in proptest::option::of(0usize..40),
+            capacity in 1usize..40,
+        ) {
+            let mut text = String::from(
+                "# dbtrail 0.1.0 record\n# profile: p; sha256 0\n# stamps: at 10 samples/s\n\
+                 time_s,counts,volts,dbm,flags,bound,u_db\n",
+            );
+            let mut k = 0;
+            for (i, (step, dbm)) in steps.iter().enumerate() {
+                k += step + 1;
+                let cell = match (bad_at == Some(i), dbm) {
+                    (true, _) => "x".to_string(),
+                    (false, Some(d)) => format!("{d:.4}"),
+                    (false, None) => String::new(),
+                };
+                text.push_str(&format!("{:.6},1,0.5,{cell},,,0.4\n", f64::from(k) / 10.0));
+            }
+            let whole = read_runs(text.as_bytes(), "t.csv", 1, Reduction::default());
+            let pieces = read_runs(
+                std::io::BufReader::with_capacity(capacity, text.as_bytes()),
+                "t.csv",
+                1,
+                Reduction::default(),
+            );
+            prop_assert_eq!(whole, pieces);
+        }
+    }
+}
