@@ -16,9 +16,11 @@ use soak::{SoakFit, SoakModel};
 
 pub mod allan;
 mod read;
+pub mod reduce;
 pub mod soak;
 
 pub use read::{DBM_RANGE, MAX_ROW_SAMPLES, MAX_TIME_S};
+pub use reduce::Reduction;
 
 /// A log that could not be read, with where and what to do.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -30,6 +32,16 @@ pub enum LogError {
         origin: String,
         /// Line of the first bad byte.
         line: u64,
+    },
+    /// The file could not be read on.
+    #[error("{origin}:{line}: cannot read the log on from this line: {why}; check the file and the disk")]
+    Unreadable {
+        /// File.
+        origin: String,
+        /// The line it stopped at.
+        line: u64,
+        /// The system's reason.
+        why: String,
     },
     /// Not written by dbtrail.
     #[error("{origin}: not a dbtrail log: {why}; give a file written by `dbtrail record` or by logging in `dbtrail watch`")]
@@ -183,6 +195,9 @@ pub struct Run {
     pub rows: Vec<LogRow>,
     /// The `# resumed` lines that continued this run.
     pub resumed_lines: Vec<u64>,
+    /// The width its rows were folded into while read, seconds (see [`Reduction`]); None
+    /// when they are as logged.
+    pub reduced_to_s: Option<f64>,
 }
 
 impl Run {
@@ -201,17 +216,21 @@ pub struct Log {
 }
 
 /// Reads a log written by `record` (or the screen's logging), per interval or per sample,
-/// for `channel` (1 is the first).
+/// for `channel` (1 is the first); a run of more rows than [`reduce::MOST_ROWS`] is folded
+/// into intervals (see [`Reduction`]).
 pub fn read_log(bytes: &[u8], origin: &str, channel: usize) -> Result<Log, LogError> {
-    let text = std::str::from_utf8(bytes).map_err(|e| LogError::NotText {
-        origin: origin.into(),
-        line: bytes[..e.valid_up_to()]
-            .iter()
-            .filter(|&&b| b == b'\n')
-            .count() as u64
-            + 1,
-    })?;
-    read::read_runs(text, origin, channel)
+    read_log_folded(bytes, origin, channel, Reduction::default())
+}
+
+/// [`read_log`] from any buffered input (a file, read a line at a time, so that a log of
+/// any size is read in bounded memory), its rows folded into intervals as `reduction` says.
+pub fn read_log_folded(
+    input: impl std::io::BufRead,
+    origin: &str,
+    channel: usize,
+    reduction: Reduction,
+) -> Result<Log, LogError> {
+    read::read_runs(input, origin, channel, reduction)
 }
 
 fn bad(origin: &str, line: u64, field: &str, message: String) -> LogError {
@@ -250,6 +269,9 @@ impl Default for ReportOptions {
 pub struct Report {
     /// Length of the span, seconds.
     pub duration_s: f64,
+    /// The width the log's rows were folded into while read, seconds; null when the
+    /// figures are from the rows as logged.
+    pub reduced_to_s: Option<f64>,
     /// Samples in the span.
     pub samples: u64,
     /// Mean power, dBm (of the mean in watts); null when `mean_bound` is `none`.
@@ -459,6 +481,7 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     };
     Ok(Report {
         duration_s: end - start,
+        reduced_to_s: run.reduced_to_s,
         samples,
         mean_dbm: mean_w.map(watts_to_dbm),
         mean_w,
@@ -627,6 +650,7 @@ mod tests {
             per_sample: false,
             rows,
             resumed_lines: Vec::new(),
+            reduced_to_s: None,
         };
         let outcome = analyse(&run, "huge.csv", &ReportOptions::default());
         assert_eq!(

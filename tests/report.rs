@@ -82,6 +82,7 @@ fn drift_matches_the_norris_certified_slope_and_error() {
         per_sample: false,
         rows,
         resumed_lines: Vec::new(),
+        reduced_to_s: None,
     };
     let report = analyse(&run, "norris", &ReportOptions::default()).unwrap();
     assert_eq!(report.model, dbtrail::report::soak::SoakModel::Line);
@@ -392,6 +393,7 @@ fn json_has_exactly_the_documented_keys() {
             "model",
             "model_choice",
             "pk_pk_db",
+            "reduced_to_s",
             "samples",
             "settled_after_s",
             "std_db",
@@ -1257,4 +1259,238 @@ fn a_soak_cut_short_in_its_warm_up_says_what_it_cannot_tell() {
     assert_eq!(value["model"], "line");
     assert!(value["settled_after_s"].is_null(), "{value}");
     assert!(value["drift_db_per_hour"].is_null(), "{value}");
+}
+
+/// A per-sample log at 10 samples/s for 60 s, with a warm-up, a ripple, a clipped sample
+/// and three seconds missing; and the same samples folded by hand into 1 s interval rows
+/// (power mean over watts, extremes, flags and bounds joined), as `record --every 1s`
+/// writes them.
+fn a_sample_log_and_its_intervals() -> (String, String) {
+    let level = |k: u32| {
+        let t = f64::from(k) / 10.0;
+        20.0 - 0.8 * (-t / 15.0).exp() + 0.05 * (f64::from(k) * 0.7).sin()
+    };
+    let kept = |k: &u32| !(200..230).contains(k);
+    let clipped = 415;
+    let mut samples = context("every sample", "0", "2026-12-01T10:00:00.000Z");
+    samples.push_str("# stamps: at 10 samples/s\ntime_s,counts,volts,dbm,flags,bound,u_db\n");
+    for k in (0..600).filter(kept) {
+        let (flags, bound) = if k == clipped {
+            ("clip", "at-least")
+        } else {
+            ("", "")
+        };
+        samples.push_str(&format!(
+            "{:.6},1000,0.5,{:.4},{flags},{bound},0.4000\n",
+            f64::from(k) / 10.0,
+            level(k)
+        ));
+    }
+    let mut intervals = context("every 1s", "0", "2026-12-01T10:00:00.000Z");
+    intervals
+        .push_str("time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags,bound,averaged,u_db\n");
+    for second in 0..60u32 {
+        let dbm: Vec<f64> = (second * 10..second * 10 + 10)
+            .filter(kept)
+            // The log holds each sample to 4 decimals: fold what it holds.
+            .map(|k| format!("{:.4}", level(k)).parse().unwrap())
+            .collect();
+        if dbm.is_empty() {
+            continue;
+        }
+        let mean_w =
+            dbm.iter().map(|d| 10f64.powf(d / 10.0) * 1e-3).sum::<f64>() / dbm.len() as f64;
+        let (lo, hi) = dbm
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), d| {
+                (a.min(*d), b.max(*d))
+            });
+        let holds_clip = (second * 10..second * 10 + 10).contains(&clipped);
+        let (flags, bound) = if holds_clip {
+            ("clip", "at-least")
+        } else {
+            ("", "")
+        };
+        intervals.push_str(&format!(
+            "{second},x,{n},{:.12},{lo},{hi},{mean_w:.15e},{flags},{bound},{n},0.4\n",
+            10.0 * (mean_w * 1e3).log10(),
+            n = dbm.len()
+        ));
+    }
+    (samples, intervals)
+}
+
+/// Two JSON reports agree: numbers to a part in a million (the interval log holds its means
+/// to 12 decimals, and the model's fit stops at its own tolerance), everything else exactly.
+fn same_figures(a: &serde_json::Value, b: &serde_json::Value, path: &str) {
+    match (a, b) {
+        (serde_json::Value::Number(x), serde_json::Value::Number(y)) => {
+            let (x, y) = (x.as_f64().unwrap(), y.as_f64().unwrap());
+            assert!(
+                (x - y).abs() <= 1e-6 * x.abs().max(1.0),
+                "{path}: {x} against {y}"
+            );
+        }
+        (serde_json::Value::Object(x), serde_json::Value::Object(y)) => {
+            assert_eq!(x.keys().collect::<Vec<_>>(), y.keys().collect::<Vec<_>>());
+            for (key, value) in x {
+                same_figures(value, &y[key], &format!("{path}.{key}"));
+            }
+        }
+        (serde_json::Value::Array(x), serde_json::Value::Array(y)) => {
+            assert_eq!(x.len(), y.len(), "{path}");
+            for (i, (p, q)) in x.iter().zip(y).enumerate() {
+                same_figures(p, q, &format!("{path}[{i}]"));
+            }
+        }
+        _ => assert_eq!(a, b, "{path}"),
+    }
+}
+
+// Source: the rule in docs/report.md ("Long logs"): a per-sample log is reported from its
+// samples folded into intervals, so its figures are those of its own interval reduction;
+// the intervals here are folded by hand in the test.
+#[test]
+fn a_per_sample_log_folded_to_seconds_reports_the_figures_of_its_interval_log() {
+    let dir = scratch("folded");
+    let (samples, intervals) = a_sample_log_and_its_intervals();
+    let mut folded = json_of(&report_on(
+        &dir,
+        "s.csv",
+        &samples,
+        &["--json", "--every", "1s"],
+    ));
+    let mut by_hand = json_of(&report_on(&dir, "i.csv", &intervals, &["--json"]));
+    assert_eq!(folded["reduced_to_s"], 1.0);
+    assert_eq!(by_hand["reduced_to_s"], serde_json::Value::Null);
+    assert_eq!(folded["samples"], 570);
+    assert_eq!(folded["gaps"], 1);
+    assert_eq!(folded["mean_bound"], "at-least");
+    for report in [&mut folded, &mut by_hand] {
+        report.as_object_mut().unwrap().remove("reduced_to_s");
+    }
+    same_figures(&folded, &by_hand, "");
+}
+
+// Source: the rule in docs/report.md ("Long logs"): past 100000 rows a run is folded, at
+// 1 s first; 100001 samples at 1000 samples/s span 100.001 s, so 101 intervals.
+#[test]
+fn a_per_sample_log_past_the_cap_is_folded_and_says_so() {
+    let dir = scratch("cap");
+    let mut text = context("every sample", "0", "2026-12-01T10:00:00.000Z");
+    text.push_str(&format!("# stamps: at 1000 samples/s\n{SAMPLE_HEADER}"));
+    for k in 0..100_001u32 {
+        text.push_str(&sample_row(f64::from(k) / 1000.0));
+    }
+    let out = report_on(&dir, "long.csv", &text, &[]);
+    let table = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(table.contains("101 intervals of 1.000 s"), "{table}");
+    let json = json_of(&report_on(&dir, "long2.csv", &text, &["--json"]));
+    assert_eq!(json["reduced_to_s"], 1.0);
+    assert_eq!(json["samples"], 100_001);
+}
+
+// Source: the rule in docs/report.md ("Long logs") and docs/reliability.md: a bad row stops
+// the reading there with its line number, the rest of the file unread; the bytes that are
+// not UTF-8 further on (line 12) are never reached, so they are not what is reported.
+#[test]
+fn a_bad_row_half_way_is_reported_without_reading_the_rest() {
+    let dir = scratch("bad-half-way");
+    let mut text = context("every 1s", "0", "2026-12-01T10:00:00.000Z").into_bytes();
+    text.extend_from_slice(INTERVAL_HEADER.as_bytes());
+    for t in 0..3 {
+        text.extend_from_slice(interval_row(f64::from(t), 10.0).as_bytes());
+    }
+    text.extend_from_slice(b"3,x,10,loud,10,10,0.01,\n");
+    text.extend_from_slice(interval_row(4.0, 10.0).as_bytes());
+    text.extend_from_slice(b"5,x,10,\xff\xfe,10,10,0.01,\n");
+    let path = dir.join("bad.csv");
+    std::fs::write(&path, &text).unwrap();
+    let out = dbtrail(&["report", path.to_str().unwrap()]);
+    refused(&out, &["bad.csv:10: mean_dbm: `loud` is not a number"]);
+}
+
+// Source: the rule in docs/report.md ("Long logs"): the same simulated soak recorded once
+// per sample and once at --every 10s gives the same figures when the per-sample log is
+// folded to 10 s. The per-sample log holds each reading to 4 decimals, so a mean or a
+// spread may differ by the rounding, 5e-5 dB at most; the extremes are the same readings.
+#[test]
+fn a_per_sample_recording_folded_to_10_s_agrees_with_the_same_run_recorded_at_10_s() {
+    let dir = scratch("same-run");
+    let (samples, intervals) = (dir.join("s.csv"), dir.join("i.csv"));
+    for (every, log) in [("0", &samples), ("10s", &intervals)] {
+        let out = dbtrail(&[
+            "record",
+            "--demo",
+            "soak",
+            "--duration",
+            "5m",
+            "--fast",
+            "--every",
+            every,
+            "--out",
+            log.to_str().unwrap(),
+            "--force",
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    let folded = json_of(&dbtrail(&[
+        "report",
+        samples.to_str().unwrap(),
+        "--every",
+        "10s",
+        "--json",
+    ]));
+    let recorded = json_of(&dbtrail(&["report", intervals.to_str().unwrap(), "--json"]));
+    assert_eq!(folded["reduced_to_s"], 10.0);
+    for key in ["samples", "gaps", "min_dbm", "max_dbm", "duration_s"] {
+        assert_eq!(folded[key], recorded[key], "{key}");
+    }
+    for key in ["mean_dbm", "std_db", "pk_pk_db"] {
+        near_within(&folded, key, recorded[key].as_f64().unwrap(), 1e-4);
+    }
+    // The rows' u_db differ in what they hold (a reading's against an interval mean's),
+    // by far less than the ±0.4 dB they state.
+    near_within(
+        &folded,
+        "mean_u_db",
+        recorded["mean_u_db"].as_f64().unwrap(),
+        1e-3,
+    );
+    let (a, b) = (
+        folded["allan"].as_array().unwrap(),
+        recorded["allan"].as_array().unwrap(),
+    );
+    assert_eq!(a.len(), b.len());
+    for (p, q) in a.iter().zip(b) {
+        assert_eq!(p["tau_s"], q["tau_s"]);
+        near_within(p, "adev_db", q["adev_db"].as_f64().unwrap(), 1e-4);
+    }
+}
+
+fn near_within(report: &serde_json::Value, key: &str, want: f64, within: f64) {
+    let got = report[key].as_f64();
+    assert!(
+        got.is_some_and(|v| (v - want).abs() <= within),
+        "{key}: {got:?} where {want} ± {within} was due"
+    );
+}
+
+// Source: the rule in docs/reliability.md: bad input exits 2 with a message naming the
+// option; an interval of no time cannot hold a row.
+#[test]
+fn an_every_of_no_time_is_refused_naming_the_option() {
+    let dir = scratch("every-zero");
+    let text = log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.0), "")]);
+    let out = report_on(&dir, "z.csv", &text, &["--every", "0s"]);
+    refused(&out, &["--every", "`0s` is no interval to fold rows into"]);
 }

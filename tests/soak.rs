@@ -37,6 +37,7 @@ fn run_of(t_s: &[f64], dbm: &[f64]) -> Run {
         per_sample: false,
         rows,
         resumed_lines: Vec::new(),
+        reduced_to_s: None,
     }
 }
 

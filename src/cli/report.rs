@@ -5,7 +5,7 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 
 use anyhow::{anyhow, Context};
-use dbtrail::report::{analyse, read_log, span_rows, Report, ReportOptions, Run};
+use dbtrail::report::{analyse, read_log_folded, span_rows, Reduction, Report, ReportOptions, Run};
 use dbtrail::stats::Bound;
 use dbtrail::units::{format_clock, parse_duration, watts_to_dbm};
 use serde::Serialize;
@@ -46,6 +46,9 @@ pub struct Args {
     /// Channel to report on, from 1
     #[arg(long, default_value_t = 1, allow_hyphen_values = true, value_parser = parse_channel)]
     channel: u64,
+    /// Fold the rows into intervals of this width while reading (e.g. 1s, 10s, 1m); without it a log of more than 100000 rows is folded into the smallest width of 1 s times a power of two (or its own interval times one) that keeps it within 100000 intervals, and a wider one if the rows still pass that
+    #[arg(long, allow_hyphen_values = true, value_parser = parse_every)]
+    every: Option<f64>,
     /// Report on this run only, from 1, when the log holds several (a `# resumed` line that changed the profile or the rows' spacing starts one)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_run)]
     run: Option<usize>,
@@ -96,6 +99,17 @@ fn parse_clock(text: &str) -> Option<f64> {
     (in_range && total.is_finite()).then_some(total)
 }
 
+/// The width of `--every`: a positive duration.
+fn parse_every(text: &str) -> Result<f64, String> {
+    match parse_duration(text).map(|d| d.as_secs_f64()) {
+        Ok(s) if s > 0.0 => Ok(s),
+        Ok(_) => Err(format!(
+            "`{text}` is no interval to fold rows into; give a positive duration such as 1s or 10s"
+        )),
+        Err(e) => Err(e.to_string()),
+    }
+}
+
 fn parse_size(text: &str) -> Result<(u32, u32), String> {
     let parsed = text
         .split_once(['x', 'X'])
@@ -137,10 +151,20 @@ pub fn run(args: Args) -> Result<(), Failure> {
     check_plot_target(&args)?;
     check_span(args.from, args.to)?;
     let origin = args.log.display().to_string();
-    let bytes = std::fs::read(&args.log)
+    let file = std::fs::File::open(&args.log)
         .with_context(|| format!("cannot read {origin}"))
         .bad_input()?;
-    let log = read_log(&bytes, &origin, args.channel as usize).bad_input()?;
+    let reduction = Reduction {
+        width_s: args.every,
+        ..Reduction::default()
+    };
+    let log = read_log_folded(
+        std::io::BufReader::with_capacity(1 << 16, file),
+        &origin,
+        args.channel as usize,
+        reduction,
+    )
+    .bad_input()?;
     let runs = chosen_runs(&log.runs, args.run, &origin)?;
     if runs.len() > 1 && args.plot.is_some() {
         return Err(anyhow!(

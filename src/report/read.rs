@@ -4,8 +4,10 @@
 //! spacing starts a new run, reported on its own. Rows must move forward in time through a
 //! run; every message names the file's real line.
 
+use std::io::BufRead;
 use std::time::SystemTime;
 
+use super::reduce::{Folder, Reduction};
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
 use crate::stats::Bound;
 
@@ -73,6 +75,8 @@ struct Current {
     last: Option<(f64, u64)>,
     /// True for the first row of a resumed leg.
     leg_start: bool,
+    /// The run's rows, as logged or folded into intervals.
+    folder: Folder,
 }
 
 struct Reader<'a> {
@@ -82,11 +86,23 @@ struct Reader<'a> {
     done: Vec<Run>,
     current: Current,
     pending: Option<Pending>,
+    reduction: Reduction,
 }
 
-/// Reads every run of `text` for `channel` (1 is the first).
-pub(super) fn read_runs(text: &str, origin: &str, channel: usize) -> Result<Log, LogError> {
-    if !text.starts_with('#') || !body(text.lines().next().unwrap_or("")).starts_with("dbtrail") {
+/// Reads every run of the log `input` for `channel` (1 is the first), a line at a time,
+/// folding its rows as `reduction` says: nothing but the runs' rows is held, and a bad
+/// line stops the reading there.
+pub(super) fn read_runs(
+    input: impl BufRead,
+    origin: &str,
+    channel: usize,
+    reduction: Reduction,
+) -> Result<Log, LogError> {
+    let mut lines = Lines::new(input, origin);
+    let opens_as_a_log = lines.peek()?.is_some_and(|first| {
+        first.text.starts_with('#') && body(&first.text).starts_with("dbtrail")
+    });
+    if !opens_as_a_log {
         return Err(LogError::NotALog {
             origin: origin.into(),
             why: "it does not open with dbtrail's `# dbtrail` context lines".into(),
@@ -97,35 +113,28 @@ pub(super) fn read_runs(text: &str, origin: &str, channel: usize) -> Result<Log,
         channel,
         columns: None,
         done: Vec::new(),
-        current: Current::new(1, 1, Vec::new()),
+        current: Current::new(1, 1, Vec::new(), reduction),
         pending: None,
-    };
-    let mut csv = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .has_headers(false)
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let mut lines = Lines {
-        text,
-        at: 0,
-        line: 1,
+        reduction,
     };
     let mut record = csv::StringRecord::new();
-    loop {
-        let start = csv.position().byte() as usize;
-        let more = csv.read_record(&mut record);
-        // The reader passes over `#` and blank lines unseen: take them here, in order.
-        lines.move_to(start);
-        for (line, comment) in lines.skip_comments() {
-            reader.comment(line, body(comment))?;
+    while let Some(line) = lines.next()? {
+        if line.text.starts_with('#') {
+            reader.comment(line.number, body(&line.text))?;
+            continue;
         }
-        match more {
-            Ok(true) => {}
-            Ok(false) => break,
-            Err(e) => return Err(bad(origin, lines.line, "(row)", e.to_string())),
+        if line.text.is_empty() {
+            continue;
         }
-        reader.record(&record, lines.line, &text[lines.at..])?;
-        lines.move_to(csv.position().byte() as usize);
+        split_cells(&line.text, &mut record)
+            .map_err(|e| bad(origin, line.number, "(row)", e.to_string()))?;
+        let next = lines.peek()?.map(|next| next.text.as_str());
+        let place = Place {
+            line: line.number,
+            ended: line.ended,
+            before_resuming: next.is_some_and(|next| next.starts_with("# resumed")),
+        };
+        reader.record(&record, place)?;
     }
     reader.finish()
 }
@@ -135,48 +144,109 @@ fn body(line: &str) -> &str {
     line.trim_start_matches('#').trim()
 }
 
-/// Walks the text a line at a time, counting lines.
-struct Lines<'a> {
-    text: &'a str,
-    at: usize,
-    line: u64,
+/// One line of the log, without its line end.
+struct Line {
+    number: u64,
+    text: String,
+    /// False for a last line with no line end.
+    ended: bool,
 }
 
-impl<'a> Lines<'a> {
-    fn move_to(&mut self, byte: usize) {
-        let byte = byte.clamp(self.at, self.text.len());
-        self.line += self.text.as_bytes()[self.at..byte]
-            .iter()
-            .filter(|&&b| b == b'\n')
-            .count() as u64;
-        self.at = byte;
+/// Where a row stands in the file.
+#[derive(Clone, Copy)]
+struct Place {
+    line: u64,
+    /// False for a last line with no line end (a recording cut off mid-row).
+    ended: bool,
+    /// True when the next line is a `# resumed` line.
+    before_resuming: bool,
+}
+
+/// The log's lines one at a time, with one line of look-ahead.
+struct Lines<'a, R> {
+    input: R,
+    origin: &'a str,
+    number: u64,
+    ahead: Option<Line>,
+    bytes: Vec<u8>,
+}
+
+impl<'a, R: BufRead> Lines<'a, R> {
+    fn new(input: R, origin: &'a str) -> Self {
+        Lines {
+            input,
+            origin,
+            number: 0,
+            ahead: None,
+            bytes: Vec::new(),
+        }
     }
 
-    /// The `#` lines from here up to the next other line (blank lines passed over), each
-    /// with its line number.
-    fn skip_comments(&mut self) -> Vec<(u64, &'a str)> {
-        let mut comments = Vec::new();
-        while self.at < self.text.len() {
-            let rest = &self.text[self.at..];
-            // Most records are rows: no need to find their end.
-            if !rest.starts_with(['#', '\n', '\r']) {
-                break;
-            }
-            let end = rest.find('\n').map_or(rest.len(), |i| i + 1);
-            let line = rest[..end].trim_end_matches(['\n', '\r']);
-            if line.starts_with('#') {
-                comments.push((self.line, line));
-            } else if !line.is_empty() {
-                break;
-            }
-            self.move_to(self.at + end);
+    fn peek(&mut self) -> Result<Option<&Line>, LogError> {
+        if self.ahead.is_none() {
+            self.ahead = self.read()?;
         }
-        comments
+        Ok(self.ahead.as_ref())
     }
+
+    fn next(&mut self) -> Result<Option<Line>, LogError> {
+        match self.ahead.take() {
+            Some(line) => Ok(Some(line)),
+            None => self.read(),
+        }
+    }
+
+    fn read(&mut self) -> Result<Option<Line>, LogError> {
+        self.bytes.clear();
+        let read =
+            self.input
+                .read_until(b'\n', &mut self.bytes)
+                .map_err(|e| LogError::Unreadable {
+                    origin: self.origin.into(),
+                    line: self.number + 1,
+                    why: e.to_string(),
+                })?;
+        if read == 0 {
+            return Ok(None);
+        }
+        self.number += 1;
+        let ended = self.bytes.ends_with(b"\n");
+        let text = std::str::from_utf8(&self.bytes).map_err(|_| LogError::NotText {
+            origin: self.origin.into(),
+            line: self.number,
+        })?;
+        Ok(Some(Line {
+            number: self.number,
+            text: text.trim_end_matches(['\n', '\r']).to_string(),
+            ended,
+        }))
+    }
+}
+
+/// The cells of a row: split at commas, or read as CSV when the line holds quotes (which
+/// dbtrail never writes, but a spreadsheet may).
+fn split_cells(line: &str, record: &mut csv::StringRecord) -> Result<(), csv::Error> {
+    record.clear();
+    if !line.contains('"') {
+        for cell in line.split(',') {
+            record.push_field(cell);
+        }
+        return Ok(());
+    }
+    let mut csv = csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .from_reader(line.as_bytes());
+    csv.read_record(record).map(|_| ())
 }
 
 impl Current {
-    fn new(number: usize, first_line: u64, context: Vec<(u64, String)>) -> Self {
+    fn new(
+        number: usize,
+        first_line: u64,
+        context: Vec<(u64, String)>,
+        reduction: Reduction,
+    ) -> Self {
         let (context_at, context): (Vec<u64>, Vec<String>) = context.into_iter().unzip();
         Current {
             context_at,
@@ -188,12 +258,14 @@ impl Current {
                 per_sample: false,
                 rows: Vec::new(),
                 resumed_lines: Vec::new(),
+                reduced_to_s: None,
             },
             declared: Declared::Unknown,
             base: None,
             offset: 0.0,
             last: None,
             leg_start: false,
+            folder: Folder::new(reduction, None),
         }
     }
 }
@@ -230,17 +302,13 @@ impl Reader<'_> {
         )
     }
 
-    /// Takes one record: the column header, a later one at a resumed leg, or a row;
-    /// `rest` is the text from its line on.
-    fn record(
-        &mut self,
-        record: &csv::StringRecord,
-        line: u64,
-        rest: &str,
-    ) -> Result<(), LogError> {
+    /// Takes one record: the column header, a later one at a resumed leg, or a row.
+    fn record(&mut self, record: &csv::StringRecord, place: Place) -> Result<(), LogError> {
+        let line = place.line;
         if self.columns.is_none() {
             let columns = columns(record, line, self.channel, self.origin)?;
-            self.current.declare(&columns, self.origin)?;
+            self.current
+                .declare(&columns, self.reduction, self.origin)?;
             self.columns = Some(columns);
             return Ok(());
         }
@@ -258,13 +326,16 @@ impl Reader<'_> {
             self.begin_leg(pending)?;
         }
         let columns = self.columns.as_ref().expect("set at the header");
-        if cut_before_resuming(record, columns, rest) {
+        // A row cut part-way when a recording stopped, which the next run's `# resumed`
+        // line follows on a line of its own (`record --append` never joins them): passed
+        // over.
+        if record.len() < columns.width && place.before_resuming {
             return Ok(());
         }
-        let mut row = parse_row(record, columns, line, rest, self.origin)?;
+        let mut row = parse_row(record, columns, place, self.origin)?;
         row.t += self.current.offset;
         self.current.check_order(row.t, line, self.origin)?;
-        self.current.run.rows.push(row);
+        self.current.folder.push(row);
         Ok(())
     }
 
@@ -276,9 +347,9 @@ impl Reader<'_> {
         let fresh: Vec<String> = pending.context.iter().map(|(_, l)| l.clone()).collect();
         if changes(&fresh, &run.context) || columns.per_sample != run.per_sample {
             let context = self.current.carried_into(pending.context);
-            let mut next = Current::new(run.number + 1, pending.line, context);
+            let mut next = Current::new(run.number + 1, pending.line, context, self.reduction);
             next.base = next.base.or(pending.stamp);
-            next.declare(columns, self.origin)?;
+            next.declare(columns, self.reduction, self.origin)?;
             let done = std::mem::replace(&mut self.current, next);
             self.done.push(done.finish());
             return Ok(());
@@ -322,7 +393,12 @@ impl Reader<'_> {
 
 impl Current {
     /// Takes the run's spacing from its `#` lines and the columns' format.
-    fn declare(&mut self, columns: &Columns, origin: &str) -> Result<(), LogError> {
+    fn declare(
+        &mut self,
+        columns: &Columns,
+        reduction: Reduction,
+        origin: &str,
+    ) -> Result<(), LogError> {
         self.base = context_value(&self.run.context, "started:")
             .and_then(parse_utc)
             .or(self.base);
@@ -338,6 +414,11 @@ impl Current {
         } else {
             interval_from_context(&self.run.context).map_or(Declared::Unknown, Declared::Interval)
         };
+        let interval = match self.declared {
+            Declared::Interval(s) => Some(s),
+            _ => None,
+        };
+        self.folder = Folder::new(reduction, interval);
         Ok(())
     }
 
@@ -420,13 +501,23 @@ impl Current {
 
     fn finish(self) -> Run {
         let mut run = self.run;
-        run.spacing = match self.declared {
-            Declared::Interval(s) => Spacing::Interval(s),
-            Declared::Rate(r) => Spacing::Rate(r),
-            Declared::Clock => Spacing::Clock(median_clock_step(&run.rows)),
-            Declared::Unknown => Spacing::MedianStep(median_step(&run.rows)),
+        run.reduced_to_s = self.folder.width_s();
+        run.rows = self.folder.into_rows();
+        run.spacing = match (run.reduced_to_s, self.declared) {
+            (Some(width), _) => Spacing::Interval(width),
+            (None, declared) => declared_spacing(declared, &run.rows),
         };
         run
+    }
+}
+
+/// The spacing of rows as logged: as the `#` lines declare it, or judged from the times.
+fn declared_spacing(declared: Declared, rows: &[LogRow]) -> Spacing {
+    match declared {
+        Declared::Interval(s) => Spacing::Interval(s),
+        Declared::Rate(r) => Spacing::Rate(r),
+        Declared::Clock => Spacing::Clock(median_clock_step(rows)),
+        Declared::Unknown => Spacing::MedianStep(median_step(rows)),
     }
 }
 
@@ -480,23 +571,16 @@ fn columns(
     })
 }
 
-/// A row cut part-way when a recording stopped, which the next run's `# resumed` line
-/// follows on a line of its own (`record --append` never joins them): passed over.
-fn cut_before_resuming(record: &csv::StringRecord, cols: &Columns, rest: &str) -> bool {
-    let next = rest.find('\n').map(|end| &rest[end + 1..]);
-    record.len() < cols.width && next.is_some_and(|next| next.starts_with("# resumed"))
-}
-
 fn parse_row(
     record: &csv::StringRecord,
     cols: &Columns,
-    line: u64,
-    rest: &str,
+    place: Place,
     origin: &str,
 ) -> Result<LogRow, LogError> {
+    let line = place.line;
     if record.len() != cols.width {
         // A short last line with no line end: the recording was cut off mid-row.
-        let message = if !rest.contains('\n') {
+        let message = if !place.ended {
             "the file ends part-way through this row (was the recording cut off?); remove the last line, or use --to to stop before it".to_string()
         } else {
             format!(
@@ -746,4 +830,73 @@ fn median_step(rows: &[LogRow]) -> f64 {
         .collect();
     steps.sort_by(f64::total_cmp);
     steps.get(steps.len() / 2).copied().unwrap_or(1.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// A cell as a log or a spreadsheet may hold it, commas and quotes left out (a line
+    /// with a quote goes to the CSV reader itself).
+    fn cell() -> impl Strategy<Value = String> {
+        "[ a-z0-9.|+\\-\\t]{0,8}"
+    }
+
+    proptest! {
+        // Source: the csv crate's reader, which the rows went through before: splitting
+        // a line without quotes at its commas gives the cells it gives.
+        #[test]
+        fn splitting_at_commas_gives_the_csv_readers_cells(
+            cells in proptest::collection::vec(cell(), 1..10),
+        ) {
+            let line = cells.join(",");
+            let mut split = csv::StringRecord::new();
+            split_cells(&line, &mut split).unwrap();
+            let mut reference = csv::StringRecord::new();
+            csv::ReaderBuilder::new()
+                .has_headers(false)
+                .flexible(true)
+                .from_reader(line.as_bytes())
+                .read_record(&mut reference)
+                .unwrap();
+            if line.trim().is_empty() && cells.len() == 1 {
+                // The csv reader skips an empty line; the log reader never sends one.
+                return Ok(());
+            }
+            prop_assert_eq!(split, reference);
+        }
+
+        // Source: the same bytes read whole: a log read through a buffer of a few bytes,
+        // so that lines break across reads, gives the same runs, or the same error.
+        #[test]
+        fn a_log_read_in_small_pieces_reads_as_the_whole(
+            steps in proptest::collection::vec((0u32..3, proptest::option::of(-50.0..20.0f64)), 1..40),
+            bad_at in proptest::option::of(0usize..40),
+            capacity in 1usize..40,
+        ) {
+            let mut text = String::from(
+                "# dbtrail 0.1.0 record\n# profile: p; sha256 0\n# stamps: at 10 samples/s\n\
+                 time_s,counts,volts,dbm,flags,bound,u_db\n",
+            );
+            let mut k = 0;
+            for (i, (step, dbm)) in steps.iter().enumerate() {
+                k += step + 1;
+                let cell = match (bad_at == Some(i), dbm) {
+                    (true, _) => "x".to_string(),
+                    (false, Some(d)) => format!("{d:.4}"),
+                    (false, None) => String::new(),
+                };
+                text.push_str(&format!("{:.6},1,0.5,{cell},,,0.4\n", f64::from(k) / 10.0));
+            }
+            let whole = read_runs(text.as_bytes(), "t.csv", 1, Reduction::default());
+            let pieces = read_runs(
+                std::io::BufReader::with_capacity(capacity, text.as_bytes()),
+                "t.csv",
+                1,
+                Reduction::default(),
+            );
+            prop_assert_eq!(whole, pieces);
+        }
+    }
 }

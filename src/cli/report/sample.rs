@@ -51,6 +51,7 @@ pub fn warm_run(hours: f64) -> (Run, Report) {
         });
     let report = Report {
         duration_s: n as f64 * 10.0,
+        reduced_to_s: None,
         samples: 10_000 * n as u64,
         mean_dbm: Some(29.7),
         mean_w: Some(0.933),
@@ -106,6 +107,7 @@ pub fn warm_run(hours: f64) -> (Run, Report) {
         per_sample: false,
         rows,
         resumed_lines: Vec::new(),
+        reduced_to_s: None,
     };
     (run, report)
 }

@@ -80,16 +80,20 @@ fn labelled(label: &str, value: &str) -> String {
     out
 }
 
+/// A step in time: in seconds under a minute, else in minutes and hours, which `--from`
+/// reads back.
+fn step_words(s: f64) -> String {
+    if s < 60.0 {
+        Si::new(s, "s").to_string()
+    } else {
+        human_duration(s)
+    }
+}
+
 /// How the rows are spaced, in words: `rows of 10 s`, `rows, one per sample at 1000
 /// samples/s`. Long intervals in minutes and hours, which `--from` reads back.
 fn spacing_words(spacing: Spacing) -> String {
-    let step = |s: f64| {
-        if s < 60.0 {
-            Si::new(s, "s").to_string()
-        } else {
-            human_duration(s)
-        }
-    };
+    let step = step_words;
     match spacing {
         Spacing::Interval(s) | Spacing::MedianStep(s) => format!("rows of {}", step(s)),
         Spacing::Rate(rate) => format!("rows, one per sample at {rate} samples/s"),
@@ -294,11 +298,18 @@ fn context_lines(run: &Run) -> String {
 pub fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
     let tol = options.settle_tol_db;
     let rows = span_rows(run, options).len();
+    let spacing = match run.reduced_to_s {
+        Some(width) => format!(
+            "intervals of {}, the log's {} folded into them as it was read (--every sets the width)",
+            step_words(width),
+            if run.per_sample { "samples" } else { "rows" }
+        ),
+        None => spacing_words(run.spacing),
+    };
     let span = format!(
-        "{} from {:.0} s, {rows} {}",
+        "{} from {:.0} s, {rows} {spacing}",
         clock(r.duration_s),
         r.start_s,
-        spacing_words(run.spacing)
     );
     let lines = [
         ("span", span),
