@@ -91,7 +91,8 @@ pub fn plot(
     drawn.with_context(|| format!("cannot draw the plot to {}", path.display()))
 }
 
-/// The title: the frequency first, then the profile's name and the start, from the log's
+/// The title: a word that fits every log (a soak, an overload test, a quick check), the
+/// frequency, then the profile's name and the start, from the log's
 /// context lines.
 pub fn title(run: &Run) -> String {
     let first_part = |key: &str| {
@@ -105,7 +106,7 @@ pub fn title(run: &Run) -> String {
     let started = run
         .context_value("started:")
         .map_or(String::new(), |s| format!(" · started {}", readable_utc(s)));
-    format!("Soak at {frequency} · {profile}{started}")
+    format!("Power at {frequency} · {profile}{started}")
 }
 
 /// A start stamp as `record` writes it (`2026-12-02T21:05:35.858Z`) in plainer form,
@@ -804,7 +805,7 @@ mod tests {
             let svg = svg_of(&run, &report, (width, height));
             let all = texts(&svg);
             assert!(
-                all.iter().any(|t| t.4.starts_with("Soak at 433.92MHz")),
+                all.iter().any(|t| t.4.starts_with("Power at 433.92MHz")),
                 "{hours} h"
             );
             let areas = panels(&svg);
