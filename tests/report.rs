@@ -1264,6 +1264,40 @@ fn a_soak_cut_short_in_its_warm_up_says_what_it_cannot_tell() {
     assert!(value["drift_db_per_hour"].is_null(), "{value}");
 }
 
+/// A demo soak recorded `--fast` for `duration`, one row per `every`.
+fn demo_soak(name: &str, duration: &str, every: &str) -> PathBuf {
+    let log = scratch(name).join("soak.csv");
+    let recorded = dbtrail(&[
+        "record",
+        "--demo",
+        "soak",
+        "--fast",
+        "--duration",
+        duration,
+        "--every",
+        every,
+        "--force",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(recorded.status.success(), "{recorded:?}");
+    log
+}
+
+/// `report --plot` of `log` as SVG: the drawing's text.
+fn svg_of_log(log: &std::path::Path) -> String {
+    let svg = log.with_extension("svg");
+    let plotted = dbtrail(&[
+        "report",
+        log.to_str().unwrap(),
+        "--plot",
+        svg.to_str().unwrap(),
+        "--force",
+    ]);
+    assert!(plotted.status.success(), "{plotted:?}");
+    std::fs::read_to_string(&svg).unwrap()
+}
+
 /// The value of the text report's line labelled `label`, its wrapped lines joined.
 fn text_line(text: &str, label: &str) -> String {
     let mut lines = text
@@ -1324,16 +1358,7 @@ fn the_overload_demo_reports_its_highest_reading_as_a_bound_and_marks_the_rows()
         text_line(&text, "min / max").contains(" / at least +"),
         "{text}"
     );
-    let svg = log.with_extension("svg");
-    let plotted = dbtrail(&[
-        "report",
-        log.to_str().unwrap(),
-        "--plot",
-        svg.to_str().unwrap(),
-        "--force",
-    ]);
-    assert!(plotted.status.success(), "{plotted:?}");
-    let drawing = std::fs::read_to_string(&svg).unwrap();
+    let drawing = svg_of_log(&log);
     assert!(
         drawing.contains("row of at-least bounds"),
         "no legend entry"
@@ -1368,29 +1393,14 @@ fn too_few_rows_for_the_warm_up_model_leave_settling_unknown() {
     );
 }
 
-// Source: the demo soak's warm-up (τ = 480 s in src/sim.rs, from memory of that file) and
+// Source: the demo soak's warm-up (τ = 480 s in src/sim.rs) and
 // the rule in docs/report.md ("Settled"): two minutes of it are mid warm-up, rising
 // several dB an hour. The warm-up model can try τ only up to the span, so its best fit
 // has a small A at τ = 120 s and the slow rise shows as the line's drift: the span is too
 // short to tell them apart, and the run must not be called settled (before, it was).
 #[test]
 fn a_two_minute_soak_mid_warm_up_is_not_called_settled() {
-    let dir = scratch("two-minutes");
-    let log = dir.join("soak.csv");
-    let recorded = dbtrail(&[
-        "record",
-        "--demo",
-        "soak",
-        "--fast",
-        "--duration",
-        "2m",
-        "--every",
-        "0",
-        "--force",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
-    assert!(recorded.status.success(), "{recorded:?}");
+    let log = demo_soak("two-minutes", "2m", "0");
     let value = json_of(&dbtrail(&["report", log.to_str().unwrap(), "--json"]));
     assert!(value["settled_after_s"].is_null(), "{value}");
     assert!(
@@ -1444,22 +1454,7 @@ fn a_short_span_says_its_rows_without_times_from_its_own_start() {
 // whole-span drift spoke of `more than half of the 120 there`.
 #[test]
 fn the_model_and_bandwidth_messages_use_the_span_line_and_plain_words() {
-    let dir = scratch("plain-words");
-    let log = dir.join("short.csv");
-    let recorded = dbtrail(&[
-        "record",
-        "--demo",
-        "soak",
-        "--fast",
-        "--duration",
-        "20m",
-        "--every",
-        "10s",
-        "--force",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
-    assert!(recorded.status.success(), "{recorded:?}");
+    let log = demo_soak("plain-words", "20m", "10s");
     let out = dbtrail(&["report", log.to_str().unwrap()]);
     let text = String::from_utf8_lossy(&out.stdout);
     let model = text_line(&text, "model");
@@ -1478,16 +1473,7 @@ fn the_model_and_bandwidth_messages_use_the_span_line_and_plain_words() {
 #[test]
 fn the_plot_title_fits_an_overload_run_too() {
     let (log, _) = overload_log("overload-title", "5s", "30s");
-    let svg = log.with_extension("svg");
-    let plotted = dbtrail(&[
-        "report",
-        log.to_str().unwrap(),
-        "--plot",
-        svg.to_str().unwrap(),
-        "--force",
-    ]);
-    assert!(plotted.status.success(), "{plotted:?}");
-    let drawing = std::fs::read_to_string(&svg).unwrap();
+    let drawing = svg_of_log(&log);
     assert!(drawing.contains("Power at 146MHz · demo-diode"), "no title");
     assert!(
         !drawing.contains("Soak at"),
