@@ -291,8 +291,18 @@ pub struct Report {
     pub u_leaves_out: Option<String>,
     /// Lowest reading, dBm.
     pub min_dbm: f64,
+    /// Null when the lowest reading is a value; `at-least` when it comes from a row of
+    /// at-least bounds, `at-most` when a row of at-most bounds may hide a lower one,
+    /// `none` when both (docs/report.md, "Bounds").
+    #[serde(serialize_with = "bound_cell")]
+    pub min_bound: Bound,
     /// Highest reading, dBm.
     pub max_dbm: f64,
+    /// Null when the highest reading is a value; `at-least` when a row of at-least
+    /// bounds may hide a higher one, `at-most` when it comes from a row of at-most
+    /// bounds, `none` when both.
+    #[serde(serialize_with = "bound_cell")]
+    pub max_bound: Bound,
     /// Highest minus lowest, dB.
     pub pk_pk_db: f64,
     /// Standard deviation of the interval means, dB.
@@ -339,8 +349,10 @@ pub struct Report {
     #[serde(skip)]
     pub fit: SoakFit,
     /// Seconds from the start after which the run is settled: `warmup_s` (null when that
-    /// lies past the span's end), or 0 for a line; null for a line chosen because the
-    /// warm-up fitted is too slow for the span, so the run was not seen to settle.
+    /// lies past the span's end), or 0 for a line whose warm-up fitted is within the
+    /// tolerance; null for a line chosen because the warm-up fitted is too slow for the
+    /// span, so the run was not seen to settle, or when the warm-up model could not be
+    /// tried or judged (`fit.warmup_tested` false).
     pub settled_after_s: Option<f64>,
     /// Gaps: stretches of missing or gap-flagged rows.
     pub gaps: u64,
@@ -448,6 +460,10 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         .iter()
         .filter_map(|r| r.max_dbm.or(r.mean_dbm))
         .fold(f64::NEG_INFINITY, f64::max);
+    let extremes = |of: fn(&LogRow) -> Option<f64>| {
+        rows.iter()
+            .filter_map(move |r| of(r).or(r.mean_dbm).map(|v| (v, r.part_in_bound())))
+    };
     let means: Vec<f64> = valid.iter().map(|(_, m)| *m).collect();
     let hours: Vec<f64> = valid.iter().map(|(t, _)| (t - start) / 3600.0).collect();
     let line = fit_line(&hours, &means);
@@ -477,7 +493,8 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
     }
     let settled_after_s = match fit.warmup_s {
         Some(t) => (t <= end - start).then_some(t),
-        None => (!fit.still_warming).then_some(0.0),
+        // Only a warm-up model fitted and found within the tolerance shows settling.
+        None => (fit.warmup_tested && !fit.still_warming).then_some(0.0),
     };
     Ok(Report {
         duration_s: end - start,
@@ -492,7 +509,9 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
             .and_then(|line| line.split_once("leaves out:"))
             .map(|(_, terms)| terms.trim().to_string()),
         min_dbm,
+        min_bound: extreme_bound(extremes(|r| r.min_dbm), min_dbm, Bound::AtMost),
         max_dbm,
+        max_bound: extreme_bound(extremes(|r| r.max_dbm), max_dbm, Bound::AtLeast),
         pk_pk_db: max_dbm - min_dbm,
         std_db: std_dev(&means),
         model: fit.model,
@@ -519,6 +538,30 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         start_s: start,
         gap_spans,
     })
+}
+
+/// Whether a lowest (or highest) figure `extreme` among `parts` (value and bound) is a
+/// value or a bound, by the rule in docs/recording.md that a row of at-least samples has
+/// at-least extremes and a row of at-most samples at-most ones: any part bounded
+/// `beyond` (the way past the extreme: at-most for the lowest) or both ways may hide a
+/// figure past it, and an extreme that no exact part (nor one bounded `beyond`) reaches
+/// may itself lie the other way.
+pub fn extreme_bound(
+    parts: impl Iterator<Item = (f64, Bound)>,
+    extreme: f64,
+    beyond: Bound,
+) -> Bound {
+    let (mut past, mut pinned) = (false, false);
+    for (value, part) in parts {
+        past |= part == beyond || part == Bound::Unknown;
+        pinned |= value == extreme && (part == Bound::Exact || part == beyond);
+    }
+    let toward = match beyond {
+        Bound::AtMost => Bound::AtLeast,
+        _ => Bound::AtMost,
+    };
+    let from_past = if past { beyond } else { Bound::Exact };
+    from_past.join(if pinned { Bound::Exact } else { toward })
 }
 
 /// The expanded uncertainty of the mean power from the rows' own, each taken as wholly

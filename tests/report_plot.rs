@@ -60,7 +60,7 @@ fn the_report_says_where_the_plot_went_and_titles_it_with_the_frequency() {
         .unwrap();
     assert_eq!(
         title,
-        "Soak at 146MHz · synthetic · started 2026-12-02 10:00:00 UTC"
+        "Power at 146MHz · synthetic · started 2026-12-02 10:00:00 UTC"
     );
     // No plot asked for: nothing on standard error.
     let quiet = common::bin()

@@ -369,7 +369,7 @@ fn a_run_too_short_after_its_warmup_gets_no_drift_and_says_why() {
     // that are a curve, correlated over more than half the rows: the second rule.
     assert_eq!(report.drift_whole_db_per_hour, None);
     let whole = report.drift_whole_missing.unwrap();
-    assert!(whole.contains("more than half of the 60"), "{whole}");
+    assert!(whole.contains("against 60): record longer"), "{whole}");
     // With the rule's own count the drift is given: 30 rows from the warm-up time on.
     let longer = times(65);
     let report = report_of(&longer, &level(&longer));

@@ -5,7 +5,9 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 
 use anyhow::{anyhow, Context};
-use dbtrail::report::{analyse, read_log_folded, span_rows, Reduction, Report, ReportOptions, Run};
+use dbtrail::report::{
+    analyse, extreme_bound, read_log_folded, span_rows, Reduction, Report, ReportOptions, Run,
+};
 use dbtrail::stats::Bound;
 use dbtrail::units::{format_clock, parse_duration, watts_to_dbm};
 use serde::Serialize;
@@ -341,7 +343,12 @@ pub(crate) struct Together {
     #[serde(skip)]
     bound: Bound,
     min_dbm: f64,
+    /// As in a run.
+    #[serde(serialize_with = "bound_cell")]
+    pub(crate) min_bound: Bound,
     max_dbm: f64,
+    #[serde(serialize_with = "bound_cell")]
+    pub(crate) max_bound: Bound,
     pk_pk_db: f64,
     gaps: u64,
     gap_s: f64,
@@ -380,6 +387,16 @@ fn together(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> Toget
         .iter()
         .map(|r| r.max_dbm)
         .fold(f64::NEG_INFINITY, f64::max);
+    let min_bound = extreme_bound(
+        reports.iter().map(|r| (r.min_dbm, r.min_bound)),
+        min_dbm,
+        Bound::AtMost,
+    );
+    let max_bound = extreme_bound(
+        reports.iter().map(|r| (r.max_dbm, r.max_bound)),
+        max_dbm,
+        Bound::AtLeast,
+    );
     let mut flagged_rows = BTreeMap::new();
     for (flag, n) in reports.iter().flat_map(|r| &r.flagged_rows) {
         *flagged_rows.entry(flag.clone()).or_insert(0) += n;
@@ -392,11 +409,21 @@ fn together(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> Toget
         mean_bound: (bound != Bound::Exact).then(|| bound.cell()),
         bound,
         min_dbm,
+        min_bound,
         max_dbm,
+        max_bound,
         pk_pk_db: max_dbm - min_dbm,
         gaps: reports.iter().map(|r| r.gaps).sum(),
         gap_s: reports.iter().map(|r| r.gap_s).sum(),
         flagged_rows,
+    }
+}
+
+/// A bound in JSON: null for a value, else the log's cell text.
+fn bound_cell<S: serde::Serializer>(bound: &Bound, serializer: S) -> Result<S::Ok, S::Error> {
+    match bound {
+        Bound::Exact => serializer.serialize_none(),
+        other => serializer.serialize_str(other.cell()),
     }
 }
 

@@ -44,6 +44,12 @@ pub struct SoakFit {
     /// True for a line chosen because the warm-up fitted, beyond the tolerance, is too
     /// slow for the span (τ over a third of it): the run was not seen to settle.
     pub still_warming: bool,
+    /// True when the warm-up model was fitted and its figures tell whether a warm-up
+    /// beyond the tolerance is there: chosen, found within the tolerance, or found under
+    /// way but too slow. False when it could not be tried or judged (too few rows, no
+    /// convergence, parameters not determined, A or τ not clear of none, or a span too
+    /// short to tell a warm-up from the drift); `choice` says why.
+    pub warmup_tested: bool,
 }
 
 impl SoakFit {
@@ -111,15 +117,18 @@ pub fn fit(t_s: &[f64], dbm: &[f64], u_db: &[Option<f64>], tol_db: f64) -> SoakF
         warmup: None,
         warmup_s: None,
         still_warming: false,
+        warmup_tested: false,
     };
     let candidate = match rows.warmup_candidate() {
         Ok(candidate) => candidate,
         Err(why) => return line(why),
     };
-    match candidate.judge(rows.span_s(), tol_db) {
-        Err(why) => SoakFit {
+    match candidate.judge(rows.span_s(), tol_db, slope) {
+        Err(Untold(why)) => line(why),
+        Err(Told(why)) => SoakFit {
             still_warming: candidate.warmup.amplitude_db.abs() > tol_db
                 && SPAN_TAUS * candidate.warmup.tau_s > rows.span_s(),
+            warmup_tested: true,
             ..line(why)
         },
         Ok(words) => SoakFit {
@@ -130,6 +139,7 @@ pub fn fit(t_s: &[f64], dbm: &[f64], u_db: &[Option<f64>], tol_db: f64) -> SoakF
             warmup: Some(candidate.warmup),
             warmup_s: Some(warmup_time_s(candidate.warmup, tol_db)),
             still_warming: false,
+            warmup_tested: true,
         },
     }
 }
@@ -220,7 +230,8 @@ impl<'a> Rows<'a> {
         let span = self.span_s();
         if n < MIN_WARMUP_ROWS || span.is_nan() || span <= 0.0 {
             return Err(format!(
-                "{n} rows are too few for the warm-up model (it needs {MIN_WARMUP_ROWS})"
+                "{} too few for the warm-up model (it needs {MIN_WARMUP_ROWS})",
+                rows_are(n)
             ));
         }
         let tau_lo = span / (n - 1) as f64;
@@ -323,21 +334,40 @@ struct Candidate {
     widening: f64,
 }
 
+/// Why the warm-up model was not chosen: its figures tell (no warm-up beyond the
+/// tolerance, or one too slow for the span), or they cannot.
+enum Rejection {
+    Told(String),
+    Untold(String),
+}
+use Rejection::{Told, Untold};
+
 impl Candidate {
     /// The warm-up model's figures in words when it passes every test, else the one
-    /// it failed.
-    fn judge(&self, span_s: f64, tol_db: f64) -> Result<String, String> {
+    /// it failed. `line_slope` is the straight line's, dB per second: a warm-up slower
+    /// than the span looks like that drift, so a small A at a τ too long to see proves
+    /// nothing while the line moves beyond the tolerance over the span.
+    fn judge(&self, span_s: f64, tol_db: f64, line_slope: f64) -> Result<String, Rejection> {
         let (a, tau) = (self.warmup.amplitude_db, self.warmup.tau_s);
+        let unseen = SPAN_TAUS * tau > span_s;
+        let line_moves = (line_slope * span_s).abs();
+        if a.abs() <= tol_db && unseen && line_moves > tol_db {
+            return Err(Untold(format!(
+                "the span is too short to tell a warm-up from the drift: the best warm-up \
+                 fitted, τ = {tau:.0} s, is longer than a third of the span, and \
+                 the line moves {line_moves:.3} dB over it, beyond the settle tolerance ±{tol_db} dB"
+            )));
+        }
         if a.abs() <= tol_db {
-            return Err(format!(
+            return Err(Told(format!(
                 "the warm-up term fitted, |A| = {:.3} dB, is within the settle tolerance ±{tol_db} dB",
                 a.abs()
-            ));
+            )));
         }
-        if SPAN_TAUS * tau > span_s {
-            return Err(format!(
-                "the warm-up fitted, τ = {tau:.0} s, is longer than a third of the {span_s:.0} s span"
-            ));
+        if unseen {
+            return Err(Told(format!(
+                "the warm-up fitted, τ = {tau:.0} s, is longer than a third of the span"
+            )));
         }
         let clear = |value: f64, se: f64| se.is_finite() && value.abs() >= MEANINGFUL_RATIO * se;
         let errors = format!(
@@ -345,12 +375,12 @@ impl Candidate {
             self.amplitude_stderr_db, self.tau_stderr_s, self.widening, self.rho
         );
         if !clear(a, self.amplitude_stderr_db) || !clear(tau, self.tau_stderr_s) {
-            return Err(format!(
+            return Err(Untold(format!(
                 "the warm-up fitted is not {MEANINGFUL_RATIO} standard errors clear of none: {errors}"
-            ));
+            )));
         }
         Ok(format!(
-            "{errors}; |A| beyond the ±{tol_db} dB tolerance and τ within a third of the {span_s:.0} s span"
+            "{errors}; |A| beyond the ±{tol_db} dB tolerance and τ within a third of the span"
         ))
     }
 }
@@ -375,17 +405,24 @@ pub fn drift(t_s: &[f64], dbm: &[f64], from_s: f64) -> Result<Drift, String> {
         .filter(|(t, _)| **t >= from_s)
         .map(|(t, m)| (*t / 3600.0, *m))
         .unzip();
+    // Times from the span's start would read as times of the run: name the stretch.
+    let stretch = if from_s > 0.0 {
+        "after the warm-up"
+    } else {
+        "in the span"
+    };
     if t.len() < MIN_DRIFT_ROWS {
         return Err(format!(
-            "only {} rows from {from_s:.0} s on, and a drift needs at least {MIN_DRIFT_ROWS}; record longer or give a longer span",
-            t.len()
+            "only {} {stretch}, and a drift needs at least {MIN_DRIFT_ROWS}; record longer or give a longer span",
+            count_rows(t.len())
         ));
     }
     let hac = prewhitened_slope(&t, &m)
-        .ok_or_else(|| format!("the rows from {from_s:.0} s on have no spread in time"))?;
+        .ok_or_else(|| format!("the rows {stretch} have no spread in time"))?;
     if hac.lags * 2 > t.len() {
         return Err(format!(
-            "the residuals from {from_s:.0} s on are correlated over {} rows, more than half of the {} there; record longer",
+            "the residuals {stretch} stay correlated over longer than the stretch itself can show \
+             (about {} rows against {}): record longer",
             hac.lags,
             t.len()
         ));
@@ -397,6 +434,20 @@ pub fn drift(t_s: &[f64], dbm: &[f64], from_s: f64) -> Result<Drift, String> {
         from_s,
         to_s: t.last().map_or(from_s, |t| t * 3600.0),
     })
+}
+
+/// `1 row`, `6 rows`.
+fn count_rows(n: usize) -> String {
+    if n == 1 {
+        "1 row".into()
+    } else {
+        format!("{n} rows")
+    }
+}
+
+/// `1 row is`, `6 rows are`.
+fn rows_are(n: usize) -> String {
+    format!("{} {}", count_rows(n), if n == 1 { "is" } else { "are" })
 }
 
 /// A least-squares slope with its heteroscedasticity-and-autocorrelation-consistent

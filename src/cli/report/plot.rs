@@ -7,7 +7,8 @@ use std::path::Path;
 
 use anyhow::{anyhow, Context};
 use dbtrail::report::soak::SoakModel;
-use dbtrail::report::{decimate, span_rows, Report, ReportOptions, Run};
+use dbtrail::report::{decimate, span_rows, LogRow, Report, ReportOptions, Run};
+use dbtrail::stats::Bound;
 use dbtrail::units::format_clock;
 use plotters::chart::MeshStyle;
 use plotters::coord::ranged1d::{DefaultFormatting, KeyPointHint};
@@ -34,6 +35,11 @@ const MODEL: RGBColor = RGBColor(0xD5, 0x5E, 0x00);
 const DRIFT: RGBColor = RGBColor(0x00, 0x9E, 0x73);
 /// The warm-up's shading: Okabe–Ito orange.
 const WARMUP: RGBColor = RGBColor(0xE6, 0x9F, 0x00);
+/// Rows whose figures are bounds, not values: Okabe–Ito reddish purple, a triangle
+/// pointing the way the true figure may lie (up for at least, down for at most).
+const BOUND_MARK: RGBColor = RGBColor(0xCC, 0x79, 0xA7);
+/// The bound markers' half size, pixels.
+const MARK_PX: i32 = 5;
 /// Gaps: a neutral grey, since no data is there.
 const GAP: RGBColor = RGBColor(0x99, 0x99, 0x99);
 /// The plotting areas' background, a shade off white so the panels read as panels.
@@ -91,7 +97,8 @@ pub fn plot(
     drawn.with_context(|| format!("cannot draw the plot to {}", path.display()))
 }
 
-/// The title: the frequency first, then the profile's name and the start, from the log's
+/// The title: a word that fits every log (a soak, an overload test, a quick check), the
+/// frequency, then the profile's name and the start, from the log's
 /// context lines.
 pub fn title(run: &Run) -> String {
     let first_part = |key: &str| {
@@ -105,7 +112,7 @@ pub fn title(run: &Run) -> String {
     let started = run
         .context_value("started:")
         .map_or(String::new(), |s| format!(" · started {}", readable_utc(s)));
-    format!("Soak at {frequency} · {profile}{started}")
+    format!("Power at {frequency} · {profile}{started}")
 }
 
 /// A start stamp as `record` writes it (`2026-12-02T21:05:35.858Z`) in plainer form,
@@ -195,10 +202,13 @@ fn time_ticks(from: f64, to: f64, unit: &str, most: usize) -> (Vec<f64>, usize) 
 enum Swatch {
     Line(RGBColor),
     Patch(RGBColor, f64),
+    /// A bound marker: pointing up for at least, down for at most.
+    Mark(Bound),
 }
 
 /// The legend's entries, in the order they are drawn.
-fn legend_entries(report: &Report, options: &ReportOptions) -> Vec<(String, Swatch)> {
+fn legend_entries(run: &Run, report: &Report, options: &ReportOptions) -> Vec<(String, Swatch)> {
+    let rows = span_rows(run, options);
     let model = match report.model {
         SoakModel::Line => "model: a straight line",
         SoakModel::Warmup => "model: warm-up on a drift",
@@ -230,10 +240,59 @@ fn legend_entries(report: &Report, options: &ReportOptions) -> Vec<(String, Swat
             Swatch::Patch(WARMUP, 0.25),
         ));
     }
+    for (bound, label) in [
+        (
+            Bound::AtLeast,
+            "row of at-least bounds (clip or above span)",
+        ),
+        (Bound::AtMost, "row of at-most bounds (below span)"),
+        (Bound::Unknown, "row of bounds both ways"),
+    ] {
+        if rows
+            .iter()
+            .any(|r| r.mean_dbm.is_some() && r.bound == bound)
+        {
+            entries.push((label.to_string(), Swatch::Mark(bound)));
+        }
+    }
     if !report.gap_spans.is_empty() {
         entries.push(("gap (no rows)".to_string(), Swatch::Patch(GAP, 0.35)));
     }
     entries
+}
+
+/// A bound marker's outline around (0, 0), pixels: a triangle up for at least, down for
+/// at most, a diamond for bounds both ways.
+fn mark_outline(bound: Bound) -> Vec<(i32, i32)> {
+    let m = MARK_PX;
+    match bound {
+        Bound::AtLeast => vec![(-m, m), (m, m), (0, -m)],
+        Bound::AtMost => vec![(-m, -m), (m, -m), (0, m)],
+        _ => vec![(0, -m), (m, 0), (0, m), (-m, 0)],
+    }
+}
+
+/// A bound marker, filled, so it stands out on the band.
+fn mark_shape(bound: Bound) -> Polygon<(i32, i32)> {
+    Polygon::new(mark_outline(bound), BOUND_MARK.filled())
+}
+
+/// The bound rows' markers at their means, at most one per `width` seconds for each
+/// kind, so a long log of bound rows stays readable.
+fn bound_marks(rows: &[&LogRow], width: f64) -> Vec<(f64, f64, Bound)> {
+    let mut marks: Vec<(f64, f64, Bound)> = Vec::new();
+    for row in rows.iter().filter(|r| r.bound != Bound::Exact) {
+        let Some(mean) = row.mean_dbm else { continue };
+        let near = marks
+            .iter()
+            .rev()
+            .take_while(|m| row.t - m.0 < width)
+            .any(|m| m.2 == row.bound);
+        if !near {
+            marks.push((row.t, mean, row.bound));
+        }
+    }
+    marks
 }
 
 const SWATCH_W: i32 = 24;
@@ -328,6 +387,11 @@ fn draw_legend<DB: DrawingBackend>(
         let (half, style) = match *swatch {
             Swatch::Line(c) => (1, c.filled()),
             Swatch::Patch(c, alpha) => (6, c.mix(alpha).filled()),
+            Swatch::Mark(bound) => {
+                let centre = (x + SWATCH_W / 2, y);
+                area.draw(&(EmptyElement::at(centre) + mark_shape(bound)))?;
+                (0, TRANSPARENT.filled())
+            }
         };
         area.draw(&Rectangle::new(
             [(x, y - half), (x + SWATCH_W, y + half + 1)],
@@ -365,7 +429,7 @@ where
     } else {
         height
     };
-    let entries = legend_entries(report, options);
+    let entries = legend_entries(run, report, options);
     let legend_left = if width >= 600 {
         12 + Y_LABEL_AREA as i32
     } else {
@@ -530,6 +594,11 @@ fn draw_time_panel<DB: DrawingBackend>(
             MEAN.stroke_width(1),
         ))?;
     }
+    chart.draw_series(
+        bound_marks(&rows, width)
+            .into_iter()
+            .map(|(t, m, bound)| EmptyElement::at((t / scale, m)) + mark_shape(bound)),
+    )?;
     if let Some(ends) = drift_ends(run, report, options) {
         chart.draw_series(DashedLineSeries::new(
             ends.map(|(t, m)| (t / scale, m)),
@@ -804,7 +873,7 @@ mod tests {
             let svg = svg_of(&run, &report, (width, height));
             let all = texts(&svg);
             assert!(
-                all.iter().any(|t| t.4.starts_with("Soak at 433.92MHz")),
+                all.iter().any(|t| t.4.starts_with("Power at 433.92MHz")),
                 "{hours} h"
             );
             let areas = panels(&svg);
@@ -843,7 +912,7 @@ mod tests {
         for size in [(1200, 700), (640, 480), (400, 300)] {
             let svg = svg_of(&run, &report, size);
             let areas = panels(&svg);
-            let labels: Vec<String> = legend_entries(&report, &ReportOptions::default())
+            let labels: Vec<String> = legend_entries(&run, &report, &ReportOptions::default())
                 .into_iter()
                 .map(|(label, _)| label)
                 .collect();

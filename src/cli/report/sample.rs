@@ -24,6 +24,7 @@ pub fn warm_run(hours: f64) -> (Run, Report) {
         }),
         warmup_s: Some(480.0 * 6f64.ln()),
         still_warming: false,
+        warmup_tested: true,
     };
     let n = (hours * 360.0) as usize;
     let rows: Vec<LogRow> = (0..n)
@@ -59,7 +60,9 @@ pub fn warm_run(hours: f64) -> (Run, Report) {
         mean_u_db: None,
         u_leaves_out: None,
         min_dbm: lo - 0.02,
+        min_bound: Bound::Exact,
         max_dbm: hi + 0.02,
+        max_bound: Bound::Exact,
         pk_pk_db: hi - lo + 0.04,
         std_db: 0.1,
         model: SoakModel::Warmup,

@@ -149,8 +149,57 @@ fn mean_uncertainty(r: &Report) -> String {
     }
 }
 
-fn extremes(min_dbm: f64, max_dbm: f64, pk_pk_db: f64) -> String {
-    format!("{min_dbm:+.3} / {max_dbm:+.3} dBm (peak to peak {pk_pk_db:.3} dB)")
+/// A figure's bound before it: `at least `, `at most `, `no bound on `, or nothing.
+fn bound_lead(bound: Bound) -> &'static str {
+    match bound {
+        Bound::Exact => "",
+        Bound::AtLeast => "at least ",
+        Bound::AtMost => "at most ",
+        Bound::Unknown => "no bound on ",
+    }
+}
+
+/// The other way: a lowest reading that may be lower makes the peak to peak at least.
+fn reversed(bound: Bound) -> Bound {
+    match bound {
+        Bound::AtLeast => Bound::AtMost,
+        Bound::AtMost => Bound::AtLeast,
+        other => other,
+    }
+}
+
+/// The extremes with their bounds (docs/report.md, "Bounds"): the peak to peak is at
+/// least what is shown when the highest may be higher or the lowest lower.
+fn extremes(min: (f64, Bound), max: (f64, Bound), pk_pk_db: f64) -> String {
+    let pk_pk = max.1.join(reversed(min.1));
+    let (lo, hi, pk) = (bound_lead(min.1), bound_lead(max.1), bound_lead(pk_pk));
+    let why = if pk_pk == Bound::Exact {
+        ""
+    } else {
+        "; rows with samples at a bound hold bounds for their extremes"
+    };
+    format!(
+        "{lo}{:+.3} / {hi}{:+.3} dBm (peak to peak {pk}{pk_pk_db:.3} dB){why}",
+        min.0, max.0
+    )
+}
+
+/// The spread line: a note when interval means are bounds, whose spread is not the
+/// power's.
+fn spread_words(run: &Run, r: &Report, options: &ReportOptions) -> String {
+    let bounded = span_rows(run, options)
+        .iter()
+        .filter(|row| row.mean_dbm.is_some() && row.bound != Bound::Exact)
+        .count();
+    let note = match bounded {
+        0 => String::new(),
+        1 => "; 1 row's mean is a bound, so this is not the power's own spread".into(),
+        n => format!("; {n} rows' means are bounds, so this is not the power's own spread"),
+    };
+    format!(
+        "{:.3} dB, standard deviation of the interval means{note}",
+        r.std_db
+    )
 }
 
 fn model_words(r: &Report) -> String {
@@ -164,6 +213,7 @@ fn model_words(r: &Report) -> String {
 fn warmup_words(r: &Report, tol_db: f64) -> String {
     let shape = match (r.warmup_tau_s, r.warmup_amplitude_db) {
         (Some(tau), Some(a)) => format!("τ = {}, A = {a:+.3} dB", clock(tau)),
+        _ if !r.fit.warmup_tested => return format!("not tested: {}", r.model_choice),
         _ if r.settled_after_s.is_none() => {
             return "not measured: a warm-up is under way but too slow for this span to \
                     describe (see the model line); record longer"
@@ -234,6 +284,9 @@ fn settled_words(r: &Report, tol_db: f64) -> String {
     match r.settled_after_s {
         Some(s) if s > 0.0 => format!("after {}, the warm-up time", clock(s)),
         Some(_) => format!("from the start: no warm-up beyond ±{tol_db:.2} dB"),
+        None if !r.fit.warmup_tested => {
+            "not known: the warm-up was not tested (see the warm-up line)".into()
+        }
         None => "not within the span: the warm-up outlasts the recording".into(),
     }
 }
@@ -316,14 +369,15 @@ pub fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
         ("samples", r.samples.to_string()),
         ("mean power", mean_power(r.mean_dbm, r.mean_w, r.mean_bound)),
         ("uncertainty", mean_uncertainty(r)),
-        ("min / max", extremes(r.min_dbm, r.max_dbm, r.pk_pk_db)),
         (
-            "spread",
-            format!(
-                "{:.3} dB, standard deviation of the interval means",
-                r.std_db
+            "min / max",
+            extremes(
+                (r.min_dbm, r.min_bound),
+                (r.max_dbm, r.max_bound),
+                r.pk_pk_db,
             ),
         ),
+        ("spread", spread_words(run, r, options)),
         ("model", model_words(r)),
         ("warm-up", warmup_words(r, tol)),
         ("drift", drift_words(r)),
@@ -357,7 +411,11 @@ pub fn together_table(all: &Together) -> String {
         ),
         (
             "min / max",
-            extremes(all.min_dbm, all.max_dbm, all.pk_pk_db),
+            extremes(
+                (all.min_dbm, all.min_bound),
+                (all.max_dbm, all.max_bound),
+                all.pk_pk_db,
+            ),
         ),
         ("gaps", format!("{}, {:.1} s in all", all.gaps, all.gap_s)),
         ("flagged rows", flag_words(&all.flagged_rows)),
