@@ -371,7 +371,7 @@ impl CountMoments {
 
     /// Whether the counts are a steady level with white noise of a few counts: at least
     /// [`STEADY_MIN_COUNTS`], a standard deviation of at most [`STEADY_MAX_SIGMA_COUNTS`],
-    /// and a von Neumann ratio within [`WHITE_NOISE_Z`] standard errors of white noise's
+    /// and a von Neumann ratio within `WHITE_NOISE_Z` standard errors of white noise's
     /// 2 (its variance is 4(n − 2)/((n − 1)(n + 1)) for normal white noise). Counts all
     /// alike are steady.
     pub fn is_steady(&self) -> bool {
@@ -400,10 +400,7 @@ impl CountMoments {
     pub fn noise(&self) -> Option<Noise> {
         let sigma_counts = self.variance()?.sqrt();
         let rho = self.lag_one().unwrap_or(0.0);
-        Some(Noise {
-            sigma_counts,
-            n_eff: (self.n as f64 * (1.0 - rho) / (1.0 + rho)).max(1.0),
-        })
+        Some(Noise::correlated(sigma_counts, self.n as f64, rho))
     }
 }
 

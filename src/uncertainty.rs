@@ -129,6 +129,20 @@ pub struct Noise {
     pub n_eff: f64,
 }
 
+impl Noise {
+    /// The noise of `n` samples whose counts spread by `sigma_counts` and correlate by
+    /// `rho` at lag one: N_eff = N(1 − ρ)/(1 + ρ), with ρ held to 0…1 (a negative estimate
+    /// would claim more than N independent samples) and N_eff never under one (a mean is
+    /// never noisier than one of its samples).
+    pub fn correlated(sigma_counts: f64, n: f64, rho: f64) -> Noise {
+        let rho = rho.clamp(0.0, 1.0);
+        Noise {
+            sigma_counts,
+            n_eff: (n * (1.0 - rho) / (1.0 + rho)).max(1.0),
+        }
+    }
+}
+
 /// The terms at one level and the terms that could not be included.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Budget {

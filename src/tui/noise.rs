@@ -342,12 +342,9 @@ impl CountWindow {
             }
     }
 
-    /// The noise of the window's mean: σ of the counts and the effective number of
-    /// independent samples N(1 − ρ)/(1 + ρ), ρ the lag-1 correlation, both taken over
-    /// the window (over the last [`NOISE_MIN_COUNTS`] when it holds fewer). ρ is held to
-    /// 0…1: a negative estimate would claim more than N independent samples, and a short
-    /// window's estimate runs low anyway. N_eff is never under one: a mean is never
-    /// noisier than one of its samples. None under two counts.
+    /// The noise of the window's mean ([`Noise::correlated`]): σ of the counts and their
+    /// lag-1 correlation, both taken over the window (over the last [`NOISE_MIN_COUNTS`]
+    /// when it holds fewer). None under two counts.
     pub fn noise(&self) -> Option<Noise> {
         let window = self.sums();
         let basis = if window.len() as usize >= NOISE_MIN_COUNTS {
@@ -356,12 +353,12 @@ impl CountWindow {
             self.recent.sums
         };
         let sigma_counts = basis.std_counts()?;
-        let rho = basis.lag1().unwrap_or(0.0).clamp(0.0, 1.0);
-        let n = window.len().max(1) as f64;
-        Some(Noise {
+        let rho = basis.lag1().unwrap_or(0.0);
+        Some(Noise::correlated(
             sigma_counts,
-            n_eff: (n * (1.0 - rho) / (1.0 + rho)).max(1.0),
-        })
+            window.len().max(1) as f64,
+            rho,
+        ))
     }
 }
 
