@@ -21,9 +21,46 @@ pub fn escape_controls(text: &str) -> Cow<'_, str> {
     Cow::Owned(out)
 }
 
+/// `words` joined by single spaces into lines broken only between words, the first line
+/// at most `first` characters long and the others at most `rest` (a word longer than its
+/// line stands alone on it).
+pub fn wrap_words<'a>(
+    words: impl IntoIterator<Item = &'a str>,
+    first: usize,
+    rest: usize,
+) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    for word in words {
+        let limit = if lines.len() <= 1 { first } else { rest };
+        match lines.last_mut() {
+            Some(line) if line.chars().count() + 1 + word.chars().count() <= limit => {
+                line.push(' ');
+                line.push_str(word);
+            }
+            _ => lines.push(word.to_string()),
+        }
+    }
+    lines
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // Source: worked by hand. "aa bb cc dd" in a first line of 5 and later lines of 2:
+    // "aa bb" fills the first (5), then each word stands alone; a word wider than its
+    // line is kept whole; characters are counted, not bytes ("±±" is two).
+    #[test]
+    fn words_wrap_to_the_first_width_then_the_rest() {
+        assert_eq!(
+            wrap_words("aa bb cc dd".split(' '), 5, 2),
+            ["aa bb", "cc", "dd"]
+        );
+        assert_eq!(wrap_words("aa bb cc".split(' '), 8, 8), ["aa bb cc"]);
+        assert_eq!(wrap_words("toolong x".split(' '), 3, 3), ["toolong", "x"]);
+        assert_eq!(wrap_words("±± ±±".split(' '), 5, 5), ["±± ±±"]);
+        assert!(wrap_words(std::iter::empty(), 5, 5).is_empty());
+    }
 
     // Source: the Rust reference's escapes as `char::escape_default` writes them (\n, \r,
     // \t by name; others as \u{hex}), and Unicode's Cc category (U+0000–U+001F,

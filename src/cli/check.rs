@@ -8,7 +8,7 @@ use serde_json::{json, Value};
 
 use dbtrail::calibration::{Calibration, Flags};
 use dbtrail::correction::{FrequencyCorrection, ROLL_OFF_MIN_ROWS};
-use dbtrail::printable::escape_controls;
+use dbtrail::printable::{escape_controls, wrap_words};
 use dbtrail::profile::{load_profile, Profile};
 use dbtrail::uncertainty::{Budget, TermKind, Uncertainty, COVERAGE_K, NOT_MODELLED};
 use dbtrail::units::Si;
@@ -261,26 +261,11 @@ fn budget_text(profile: &Profile, cal: &Calibration, columns: &[Column]) -> Stri
         out.push_str("    (any `_swr` may be given as `_return_loss` instead)\n");
     }
     let mut label = "not modelled";
-    for line in wrapped(NOT_MODELLED, 70) {
+    for line in wrap_words(NOT_MODELLED.split_whitespace(), 70, 70) {
         let _ = writeln!(out, "    {label:<24}{line}");
         label = "";
     }
     out
-}
-
-/// `text` broken at spaces into lines of at most `width` characters.
-fn wrapped(text: &str, width: usize) -> Vec<String> {
-    let mut lines: Vec<String> = Vec::new();
-    for word in text.split_whitespace() {
-        match lines.last_mut() {
-            Some(line) if line.chars().count() + 1 + word.chars().count() <= width => {
-                line.push(' ');
-                line.push_str(word);
-            }
-            _ => lines.push(word.to_string()),
-        }
-    }
-    lines
 }
 
 fn budget_block(title: &str, columns: &[&Column]) -> String {

@@ -8,6 +8,7 @@ use ratatui::widgets::{Block, Clear, Paragraph, Widget, Wrap};
 use ratatui::Frame;
 
 use dbtrail::calibration::Flags;
+use dbtrail::printable::wrap_words;
 use dbtrail::uncertainty::COVERAGE_K;
 use dbtrail::units::{Power, Si, VoltageForm};
 
@@ -260,16 +261,10 @@ fn beside(app: &App) -> Beside {
 /// `items` joined by spaces in lines of at most `width` characters, broken only between
 /// items, the lines after the first starting with `indent`.
 fn flow(items: &[String], indent: &str, width: usize) -> Vec<String> {
-    let mut lines: Vec<String> = Vec::new();
-    for item in items {
-        match lines.last_mut() {
-            Some(line) if line.chars().count() + 1 + item.chars().count() <= width => {
-                line.push(' ');
-                line.push_str(item);
-            }
-            Some(_) => lines.push(format!("{indent}{item}")),
-            None => lines.push(item.clone()),
-        }
+    let rest = width.saturating_sub(indent.chars().count());
+    let mut lines = wrap_words(items.iter().map(String::as_str), width, rest);
+    for line in lines.iter_mut().skip(1) {
+        line.insert_str(0, indent);
     }
     lines
 }

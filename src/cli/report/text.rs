@@ -1,6 +1,7 @@
 //! The report as a table a person reads: one labelled line per figure, wrapped to fit
 //! 100 columns, with the warm-up, both drifts and the Allan deviation explained in words.
 
+use dbtrail::printable::wrap_words;
 use dbtrail::report::soak::SoakModel;
 use dbtrail::report::{span_rows, Report, ReportOptions, Run, Spacing};
 use dbtrail::stats::Bound;
@@ -59,25 +60,10 @@ fn three_digits(value: f64) -> String {
 /// One labelled line, its value wrapped at word boundaries to fit [`COLUMNS`].
 fn labelled(label: &str, value: &str) -> String {
     let indent = " ".repeat(LABEL_WIDTH + 3);
-    let mut out = format!("  {label:<LABEL_WIDTH$} ");
-    let mut width = out.chars().count();
-    let mut first = true;
-    for word in value.split(' ') {
-        let len = word.chars().count();
-        if !first && width + 1 + len > COLUMNS {
-            out.push('\n');
-            out.push_str(&indent);
-            width = indent.len();
-        } else if !first {
-            out.push(' ');
-            width += 1;
-        }
-        out.push_str(word);
-        width += len;
-        first = false;
-    }
-    out.push('\n');
-    out
+    let head = format!("  {label:<LABEL_WIDTH$} ");
+    let first = COLUMNS.saturating_sub(head.chars().count());
+    let lines = wrap_words(value.split(' '), first, COLUMNS - indent.len());
+    format!("{head}{}\n", lines.join(&format!("\n{indent}")))
 }
 
 /// A step in time: in seconds under a minute, else in minutes and hours, which `--from`
