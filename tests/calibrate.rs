@@ -2,6 +2,8 @@
 //! the saved profile then used by `record --replay` on counts from the same hidden
 //! detector, compared with the levels that were really applied.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 
@@ -54,22 +56,19 @@ fn capture(kind: BenchDetector, levels: &[(f64, f64)], path: &Path) {
 
 /// Mean dBm of each one-second row when `capture` is replayed through `profile` at `freq`.
 fn replayed_means(profile: &Path, capture: &Path, freq: &str) -> Vec<f64> {
-    let out = Command::new(env!("CARGO_BIN_EXE_dbtrail"))
-        .args([
-            "record",
-            "--replay",
-            capture.to_str().unwrap(),
-            "--profile",
-            profile.to_str().unwrap(),
-        ])
-        .args(["--freq", freq, "--rate", "1000", "--every", "1s"])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = common::succeeded([
+        "record",
+        "--replay",
+        capture.to_str().unwrap(),
+        "--profile",
+        profile.to_str().unwrap(),
+        "--freq",
+        freq,
+        "--rate",
+        "1000",
+        "--every",
+        "1s",
+    ]);
     String::from_utf8(out.stdout)
         .unwrap()
         .lines()

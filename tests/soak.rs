@@ -2,6 +2,8 @@
 //! (a committed fixture), a hand-worked bandwidth, Monte-Carlo logs of known truth, and
 //! the demo soak whose truth the simulator states.
 
+mod common;
+
 use dbtrail::report::soak::{
     andrews_bartlett_lags, newey_west_slope, prewhitened_slope, SoakModel,
 };
@@ -279,26 +281,18 @@ fn the_demo_soak_gives_back_the_simulators_late_drift_and_warmup() {
 
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("soak.csv");
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_dbtrail"))
-        .args([
-            "record",
-            "--demo",
-            "soak",
-            "--fast",
-            "--duration",
-            "3h",
-            "--every",
-            "10s",
-        ])
-        .arg("--out")
-        .arg(&path)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    common::succeeded([
+        "record",
+        "--demo",
+        "soak",
+        "--fast",
+        "--duration",
+        "3h",
+        "--every",
+        "10s",
+        "--out",
+        path.to_str().unwrap(),
+    ]);
     let log = read_log(&std::fs::read(&path).unwrap(), "soak.csv", 1).unwrap();
     let report = analyse(&log.runs[0], "soak.csv", &ReportOptions::default()).unwrap();
     assert_eq!(report.model, SoakModel::Warmup, "{}", report.model_choice);

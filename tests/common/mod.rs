@@ -145,6 +145,22 @@ pub fn output(command: &mut Command) -> std::process::Output {
     child.wait_with_output().unwrap()
 }
 
+/// Runs the binary with `args` to its end and insists it succeeded, showing its stderr
+/// when it did not.
+pub fn succeeded<I, S>(args: I) -> std::process::Output
+where
+    I: IntoIterator<Item = S>,
+    S: AsRef<std::ffi::OsStr>,
+{
+    let out = output(bin().args(args));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out
+}
+
 /// A pseudo-terminal pair whose fds a spawned recorder does not inherit: an inherited
 /// master would keep the "device" alive after the test unplugs it.
 pub fn pty_pair() -> (TTYPort, TTYPort) {
