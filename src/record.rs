@@ -165,8 +165,9 @@ pub struct Recorder<W: Write> {
     out: csv::Writer<W>,
     cal: Calibration,
     budget: Option<Uncertainty>,
-    /// Per-sample rows' `u_db` by code, worked out at a code's first sample.
-    per_code_u_db: Vec<Option<f64>>,
+    /// Per-sample rows' cells after the time, by code (they depend on nothing else),
+    /// worked out at a code's first sample: formatting them is most of such a row's cost.
+    per_code_cells: Vec<Option<SampleCells>>,
     every: f64,
     started: SystemTime,
     channels: Option<usize>,
@@ -257,7 +258,7 @@ impl<W: Write> Recorder<W> {
                 .flexible(true)
                 .quote_style(csv::QuoteStyle::Never)
                 .from_writer(out),
-            per_code_u_db: vec![None; cal.code_table().len()],
+            per_code_cells: vec![None; cal.code_table().len()],
             cal,
             budget,
             every: context.every.as_secs_f64(),
@@ -441,32 +442,40 @@ impl<W: Write> Recorder<W> {
         let mut row = vec![seconds(t)];
         let channels = self.channel_count();
         for &code in counts.iter().take(channels) {
-            let r = self.cal.reading_code(code);
-            // One reading's statistics: its level, or its bound, and which it is.
-            let mut one = PowerStats::default();
-            one.add_within(&r, self.cal.span_dbm().1);
-            row.push(format!("{}", r.counts));
-            row.push(format!("{:.6}", r.volts));
-            row.push(
-                one.mean_dbm()
-                    .map_or(String::new(), |dbm| format!("{dbm:.4}")),
-            );
-            row.push(r.flags.joined());
-            row.push(one.bound().cell().to_string());
-            let value = (one.bound() == Bound::Exact).then_some(r.dbm);
-            row.push(u_cell(value.and_then(|dbm| self.sample_u_db(code, dbm))));
+            match self.per_code_cells.get(code as usize) {
+                Some(Some(cells)) => row.extend(cells.iter().cloned()),
+                _ => {
+                    let cells = self.sample_cells(code);
+                    row.extend(cells.iter().cloned());
+                    if let Some(slot) = self.per_code_cells.get_mut(code as usize) {
+                        *slot = Some(cells);
+                    }
+                }
+            }
         }
         self.write_row(row)
     }
 
-    /// The expanded uncertainty of one sample's value (its noise is not known), by code.
-    fn sample_u_db(&mut self, code: u32, dbm: f64) -> Option<f64> {
-        let budget = self.budget.as_ref()?;
-        let u = || budget.budget(dbm, None).expanded_db();
-        match self.per_code_u_db.get_mut(code as usize) {
-            Some(cached) => Some(*cached.get_or_insert_with(u)),
-            None => Some(u()),
-        }
+    /// A sample's cells after the time: counts, volts, its level or bound, flags, which
+    /// it is, and the expanded uncertainty of a value (its noise is not known).
+    fn sample_cells(&self, code: u32) -> SampleCells {
+        let r = self.cal.reading_code(code);
+        // One reading's statistics: its level, or its bound, and which it is.
+        let mut one = PowerStats::default();
+        one.add_within(&r, self.cal.span_dbm().1);
+        let value = (one.bound() == Bound::Exact).then_some(r.dbm);
+        let u_db = value
+            .zip(self.budget.as_ref())
+            .map(|(dbm, budget)| budget.budget(dbm, None).expanded_db());
+        [
+            format!("{}", r.counts),
+            format!("{:.6}", r.volts),
+            one.mean_dbm()
+                .map_or(String::new(), |dbm| format!("{dbm:.4}")),
+            r.flags.joined(),
+            one.bound().cell().to_string(),
+            u_cell(u_db),
+        ]
     }
 
     /// Marks the interval holding `t` (or, per sample, writes a marker row).
@@ -583,6 +592,9 @@ impl<W: Write> Recorder<W> {
         names
     }
 }
+
+/// The cells of one sample after its time, as [`PER_SAMPLE_COLUMNS`] names them.
+type SampleCells = [String; PER_SAMPLE_COLUMNS.len()];
 
 /// The columns of each channel in a log of one row per sample.
 pub const PER_SAMPLE_COLUMNS: [&str; 6] = ["counts", "volts", "dbm", "flags", "bound", "u_db"];
