@@ -412,3 +412,22 @@ fn beyond_the_correction_table_the_interpolation_term_is_named_as_unknown() {
         .term(dbtrail::uncertainty::TermKind::FrequencyInterpolation)
         .is_some_and(|u| u > 0.0));
 }
+
+// Source: the rule in docs/reliability.md that nothing panics on user input: a level that
+// is not a number (counts over full scale have none) gets no model term from any model,
+// the table and the fitted ones alike. Before, both interpolations of the model's error
+// took the NaN as below their first level and subtracted one from an index of zero.
+#[test]
+fn no_model_gives_an_error_at_a_level_that_is_not_a_number() {
+    for text in [
+        include_str!("../profiles/demo-diode.toml").to_string(),
+        include_str!("../profiles/demo-logamp.toml").to_string(),
+        include_str!("../profiles/demo-diode.toml")
+            .replace("kind = \"diode\"", "kind = \"table\"")
+            .replace("temperature = 300\n", ""),
+    ] {
+        let profile = dbtrail::profile::parse_profile(&text, "demo").unwrap();
+        assert_eq!(profile.model.detector.model_u_db(f64::NAN), None);
+        assert!(profile.model.detector.model_u_db(0.0).is_some());
+    }
+}

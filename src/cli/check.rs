@@ -158,9 +158,14 @@ fn why_missing(kind: TermKind, profile: &Profile, hz: f64) -> String {
                 dbtrail::units::format_frequency(hz)
             ),
         }),
-        TermKind::Quantisation | TermKind::Model => None,
+        TermKind::Model => Some(
+            "the model gives no error of its own here (a table needs three or more points \
+             for its leave-one-out error)"
+                .to_string(),
+        ),
+        TermKind::Quantisation => None,
     };
-    reason.unwrap_or_else(|| "not computed yet".into())
+    reason.unwrap_or_else(|| "not worked out".into())
 }
 
 /// "needs `a` and `b` in [uncertainty]" for the keys not given, or None when all are; a key

@@ -284,6 +284,9 @@ impl Detector for DiodeDetector {
     }
 
     fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
+        if !detector_dbm.is_finite() {
+            return None;
+        }
         let covariance = self.covariance.as_ref()?;
         let volts = self.volts_at(detector_dbm);
         let (kelvin, ohms, span) = (self.kelvin, self.ohms, self.span);

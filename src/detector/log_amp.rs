@@ -111,6 +111,9 @@ impl Detector for LogAmpDetector {
     }
 
     fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
+        if !detector_dbm.is_finite() {
+            return None;
+        }
         let covariance = self.covariance.as_ref()?;
         let b0 = -self.slope * self.intercept;
         let volts = self.volts_at(detector_dbm);

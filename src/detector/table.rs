@@ -171,6 +171,9 @@ impl Detector for TableDetector {
     fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
         let errors = &self.left_out_db;
         let (first, last) = (errors.first()?, errors.last()?);
+        if !detector_dbm.is_finite() {
+            return None;
+        }
         if detector_dbm <= first.0 {
             return Some(first.1);
         }
