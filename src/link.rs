@@ -100,4 +100,35 @@ impl LinkSnapshot {
             self.samples, self.bad_lines, self.crc_errors, self.dropped_frames, self.overruns, self.reconnects
         )
     }
+
+    /// The counters in the short words every status line uses, the screen's and record's
+    /// alike: `bad 0 crc 0 drop 0 behind 0 reopen 0` (lines refused, frames with a bad
+    /// CRC, frames missing by sequence, samples lost because the program fell behind, times
+    /// the port was reopened). None of the words is one the limits use.
+    pub fn brief(&self) -> String {
+        format!(
+            "bad {} crc {} drop {} behind {} reopen {}",
+            self.bad_lines, self.crc_errors, self.dropped_frames, self.overruns, self.reconnects
+        )
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Source: the rule in docs/screen.md ("Link health"): one set of short words on every
+    // status line, each counter under its own word.
+    #[test]
+    fn the_brief_line_puts_each_counter_under_its_own_word() {
+        let link = LinkSnapshot {
+            bad_lines: 1,
+            crc_errors: 2,
+            dropped_frames: 3,
+            overruns: 4,
+            reconnects: 5,
+            ..LinkSnapshot::default()
+        };
+        assert_eq!(link.brief(), "bad 1 crc 2 drop 3 behind 4 reopen 5");
+    }
 }

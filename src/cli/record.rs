@@ -438,8 +438,9 @@ impl Status {
         };
         let _ = write!(
             io::stderr(),
-            "\r\x1b[K{elapsed} | {rows} rows | {} | {rate:.0}/s | bad {} crc {} drop {} over {} reconn {}{state}",
-            self.last_reading, link.bad_lines, link.crc_errors, link.dropped_frames, link.overruns, link.reconnects
+            "\r\x1b[K{elapsed} | {rows} rows | {} | {rate:.0}/s | {}{state}",
+            self.last_reading,
+            link.brief()
         );
     }
 }

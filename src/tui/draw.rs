@@ -566,14 +566,10 @@ fn status_line(app: &App) -> Line<'static> {
         None => "log off".into(),
     };
     let mut spans = vec![Span::raw(format!(
-        " {} │ {:.0}/s │ bad {} crc {} drop {} ovr {} rec {}{silent} │ {log}",
+        " {} │ {:.0}/s │ {}{silent} │ {log}",
         app.source,
         app.rate,
-        link.bad_lines,
-        link.crc_errors,
-        link.dropped_frames,
-        link.overruns,
-        link.reconnects
+        link.brief()
     ))];
     if app.ended {
         spans.push(Span::styled(" │ ENDED", paint(app, Color::Yellow, None)));
