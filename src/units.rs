@@ -52,6 +52,13 @@ pub enum UnitError {
         /// What would have been accepted.
         expected: String,
     },
+    /// A frequency written as a bare number: hertz, kilohertz and megahertz are all
+    /// plausible on a bench, so none is assumed.
+    #[error("`{input}` has no unit: add MHz or kHz (or Hz, if hertz is meant); a bare number is not taken as hertz")]
+    FrequencyWithoutUnit {
+        /// The text as typed.
+        input: String,
+    },
     /// A unit this kind of quantity does not take.
     #[error("unknown unit `{unit}` in `{input}`{hint}; accepted: {expected}")]
     UnknownUnit {
@@ -447,11 +454,18 @@ fn check_positive(text: &str, level: Level, expected: &'static str) -> Result<()
     }
 }
 
-/// Parses a frequency such as `14.2MHz`, `433 MHz`, `2.4GHz`, `10k` or plain Hz; in hertz,
-/// within [`FREQUENCY_RANGE_HZ`].
+/// Parses a frequency such as `14.2MHz`, `433 MHz`, `2.4GHz`, `10k` or `50Hz`; in hertz,
+/// within [`FREQUENCY_RANGE_HZ`]. The unit is required: `435` could mean hertz, kilohertz
+/// or megahertz, and a wrong guess moves the frequency correction silently.
 pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
     let range = "a frequency lies from 1 Hz to 1 THz";
     let (low, high) = FREQUENCY_RANGE_HZ;
+    let normalised = normalise(text);
+    if let Ok((_, "")) = split_number(&normalised, "") {
+        return Err(UnitError::FrequencyWithoutUnit {
+            input: normalised.trim().to_string(),
+        });
+    }
     match parse_hertz(text) {
         Ok(hz) => within(text, hz, low..=high, range).map(|()| hz),
         Err(UnitError::OutOfRange { input, .. }) => Err(UnitError::OutOfRange { input, range }),
@@ -459,8 +473,8 @@ pub fn parse_frequency(text: &str) -> Result<f64, UnitError> {
     }
 }
 
-/// Parses a positive number of hertz with a frequency's units, any size (a sample rate's
-/// own range is its user's to check).
+/// Parses a positive number of hertz with a frequency's units, any size, a bare number
+/// being hertz (a sample rate's own range and unit are its user's to check).
 pub fn parse_hertz(text: &str) -> Result<f64, UnitError> {
     let text = normalise(text);
     let expected = "a frequency such as 14.2MHz, 433 MHz, 10k or 2.4GHz";

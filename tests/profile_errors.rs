@@ -127,6 +127,14 @@ const CASES: &[(&str, usize, &str, &str)] = &[
     ),
     ("diode_n_without_vl", 8, "model", "both `n` and `vl`"),
     ("log_slope_zero", 10, "model.slope", "not zero"),
+    // Source: the rule in docs/profiles.md ("Frequencies"): a bare number has no unit to
+    // trust, so it is refused with the fix rather than read as hertz.
+    (
+        "reference_frequency_bare_number",
+        2,
+        "reference_frequency",
+        "add MHz or kHz",
+    ),
     (
         "reference_frequency_lone_m",
         2,

@@ -131,7 +131,7 @@ fn mistakes_are_refused_with_hints_and_the_accepted_list() {
 }
 
 #[test]
-fn frequencies_parse_with_and_without_units() {
+fn frequencies_parse_with_their_units_and_never_without() {
     for (text, hz) in [
         ("14.2MHz", 14.2e6),
         ("433 MHz", 433e6),
@@ -140,10 +140,19 @@ fn frequencies_parse_with_and_without_units() {
         ("10kHz", 10e3),
         ("145.5mhz", 145.5e6),
         ("7M", 7e6),
-        ("1000", 1000.0),
         ("50Hz", 50.0),
     ] {
         assert!(rel(parse_frequency(text).unwrap(), hz) < 1e-15, "{text}");
+    }
+    // Source: the rule in docs/profiles.md ("Frequencies"): every frequency carries its
+    // unit; `435` could be hertz, kilohertz or megahertz, so it is refused with the fix.
+    for bare in ["435", " 1000 ", "14.2", "1e6"] {
+        let e = parse_frequency(bare).unwrap_err();
+        assert!(
+            matches!(e, UnitError::FrequencyWithoutUnit { .. }),
+            "{bare}"
+        );
+        assert!(e.to_string().contains("add MHz or kHz"), "{e}");
     }
     assert!(parse_frequency("10m")
         .unwrap_err()

@@ -267,10 +267,12 @@ impl<'de, Row: Deserialize<'de>> Deserialize<'de> for RawMatch<Row> {
     }
 }
 
-/// A frequency written as text with a unit (`"14.2MHz"`) or as a number of hertz.
+/// A frequency: text with a unit as a person writes it (`"14.2MHz"`), or hertz set by the
+/// program itself. A bare number in a file is kept as its text and refused by [`hz`]
+/// (`FreqValue::hz`), since its unit would be a guess.
 #[derive(Debug, Clone, PartialEq)]
 pub enum FreqValue {
-    /// Hertz as a number.
+    /// Hertz as a number, set by the program (written out with its unit).
     Hz(f64),
     /// Text still to be parsed.
     Text(String),
@@ -280,7 +282,7 @@ impl FreqValue {
     /// The frequency in hertz, or the reason it is not one.
     pub fn hz(&self) -> Result<f64, crate::units::UnitError> {
         match self {
-            FreqValue::Hz(hz) => parse_frequency(&hz.to_string()),
+            FreqValue::Hz(hz) => parse_frequency(&format_frequency(*hz)),
             FreqValue::Text(text) => parse_frequency(text),
         }
     }
@@ -311,19 +313,21 @@ impl<'de> Deserialize<'de> for FreqValue {
         impl Visitor<'_> for FreqVisitor {
             type Value = FreqValue;
             fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
-                f.write_str("a frequency such as \"14.2MHz\", or a number of hertz")
+                f.write_str("a frequency with its unit, such as \"14.2MHz\"")
             }
             fn visit_str<E: de::Error>(self, v: &str) -> Result<FreqValue, E> {
                 Ok(FreqValue::Text(v.to_string()))
             }
+            // A bare number is kept as written so that the check names it and asks for
+            // its unit, at its line, like any other field.
             fn visit_f64<E: de::Error>(self, v: f64) -> Result<FreqValue, E> {
-                Ok(FreqValue::Hz(v))
+                Ok(FreqValue::Text(v.to_string()))
             }
             fn visit_i64<E: de::Error>(self, v: i64) -> Result<FreqValue, E> {
-                Ok(FreqValue::Hz(v as f64))
+                Ok(FreqValue::Text(v.to_string()))
             }
             fn visit_u64<E: de::Error>(self, v: u64) -> Result<FreqValue, E> {
-                Ok(FreqValue::Hz(v as f64))
+                Ok(FreqValue::Text(v.to_string()))
             }
         }
         deserializer.deserialize_any(FreqVisitor)
