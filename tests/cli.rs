@@ -588,3 +588,50 @@ fn a_device_or_a_huge_file_as_points_is_refused_without_reading_it_all() {
     assert!(stderr(&out).contains("over 16 MiB"), "{}", stderr(&out));
     assert!(!std::path::Path::new("never.toml").exists());
 }
+
+/// Runs the binary with its standard output read for one line and then closed, as
+/// `| head -1` does; the exit status and standard error once it has ended.
+fn with_reader_gone_after_one_line(args: &[&str]) -> (std::process::ExitStatus, String) {
+    use std::io::{BufRead, Read};
+    let mut child = common::spawn(
+        common::bin()
+            .args(args)
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped()),
+    );
+    let mut first = String::new();
+    let mut stdout = std::io::BufReader::new(child.stdout.take().unwrap());
+    stdout.read_line(&mut first).unwrap();
+    assert!(!first.is_empty(), "{args:?} wrote nothing");
+    drop(stdout);
+    let mut stderr = child.stderr.take().unwrap();
+    let status = common::wait(child, std::time::Duration::from_secs(60));
+    let mut said = String::new();
+    stderr.read_to_string(&mut said).unwrap();
+    (status, said)
+}
+
+// Source: the exit-code rule in docs/reliability.md: a reader that stops early (`| head`)
+// is a normal end for every command, exit 0 and no message. Before, record ended with
+// "cannot write to standard output … Broken pipe" and exit 1.
+#[test]
+fn a_reader_that_stops_early_ends_every_command_quietly() {
+    for args in [
+        &["record", "--demo", "soak", "--fast", "--duration", "2h"][..],
+        &[
+            "record",
+            "--demo",
+            "soak",
+            "--fast",
+            "--duration",
+            "2h",
+            "--every",
+            "0",
+        ],
+        &["sim", "--scenario", "soak", "--seconds", "7200"],
+    ] {
+        let (status, said) = with_reader_gone_after_one_line(args);
+        assert_eq!(status.code(), Some(0), "{args:?}: {said}");
+        assert!(!said.contains("error"), "{args:?}: {said}");
+    }
+}

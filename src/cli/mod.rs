@@ -117,6 +117,9 @@ pub fn run() -> ExitCode {
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
+        // Every command's output may go to a reader that stops early (`| head`): that is
+        // a normal end, as for any filter, not a failure to report.
+        Err(Failure::Runtime(e)) if is_closed_pipe(Some(e.as_ref())) => ExitCode::SUCCESS,
         Err(Failure::BadInput(e)) => report(&e, 2),
         Err(Failure::Runtime(e)) => report(&e, 1),
     }
@@ -125,6 +128,24 @@ pub fn run() -> ExitCode {
 fn report(error: &anyhow::Error, code: u8) -> ExitCode {
     say_err!("dbtrail: error: {error:#}");
     ExitCode::from(code)
+}
+
+/// Whether an error is, or wraps, the reader of a pipe having gone away.
+pub fn is_closed_pipe(error: Option<&(dyn std::error::Error + 'static)>) -> bool {
+    let Some(error) = error else { return false };
+    let io = error.downcast_ref::<std::io::Error>();
+    if io.is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe) {
+        return true;
+    }
+    // The csv writer's error names no source, so its own I/O error is looked into here.
+    let from_csv = error
+        .downcast_ref::<csv::Error>()
+        .and_then(|e| match e.kind() {
+            csv::ErrorKind::Io(io) => Some(io as _),
+            _ => None,
+        });
+    let wrapped = io.and_then(|e| e.get_ref()).map(|inner| inner as _);
+    is_closed_pipe(from_csv.or(wrapped).or_else(|| error.source()))
 }
 
 /// Writes command output to stdout; a closed pipe (`| head`) is not an error.
@@ -189,4 +210,42 @@ pub fn parse_number_arg(text: &str) -> Result<f64, String> {
 /// clap adapter for a frequency such as `145.5MHz`.
 pub fn parse_frequency_arg(text: &str) -> Result<f64, String> {
     dbtrail::units::parse_frequency(text).map_err(|e| e.to_string())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::is_closed_pipe;
+    use std::io::{Error, ErrorKind};
+
+    /// A pipe whose reader has gone.
+    struct Closed;
+    impl std::io::Write for Closed {
+        fn write(&mut self, _: &[u8]) -> std::io::Result<usize> {
+            Err(ErrorKind::BrokenPipe.into())
+        }
+        fn flush(&mut self) -> std::io::Result<()> {
+            Err(ErrorKind::BrokenPipe.into())
+        }
+    }
+
+    // Source: the exit-code rule in docs/reliability.md: a reader that stops early is a
+    // normal end; the broken pipe may come bare, wrapped in another io::Error, or under
+    // anyhow's context.
+    #[test]
+    fn a_closed_pipe_is_found_however_it_is_wrapped() {
+        let bare = Error::from(ErrorKind::BrokenPipe);
+        assert!(is_closed_pipe(Some(&bare)));
+        let wrapped = Error::other(Error::from(ErrorKind::BrokenPipe));
+        assert!(is_closed_pipe(Some(&wrapped)));
+        let context = anyhow::Error::new(Error::from(ErrorKind::BrokenPipe)).context("writing");
+        assert!(is_closed_pipe(Some(context.as_ref())));
+        let mut writer = csv::Writer::from_writer(Closed);
+        let from_csv = writer
+            .write_record(["a"])
+            .and_then(|()| Ok(writer.flush()?));
+        assert!(is_closed_pipe(Some(&Error::other(from_csv.unwrap_err()))));
+        let full = anyhow::Error::new(Error::from(ErrorKind::StorageFull)).context("writing");
+        assert!(!is_closed_pipe(Some(full.as_ref())));
+        assert!(!is_closed_pipe(None));
+    }
 }

@@ -112,22 +112,25 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let mut recorder = Recorder::with_uncertainty(out, cal, Some(budget), &context, opening)
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
-    let outcome = pump(
+    let pumped = pump(
         &mut source,
         &mut recorder,
         &stop,
         until,
         1.0 / args.link.rate,
-    )
-    .map_err(|e| pump_failure(e, &target));
+    );
     let link = source.counters.snapshot();
     drop(source);
+    // A reader that has read enough (`| head`) ends the run as it wished: quietly.
+    if args.out == "-" && super::is_closed_pipe(pumped.as_ref().err().map(|e| e as _)) {
+        return Ok(());
+    }
     super::say_err!(
         "\ndbtrail: {} rows to {target}; link: {}",
         recorder.rows(),
         link.summary()
     );
-    outcome
+    pumped.map_err(|e| pump_failure(e, &target))
 }
 
 /// Moves events from the source to the recorder until the source ends, the duration is
