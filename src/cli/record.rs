@@ -118,6 +118,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         &stop,
         until,
         1.0 / args.link.rate,
+        args.out == "-" && io::stdout().is_terminal(),
     );
     let link = source.counters.snapshot();
     drop(source);
@@ -141,8 +142,9 @@ fn pump(
     stop: &AtomicBool,
     until: Option<f64>,
     sample_period: f64,
+    rows_on_terminal: bool,
 ) -> io::Result<()> {
-    let mut status = Status::new();
+    let mut status = Status::new(rows_on_terminal, until);
     let mut last_sync = Instant::now();
     let mut last_t: Option<f64> = None;
     let mut synced_rows = 0;
@@ -388,31 +390,45 @@ pub fn hex_digest(bytes: &[u8]) -> String {
         .collect()
 }
 
-/// The one-line live status on a terminal's stderr.
+/// The live status on a terminal's stderr: one line redrawn in place, or, when the rows
+/// go to the same terminal, a line of its own now and then so that the two never run
+/// into each other.
 struct Status {
     enabled: bool,
+    own_line: bool,
     last_shown: Instant,
     started: Instant,
     last_reading: String,
     samples_then: u64,
+    covered_s: f64,
+    total_s: Option<f64>,
 }
 
 impl Status {
-    fn new() -> Self {
+    fn new(rows_on_terminal: bool, total_s: Option<f64>) -> Self {
         Status {
             enabled: io::stderr().is_terminal(),
+            own_line: rows_on_terminal,
             last_shown: Instant::now(),
             started: Instant::now(),
             last_reading: "no reading yet".into(),
             samples_then: 0,
+            covered_s: 0.0,
+            total_s,
         }
     }
 
     fn due(&self) -> bool {
-        self.enabled && self.last_shown.elapsed() >= Duration::from_millis(250)
+        let every = if self.own_line {
+            Duration::from_secs(5)
+        } else {
+            Duration::from_millis(250)
+        };
+        self.enabled && self.last_shown.elapsed() >= every
     }
 
     fn saw(&mut self, event: &Event, cal: &Calibration) {
+        self.covered_s = event.last_t();
         if let (true, Event::Samples(chunk)) = (self.enabled, event) {
             if let Some(&code) = chunk.samples.counts.last() {
                 self.last_reading = cal.reading_code(code).to_string();
@@ -429,21 +445,80 @@ impl Status {
         let rate = (link.samples - self.samples_then) as f64 / seconds;
         self.samples_then = link.samples;
         self.last_shown = Instant::now();
-        let elapsed =
-            humantime::format_duration(Duration::from_secs(self.started.elapsed().as_secs()));
+        let progress = progress(
+            self.covered_s,
+            self.total_s,
+            self.started.elapsed().as_secs_f64(),
+            rows,
+        );
         let silent = source.now() - link.last_sample_ns as f64 * 1e-9;
         let state = if !link.connected {
-            "  DISCONNECTED, retrying".to_string()
+            "DISCONNECTED, retrying".to_string()
         } else if source.live && silent > 0.5 {
-            format!("  silent for {silent:.1} s")
+            format!("silent for {silent:.1} s")
         } else {
             String::new()
         };
-        let _ = write!(
-            io::stderr(),
-            "\r\x1b[K{elapsed} | {rows} rows | {} | {rate:.0}/s | {}{state}",
-            self.last_reading,
-            link.brief()
+        let (start, end) = if self.own_line {
+            ("", "\n")
+        } else {
+            ("\r\x1b[K", "")
+        };
+        let rate = format!("{rate:.0}/s");
+        let brief = link.brief();
+        // A line wider than the terminal wraps, and then the redraw in place cannot clear
+        // it: fields are dropped whole instead, the state last of all.
+        let width = ratatui::crossterm::terminal::size().map_or(80, |(w, _)| usize::from(w));
+        let fields = [
+            (0, progress.as_str()),
+            (1, state.as_str()),
+            (2, self.last_reading.as_str()),
+            (4, rate.as_str()),
+            (3, brief.as_str()),
+        ];
+        let line = dbtrail::printable::fit_fields(&fields, " | ", width.saturating_sub(1));
+        let _ = write!(io::stderr(), "{start}{line}{end}");
+    }
+}
+
+/// How far a run has come: `4s of 2h, 4 rows, about 1h 59m 56s left`, the time left
+/// judged from the pace so far (wall time for a paced source, far less for `--fast`); or
+/// `4s recorded, 4 rows` when no --duration was given.
+fn progress(covered_s: f64, total_s: Option<f64>, wall_s: f64, rows: u64) -> String {
+    let span = |s: f64| humantime::format_duration(Duration::from_secs(s.max(0.0).round() as u64));
+    let Some(total) = total_s else {
+        return format!("{} recorded, {rows} rows", span(covered_s));
+    };
+    let covered = covered_s.clamp(0.0, total);
+    let left = if covered > 0.0 {
+        format!("about {} left", span(wall_s * (total - covered) / covered))
+    } else {
+        "time left not known yet".to_string()
+    };
+    format!("{} of {}, {rows} rows, {left}", span(covered), span(total))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::progress;
+
+    // Source: worked by hand: 4 s of a 2 h run took 4 s of wall time, so the rest at the
+    // same pace takes 7196 s = 1h 59m 56s; with --fast, 1 h of source time in 3 s of wall
+    // time leaves another 3 s for the second hour.
+    #[test]
+    fn progress_gives_the_total_and_the_time_left_at_the_pace_so_far() {
+        assert_eq!(
+            progress(4.0, Some(7200.0), 4.0, 4),
+            "4s of 2h, 4 rows, about 1h 59m 56s left"
         );
+        assert_eq!(
+            progress(3600.0, Some(7200.0), 3.0, 360),
+            "1h of 2h, 360 rows, about 3s left"
+        );
+        assert_eq!(
+            progress(0.0, Some(60.0), 0.5, 0),
+            "0s of 1m, 0 rows, time left not known yet"
+        );
+        assert_eq!(progress(90.0, None, 90.0, 9), "1m 30s recorded, 9 rows");
     }
 }
