@@ -15,7 +15,7 @@ fn decode_chunks(format: Format, chunks: &[&[u8]]) -> (Vec<Frame>, dbtrail::deco
 }
 
 fn ascii_stream(samples: &[Vec<u32>]) -> Vec<u8> {
-    let mut bytes = b"# sketch banner\r\n".to_vec();
+    let mut bytes = b"# board banner\r\n".to_vec();
     for s in samples {
         encode_ascii(s, &mut bytes);
     }

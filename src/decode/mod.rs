@@ -448,7 +448,7 @@ mod tests {
 
     #[test]
     fn ascii_separators_line_ends_and_comments() {
-        let text = b"# dbtrail sketch v1\r\n12,340\r\n13 341\n14\t342\r15 , 343\n\n16,344";
+        let text = b"# dbtrail example board v1\r\n12,340\r\n13 341\n14\t342\r15 , 343\n\n16,344";
         let (frames, stats) = decode(Format::Ascii, text);
         assert_eq!(
             counts(&frames),

@@ -1,5 +1,5 @@
-/* A stand-in board for docs/firmware/dbtrail_sketch.c: a ramp on each channel written to
-   standard output, stopping after a few samples. Used by tests/firmware_sketch.rs. */
+/* A stand-in board for docs/firmware/example_detector_board.c: a ramp on each channel written to
+   standard output, stopping after a few samples. Used by tests/firmware_example.rs. */
 #include <stdint.h>
 #include <stddef.h>
 #include <stdio.h>

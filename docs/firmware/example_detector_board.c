@@ -1,5 +1,5 @@
 /*
- * dbtrail_sketch.c - example firmware for a detector board that streams ADC samples to
+ * example_detector_board.c - example firmware for a detector board that streams ADC samples to
  * dbtrail in either of its wire modes (see ../protocol.md).
  *
  * Written for no particular microcontroller: fill in the four board functions at the top
@@ -81,7 +81,7 @@ static void send_banner(void)
 {
     /* A comment line: dbtrail ignores it, and it absorbs the line a reader skips when
        it joins the stream part-way. */
-    static const char banner[] = "# detector board, example sketch\n";
+    static const char banner[] = "# detector board, example firmware\n";
     board_serial_write((const uint8_t *)banner, sizeof banner - 1);
 }
 

@@ -9,8 +9,9 @@ use dbtrail::decode::{Decoder, Format};
 
 fn build_and_run(binary_mode: bool, channels: u8) -> Vec<u8> {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    let sketch = std::fs::read_to_string(root.join("docs/firmware/dbtrail_sketch.c")).unwrap();
-    let sketch = sketch
+    let firmware =
+        std::fs::read_to_string(root.join("docs/firmware/example_detector_board.c")).unwrap();
+    let firmware = firmware
         .replace(
             "#define CHANNELS      1",
             &format!("#define CHANNELS      {channels}"),
@@ -20,13 +21,13 @@ fn build_and_run(binary_mode: bool, channels: u8) -> Vec<u8> {
             &format!("#define BINARY_MODE   {}", u8::from(binary_mode)),
         );
     let dir = std::env::temp_dir().join(format!(
-        "dbtrail-sketch-{}-{binary_mode}-{channels}",
+        "dbtrail-firmware-{}-{binary_mode}-{channels}",
         std::process::id()
     ));
     std::fs::create_dir_all(&dir).unwrap();
-    let source = dir.join("sketch.c");
-    std::fs::write(&source, sketch).unwrap();
-    let exe = dir.join("sketch");
+    let source = dir.join("example_detector_board.c");
+    std::fs::write(&source, firmware).unwrap();
+    let exe = dir.join("example_detector_board");
     let built = Command::new("cc")
         .args(["-std=c99", "-Wall", "-Wextra", "-Werror", "-o"])
         .arg(&exe)
@@ -45,7 +46,7 @@ fn build_and_run(binary_mode: bool, channels: u8) -> Vec<u8> {
 }
 
 #[test]
-fn the_sketch_speaks_both_modes() {
+fn the_example_firmware_speaks_both_modes() {
     for (binary, channels) in [(false, 1), (false, 2), (true, 1), (true, 2)] {
         let bytes = build_and_run(binary, channels);
         let mut decoder = Decoder::new(Format::Auto);
