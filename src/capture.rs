@@ -72,6 +72,20 @@ pub enum MeasureError {
     /// The source stopped sending.
     #[error("the source stopped sending samples before the level was measured")]
     NoSamples,
+    /// The watcher asked to stop before the level was measured.
+    #[error("measurement cancelled: nothing was added")]
+    Cancelled,
+}
+
+/// How far a measurement has got, for showing while it runs.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Progress {
+    /// Samples read so far, settling and averaging together.
+    pub samples: u64,
+    /// Source time since the first sample, seconds.
+    pub elapsed_s: f64,
+    /// True once the level has settled and is being averaged.
+    pub settled: bool,
 }
 
 /// A settled, averaged level.
@@ -92,7 +106,45 @@ pub fn measure(
     rule: &SettleRule,
     span: Span,
 ) -> Result<Measured, MeasureError> {
+    measure_watched(samples, rule, span, |_| true)
+}
+
+/// [`measure`], telling `watch` the progress after every sample; when `watch` answers
+/// false the measurement stops with [`MeasureError::Cancelled`].
+pub fn measure_watched(
+    samples: impl IntoIterator<Item = (f64, f64)>,
+    rule: &SettleRule,
+    span: Span,
+    mut watch: impl FnMut(&Progress) -> bool,
+) -> Result<Measured, MeasureError> {
     let mut samples = samples.into_iter();
+    let mut progress = Progress {
+        samples: 0,
+        elapsed_s: 0.0,
+        settled: false,
+    };
+    let mut start = None;
+    let mut tick = |t: f64, settled: bool| {
+        let t0 = *start.get_or_insert(t);
+        progress.samples += 1;
+        progress.elapsed_s = t - t0;
+        progress.settled = settled;
+        if watch(&progress) {
+            Ok(())
+        } else {
+            Err(MeasureError::Cancelled)
+        }
+    };
+    settle(&mut samples, rule, &mut tick)?;
+    average(samples, span, &mut tick)
+}
+
+/// Reads `samples` until the moving window passes `rule`.
+fn settle(
+    samples: &mut impl Iterator<Item = (f64, f64)>,
+    rule: &SettleRule,
+    tick: &mut impl FnMut(f64, bool) -> Result<(), MeasureError>,
+) -> Result<(), MeasureError> {
     let mut window: VecDeque<(f64, f64)> = VecDeque::new();
     let mut start = None;
     let mut last = (f64::NAN, f64::NAN);
@@ -100,6 +152,7 @@ pub fn measure(
         let Some((t, c)) = samples.next() else {
             return Err(MeasureError::NoSamples);
         };
+        tick(t, false)?;
         let t0 = *start.get_or_insert(t);
         window.push_back((t, c));
         while window
@@ -118,7 +171,7 @@ pub fn measure(
             if std <= rule.max_std_counts.max(1e-3 * mean)
                 && slope.abs() <= rule.max_slope.max(2e-3 * mean)
             {
-                break;
+                return Ok(());
             }
         }
         if t - t0 > rule.timeout_s {
@@ -129,7 +182,6 @@ pub fn measure(
             });
         }
     }
-    average(samples, span)
 }
 
 fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
@@ -148,10 +200,12 @@ fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
 fn average(
     samples: impl Iterator<Item = (f64, f64)>,
     span: Span,
+    tick: &mut impl FnMut(f64, bool) -> Result<(), MeasureError>,
 ) -> Result<Measured, MeasureError> {
     let mut moments = CountMoments::default();
     let mut first = None;
     for (t, c) in samples {
+        tick(t, true)?;
         let t0 = *first.get_or_insert(t);
         moments.add(c);
         let done = match span {
@@ -408,9 +462,34 @@ impl Session {
         Ok(text)
     }
 
-    /// The points in the `fit` CSV format.
+    /// The points in the `fit` CSV format, with the settings `fit` needs to repeat the
+    /// fit in its `#` lines (see [`crate::points::read_settings`]).
     pub fn points_csv(&self) -> String {
-        let mut out = String::from("applied,counts,std_counts,samples\n");
+        let adc = &self.base.adc;
+        let mut out = String::from("# points measured by dbtrail calibrate\n");
+        out.push_str(&format!(
+            "# adc.bits = {}\n# adc.vref = {}\n",
+            adc.bits, adc.vref
+        ));
+        out.push_str(&format!("# adc.divider = {}\n", adc.divider.unwrap_or(1.0)));
+        out.push_str(&format!(
+            "# adc.zero_counts = {}\n",
+            adc.zero_counts.unwrap_or(0.0)
+        ));
+        let reference = self.base.reference_frequency.hz().unwrap_or(0.0);
+        out.push_str(&format!(
+            "# reference_frequency = {}\n",
+            format_frequency(reference)
+        ));
+        out.push_str(&format!("# model.kind = {}\n", self.model.name()));
+        if let (ModelKind::Table, Some(axis)) = (self.model, &self.base.model.axis) {
+            out.push_str(&format!("# model.axis = {axis}\n"));
+        }
+        if let (ModelKind::Diode, Some(kelvin)) = (self.model, self.base.model.temperature) {
+            out.push_str(&format!("# model.temperature = {kelvin}\n"));
+        }
+        out.push_str(&format!("# ohms = {}\n", self.ohms()));
+        out.push_str("applied,counts,std_counts,samples\n");
         for p in &self.points {
             out.push_str(&format!(
                 "{},{},{},{}\n",
