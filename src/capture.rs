@@ -727,4 +727,47 @@ mod tests {
             Err(MeasureError::NoSamples)
         );
     }
+
+    // Source: the rule in measure_watched's doc: a watcher answering false stops the
+    // measurement with Cancelled, before another sample is read.
+    #[test]
+    fn a_watcher_that_says_stop_cancels_the_measurement_at_once() {
+        let mut read = 0;
+        let counted = steady(1000.0, 0.0, 5000).inspect(|_| read += 1);
+        let mut seen = Vec::new();
+        let result = measure_watched(counted, &SettleRule::default(), Span::Samples(100), |p| {
+            seen.push(*p);
+            p.samples < 50
+        });
+        assert_eq!(result, Err(MeasureError::Cancelled));
+        assert_eq!(read, 50);
+        assert_eq!(seen.last().map(|p| p.samples), Some(50));
+    }
+
+    // Source: the settle rule's default window of 0.5 s: steady samples at 1 ms settle
+    // after the window fills, and the progress then says "settled" up to the last of the
+    // 100 averaged samples.
+    #[test]
+    fn progress_counts_every_sample_and_turns_settled_after_the_window() {
+        let mut seen = Vec::new();
+        let m = measure_watched(
+            steady(1000.0, 0.0, 5000),
+            &SettleRule::default(),
+            Span::Samples(100),
+            |p| {
+                seen.push(*p);
+                true
+            },
+        )
+        .unwrap();
+        assert_eq!(m.samples, 100);
+        let first_settled = seen.iter().position(|p| p.settled).unwrap();
+        assert!(
+            (seen[first_settled - 1].elapsed_s - 0.49).abs() < 0.011,
+            "{:?}",
+            seen[first_settled - 1]
+        );
+        assert_eq!(seen.len() - first_settled, 100);
+        assert!(seen.windows(2).all(|w| w[1].samples == w[0].samples + 1));
+    }
 }

@@ -947,3 +947,23 @@ fn lines(desk: &mut Desk, bench: &mut Bench) -> Result<(), Failure> {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Source: issue 16's decision: kept points never overwrite an existing file; the
+    // next free name is p.points-1.csv, then p.points-2.csv.
+    #[test]
+    fn kept_points_take_the_next_free_name() {
+        let dir = std::env::temp_dir().join(format!("dbtrail-free-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let stem = dir.join("p.points");
+        assert_eq!(free_name(&stem, "csv"), dir.join("p.points.csv"));
+        std::fs::write(dir.join("p.points.csv"), "x").unwrap();
+        assert_eq!(free_name(&stem, "csv"), dir.join("p.points-1.csv"));
+        std::fs::write(dir.join("p.points-1.csv"), "x").unwrap();
+        assert_eq!(free_name(&stem, "csv"), dir.join("p.points-2.csv"));
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+}

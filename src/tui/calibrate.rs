@@ -318,3 +318,148 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
         input,
     );
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dbtrail::capture::{base_profile, Session, SettleRule, Span};
+    use dbtrail::detector::ModelKind;
+    use dbtrail::profile::raw::RawAdc;
+    use ratatui::backend::TestBackend;
+    use ratatui::Terminal;
+
+    fn desk() -> Desk {
+        let adc = RawAdc {
+            bits: 12,
+            vref: 4.095,
+            divider: None,
+            zero_counts: None,
+            clip_margin: None,
+        };
+        let session = Session::new(base_profile("t", adc, 50.0, 10e6), ModelKind::Table);
+        let measuring = Measuring {
+            rule: SettleRule::default(),
+            span: Span::Samples(100),
+        };
+        Desk::new(session, "t.toml".into(), false, measuring, "a test".into())
+    }
+
+    /// The screen's rows as text.
+    fn rows(desk: &Desk, view: &View, width: u16, height: u16) -> Vec<String> {
+        let mut terminal = Terminal::new(TestBackend::new(width, height)).unwrap();
+        terminal.draw(|frame| draw(frame, desk, view)).unwrap();
+        let buffer = terminal.backend().buffer();
+        (0..height)
+            .map(|y| (0..width).map(|x| buffer[(x, y)].symbol()).collect())
+            .collect()
+    }
+
+    /// The words of the screen, borders dropped, in reading order.
+    fn words(rows: &[String]) -> String {
+        let text: Vec<String> = rows
+            .iter()
+            .map(|r| r.trim_matches(|c: char| "│┌┐└┘─ ".contains(c)).to_string())
+            .collect();
+        text.join(" ")
+            .split_whitespace()
+            .collect::<Vec<_>>()
+            .join(" ")
+    }
+
+    fn flat(text: &str) -> String {
+        text.split_whitespace().collect::<Vec<_>>().join(" ")
+    }
+
+    fn typing(message: &str) -> View {
+        View {
+            input: String::new(),
+            message: message.to_string(),
+            mode: Mode::Typing,
+        }
+    }
+
+    // Source: issue 16: at 80 and 100 columns the help is shown whole, nothing cut
+    // mid-word, `save`/`quit` and the safety text in view.
+    #[test]
+    fn help_is_shown_whole_at_80_and_100_columns() {
+        let desk = desk();
+        for (width, height) in [(80, 24), (100, 30)] {
+            let screen = rows(&desk, &typing(HELP), width, height);
+            let shown = words(&screen);
+            assert!(
+                shown.contains(&flat(HELP)),
+                "{width}×{height}:\n{}",
+                screen.join("\n")
+            );
+        }
+    }
+
+    // Source: issue 16: warnings wrap to the width instead of being cut.
+    #[test]
+    fn a_long_warning_wraps_instead_of_being_cut() {
+        let mut desk = desk();
+        let at = |counts| dbtrail::capture::Measured {
+            counts,
+            std_counts: 0.5,
+            samples: 100,
+        };
+        for (level, counts) in [("-60dBm", 500.0), ("-30dBm", 1250.0), ("0dBm", 2000.0)] {
+            desk.session.add(level, at(counts)).unwrap();
+        }
+        desk.session.add("-45dBm", at(1900.0)).unwrap();
+        let warning = desk.session.warnings().remove(0);
+        for (width, height) in [(80, 24), (100, 30)] {
+            let screen = rows(&desk, &typing(""), width, height);
+            assert!(
+                words(&screen).contains(&flat(&warning)),
+                "{width}×{height}:\n{}",
+                screen.join("\n")
+            );
+        }
+    }
+
+    // Source: issue 16's decision: the screen shows a measurement's progress and how to
+    // cancel it while it runs.
+    #[test]
+    fn a_running_measurement_shows_its_progress_and_how_to_cancel() {
+        let mut desk = desk();
+        let Step::Measure(request) = desk.plan("0dBm") else {
+            panic!("a level asks for a measurement");
+        };
+        let view = View {
+            input: String::new(),
+            message: String::new(),
+            mode: Mode::Measuring {
+                request,
+                started: Instant::now(),
+                progress: Some(Progress {
+                    samples: 120,
+                    elapsed_s: 0.12,
+                    settled: false,
+                }),
+                cancelling: false,
+            },
+        };
+        let shown = words(&rows(&desk, &view, 80, 24));
+        assert!(
+            shown.contains("measuring 0dBm")
+                && shown.contains("120 samples, 0.1 s of at most 10 s")
+                && shown.contains("Esc or Ctrl-C cancels"),
+            "{shown}"
+        );
+    }
+
+    // Source: issue 16's decision: a cancelled measurement adds no point and says so.
+    #[test]
+    fn a_cancelled_measurement_adds_no_point() {
+        let mut desk = desk();
+        let Step::Measure(request) = desk.plan("0dBm") else {
+            panic!("a level asks for a measurement");
+        };
+        let Outcome::Continue(text) = desk.finish(request, Err(MeasureError::Cancelled)) else {
+            panic!("the session goes on");
+        };
+        assert!(text.contains("0dBm: measurement cancelled"), "{text}");
+        assert!(desk.session.points.is_empty());
+    }
+}
