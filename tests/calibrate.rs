@@ -407,7 +407,7 @@ fn the_zero_and_the_limits_are_measured_first_and_saved() {
     let stdout = text(&out.stdout);
     assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
     assert!(
-        stdout.contains("zero (RF off"),
+        stdout.contains("zero: RF off + `zero`, or `skip`, or a level> "),
         "the zero is asked for first: {stdout}"
     );
     let saved = dbtrail::profile::load_profile(&profile).unwrap();
@@ -433,7 +433,10 @@ fn a_level_entered_again_replaces_its_point() {
     );
     let stdout = text(&out.stdout);
     assert!(out.status.success(), "{stdout}");
-    assert!(stdout.contains("replaced point 2 (0dBm) (was "), "{stdout}");
+    assert!(
+        stdout.contains("replaced point 2 (was ") && stdout.contains(" at 0dBm"),
+        "{stdout}"
+    );
     assert!(!stdout.contains("not in order"), "{stdout}");
     let saved = dbtrail::profile::load_profile(&profile).unwrap();
     assert_eq!(saved.points.len(), 3);

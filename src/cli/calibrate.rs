@@ -493,10 +493,10 @@ impl Desk {
             .ok_or(dbtrail::capture::SessionError::NoPoint(number))?;
         self.session.redo(number, measured)?;
         Ok(format!(
-            "replaced point {number} ({}) (was {:.2} counts, now {:.2})\n{}",
-            was.0,
+            "replaced point {number} (was {:.2} counts, now {:.2}) at {}\n{}",
             was.1,
             measured.counts,
+            was.0,
             self.report()
         ))
     }
@@ -588,11 +588,11 @@ impl Desk {
         }
         let _ = writeln!(
             out,
-            "\n    (model minus applied, dB; for the table, the error when that point is left out)"
+            "\n    (model minus applied, dB; table: the error with that point left out)"
         );
         let _ = writeln!(
             out,
-            "    saving model: {} · zero {} counts\n    limits: {}",
+            "    saving model: {} · zero {:.2} counts\n    limits: {}",
             session.model,
             self.zero_counts(),
             self.limits_text()
@@ -780,7 +780,7 @@ Safety: stay within the detector's, the load's and the attenuator's ratings;
 RF burns; transmit only as your licence and local regulations allow.";
 
 /// The prompt of the first step.
-const ZERO_PROMPT: &str = "zero (RF off, then `zero`; or `skip`; a level skips it)> ";
+const ZERO_PROMPT: &str = "zero: RF off + `zero`, or `skip`, or a level> ";
 
 /// What follows the zero step.
 const LIMITS_HINT: &str = "\
