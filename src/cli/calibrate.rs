@@ -784,8 +784,8 @@ const ZERO_PROMPT: &str = "zero: RF off + `zero`, or `skip`, or a level> ";
 
 /// What follows the zero step.
 const LIMITS_HINT: &str = "\
-if you know them, give the limits (each optional): `limit detector 20dBm` for the \
-detector's safe input, `limit load 5W` for the load's or attenuator's rating; \
+if you know them, give the limits (each optional): `limit detector 20dBm` for
+the detector's safe input, `limit load 5W` for the load's or attenuator's rating;
 then apply the first level and enter it";
 
 pub fn run(args: Args) -> Result<(), Failure> {
