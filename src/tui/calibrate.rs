@@ -4,7 +4,7 @@
 //! Esc or Ctrl-C can cancel it.
 
 use std::sync::atomic::{AtomicBool, Ordering::Relaxed};
-use std::sync::mpsc::{self, Receiver, Sender};
+use std::sync::mpsc::{self, Receiver, Sender, TryRecvError};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
@@ -41,6 +41,12 @@ struct View {
     message: String,
     mode: Mode,
 }
+
+/// Shown when the measuring thread has stopped (it failed): no more levels can be read,
+/// but the points already taken can still be kept.
+const WORKER_GONE: &str = "the measuring thread has stopped, so no more levels can be measured; \
+    `save` writes the points taken so far and `quit` keeps them in a points CSV; then start \
+    calibrate again";
 
 /// What the measuring worker sends back.
 enum FromWorker {
@@ -84,11 +90,12 @@ impl Worker {
         }
     }
 
-    fn begin(&self, applied: Option<(f64, f64)>) -> Result<()> {
+    fn begin(
+        &self,
+        applied: Option<(f64, f64)>,
+    ) -> Result<(), mpsc::SendError<Option<(f64, f64)>>> {
         self.cancel.store(false, Relaxed);
-        self.jobs
-            .send(applied)
-            .map_err(|_| anyhow::anyhow!("the measuring thread has stopped; restart calibrate"))
+        self.jobs.send(applied)
     }
 }
 
@@ -117,9 +124,19 @@ fn screen(
     };
     loop {
         terminal.draw(|frame| draw(frame, desk, &view))?;
-        while let Ok(event) = worker.events.try_recv() {
-            if let Some(end) = on_worker(desk, &mut view, event) {
-                return Ok(Some(end));
+        loop {
+            match worker.events.try_recv() {
+                Ok(event) => {
+                    if let Some(end) = on_worker(desk, &mut view, event) {
+                        return Ok(Some(end));
+                    }
+                }
+                Err(TryRecvError::Disconnected) if matches!(view.mode, Mode::Measuring { .. }) => {
+                    // The points already taken are still here: say so rather than end.
+                    view.mode = Mode::Typing;
+                    view.message = WORKER_GONE.into();
+                }
+                Err(_) => break,
             }
         }
         if !term_event::poll(Duration::from_millis(50))? {
@@ -203,7 +220,10 @@ fn on_key(
     match desk.plan(&line) {
         Step::Done(outcome) => Ok(show(desk, view, outcome)),
         Step::Measure(request) => {
-            worker.begin(request.applied)?;
+            if worker.begin(request.applied).is_err() {
+                view.message = WORKER_GONE.into();
+                return Ok(None);
+            }
             view.mode = Mode::Measuring {
                 request,
                 started: Instant::now(),
