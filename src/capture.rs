@@ -72,6 +72,20 @@ pub enum MeasureError {
     /// The source stopped sending.
     #[error("the source stopped sending samples before the level was measured")]
     NoSamples,
+    /// The watcher asked to stop before the level was measured.
+    #[error("measurement cancelled: nothing was added")]
+    Cancelled,
+}
+
+/// How far a measurement has got, for showing while it runs.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Progress {
+    /// Samples read so far, settling and averaging together.
+    pub samples: u64,
+    /// Source time since the first sample, seconds.
+    pub elapsed_s: f64,
+    /// True once the level has settled and is being averaged.
+    pub settled: bool,
 }
 
 /// A settled, averaged level.
@@ -92,7 +106,45 @@ pub fn measure(
     rule: &SettleRule,
     span: Span,
 ) -> Result<Measured, MeasureError> {
+    measure_watched(samples, rule, span, |_| true)
+}
+
+/// [`measure`], telling `watch` the progress after every sample; when `watch` answers
+/// false the measurement stops with [`MeasureError::Cancelled`].
+pub fn measure_watched(
+    samples: impl IntoIterator<Item = (f64, f64)>,
+    rule: &SettleRule,
+    span: Span,
+    mut watch: impl FnMut(&Progress) -> bool,
+) -> Result<Measured, MeasureError> {
     let mut samples = samples.into_iter();
+    let mut progress = Progress {
+        samples: 0,
+        elapsed_s: 0.0,
+        settled: false,
+    };
+    let mut start = None;
+    let mut tick = |t: f64, settled: bool| {
+        let t0 = *start.get_or_insert(t);
+        progress.samples += 1;
+        progress.elapsed_s = t - t0;
+        progress.settled = settled;
+        if watch(&progress) {
+            Ok(())
+        } else {
+            Err(MeasureError::Cancelled)
+        }
+    };
+    settle(&mut samples, rule, &mut tick)?;
+    average(samples, span, &mut tick)
+}
+
+/// Reads `samples` until the moving window passes `rule`.
+fn settle(
+    samples: &mut impl Iterator<Item = (f64, f64)>,
+    rule: &SettleRule,
+    tick: &mut impl FnMut(f64, bool) -> Result<(), MeasureError>,
+) -> Result<(), MeasureError> {
     let mut window: VecDeque<(f64, f64)> = VecDeque::new();
     let mut start = None;
     let mut last = (f64::NAN, f64::NAN);
@@ -100,6 +152,7 @@ pub fn measure(
         let Some((t, c)) = samples.next() else {
             return Err(MeasureError::NoSamples);
         };
+        tick(t, false)?;
         let t0 = *start.get_or_insert(t);
         window.push_back((t, c));
         while window
@@ -118,7 +171,7 @@ pub fn measure(
             if std <= rule.max_std_counts.max(1e-3 * mean)
                 && slope.abs() <= rule.max_slope.max(2e-3 * mean)
             {
-                break;
+                return Ok(());
             }
         }
         if t - t0 > rule.timeout_s {
@@ -129,7 +182,6 @@ pub fn measure(
             });
         }
     }
-    average(samples, span)
 }
 
 fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
@@ -148,10 +200,12 @@ fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
 fn average(
     samples: impl Iterator<Item = (f64, f64)>,
     span: Span,
+    tick: &mut impl FnMut(f64, bool) -> Result<(), MeasureError>,
 ) -> Result<Measured, MeasureError> {
     let mut moments = CountMoments::default();
     let mut first = None;
     for (t, c) in samples {
+        tick(t, true)?;
         let t0 = *first.get_or_insert(t);
         moments.add(c);
         let done = match span {
@@ -408,9 +462,34 @@ impl Session {
         Ok(text)
     }
 
-    /// The points in the `fit` CSV format.
+    /// The points in the `fit` CSV format, with the settings `fit` needs to repeat the
+    /// fit in its `#` lines (see [`crate::points::read_settings`]).
     pub fn points_csv(&self) -> String {
-        let mut out = String::from("applied,counts,std_counts,samples\n");
+        let adc = &self.base.adc;
+        let mut out = String::from("# points measured by dbtrail calibrate\n");
+        out.push_str(&format!(
+            "# adc.bits = {}\n# adc.vref = {}\n",
+            adc.bits, adc.vref
+        ));
+        out.push_str(&format!("# adc.divider = {}\n", adc.divider.unwrap_or(1.0)));
+        out.push_str(&format!(
+            "# adc.zero_counts = {}\n",
+            adc.zero_counts.unwrap_or(0.0)
+        ));
+        let reference = self.base.reference_frequency.hz().unwrap_or(0.0);
+        out.push_str(&format!(
+            "# reference_frequency = {}\n",
+            format_frequency(reference)
+        ));
+        out.push_str(&format!("# model.kind = {}\n", self.model.name()));
+        if let (ModelKind::Table, Some(axis)) = (self.model, &self.base.model.axis) {
+            out.push_str(&format!("# model.axis = {axis}\n"));
+        }
+        if let (ModelKind::Diode, Some(kelvin)) = (self.model, self.base.model.temperature) {
+            out.push_str(&format!("# model.temperature = {kelvin}\n"));
+        }
+        out.push_str(&format!("# ohms = {}\n", self.ohms()));
+        out.push_str("applied,counts,std_counts,samples\n");
         for p in &self.points {
             out.push_str(&format!(
                 "{},{},{},{}\n",
@@ -647,5 +726,48 @@ mod tests {
             ),
             Err(MeasureError::NoSamples)
         );
+    }
+
+    // Source: the rule in measure_watched's doc: a watcher answering false stops the
+    // measurement with Cancelled, before another sample is read.
+    #[test]
+    fn a_watcher_that_says_stop_cancels_the_measurement_at_once() {
+        let mut read = 0;
+        let counted = steady(1000.0, 0.0, 5000).inspect(|_| read += 1);
+        let mut seen = Vec::new();
+        let result = measure_watched(counted, &SettleRule::default(), Span::Samples(100), |p| {
+            seen.push(*p);
+            p.samples < 50
+        });
+        assert_eq!(result, Err(MeasureError::Cancelled));
+        assert_eq!(read, 50);
+        assert_eq!(seen.last().map(|p| p.samples), Some(50));
+    }
+
+    // Source: the settle rule's default window of 0.5 s: steady samples at 1 ms settle
+    // after the window fills, and the progress then says "settled" up to the last of the
+    // 100 averaged samples.
+    #[test]
+    fn progress_counts_every_sample_and_turns_settled_after_the_window() {
+        let mut seen = Vec::new();
+        let m = measure_watched(
+            steady(1000.0, 0.0, 5000),
+            &SettleRule::default(),
+            Span::Samples(100),
+            |p| {
+                seen.push(*p);
+                true
+            },
+        )
+        .unwrap();
+        assert_eq!(m.samples, 100);
+        let first_settled = seen.iter().position(|p| p.settled).unwrap();
+        assert!(
+            (seen[first_settled - 1].elapsed_s - 0.49).abs() < 0.011,
+            "{:?}",
+            seen[first_settled - 1]
+        );
+        assert_eq!(seen.len() - first_settled, 100);
+        assert!(seen.windows(2).all(|w| w[1].samples == w[0].samples + 1));
     }
 }

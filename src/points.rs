@@ -1,12 +1,14 @@
 //! The calibration points file: CSV with a header naming `applied` and `counts` (in any
 //! order, each once; `std_counts` and `samples` may follow), one measured point per row.
 //! `applied` is a level with its unit (`-10dBm`, `2.5mW`, `0.5Vpk`, `1.25Vdc`); `counts`
-//! the mean ADC reading at it. Lines starting with `#` are comments.
+//! the mean ADC reading at it. Lines starting with `#` are comments; those of the form
+//! `# key = value` with a key of [`read_settings`] carry the bench settings the points
+//! were measured with, which `dbtrail calibrate` writes and `dbtrail fit` takes up.
 
 use thiserror::Error;
 
 use crate::profile::raw::RawPoint;
-use crate::units::parse_level;
+use crate::units::{parse_frequency, parse_level};
 
 /// A points file that could not be read, with the line and column it went wrong at.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -185,6 +187,99 @@ fn row_error(e: &csv::Error) -> String {
     }
 }
 
+/// A setting from a points file's `#` lines and the line it is on.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Setting<T> {
+    /// The value.
+    pub value: T,
+    /// 1-based line in the file.
+    pub line: u64,
+}
+
+/// The bench settings a points file states, each `None` when the file does not say.
+/// The keys are the profile's own field names.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct PointsSettings {
+    /// `# adc.bits = 12`
+    pub bits: Option<Setting<i64>>,
+    /// `# adc.vref = 1.2` (volts)
+    pub vref: Option<Setting<f64>>,
+    /// `# adc.divider = 2`
+    pub divider: Option<Setting<f64>>,
+    /// `# adc.zero_counts = 3.5`
+    pub zero_counts: Option<Setting<f64>>,
+    /// `# reference_frequency = 10MHz`, in Hz
+    pub reference_hz: Option<Setting<f64>>,
+    /// `# model.kind = table` (table, diode or log)
+    pub model: Option<Setting<String>>,
+    /// `# model.axis = log-volts` (log-volts or volts)
+    pub axis: Option<Setting<String>>,
+    /// `# model.temperature = 300` (kelvin)
+    pub temperature: Option<Setting<f64>>,
+    /// `# ohms = 50`
+    pub ohms: Option<Setting<f64>>,
+}
+
+fn at<T>(line: u64, value: T) -> Option<Setting<T>> {
+    Some(Setting { value, line })
+}
+
+/// Reads the settings in a points file's `# key = value` lines. Other `#` lines are
+/// comments; a known key whose value does not parse is an error naming its line.
+pub fn read_settings(bytes: &[u8], origin: &str) -> Result<PointsSettings, PointsError> {
+    let mut settings = PointsSettings::default();
+    let text = String::from_utf8_lossy(bytes);
+    for (index, raw_line) in text.lines().enumerate() {
+        let line = index as u64 + 1;
+        let Some((key, value)) = raw_line
+            .trim()
+            .strip_prefix('#')
+            .and_then(|rest| rest.split_once('='))
+        else {
+            continue;
+        };
+        let (key, value) = (key.trim(), value.trim());
+        let fail = |what: &str| PointsError {
+            origin: origin.to_string(),
+            line,
+            field: key.to_string(),
+            message: format!("`{value}` is not {what}; correct the line or delete it"),
+        };
+        let finite = || number(value).ok_or_else(|| fail("a finite number"));
+        let one_of = |names: &[&str], what: &str| {
+            names
+                .contains(&value)
+                .then(|| value.to_string())
+                .ok_or_else(|| fail(what))
+        };
+        match key {
+            "adc.bits" => {
+                settings.bits = at(line, value.parse().map_err(|_| fail("a whole number"))?)
+            }
+            "adc.vref" => settings.vref = at(line, finite()?),
+            "adc.divider" => settings.divider = at(line, finite()?),
+            "adc.zero_counts" => settings.zero_counts = at(line, finite()?),
+            "ohms" => settings.ohms = at(line, finite()?),
+            "model.temperature" => settings.temperature = at(line, finite()?),
+            "reference_frequency" => {
+                let hz = parse_frequency(value).map_err(|_| fail("a frequency such as 10MHz"))?;
+                settings.reference_hz = at(line, hz);
+            }
+            "model.kind" => {
+                settings.model = at(
+                    line,
+                    one_of(&["table", "diode", "log"], "table, diode or log")?,
+                );
+            }
+            "model.axis" => {
+                settings.axis = at(line, one_of(&["log-volts", "volts"], "log-volts or volts")?)
+            }
+            _ => {}
+        }
+    }
+    Ok(settings)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -199,5 +294,32 @@ mod tests {
         assert_eq!(rows[0].point.std_counts, Some(0.4));
         assert_eq!(rows[1].point.std_counts, None);
         assert_eq!(rows[1].line, 4);
+    }
+
+    // Source: the rule in this module's doc: `# key = value` lines with the profile's
+    // field names carry settings, other `#` lines are comments, a bad value names its line.
+    #[test]
+    fn settings_lines_are_read_with_their_line_and_plain_comments_are_skipped() {
+        let text = b"# a bench note = not a key\n# adc.bits = 12\n# adc.divider = 2\n\
+            # reference_frequency = 10MHz\n# model.kind = diode\napplied,counts\n0dBm,100\n";
+        let s = read_settings(text, "p.csv").unwrap();
+        assert_eq!(s.bits, Some(Setting { value: 12, line: 2 }));
+        assert_eq!(
+            s.divider,
+            Some(Setting {
+                value: 2.0,
+                line: 3
+            })
+        );
+        assert_eq!(s.reference_hz.map(|f| f.value), Some(10e6));
+        assert_eq!(s.model.map(|m| m.value).as_deref(), Some("diode"));
+        assert_eq!(s.vref, None);
+        assert_eq!(read_points(text, "p.csv").unwrap().len(), 1);
+        let bad = read_settings(b"# adc.vref = 3.3V\n", "p.csv").unwrap_err();
+        assert_eq!((bad.line, bad.field.as_str()), (1, "adc.vref"));
+        assert!(
+            bad.message.contains("`3.3V` is not a finite number"),
+            "{bad}"
+        );
     }
 }

@@ -299,13 +299,23 @@ pub struct SignalBench {
 /// The time constant of the detector's output filter, seconds: each new level settles.
 const BENCH_TAU_S: f64 = 0.03;
 
+/// What the diode bench's ADC reads with RF off, counts: the input offset a real board
+/// has, which calibrate's zero step measures (invented for the demo).
+pub const BENCH_ZERO_COUNTS: f64 = 3.0;
+
 impl SignalBench {
     /// A bench with the given detector, sampled at `rate_hz`.
     pub fn new(kind: BenchDetector, rate_hz: f64, seed: u64) -> Self {
         let (detector, adc, corner_hz): (Arc<dyn Detector>, Adc, f64) = match kind {
             BenchDetector::Diode => (
                 Arc::new(DiodeDetector::new(1.08, 0.55, 300.0, 50.0, (-30.0, 18.0))),
-                Adc::new(12, 1.2, 2.0, 0.0, crate::adc::DEFAULT_CLIP_MARGIN),
+                Adc::new(
+                    12,
+                    1.2,
+                    2.0,
+                    BENCH_ZERO_COUNTS,
+                    crate::adc::DEFAULT_CLIP_MARGIN,
+                ),
                 700e6,
             ),
             BenchDetector::LogAmp => (

@@ -29,12 +29,8 @@ fn calibrate(args: &[&str], script: &[&str]) -> std::process::Output {
         .unwrap();
     let mut input = script.join("\n");
     input.push('\n');
-    child
-        .stdin
-        .take()
-        .unwrap()
-        .write_all(input.as_bytes())
-        .unwrap();
+    // A run that refuses its options at once closes its input unread: that is its answer.
+    let _ = child.stdin.take().unwrap().write_all(input.as_bytes());
     child.wait_with_output().unwrap()
 }
 
@@ -275,29 +271,218 @@ fn bad_entries_get_a_message_and_the_session_goes_on() {
     );
 }
 
+fn text(bytes: &[u8]) -> String {
+    String::from_utf8_lossy(bytes).into_owned()
+}
+
+fn path(p: &Path) -> &str {
+    p.to_str().unwrap()
+}
+
+// Source: the rule in docs/reliability.md (bad input exits 2 with a message naming the
+// file and what to do) and issue 16's decision: --out is checked before any measuring.
 #[test]
-fn an_existing_profile_is_not_overwritten_and_input_ending_early_keeps_the_points() {
+fn an_existing_out_is_refused_before_any_measuring() {
     let dir = scratch("keep");
     let profile = dir.join("keep.toml");
     std::fs::write(&profile, "precious\n").unwrap();
     let out = calibrate(
-        &["--demo", "--out", profile.to_str().unwrap()],
-        &["0dBm", "5dBm", "save", "quit"],
+        &["--demo", "--out", path(&profile)],
+        &["0dBm", "5dBm", "save"],
     );
-    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = text(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
     assert!(
-        stdout.contains("already exists") && stdout.contains("--force"),
-        "{stdout}"
+        stderr.contains(path(&profile)) && stderr.contains("choose another --out, or add --force"),
+        "{stderr}"
+    );
+    assert!(
+        !text(&out.stdout).contains("settled"),
+        "nothing was measured"
     );
     assert_eq!(std::fs::read_to_string(&profile).unwrap(), "precious\n");
+}
+
+// Source: issue 16's decision: `save FILE` writes FILE and the points CSV beside it, and
+// refuses an existing FILE unless --force was given, saying so; the session goes on.
+#[test]
+fn save_with_a_file_name_writes_that_file_and_refuses_an_existing_one() {
+    let dir = scratch("save-as");
+    let taken = dir.join("taken.toml");
+    std::fs::write(&taken, "precious\n").unwrap();
+    let other = dir.join("other.toml");
+    let save_taken = format!("save {}", path(&taken));
+    let save_other = format!("save {}", path(&other));
+    let out = calibrate(
+        &["--demo", "--out", path(&dir.join("p.toml"))],
+        &["0dBm", "5dBm", "10dBm", &save_taken, &save_other],
+    );
+    let stdout = text(&out.stdout);
+    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    assert!(
+        stdout.contains(&format!("{} already exists", path(&taken)))
+            && stdout.contains("without --force"),
+        "{stdout}"
+    );
+    assert_eq!(std::fs::read_to_string(&taken).unwrap(), "precious\n");
+    let saved = dbtrail::profile::load_profile(&other).unwrap();
+    assert_eq!(saved.points.len(), 3);
+    assert!(dir.join("other.points.csv").exists());
+    assert!(
+        !dir.join("p.toml").exists(),
+        "the name given replaces --out"
+    );
+}
+
+/// Data rows (not `#` lines, not the header) of a points CSV.
+fn point_rows(file: &Path) -> Vec<String> {
+    std::fs::read_to_string(file)
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with("applied"))
+        .map(String::from)
+        .collect()
+}
+
+// Source: issue 16's decision: the first `quit` with unsaved points warns, the second
+// leaves with exit 0 and keeps the points in FILE.points.csv, saying where.
+#[test]
+fn quit_with_unsaved_points_warns_then_keeps_them() {
+    let dir = scratch("quit");
+    let profile = dir.join("q.toml");
+    let out = calibrate(
+        &["--demo", "--out", path(&profile)],
+        &["0dBm", "5dBm", "quit", "quit"],
+    );
+    let stdout = text(&out.stdout);
+    assert_eq!(out.status.code(), Some(0), "{stdout}");
+    let kept = dir.join("q.points.csv");
+    assert!(
+        stdout.contains(&format!(
+            "2 points not saved: `save` writes them, `quit` again leaves and keeps them in {}",
+            path(&kept)
+        )),
+        "{stdout}"
+    );
+    assert!(stdout.contains(&format!("the 2 points are kept in {}", path(&kept))));
+    let rows = point_rows(&kept);
+    assert!(
+        rows[0].starts_with("0dBm,") && rows[1].starts_with("5dBm,"),
+        "{rows:?}"
+    );
+    assert!(!profile.exists());
+}
+
+// Source: issue 16's decision: end of input before `save` keeps exit 1 and now writes the
+// points CSV beside the intended profile, printing its path.
+#[test]
+fn input_ending_before_save_keeps_the_points_in_a_file() {
+    let dir = scratch("early");
     let early = calibrate(
-        &["--demo", "--out", dir.join("early.toml").to_str().unwrap()],
+        &["--demo", "--out", path(&dir.join("early.toml"))],
         &["0dBm", "5dBm"],
     );
     assert_eq!(early.status.code(), Some(1));
-    let stderr = String::from_utf8_lossy(&early.stderr);
+    let kept = dir.join("early.points.csv");
+    let stderr = text(&early.stderr);
     assert!(
-        stderr.contains("0dBm,") && stderr.contains("5dBm,"),
-        "the points are printed: {stderr}"
+        stderr.contains(&format!("kept in {}", path(&kept))),
+        "{stderr}"
+    );
+    assert_eq!(point_rows(&kept).len(), 2);
+}
+
+// Source: dBm = 10·log10(P / 1 mW): 5 W is 36.99 dBm. The zero: the simulated bench's
+// invented ADC offset (sim::BENCH_ZERO_COUNTS, 3 counts) under noise of mean zero
+// (σ = 0.7 counts, rounded: symmetric about a whole count, so the mean stays 3);
+// 1000 samples leave ±0.03, so 0.1 is a generous bound.
+#[test]
+fn the_zero_and_the_limits_are_measured_first_and_saved() {
+    let dir = scratch("zero");
+    let profile = dir.join("z.toml");
+    let mut script = vec!["zero", "limit detector 20dBm", "limit load 5W"];
+    script.extend(["-5dBm", "0dBm", "5dBm", "10dBm", "save"]);
+    let out = calibrate(&["--demo", "--out", path(&profile)], &script);
+    let stdout = text(&out.stdout);
+    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    assert!(
+        stdout.contains("zero: RF off + `zero`, or `skip`, or a level> "),
+        "the zero is asked for first: {stdout}"
+    );
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    let zero = saved.adc.zero_counts();
+    assert!(
+        (zero - dbtrail::sim::BENCH_ZERO_COUNTS).abs() < 0.1,
+        "{zero}"
+    );
+    assert_eq!(saved.limits.detector_max_dbm, Some(20.0));
+    let load = saved.limits.reference_max_dbm.unwrap();
+    assert!((load - 36.9897).abs() < 1e-3, "{load}");
+}
+
+// Source: issue 16's decision: a level entered again replaces the earlier point and says
+// "replaced point N (was X counts, now Y)"; no order warning, no blanked fits.
+#[test]
+fn a_level_entered_again_replaces_its_point() {
+    let dir = scratch("again");
+    let profile = dir.join("a.toml");
+    let out = calibrate(
+        &["--demo", "--out", path(&profile)],
+        &["-5dBm", "0dBm", "5dBm", "0dBm", "save"],
+    );
+    let stdout = text(&out.stdout);
+    assert!(out.status.success(), "{stdout}");
+    assert!(
+        stdout.contains("replaced point 2 (was ") && stdout.contains(" at 0dBm"),
+        "{stdout}"
+    );
+    assert!(!stdout.contains("not in order"), "{stdout}");
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    assert_eq!(saved.points.len(), 3);
+}
+
+// Source: issue 16: `fit` on calibrate's own points CSV, with no ADC options, must give
+// the model calibrate saved (same points, same settings, same fit: parameters equal to
+// 1e-9 relative); an option that differs from the file is used and reported.
+#[test]
+fn fit_on_calibrates_points_file_gives_the_saved_model() {
+    let dir = scratch("refit");
+    let profile = dir.join("bench.toml");
+    let mut script: Vec<String> = vec!["zero".into()];
+    script.extend(levels(-16.0, 17.0, 3.0));
+    script.push("save".into());
+    let script: Vec<&str> = script.iter().map(String::as_str).collect();
+    let out = calibrate(
+        &["--demo", "--model", "diode", "--out", path(&profile)],
+        &script,
+    );
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let points = dir.join("bench.points.csv");
+    let refit = dir.join("refit.toml");
+    common::succeeded(["fit", path(&points), "--out", path(&refit)]);
+    let (saved, again) = (
+        dbtrail::profile::load_profile(&profile).unwrap(),
+        dbtrail::profile::load_profile(&refit).unwrap(),
+    );
+    assert!(saved.adc.zero_counts() > 0.0, "the zero went through");
+    for name in ["n", "vl"] {
+        let (a, b) = (
+            saved.model.param(name).unwrap(),
+            again.model.param(name).unwrap(),
+        );
+        assert!((a - b).abs() <= 1e-9 * a.abs(), "{name}: {a} vs {b}");
+    }
+    assert_eq!(again.adc.zero_counts(), saved.adc.zero_counts());
+    let other = dir.join("other.toml");
+    let conflict = common::bin()
+        .args(["fit", path(&points), "--divider", "1", "--model", "table"])
+        .args(["--out", path(&other)])
+        .output()
+        .unwrap();
+    let stderr = text(&conflict.stderr);
+    assert!(
+        stderr.contains("--divider 1 given, the points file says 2 (")
+            && stderr.contains("line 4); using 1"),
+        "{stderr}"
     );
 }

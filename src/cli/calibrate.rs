@@ -5,17 +5,20 @@
 use std::fmt::Write as _;
 use std::io::{self, BufRead, IsTerminal, Write};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering::Relaxed};
 use std::time::{Duration, Instant};
 
 use anyhow::{anyhow, Context};
-use dbtrail::capture::{base_profile, measure, Measured, Session, SettleRule, Span};
+use dbtrail::capture::{
+    base_profile, measure_watched, MeasureError, Measured, Progress, Session, SettleRule, Span,
+};
 use dbtrail::decode::Format;
 use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
 use dbtrail::profile::load_profile;
-use dbtrail::profile::raw::RawAdc;
+use dbtrail::profile::raw::{RawAdc, RawLimits};
 use dbtrail::record::Event;
 use dbtrail::sim::{BenchDetector, SignalBench};
-use dbtrail::units::{parse_duration, parse_frequency, Si};
+use dbtrail::units::{parse_duration, parse_frequency, parse_level, Si};
 
 use super::{parse_frequency_arg, parse_ohms, BadInput, Failure, Runtime};
 use crate::source::{open_port, Running, SerialSpec};
@@ -93,15 +96,17 @@ pub enum Bench {
 }
 
 impl Bench {
-    /// Samples after the generator is set to `applied` (dBm, Hz), until `limit` of time.
-    fn samples(
-        &mut self,
-        applied: (f64, f64),
+    /// Samples after the generator is set to `applied` (dBm, Hz; `None`: RF off), until
+    /// `limit` of time or until `cancel` is set.
+    fn samples<'a>(
+        &'a mut self,
+        applied: Option<(f64, f64)>,
         limit: Duration,
-    ) -> Box<dyn Iterator<Item = (f64, f64)> + '_> {
+        cancel: &'a AtomicBool,
+    ) -> Box<dyn Iterator<Item = (f64, f64)> + 'a> {
         match self {
             Bench::Demo(bench) => {
-                bench.apply(Some(applied));
+                bench.apply(applied);
                 Box::new(std::iter::repeat_with(move || {
                     let (t, c) = bench.next_sample();
                     (t, f64::from(c))
@@ -121,7 +126,8 @@ impl Bench {
                         );
                         continue;
                     }
-                    if Instant::now() > deadline || source.exhausted() {
+                    // A silent port must not hold a cancelled measurement until the deadline.
+                    if Instant::now() > deadline || source.exhausted() || cancel.load(Relaxed) {
                         return None;
                     }
                     std::thread::sleep(Duration::from_millis(1));
@@ -136,11 +142,48 @@ impl Bench {
             while source.next_event().is_some() {}
         }
     }
+
+    /// Measures one level under `how`, telling `watch` the progress; stops with
+    /// [`MeasureError::Cancelled`] as soon as `cancel` is set.
+    pub fn measure(
+        &mut self,
+        applied: Option<(f64, f64)>,
+        how: &Measuring,
+        cancel: &AtomicBool,
+        mut watch: impl FnMut(&Progress),
+    ) -> Result<Measured, MeasureError> {
+        self.discard_backlog();
+        let limit = Duration::from_secs_f64(how.rule.timeout_s + 60.0);
+        let result = measure_watched(
+            self.samples(applied, limit, cancel),
+            &how.rule,
+            how.span,
+            |p| {
+                watch(p);
+                !cancel.load(Relaxed)
+            },
+        );
+        if cancel.load(Relaxed) {
+            return Err(MeasureError::Cancelled);
+        }
+        result
+    }
+}
+
+/// How each level is measured: the settle rule and the averaging.
+#[derive(Debug, Clone, Copy)]
+pub struct Measuring {
+    /// When a level counts as settled.
+    pub rule: SettleRule,
+    /// How long a settled level is averaged.
+    pub span: Span,
 }
 
 /// Which entries the prompt takes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Stage {
+    /// The first step: the ADC zero with RF off, or `skip`.
+    Zero,
     /// Levels at the reference frequency.
     Levels,
     /// Frequencies at one level.
@@ -153,103 +196,262 @@ pub enum Outcome {
     Continue(String),
     /// Saved; show this and end.
     Saved(String),
-    /// Leave without saving.
-    Quit,
+    /// Leave without saving the profile; show this (it says where the points went).
+    Quit(String),
 }
 
-/// The session and the bench, driven one line of input at a time.
+/// What a line of input asks for.
+pub enum Step {
+    /// Done at once.
+    Done(Outcome),
+    /// A measurement first; give its result to [`Desk::finish`].
+    Measure(Request),
+}
+
+/// A measurement a line asked for, and what to do with its result.
+pub struct Request {
+    /// What the generator is set to (dBm, Hz), or `None` for RF off.
+    pub applied: Option<(f64, f64)>,
+    /// The line that asked, for showing while it runs.
+    pub line: String,
+    then: Then,
+}
+
+enum Then {
+    Zero,
+    Level(String),
+    Redo(usize),
+    Frequency(f64),
+}
+
+/// The session driven one line of input at a time; measurements go to a [`Bench`].
 pub struct Desk {
     /// The calibration in progress.
     pub session: Session,
-    /// Where samples come from.
-    pub bench: Bench,
     /// Which entries the prompt takes.
     pub stage: Stage,
     out: PathBuf,
     force: bool,
-    rule: SettleRule,
-    span: Span,
+    /// How each level is measured.
+    pub measuring: Measuring,
     reference_hz: f64,
     /// What the samples come from.
     pub source: String,
+    /// The last line was a `quit` that warned of unsaved points.
+    quit_warned: bool,
 }
 
 impl Desk {
+    /// A desk that will write `out` (and its points CSV beside it).
+    pub fn new(
+        session: Session,
+        out: PathBuf,
+        force: bool,
+        measuring: Measuring,
+        source: String,
+    ) -> Self {
+        let reference_hz = session.base.reference_frequency.hz().unwrap_or(10e6);
+        Desk {
+            session,
+            stage: Stage::Zero,
+            out,
+            force,
+            measuring,
+            reference_hz,
+            source,
+            quit_warned: false,
+        }
+    }
+
     /// The prompt for the next line.
     pub fn prompt(&self) -> String {
         match (self.stage, &self.session.freq_level) {
+            (Stage::Zero, _) => ZERO_PROMPT.into(),
             (Stage::Frequencies, Some((level, _))) => format!("frequency at {level}> "),
             _ => "level> ".into(),
         }
     }
 
-    /// Takes one line of input.
-    pub fn handle(&mut self, line: &str) -> Outcome {
+    /// Takes one line of input, measuring on `bench` when it asks for that.
+    pub fn handle(&mut self, bench: &mut Bench, line: &str) -> Outcome {
+        match self.plan(line) {
+            Step::Done(outcome) => outcome,
+            Step::Measure(request) => {
+                let result = bench.measure(
+                    request.applied,
+                    &self.measuring,
+                    &AtomicBool::new(false),
+                    |_| {},
+                );
+                self.finish(request, result)
+            }
+        }
+    }
+
+    /// What one line of input asks for: done at once, or a measurement first.
+    pub fn plan(&mut self, line: &str) -> Step {
         let line = line.trim();
+        let quit_warned = std::mem::take(&mut self.quit_warned);
         let mut words = line.split_whitespace();
         let first = words.next().unwrap_or("");
         let rest: Vec<&str> = words.collect();
         let result = match (first, rest.as_slice()) {
             ("", _) => Ok(String::new()),
             ("help" | "?", _) => Ok(HELP.to_string()),
-            ("save", _) => return self.save(),
-            ("quit" | "exit", _) => return Outcome::Quit,
+            ("save", []) => return Step::Done(self.save(None)),
+            ("save", [file]) => return Step::Done(self.save(Some(Path::new(file)))),
+            ("quit" | "exit", _) => return Step::Done(self.quit(quit_warned)),
             ("list", _) => Ok(self.report()),
+            ("zero", []) => return self.ask(None, line, Then::Zero),
+            ("skip", []) if self.stage == Stage::Zero => {
+                self.stage = Stage::Levels;
+                Ok(format!(
+                    "zero skipped: zero_counts stays {}\n{LIMITS_HINT}",
+                    self.zero_counts()
+                ))
+            }
+            ("limit", [which, level]) => self.set_limit(which, level),
             ("delete" | "del", [n]) => self.delete(n),
-            ("redo", [n]) => self.redo(n),
+            ("redo", [n]) => return self.redo(n, line),
             ("model", [name]) => self.set_model(name),
             ("freq", [level]) => self.start_frequencies(level),
             ("levels", []) => {
                 self.stage = Stage::Levels;
                 Ok("back to levels at the reference frequency".into())
             }
-            _ => self.entry(line),
+            _ => return self.entry(line),
         };
-        Outcome::Continue(
-            result.unwrap_or_else(|e| format!("{e}\n(nothing was changed; the session goes on)")),
+        Step::Done(Outcome::Continue(continuing(result)))
+    }
+
+    fn ask(&self, applied: Option<(f64, f64)>, line: &str, then: Then) -> Step {
+        Step::Measure(Request {
+            applied,
+            line: line.to_string(),
+            then,
+        })
+    }
+
+    /// Takes the result of the measurement `request` asked for.
+    pub fn finish(&mut self, request: Request, result: Result<Measured, MeasureError>) -> Outcome {
+        let measured = match result {
+            Ok(m) => m,
+            Err(MeasureError::Cancelled) => {
+                return Outcome::Continue(format!("{}: {}", request.line, MeasureError::Cancelled))
+            }
+            Err(e) => return Outcome::Continue(continuing(Err(e.into()))),
+        };
+        let result = match request.then {
+            Then::Zero => Ok(self.set_zero(&measured)),
+            Then::Level(text) => self.add_level(&text, measured),
+            Then::Redo(number) => self.replace(number, measured),
+            Then::Frequency(hz) => self.add_frequency(hz, measured),
+        };
+        Outcome::Continue(continuing(result))
+    }
+
+    fn zero_counts(&self) -> f64 {
+        self.session.base.adc.zero_counts.unwrap_or(0.0)
+    }
+
+    fn set_zero(&mut self, measured: &Measured) -> String {
+        self.session.base.adc.zero_counts = Some(measured.counts);
+        if self.stage == Stage::Zero {
+            self.stage = Stage::Levels;
+        }
+        format!(
+            "{}\nthe ADC zero is {:.2} counts with RF off; it is saved as zero_counts in [adc]\n{LIMITS_HINT}",
+            describe(measured),
+            measured.counts
         )
     }
 
-    fn entry(&mut self, text: &str) -> anyhow::Result<String> {
-        match self.stage {
-            Stage::Levels => {
-                let (_, dbm) = self
-                    .session
-                    .parse_level(text)
-                    .map_err(|e| anyhow!("{e}\n(type `help` for the commands)"))?;
-                let measured = self.measure((dbm, self.reference_hz))?;
-                self.session.add(text, measured)?;
-                Ok(format!("{}\n{}", describe(&measured), self.report()))
+    fn set_limit(&mut self, which: &str, level: &str) -> anyhow::Result<String> {
+        let dbm = parse_level(level, false)
+            .map_err(|e| anyhow!("{e}\n(give the limit as a power, e.g. 20dBm or 5W)"))?
+            .power(self.session.ohms())
+            .dbm();
+        if !(-200.0..=100.0).contains(&dbm) {
+            return Err(anyhow!(
+                "`{level}` is {dbm:.1} dBm; a limit lies from -200 to +100 dBm"
+            ));
+        }
+        let limits = self.session.base.limits.get_or_insert(NO_LIMITS);
+        let name = match which {
+            "detector" => {
+                limits.detector_max_dbm = Some(dbm);
+                "the detector's safe input (detector_max_dbm)"
             }
-            Stage::Frequencies => {
-                let hz = parse_frequency(text).map_err(|e| {
-                    anyhow!("{e}\n(in the frequency stage enter a frequency; `levels` goes back)")
-                })?;
-                let (_, dbm) = self
-                    .session
-                    .freq_level
-                    .clone()
-                    .context("no level for the frequency stage")?;
-                let measured = self.measure((dbm, hz))?;
-                let correction = self.session.add_frequency(hz, measured)?;
-                Ok(format!(
-                    "{}\ncorrection at {}: {correction:+.3} dB (true minus indicated)\n{}",
-                    describe(&measured),
-                    Si::new(hz, "Hz"),
-                    self.frequency_report()
+            "load" | "attenuator" => {
+                limits.reference_max_dbm = Some(dbm);
+                "the load's or attenuator's rating (reference_max_dbm)"
+            }
+            other => {
+                return Err(anyhow!(
+                    "`limit {other}`: say `limit detector LEVEL` or `limit load LEVEL`"
                 ))
             }
+        };
+        Ok(format!(
+            "{name}: {dbm:.2} dBm, saved in [limits]; readings above it are flagged (the limits \
+             cannot protect the hardware)"
+        ))
+    }
+
+    fn entry(&mut self, text: &str) -> Step {
+        if self.stage == Stage::Zero {
+            // A level typed at the zero prompt skips the zero (scripts start with levels).
+            self.stage = Stage::Levels;
+        }
+        let applied = match self.stage {
+            Stage::Levels | Stage::Zero => self
+                .session
+                .parse_level(text)
+                .map(|(_, dbm)| ((dbm, self.reference_hz), Then::Level(text.to_string())))
+                .map_err(|e| anyhow!("{e}\n(type `help` for the commands)")),
+            Stage::Frequencies => parse_frequency(text)
+                .map_err(|e| {
+                    anyhow!("{e}\n(in the frequency stage enter a frequency; `levels` goes back)")
+                })
+                .and_then(|hz| {
+                    let (_, dbm) = self
+                        .session
+                        .freq_level
+                        .clone()
+                        .context("no level for the frequency stage")?;
+                    Ok(((dbm, hz), Then::Frequency(hz)))
+                }),
+        };
+        match applied {
+            Ok((applied, then)) => self.ask(Some(applied), text, then),
+            Err(e) => Step::Done(Outcome::Continue(continuing(Err(e)))),
         }
     }
 
-    fn measure(&mut self, applied: (f64, f64)) -> anyhow::Result<Measured> {
-        self.bench.discard_backlog();
-        let limit = Duration::from_secs_f64(self.rule.timeout_s + 60.0);
-        Ok(measure(
-            self.bench.samples(applied, limit),
-            &self.rule,
-            self.span,
-        )?)
+    /// Adds a level's point, or replaces the point already taken at that level.
+    fn add_level(&mut self, text: &str, measured: Measured) -> anyhow::Result<String> {
+        let (_, dbm) = self.session.parse_level(text)?;
+        let ohms = self.session.ohms();
+        let same = self
+            .session
+            .points
+            .iter()
+            .position(|p| (p.level.power(ohms).dbm() - dbm).abs() < 1e-6);
+        if let Some(index) = same {
+            return self.replace(index + 1, measured);
+        }
+        self.session.add(text, measured)?;
+        Ok(format!("{}\n{}", describe(&measured), self.report()))
+    }
+
+    fn add_frequency(&mut self, hz: f64, measured: Measured) -> anyhow::Result<String> {
+        let correction = self.session.add_frequency(hz, measured)?;
+        Ok(format!(
+            "{}\ncorrection at {}: {correction:+.3} dB (true minus indicated)\n{}",
+            describe(&measured),
+            Si::new(hz, "Hz"),
+            self.frequency_report()
+        ))
     }
 
     fn point_number(text: &str) -> anyhow::Result<usize> {
@@ -266,21 +468,35 @@ impl Desk {
         ))
     }
 
-    fn redo(&mut self, n: &str) -> anyhow::Result<String> {
-        let number = Self::point_number(n)?;
-        let point = self
+    fn redo(&mut self, n: &str, line: &str) -> Step {
+        let point = Self::point_number(n).and_then(|number| {
+            let point = self
+                .session
+                .points
+                .get(number.wrapping_sub(1))
+                .ok_or(dbtrail::capture::SessionError::NoPoint(number))?;
+            Ok((number, point.level.power(self.session.ohms()).dbm()))
+        });
+        match point {
+            Ok((number, dbm)) => self.ask(Some((dbm, self.reference_hz)), line, Then::Redo(number)),
+            Err(e) => Step::Done(Outcome::Continue(continuing(Err(e)))),
+        }
+    }
+
+    /// Puts a new measurement in place of point `number`, saying what it replaced.
+    fn replace(&mut self, number: usize, measured: Measured) -> anyhow::Result<String> {
+        let was = self
             .session
             .points
             .get(number.wrapping_sub(1))
-            .cloned()
+            .map(|p| (p.applied.clone(), p.measured.counts))
             .ok_or(dbtrail::capture::SessionError::NoPoint(number))?;
-        let dbm = point.level.power(self.session.ohms()).dbm();
-        let measured = self.measure((dbm, self.reference_hz))?;
         self.session.redo(number, measured)?;
         Ok(format!(
-            "redid point {number} ({}): {}\n{}",
-            point.applied,
-            describe(&measured),
+            "replaced point {number} (was {:.2} counts, now {:.2}) at {}\n{}",
+            was.1,
+            measured.counts,
+            was.0,
             self.report()
         ))
     }
@@ -352,7 +568,7 @@ impl Desk {
             }
             out.push('\n');
         }
-        let _ = write!(out, "    RMS error{:>38}", "");
+        let _ = write!(out, "    RMS error{:>32}", "");
         for (_, errors) in &fits {
             let finite: Vec<f64> = errors
                 .iter()
@@ -372,13 +588,29 @@ impl Desk {
         }
         let _ = writeln!(
             out,
-            "\n    (model minus applied, dB; for the table, the error when that point is left out)"
+            "\n    (model minus applied, dB; table: the error with that point left out)"
         );
-        let _ = writeln!(out, "    saving model: {}", session.model);
+        let _ = writeln!(
+            out,
+            "    saving model: {} · zero {:.2} counts\n    limits: {}",
+            session.model,
+            self.zero_counts(),
+            self.limits_text()
+        );
         for warning in session.warnings() {
             let _ = writeln!(out, "  ! {warning}");
         }
         out
+    }
+
+    fn limits_text(&self) -> String {
+        let limits = self.session.base.limits.clone().unwrap_or(NO_LIMITS);
+        let show = |v: Option<f64>| v.map_or("not given".into(), |d| format!("{d:.1} dBm"));
+        format!(
+            "detector {}, load {}",
+            show(limits.detector_max_dbm),
+            show(limits.reference_max_dbm)
+        )
     }
 
     fn frequency_report(&self) -> String {
@@ -399,8 +631,9 @@ impl Desk {
         out
     }
 
-    fn save(&mut self) -> Outcome {
-        match self.write_files() {
+    fn save(&mut self, file: Option<&Path>) -> Outcome {
+        let target = file.unwrap_or(&self.out).to_path_buf();
+        match self.write_files(&target) {
             Ok(text) => Outcome::Saved(text),
             Err(e) => {
                 Outcome::Continue(format!("{e:#}\n(nothing was written; the session goes on)"))
@@ -408,23 +641,100 @@ impl Desk {
         }
     }
 
-    fn write_files(&self) -> anyhow::Result<String> {
+    fn write_files(&self, target: &Path) -> anyhow::Result<String> {
+        let points = points_path(target);
         let header = format!(
             "Written by dbtrail calibrate from {}.\nLevels applied at the detector input at {}; the raw points are kept below and in {}.",
             self.source,
             Si::new(self.reference_hz, "Hz"),
-            points_path(&self.out).display()
+            points.display()
         );
         let profile = self.session.profile_text(&header)?;
-        let points = points_path(&self.out);
-        write_new(&self.out, &profile, self.force)?;
+        for path in [target, points.as_path()] {
+            if path.exists() && !self.force {
+                return Err(anyhow!(
+                    "{} already exists, and calibrate was started without --force; \
+                     `save` another file name (e.g. `save {}`)",
+                    path.display(),
+                    free_name(&target.with_extension(""), "toml").display()
+                ));
+            }
+        }
+        write_new(target, &profile, self.force)?;
         write_new(&points, &self.session.points_csv(), self.force)?;
         Ok(format!(
             "wrote {} and {}",
-            self.out.display(),
+            target.display(),
             points.display()
         ))
     }
+
+    /// `quit`: with unsaved points, the first warns and the second leaves, keeping them.
+    fn quit(&mut self, warned: bool) -> Outcome {
+        let n = self.session.points.len();
+        if n == 0 {
+            return Outcome::Quit("left; nothing was measured, nothing written".into());
+        }
+        if !warned {
+            self.quit_warned = true;
+            return Outcome::Continue(format!(
+                "{n} points not saved: `save` writes them, `quit` again leaves and keeps them in {}",
+                self.kept_points_path().display()
+            ));
+        }
+        match self.keep_points() {
+            Ok(path) => Outcome::Quit(format!(
+                "left without saving the profile; the {n} points are kept in {} \
+                 (`dbtrail fit {}` makes a profile of them)",
+                path.display(),
+                path.display()
+            )),
+            Err(e) => Outcome::Continue(continuing(Err(e))),
+        }
+    }
+
+    /// Where [`Desk::keep_points`] would write now.
+    fn kept_points_path(&self) -> PathBuf {
+        free_name(&self.out.with_extension("points"), "csv")
+    }
+
+    /// Writes the points CSV beside the intended profile, under a free name: an
+    /// existing file is never replaced. Returns the path written.
+    pub fn keep_points(&self) -> anyhow::Result<PathBuf> {
+        let path = self.kept_points_path();
+        let mut file = std::fs::OpenOptions::new()
+            .write(true)
+            .create_new(true)
+            .open(&path)
+            .with_context(|| format!("cannot create {} to keep the points", path.display()))?;
+        file.write_all(self.session.points_csv().as_bytes())
+            .and_then(|()| super::files::sync(&file))
+            .with_context(|| format!("cannot write {}", path.display()))?;
+        Ok(path)
+    }
+}
+
+/// A `[limits]` table with neither limit given.
+const NO_LIMITS: RawLimits = RawLimits {
+    detector_max_dbm: None,
+    reference_max_dbm: None,
+};
+
+/// A line's result as shown: errors say that nothing changed.
+fn continuing(result: anyhow::Result<String>) -> String {
+    result.unwrap_or_else(|e| format!("{e:#}\n(nothing was changed; the session goes on)"))
+}
+
+/// `stem.ext` if free, else `stem-1.ext`, `stem-2.ext` … (`p.points` → `p.points-1.csv`).
+fn free_name(stem: &Path, ext: &str) -> PathBuf {
+    let plain = PathBuf::from(format!("{}.{ext}", stem.display()));
+    if !plain.exists() {
+        return plain;
+    }
+    (1..)
+        .map(|i| PathBuf::from(format!("{}-{i}.{ext}", stem.display())))
+        .find(|p| !p.exists())
+        .unwrap_or(plain)
 }
 
 fn describe(m: &Measured) -> String {
@@ -453,26 +763,59 @@ fn write_new(path: &Path, text: &str, force: bool) -> anyhow::Result<()> {
         .with_context(|| format!("cannot write {}", path.display()))
 }
 
+/// The commands, each line short enough for an 80-column terminal.
 pub const HELP: &str = "\
-Enter the level you have applied (e.g. -10dBm, 3.16mW, 0.5Vpk, 1.25Vdc): dbtrail waits for
-the reading to settle, averages it and adds the point. Commands:
-  redo N         measure point N again          delete N     remove point N
-  model NAME     save the table, diode or log model
-  freq LEVEL     frequency stage at LEVEL: then enter each frequency (e.g. 146MHz)
-  levels         back to the level stage        list         show the points and fits
-  save           write the profile and its points CSV        quit   leave without saving
-Safety: stay within the detector's, the load's and the attenuator's ratings; RF burns;
-transmit only as your licence and local regulations allow.";
+Enter the level you have applied (e.g. -10dBm, 3.16mW, 0.5Vpk, 1.25Vdc):
+dbtrail waits for the reading to settle, averages it and adds the point;
+the same level again replaces its point. Commands:
+  zero            measure the ADC zero with RF off (first; `skip` goes on)
+  limit detector LEVEL   the detector's safe input (e.g. 20dBm)
+  limit load LEVEL       the load's or attenuator's rating (e.g. 5W)
+  redo N   measure point N again       delete N   remove point N
+  model NAME   save the table, diode or log model    list   show the fits
+  freq LEVEL   frequency stage at LEVEL, then each frequency (e.g. 146MHz)
+  levels       back to the level stage
+  save [FILE]  write the profile and its points CSV      quit   leave
+Safety: stay within the detector's, the load's and the attenuator's ratings;
+RF burns; transmit only as your licence and local regulations allow.";
+
+/// The prompt of the first step.
+const ZERO_PROMPT: &str = "zero: RF off + `zero`, or `skip`, or a level> ";
+
+/// What follows the zero step.
+const LIMITS_HINT: &str = "\
+if you know them, give the limits (each optional): `limit detector 20dBm` for
+the detector's safe input, `limit load 5W` for the load's or attenuator's rating;
+then apply the first level and enter it";
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let mut desk = set_up(&args)?;
+    let (mut desk, mut bench) = set_up(&args)?;
     if io::stdin().is_terminal() && io::stdout().is_terminal() {
-        return crate::tui::calibrate::run(desk).runtime();
+        return crate::tui::calibrate::run(desk, bench).runtime();
     }
-    lines(&mut desk)
+    lines(&mut desk, &mut bench)
 }
 
-fn set_up(args: &Args) -> Result<Desk, Failure> {
+/// Refuses an existing --out (or its points CSV) before any measuring, unless --force.
+fn check_out(args: &Args) -> Result<(), Failure> {
+    if args.force {
+        return Ok(());
+    }
+    for path in [args.out.clone(), points_path(&args.out)] {
+        if path.exists() {
+            return Err(anyhow!(
+                "{} already exists; choose another --out, or add --force (checked before \
+                 measuring, so that no work is lost at `save`)",
+                path.display()
+            ))
+            .bad_input();
+        }
+    }
+    Ok(())
+}
+
+fn set_up(args: &Args) -> Result<(Desk, Bench), Failure> {
+    check_out(args)?;
     let demo = args.demo.as_deref().map(|d| {
         if d == "logamp" {
             BenchDetector::LogAmp
@@ -543,21 +886,17 @@ fn set_up(args: &Args) -> Result<Desk, Failure> {
         timeout_s: args.settle_timeout.as_secs_f64(),
         ..SettleRule::default()
     };
-    Ok(Desk {
-        session: Session::new(base, model),
-        bench,
-        stage: Stage::Levels,
-        out: args.out.clone(),
-        force: args.force,
+    let measuring = Measuring {
         rule,
         span: args.average,
-        reference_hz: args.freq,
-        source,
-    })
+    };
+    let session = Session::new(base, model);
+    let desk = Desk::new(session, args.out.clone(), args.force, measuring, source);
+    Ok((desk, bench))
 }
 
 /// Plain line prompts, for scripts and pipes.
-fn lines(desk: &mut Desk) -> Result<(), Failure> {
+fn lines(desk: &mut Desk, bench: &mut Bench) -> Result<(), Failure> {
     let mut out = io::stdout().lock();
     let say = |out: &mut io::StdoutLock, text: &str| -> Result<(), Failure> {
         out.write_all(text.as_bytes())
@@ -576,10 +915,11 @@ fn lines(desk: &mut Desk) -> Result<(), Failure> {
     for line in io::stdin().lock().lines() {
         let line = line.context("cannot read standard input").runtime()?;
         say(&mut out, &format!("{}\n", line.trim()))?;
-        match desk.handle(&line) {
+        match desk.handle(bench, &line) {
             Outcome::Continue(text) => say(&mut out, &format!("{text}\n{}", desk.prompt()))?,
-            Outcome::Saved(text) => return say(&mut out, &format!("{text}\n")),
-            Outcome::Quit => return say(&mut out, "left without saving\n"),
+            Outcome::Saved(text) | Outcome::Quit(text) => {
+                return say(&mut out, &format!("{text}\n"))
+            }
         }
     }
     if desk.session.points.is_empty() {
@@ -588,11 +928,42 @@ fn lines(desk: &mut Desk) -> Result<(), Failure> {
             "\nend of input; nothing measured, nothing written\n",
         );
     }
-    super::say_err!(
-        "\ndbtrail: input ended before `save`: nothing written. The points measured were:\n{}",
-        desk.session.points_csv()
-    );
-    Err(Failure::Runtime(anyhow!(
-        "end of input before `save` (the points are printed above)"
-    )))
+    let n = desk.session.points.len();
+    match desk.keep_points() {
+        Ok(path) => Err(Failure::Runtime(anyhow!(
+            "end of input before `save`: the profile was not written; the {n} points are kept \
+             in {} (`dbtrail fit {}` makes a profile of them)",
+            path.display(),
+            path.display()
+        ))),
+        Err(e) => {
+            super::say_err!(
+                "dbtrail: the points measured were:\n{}",
+                desk.session.points_csv()
+            );
+            Err(Failure::Runtime(e.context(
+                "end of input before `save`, and the points could not be kept (they are printed above)",
+            )))
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Source: issue 16's decision: kept points never overwrite an existing file; the
+    // next free name is p.points-1.csv, then p.points-2.csv.
+    #[test]
+    fn kept_points_take_the_next_free_name() {
+        let dir = std::env::temp_dir().join(format!("dbtrail-free-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let stem = dir.join("p.points");
+        assert_eq!(free_name(&stem, "csv"), dir.join("p.points.csv"));
+        std::fs::write(dir.join("p.points.csv"), "x").unwrap();
+        assert_eq!(free_name(&stem, "csv"), dir.join("p.points-1.csv"));
+        std::fs::write(dir.join("p.points-1.csv"), "x").unwrap();
+        assert_eq!(free_name(&stem, "csv"), dir.join("p.points-2.csv"));
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
 }

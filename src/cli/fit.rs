@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::detector::Weighting;
-use dbtrail::points::{read_points, PointRow};
+use dbtrail::points::{read_points, read_settings, PointRow, PointsSettings, Setting};
 use dbtrail::printable::escape_controls;
 use dbtrail::profile::raw::{FreqValue, RawAdc, RawModel, RawProfile};
 use dbtrail::profile::{
@@ -17,31 +17,35 @@ use dbtrail::units::DEFAULT_OHMS;
 
 use super::{emit, parse_frequency_arg, parse_ohms, summary, BadInput, Failure, Runtime};
 
+/// Every setting below may be left out when the points file states it in a `# key = value`
+/// line, as the points CSV that `calibrate` writes does; an option given overrides the
+/// file's line (and a difference is reported).
 #[derive(clap::Args)]
 pub struct Args {
     /// Points file: CSV with header `applied,counts`
     points: PathBuf,
-    /// Detector model to fit
+    /// Detector model to fit [default: the file's model.kind line, else table, as calibrate]
     #[arg(long, value_parser = ["table", "diode", "log"])]
-    model: String,
-    /// ADC resolution in bits (1 to 24)
+    model: Option<String>,
+    /// ADC resolution in bits (1 to 24) [default: the file's adc.bits line]
     #[arg(long, allow_hyphen_values = true)]
-    adc_bits: i64,
-    /// ADC reference voltage, volts
+    adc_bits: Option<i64>,
+    /// ADC reference voltage, volts [default: the file's adc.vref line]
     #[arg(long, allow_hyphen_values = true, value_parser = super::parse_number_arg)]
-    vref: f64,
-    /// Divider ratio: detector volts / ADC pin volts
-    #[arg(long, default_value_t = 1.0, allow_hyphen_values = true, value_parser = super::parse_number_arg)]
-    divider: f64,
-    /// Reference impedance in ohms
-    #[arg(long, default_value_t = DEFAULT_OHMS, value_parser = parse_ohms, allow_hyphen_values = true)]
-    ohms: f64,
-    /// Frequency the points were measured at, e.g. 10MHz
+    vref: Option<f64>,
+    /// Divider ratio: detector volts / ADC pin volts [default: the file's adc.divider line, else 1]
+    #[arg(long, allow_hyphen_values = true, value_parser = super::parse_number_arg)]
+    divider: Option<f64>,
+    /// Reference impedance in ohms [default: the file's ohms line, else 50]
+    #[arg(long, value_parser = parse_ohms, allow_hyphen_values = true)]
+    ohms: Option<f64>,
+    /// Frequency the points were measured at, e.g. 10MHz [default: the file's
+    /// reference_frequency line, else 10MHz, as calibrate]
     #[arg(long, allow_hyphen_values = true, value_parser = parse_frequency_arg)]
-    freq: f64,
-    /// ADC counts read with no signal applied
-    #[arg(long, default_value_t = 0.0, allow_hyphen_values = true, value_parser = super::parse_counts_arg)]
-    zero_counts: f64,
+    freq: Option<f64>,
+    /// ADC counts read with no signal applied [default: the file's adc.zero_counts line, else 0]
+    #[arg(long, allow_hyphen_values = true, value_parser = super::parse_counts_arg)]
+    zero_counts: Option<f64>,
     /// Table model axis: log-volts (diode detectors) or volts (log-amps)
     #[arg(long, value_parser = ["log-volts", "volts"])]
     axis: Option<String>,
@@ -59,6 +63,90 @@ pub struct Args {
     force: bool,
 }
 
+/// The settings the fit uses: each from its option, else the points file, else the default.
+struct Settled {
+    model: String,
+    bits: i64,
+    vref: f64,
+    divider: f64,
+    ohms: f64,
+    freq: f64,
+    zero_counts: f64,
+    axis: Option<String>,
+    temperature: Option<f64>,
+}
+
+/// The option's value if given, else the file's; reports on stderr when both are given
+/// and differ, since the file records what the bench used.
+fn pick<T: PartialEq + std::fmt::Display>(
+    option: Option<T>,
+    flag: &str,
+    file: Option<Setting<T>>,
+    origin: &str,
+) -> Option<T> {
+    match (option, file) {
+        (Some(given), Some(line)) if given != line.value => {
+            super::say_err!(
+                "dbtrail: {flag} {given} given, the points file says {} ({origin} line {}); using {given}",
+                line.value,
+                line.line
+            );
+            Some(given)
+        }
+        (Some(given), _) => Some(given),
+        (None, line) => line.map(|l| l.value),
+    }
+}
+
+fn settle(args: &Args, file: PointsSettings, origin: &str) -> anyhow::Result<Settled> {
+    let bits = pick(args.adc_bits, "--adc-bits", file.bits, origin);
+    let vref = pick(args.vref, "--vref", file.vref, origin);
+    let (Some(bits), Some(vref)) = (bits, vref) else {
+        return Err(anyhow!(
+            "give the ADC with --adc-bits and --vref: {origin} has no `# adc.bits` and \
+             `# adc.vref` lines (the points CSV that calibrate writes has them)"
+        ));
+    };
+    let freq_text = |f: Option<Setting<f64>>| {
+        f.map(|s| Setting {
+            value: FreqText(s.value),
+            line: s.line,
+        })
+    };
+    Ok(Settled {
+        model: pick(args.model.clone(), "--model", file.model, origin)
+            .unwrap_or_else(|| "table".into()),
+        bits,
+        vref,
+        divider: pick(args.divider, "--divider", file.divider, origin).unwrap_or(1.0),
+        ohms: pick(args.ohms, "--ohms", file.ohms, origin).unwrap_or(DEFAULT_OHMS),
+        freq: pick(
+            args.freq.map(FreqText),
+            "--freq",
+            freq_text(file.reference_hz),
+            origin,
+        )
+        .map_or(DEFAULT_FREQ_HZ, |f| f.0),
+        zero_counts: pick(args.zero_counts, "--zero-counts", file.zero_counts, origin)
+            .unwrap_or(0.0),
+        axis: pick(args.axis.clone(), "--axis", file.axis, origin),
+        temperature: pick(args.temperature, "--temperature", file.temperature, origin),
+    })
+}
+
+/// A frequency shown with its unit in a conflict report.
+#[derive(PartialEq)]
+struct FreqText(f64);
+
+impl std::fmt::Display for FreqText {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&dbtrail::units::format_frequency(self.0))
+    }
+}
+
+/// The reference frequency when neither option nor file gives one: calibrate's default.
+const DEFAULT_FREQ_HZ: f64 = 10e6;
+
 /// The largest points file read: far more than the most points a profile holds, written
 /// out with every column a points file may have.
 const POINTS_MAX_BYTES: u64 = 16 << 20;
@@ -67,15 +155,17 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let origin = args.points.display().to_string();
     let bytes = super::files::read_bounded(&args.points, POINTS_MAX_BYTES, "points file")?;
     let rows = read_points(&bytes, &origin).bad_input()?;
+    let settings =
+        settle(&args, read_settings(&bytes, &origin).bad_input()?, &origin).bad_input()?;
     if rows.len() > MAX_PROFILE_POINTS {
         return Err(anyhow!("{origin}: {}", too_many_points(rows.len()))).bad_input();
     }
-    let raw = raw_profile(&args, &rows, profile_name(&args)?);
+    let raw = raw_profile(&settings, &rows, profile_name(&args)?);
     let fitted = validate(&raw, &rows, &origin).bad_input()?;
     let raw = with_fitted_params(raw, &fitted);
     let header = format!(
         "Written by dbtrail fit from {origin}.\nApplied levels are at the detector input, measured at {}.",
-        dbtrail::units::format_frequency(args.freq)
+        dbtrail::units::format_frequency(settings.freq)
     );
     let text = render_profile(&raw, &header)
         .context("cannot render the profile as TOML")
@@ -146,14 +236,14 @@ fn profile_name(args: &Args) -> Result<String, Failure> {
     .bad_input()
 }
 
-fn raw_profile(args: &Args, rows: &[PointRow], name: String) -> RawProfile {
+fn raw_profile(args: &Settled, rows: &[PointRow], name: String) -> RawProfile {
     RawProfile {
         name,
         description: None,
         ohms: Some(args.ohms),
         reference_frequency: FreqValue::Hz(args.freq),
         adc: RawAdc {
-            bits: args.adc_bits,
+            bits: args.bits,
             vref: args.vref,
             divider: Some(args.divider),
             zero_counts: (args.zero_counts != 0.0).then_some(args.zero_counts),
