@@ -364,7 +364,7 @@ fn quit_with_unsaved_points_warns_then_keeps_them() {
         )),
         "{stdout}"
     );
-    assert!(stdout.contains(&format!("the 2 points are kept in {}", path(&kept))));
+    assert!(stdout.contains(&format!("2 points kept in {}", path(&kept))));
     let rows = point_rows(&kept);
     assert!(
         rows[0].starts_with("0dBm,") && rows[1].starts_with("5dBm,"),

@@ -350,6 +350,13 @@ impl Desk {
         Outcome::Continue(continuing(result))
     }
 
+    fn zero_text(&self) -> String {
+        match self.session.base.adc.zero_counts {
+            Some(zero) => format!("zero {zero:.2} counts"),
+            None => "zero not measured (0 counts taken)".into(),
+        }
+    }
+
     fn zero_counts(&self) -> f64 {
         self.session.base.adc.zero_counts.unwrap_or(0.0)
     }
@@ -592,9 +599,9 @@ impl Desk {
         );
         let _ = writeln!(
             out,
-            "    saving model: {} · zero {:.2} counts\n    limits: {}",
+            "    saving model: {} · {}\n    limits: {}",
             session.model,
-            self.zero_counts(),
+            self.zero_text(),
             self.limits_text()
         );
         for warning in session.warnings() {
@@ -678,14 +685,16 @@ impl Desk {
         if !warned {
             self.quit_warned = true;
             return Outcome::Continue(format!(
-                "{n} points not saved: `save` writes them, `quit` again leaves and keeps them in {}",
+                "{} not saved: `save` writes them, `quit` again leaves and keeps them in {}",
+                counted_points(n),
                 self.kept_points_path().display()
             ));
         }
         match self.keep_points() {
             Ok(path) => Outcome::Quit(format!(
-                "left without saving the profile; the {n} points are kept in {} \
+                "left without saving the profile; {} kept in {} \
                  (`dbtrail fit {}` makes a profile of them)",
+                counted_points(n),
                 path.display(),
                 path.display()
             )),
@@ -711,6 +720,15 @@ impl Desk {
             .and_then(|()| super::files::sync(&file))
             .with_context(|| format!("cannot write {}", path.display()))?;
         Ok(path)
+    }
+}
+
+/// `1 point`, `3 points`.
+fn counted_points(n: usize) -> String {
+    if n == 1 {
+        "1 point".into()
+    } else {
+        format!("{n} points")
     }
 }
 
@@ -931,8 +949,9 @@ fn lines(desk: &mut Desk, bench: &mut Bench) -> Result<(), Failure> {
     let n = desk.session.points.len();
     match desk.keep_points() {
         Ok(path) => Err(Failure::Runtime(anyhow!(
-            "end of input before `save`: the profile was not written; the {n} points are kept \
-             in {} (`dbtrail fit {}` makes a profile of them)",
+            "end of input before `save`: the profile was not written; {} kept in {} \
+             (`dbtrail fit {}` makes a profile of them)",
+            counted_points(n),
             path.display(),
             path.display()
         ))),
