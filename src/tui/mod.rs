@@ -6,6 +6,7 @@ pub mod app;
 pub mod calibrate;
 pub mod digits;
 pub mod draw;
+pub mod line;
 pub mod noise;
 #[cfg(test)]
 mod tests;
@@ -206,21 +207,24 @@ fn start_log(app: &mut App, log: &mut Option<Log>, session: &Session, path: &Pat
             app.notice = Some(format!("logging to {}", path.display()));
             *log = Some(open);
         }
-        Err(e) => app.notice = Some(format!("cannot log: {e:#}")),
+        Err(e) => {
+            app.update(AppEvent::LogRefused {
+                path: path.to_path_buf(),
+                error: format!("{e:#}"),
+            });
+        }
     }
 }
 
 fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
-    let file = OpenOptions::new()
-        .write(true)
-        .create_new(true)
-        .open(path)
-        .with_context(|| {
-            format!(
-                "cannot create {} (an existing file is never replaced)",
-                path.display()
-            )
-        })?;
+    let file = match OpenOptions::new().write(true).create_new(true).open(path) {
+        Err(e) if e.kind() == io::ErrorKind::AlreadyExists => anyhow::bail!(
+            "{} already exists; give another name (the screen never replaces or adds to a \
+             file: `watch --log FILE --append` or `--force` does)",
+            path.display()
+        ),
+        other => other.with_context(|| format!("cannot create {}", path.display()))?,
+    };
     // The same advisory lock as `record` takes, so a recorder is refused this file too.
     file.try_lock()
         .with_context(|| format!("cannot lock {}", path.display()))?;
