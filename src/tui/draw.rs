@@ -767,13 +767,9 @@ fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) -> Option<(u16, u16)> {
             buf,
         )),
         Mode::ConfirmQuit => {
-            let (path, rows) = app.logging.clone().unwrap_or_default();
-            Paragraph::new(format!(
-                " a log is open ({rows} rows in {}): q again quits and closes it, any other key stays",
-                path.display()
-            ))
-            .style(Style::new().add_modifier(Modifier::BOLD))
-            .render(area, buf);
+            Paragraph::new(confirm_quit_text(app, usize::from(area.width)))
+                .style(Style::new().add_modifier(Modifier::BOLD))
+                .render(area, buf);
             None
         }
         _ => {
@@ -787,6 +783,22 @@ fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) -> Option<(u16, u16)> {
             None
         }
     }
+}
+
+/// The question a `q` puts while a log is open, in the longest form that fits `width`.
+fn confirm_quit_text(app: &App, width: usize) -> String {
+    let (path, rows) = app.logging.clone().unwrap_or_default();
+    [
+        format!(
+            " a log is open ({rows} rows in {}): q again quits and closes it, any other key stays",
+            path.display()
+        ),
+        format!(" a log is open ({rows} rows): q again quits and closes it, any other key stays"),
+        " log open: q again quits, any other key stays".to_string(),
+    ]
+    .into_iter()
+    .find(|text| text.chars().count() <= width)
+    .unwrap_or_else(|| " q again quits".to_string())
 }
 
 /// The question, the answer so far with the cursor in view (a selected default shown

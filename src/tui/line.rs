@@ -67,6 +67,9 @@ impl LineEdit {
         let before = self.text().to_string();
         let control = key.modifiers.contains(KeyModifiers::CONTROL);
         let request = match key.code {
+            // Alt with a letter is no text either (a terminal sends Esc and then a fast
+            // next key as one).
+            KeyCode::Char(_) if key.modifiers.contains(KeyModifiers::ALT) => None,
             KeyCode::Char(c) if control => match c {
                 'u' => Some(InputRequest::DeleteFromStart),
                 'w' => Some(InputRequest::DeletePrevWord),
@@ -175,6 +178,8 @@ mod tests {
         assert_eq!(line.text(), " ");
         ctrl(&mut line, 'x');
         assert_eq!(line.text(), " ", "an unbound control key inserts nothing");
+        line.key(KeyEvent::new(KeyCode::Char('f'), KeyModifiers::ALT));
+        assert_eq!(line.text(), " ", "nor does Alt with a letter");
     }
 
     #[test]

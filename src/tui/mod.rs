@@ -266,10 +266,10 @@ fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(File, Opening)> {
         IfExists::Replace => options.write(true).create(true),
     };
     let file = match options.open(path) {
-        Err(e) if e.kind() == io::ErrorKind::AlreadyExists => anyhow::bail!(
-            "{name} already exists; give another name (the screen never replaces or adds to \
-             a file: `watch --log FILE --append` or `--force` does)"
-        ),
+        // Short, to fit the prompt's line: `watch --log --append/--force` is in the help.
+        Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
+            anyhow::bail!("{name} already exists: give another name")
+        }
         other => other.with_context(|| format!("cannot create {name}"))?,
     };
     file.try_lock()
