@@ -41,6 +41,20 @@ expect_exit_and_modes() {
     grep -qw "echo" "$out" || { echo "echo left off ($2)"; exit 1; }
 }
 
+# Esc on the readings does nothing: the screen is still there to open the log prompt,
+# whose offered name is selected; Esc then cancels it.
+# The next key waits until the hold line's clock has moved on, so that the terminal does
+# not read Esc and it as one Alt chord.
+held() { tm capture-pane -p | grep -Eo "for [0-9:]+" | head -1; }
+before=$(held)
+tm send-keys Escape
+wait_for_screen "for [0-9:]+" "the screen went away after Esc"
+for _ in $(seq 1 100); do [ "$(held)" != "$before" ] && break; sleep 0.1; done
+[ "$(held)" != "$before" ] || { echo "the screen stopped after Esc:"; tm capture-pane -p; exit 1; }
+tm send-keys l
+wait_for_screen "log to file: dbtrail-" "Esc ended the screen, or l gave no prompt"
+tm send-keys Escape
+wait_for_screen "\? help · q quit" "Esc did not cancel the prompt"
 tm send-keys q
 expect_exit_and_modes 0 "quit key"
 echo "tui smoke: reading shown, quit with 0, terminal restored"
