@@ -406,3 +406,32 @@ fn two_channel_capture_gets_suffixed_columns_and_append_adds_rows() {
     assert_eq!(text.matches("time_s,").count(), 1, "one header row");
     assert!(text.contains("# resumed"));
 }
+
+// Source: the rule of issue 16 and record's own (src/cli/files.rs `refuse_existing`):
+// an existing log is refused with exit 2 unless --append or --force, and `watch` checks
+// it before the screen opens. Run without a terminal, watch would otherwise stop at
+// "watch needs a terminal", so the message shows which check came first.
+#[test]
+fn watch_refuses_an_existing_log_before_the_screen_opens() {
+    let dir = scratch("watch-existing-log");
+    let log = dir.join("kept.csv");
+    std::fs::write(&log, "earlier rows\n").unwrap();
+    let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap()]));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("kept.csv already exists; add --append to add to it or --force"),
+        "{stderr}"
+    );
+    assert_eq!(std::fs::read_to_string(&log).unwrap(), "earlier rows\n");
+    // With either flag the log is let through, to the terminal check.
+    for flag in ["--append", "--force"] {
+        let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap(), flag]));
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            stderr.contains("watch needs a terminal"),
+            "{flag}: {stderr}"
+        );
+    }
+    assert_eq!(std::fs::read_to_string(&log).unwrap(), "earlier rows\n");
+}

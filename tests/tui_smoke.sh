@@ -7,8 +7,12 @@ set -euo pipefail
 bin=${1:?path to the dbtrail binary}
 sock="dbtrail-smoke-$$"
 tm() { tmux -L "$sock" "$@"; }
-trap 'tm kill-server 2>/dev/null || true' EXIT
+logs=$(mktemp -d)
+trap 'tm kill-server 2>/dev/null || true; rm -rf "$logs"' EXIT
 out=$(mktemp)
+# An earlier log, for the refusals and --append below.
+"$bin" record --demo --every 1s --duration 3s --out "$logs/earlier.csv" 2>/dev/null
+earlier_rows=$(grep -vc '^#' "$logs/earlier.csv")
 
 tm new-session -d -x 100 -y 30 "bash --norc --noprofile"
 tm send-keys "PS1='ready> '" Enter
@@ -41,9 +45,47 @@ expect_exit_and_modes() {
     grep -qw "echo" "$out" || { echo "echo left off ($2)"; exit 1; }
 }
 
+# Esc on the readings does nothing: the screen is still there to open the log prompt,
+# whose offered name is selected; Esc then cancels it.
+# The next key waits until the hold line's clock has moved on, so that the terminal does
+# not read Esc and it as one Alt chord.
+held() { tm capture-pane -p | grep -Eo "for [0-9:]+" | head -1; }
+before=$(held)
+tm send-keys Escape
+wait_for_screen "for [0-9:]+" "the screen went away after Esc"
+for _ in $(seq 1 100); do [ "$(held)" != "$before" ] && break; sleep 0.1; done
+[ "$(held)" != "$before" ] || { echo "the screen stopped after Esc:"; tm capture-pane -p; exit 1; }
+tm send-keys l
+wait_for_screen "log to file: dbtrail-" "Esc ended the screen, or l gave no prompt"
+tm send-keys Escape
+wait_for_screen "\? help · q quit" "Esc did not cancel the prompt"
+# The l key refuses an existing file on the prompt line.
+tm send-keys l
+wait_for_screen "log to file: dbtrail-" "no log prompt"
+tm send-keys "$logs/earlier.csv" Enter
+wait_for_screen "earlier.csv already exists: give another name" "an existing log was not refused"
+tm send-keys Escape
+wait_for_screen "\? help · q quit" "Esc did not cancel the refused prompt"
 tm send-keys q
 expect_exit_and_modes 0 "quit key"
 echo "tui smoke: reading shown, quit with 0, terminal restored"
+
+# --log with --append adds to an existing log; while it is open q asks first, another key
+# stays, and a second q quits with the log closed whole.
+: > "$out"
+tm send-keys "clear; '$bin' watch --demo tune --log '$logs/earlier.csv' --append; echo \"exit=\$?\" > '$out'; stty -a >> '$out'" Enter
+wait_for_screen "log on, [1-9][0-9]* rows" "no rows logged with --append"
+tm send-keys q
+wait_for_screen "a log is open \([0-9]+ rows" "q did not ask while a log is open"
+tm send-keys x
+wait_for_screen "\? help · q quit" "another key did not stay"
+tm send-keys q
+wait_for_screen "q again quits and closes it" "q did not ask again"
+tm send-keys q
+expect_exit_and_modes 0 "second q"
+grep -q "^# resumed" "$logs/earlier.csv" || { echo "no # resumed line:"; cat "$logs/earlier.csv"; exit 1; }
+[ "$(grep -vc '^#' "$logs/earlier.csv")" -gt "$earlier_rows" ] || { echo "no rows added"; exit 1; }
+echo "tui smoke: --log --append added to the log; q asked while it was open"
 
 # A panic (injected by the test-only switch) must leave the terminal restored too: normal
 # modes, the main screen back, and the panic's message readable.

@@ -27,6 +27,19 @@ pub fn sync(file: &File) -> io::Result<()> {
     }
 }
 
+/// The rule for a log named on the command line (`record --out`, `watch --log`): an
+/// existing file is refused (exit 2) unless `append` adds to it or `force` replaces it.
+pub fn refuse_existing(path: &Path, append: bool, force: bool) -> Result<(), Failure> {
+    if path.exists() && !append && !force {
+        return Err(anyhow!(
+            "{} already exists; add --append to add to it or --force to replace it",
+            path.display()
+        ))
+        .bad_input();
+    }
+    Ok(())
+}
+
 /// Creates `path` for writing; an existing file is refused (exit 2) unless `force`.
 pub fn create(path: &Path, force: bool) -> Result<File, Failure> {
     let mut options = OpenOptions::new();

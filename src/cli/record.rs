@@ -350,12 +350,7 @@ fn open_output(
         return Ok((Box::new(io::stdout()), None));
     }
     let path = Path::new(out);
-    if path.exists() && !append && !force {
-        return Err(anyhow!(
-            "{out} already exists; add --append to add to it or --force to replace it"
-        ))
-        .bad_input();
-    }
+    super::files::refuse_existing(path, append, force)?;
     let log = LogFile::open(path, append)?;
     let earlier = if append && log.len_at_open() > 0 {
         let reader = io::BufReader::new(log.file());

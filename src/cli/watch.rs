@@ -8,7 +8,7 @@ use anyhow::anyhow;
 
 use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
 use super::{BadInput, Failure, Runtime};
-use crate::tui::{self, app::App, Session};
+use crate::tui::{self, app::App, IfExists, Session};
 
 #[derive(clap::Args)]
 pub struct Args {
@@ -21,6 +21,12 @@ pub struct Args {
     /// Log to this CSV file from the start (the same rows as `record --every 1s`)
     #[arg(long)]
     log: Option<PathBuf>,
+    /// Add to an existing --log file instead of refusing it
+    #[arg(long, requires = "log")]
+    append: bool,
+    /// Replace an existing --log file
+    #[arg(long, requires = "log", conflicts_with = "append")]
+    force: bool,
 }
 
 /// A few words naming the source for the status line.
@@ -38,6 +44,10 @@ fn short_label(source: &SourceArgs, link: &LinkArgs) -> String {
 }
 
 pub fn run(mut args: Args) -> Result<(), Failure> {
+    // Before anything else, so that a bad --log never opens the screen (nor needs one).
+    if let Some(path) = &args.log {
+        super::files::refuse_existing(path, args.append, args.force)?;
+    }
     if !std::io::stdout().is_terminal() {
         return Err(anyhow!(
             "watch needs a terminal; to write readings to a file or a pipe use `dbtrail record`"
@@ -63,7 +73,16 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
     app.color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
     let session = Session {
         source,
-        log: args.log,
+        log: args.log.map(|path| {
+            let if_exists = if args.append {
+                IfExists::Append
+            } else if args.force {
+                IfExists::Replace
+            } else {
+                IfExists::Refuse
+            };
+            (path, if_exists)
+        }),
         tool: format!("dbtrail {}", env!("CARGO_PKG_VERSION")),
         profile_hash: super::record::hex_digest(&loaded.bytes),
     };

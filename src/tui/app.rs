@@ -14,6 +14,7 @@ use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend, NOT_A_VALUE
 use dbtrail::uncertainty::{Budget, Uncertainty};
 use dbtrail::units::{parse_db, parse_frequency};
 
+use super::line::LineEdit;
 use super::noise::{CountWindow, ReadingSpread};
 
 /// Everything that can happen to the screen.
@@ -29,6 +30,13 @@ pub enum AppEvent {
     Link(LinkSnapshot),
     /// A replay has reached the end of its file: nothing more will come.
     SourceEnded,
+    /// The log asked for could not be opened: the prompt comes back with the name and why.
+    LogRefused {
+        /// The name given.
+        path: PathBuf,
+        /// Why, and what to do.
+        error: String,
+    },
 }
 
 /// What the loop must do after an update.
@@ -191,11 +199,13 @@ pub enum Mode {
     Prompt {
         /// What is asked.
         ask: Ask,
-        /// What has been typed.
-        text: String,
+        /// What has been typed, and where the cursor is.
+        line: LineEdit,
         /// Why the last answer was refused.
         error: Option<String>,
     },
+    /// `q` was pressed while a log is open: a second `q` quits, any other key stays.
+    ConfirmQuit,
 }
 
 /// The state of the live screen.
@@ -329,6 +339,14 @@ impl App {
                 self.ended = true;
                 Vec::new()
             }
+            AppEvent::LogRefused { path, error } => {
+                self.mode = Mode::Prompt {
+                    ask: Ask::LogFile,
+                    line: LineEdit::new(&path.to_string_lossy()),
+                    error: Some(error),
+                };
+                Vec::new()
+            }
             AppEvent::Tick { now } => self.tick(now),
         }
     }
@@ -383,12 +401,19 @@ impl App {
         dbm.min(self.cal.span_dbm().1)
     }
 
-    /// True when a value is shown (not a bound), the averaging window is full and the
-    /// shown value has stopped moving.
+    /// True when samples flow, a value is shown (not a bound), the averaging window is
+    /// full and the shown value has stopped moving.
     pub fn is_settled(&self) -> bool {
-        matches!(self.live_shown(), Shown::Level(_))
+        self.samples_flow()
+            && matches!(self.live_shown(), Shown::Level(_))
             && self.averager.is_full(self.now)
             && self.settle.is_settled(self.now)
+    }
+
+    /// False after a disconnect or the end of a replay: the last reading stands, but
+    /// says nothing of the level now.
+    pub fn samples_flow(&self) -> bool {
+        self.connected && !self.ended
     }
 
     /// How the shown value moved over the last second, dB.
@@ -485,6 +510,8 @@ impl App {
     fn tick(&mut self, now: f64) -> Vec<Command> {
         self.now = self.now.max(now);
         match self.live_shown() {
+            // Settling starts afresh with the samples that come after a gap.
+            _ if !self.samples_flow() => self.settle.clear(),
             Shown::Level(dbm) => {
                 self.settle.push(self.now, dbm);
                 // A window just started holds a few readings whose noise is barely
@@ -519,32 +546,47 @@ impl App {
             Mode::Help => {
                 self.mode = Mode::Normal;
                 if key.code == KeyCode::Char('q') {
+                    return self.quit_key();
+                }
+                Vec::new()
+            }
+            Mode::ConfirmQuit => {
+                self.mode = Mode::Normal;
+                if key.code == KeyCode::Char('q') {
                     return vec![Command::Quit];
                 }
                 Vec::new()
             }
-            Mode::Prompt { ask, text, .. } => self.prompt_key(ask, text, key),
+            Mode::Prompt { ask, line, error } => self.prompt_key(ask, line, error, key),
             Mode::Normal => self.normal_key(key),
+        }
+    }
+
+    /// `q`: quits, or first asks while a log is open, since quitting closes it.
+    fn quit_key(&mut self) -> Vec<Command> {
+        if self.logging.is_some() {
+            self.mode = Mode::ConfirmQuit;
+            Vec::new()
+        } else {
+            vec![Command::Quit]
         }
     }
 
     fn normal_key(&mut self, key: KeyEvent) -> Vec<Command> {
         self.notice = None;
+        // Esc cancels prompts and closes the help; here there is nothing to cancel, and
+        // one Esc too many must not end the screen (and its log).
         let KeyCode::Char(c) = key.code else {
-            return if key.code == KeyCode::Esc {
-                vec![Command::Quit]
-            } else {
-                Vec::new()
-            };
+            return Vec::new();
         };
         match c {
-            'q' => return vec![Command::Quit],
+            'q' => return self.quit_key(),
             '?' | 'h' => self.mode = Mode::Help,
-            'f' => self.ask(Ask::Frequency, ""),
-            'o' => self.ask(Ask::Offset, ""),
-            'a' => self.ask(Ask::Averaging, ""),
+            'f' => self.ask(Ask::Frequency, LineEdit::default()),
+            'o' => self.ask(Ask::Offset, LineEdit::default()),
+            'a' => self.ask(Ask::Averaging, LineEdit::default()),
             'l' if self.logging.is_some() => return vec![Command::StopLog],
-            'l' => self.ask(Ask::LogFile, &default_log_name()),
+            'l' => self.ask(Ask::LogFile, LineEdit::offered(&default_log_name())),
             'u' => self.units = self.units.next(self.reference_dbm.is_some()),
             't' => self.trend_window = (self.trend_window + 1) % TREND_WINDOWS.len(),
             'r' => self.reset_holds(),
@@ -570,34 +612,24 @@ impl App {
         Vec::new()
     }
 
-    fn ask(&mut self, ask: Ask, start: &str) {
+    fn ask(&mut self, ask: Ask, line: LineEdit) {
         self.mode = Mode::Prompt {
             ask,
-            text: start.to_string(),
+            line,
             error: None,
         };
     }
 
-    fn prompt_key(&mut self, ask: Ask, mut text: String, key: KeyEvent) -> Vec<Command> {
+    fn prompt_key(
+        &mut self,
+        ask: Ask,
+        mut line: LineEdit,
+        error: Option<String>,
+        key: KeyEvent,
+    ) -> Vec<Command> {
         match key.code {
             KeyCode::Esc => self.mode = Mode::Normal,
-            KeyCode::Backspace => {
-                text.pop();
-                self.mode = Mode::Prompt {
-                    ask,
-                    text,
-                    error: None,
-                };
-            }
-            KeyCode::Char(c) if text.len() < 200 => {
-                text.push(c);
-                self.mode = Mode::Prompt {
-                    ask,
-                    text,
-                    error: None,
-                };
-            }
-            KeyCode::Enter => match self.answer(ask, &text) {
+            KeyCode::Enter => match self.answer(ask, line.text()) {
                 Ok(commands) => {
                     self.mode = Mode::Normal;
                     return commands;
@@ -605,12 +637,20 @@ impl App {
                 Err(error) => {
                     self.mode = Mode::Prompt {
                         ask,
-                        text,
+                        line,
                         error: Some(error),
                     }
                 }
             },
-            _ => {}
+            _ => {
+                // The refusal stays up until the answer is changed.
+                let changed = line.key(key);
+                self.mode = Mode::Prompt {
+                    ask,
+                    line,
+                    error: if changed { None } else { error },
+                };
+            }
         }
         Vec::new()
     }

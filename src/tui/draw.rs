@@ -14,6 +14,7 @@ use dbtrail::units::{Power, Si, VoltageForm};
 
 use super::app::{App, Mode, Plusminus, Shown, Units, TREND_WINDOWS};
 use super::digits;
+use super::line::LineEdit;
 
 /// The smallest screen that gets the large digits.
 pub const FULL_SIZE: (u16, u16) = (80, 24);
@@ -23,6 +24,11 @@ pub fn draw(app: &App, frame: &mut Frame) {
     let area = frame.area();
     let full = area.width >= FULL_SIZE.0 && area.height >= FULL_SIZE.1;
     let reading_rows = if full { digits::HEIGHT + 1 } else { 1 };
+    let hint_rows = if matches!(app.mode, Mode::Normal | Mode::Help) && app.notice.is_none() {
+        key_hint_lines(usize::from(area.width)).len() as u16
+    } else {
+        1
+    };
     let [title, banner, reading, forms, _, bar, markers, holds, peak, _, trend, status, hints] =
         Layout::vertical([
             Constraint::Length(1),
@@ -37,7 +43,7 @@ pub fn draw(app: &App, frame: &mut Frame) {
             Constraint::Length(u16::from(full)),
             Constraint::Min(0),
             Constraint::Length(1),
-            Constraint::Length(1),
+            Constraint::Length(hint_rows),
         ])
         .areas(area);
     let buf = frame.buffer_mut();
@@ -55,11 +61,14 @@ pub fn draw(app: &App, frame: &mut Frame) {
         } => Paragraph::new(format!(" {error}"))
             .style(paint(app, Color::Red, None).add_modifier(Modifier::BOLD))
             .render(status, buf),
-        _ => Paragraph::new(status_line(app)).render(status, buf),
+        _ => Paragraph::new(status_line(app, usize::from(status.width))).render(status, buf),
     }
-    bottom_line(app, hints, buf);
+    let cursor = bottom_line(app, hints, buf);
     if app.mode == Mode::Help {
         help_overlay(app, area, buf);
+    }
+    if let Some(cursor) = cursor {
+        frame.set_cursor_position(cursor);
     }
 }
 
@@ -96,44 +105,176 @@ fn title_bar(app: &App, area: Rect, buf: &mut Buffer) {
         .render(area, buf);
 }
 
-/// The words of a warning, most serious first.
-fn warning_words(flags: Flags) -> Vec<&'static str> {
-    [
-        (Flags::OVER_RATED, "OVER LOAD/ATTENUATOR RATING"),
-        (Flags::OVER_DETECTOR_MAX, "OVER DETECTOR SAFE INPUT"),
-        (Flags::ADC_CLIP, "ADC CLIP"),
-        (Flags::OVER_FULL_SCALE, "COUNTS OVER ADC FULL SCALE"),
-        (Flags::ABOVE_SPAN, "ABOVE CALIBRATED SPAN"),
-    ]
-    .iter()
-    .filter(|(f, _)| flags.contains(*f))
-    .map(|(_, w)| *w)
-    .collect()
+/// How much a line on the warning line matters, which sets its style and mark.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Weight {
+    /// Something is or may be harmed, or the reading is wrong: bold on red.
+    Alarm,
+    /// The reading is to be taken with care: on yellow.
+    Caution,
+    /// How the source stands (a finished replay): calm, no mark.
+    State,
+}
+
+/// One warning in a long and a short form.
+struct Warning {
+    long: &'static str,
+    short: &'static str,
+    weight: Weight,
+}
+
+const fn warning(long: &'static str, short: &'static str, weight: Weight) -> Warning {
+    Warning {
+        long,
+        short,
+        weight,
+    }
+}
+
+/// The mark before an alarm or a caution. The hold marks on the level bar are others.
+const WARNING_MARK: &str = "!";
+
+/// The warnings of the flags, most serious first.
+const FLAG_WARNINGS: [(Flags, Warning); 5] = [
+    (
+        Flags::OVER_RATED,
+        warning("OVER LOAD/ATTENUATOR RATING", "OVER RATING", Weight::Alarm),
+    ),
+    (
+        Flags::OVER_DETECTOR_MAX,
+        warning("OVER DETECTOR SAFE INPUT", "OVER SAFE INPUT", Weight::Alarm),
+    ),
+    (Flags::ADC_CLIP, warning("ADC CLIP", "CLIP", Weight::Alarm)),
+    (
+        Flags::OVER_FULL_SCALE,
+        warning(
+            "COUNTS OVER ADC FULL SCALE",
+            "OVER FULL SCALE",
+            Weight::Alarm,
+        ),
+    ),
+    (
+        Flags::ABOVE_SPAN,
+        warning("ABOVE CALIBRATED SPAN", "ABOVE SPAN", Weight::Alarm),
+    ),
+];
+
+/// The warnings up now, in the order they are shown: how the source stands, then by
+/// seriousness.
+fn warnings_now(app: &App) -> Vec<&'static Warning> {
+    const ENDED: Warning = warning(
+        "END OF REPLAY: last reading greyed",
+        "REPLAY ENDED",
+        Weight::State,
+    );
+    const DISCONNECTED: Warning = warning(
+        "SOURCE DISCONNECTED: retrying; last reading greyed",
+        "DISCONNECTED",
+        Weight::Caution,
+    );
+    const REJECTING: Warning = warning(
+        "INPUT REJECTED: check format, channel count, baud rate",
+        "INPUT REJECTED",
+        Weight::Caution,
+    );
+    const OFF_TABLE: Warning = warning(
+        "FREQUENCY OUTSIDE THE CORRECTION TABLE: its end value used",
+        "FREQ OFF TABLE",
+        Weight::Caution,
+    );
+    let mut list = Vec::new();
+    if app.ended {
+        list.push(&ENDED);
+    } else if !app.connected {
+        list.push(&DISCONNECTED);
+    }
+    let active = app.active_warnings();
+    list.extend(
+        FLAG_WARNINGS
+            .iter()
+            .filter(|(f, _)| active.contains(*f))
+            .map(|(_, w)| w),
+    );
+    if app.is_rejecting() {
+        list.push(&REJECTING);
+    }
+    if app.cal.fixed_flags().contains(Flags::FREQ_OUTSIDE) {
+        list.push(&OFF_TABLE);
+    }
+    list
+}
+
+/// The text of each warning as shown in `width` cells: long forms while they all fit,
+/// then short ones from the least serious up, then the least serious left out whole and
+/// counted. Never a warning cut part-way.
+fn fit_warnings(warnings: &[&Warning], width: usize) -> (Vec<String>, usize) {
+    let text = |w: &Warning, long: bool| {
+        let words = if long { w.long } else { w.short };
+        match w.weight {
+            Weight::State => words.to_string(),
+            _ => format!("{WARNING_MARK} {words}"),
+        }
+    };
+    // Each part has a cell of padding either side and one between it and the next.
+    let cells = |parts: &[String], left_out: usize| {
+        let more = if left_out > 0 {
+            format!(" +{left_out} more").len()
+        } else {
+            0
+        };
+        parts.iter().map(|p| p.chars().count() + 3).sum::<usize>() + more - 1
+    };
+    let n = warnings.len();
+    for shown in (1..=n).rev() {
+        for short_from in (0..=shown).rev() {
+            let parts: Vec<String> = warnings[..shown]
+                .iter()
+                .enumerate()
+                .map(|(i, w)| text(w, i < short_from))
+                .collect();
+            if cells(&parts, n - shown) <= width {
+                return (parts, n - shown);
+            }
+        }
+    }
+    (Vec::new(), n)
+}
+
+fn weight_style(app: &App, weight: Weight) -> Style {
+    if !app.color {
+        return match weight {
+            Weight::Alarm => Style::new().add_modifier(Modifier::BOLD | Modifier::REVERSED),
+            Weight::Caution => Style::new().add_modifier(Modifier::BOLD),
+            Weight::State => Style::new(),
+        };
+    }
+    match weight {
+        Weight::Alarm => Style::new()
+            .fg(Color::White)
+            .bg(Color::Red)
+            .add_modifier(Modifier::BOLD),
+        Weight::Caution => Style::new().fg(Color::Black).bg(Color::Yellow),
+        Weight::State => Style::new().fg(Color::Cyan),
+    }
 }
 
 fn warning_banner(app: &App, area: Rect, buf: &mut Buffer) {
-    let mut words = warning_words(app.active_warnings());
-    if app.is_rejecting() {
-        words.push("INPUT REJECTED: check format, channel count, baud rate");
+    let warnings = warnings_now(app);
+    let (parts, left_out) = fit_warnings(&warnings, usize::from(area.width));
+    let mut spans = Vec::new();
+    for (i, (part, warning)) in parts.into_iter().zip(&warnings).enumerate() {
+        if i > 0 {
+            spans.push(Span::raw(" "));
+        }
+        spans.push(Span::styled(
+            format!(" {part} "),
+            weight_style(app, warning.weight),
+        ));
     }
-    if app.ended {
-        words.insert(0, "END OF REPLAY: last reading greyed");
-    } else if !app.connected {
-        words.insert(0, "SOURCE DISCONNECTED: retrying; last reading greyed");
+    if left_out > 0 {
+        spans.push(Span::raw(format!(" +{left_out} more")));
     }
-    if words.is_empty() {
-        return;
-    }
-    let style = paint(app, Color::White, Some(Color::Red))
-        .add_modifier(Modifier::BOLD | Modifier::REVERSED);
-    let style = if app.color {
-        style.remove_modifier(Modifier::REVERSED)
-    } else {
-        style
-    };
-    Paragraph::new(format!(" ▲ {} ", words.join(" · ")))
-        .style(style)
-        .render(area, buf);
+    Paragraph::new(Line::from(spans)).render(area, buf);
 }
 
 /// The number and unit of the main reading in the chosen units, or a phrase.
@@ -305,14 +446,17 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         _ => style,
     };
     let frozen = if app.frozen.is_some() {
-        "  [frozen]"
+        "  [frozen]".to_string()
+    } else if let Some(why) = no_new_samples(app) {
+        // The last reading stands, but nothing says it would still be settled.
+        format!("  ◌ {why}: the last reading")
     } else if !matches!(app.shown(), Shown::Level(_)) {
         // A bound is not a value that could settle.
-        ""
+        String::new()
     } else if app.is_settled() {
-        "  ● settled"
+        "  ● settled".to_string()
     } else {
-        "  ○ settling"
+        "  ○ settling".to_string()
     };
     if !full || number.is_empty() {
         let figure = if beside.figure.is_empty() {
@@ -351,6 +495,18 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         ..unit_row
     };
     beside_digits(app, &beside, side, buf);
+}
+
+/// Why no more samples come ("ended" for a finished replay, "no signal" while the
+/// source is disconnected), or None while they flow.
+fn no_new_samples(app: &App) -> Option<&'static str> {
+    if app.ended {
+        Some("ended")
+    } else if !app.connected {
+        Some("no signal")
+    } else {
+        None
+    }
 }
 
 /// The ± and what it is on the top row beside the large digits, and the terms left out
@@ -445,19 +601,22 @@ fn level_bar(app: &App, bar: Rect, markers: Rect, buf: &mut Buffer) {
         );
     };
     if let Some((lo, hi)) = app.holds.extremes() {
-        mark(lo, "▲");
-        mark(hi, "▲");
+        mark(lo, HOLD_MARK);
+        mark(hi, HOLD_MARK);
     }
     if let Some(reference) = app.reference_dbm {
         mark(reference, "◆");
     }
 }
 
+/// The mark under the level bar at the min and max hold; warnings have their own.
+const HOLD_MARK: &str = "┴";
+
 fn holds_line(app: &App) -> String {
     let held = dbtrail::units::format_clock(app.now - app.holds_since);
     match app.holds.extremes() {
         Some((lo, hi)) => format!(
-            "  hold   min {lo:+.2} dBm   max {hi:+.2} dBm   for {held}   (r resets; ▲ on the bar)"
+            "  hold   min {lo:+.2} dBm   max {hi:+.2} dBm   for {held}   (r resets; {HOLD_MARK} on the bar)"
         ),
         None => format!("  hold   no valid reading in {held}"),
     }
@@ -471,11 +630,12 @@ fn peak_line(app: &App) -> String {
         }
         _ => return "  peak   waiting for a valid reading".into(),
     };
-    let direction = match app.change_over_last_second() {
-        Some(d) if d > 0.05 => format!("rising {d:+.2} dB/s"),
-        Some(d) if d < -0.05 => format!("falling {d:+.2} dB/s"),
-        Some(_) => "steady".into(),
-        None => "…".into(),
+    let direction = match (no_new_samples(app), app.change_over_last_second()) {
+        (Some(why), _) => why.to_string(),
+        (None, Some(d)) if d > 0.05 => format!("rising {d:+.2} dB/s"),
+        (None, Some(d)) if d < -0.05 => format!("falling {d:+.2} dB/s"),
+        (None, Some(_)) => "steady".into(),
+        (None, None) => "…".into(),
     };
     let noise = app
         .spread
@@ -556,85 +716,162 @@ fn trend_chart(app: &App, area: Rect, buf: &mut Buffer) {
     }
 }
 
-fn status_line(app: &App) -> Line<'static> {
-    let link = &app.link;
-    let silent = app.last_sample_t.map_or(String::new(), |t| {
-        format!(" │ {:.1} s ago", (app.now - t).max(0.0))
-    });
+fn status_line(app: &App, width: usize) -> Line<'static> {
+    let state = if app.ended {
+        Some(Span::styled("ENDED", paint(app, Color::Cyan, None)))
+    } else if !app.connected {
+        Some(Span::styled(
+            "DISCONNECTED",
+            paint(app, Color::Yellow, None).add_modifier(Modifier::BOLD),
+        ))
+    } else {
+        None
+    };
     let log = match &app.logging {
         Some((_, rows)) => format!("log on, {rows} rows"),
         None => "log off".into(),
     };
-    let mut spans = vec![Span::raw(format!(
-        " {} │ {:.0}/s │ {}{silent} │ {log}",
-        app.source,
-        app.rate,
-        link.brief()
-    ))];
-    if app.ended {
-        spans.push(Span::styled(" │ ENDED", paint(app, Color::Yellow, None)));
-    } else if !app.connected {
-        spans.push(Span::styled(
-            " │ DISCONNECTED",
-            paint(app, Color::Red, None).add_modifier(Modifier::BOLD),
-        ));
+    // (priority, text): the lowest goes first when the line is too narrow.
+    let mut fields: Vec<(u8, Span<'static>)> = Vec::new();
+    if let Some(state) = state {
+        fields.push((9, state));
+    }
+    fields.push((8, Span::raw(app.source.clone())));
+    fields.push((4, Span::raw(format!("{:.0}/s", app.rate))));
+    fields.push((6, Span::raw(app.link.brief())));
+    if let Some(t) = app.last_sample_t {
+        fields.push((3, Span::raw(format!("{:.1} s ago", (app.now - t).max(0.0)))));
+    }
+    fields.push((7, Span::raw(log)));
+    let cells = |fields: &[(u8, Span)]| fields.iter().map(|(_, s)| s.width() + 3).sum::<usize>();
+    while cells(&fields) > width + 2 && fields.len() > 1 {
+        let lowest = (0..fields.len()).min_by_key(|&i| fields[i].0).unwrap_or(0);
+        fields.remove(lowest);
+    }
+    let mut spans = Vec::new();
+    for (i, (_, field)) in fields.into_iter().enumerate() {
+        spans.push(Span::raw(if i == 0 { " " } else { " │ " }));
+        spans.push(field);
     }
     Line::from(spans)
 }
 
-fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) {
+/// Where the prompt's cursor is, when a prompt is up.
+fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) -> Option<(u16, u16)> {
     match &app.mode {
-        Mode::Prompt { ask, text, error } => {
-            let mut spans = vec![
-                Span::styled(
-                    format!(" {}: ", ask.question()),
-                    Style::new().add_modifier(Modifier::BOLD),
-                ),
-                Span::raw(format!("{text}▏")),
-            ];
-            spans.push(Span::raw(if error.is_some() {
-                "   fix it, or Esc cancels"
-            } else {
-                "   Enter applies · Esc cancels"
-            }));
-            Paragraph::new(Line::from(spans)).render(area, buf);
+        Mode::Prompt { ask, line, error } => Some(prompt_line(
+            ask.question(),
+            line,
+            error.is_some(),
+            area,
+            buf,
+        )),
+        Mode::ConfirmQuit => {
+            Paragraph::new(confirm_quit_text(app, usize::from(area.width)))
+                .style(Style::new().add_modifier(Modifier::BOLD))
+                .render(area, buf);
+            None
         }
         _ => {
-            let text = app
-                .notice
-                .clone()
-                .unwrap_or_else(|| key_hints(usize::from(area.width)));
-            Paragraph::new(text)
+            let lines = match &app.notice {
+                Some(notice) => vec![format!(" {notice}")],
+                None => key_hint_lines(usize::from(area.width)),
+            };
+            Paragraph::new(lines.into_iter().map(Line::from).collect::<Vec<_>>())
                 .style(paint(app, Color::Gray, None))
                 .render(area, buf);
+            None
         }
     }
 }
 
-/// As many key hints as fit in `width`, the way out and to help first.
-fn key_hints(width: usize) -> String {
+/// The question a `q` puts while a log is open, in the longest form that fits `width`.
+fn confirm_quit_text(app: &App, width: usize) -> String {
+    let (path, rows) = app.logging.clone().unwrap_or_default();
+    [
+        format!(
+            " a log is open ({rows} rows in {}): q again quits and closes it, any other key stays",
+            path.display()
+        ),
+        format!(" a log is open ({rows} rows): q again quits and closes it, any other key stays"),
+        " log open: q again quits, any other key stays".to_string(),
+    ]
+    .into_iter()
+    .find(|text| text.chars().count() <= width)
+    .unwrap_or_else(|| " q again quits".to_string())
+}
+
+/// The question, the answer so far with the cursor in view (a selected default shown
+/// reversed), and what Enter and Esc do when there is room. Returns the cursor's cell.
+fn prompt_line(
+    question: &str,
+    line: &LineEdit,
+    refused: bool,
+    area: Rect,
+    buf: &mut Buffer,
+) -> (u16, u16) {
+    let question = format!(" {question}: ");
+    let hint = if refused {
+        "   fix it, or Esc cancels"
+    } else {
+        "   Enter applies · Esc cancels"
+    };
+    let width = usize::from(area.width);
+    let asked = question.chars().count();
+    let typed = line.text().chars().count() + 1;
+    let hint = if asked + typed + hint.chars().count() <= width {
+        hint
+    } else {
+        ""
+    };
+    let field = width.saturating_sub(asked + hint.chars().count()).max(1);
+    let scroll = line.scroll(field);
+    let shown: String = line.text().chars().skip(scroll).take(field).collect();
+    let text_style = if line.is_selected() {
+        Style::new().add_modifier(Modifier::REVERSED)
+    } else {
+        Style::new()
+    };
+    let spans = vec![
+        Span::styled(question, Style::new().add_modifier(Modifier::BOLD)),
+        Span::styled(shown, text_style),
+        Span::raw(" "),
+        Span::raw(hint),
+    ];
+    Paragraph::new(Line::from(spans)).render(area, buf);
+    let column = (asked + line.cursor() - scroll).min(width.saturating_sub(1));
+    (area.x + column as u16, area.y)
+}
+
+/// Every key, by priority: in one line when they all fit, else in two, else as many as
+/// fit in two with the help key first (it lists the rest). Never a hint cut part-way.
+fn key_hint_lines(width: usize) -> Vec<String> {
     const HINTS: [&str; 11] = [
         "? help",
         "q quit",
         "f freq",
         "a avg",
         "u units",
+        "l log",
+        "space freeze",
+        "t trend",
         "r reset",
         "o offset",
         "s/c ref",
-        "t trend",
-        "␣ freeze",
-        "l log",
     ];
-    let mut text = String::new();
+    let mut lines = vec![String::new()];
     for hint in HINTS {
-        if text.chars().count() + hint.chars().count() + 3 > width {
+        let current = lines.last_mut().expect("one line at least");
+        if current.chars().count() + hint.chars().count() + 3 <= width {
+            current.push_str(if current.is_empty() { " " } else { " · " });
+            current.push_str(hint);
+        } else if lines.len() < 2 && hint.chars().count() < width {
+            lines.push(format!(" {hint}"));
+        } else {
             break;
         }
-        text.push_str(if text.is_empty() { " " } else { " · " });
-        text.push_str(hint);
     }
-    text
+    lines
 }
 
 /// The keys.
@@ -648,7 +885,7 @@ pub const HELP_KEYS: &[&str] = &[
     "s / c    set the reference to the reading / clear it",
     "space    freeze the reading (press again to go on)",
     "l        start or stop logging to a CSV file (as `record` writes)",
-    "q, Esc   quit          any key closes this help",
+    "q        quit (asks first while a log is open)     Esc  cancel a prompt",
 ];
 
 /// The safety cautions in brief.

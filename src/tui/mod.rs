@@ -6,6 +6,7 @@ pub mod app;
 pub mod calibrate;
 pub mod digits;
 pub mod draw;
+pub mod line;
 pub mod noise;
 #[cfg(test)]
 mod tests;
@@ -23,6 +24,7 @@ use ratatui::DefaultTerminal;
 use tokio::sync::mpsc;
 
 use dbtrail::record::{Event, Opening, Recorder, RunContext};
+use dbtrail::resume::LogShape;
 
 use crate::source::Running;
 use app::{App, AppEvent, Command};
@@ -36,12 +38,23 @@ const LOG_SYNC_EVERY: Duration = Duration::from_secs(2);
 pub struct Session {
     /// The running source.
     pub source: Running,
-    /// Start logging here at once (`--log`).
-    pub log: Option<PathBuf>,
+    /// Start logging here at once (`--log`), and what to do if the file exists.
+    pub log: Option<(PathBuf, IfExists)>,
     /// Tool name and version, for log headers.
     pub tool: String,
     /// A hash of the profile's bytes, for log headers.
     pub profile_hash: String,
+}
+
+/// What a log does with a file of its name that already exists.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum IfExists {
+    /// Refuses it (the `l` key, and `--log` alone).
+    Refuse,
+    /// Adds to it after a `# resumed` line (`--append`).
+    Append,
+    /// Empties it first (`--force`).
+    Replace,
 }
 
 /// Runs the screen until the user quits or a signal arrives; the terminal is restored on
@@ -86,8 +99,8 @@ async fn event_loop(
     let mut log: Option<Log> = None;
     let panic_at = test_panic_frame();
     let mut frames = 0u64;
-    if let Some(path) = session.log.clone() {
-        start_log(&mut app, &mut log, &session, &path);
+    if let Some((path, if_exists)) = session.log.clone() {
+        start_log(&mut app, &mut log, &session, &path, if_exists);
     }
     let result = loop {
         let commands = tokio::select! {
@@ -170,7 +183,7 @@ fn carry_out(
                 let mut out = io::stdout();
                 let _ = out.write_all(b"\x07").and_then(|()| out.flush());
             }
-            Command::StartLog(path) => start_log(app, log, session, &path),
+            Command::StartLog(path) => start_log(app, log, session, &path, IfExists::Refuse),
             Command::StopLog => {
                 if let Some(mut open) = log.take() {
                     let _ = open.recorder.finish(session.source.now());
@@ -199,31 +212,30 @@ fn carry_out(
     false
 }
 
-fn start_log(app: &mut App, log: &mut Option<Log>, session: &Session, path: &Path) {
-    match open_log(app, session, path) {
+fn start_log(
+    app: &mut App,
+    log: &mut Option<Log>,
+    session: &Session,
+    path: &Path,
+    if_exists: IfExists,
+) {
+    match open_log(app, session, path, if_exists) {
         Ok(open) => {
             app.logging = Some((open.path.clone(), 0));
             app.notice = Some(format!("logging to {}", path.display()));
             *log = Some(open);
         }
-        Err(e) => app.notice = Some(format!("cannot log: {e:#}")),
+        Err(e) => {
+            app.update(AppEvent::LogRefused {
+                path: path.to_path_buf(),
+                error: format!("{e:#}"),
+            });
+        }
     }
 }
 
-fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
-    let file = OpenOptions::new()
-        .write(true)
-        .create_new(true)
-        .open(path)
-        .with_context(|| {
-            format!(
-                "cannot create {} (an existing file is never replaced)",
-                path.display()
-            )
-        })?;
-    // The same advisory lock as `record` takes, so a recorder is refused this file too.
-    file.try_lock()
-        .with_context(|| format!("cannot lock {}", path.display()))?;
+fn open_log(app: &App, session: &Session, path: &Path, if_exists: IfExists) -> Result<Log> {
+    let (file, opening) = open_log_file(path, if_exists)?;
     let context = RunContext {
         tool: session.tool.clone(),
         profile: app.profile.name.clone(),
@@ -233,14 +245,69 @@ fn open_log(app: &App, session: &Session, path: &Path) -> Result<Log> {
         every: Duration::from_secs(1),
     };
     let budget = Some(app.uncertainty.clone());
-    let mut recorder =
-        Recorder::with_uncertainty(file, app.cal.clone(), budget, &context, Opening::Fresh)
-            .with_context(|| format!("cannot write {}", path.display()))?;
+    let mut recorder = Recorder::with_uncertainty(file, app.cal.clone(), budget, &context, opening)
+        .with_context(|| format!("cannot write {}", path.display()))?;
     recorder.begin_at(session.source.now());
     Ok(Log {
         recorder,
         path: path.to_path_buf(),
         synced: Instant::now(),
+    })
+}
+
+/// Opens the log's file as `if_exists` says, locked against a second recorder (the same
+/// advisory lock as `record` takes), and how its rows begin.
+fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(File, Opening)> {
+    let name = path.display();
+    let mut options = OpenOptions::new();
+    match if_exists {
+        IfExists::Refuse => options.write(true).create_new(true),
+        IfExists::Append => options.read(true).append(true).create(true),
+        IfExists::Replace => options.write(true).create(true),
+    };
+    let file = match options.open(path) {
+        // Short, to fit the prompt's line: `watch --log --append/--force` is in the help.
+        Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
+            anyhow::bail!("{name} already exists: give another name")
+        }
+        other => other.with_context(|| format!("cannot create {name}"))?,
+    };
+    file.try_lock()
+        .with_context(|| format!("cannot lock {name}: is another dbtrail writing it?"))?;
+    let opening = match if_exists {
+        IfExists::Refuse => Opening::Fresh,
+        IfExists::Replace => {
+            file.set_len(0)
+                .with_context(|| format!("cannot empty {name}"))?;
+            Opening::Fresh
+        }
+        IfExists::Append => resume_opening(&file, path)?,
+    };
+    Ok((file, opening))
+}
+
+/// How rows go on after those of the log in `file`: fresh when it is empty, else after a
+/// `# resumed` line, when it holds rows per interval as the screen writes them.
+fn resume_opening(file: &File, path: &Path) -> Result<Opening> {
+    let name = path.display();
+    let len = file
+        .metadata()
+        .with_context(|| format!("cannot read the state of {name}"))?
+        .len();
+    if len == 0 {
+        return Ok(Opening::Fresh);
+    }
+    let shape = LogShape::scan(io::BufReader::new(file))
+        .map_err(|e| anyhow::anyhow!("cannot add to {name}: {e}; choose another file"))?;
+    if shape.per_sample {
+        anyhow::bail!(
+            "cannot add to {name}: it holds one row per sample and the screen logs a row a \
+             second; choose another file"
+        );
+    }
+    Ok(Opening::Resume {
+        channels: shape.channels,
+        cut: shape.cut,
     })
 }
 
