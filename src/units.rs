@@ -54,7 +54,7 @@ pub enum UnitError {
     },
     /// A frequency written as a bare number: hertz, kilohertz and megahertz are all
     /// plausible on a bench, so none is assumed.
-    #[error("`{input}` has no unit: add MHz or kHz (or Hz, if hertz is meant); a bare number is not taken as hertz")]
+    #[error("`{input}` has no unit: add MHz or kHz (or Hz, if hertz is meant)")]
     FrequencyWithoutUnit {
         /// The text as typed.
         input: String,

@@ -41,7 +41,7 @@ fn pty_to_csv_keeps_every_sample_and_its_value() {
     let child = spawn(child);
     std::thread::sleep(Duration::from_millis(700));
     // The first line after the port opens is skipped (it may be cut), so a banner goes first.
-    master.write_all(b"# bench sketch\n").unwrap();
+    master.write_all(b"# bench board\n").unwrap();
     let sent: Vec<u32> = (0..1000).map(|i| 600 + (i * 7) % 1300).collect();
     write_lines(&mut master, sent.iter().copied());
     assert!(wait(child, Duration::from_secs(10)).success());

@@ -29,6 +29,13 @@ pub fn draw(app: &App, frame: &mut Frame) {
     } else {
         1
     };
+    // A refused answer too long for one row wraps onto a second rather than being cut.
+    let status_rows = match &app.mode {
+        Mode::Prompt {
+            error: Some(error), ..
+        } if error.chars().count() + 1 > usize::from(area.width) => 2,
+        _ => 1,
+    };
     let [title, banner, reading, forms, _, bar, markers, holds, peak, _, trend, status, hints] =
         Layout::vertical([
             Constraint::Length(1),
@@ -42,7 +49,7 @@ pub fn draw(app: &App, frame: &mut Frame) {
             Constraint::Length(1),
             Constraint::Length(u16::from(full)),
             Constraint::Min(0),
-            Constraint::Length(1),
+            Constraint::Length(status_rows),
             Constraint::Length(hint_rows),
         ])
         .areas(area);
@@ -59,6 +66,7 @@ pub fn draw(app: &App, frame: &mut Frame) {
         Mode::Prompt {
             error: Some(error), ..
         } => Paragraph::new(format!(" {error}"))
+            .wrap(Wrap { trim: false })
             .style(paint(app, Color::Red, None).add_modifier(Modifier::BOLD))
             .render(status, buf),
         _ => Paragraph::new(status_line(app, usize::from(status.width))).render(status, buf),

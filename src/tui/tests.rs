@@ -96,6 +96,30 @@ fn a_bad_frequency_is_refused_at_the_prompt_and_nothing_changes() {
     assert!(!has(&screen(&app, 100, 30), "unknown unit"));
 }
 
+// Source: the rule in issue 16 (a bare number is not taken as hertz; nothing on the
+// screen is cut): `435` is refused with the fix, and at 80 columns the whole message,
+// which is wider than a row, is there on two rows, not cut at the edge.
+#[test]
+fn a_bare_frequency_is_refused_and_the_whole_reason_is_shown_at_80_columns() {
+    let mut app = app();
+    keys(&mut app, "f435\n");
+    assert_eq!(app.cal.freq_hz(), 10e6);
+    let lines = screen(&app, 80, 24);
+    let reason: String = lines.iter().map(|l| l.trim()).collect::<Vec<_>>().join(" ");
+    assert!(
+        reason.contains("`435` has no unit: add MHz or kHz (or Hz, if hertz is meant)"),
+        "{lines:#?}"
+    );
+    keys(&mut app, "\x1b");
+    keys(
+        &mut app,
+        "f12345678901234567890123456789012345678901234567890123456789012345678901234567890\n",
+    );
+    let lines = screen(&app, 80, 24);
+    let joined: String = lines.iter().map(|l| l.trim()).collect::<Vec<_>>().join(" ");
+    assert!(joined.contains("if hertz is meant)"), "{lines:#?}");
+}
+
 // Source: worked example — reference +10 dBm (1500 counts); 1300 counts read +2 dBm, so
 // the relative reading is −8.00 dB.
 #[test]
