@@ -43,26 +43,39 @@ pub fn wrap_words<'a>(
     lines
 }
 
-/// The fields that fit in `width` characters joined by `separator`, in their own order:
-/// when they do not all fit, the ones of lowest `rank` (a higher number is dropped first)
-/// are left out whole, never cut part-way. The first field is always kept; an empty
-/// field is never shown.
-pub fn fit_fields(fields: &[(u8, &str)], separator: &str, width: usize) -> String {
-    let chars = |s: &str| s.chars().count();
-    let mut kept: Vec<bool> = fields.iter().map(|(_, f)| !f.is_empty()).collect();
+/// Which fields to show in `width` characters, each `(priority, width)`, joined by
+/// separators `separator` characters wide: when they do not all fit, the field of lowest
+/// priority is left out whole, then the next, never cut part-way, until they fit or one is
+/// left. An empty field is never shown.
+pub fn fields_to_keep(fields: &[(u8, usize)], separator: usize, width: usize) -> Vec<bool> {
+    let mut kept: Vec<bool> = fields.iter().map(|&(_, w)| w > 0).collect();
     let length = |kept: &[bool]| {
-        let shown: Vec<usize> = (0..fields.len()).filter(|&i| kept[i]).collect();
-        let text: usize = shown.iter().map(|&i| chars(fields[i].1)).sum();
-        text + chars(separator) * shown.len().saturating_sub(1)
+        let shown = kept.iter().filter(|&&k| k).count();
+        let text: usize = (0..fields.len())
+            .filter(|&i| kept[i])
+            .map(|i| fields[i].1)
+            .sum();
+        text + separator * shown.saturating_sub(1)
     };
-    let mut by_rank: Vec<usize> = (1..fields.len()).collect();
-    by_rank.sort_by_key(|&i| std::cmp::Reverse(fields[i].0));
-    for i in by_rank {
+    let mut by_priority: Vec<usize> = (0..fields.len()).filter(|&i| kept[i]).collect();
+    by_priority.sort_by_key(|&i| fields[i].0);
+    for &i in by_priority.iter().take(by_priority.len().saturating_sub(1)) {
         if length(&kept) <= width {
             break;
         }
         kept[i] = false;
     }
+    kept
+}
+
+/// The fields, each `(priority, text)`, that fit in `width` characters joined by
+/// `separator`, as [`fields_to_keep`] chooses them.
+pub fn fit_fields(fields: &[(u8, &str)], separator: &str, width: usize) -> String {
+    let widths: Vec<(u8, usize)> = fields
+        .iter()
+        .map(|&(p, f)| (p, f.chars().count()))
+        .collect();
+    let kept = fields_to_keep(&widths, separator.chars().count(), width);
     let shown: Vec<&str> = (0..fields.len())
         .filter(|&i| kept[i])
         .map(|i| fields[i].1)
@@ -74,12 +87,12 @@ pub fn fit_fields(fields: &[(u8, &str)], separator: &str, width: usize) -> Strin
 mod tests {
     use super::*;
 
-    // Source: worked by hand. "a | bb | ccc" is 12 characters; at 9 the field of highest
-    // rank number (bb, rank 3) goes first, leaving "a | ccc" (7); at 3 ccc goes too; the
-    // first field stays even when it alone is too wide.
+    // Source: worked by hand. "a | bb | ccc" is 12 characters; at 9 the field of lowest
+    // priority (bb, 1) goes first, leaving "a | ccc" (7); at 3 ccc goes too; the field of
+    // highest priority stays even when it alone is too wide.
     #[test]
-    fn fields_that_do_not_fit_are_dropped_whole_by_rank() {
-        let fields = [(0, "a"), (3, "bb"), (2, "ccc")];
+    fn fields_that_do_not_fit_are_dropped_whole_by_priority() {
+        let fields = [(9, "a"), (1, "bb"), (2, "ccc")];
         assert_eq!(fit_fields(&fields, " | ", 12), "a | bb | ccc");
         assert_eq!(fit_fields(&fields, " | ", 9), "a | ccc");
         assert_eq!(fit_fields(&fields, " | ", 3), "a");

@@ -465,11 +465,11 @@ impl Status {
         // it: fields are dropped whole instead, the state last of all.
         let width = ratatui::crossterm::terminal::size().map_or(80, |(w, _)| usize::from(w));
         let fields = [
-            (0, progress.as_str()),
-            (1, state.as_str()),
-            (2, self.last_reading.as_str()),
-            (4, rate.as_str()),
-            (3, brief.as_str()),
+            (9, progress.as_str()),
+            (8, state.as_str()),
+            (7, self.last_reading.as_str()),
+            (5, rate.as_str()),
+            (6, brief.as_str()),
         ];
         let line = dbtrail::printable::fit_fields(&fields, " | ", width.saturating_sub(1));
         let _ = write!(io::stderr(), "{start}{line}{end}");

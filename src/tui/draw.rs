@@ -8,7 +8,7 @@ use ratatui::widgets::{Block, Clear, Paragraph, Widget, Wrap};
 use ratatui::Frame;
 
 use dbtrail::calibration::Flags;
-use dbtrail::printable::wrap_words;
+use dbtrail::printable::{fields_to_keep, wrap_words};
 use dbtrail::uncertainty::COVERAGE_K;
 use dbtrail::units::{Power, Si, VoltageForm};
 
@@ -751,14 +751,16 @@ fn status_line(app: &App, width: usize) -> Line<'static> {
         fields.push((3, Span::raw(format!("{:.1} s ago", (app.now - t).max(0.0)))));
     }
     fields.push((7, Span::raw(log)));
-    let cells = |fields: &[(u8, Span)]| fields.iter().map(|(_, s)| s.width() + 3).sum::<usize>();
-    while cells(&fields) > width + 2 && fields.len() > 1 {
-        let lowest = (0..fields.len()).min_by_key(|&i| fields[i].0).unwrap_or(0);
-        fields.remove(lowest);
-    }
+    let widths: Vec<(u8, usize)> = fields.iter().map(|(p, s)| (*p, s.width())).collect();
+    let kept = fields_to_keep(&widths, 3, width.saturating_sub(1));
     let mut spans = Vec::new();
-    for (i, (_, field)) in fields.into_iter().enumerate() {
-        spans.push(Span::raw(if i == 0 { " " } else { " │ " }));
+    for (_, field) in fields
+        .into_iter()
+        .zip(kept)
+        .filter(|(_, k)| *k)
+        .map(|(f, _)| f)
+    {
+        spans.push(Span::raw(if spans.is_empty() { " " } else { " │ " }));
         spans.push(field);
     }
     Line::from(spans)
