@@ -11,7 +11,7 @@ use thiserror::Error;
 use crate::adc::Adc;
 use crate::calibration::Calibration;
 use crate::detector::{ordered_points, CalPoint, ModelError, ModelKind, PointU};
-use crate::numeric::fit_line;
+use crate::maths::numeric::fit_line;
 use crate::profile::raw::{
     FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile,
 };

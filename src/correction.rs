@@ -13,7 +13,7 @@
 
 use thiserror::Error;
 
-use crate::numeric::levenberg_marquardt;
+use crate::maths::numeric::levenberg_marquardt;
 
 /// Why a (frequency, dB) table was refused; indices count from 0 in the order given.
 #[derive(Debug, Error, Clone, PartialEq)]

@@ -18,7 +18,8 @@
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
 //! - [`points`]: the calibration points CSV that `fit` reads;
 //! - [`printable`]: names and paths with their control characters escaped, for logs and
-//!   screens.
+//!   screens;
+//! - [`maths`]: the numerical tools, interpolation and special functions the stages share.
 //!
 //! Nothing here touches a terminal or a serial port.
 #![forbid(unsafe_code)]
@@ -30,8 +31,7 @@ pub mod correction;
 pub mod decode;
 pub mod detector;
 pub mod link;
-pub mod numeric;
-pub mod pchip;
+pub mod maths;
 pub mod points;
 pub mod printable;
 pub mod profile;
@@ -39,7 +39,6 @@ pub mod record;
 pub mod report;
 pub mod resume;
 pub mod sim;
-pub mod special;
 pub mod stats;
 pub mod uncertainty;
 pub mod units;

@@ -8,7 +8,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 use thiserror::Error;
 
-use crate::numeric::fit_line;
+use crate::maths::numeric::fit_line;
 use crate::stats::Bound;
 use crate::units::{dbm_to_watts, format_clock, watts_to_dbm};
 use allan::AllanPoint;

@@ -5,8 +5,8 @@
 use dbtrail::detector::{
     table::leave_one_out_db, Axis, CalPoint, Detector, DiodeDetector, TableDetector,
 };
-use dbtrail::pchip::Pchip;
-use dbtrail::special::{i0, i0e, ln_i0, thermal_voltage};
+use dbtrail::maths::pchip::Pchip;
+use dbtrail::maths::special::{i0, i0e, ln_i0, thermal_voltage};
 use dbtrail::units::{Power, VoltageForm};
 
 mod common;

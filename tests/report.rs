@@ -46,7 +46,7 @@ fn analysed(text: &str, options: &ReportOptions) -> dbtrail::report::Report {
 // must be the slope. Two of its points share x = 0.3, which no log can hold (a time comes
 // once), so the points go to the analysis as a run, not through the log reader. The
 // drift's standard error is no longer the independent-residual one the dataset certifies
-// (that one is checked on `numeric::fit_line` in src/numeric.rs); tests/soak.rs checks
+// (that one is checked on `numeric::fit_line` in src/maths/numeric.rs); tests/soak.rs checks
 // the HAC error against statsmodels.
 #[test]
 fn drift_matches_the_norris_certified_slope_and_error() {

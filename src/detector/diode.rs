@@ -10,10 +10,10 @@ use super::{
     ordered_points, point_u_volts, residuals_db, rms, CalPoint, Detector, ModelError, ModelKind,
     Weighting, MAX_FIT_RMS_DB,
 };
-use crate::numeric::{
+use crate::maths::numeric::{
     levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton, unscaled_covariance,
 };
-use crate::special::{ln_i0, ln_i0_and_slope, thermal_voltage};
+use crate::maths::special::{ln_i0, ln_i0_and_slope, thermal_voltage};
 use crate::units::{watts_to_dbm, Power};
 
 /// Limits of the diode fit: ideality factor n and V_L in volts (a profile that gives them

@@ -8,7 +8,7 @@ use super::{
     ordered_points, point_u_volts, residuals_db, CalPoint, Detector, ModelError, ModelKind,
     Weighting,
 };
-use crate::numeric::fit_line_weighted;
+use crate::maths::numeric::fit_line_weighted;
 
 /// A logarithmic-amplifier detector.
 #[derive(Debug, Clone, PartialEq)]

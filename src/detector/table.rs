@@ -5,8 +5,8 @@
 //! monotone (such readings are flagged outside the span by the calibration chain).
 
 use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
-use crate::numeric::solve_bracketed;
-use crate::pchip::Pchip;
+use crate::maths::numeric::solve_bracketed;
+use crate::maths::pchip::Pchip;
 
 /// The axis the table is interpolated on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -4,7 +4,7 @@
 
 use serde::Serialize;
 
-use crate::numeric::{fit_line, levenberg_marquardt, unscaled_covariance};
+use crate::maths::numeric::{fit_line, levenberg_marquardt, unscaled_covariance};
 
 /// Which description of the interval means was chosen.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

@@ -466,7 +466,7 @@ mod tests {
     // (scipy/stats/tests/data/nist_linregress/Norris.dat, scipy 1.17.1).
     #[test]
     fn norris_certified_values() {
-        let text = include_str!("../tests/reference/Norris.dat");
+        let text = include_str!("../../tests/reference/Norris.dat");
         let (mut x, mut y) = (Vec::new(), Vec::new());
         for line in text.lines().skip(60) {
             let cols: Vec<f64> = line
