@@ -10,6 +10,7 @@
 //! - [`calibration`]: the chain that turns one count into a flagged reading;
 //! - [`stats`]: power-domain statistics that merge;
 //! - [`sim`]: the built-in simulator, from a scenario's true power to ADC counts;
+//! - [`events`]: what a source sends down the ring: samples in source time, link events;
 //! - [`link`]: link-health counters shared with reader threads;
 //! - [`record`]: CSV recording of readings, per interval or per sample;
 //! - [`capture`]: the calibration procedure: settle, average, fit, save a profile;
@@ -30,6 +31,7 @@ pub mod capture;
 pub mod correction;
 pub mod decode;
 pub mod detector;
+pub mod events;
 pub mod link;
 pub mod maths;
 pub mod points;

@@ -14,9 +14,9 @@ use dbtrail::capture::{
 };
 use dbtrail::decode::Format;
 use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
+use dbtrail::events::Event;
 use dbtrail::profile::load_profile;
 use dbtrail::profile::raw::{RawAdc, RawLimits};
-use dbtrail::record::Event;
 use dbtrail::sim::{BenchDetector, SignalBench};
 use dbtrail::units::{parse_duration, parse_frequency, parse_level, Si};
 

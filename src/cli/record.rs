@@ -9,7 +9,8 @@ use std::time::{Duration, Instant, SystemTime};
 
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
-use dbtrail::record::{ChannelMismatch, Event, Opening, Recorder, RunContext};
+use dbtrail::events::Event;
+use dbtrail::record::{ChannelMismatch, Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 use dbtrail::uncertainty::Uncertainty;
 use sha2::{Digest, Sha256};

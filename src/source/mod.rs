@@ -10,8 +10,8 @@ use std::sync::Arc;
 use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
+use dbtrail::events::Event;
 use dbtrail::link::LinkCounters;
-use dbtrail::record::Event;
 use ringbuf::traits::{Consumer, Observer, Producer, Split};
 use ringbuf::{HeapCons, HeapProd, HeapRb};
 

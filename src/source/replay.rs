@@ -9,7 +9,7 @@ use std::time::{Duration, Instant};
 #[cfg(test)]
 use dbtrail::decode::DecodeStats;
 use dbtrail::decode::{frame_grid, frames_ahead, Decoder, FlatCounts, Format};
-use dbtrail::record::{Chunk, Event};
+use dbtrail::events::{Chunk, Event};
 use rayon::prelude::*;
 
 use super::{spawn, Running, Sink, WhenFull};

@@ -6,7 +6,7 @@ use std::time::{Duration, Instant};
 
 use anyhow::Context;
 use dbtrail::decode::{DecodeStats, Decoder, FlatCounts, Format};
-use dbtrail::record::{Chunk, Event};
+use dbtrail::events::{Chunk, Event};
 use serialport::SerialPort;
 
 use super::{spawn, Running, Sink, WhenFull};

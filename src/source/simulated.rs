@@ -2,7 +2,7 @@
 //! time or as fast as it can, in chunks of samples.
 
 use dbtrail::decode::FlatCounts;
-use dbtrail::record::{Chunk, Event};
+use dbtrail::events::{Chunk, Event};
 use dbtrail::sim::Simulator;
 
 use super::replay::pace;

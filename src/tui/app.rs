@@ -7,9 +7,9 @@ use std::sync::Arc;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
 
 use dbtrail::calibration::{Calibration, Flags, Reading};
+use dbtrail::events::Event;
 use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::Profile;
-use dbtrail::record::Event;
 use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend, NOT_A_VALUE};
 use dbtrail::uncertainty::{Budget, Uncertainty};
 use dbtrail::units::{parse_db, parse_frequency};

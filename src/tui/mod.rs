@@ -23,7 +23,8 @@ use ratatui::crossterm::event::{self as term_event, Event as TermEvent};
 use ratatui::DefaultTerminal;
 use tokio::sync::mpsc;
 
-use dbtrail::record::{Event, Opening, Recorder, RunContext};
+use dbtrail::events::Event;
+use dbtrail::record::{Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
 use crate::source::Running;

@@ -9,9 +9,9 @@ use ratatui::Terminal;
 
 use dbtrail::calibration::Calibration;
 use dbtrail::decode::FlatCounts;
+use dbtrail::events::{Chunk, Event};
 use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::parse_profile;
-use dbtrail::record::{Chunk, Event};
 use dbtrail::stats::AVERAGE_BUCKETS;
 use dbtrail::uncertainty::{Budget, Noise, Uncertainty};
 
