@@ -43,6 +43,13 @@ bitflags! {
     }
 }
 
+/// Readings with these flags are not values: the screen's holds, trend and average leave
+/// them out. Interval statistics count clipped and below-span readings at their bound
+/// instead (see [`crate::stats::Bound`]).
+pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
+    .union(Flags::ADC_CLIP)
+    .union(Flags::OVER_FULL_SCALE);
+
 impl Flags {
     /// Short names, for logs and status lines.
     pub fn names(self) -> Vec<&'static str> {

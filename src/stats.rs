@@ -10,17 +10,11 @@
 use std::collections::VecDeque;
 
 use crate::calibration::{
-    untally, Calibration, CodeEntry, Flags, Reading, TALLY_AT_LEAST, TALLY_AT_MOST, TALLY_VALUE,
+    untally, Calibration, CodeEntry, Flags, Reading, NOT_A_VALUE, TALLY_AT_LEAST, TALLY_AT_MOST,
+    TALLY_VALUE,
 };
 use crate::uncertainty::Noise;
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
-
-/// Readings with these flags are not values: the screen's holds, trend and average leave
-/// them out. Interval statistics count clipped and below-span readings at their bound
-/// instead (see [`Bound`]).
-pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
-    .union(Flags::ADC_CLIP)
-    .union(Flags::OVER_FULL_SCALE);
 
 /// What the mean, minimum and maximum of a set of readings are: values, or bounds on the
 /// true figures because some readings were counted at a bound of what can be measured.

@@ -6,11 +6,11 @@ use std::sync::Arc;
 
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
 
-use dbtrail::calibration::{Calibration, Flags, Reading};
+use dbtrail::calibration::{Calibration, Flags, Reading, NOT_A_VALUE};
 use dbtrail::events::Event;
 use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::Profile;
-use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend, NOT_A_VALUE};
+use dbtrail::stats::{Averager, Averaging, PowerStats, Settle, Trend};
 use dbtrail::uncertainty::{Budget, Uncertainty};
 use dbtrail::units::{parse_db, parse_frequency};
 
