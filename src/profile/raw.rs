@@ -268,8 +268,8 @@ impl<'de, Row: Deserialize<'de>> Deserialize<'de> for RawMatch<Row> {
 }
 
 /// A frequency: text with a unit as a person writes it (`"14.2MHz"`), or hertz set by the
-/// program itself. A bare number in a file is kept as its text and refused by [`hz`]
-/// (`FreqValue::hz`), since its unit would be a guess.
+/// program itself. A bare number in a file is kept as its text and refused by
+/// [`FreqValue::hz`], since its unit would be a guess.
 #[derive(Debug, Clone, PartialEq)]
 pub enum FreqValue {
     /// Hertz as a number, set by the program (written out with its unit).
