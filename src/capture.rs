@@ -16,7 +16,7 @@ use crate::profile::raw::{
     FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawModel, RawPoint, RawProfile,
 };
 use crate::profile::{parse_profile, render_profile, Profile, ProfileError};
-use crate::stats::CountMoments;
+use crate::stats::{Averaging, CountMoments};
 use crate::units::{format_frequency, parse_level, Level, UnitError};
 
 /// When a level counts as settled.
@@ -41,15 +41,6 @@ impl Default for SettleRule {
             timeout_s: 10.0,
         }
     }
-}
-
-/// How long a settled level is averaged.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Span {
-    /// This many samples.
-    Samples(u64),
-    /// This many seconds.
-    Seconds(f64),
 }
 
 /// Why a measurement gave no point.
@@ -100,13 +91,13 @@ pub struct Measured {
 }
 
 /// Waits for `samples` (time in seconds, counts) to settle under `rule`, then averages
-/// them over `span`.
+/// them over `averaging`.
 pub fn measure(
     samples: impl IntoIterator<Item = (f64, f64)>,
     rule: &SettleRule,
-    span: Span,
+    averaging: Averaging,
 ) -> Result<Measured, MeasureError> {
-    measure_watched(samples, rule, span, |_| true)
+    measure_watched(samples, rule, averaging, |_| true)
 }
 
 /// [`measure`], telling `watch` the progress after every sample; when `watch` answers
@@ -114,7 +105,7 @@ pub fn measure(
 pub fn measure_watched(
     samples: impl IntoIterator<Item = (f64, f64)>,
     rule: &SettleRule,
-    span: Span,
+    averaging: Averaging,
     mut watch: impl FnMut(&Progress) -> bool,
 ) -> Result<Measured, MeasureError> {
     let mut samples = samples.into_iter();
@@ -136,7 +127,7 @@ pub fn measure_watched(
         }
     };
     settle(&mut samples, rule, &mut tick)?;
-    average(samples, span, &mut tick)
+    average(samples, averaging, &mut tick)
 }
 
 /// Reads `samples` until the moving window passes `rule`.
@@ -199,7 +190,7 @@ fn spread_and_slope(window: &VecDeque<(f64, f64)>) -> (f64, f64) {
 /// of the span").
 fn average(
     samples: impl Iterator<Item = (f64, f64)>,
-    span: Span,
+    averaging: Averaging,
     tick: &mut impl FnMut(f64, bool) -> Result<(), MeasureError>,
 ) -> Result<Measured, MeasureError> {
     let mut moments = CountMoments::default();
@@ -208,9 +199,10 @@ fn average(
         tick(t, true)?;
         let t0 = *first.get_or_insert(t);
         moments.add(c);
-        let done = match span {
-            Span::Samples(want) => moments.n >= want.max(1),
-            Span::Seconds(s) => t - t0 >= s,
+        let done = match averaging {
+            Averaging::Off => true,
+            Averaging::Samples(want) => moments.n >= want.max(1) as u64,
+            Averaging::Seconds(s) => t - t0 >= s,
         };
         if done {
             return Ok(Measured {
@@ -614,7 +606,7 @@ mod tests {
     #[test]
     fn a_drifting_source_never_settles_and_says_so() {
         let drifting = (0..20_000).map(|i| (f64::from(i) * 0.001, 1000.0 + f64::from(i) * 0.02));
-        let err = measure(drifting, &SettleRule::default(), Span::Samples(100)).unwrap_err();
+        let err = measure(drifting, &SettleRule::default(), Averaging::Samples(100)).unwrap_err();
         assert!(matches!(err, MeasureError::NeverSettled { .. }));
         let text = err.to_string();
         assert!(
@@ -632,7 +624,7 @@ mod tests {
         let m = measure(
             before.chain(after),
             &SettleRule::default(),
-            Span::Samples(1000),
+            Averaging::Samples(1000),
         )
         .unwrap();
         assert!((m.counts - 1200.0).abs() < 1e-9, "{m:?}");
@@ -646,7 +638,7 @@ mod tests {
             let t = f64::from(i) * 0.001;
             (t, 1500.0 * (1.0 - (-t / 0.1).exp()))
         });
-        let m = measure(approach, &SettleRule::default(), Span::Seconds(0.5)).unwrap();
+        let m = measure(approach, &SettleRule::default(), Averaging::Seconds(0.5)).unwrap();
         assert!((m.counts - 1500.0).abs() < 1.0, "{m:?}");
     }
 
@@ -722,7 +714,7 @@ mod tests {
             measure(
                 steady(5.0, 0.0, 10),
                 &SettleRule::default(),
-                Span::Samples(5)
+                Averaging::Samples(5)
             ),
             Err(MeasureError::NoSamples)
         );
@@ -735,10 +727,15 @@ mod tests {
         let mut read = 0;
         let counted = steady(1000.0, 0.0, 5000).inspect(|_| read += 1);
         let mut seen = Vec::new();
-        let result = measure_watched(counted, &SettleRule::default(), Span::Samples(100), |p| {
-            seen.push(*p);
-            p.samples < 50
-        });
+        let result = measure_watched(
+            counted,
+            &SettleRule::default(),
+            Averaging::Samples(100),
+            |p| {
+                seen.push(*p);
+                p.samples < 50
+            },
+        );
         assert_eq!(result, Err(MeasureError::Cancelled));
         assert_eq!(read, 50);
         assert_eq!(seen.last().map(|p| p.samples), Some(50));
@@ -753,7 +750,7 @@ mod tests {
         let m = measure_watched(
             steady(1000.0, 0.0, 5000),
             &SettleRule::default(),
-            Span::Samples(100),
+            Averaging::Samples(100),
             |p| {
                 seen.push(*p);
                 true

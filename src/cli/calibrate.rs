@@ -10,7 +10,7 @@ use std::time::{Duration, Instant};
 
 use anyhow::{anyhow, Context};
 use dbtrail::capture::{
-    base_profile, measure_watched, MeasureError, Measured, Progress, Session, SettleRule, Span,
+    base_profile, measure_watched, MeasureError, Measured, Progress, Session, SettleRule,
 };
 use dbtrail::decode::Format;
 use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
@@ -18,7 +18,8 @@ use dbtrail::events::Event;
 use dbtrail::profile::load_profile;
 use dbtrail::profile::raw::{RawAdc, RawLimits};
 use dbtrail::sim::{BenchDetector, SignalBench};
-use dbtrail::units::{parse_duration, parse_frequency, parse_level, Si};
+use dbtrail::stats::Averaging;
+use dbtrail::units::{parse_frequency, parse_level, Si};
 
 use super::{parse_frequency_arg, parse_ohms, BadInput, Failure, Runtime};
 use crate::source::{open_port, Running, SerialSpec};
@@ -59,8 +60,8 @@ pub struct Args {
     #[arg(long, default_value = "10MHz", allow_hyphen_values = true, value_parser = parse_frequency_arg)]
     freq: f64,
     /// Averaging of each settled level: a count of samples (1000) or a time (2s)
-    #[arg(long, default_value = "1000", allow_hyphen_values = true, value_parser = parse_span)]
-    average: Span,
+    #[arg(long, default_value = "1000", allow_hyphen_values = true, value_parser = parse_average)]
+    average: Averaging,
     /// Give up on a level that has not settled after this long
     #[arg(long, default_value = "10s", allow_hyphen_values = true, value_parser = super::parse_duration_arg)]
     settle_timeout: Duration,
@@ -72,17 +73,14 @@ pub struct Args {
     seed: u64,
 }
 
-fn parse_span(text: &str) -> Result<Span, String> {
-    if let Ok(n) = text.trim().parse::<u64>() {
-        return if n > 0 {
-            Ok(Span::Samples(n))
-        } else {
-            Err("average over at least one sample".into())
-        };
-    }
-    match parse_duration(text) {
-        Ok(d) if !d.is_zero() => Ok(Span::Seconds(d.as_secs_f64())),
-        Ok(_) => Err("average over more than 0 s".into()),
+/// The screen's averaging rule, with nothing to average refused: a point is the mean of
+/// at least one sample.
+fn parse_average(text: &str) -> Result<Averaging, String> {
+    match Averaging::parse(text) {
+        Ok(Averaging::Off) if text.trim() != "1" => {
+            Err("average over at least one sample, or more than 0 s".into())
+        }
+        Ok(averaging) => Ok(averaging),
         Err(e) => Err(format!("{e}; or a count of samples such as 1000")),
     }
 }
@@ -157,7 +155,7 @@ impl Bench {
         let result = measure_watched(
             self.samples(applied, limit, cancel),
             &how.rule,
-            how.span,
+            how.averaging,
             |p| {
                 watch(p);
                 !cancel.load(Relaxed)
@@ -176,7 +174,7 @@ pub struct Measuring {
     /// When a level counts as settled.
     pub rule: SettleRule,
     /// How long a settled level is averaged.
-    pub span: Span,
+    pub averaging: Averaging,
 }
 
 /// Which entries the prompt takes.
@@ -906,7 +904,7 @@ fn set_up(args: &Args) -> Result<(Desk, Bench), Failure> {
     };
     let measuring = Measuring {
         rule,
-        span: args.average,
+        averaging: args.average,
     };
     let session = Session::new(base, model);
     let desk = Desk::new(session, args.out.clone(), args.force, measuring, source);

@@ -342,9 +342,10 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dbtrail::capture::{base_profile, Session, SettleRule, Span};
+    use dbtrail::capture::{base_profile, Session, SettleRule};
     use dbtrail::detector::ModelKind;
     use dbtrail::profile::raw::RawAdc;
+    use dbtrail::stats::Averaging;
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
 
@@ -359,7 +360,7 @@ mod tests {
         let session = Session::new(base_profile("t", adc, 50.0, 10e6), ModelKind::Table);
         let measuring = Measuring {
             rule: SettleRule::default(),
-            span: Span::Samples(100),
+            averaging: Averaging::Samples(100),
         };
         Desk::new(session, "t.toml".into(), false, measuring, "a test".into())
     }
