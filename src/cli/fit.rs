@@ -64,7 +64,7 @@ pub struct Args {
 }
 
 /// The settings the fit uses: each from its option, else the points file, else the default.
-struct Settled {
+struct FitSettings {
     model: String,
     bits: i64,
     vref: f64,
@@ -98,7 +98,7 @@ fn pick<T: PartialEq + std::fmt::Display>(
     }
 }
 
-fn settle(args: &Args, file: PointsSettings, origin: &str) -> anyhow::Result<Settled> {
+fn fit_settings(args: &Args, file: PointsSettings, origin: &str) -> anyhow::Result<FitSettings> {
     let bits = pick(args.adc_bits, "--adc-bits", file.bits, origin);
     let vref = pick(args.vref, "--vref", file.vref, origin);
     let (Some(bits), Some(vref)) = (bits, vref) else {
@@ -113,7 +113,7 @@ fn settle(args: &Args, file: PointsSettings, origin: &str) -> anyhow::Result<Set
             line: s.line,
         })
     };
-    Ok(Settled {
+    Ok(FitSettings {
         model: pick(args.model.clone(), "--model", file.model, origin)
             .unwrap_or_else(|| "table".into()),
         bits,
@@ -156,7 +156,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let bytes = super::files::read_bounded(&args.points, POINTS_MAX_BYTES, "points file")?;
     let rows = read_points(&bytes, &origin).bad_input()?;
     let settings =
-        settle(&args, read_settings(&bytes, &origin).bad_input()?, &origin).bad_input()?;
+        fit_settings(&args, read_settings(&bytes, &origin).bad_input()?, &origin).bad_input()?;
     if rows.len() > MAX_PROFILE_POINTS {
         return Err(anyhow!("{origin}: {}", too_many_points(rows.len()))).bad_input();
     }
@@ -236,7 +236,7 @@ fn profile_name(args: &Args) -> Result<String, Failure> {
     .bad_input()
 }
 
-fn raw_profile(args: &Settled, rows: &[PointRow], name: String) -> RawProfile {
+fn raw_profile(args: &FitSettings, rows: &[PointRow], name: String) -> RawProfile {
     RawProfile {
         name,
         description: None,

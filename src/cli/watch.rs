@@ -8,7 +8,7 @@ use anyhow::anyhow;
 
 use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
 use super::{BadInput, Failure, Runtime};
-use crate::tui::{self, app::App, IfExists, Session};
+use crate::tui::{self, app::App, IfExists, ScreenSetup};
 
 #[derive(clap::Args)]
 pub struct Args {
@@ -71,7 +71,7 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
         short_label(&args.source, &args.link),
     );
     app.color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
-    let session = Session {
+    let setup = ScreenSetup {
         source,
         log: args.log.map(|path| {
             let if_exists = if args.append {
@@ -86,5 +86,5 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
         tool: format!("dbtrail {}", env!("CARGO_PKG_VERSION")),
         profile_hash: super::record::hex_digest(&loaded.bytes),
     };
-    tui::run(app, session).runtime()
+    tui::run(app, setup).runtime()
 }

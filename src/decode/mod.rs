@@ -299,7 +299,7 @@ impl Decoder {
             State::Probing(probe) => {
                 probe.extend_from_slice(bytes);
                 if let Some(format) = recognise(probe, false) {
-                    self.settle(format, out);
+                    self.adopt_format(format, out);
                 }
             }
         }
@@ -321,7 +321,7 @@ impl Decoder {
     pub fn finish(&mut self, out: &mut impl FrameSink) {
         if let State::Probing(probe) = &self.state {
             let format = recognise(probe, true).unwrap_or(Format::Ascii);
-            self.settle(format, out);
+            self.adopt_format(format, out);
         }
         match &mut self.state {
             State::Ascii(d) => d.finish(&mut self.stats, out),
@@ -344,7 +344,7 @@ impl Decoder {
         self.joined_midway = true;
     }
 
-    fn settle(&mut self, format: Format, out: &mut impl FrameSink) {
+    fn adopt_format(&mut self, format: Format, out: &mut impl FrameSink) {
         let State::Probing(probe) =
             std::mem::replace(&mut self.state, State::Ascii(AsciiDecoder::new()))
         else {

@@ -112,7 +112,7 @@ pub enum WhenFull {
 }
 
 /// The producer's side: pushes events, counting or waiting out a full ring.
-pub struct Sink {
+pub struct EventSender {
     ring: HeapProd<Event>,
     when_full: WhenFull,
     counters: Arc<LinkCounters>,
@@ -120,7 +120,7 @@ pub struct Sink {
     lost: u64,
 }
 
-impl Sink {
+impl EventSender {
     /// Sends one event; false when the consumer asked the source to stop.
     pub fn send(&mut self, event: Event) -> bool {
         if self.lost > 0 {
@@ -160,7 +160,7 @@ pub fn spawn(
     description: String,
     live: bool,
     when_full: WhenFull,
-    body: impl FnOnce(&mut Sink, Instant) + Send + 'static,
+    body: impl FnOnce(&mut EventSender, Instant) + Send + 'static,
 ) -> Running {
     let capacity = match when_full {
         WhenFull::Drop => LIVE_RING,
@@ -171,7 +171,7 @@ pub fn spawn(
     let stop = Arc::new(AtomicBool::new(false));
     let finished = Arc::new(AtomicBool::new(false));
     let started = Instant::now();
-    let mut sink = Sink {
+    let mut sender = EventSender {
         ring,
         when_full,
         counters: Arc::clone(&counters),
@@ -182,7 +182,7 @@ pub fn spawn(
     let thread = std::thread::Builder::new()
         .name("dbtrail-source".into())
         .spawn(move || {
-            body(&mut sink, started);
+            body(&mut sender, started);
             done.store(true, Ordering::Release);
         })
         .expect("the OS can start a thread");

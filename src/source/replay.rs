@@ -12,7 +12,7 @@ use dbtrail::decode::{frame_grid, frames_ahead, Decoder, FlatCounts, Format};
 use dbtrail::events::{Chunk, Event};
 use rayon::prelude::*;
 
-use super::{spawn, Running, Sink, WhenFull};
+use super::{spawn, EventSender, Running, WhenFull};
 
 /// A capture to replay.
 pub struct ReplaySpec {
@@ -49,7 +49,7 @@ impl ReplaySpec {
             description,
             false,
             WhenFull::Wait(REPLAY_RING),
-            move |sink, started| replay(&self, file, sink, started),
+            move |sender, started| replay(&self, file, sender, started),
         );
         running.paced = realtime;
         running
@@ -66,11 +66,11 @@ const PART_BYTES: usize = READ_BYTES / PARTS;
 /// Events the ring holds for a replay: two reads' worth of parts (about 1.6 MB).
 const REPLAY_RING: usize = 2 * PARTS;
 
-fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) {
+fn replay(spec: &ReplaySpec, mut file: File, sender: &mut EventSender, started: Instant) {
     let mut decoder = Decoder::new(spec.format);
     let mut index: u64 = 0;
     let dt = 1.0 / spec.rate_hz;
-    sink.counters.set_connected(true);
+    sender.counters.set_connected(true);
     let mut before = decoder.stats();
     // On a worker of the pool: each read's parts are shared out from inside it, not
     // handed in from outside and waited for.
@@ -81,19 +81,19 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
             &mut decoder,
             one_read_at_a_time,
             |parts, decoder| {
-                if sink.stopped() {
+                if sender.stopped() {
                     return false;
                 }
-                sink.counters.add_decoded(&before, &decoder.stats());
+                sender.counters.add_decoded(&before, &decoder.stats());
                 before = decoder.stats();
                 for chunk in parts
                     .into_iter()
                     .flat_map(|part| split(part, spec, &mut index, dt))
                 {
-                    if spec.realtime && !pace(started, chunk.t0, || sink.stopped()) {
+                    if spec.realtime && !pace(started, chunk.t0, || sender.stopped()) {
                         return false;
                     }
-                    if !sink.send(Event::Samples(chunk)) {
+                    if !sender.send(Event::Samples(chunk)) {
                         return false;
                     }
                 }
@@ -102,9 +102,10 @@ fn replay(spec: &ReplaySpec, mut file: File, sink: &mut Sink, started: Instant) 
         )
     });
     if finished {
-        sink.counters
+        sender
+            .counters
             .set_last_sample((index as f64 * dt * 1e9) as u64);
-        sink.counters.set_connected(false);
+        sender.counters.set_connected(false);
     }
 }
 

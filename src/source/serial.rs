@@ -9,7 +9,7 @@ use dbtrail::decode::{DecodeStats, Decoder, FlatCounts, Format};
 use dbtrail::events::{Chunk, Event};
 use serialport::SerialPort;
 
-use super::{spawn, Running, Sink, WhenFull};
+use super::{spawn, EventSender, Running, WhenFull};
 
 /// A port to read.
 pub struct SerialSpec {
@@ -37,8 +37,8 @@ impl SerialSpec {
     /// Starts reading an already opened port on its own thread.
     pub fn start(self, port: Box<dyn SerialPort>) -> Running {
         let description = format!("serial {} at {} baud", self.path, self.baud);
-        spawn(description, true, WhenFull::Drop, move |sink, started| {
-            read_forever(&self, port, sink, started)
+        spawn(description, true, WhenFull::Drop, move |sender, started| {
+            read_forever(&self, port, sender, started)
         })
     }
 }
@@ -46,7 +46,7 @@ impl SerialSpec {
 fn read_forever(
     spec: &SerialSpec,
     mut port: Box<dyn SerialPort>,
-    sink: &mut Sink,
+    sender: &mut EventSender,
     started: Instant,
 ) {
     let mut decoder = Decoder::new(spec.format);
@@ -54,15 +54,15 @@ fn read_forever(
     decoder.resync();
     let mut buf = vec![0u8; 64 * 1024];
     let mut samples = FlatCounts::default();
-    sink.counters.set_connected(true);
-    while !sink.stopped() {
+    sender.counters.set_connected(true);
+    while !sender.stopped() {
         match port.read(&mut buf) {
             Ok(0) => {}
             Ok(n) => {
                 let t = started.elapsed().as_secs_f64();
                 let before = decoder.stats();
                 decoder.feed(&buf[..n], &mut samples);
-                hand_over(sink, t, &before, &decoder.stats(), &mut samples);
+                hand_over(sender, t, &before, &decoder.stats(), &mut samples);
                 continue;
             }
             Err(e) if e.kind() == ErrorKind::TimedOut || e.kind() == ErrorKind::Interrupted => {
@@ -71,19 +71,19 @@ fn read_forever(
             Err(_) => {}
         }
         // Ok(0) (end of file) and real errors both mean the device went away.
-        sink.counters.set_connected(false);
-        sink.send(Event::LinkDown {
+        sender.counters.set_connected(false);
+        sender.send(Event::LinkDown {
             t: started.elapsed().as_secs_f64(),
         });
-        let Some(reopened) = reopen(spec, sink) else {
+        let Some(reopened) = reopen(spec, sender) else {
             return;
         };
         port = reopened;
         // Perhaps another device, or the same one set up anew: learn its format again.
         decoder.resync();
-        sink.counters.add_reconnect();
-        sink.counters.set_connected(true);
-        sink.send(Event::LinkUp {
+        sender.counters.add_reconnect();
+        sender.counters.set_connected(true);
+        sender.send(Event::LinkUp {
             t: started.elapsed().as_secs_f64(),
         });
     }
@@ -92,39 +92,39 @@ fn read_forever(
 /// Hands the consumer what one read gave: the counters' growth, frames found missing,
 /// input refused, and the samples.
 fn hand_over(
-    sink: &mut Sink,
+    sender: &mut EventSender,
     t: f64,
     before: &DecodeStats,
     after: &DecodeStats,
     samples: &mut FlatCounts,
 ) {
-    sink.counters.add_decoded(before, after);
+    sender.counters.add_decoded(before, after);
     let dropped = after.dropped_frames - before.dropped_frames;
     if dropped > 0 {
-        sink.send(Event::Lost {
+        sender.send(Event::Lost {
             t,
             samples: dropped,
         });
     }
     let rejected = after.rejected() - before.rejected();
     if rejected > 0 {
-        sink.send(Event::Rejected { t, count: rejected });
+        sender.send(Event::Rejected { t, count: rejected });
     }
     if !samples.is_empty() {
-        sink.counters.set_last_sample((t * 1e9) as u64);
+        sender.counters.set_last_sample((t * 1e9) as u64);
         let chunk = Chunk {
             t0: t,
             dt: 0.0,
             samples: std::mem::take(samples),
         };
-        sink.send(Event::Samples(chunk));
+        sender.send(Event::Samples(chunk));
     }
 }
 
 /// Tries the same path again with growing pauses until it opens or the consumer stops.
-fn reopen(spec: &SerialSpec, sink: &Sink) -> Option<Box<dyn SerialPort>> {
+fn reopen(spec: &SerialSpec, sender: &EventSender) -> Option<Box<dyn SerialPort>> {
     let mut pause = BACKOFF_FIRST;
-    while !sink.stopped() {
+    while !sender.stopped() {
         std::thread::sleep(pause);
         if let Ok(port) = open_port(&spec.path, spec.baud) {
             return Some(port);

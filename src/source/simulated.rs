@@ -48,8 +48,8 @@ impl SimSpec {
             description,
             !self.fast,
             WhenFull::Wait(WAITING_RING),
-            move |sink, started| {
-                sink.counters.set_connected(true);
+            move |sender, started| {
+                sender.counters.set_connected(true);
                 let mut made: u64 = 0;
                 while total.is_none_or(|n| made < n) {
                     let n = total.map_or(per_chunk, |total| per_chunk.min((total - made) as usize));
@@ -63,17 +63,19 @@ impl SimSpec {
                         dt: 1.0 / rate,
                         samples,
                     };
-                    if !self.fast && !pace(started, chunk.last_t(), || sink.stopped()) {
+                    if !self.fast && !pace(started, chunk.last_t(), || sender.stopped()) {
                         break;
                     }
                     made += n as u64;
-                    sink.counters.add_samples(n as u64);
-                    sink.counters.set_last_sample((chunk.last_t() * 1e9) as u64);
-                    if !sink.send(Event::Samples(chunk)) {
+                    sender.counters.add_samples(n as u64);
+                    sender
+                        .counters
+                        .set_last_sample((chunk.last_t() * 1e9) as u64);
+                    if !sender.send(Event::Samples(chunk)) {
                         break;
                     }
                 }
-                sink.counters.set_connected(false);
+                sender.counters.set_connected(false);
             },
         )
     }

@@ -36,7 +36,7 @@ pub const FRAMES_PER_SECOND: u64 = 25;
 const LOG_SYNC_EVERY: Duration = Duration::from_secs(2);
 
 /// What the screen needs besides the app itself.
-pub struct Session {
+pub struct ScreenSetup {
     /// The running source.
     pub source: Running,
     /// Start logging here at once (`--log`), and what to do if the file exists.
@@ -60,13 +60,13 @@ pub enum IfExists {
 
 /// Runs the screen until the user quits or a signal arrives; the terminal is restored on
 /// every way out, a panic included (ratatui's hook restores it before the message).
-pub fn run(app: App, session: Session) -> Result<()> {
+pub fn run(app: App, setup: ScreenSetup) -> Result<()> {
     let runtime = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()
         .context("cannot start the event loop")?;
     let mut terminal = ratatui::init();
-    let outcome = runtime.block_on(event_loop(&mut terminal, app, session));
+    let outcome = runtime.block_on(event_loop(&mut terminal, app, setup));
     ratatui::restore();
     outcome
 }
@@ -89,7 +89,7 @@ struct Log {
 async fn event_loop(
     terminal: &mut DefaultTerminal,
     mut app: App,
-    mut session: Session,
+    mut setup: ScreenSetup,
 ) -> Result<()> {
     let stop_keys = Arc::new(AtomicBool::new(false));
     let mut keys = spawn_key_reader(Arc::clone(&stop_keys));
@@ -100,19 +100,19 @@ async fn event_loop(
     let mut log: Option<Log> = None;
     let panic_at = test_panic_frame();
     let mut frames = 0u64;
-    if let Some((path, if_exists)) = session.log.clone() {
-        start_log(&mut app, &mut log, &session, &path, if_exists);
+    if let Some((path, if_exists)) = setup.log.clone() {
+        start_log(&mut app, &mut log, &setup, &path, if_exists);
     }
     let result = loop {
         let commands = tokio::select! {
             Some(event) = keys.recv() => app.update(event),
             _ = tick.tick() => {
-                let mut commands = drain(&mut app, &mut session.source, &mut log);
-                app.update(AppEvent::Link(session.source.counters.snapshot()));
-                if !session.source.live && session.source.exhausted() && !app.ended {
+                let mut commands = drain(&mut app, &mut setup.source, &mut log);
+                app.update(AppEvent::Link(setup.source.counters.snapshot()));
+                if !setup.source.live && setup.source.exhausted() && !app.ended {
                     app.update(AppEvent::SourceEnded);
                 }
-                commands.extend(app.update(AppEvent::Tick { now: session.source.now() }));
+                commands.extend(app.update(AppEvent::Tick { now: setup.source.now() }));
                 if let Err(e) = terminal.draw(|frame| draw::draw(&app, frame)) {
                     break Err(e).context("cannot draw the screen");
                 }
@@ -125,13 +125,13 @@ async fn event_loop(
             _ = terminate.recv() => break Ok(()),
             _ = hangup.recv() => break Ok(()),
         };
-        if carry_out(commands, &mut app, &mut log, &session) {
+        if carry_out(commands, &mut app, &mut log, &setup) {
             break Ok(());
         }
     };
     stop_keys.store(true, Ordering::Release);
     if let Some(log) = log.as_mut() {
-        let _ = log.recorder.finish(session.source.now());
+        let _ = log.recorder.finish(setup.source.now());
         let _ = log.recorder.get_ref().sync_data();
     }
     result
@@ -175,7 +175,7 @@ fn carry_out(
     commands: Vec<Command>,
     app: &mut App,
     log: &mut Option<Log>,
-    session: &Session,
+    setup: &ScreenSetup,
 ) -> bool {
     for command in commands {
         match command {
@@ -184,10 +184,10 @@ fn carry_out(
                 let mut out = io::stdout();
                 let _ = out.write_all(b"\x07").and_then(|()| out.flush());
             }
-            Command::StartLog(path) => start_log(app, log, session, &path, IfExists::Refuse),
+            Command::StartLog(path) => start_log(app, log, setup, &path, IfExists::Refuse),
             Command::StopLog => {
                 if let Some(mut open) = log.take() {
-                    let _ = open.recorder.finish(session.source.now());
+                    let _ = open.recorder.finish(setup.source.now());
                     let _ = open.recorder.get_ref().sync_data();
                     app.notice = Some(format!(
                         "log {} closed, {} rows",
@@ -201,7 +201,7 @@ fn carry_out(
                 // A log keeps one calibration per file: close it and say so.
                 if let Some(open) = log.as_ref() {
                     let path = open.path.clone();
-                    carry_out(vec![Command::StopLog], app, log, session);
+                    carry_out(vec![Command::StopLog], app, log, setup);
                     app.notice = Some(format!(
                         "frequency or offset changed: log {} closed; press l to start a new one",
                         path.display()
@@ -216,11 +216,11 @@ fn carry_out(
 fn start_log(
     app: &mut App,
     log: &mut Option<Log>,
-    session: &Session,
+    setup: &ScreenSetup,
     path: &Path,
     if_exists: IfExists,
 ) {
-    match open_log(app, session, path, if_exists) {
+    match open_log(app, setup, path, if_exists) {
         Ok(open) => {
             app.logging = Some((open.path.clone(), 0));
             app.notice = Some(format!("logging to {}", path.display()));
@@ -235,20 +235,20 @@ fn start_log(
     }
 }
 
-fn open_log(app: &App, session: &Session, path: &Path, if_exists: IfExists) -> Result<Log> {
+fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) -> Result<Log> {
     let (file, opening) = open_log_file(path, if_exists)?;
     let context = RunContext {
-        tool: session.tool.clone(),
+        tool: setup.tool.clone(),
         profile: app.profile.name.clone(),
-        profile_hash: session.profile_hash.clone(),
-        started: SystemTime::now() - Duration::from_secs_f64(session.source.now()),
-        source: session.source.description.clone(),
+        profile_hash: setup.profile_hash.clone(),
+        started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
+        source: setup.source.description.clone(),
         every: Duration::from_secs(1),
     };
     let budget = Some(app.uncertainty.clone());
     let mut recorder = Recorder::with_uncertainty(file, app.cal.clone(), budget, &context, opening)
         .with_context(|| format!("cannot write {}", path.display()))?;
-    recorder.begin_at(session.source.now());
+    recorder.begin_at(setup.source.now());
     Ok(Log {
         recorder,
         path: path.to_path_buf(),
