@@ -13,7 +13,7 @@
 //! - [`events`]: what a source sends down the ring: samples in source time, link events;
 //! - [`link`]: link-health counters shared with reader threads;
 //! - [`record`]: CSV recording of readings, per interval or per sample;
-//! - [`capture`]: the calibration procedure: settle, average, fit, save a profile;
+//! - [`procedure`]: the calibration procedure: settle, average, fit, save a profile;
 //! - [`uncertainty`]: the uncertainty budget of a reading or a mean (GUM, k = 2);
 //! - [`report`]: the soak report: drift, settling, gaps, and decimation for plots;
 //! - [`profile`]: TOML profiles, validated with file, line and field in every message;
@@ -27,7 +27,6 @@
 
 pub mod adc;
 pub mod calibration;
-pub mod capture;
 pub mod correction;
 pub mod decode;
 pub mod detector;
@@ -36,6 +35,7 @@ pub mod link;
 pub mod maths;
 pub mod points;
 pub mod printable;
+pub mod procedure;
 pub mod profile;
 pub mod record;
 pub mod report;

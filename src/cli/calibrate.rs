@@ -9,12 +9,12 @@ use std::sync::atomic::{AtomicBool, Ordering::Relaxed};
 use std::time::{Duration, Instant};
 
 use anyhow::{anyhow, Context};
-use dbtrail::capture::{
-    base_profile, measure_watched, MeasureError, Measured, Progress, Session, SettleRule,
-};
 use dbtrail::decode::Format;
 use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
 use dbtrail::events::Event;
+use dbtrail::procedure::{
+    base_profile, measure_watched, MeasureError, Measured, Progress, Session, SettleRule,
+};
 use dbtrail::profile::load_profile;
 use dbtrail::profile::raw::{RawAdc, RawLimits};
 use dbtrail::sim::{BenchDetector, SignalBench};
@@ -479,7 +479,7 @@ impl Desk {
                 .session
                 .points
                 .get(number.wrapping_sub(1))
-                .ok_or(dbtrail::capture::SessionError::NoPoint(number))?;
+                .ok_or(dbtrail::procedure::SessionError::NoPoint(number))?;
             Ok((number, point.level.power(self.session.ohms()).dbm()))
         });
         match point {
@@ -495,7 +495,7 @@ impl Desk {
             .points
             .get(number.wrapping_sub(1))
             .map(|p| (p.applied.clone(), p.measured.counts))
-            .ok_or(dbtrail::capture::SessionError::NoPoint(number))?;
+            .ok_or(dbtrail::procedure::SessionError::NoPoint(number))?;
         self.session.redo(number, measured)?;
         Ok(format!(
             "replaced point {number} (was {:.2} counts, now {:.2}) at {}\n{}",

@@ -9,8 +9,8 @@ use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use anyhow::Result;
-use dbtrail::capture::{MeasureError, Measured, Progress};
 use dbtrail::printable::wrap_words;
+use dbtrail::procedure::{MeasureError, Measured, Progress};
 use ratatui::crossterm::event::{
     self as term_event, Event as TermEvent, KeyCode, KeyEvent, KeyEventKind, KeyModifiers,
 };
@@ -342,8 +342,8 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dbtrail::capture::{base_profile, Session, SettleRule};
     use dbtrail::detector::ModelKind;
+    use dbtrail::procedure::{base_profile, Session, SettleRule};
     use dbtrail::profile::raw::RawAdc;
     use dbtrail::stats::Averaging;
     use ratatui::backend::TestBackend;
@@ -419,7 +419,7 @@ mod tests {
     #[test]
     fn a_long_warning_wraps_instead_of_being_cut() {
         let mut desk = desk();
-        let at = |counts| dbtrail::capture::Measured {
+        let at = |counts| dbtrail::procedure::Measured {
             counts,
             std_counts: 0.5,
             samples: 100,

@@ -1,4 +1,4 @@
-//! Calibration capture: the bench procedure that turns applied levels into a profile. It
+//! The calibration procedure at the bench that turns applied levels into a profile. It
 //! owns the settle test (a moving window whose spread and slope must both be small), the
 //! averaging of a settled level, the session of measured points and frequency-correction
 //! entries, the fits and warnings shown after each point, and the profile written at the
