@@ -9,6 +9,7 @@ use std::fmt;
 use std::sync::Arc;
 
 use bitflags::bitflags;
+use rayon::prelude::*;
 
 use crate::adc::Adc;
 use crate::detector::Detector;
@@ -75,6 +76,50 @@ impl Flags {
     /// The names joined by `|`, as in a CSV cell; empty when no flag is set.
     pub fn joined(self) -> String {
         self.names().join("|")
+    }
+}
+
+/// How one reading counts in interval statistics.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Counted {
+    Value(f64),
+    AtLeast(f64),
+    AtMost(f64),
+    /// No level at all (over the ADC's full scale, NaN): left out.
+    Nothing,
+}
+
+impl Counted {
+    /// A reading's part in the mean: below span at its level (the span's bottom), clipped
+    /// or above span at its level but no higher than the span's top `span_top_dbm`.
+    pub(crate) fn of(flags: Flags, dbm: f64, span_top_dbm: f64) -> Counted {
+        if flags.contains(Flags::OVER_FULL_SCALE) || dbm.is_nan() {
+            Counted::Nothing
+        } else if flags.contains(Flags::BELOW_SPAN) {
+            Counted::AtMost(dbm)
+        } else if flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
+            Counted::AtLeast(dbm.min(span_top_dbm))
+        } else {
+            Counted::Value(dbm)
+        }
+    }
+
+    /// The level counted; NaN for none, which leaves extremes as they are (see `widen`).
+    pub(crate) fn dbm(self) -> f64 {
+        match self {
+            Counted::Value(dbm) | Counted::AtLeast(dbm) | Counted::AtMost(dbm) => dbm,
+            Counted::Nothing => f64::NAN,
+        }
+    }
+
+    /// Its kind as a table entry's tally (see `CodeEntry::tally`).
+    pub(crate) fn tally(self) -> u32 {
+        match self {
+            Counted::Value(_) => TALLY_VALUE,
+            Counted::AtLeast(_) => TALLY_AT_LEAST,
+            Counted::AtMost(_) => TALLY_AT_MOST,
+            Counted::Nothing => 0,
+        }
     }
 }
 
@@ -313,34 +358,16 @@ impl Calibration {
             return Vec::new();
         }
         // Each code is independent and a diode model's inverse takes microseconds: shared
-        // out over the cores, a 12-bit table is ready before the first samples arrive.
-        let threads = std::thread::available_parallelism().map_or(1, |n| n.get().min(8)) as u32;
-        let per_thread = codes.div_ceil(threads);
-        std::thread::scope(|scope| {
-            let parts: Vec<_> = (0..threads)
-                .map(|t| {
-                    let first = t * per_thread;
-                    let last = (first + per_thread).min(codes);
-                    scope.spawn(move || {
-                        (first..last)
-                            .map(|code| self.exact_entry(code))
-                            .collect::<Vec<_>>()
-                    })
-                })
-                .collect();
-            parts
-                .into_iter()
-                .flat_map(|part| {
-                    part.join()
-                        .expect("a table part computes without panicking")
-                })
-                .collect()
-        })
+        // out over the thread pool, a 12-bit table is ready before the first samples arrive.
+        (0..codes)
+            .into_par_iter()
+            .map(|code| self.exact_entry(code))
+            .collect()
     }
 
     fn exact_entry(&self, code: u32) -> CodeEntry {
         let r = self.reading(f64::from(code));
-        let counted = crate::stats::Counted::of(r.flags, r.dbm, self.span_dbm().1);
+        let counted = Counted::of(r.flags, r.dbm, self.span_dbm().1);
         let counted_dbm = counted.dbm();
         CodeEntry {
             dbm: r.dbm,

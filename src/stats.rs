@@ -9,10 +9,7 @@
 
 use std::collections::VecDeque;
 
-use crate::calibration::{
-    untally, Calibration, CodeEntry, Flags, Reading, NOT_A_VALUE, TALLY_AT_LEAST, TALLY_AT_MOST,
-    TALLY_VALUE,
-};
+use crate::calibration::{untally, Calibration, CodeEntry, Counted, Flags, Reading, NOT_A_VALUE};
 use crate::uncertainty::Noise;
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
@@ -56,50 +53,6 @@ impl Bound {
             (Bound::Exact, b) | (b, Bound::Exact) => b,
             (a, b) if a == b => a,
             _ => Bound::Unknown,
-        }
-    }
-}
-
-/// How one reading counts in interval statistics.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) enum Counted {
-    Value(f64),
-    AtLeast(f64),
-    AtMost(f64),
-    /// No level at all (over the ADC's full scale, NaN): left out.
-    Nothing,
-}
-
-impl Counted {
-    /// A reading's part in the mean: below span at its level (the span's bottom), clipped
-    /// or above span at its level but no higher than the span's top `span_top_dbm`.
-    pub(crate) fn of(flags: Flags, dbm: f64, span_top_dbm: f64) -> Counted {
-        if flags.contains(Flags::OVER_FULL_SCALE) || dbm.is_nan() {
-            Counted::Nothing
-        } else if flags.contains(Flags::BELOW_SPAN) {
-            Counted::AtMost(dbm)
-        } else if flags.intersects(Flags::ADC_CLIP | Flags::ABOVE_SPAN) {
-            Counted::AtLeast(dbm.min(span_top_dbm))
-        } else {
-            Counted::Value(dbm)
-        }
-    }
-
-    /// The level counted; NaN for none, which leaves extremes as they are (see `widen`).
-    pub(crate) fn dbm(self) -> f64 {
-        match self {
-            Counted::Value(dbm) | Counted::AtLeast(dbm) | Counted::AtMost(dbm) => dbm,
-            Counted::Nothing => f64::NAN,
-        }
-    }
-
-    /// Its kind as a table entry's tally (see `CodeEntry::tally`).
-    pub(crate) fn tally(self) -> u32 {
-        match self {
-            Counted::Value(_) => TALLY_VALUE,
-            Counted::AtLeast(_) => TALLY_AT_LEAST,
-            Counted::AtMost(_) => TALLY_AT_MOST,
-            Counted::Nothing => 0,
         }
     }
 }

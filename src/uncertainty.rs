@@ -2,7 +2,7 @@
 //! uncertainties of independent terms in dB, combined by root sum of squares and expanded
 //! with a coverage factor k = 2 (about 95 %).
 //!
-//! [`Inputs`] holds what cannot be measured here (the calibration source's uncertainty,
+//! [`UncertaintyInputs`] holds what cannot be measured here (the calibration source's uncertainty,
 //! reflection coefficients, the offset's uncertainty), read from the profile's optional
 //! `[uncertainty]` table; [`Uncertainty`] is a profile made ready at one frequency, and
 //! [`Uncertainty::budget`] gives the terms at one level. A term whose input is missing is
@@ -10,7 +10,7 @@
 
 use crate::calibration::Calibration;
 use crate::correction::FreqTable;
-use crate::profile::Profile;
+use crate::profile::{Profile, UncertaintyInputs};
 
 /// What no budget includes yet, besides the temperature term (docs/calibration.md, "What
 /// is not in the budget yet"): named wherever a budget says what it leaves out.
@@ -19,28 +19,6 @@ pub const NOT_MODELLED: &str = "the correction rows' own uncertainty, the ADC's 
 
 /// The coverage factor of every expanded uncertainty dbtrail prints (about 95 %).
 pub const COVERAGE_K: f64 = 2.0;
-
-/// The profile's `[uncertainty]` inputs, every one optional. Standard uncertainties are
-/// held at k = 1 whatever the profile wrote them as; reflections as |Γ| against frequency
-/// (a table of (Hz, |Γ|) rows, interpolated as the correction tables are).
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct Inputs {
-    /// Standard uncertainty of the calibration source's level, dB.
-    pub source_u_db: Option<f64>,
-    /// |Γ| of the calibration source's output.
-    pub source_gamma: Option<FreqTable>,
-    /// |Γ| of the detector's input.
-    pub detector_gamma: Option<FreqTable>,
-    /// Standard uncertainty of the offset (attenuator or coupler), dB.
-    pub offset_u_db: Option<f64>,
-    /// |Γ| at the input of what sits in front of the detector, when known.
-    pub front_gamma: Option<FreqTable>,
-    /// True when what sits in front is an attenuator, so the detector's reflection seen
-    /// through it improves by twice its loss in return loss.
-    pub front_is_attenuator: bool,
-    /// |Γ| of the device under test's output.
-    pub dut_gamma: Option<FreqTable>,
-}
 
 /// One line of a budget.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
@@ -310,7 +288,7 @@ impl From<Option<f64>> for Known {
 /// the pad's own input reflection when given (the two added, as when their phases line
 /// up); in front of anything else, that thing's own input reflection; with nothing in
 /// front (no offset), the detector's.
-fn load_gamma(inputs: &Inputs, hz: f64, offset_db: f64) -> Option<f64> {
+fn load_gamma(inputs: &UncertaintyInputs, hz: f64, offset_db: f64) -> Option<f64> {
     let at = |table: &Option<FreqTable>| table.as_ref().map(|t| t.at(hz).db);
     let detector = at(&inputs.detector_gamma);
     let front = at(&inputs.front_gamma);

@@ -6,8 +6,8 @@ use dbtrail::calibration::Calibration;
 use dbtrail::correction::FreqTable;
 use dbtrail::profile::{parse_profile, Profile};
 use dbtrail::uncertainty::{
-    gamma_through_pad, mismatch_limits_db, mismatch_u_db, Budget, Inputs, Noise, TermKind,
-    Uncertainty, COVERAGE_K,
+    gamma_through_pad, mismatch_limits_db, mismatch_u_db, Budget, Noise, TermKind, Uncertainty,
+    COVERAGE_K,
 };
 
 /// |Γ| for an SWR (common practice; Pozar, Microwave Engineering, from memory).
@@ -102,7 +102,7 @@ fn budget_of(profile: &Profile, freq_hz: f64, dbm: f64, noise: Option<Noise>) ->
 #[test]
 fn every_term_follows_its_formula_and_the_gum_combines_them() {
     let mut profile = log_profile(10.0);
-    profile.uncertainty = Inputs {
+    profile.uncertainty = dbtrail::profile::UncertaintyInputs {
         source_u_db: Some(0.05),
         source_gamma: table(0.2),
         detector_gamma: table(0.05),

@@ -15,7 +15,7 @@ use std::sync::Arc;
 use thiserror::Error;
 
 use crate::adc::Adc;
-use crate::correction::{FrequencyCorrection, Offset};
+use crate::correction::{FreqTable, FrequencyCorrection, Offset};
 use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind, PointU};
 use crate::units::Level;
 use locate::{line_col, Located};
@@ -179,9 +179,31 @@ pub struct Profile {
     /// Safe levels.
     pub limits: Limits,
     /// The inputs of the uncertainty budget (the `[uncertainty]` table).
-    pub uncertainty: crate::uncertainty::Inputs,
+    pub uncertainty: UncertaintyInputs,
     /// The fields as written.
     pub raw: RawProfile,
+}
+
+/// The profile's `[uncertainty]` inputs, every one optional. Standard uncertainties are
+/// held at k = 1 whatever the profile wrote them as; reflections as |Γ| against frequency
+/// (a table of (Hz, |Γ|) rows, interpolated as the correction tables are).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct UncertaintyInputs {
+    /// Standard uncertainty of the calibration source's level, dB.
+    pub source_u_db: Option<f64>,
+    /// |Γ| of the calibration source's output.
+    pub source_gamma: Option<FreqTable>,
+    /// |Γ| of the detector's input.
+    pub detector_gamma: Option<FreqTable>,
+    /// Standard uncertainty of the offset (attenuator or coupler), dB.
+    pub offset_u_db: Option<f64>,
+    /// |Γ| at the input of what sits in front of the detector, when known.
+    pub front_gamma: Option<FreqTable>,
+    /// True when what sits in front is an attenuator, so the detector's reflection seen
+    /// through it improves by twice its loss in return loss.
+    pub front_is_attenuator: bool,
+    /// |Γ| of the device under test's output.
+    pub dut_gamma: Option<FreqTable>,
 }
 
 impl Profile {

@@ -8,7 +8,9 @@ use super::raw::{
     FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawMatch, RawModel, RawProfile,
     RawReturnLossRow, RawSpread, RawSwrRow, RawUncertainty,
 };
-use super::{too_many_points, Limits, Model, Profile, ProfilePoint, MAX_PROFILE_POINTS};
+use super::{
+    too_many_points, Limits, Model, Profile, ProfilePoint, UncertaintyInputs, MAX_PROFILE_POINTS,
+};
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{CorrectionKind, FreqTable, FrequencyCorrection, Offset, TableError};
 use crate::detector::diode::{N_BOUNDS, VL_BOUNDS};
@@ -16,7 +18,6 @@ use crate::detector::{
     ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
     ModelKind, PointU, TableDetector, MAX_FIT_RMS_DB,
 };
-use crate::uncertainty::Inputs;
 use crate::units::{parse_level, DEFAULT_OHMS};
 
 type Found = Vec<(FieldPath, String)>;
@@ -310,7 +311,7 @@ fn check_frequency_correction(
 /// describes no bench.
 const MATCH_DB_MAX: f64 = 200.0;
 
-fn check_uncertainty(check: &mut Checker, raw: &RawUncertainty) -> Inputs {
+fn check_uncertainty(check: &mut Checker, raw: &RawUncertainty) -> UncertaintyInputs {
     let path = FieldPath::key("uncertainty");
     let mut spread = |field: &str, value: &Option<RawSpread>| {
         value
@@ -323,7 +324,7 @@ fn check_uncertainty(check: &mut Checker, raw: &RawUncertainty) -> Inputs {
         |part: &str, swr: &Option<RawMatch<RawSwrRow>>, rl: &Option<RawMatch<RawReturnLossRow>>| {
             reflection(check, &path, part, swr.as_ref(), rl.as_ref())
         };
-    Inputs {
+    UncertaintyInputs {
         source_u_db,
         offset_u_db,
         source_gamma: gamma("source", &raw.source_swr, &raw.source_return_loss),
@@ -868,7 +869,7 @@ mod tests {
                         { applied = \"-20dBm\", counts = 100 },\n\
                         { applied = \"0dBm\", counts = 1500 },\n]\n";
 
-    fn inputs(table: &str) -> crate::uncertainty::Inputs {
+    fn inputs(table: &str) -> super::UncertaintyInputs {
         let text = format!("{BASE}[uncertainty]\n{table}");
         parse_profile(&text, "u.toml")
             .unwrap_or_else(|e| panic!("{e}"))
@@ -935,7 +936,7 @@ mod tests {
     #[test]
     fn a_profile_without_the_table_has_no_inputs() {
         let profile = parse_profile(BASE, "u.toml").unwrap();
-        assert_eq!(profile.uncertainty, crate::uncertainty::Inputs::default());
+        assert_eq!(profile.uncertainty, super::UncertaintyInputs::default());
     }
 
     // Source: the rule that `calibrate --base` and `fit` write what `check` reads: the demo
