@@ -306,13 +306,7 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
         Constraint::Length(1),
     ])
     .areas(area);
-    let title_text = format!(
-        " dbtrail calibrate · {} · {} points · {} frequency entries · saving model {}",
-        desk.source,
-        desk.session.points.len(),
-        desk.session.freq_entries.len(),
-        desk.session.model
-    );
+    let title_text = format!(" {}", title_line(desk, usize::from(area.width)));
     frame.render_widget(
         Paragraph::new(title_text).style(Style::new().add_modifier(Modifier::REVERSED)),
         title,
@@ -337,6 +331,22 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
         Paragraph::new(prompt).style(Style::new().add_modifier(Modifier::BOLD)),
         input,
     );
+}
+
+/// The title's facts, those that fit in `width` whole: the source first to go, the
+/// model (already in the table) next, the counts last.
+fn title_line(desk: &Desk, width: usize) -> String {
+    let points = format!("{} points", desk.session.points.len());
+    let entries = format!("{} frequency entries", desk.session.freq_entries.len());
+    let model = format!("saving model {}", desk.session.model);
+    let fields = [
+        (9, "dbtrail calibrate"),
+        (1, desk.source.as_str()),
+        (8, points.as_str()),
+        (7, entries.as_str()),
+        (3, model.as_str()),
+    ];
+    dbtrail::printable::fit_fields(&fields, " · ", width.saturating_sub(1))
 }
 
 #[cfg(test)]
@@ -436,6 +446,28 @@ mod tests {
                 "{width}×{height}:\n{}",
                 screen.join("\n")
             );
+        }
+    }
+
+    /// The calibrate screen exactly, at both sizes: on opening (the help) and with three
+    /// points in the table; a change shows as a difference to review (see the live
+    /// screen's snapshots in src/tui/tests.rs).
+    #[test]
+    fn the_calibrate_screen_at_80_by_24_and_100_by_30() {
+        let mut with_points = desk();
+        for (level, counts) in [("-20dBm", 500.0), ("-10dBm", 1250.0), ("0dBm", 2000.0)] {
+            let measured = dbtrail::procedure::Measured {
+                counts,
+                std_counts: 0.5,
+                samples: 100,
+            };
+            with_points.session.add(level, measured).unwrap();
+        }
+        for (width, height) in [(80, 24), (100, 30)] {
+            let opening = rows(&desk(), &typing(HELP), width, height).join("\n");
+            insta::assert_snapshot!(format!("calibrate-opening-{width}x{height}"), opening);
+            let table = rows(&with_points, &typing(""), width, height).join("\n");
+            insta::assert_snapshot!(format!("calibrate-points-{width}x{height}"), table);
         }
     }
 

@@ -1312,3 +1312,61 @@ fn hold_marks_and_the_warning_mark_differ() {
         assert!(!banner_marks.contains(&mark), "{mark} on both: {lines:#?}");
     }
 }
+
+/// The whole screen as text, one row a line, for a snapshot.
+fn snapshot_text(app: &App, width: u16, height: u16) -> String {
+    screen(app, width, height).join("\n")
+}
+
+/// Each view of the screen, exactly, at the two sizes it is laid out for: the reading,
+/// the help, a refused answer at a prompt, the question `q` asks while logging, the end
+/// of a replay, a lost source and the warnings of an overload. A change to any of them
+/// shows as a difference to review (`cargo insta review`, or delete the file under
+/// src/tui/snapshots/ and run the test again to write it anew).
+#[test]
+fn every_view_of_the_screen_at_80_by_24_and_100_by_30() {
+    type Setup = fn(&mut App);
+    let views: [(&str, Setup); 7] = [
+        ("reading", |app| {
+            sample(app, 0.0, 1500);
+        }),
+        ("help", |app| {
+            sample(app, 0.0, 1500);
+            keys(app, "?");
+        }),
+        ("refused", |app| {
+            sample(app, 0.0, 1500);
+            keys(app, "f435\n");
+        }),
+        ("quit-while-logging", |app| {
+            sample(app, 0.0, 1500);
+            with_log_open(app, 12);
+            keys(app, "q");
+        }),
+        ("ended", |app| {
+            sample(app, 0.0, 1500);
+            app.update(AppEvent::SourceEnded);
+        }),
+        ("disconnected", |app| {
+            sample(app, 0.0, 1500);
+            let link = LinkSnapshot {
+                connected: false,
+                reconnects: 1,
+                ..LinkSnapshot::default()
+            };
+            app.update(AppEvent::Link(link));
+            app.update(AppEvent::Tick { now: 0.5 });
+        }),
+        ("warnings", many_warnings),
+    ];
+    for (name, setup) in views {
+        for (width, height) in [(80, 24), (100, 30)] {
+            let mut app = app();
+            setup(&mut app);
+            insta::assert_snapshot!(
+                format!("{name}-{width}x{height}"),
+                snapshot_text(&app, width, height)
+            );
+        }
+    }
+}
