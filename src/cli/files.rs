@@ -5,10 +5,92 @@ use std::fs::{File, OpenOptions};
 use std::io;
 use std::os::unix::fs::MetadataExt;
 use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
 
 use anyhow::{anyhow, Context};
 
+use dbtrail::record::Recorder;
+
 use super::{BadInput, Failure, Runtime};
+
+/// How often a log's rows are forced to disk.
+const SYNC_EVERY: Duration = Duration::from_secs(2);
+/// How far behind the clock a live source's intervals are closed, so that samples still
+/// in the ring land in their own interval.
+pub const LIVE_GRACE_S: f64 = 0.1;
+
+/// Where a log's rows go, and how to make them durable.
+pub trait Durable: io::Write {
+    /// Forces what was written to the disk, where the target can be.
+    fn make_durable(&self) -> io::Result<()>;
+}
+
+impl Durable for LogFile {
+    fn make_durable(&self) -> io::Result<()> {
+        self.sync_and_check()
+    }
+}
+
+impl Durable for File {
+    fn make_durable(&self) -> io::Result<()> {
+        sync(self)
+    }
+}
+
+impl Durable for io::Stdout {
+    fn make_durable(&self) -> io::Result<()> {
+        Ok(())
+    }
+}
+
+impl<D: Durable + ?Sized> Durable for Box<D> {
+    fn make_durable(&self) -> io::Result<()> {
+        (**self).make_durable()
+    }
+}
+
+/// The rules every log is written by, `record`'s and the screen's alike: after each batch
+/// of events a live source's intervals are closed [`LIVE_GRACE_S`] behind its clock and
+/// the rows flushed; they are made durable every [`SYNC_EVERY`] while rows are added, and
+/// at the end.
+pub struct LogKeeper {
+    synced: Instant,
+    synced_rows: u64,
+}
+
+impl LogKeeper {
+    /// A keeper for a log just opened.
+    pub fn new() -> Self {
+        LogKeeper {
+            synced: Instant::now(),
+            synced_rows: 0,
+        }
+    }
+
+    /// After a batch of events; `live_clock` is a live source's time now.
+    pub fn after_batch<W: Durable>(
+        &mut self,
+        recorder: &mut Recorder<W>,
+        live_clock: Option<f64>,
+    ) -> io::Result<()> {
+        if let Some(now) = live_clock {
+            recorder.advance(now - LIVE_GRACE_S)?;
+        }
+        recorder.flush()?;
+        if recorder.rows() != self.synced_rows && self.synced.elapsed() >= SYNC_EVERY {
+            recorder.get_ref().make_durable()?;
+            self.synced_rows = recorder.rows();
+            self.synced = Instant::now();
+        }
+        Ok(())
+    }
+
+    /// Ends the log at `end_t` (its last, partial interval written) and makes it durable.
+    pub fn finish<W: Durable>(recorder: &mut Recorder<W>, end_t: f64) -> io::Result<()> {
+        recorder.finish(end_t)?;
+        recorder.get_ref().make_durable()
+    }
+}
 
 /// Forces written data to the disk. A target that cannot be synced (a pipe, a FIFO, a
 /// terminal, /dev/null) refuses with EINVAL or ENOTSUP: there is nothing to make durable,

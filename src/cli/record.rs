@@ -15,7 +15,7 @@ use dbtrail::resume::LogShape;
 use dbtrail::uncertainty::Uncertainty;
 use sha2::{Digest, Sha256};
 
-use super::files::{LogFile, LogTampered};
+use super::files::{Durable, LogFile, LogKeeper, LogTampered};
 use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
 use crate::source::Running;
@@ -45,30 +45,8 @@ pub struct Args {
     force: bool,
 }
 
-/// Where rows go, and how to make them durable.
-trait Durable: Write {
-    fn make_durable(&self) -> io::Result<()>;
-}
-
-impl Durable for LogFile {
-    fn make_durable(&self) -> io::Result<()> {
-        self.sync_and_check()
-    }
-}
-
-impl Durable for io::Stdout {
-    fn make_durable(&self) -> io::Result<()> {
-        Ok(())
-    }
-}
-
 /// Events taken from the ring between flushes.
 const BATCH: usize = 1 << 16;
-/// How often rows written are forced to disk.
-const SYNC_EVERY: Duration = Duration::from_secs(2);
-/// How far behind the clock a live source's intervals are closed, so samples still in the
-/// ring land in their own interval.
-const LIVE_GRACE_S: f64 = 0.1;
 
 pub fn run(args: Args) -> Result<(), Failure> {
     check_interval(args.every, &args.source, args.link.rate)?;
@@ -146,9 +124,8 @@ fn pump(
     rows_on_terminal: bool,
 ) -> io::Result<()> {
     let mut status = Status::new(rows_on_terminal, until);
-    let mut last_sync = Instant::now();
+    let mut keeper = LogKeeper::new();
     let mut last_t: Option<f64> = None;
-    let mut synced_rows = 0;
     let mut take =
         |event: Event, recorder: &mut Recorder<Box<dyn Durable>>, status: &mut Status| {
             take_event(event, until, recorder, status, &mut last_t)
@@ -163,19 +140,11 @@ fn pump(
                 break;
             }
         }
-        if source.live {
-            let now = source.now();
-            if until.is_some_and(|end| now >= end) {
-                reached = until;
-            }
-            recorder.advance(now - LIVE_GRACE_S)?;
+        let live_clock = source.live.then(|| source.now());
+        if live_clock.is_some_and(|now| until.is_some_and(|end| now >= end)) {
+            reached = until;
         }
-        recorder.flush()?;
-        if recorder.rows() != synced_rows && last_sync.elapsed() >= SYNC_EVERY {
-            recorder.get_ref().make_durable()?;
-            synced_rows = recorder.rows();
-            last_sync = Instant::now();
-        }
+        keeper.after_batch(recorder, live_clock)?;
         status.show(source, recorder.rows());
         if let Some(end) = reached {
             break end;
@@ -202,8 +171,7 @@ fn pump(
             std::thread::sleep(Duration::from_micros(200));
         }
     };
-    recorder.finish(end_t)?;
-    recorder.get_ref().make_durable()
+    LogKeeper::finish(recorder, end_t)
 }
 
 /// Hands one event to the recorder, cut at the end of the duration; the end when the

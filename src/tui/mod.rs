@@ -16,7 +16,7 @@ use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
-use std::time::{Duration, Instant, SystemTime};
+use std::time::{Duration, SystemTime};
 
 use anyhow::{Context, Result};
 use ratatui::crossterm::event::{self as term_event, Event as TermEvent};
@@ -27,13 +27,12 @@ use dbtrail::events::Event;
 use dbtrail::record::{Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
+use crate::cli::files::LogKeeper;
 use crate::source::Running;
 use app::{App, AppEvent, Command};
 
 /// Frames per second the screen redraws at, never faster.
 pub const FRAMES_PER_SECOND: u64 = 25;
-/// How often a log is forced to disk.
-const LOG_SYNC_EVERY: Duration = Duration::from_secs(2);
 
 /// What the screen needs besides the app itself.
 pub struct ScreenSetup {
@@ -79,11 +78,11 @@ fn test_panic_frame() -> Option<u64> {
     std::env::var(TEST_PANIC_VAR).ok()?.parse().ok()
 }
 
-/// An open log and when it was last made durable.
+/// An open log and its keeper.
 struct Log {
     recorder: Recorder<File>,
     path: PathBuf,
-    synced: Instant,
+    keeper: LogKeeper,
 }
 
 async fn event_loop(
@@ -159,15 +158,8 @@ fn log_batch(log: &mut Log, batch: &[Event], source: &Running) -> io::Result<()>
     for event in batch {
         log.recorder.handle(event)?;
     }
-    if source.live {
-        log.recorder.advance(source.now() - 0.1)?;
-    }
-    log.recorder.flush()?;
-    if log.synced.elapsed() >= LOG_SYNC_EVERY {
-        crate::cli::files::sync(log.recorder.get_ref())?;
-        log.synced = Instant::now();
-    }
-    Ok(())
+    let live_clock = source.live.then(|| source.now());
+    log.keeper.after_batch(&mut log.recorder, live_clock)
 }
 
 /// Carries out commands; true when the screen should close.
@@ -187,8 +179,7 @@ fn carry_out(
             Command::StartLog(path) => start_log(app, log, setup, &path, IfExists::Refuse),
             Command::StopLog => {
                 if let Some(mut open) = log.take() {
-                    let _ = open.recorder.finish(setup.source.now());
-                    let _ = open.recorder.get_ref().sync_data();
+                    let _ = LogKeeper::finish(&mut open.recorder, setup.source.now());
                     app.notice = Some(format!(
                         "log {} closed, {} rows",
                         open.path.display(),
@@ -252,7 +243,7 @@ fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) ->
     Ok(Log {
         recorder,
         path: path.to_path_buf(),
-        synced: Instant::now(),
+        keeper: LogKeeper::new(),
     })
 }
 
