@@ -635,3 +635,132 @@ mod tests {
         assert_eq!(stats.comments, 1);
     }
 }
+
+/// Each word-at-a-time helper against the plain reading of the same bytes through
+/// `str::parse`, over random lines (proptest, its fixed default seed per case).
+#[cfg(test)]
+mod helper_props {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// The plain reading: `digits` then LF or CRLF at the start of `b`, as (value, bytes
+    /// used), when the digits number from 1 to `most`.
+    fn plain(b: &[u8], most: usize) -> Option<(u32, usize)> {
+        let digits = b.iter().take_while(|c| c.is_ascii_digit()).count();
+        if digits == 0 || digits > most {
+            return None;
+        }
+        let end = match (b.get(digits), b.get(digits + 1)) {
+            (Some(b'\n'), _) => 1,
+            (Some(b'\r'), Some(b'\n')) => 2,
+            _ => return None,
+        };
+        let text = std::str::from_utf8(&b[..digits]).ok()?;
+        Some((text.parse().ok()?, digits + end))
+    }
+
+    /// Bytes that are mostly digits and line ends, with now and then anything else.
+    fn bytes_like_lines(len: std::ops::Range<usize>) -> impl Strategy<Value = Vec<u8>> {
+        let byte = prop_oneof![
+            8 => b'0'..=b'9',
+            2 => Just(b'\n'),
+            1 => Just(b'\r'),
+            1 => any::<u8>(),
+        ];
+        proptest::collection::vec(byte, len)
+    }
+
+    /// A digit string of 1 to `most` digits.
+    fn digit_string(most: usize) -> impl Strategy<Value = String> {
+        proptest::collection::vec(b'0'..=b'9', 1..=most)
+            .prop_map(|d| String::from_utf8(d).unwrap_or_default())
+    }
+
+    /// `text`'s digits one a byte, the first lowest, at the top of a word of `width`.
+    fn digit_bytes(text: &str, width: usize) -> u64 {
+        text.bytes().enumerate().fold(0u64, |word, (i, c)| {
+            word | u64::from(c - b'0') << (8 * (width - text.len() + i))
+        })
+    }
+
+    proptest! {
+        // Source: `str::parse` (the standard library) as the reference reading.
+        #[test]
+        fn swar_line_reads_what_parse_reads(b in bytes_like_lines(8..24)) {
+            let want = plain(&b, 7);
+            prop_assert_eq!(swar_line(&b, 0), want);
+        }
+
+        #[test]
+        fn short_line_reads_what_parse_reads(b in bytes_like_lines(0..16)) {
+            prop_assert_eq!(short_line(&b, 0), plain(&b, 9));
+        }
+
+        #[test]
+        fn the_digit_summers_agree_with_parse(text in digit_string(8)) {
+            let want: u32 = text.parse().unwrap_or(0);
+            prop_assert_eq!(sum_digits(digit_bytes(&text, 8)), want);
+            if text.len() <= 4 {
+                let four = digit_bytes(&text, 4) as u32;
+                prop_assert_eq!(sum_four_digits(four), want);
+                let both = sum_two_four_digits(u64::from(four) << 32 | u64::from(four));
+                prop_assert_eq!(both, u64::from(want) << 32 | u64::from(want));
+            }
+        }
+
+        // Source: the definition in `BlockMasks`' doc: byte p of a block of lines of
+        // `digits` digits and `ending` is a digit byte when p mod len < digits, else the
+        // ending's byte p mod len − digits.
+        #[test]
+        fn block_masks_mark_each_byte_of_the_block(digits in 1usize..=6, crlf in any::<bool>()) {
+            let ending: &[u8] = if crlf { b"\r\n" } else { b"\n" };
+            let len = digits + ending.len();
+            prop_assume!(len <= 8);
+            let masks = BlockMasks::of(digits, ending);
+            for p in 0..BLOCK_LINES * len {
+                let (word, byte) = (p / 8, 8 * (p % 8));
+                let digit = (masks.digits[word] >> byte) & 0xFF == 0xFF;
+                let end = (masks.ends[word] >> byte) & 0xFF == 0xFF;
+                prop_assert_eq!(digit, p % len < digits);
+                prop_assert_eq!(end, p % len >= digits);
+                if end {
+                    let held = ((masks.end_bytes[word] >> byte) & 0xFF) as u8;
+                    prop_assert_eq!(held, ending[p % len - digits]);
+                }
+            }
+        }
+
+        // Source: `plain` above, line by line: a block fits the shape exactly when each of
+        // its lines is that many digits and that line end.
+        #[test]
+        fn block_fits_exactly_when_every_line_has_the_shape(
+            digits in 1usize..=6,
+            crlf in any::<bool>(),
+            noise in proptest::collection::vec((0usize..64, any::<u8>()), 0..3),
+            seed_digits in proptest::collection::vec(b'0'..=b'9', 64),
+        ) {
+            let ending: &[u8] = if crlf { b"\r\n" } else { b"\n" };
+            let len = digits + ending.len();
+            prop_assume!(len <= 8);
+            let mut line = seed_digits[..digits].to_vec();
+            line.extend_from_slice(ending);
+            let shape = LineShape::of(&line).unwrap();
+            let mut block: Vec<u8> = (0..BLOCK_LINES)
+                .flat_map(|i| {
+                    let mut l = seed_digits[i..i + digits].to_vec();
+                    l.extend_from_slice(ending);
+                    l
+                })
+                .collect();
+            for (at, byte) in noise {
+                let at = at % block.len();
+                block[at] = byte;
+            }
+            let every_line_fits = block
+                .chunks(len)
+                .all(|l| plain(l, digits).is_some_and(|(_, used)| used == len)
+                    && l[..digits].iter().all(u8::is_ascii_digit));
+            prop_assert_eq!(shape.block_fits(&block), every_line_fits);
+        }
+    }
+}
