@@ -9,7 +9,6 @@ use std::fmt;
 use std::sync::Arc;
 
 use bitflags::bitflags;
-use rayon::prelude::*;
 
 use crate::adc::Adc;
 use crate::detector::Detector;
@@ -358,11 +357,31 @@ impl Calibration {
             return Vec::new();
         }
         // Each code is independent and a diode model's inverse takes microseconds: shared
-        // out over the thread pool, a 12-bit table is ready before the first samples arrive.
-        (0..codes)
-            .into_par_iter()
-            .map(|code| self.exact_entry(code))
-            .collect()
+        // out over the cores, a 12-bit table is ready before the first samples arrive. On
+        // threads of its own, not the thread pool's: a replay's reader may sit in the pool
+        // blocked on a silent FIFO while the table is built, and the table would wait.
+        let threads = std::thread::available_parallelism().map_or(1, |n| n.get().min(8)) as u32;
+        let per_thread = codes.div_ceil(threads);
+        std::thread::scope(|scope| {
+            let parts: Vec<_> = (0..threads)
+                .map(|t| {
+                    let first = t * per_thread;
+                    let last = (first + per_thread).min(codes);
+                    scope.spawn(move || {
+                        (first..last)
+                            .map(|code| self.exact_entry(code))
+                            .collect::<Vec<_>>()
+                    })
+                })
+                .collect();
+            parts
+                .into_iter()
+                .flat_map(|part| {
+                    part.join()
+                        .expect("a table part computes without panicking")
+                })
+                .collect()
+        })
     }
 
     fn exact_entry(&self, code: u32) -> CodeEntry {
