@@ -1,11 +1,17 @@
 //! Runs tests/tui_smoke.sh (the live screen in tmux: a reading and its ±, the quit key,
-//! the terminal restored) when tmux is installed; .ci/run installs it.
+//! the terminal restored). Without tmux it skips on a developer's machine, and fails in
+//! CI (CI=true), where .ci/run installs tmux: a missing tool must not pass unseen.
 
 use std::process::Command;
 
 #[test]
 fn watch_in_tmux_shows_a_reading_with_its_uncertainty_quits_and_restores_the_terminal() {
     if Command::new("tmux").arg("-V").output().is_err() {
+        assert!(
+            std::env::var("CI").as_deref() != Ok("true"),
+            "tmux is not installed, and in CI the live-screen smoke test may not skip: \
+             install tmux (.ci/run does, with apt-get)"
+        );
         eprintln!("tmux is not installed: skipping the live-screen smoke test");
         return;
     }
