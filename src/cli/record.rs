@@ -4,7 +4,6 @@
 use std::io::{self, IsTerminal, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
 use std::time::{Duration, Instant, SystemTime};
 
 use anyhow::{anyhow, Context};
@@ -61,7 +60,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     // Opened once the source and the profile are known good, so a bad one leaves no
     // empty file behind.
     let (out, earlier) = open_output(&args.out, args.append, args.force)?;
-    let stop = install_signal_flag().runtime()?;
+    let stop = super::signals::stop_flag().runtime()?;
     if args.source.demo.is_some() && args.link.fast && until.is_none() {
         super::say_err!(
             "dbtrail: the simulator runs flat out with no --duration and writes until it is \
@@ -331,19 +330,6 @@ fn open_output(
         None
     };
     Ok((Box::new(log), earlier))
-}
-
-/// A flag that SIGINT, SIGTERM and SIGHUP set, so the loop can end cleanly.
-fn install_signal_flag() -> io::Result<Arc<AtomicBool>> {
-    let flag = Arc::new(AtomicBool::new(false));
-    for signal in [
-        signal_hook::consts::SIGINT,
-        signal_hook::consts::SIGTERM,
-        signal_hook::consts::SIGHUP,
-    ] {
-        signal_hook::flag::register(signal, Arc::clone(&flag))?;
-    }
-    Ok(flag)
 }
 
 pub fn hex_digest(bytes: &[u8]) -> String {

@@ -64,13 +64,14 @@ pub fn run(mut args: Args) -> Result<(), Failure> {
         &args.link,
         None,
     )?;
-    let mut app = App::new(
+    let color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
+    let app = App::new(
         Arc::new(loaded.profile),
         freq,
         args.reading.offset,
         short_label(&args.source, &args.link),
-    );
-    app.color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
+    )
+    .with_color(color);
     let setup = ScreenSetup {
         source,
         log: args.log.map(|path| {

@@ -1,5 +1,12 @@
 //! The live screen's state, and `update`, the one function that changes it. Nothing here
-//! touches the terminal: effects the loop must carry out come back as [`Command`]s.
+//! touches the terminal: effects the loop must carry out come back as [`Command`]s, and
+//! what became of them comes back as [`AppEvent`]s. The fields are private to this module;
+//! [`draw`] is a child of it so that it can read them, and takes `&App`, so it cannot
+//! change them.
+
+pub mod draw;
+#[cfg(test)]
+mod tests;
 
 use std::path::PathBuf;
 use std::sync::Arc;
@@ -37,6 +44,30 @@ pub enum AppEvent {
         /// Why, and what to do.
         error: String,
     },
+    /// A log was opened and takes rows from now on.
+    LogOpened(PathBuf),
+    /// The open log holds this many rows.
+    LogRows(u64),
+    /// The open log was closed, and why.
+    LogClosed {
+        /// Its file.
+        path: PathBuf,
+        /// Rows it holds.
+        rows: u64,
+        /// Why it was closed.
+        why: LogEnd,
+    },
+}
+
+/// Why a log was closed.
+#[derive(Debug, Clone, PartialEq)]
+pub enum LogEnd {
+    /// The user stopped it.
+    Stopped,
+    /// The frequency or the offset changed: a log keeps one calibration per file.
+    Recalibrated,
+    /// Writing it failed; what went wrong.
+    Failed(String),
 }
 
 /// What the loop must do after an update.
@@ -211,63 +242,63 @@ pub enum Mode {
 /// The state of the live screen.
 pub struct App {
     /// The profile in use.
-    pub profile: Arc<Profile>,
+    profile: Arc<Profile>,
     /// The calibration for the current frequency and offset.
-    pub cal: Calibration,
+    cal: Calibration,
     /// The uncertainty budget for the same frequency and offset, rebuilt with `cal`.
-    pub uncertainty: Uncertainty,
+    uncertainty: Uncertainty,
     /// Offset added to the profile's, dB.
-    pub extra_offset_db: f64,
+    extra_offset_db: f64,
     /// What the samples come from.
-    pub source: String,
+    source: String,
     /// Whether colours may be used.
-    pub color: bool,
+    color: bool,
     /// The mode.
-    pub mode: Mode,
+    mode: Mode,
     /// The unit of the main reading.
-    pub units: Units,
+    units: Units,
     /// The reference for relative readings, dBm.
-    pub reference_dbm: Option<f64>,
+    reference_dbm: Option<f64>,
     /// Which of [`TREND_WINDOWS`] is shown.
-    pub trend_window: usize,
+    trend_window: usize,
     /// The shown value held by the freeze key.
-    pub frozen: Option<Frozen>,
+    frozen: Option<Frozen>,
     /// Link counters as last reported.
-    pub link: LinkSnapshot,
+    link: LinkSnapshot,
     /// Samples per second, measured.
-    pub rate: f64,
+    rate: f64,
     /// Source time now, seconds.
-    pub now: f64,
+    now: f64,
     /// The last reading of the first channel.
-    pub last: Option<Reading>,
+    last: Option<Reading>,
     /// When the last sample arrived, source seconds.
-    pub last_sample_t: Option<f64>,
+    last_sample_t: Option<f64>,
     /// Whether the source is connected.
-    pub connected: bool,
+    connected: bool,
     /// Whether a replay has reached the end of its file.
-    pub ended: bool,
+    ended: bool,
     /// The moving average.
-    pub averager: Averager,
+    averager: Averager,
     /// Min and max hold since the reset.
-    pub holds: PowerStats,
+    holds: PowerStats,
     /// When the holds were reset, source seconds.
-    pub holds_since: f64,
+    holds_since: f64,
     /// The best shown level since the reset, dBm (the peaking aid): taken only from a
     /// full averaging window, never from the few readings of one just started.
-    pub best_dbm: Option<f64>,
+    best_dbm: Option<f64>,
     /// The single readings of the averaging window, for the noise shown beside the best.
-    pub spread: ReadingSpread,
+    spread: ReadingSpread,
     /// The raw counts of the averaging window, for the noise term of the ±.
-    pub counts: CountWindow,
+    counts: CountWindow,
     /// Flags of the warnings now up, and when each was last raised.
-    pub warnings: Vec<(Flags, f64)>,
+    warnings: Vec<(Flags, f64)>,
     /// When the link counters last showed refused input (bad or over-long lines, CRC
     /// errors), source seconds.
-    pub rejected_at: Option<f64>,
+    rejected_at: Option<f64>,
     /// Where the log goes and how many rows it has, when logging.
-    pub logging: Option<(PathBuf, u64)>,
+    logging: Option<(PathBuf, u64)>,
     /// A one-line message for the user (an error from a command, say).
-    pub notice: Option<String>,
+    notice: Option<String>,
     settle: Settle,
     trends: Vec<Trend>,
     rate_mark: (f64, u64),
@@ -347,8 +378,50 @@ impl App {
                 };
                 Vec::new()
             }
+            AppEvent::LogOpened(path) => {
+                self.notice = Some(format!("logging to {}", path.display()));
+                self.logging = Some((path, 0));
+                Vec::new()
+            }
+            AppEvent::LogRows(rows) => {
+                if let Some((_, shown)) = self.logging.as_mut() {
+                    *shown = rows;
+                }
+                Vec::new()
+            }
+            AppEvent::LogClosed { path, rows, why } => {
+                self.logging = None;
+                self.notice = Some(log_closed_notice(&path, rows, &why));
+                Vec::new()
+            }
             AppEvent::Tick { now } => self.tick(now),
         }
+    }
+
+    /// Whether colours may be used (`NO_COLOR` unset).
+    pub fn with_color(mut self, color: bool) -> Self {
+        self.color = color;
+        self
+    }
+
+    /// The profile in use.
+    pub fn profile(&self) -> &Arc<Profile> {
+        &self.profile
+    }
+
+    /// The calibration for the current frequency and offset.
+    pub fn calibration(&self) -> &Calibration {
+        &self.cal
+    }
+
+    /// The uncertainty budget that goes with [`App::calibration`].
+    pub fn uncertainty(&self) -> &Uncertainty {
+        &self.uncertainty
+    }
+
+    /// Whether a replay has reached the end of its file.
+    pub fn ended(&self) -> bool {
+        self.ended
     }
 
     /// The level the main reading shows now (or the frozen one).
@@ -718,6 +791,18 @@ impl App {
             }
             _ => self.notice = Some("no valid reading to take as the reference".into()),
         }
+    }
+}
+
+/// What the screen says when a log closes.
+fn log_closed_notice(path: &std::path::Path, rows: u64, why: &LogEnd) -> String {
+    let name = path.display();
+    match why {
+        LogEnd::Stopped => format!("log {name} closed, {rows} rows"),
+        LogEnd::Recalibrated => {
+            format!("frequency or offset changed: log {name} closed; press l to start a new one")
+        }
+        LogEnd::Failed(error) => format!("logging to {name} stopped: {error}"),
     }
 }
 

@@ -1,27 +1,24 @@
-//! The live screen: a tokio loop that merges keys (from a small reader thread), a steady
-//! frame tick, sample batches drained from the source's ring and SIGTERM/SIGHUP into
-//! [`app::AppEvent`]s, feeds them to [`app::App::update`], and draws with [`draw::draw`].
+//! The live screen: one loop on one thread that turns keys, a steady frame tick, sample
+//! batches drained from the source's ring and what became of its commands (a log opened,
+//! refused, closed) into [`app::AppEvent`]s, feeds them to [`app::App::update`], and
+//! draws with [`app::draw::draw`]. A signal (SIGTERM, SIGHUP, SIGINT) raises the same
+//! flag as in `record`.
 
 pub mod app;
 pub mod calibrate;
 pub mod digits;
-pub mod draw;
 pub mod line;
 pub mod noise;
-#[cfg(test)]
-mod tests;
 
 use std::fs::{File, OpenOptions};
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
-use std::time::{Duration, SystemTime};
+use std::time::{Duration, Instant, SystemTime};
 
 use anyhow::{Context, Result};
-use ratatui::crossterm::event::{self as term_event, Event as TermEvent};
+use ratatui::crossterm::event::{self as term_event, Event as TermEvent, KeyEvent};
 use ratatui::DefaultTerminal;
-use tokio::sync::mpsc;
 
 use dbtrail::events::Event;
 use dbtrail::record::{Opening, Recorder, RunContext};
@@ -29,7 +26,7 @@ use dbtrail::resume::LogShape;
 
 use crate::cli::files::LogKeeper;
 use crate::source::Running;
-use app::{App, AppEvent, Command};
+use app::{App, AppEvent, Command, LogEnd};
 
 /// Frames per second the screen redraws at, never faster.
 pub const FRAMES_PER_SECOND: u64 = 25;
@@ -60,12 +57,11 @@ pub enum IfExists {
 /// Runs the screen until the user quits or a signal arrives; the terminal is restored on
 /// every way out, a panic included (ratatui's hook restores it before the message).
 pub fn run(app: App, setup: ScreenSetup) -> Result<()> {
-    let runtime = tokio::runtime::Builder::new_current_thread()
-        .enable_all()
-        .build()
-        .context("cannot start the event loop")?;
+    // Ctrl-C arrives as a key in raw mode; SIGINT from elsewhere ends the screen as
+    // SIGTERM and SIGHUP do, with the log finished and the terminal restored.
+    let stop = crate::cli::signals::stop_flag().context("cannot watch for signals")?;
     let mut terminal = ratatui::init();
-    let outcome = runtime.block_on(event_loop(&mut terminal, app, setup));
+    let outcome = event_loop(&mut terminal, app, setup, &stop);
     ratatui::restore();
     outcome
 }
@@ -78,6 +74,9 @@ fn test_panic_frame() -> Option<u64> {
     std::env::var(TEST_PANIC_VAR).ok()?.parse().ok()
 }
 
+/// The longest the loop waits for a key before it looks at the signal flag again.
+const SIGNAL_LOOK: Duration = Duration::from_millis(20);
+
 /// An open log and its keeper.
 struct Log {
     recorder: Recorder<File>,
@@ -85,55 +84,79 @@ struct Log {
     keeper: LogKeeper,
 }
 
-async fn event_loop(
+/// One thread: keys as they come, a frame (samples drained, the link's counters, a tick,
+/// a draw) every 1/[`FRAMES_PER_SECOND`] s, and the signal flag between the two.
+fn event_loop(
     terminal: &mut DefaultTerminal,
     mut app: App,
     mut setup: ScreenSetup,
+    stop: &AtomicBool,
 ) -> Result<()> {
-    let stop_keys = Arc::new(AtomicBool::new(false));
-    let mut keys = spawn_key_reader(Arc::clone(&stop_keys));
-    let mut tick = tokio::time::interval(Duration::from_millis(1000 / FRAMES_PER_SECOND));
-    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
-    let mut terminate = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate())?;
-    let mut hangup = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::hangup())?;
-    let mut log: Option<Log> = None;
+    let period = Duration::from_millis(1000 / FRAMES_PER_SECOND);
     let panic_at = test_panic_frame();
     let mut frames = 0u64;
+    let mut log: Option<Log> = None;
     if let Some((path, if_exists)) = setup.log.clone() {
-        start_log(&mut app, &mut log, &setup, &path, if_exists);
+        let opened = start_log(&mut log, &app, &setup, &path, if_exists);
+        app.update(opened);
     }
+    let mut next_frame = Instant::now();
     let result = loop {
-        let commands = tokio::select! {
-            Some(event) = keys.recv() => app.update(event),
-            _ = tick.tick() => {
-                let mut commands = drain(&mut app, &mut setup.source, &mut log);
-                app.update(AppEvent::Link(setup.source.counters.snapshot()));
-                if !setup.source.live && setup.source.exhausted() && !app.ended {
-                    app.update(AppEvent::SourceEnded);
-                }
-                commands.extend(app.update(AppEvent::Tick { now: setup.source.now() }));
-                if let Err(e) = terminal.draw(|frame| draw::draw(&app, frame)) {
-                    break Err(e).context("cannot draw the screen");
-                }
-                frames += 1;
-                if panic_at == Some(frames) {
-                    panic!("test-only panic after frame {frames} ({TEST_PANIC_VAR} is set)");
-                }
-                commands
+        if stop.load(Ordering::Acquire) {
+            break Ok(());
+        }
+        let now = Instant::now();
+        let commands = if now >= next_frame {
+            // A frame missed (the machine busy) is skipped, not caught up.
+            next_frame = (next_frame + period).max(now);
+            let commands = frame(&mut app, &mut setup, &mut log);
+            if let Err(e) = terminal.draw(|frame| app::draw::draw(&app, frame)) {
+                break Err(e).context("cannot draw the screen");
             }
-            _ = terminate.recv() => break Ok(()),
-            _ = hangup.recv() => break Ok(()),
+            frames += 1;
+            if panic_at == Some(frames) {
+                panic!("test-only panic after frame {frames} ({TEST_PANIC_VAR} is set)");
+            }
+            commands
+        } else {
+            match next_key((next_frame - now).min(SIGNAL_LOOK)) {
+                Ok(Some(key)) => app.update(AppEvent::Key(key)),
+                Ok(None) => continue,
+                Err(e) => break Err(e).context("cannot read the keyboard"),
+            }
         };
         if carry_out(commands, &mut app, &mut log, &setup) {
             break Ok(());
         }
     };
-    stop_keys.store(true, Ordering::Release);
     if let Some(log) = log.as_mut() {
-        let _ = log.recorder.finish(setup.source.now());
-        let _ = log.recorder.get_ref().sync_data();
+        let _ = LogKeeper::finish(&mut log.recorder, setup.source.now());
     }
     result
+}
+
+/// A key pressed within `wait`, if any.
+fn next_key(wait: Duration) -> io::Result<Option<KeyEvent>> {
+    if !term_event::poll(wait)? {
+        return Ok(None);
+    }
+    match term_event::read()? {
+        TermEvent::Key(key) => Ok(Some(key)),
+        _ => Ok(None),
+    }
+}
+
+/// What a frame feeds the app: what the source sent, its link's counters, its end, the time.
+fn frame(app: &mut App, setup: &mut ScreenSetup, log: &mut Option<Log>) -> Vec<Command> {
+    let mut commands = drain(app, &mut setup.source, log);
+    app.update(AppEvent::Link(setup.source.counters.snapshot()));
+    if !setup.source.live && setup.source.exhausted() && !app.ended() {
+        app.update(AppEvent::SourceEnded);
+    }
+    commands.extend(app.update(AppEvent::Tick {
+        now: setup.source.now(),
+    }));
+    commands
 }
 
 /// Moves what the source has sent to the log and the app.
@@ -143,13 +166,21 @@ fn drain(app: &mut App, source: &mut Running, log: &mut Option<Log>) -> Vec<Comm
         batch.push(event);
     }
     if let Some(open) = log.as_mut() {
-        if let Err(e) = log_batch(open, &batch, source) {
-            app.notice = Some(format!("logging to {} stopped: {e}", open.path.display()));
-            *log = None;
-            app.logging = None;
-        } else {
-            app.logging = Some((open.path.clone(), open.recorder.rows()));
-        }
+        let written = log_batch(open, &batch, source);
+        let rows = open.recorder.rows();
+        let effect = match written {
+            Ok(()) => AppEvent::LogRows(rows),
+            Err(e) => {
+                let path = open.path.clone();
+                *log = None;
+                AppEvent::LogClosed {
+                    path,
+                    rows,
+                    why: LogEnd::Failed(e.to_string()),
+                }
+            }
+        };
+        app.update(effect);
     }
     app.update(AppEvent::Samples(batch))
 }
@@ -162,7 +193,8 @@ fn log_batch(log: &mut Log, batch: &[Event], source: &Running) -> io::Result<()>
     log.keeper.after_batch(&mut log.recorder, live_clock)
 }
 
-/// Carries out commands; true when the screen should close.
+/// Carries out commands, telling the app what became of them; true when the screen
+/// should close.
 fn carry_out(
     commands: Vec<Command>,
     app: &mut App,
@@ -170,59 +202,53 @@ fn carry_out(
     setup: &ScreenSetup,
 ) -> bool {
     for command in commands {
-        match command {
+        let effect = match command {
             Command::Quit => return true,
             Command::Bell => {
                 let mut out = io::stdout();
                 let _ = out.write_all(b"\x07").and_then(|()| out.flush());
+                None
             }
-            Command::StartLog(path) => start_log(app, log, setup, &path, IfExists::Refuse),
-            Command::StopLog => {
-                if let Some(mut open) = log.take() {
-                    let _ = LogKeeper::finish(&mut open.recorder, setup.source.now());
-                    app.notice = Some(format!(
-                        "log {} closed, {} rows",
-                        open.path.display(),
-                        open.recorder.rows()
-                    ));
-                }
-                app.logging = None;
-            }
-            Command::Recalibrated => {
-                // A log keeps one calibration per file: close it and say so.
-                if let Some(open) = log.as_ref() {
-                    let path = open.path.clone();
-                    carry_out(vec![Command::StopLog], app, log, setup);
-                    app.notice = Some(format!(
-                        "frequency or offset changed: log {} closed; press l to start a new one",
-                        path.display()
-                    ));
-                }
-            }
+            Command::StartLog(path) => Some(start_log(log, app, setup, &path, IfExists::Refuse)),
+            Command::StopLog => close_log(log, setup, LogEnd::Stopped),
+            // A log keeps one calibration per file.
+            Command::Recalibrated => close_log(log, setup, LogEnd::Recalibrated),
+        };
+        if let Some(event) = effect {
+            app.update(event);
         }
     }
     false
 }
 
+/// Closes the open log, if any, with its last partial interval.
+fn close_log(log: &mut Option<Log>, setup: &ScreenSetup, why: LogEnd) -> Option<AppEvent> {
+    let mut open = log.take()?;
+    let _ = LogKeeper::finish(&mut open.recorder, setup.source.now());
+    Some(AppEvent::LogClosed {
+        path: open.path,
+        rows: open.recorder.rows(),
+        why,
+    })
+}
+
+/// Opens a log at `path`; the app is told it opened, or why it was refused.
 fn start_log(
-    app: &mut App,
     log: &mut Option<Log>,
+    app: &App,
     setup: &ScreenSetup,
     path: &Path,
     if_exists: IfExists,
-) {
+) -> AppEvent {
     match open_log(app, setup, path, if_exists) {
         Ok(open) => {
-            app.logging = Some((open.path.clone(), 0));
-            app.notice = Some(format!("logging to {}", path.display()));
             *log = Some(open);
+            AppEvent::LogOpened(path.to_path_buf())
         }
-        Err(e) => {
-            app.update(AppEvent::LogRefused {
-                path: path.to_path_buf(),
-                error: format!("{e:#}"),
-            });
-        }
+        Err(e) => AppEvent::LogRefused {
+            path: path.to_path_buf(),
+            error: format!("{e:#}"),
+        },
     }
 }
 
@@ -230,14 +256,15 @@ fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) ->
     let (file, opening) = open_log_file(path, if_exists)?;
     let context = RunContext {
         tool: setup.tool.clone(),
-        profile: app.profile.name.clone(),
+        profile: app.profile().name.clone(),
         profile_hash: setup.profile_hash.clone(),
         started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
         source: setup.source.description.clone(),
         every: Duration::from_secs(1),
     };
-    let budget = Some(app.uncertainty.clone());
-    let mut recorder = Recorder::with_uncertainty(file, app.cal.clone(), budget, &context, opening)
+    let budget = Some(app.uncertainty().clone());
+    let cal = app.calibration().clone();
+    let mut recorder = Recorder::with_uncertainty(file, cal, budget, &context, opening)
         .with_context(|| format!("cannot write {}", path.display()))?;
     recorder.begin_at(setup.source.now());
     Ok(Log {
@@ -301,24 +328,4 @@ fn resume_opening(file: &File, path: &Path) -> Result<Opening> {
         channels: shape.channels,
         cut: shape.cut,
     })
-}
-
-/// A thread that turns terminal key presses into events; it never blocks the loop.
-fn spawn_key_reader(stop: Arc<AtomicBool>) -> mpsc::UnboundedReceiver<AppEvent> {
-    let (tx, rx) = mpsc::unbounded_channel();
-    std::thread::spawn(move || {
-        while !stop.load(Ordering::Acquire) {
-            match term_event::poll(Duration::from_millis(100)) {
-                Ok(true) => {}
-                Ok(false) => continue,
-                Err(_) => break,
-            }
-            if let Ok(TermEvent::Key(key)) = term_event::read() {
-                if tx.send(AppEvent::Key(key)).is_err() {
-                    break;
-                }
-            }
-        }
-    });
-    rx
 }

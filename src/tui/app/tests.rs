@@ -15,13 +15,13 @@ use dbtrail::profile::parse_profile;
 use dbtrail::stats::AVERAGE_BUCKETS;
 use dbtrail::uncertainty::{Budget, Noise, Uncertainty};
 
-use super::app::{App, AppEvent, Command, Plusminus, Shown, Units};
 use super::draw::draw;
-use super::noise::NOISE_MIN_COUNTS;
+use super::{App, AppEvent, Command, Plusminus, Shown, Units};
+use crate::tui::noise::NOISE_MIN_COUNTS;
 
 /// The hand-worked log-amp (see the file): C counts read C/25 − 80 + 30 dBm at 10 MHz,
 /// one dB more at 100 MHz; limits −5 dBm at the detector, +20 dBm at the reference plane.
-const HAND_PROFILE: &str = include_str!("../../tests/profiles/good/hand-logamp.toml");
+const HAND_PROFILE: &str = include_str!("../../../tests/profiles/good/hand-logamp.toml");
 
 fn app() -> App {
     let profile = parse_profile(HAND_PROFILE, "hand.toml").unwrap();
@@ -473,7 +473,7 @@ fn with_noisy_readings_of_a_steady_level_the_best_stays_within_the_noise() {
 
 /// The demo diode profile: its dB per count changes along the curve, so a budget made at
 /// the wrong frequency gives a different figure.
-const DIODE_PROFILE: &str = include_str!("../../profiles/demo-diode.toml");
+const DIODE_PROFILE: &str = include_str!("../../../profiles/demo-diode.toml");
 
 /// The budget the library gives for `profile` at a frequency and level, with the noise.
 fn library_budget(profile: &str, freq_hz: Option<f64>, dbm: f64, noise: Noise) -> Budget {
@@ -744,7 +744,7 @@ fn a_tiny_uncertainty_shows_as_the_last_digit_not_as_zero() {
 
 /// The screen frozen on +10 dBm with a budget whose expanded uncertainty is `u_db`.
 fn frozen_with_uncertainty(u_db: f64) -> App {
-    use super::app::Frozen;
+    use super::Frozen;
     use dbtrail::uncertainty::{Term, TermKind};
     let mut app = app();
     sample(&mut app, 0.0, 1500);
@@ -935,7 +935,10 @@ fn screen_and_cursor(app: &App, width: u16, height: u16) -> (Vec<String>, (u16, 
 }
 
 fn with_log_open(app: &mut App, rows: u64) {
-    app.logging = Some(("bench.csv".into(), rows));
+    app.update(AppEvent::LogOpened("bench.csv".into()));
+    app.update(AppEvent::LogRows(rows));
+    // A key bound to nothing clears the "logging to" notice, as the user's next key does.
+    keys(app, "x");
 }
 
 // Source: the rule of issue 16: Esc cancels a prompt or closes the help and otherwise
@@ -1369,4 +1372,58 @@ fn every_view_of_the_screen_at_80_by_24_and_100_by_30() {
             );
         }
     }
+}
+
+#[test]
+fn what_became_of_a_log_comes_back_as_events_and_the_screen_says_it() {
+    use super::LogEnd;
+    let mut app = app();
+    app.update(AppEvent::LogOpened("bench.csv".into()));
+    assert!(has(&screen(&app, 100, 30), "logging to bench.csv"));
+    app.update(AppEvent::LogRows(7));
+    assert!(has(&screen(&app, 100, 30), "log on, 7 rows"));
+    // While the log is open, q asks first.
+    assert!(keys(&mut app, "q").is_empty());
+    keys(&mut app, "x");
+    app.update(AppEvent::LogClosed {
+        path: "bench.csv".into(),
+        rows: 7,
+        why: LogEnd::Failed("No space left on device".into()),
+    });
+    let lines = screen(&app, 100, 30);
+    assert!(
+        has(
+            &lines,
+            "logging to bench.csv stopped: No space left on device"
+        ),
+        "{lines:#?}"
+    );
+    assert!(has(&lines, "log off"));
+    assert_eq!(
+        keys(&mut app, "q"),
+        vec![Command::Quit],
+        "no log, no question"
+    );
+}
+
+#[test]
+fn a_log_closed_by_a_new_frequency_says_why_and_how_to_go_on() {
+    use super::LogEnd;
+    let mut app = app();
+    app.update(AppEvent::LogOpened("bench.csv".into()));
+    let commands = keys(&mut app, "f100MHz\n");
+    assert_eq!(commands, vec![Command::Recalibrated]);
+    app.update(AppEvent::LogClosed {
+        path: "bench.csv".into(),
+        rows: 3,
+        why: LogEnd::Recalibrated,
+    });
+    let lines = screen(&app, 100, 30);
+    assert!(
+        has(
+            &lines,
+            "frequency or offset changed: log bench.csv closed; press l to start a new one"
+        ),
+        "{lines:#?}"
+    );
 }

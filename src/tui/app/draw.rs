@@ -12,9 +12,9 @@ use dbtrail::printable::{fields_to_keep, wrap_words};
 use dbtrail::uncertainty::COVERAGE_K;
 use dbtrail::units::{Power, Si, VoltageForm};
 
-use super::app::{App, Mode, Plusminus, Shown, Units, TREND_WINDOWS};
-use super::digits;
-use super::line::LineEdit;
+use super::{App, Mode, Plusminus, Shown, Units, TREND_WINDOWS};
+use crate::tui::digits;
+use crate::tui::line::LineEdit;
 
 /// The smallest screen that gets the large digits.
 pub const FULL_SIZE: (u16, u16) = (80, 24);
