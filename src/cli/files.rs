@@ -31,12 +31,6 @@ impl Durable for LogFile {
     }
 }
 
-impl Durable for File {
-    fn make_durable(&self) -> io::Result<()> {
-        sync(self)
-    }
-}
-
 impl Durable for io::Stdout {
     fn make_durable(&self) -> io::Result<()> {
         Ok(())
@@ -160,29 +154,72 @@ pub struct LogFile {
 #[error("{0}")]
 pub struct LogTampered(String);
 
+/// What opening a log does with a file of its name that already exists.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum IfExists {
+    /// Refuses it (the screen's `l` key, and `--log` alone).
+    Refuse,
+    /// Adds to its end.
+    Append,
+    /// Empties it, once the lock is taken.
+    Replace,
+}
+
+/// Why a log could not be opened; each front end says what to do its own way.
+#[derive(Debug, thiserror::Error)]
+pub enum LogOpenError {
+    /// A file of that name exists, and was not to be replaced.
+    #[error("{} already exists", .0.display())]
+    Exists(PathBuf),
+    /// Another recorder holds the file's lock.
+    #[error("{} is being written by another dbtrail (it holds the file's lock)", .0.display())]
+    Locked(PathBuf),
+    /// The file could not be opened, read, locked or emptied.
+    #[error("cannot {what} {}: {source}", .path.display())]
+    Io {
+        what: &'static str,
+        path: PathBuf,
+        source: io::Error,
+    },
+}
+
 impl LogFile {
-    /// Opens `path` for a recording, adding to its end when `append`, else replacing what
-    /// it holds once the lock is taken. Refused (exit 2) when another recorder holds it.
-    pub fn open(path: &Path, append: bool) -> Result<LogFile, Failure> {
+    /// Opens `path` for a log, as `if_exists` says, locked against a second recorder.
+    pub fn open(path: &Path, if_exists: IfExists) -> Result<LogFile, LogOpenError> {
+        let failed = |what| {
+            move |source| LogOpenError::Io {
+                what,
+                path: path.to_path_buf(),
+                source,
+            }
+        };
         // Appending even to a file just emptied: a truncation by someone else then shows
         // as a short file, where writing on at our own offset would leave a hole.
         let mut options = OpenOptions::new();
-        options.read(true).append(true).create(true);
-        let file = options
-            .open(path)
-            .with_context(|| format!("cannot open {} for writing", path.display()))
-            .runtime()?;
-        let meta = file
-            .metadata()
-            .with_context(|| format!("cannot read the state of {}", path.display()))
-            .runtime()?;
+        options.read(true).append(true);
+        match if_exists {
+            IfExists::Refuse => options.create_new(true),
+            IfExists::Append | IfExists::Replace => options.create(true),
+        };
+        let file = match options.open(path) {
+            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
+                return Err(LogOpenError::Exists(path.to_path_buf()))
+            }
+            other => other.map_err(failed("open"))?,
+        };
+        let meta = file.metadata().map_err(failed("read the state of"))?;
         let regular = meta.is_file();
+        let append = if_exists == IfExists::Append;
         if regular {
-            lock(&file, path)?;
+            match file.try_lock() {
+                Ok(()) => {}
+                Err(std::fs::TryLockError::WouldBlock) => {
+                    return Err(LogOpenError::Locked(path.to_path_buf()))
+                }
+                Err(std::fs::TryLockError::Error(e)) => return Err(failed("lock")(e)),
+            }
             if !append {
-                file.set_len(0)
-                    .with_context(|| format!("cannot empty {}", path.display()))
-                    .runtime()?;
+                file.set_len(0).map_err(failed("empty"))?;
             }
         }
         Ok(LogFile {
@@ -250,22 +287,6 @@ impl io::Write for LogFile {
     }
 }
 
-/// Takes the advisory lock that keeps a second recorder off the same file.
-fn lock(file: &File, path: &Path) -> Result<(), Failure> {
-    match file.try_lock() {
-        Ok(()) => Ok(()),
-        Err(std::fs::TryLockError::WouldBlock) => Err(anyhow!(
-            "{} is being written by another dbtrail (it holds the file's lock); stop that \
-             one first, or choose another --out",
-            path.display()
-        ))
-        .bad_input(),
-        Err(std::fs::TryLockError::Error(e)) => {
-            Err(anyhow::Error::new(e).context(format!("cannot lock {}", path.display()))).runtime()
-        }
-    }
-}
-
 /// Reads a small input file whole, at most `limit` bytes: a FIFO or a device (which may
 /// never end, as /dev/zero) is refused before it is read, a longer file at the limit.
 pub fn read_bounded(path: &Path, limit: u64, what: &str) -> Result<Vec<u8>, Failure> {
@@ -294,4 +315,51 @@ pub fn read_bounded(path: &Path, limit: u64, what: &str) -> Result<Vec<u8>, Fail
         .bad_input();
     }
     Ok(bytes)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::io::Write as _;
+
+    #[test]
+    fn a_log_opens_as_asked_of_a_file_that_exists() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("bench.csv");
+        std::fs::write(&path, "earlier rows\n").unwrap();
+        assert!(matches!(
+            LogFile::open(&path, IfExists::Refuse),
+            Err(LogOpenError::Exists(_))
+        ));
+        let appended = LogFile::open(&path, IfExists::Append).unwrap();
+        assert_eq!(
+            appended.len_at_open(),
+            13,
+            "the earlier rows are kept and counted"
+        );
+        drop(appended);
+        let mut replaced = LogFile::open(&path, IfExists::Replace).unwrap();
+        assert_eq!(replaced.len_at_open(), 0);
+        replaced.write_all(b"new\n").unwrap();
+        replaced.sync_and_check().unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "new\n");
+        let fresh = dir.path().join("fresh.csv");
+        LogFile::open(&fresh, IfExists::Refuse).unwrap();
+        assert!(fresh.exists());
+    }
+
+    #[test]
+    fn a_log_held_by_another_writer_is_refused_whatever_is_asked() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("held.csv");
+        let _held = LogFile::open(&path, IfExists::Replace).unwrap();
+        for how in [IfExists::Append, IfExists::Replace] {
+            let refused = LogFile::open(&path, how);
+            assert!(
+                matches!(refused, Err(LogOpenError::Locked(_))),
+                "{how:?}: {:?}",
+                refused.err()
+            );
+        }
+    }
 }

@@ -19,6 +19,7 @@ mod fit;
 mod ports;
 mod record;
 mod report;
+mod run_plan;
 pub mod signals;
 mod sim;
 mod source_args;

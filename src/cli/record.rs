@@ -4,18 +4,17 @@
 use std::io::{self, IsTerminal, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::time::{Duration, Instant, SystemTime};
+use std::time::{Duration, Instant};
 
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::events::Event;
 use dbtrail::record::{ChannelMismatch, Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
-use dbtrail::uncertainty::Uncertainty;
-use sha2::{Digest, Sha256};
 
-use super::files::{Durable, LogFile, LogKeeper, LogTampered};
-use super::source_args::{self, LinkArgs, ReadingArgs, SourceArgs};
+use super::files::{Durable, IfExists, LogFile, LogKeeper, LogOpenError, LogTampered};
+use super::run_plan::{RunPlan, SourcePlan, StartedRun};
+use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
 use crate::source::Running;
 
@@ -48,37 +47,23 @@ pub struct Args {
 const BATCH: usize = 1 << 16;
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    check_interval(args.every, &args.source, args.link.rate)?;
-    let freq = source_args::frequency(args.reading.freq, &args.source);
+    let plan = RunPlan::from_args(&args.source, &args.link, &args.reading);
+    check_interval(args.every, &plan)?;
     let until = args.duration.map(|d| d.as_secs_f64());
-    let (loaded, mut source) = source_args::load_and_start(
-        args.reading.profile.as_ref(),
-        &args.source,
-        &args.link,
-        until,
-    )?;
+    let run = plan.start(until)?;
     // Opened once the source and the profile are known good, so a bad one leaves no
     // empty file behind.
     let (out, earlier) = open_output(&args.out, args.append, args.force)?;
     let stop = super::signals::stop_flag().runtime()?;
-    if args.source.demo.is_some() && args.link.fast && until.is_none() {
+    if matches!(plan.source, SourcePlan::Demo { fast: true, .. }) && until.is_none() {
         super::say_err!(
             "dbtrail: the simulator runs flat out with no --duration and writes until it is \
              stopped: press Ctrl-C (or send SIGTERM) to end it; every row so far is kept"
         );
     }
-    // Built while the source starts reading: its samples wait in the ring meanwhile.
-    let cal = Calibration::new(&loaded.profile, freq, args.reading.offset);
-    let context = RunContext {
-        tool: format!("dbtrail {}", env!("CARGO_PKG_VERSION")),
-        profile: format!("{} ({})", loaded.profile.name, loaded.origin),
-        profile_hash: hex_digest(&loaded.bytes),
-        started: SystemTime::now(),
-        source: source.description.clone(),
-        every: args.every,
-    };
+    let context = run.context(args.every);
     let opening = match &earlier {
-        Some(shape) => resume(shape, &args.out, &cal, &context)?,
+        Some(shape) => resume(shape, &args.out, &run.cal, &context)?,
         None => Opening::Fresh,
     };
     let target = if args.out == "-" {
@@ -86,8 +71,13 @@ pub fn run(args: Args) -> Result<(), Failure> {
     } else {
         args.out.clone()
     };
-    let budget = Uncertainty::new(&loaded.profile, &cal);
-    let mut recorder = Recorder::with_uncertainty(out, cal, Some(budget), &context, opening)
+    let StartedRun {
+        mut source,
+        cal,
+        uncertainty,
+        ..
+    } = run;
+    let mut recorder = Recorder::with_uncertainty(out, cal, Some(uncertainty), &context, opening)
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
     let pumped = pump(
@@ -95,7 +85,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         &mut recorder,
         &stop,
         until,
-        1.0 / args.link.rate,
+        1.0 / plan.rate_hz,
         args.out == "-" && io::stdout().is_terminal(),
     );
     let link = source.counters.snapshot();
@@ -214,11 +204,12 @@ const PORT_EVERY_MIN: Duration = Duration::from_millis(1);
 
 /// Refuses an interval shorter than one sample (or, for a port, than 1 ms): every row
 /// would hold at most one sample, which `--every 0` says plainly.
-fn check_interval(every: Duration, source: &SourceArgs, rate: f64) -> Result<(), Failure> {
+fn check_interval(every: Duration, plan: &RunPlan) -> Result<(), Failure> {
     if every.is_zero() {
         return Ok(());
     }
-    let (shortest, why) = if source.port.is_some() {
+    let rate = plan.rate_hz;
+    let (shortest, why) = if matches!(plan.source, SourcePlan::Port { .. }) {
         (
             PORT_EVERY_MIN,
             "1 ms, the shortest row for a port".to_string(),
@@ -319,7 +310,17 @@ fn open_output(
     }
     let path = Path::new(out);
     super::files::refuse_existing(path, append, force)?;
-    let log = LogFile::open(path, append)?;
+    let if_exists = if append {
+        IfExists::Append
+    } else {
+        IfExists::Replace
+    };
+    let log = LogFile::open(path, if_exists).map_err(|e| match e {
+        LogOpenError::Locked(_) => {
+            Failure::BadInput(anyhow!("{e}; stop that one first, or choose another --out"))
+        }
+        other => Failure::Runtime(other.into()),
+    })?;
     let earlier = if append && log.len_at_open() > 0 {
         let reader = io::BufReader::new(log.file());
         let shape = LogShape::scan(reader)
@@ -330,14 +331,6 @@ fn open_output(
         None
     };
     Ok((Box::new(log), earlier))
-}
-
-pub fn hex_digest(bytes: &[u8]) -> String {
-    Sha256::digest(bytes)
-        .iter()
-        .take(8)
-        .map(|b| format!("{b:02x}"))
-        .collect()
 }
 
 /// The live status on a terminal's stderr: one line redrawn in place, or, when the rows

@@ -1,20 +1,14 @@
-//! The options that choose a source (`--port`, `--replay`, `--demo`), shared by the
-//! commands that read one, and the code that starts it.
+//! The options that choose a source (`--port`, `--replay`, `--demo`), its link and how
+//! its samples become readings, shared by the commands that read one; `run_plan` turns
+//! them into a run.
 
 use std::path::PathBuf;
 
-use anyhow::{anyhow, Context};
 use dbtrail::decode::Format;
-use dbtrail::profile::{parse_profile, parse_profile_bytes, read_profile_file, Profile};
-use dbtrail::sim::{Scenario, Simulator};
-
-use crate::source::{open_port, ReplaySpec, Running, SerialSpec, SimSpec};
-
-use super::{BadInput, Failure};
+use dbtrail::sim::Scenario;
 
 /// The bundled profile the demo runs with when no `--profile` is given.
 pub const DEMO_PROFILE: &str = include_str!("../../profiles/demo-diode.toml");
-const DEMO_PROFILE_NAME: &str = "bundled profiles/demo-diode.toml";
 
 #[derive(clap::Args, Debug)]
 #[group(required = true, multiple = false, id = "source")]
@@ -94,107 +88,4 @@ pub fn parse_rate(text: &str) -> Result<f64, String> {
         )),
         Err(e) => Err(format!("{e} (a sample rate such as 1000 or 10k)")),
     }
-}
-
-/// A profile and where it came from, with the bytes hashed for recordings.
-pub struct LoadedProfile {
-    pub profile: Profile,
-    pub origin: String,
-    pub bytes: Vec<u8>,
-}
-
-/// Loads `--profile`, or the bundled demo profile for `--demo` without one.
-pub fn load(profile: Option<&PathBuf>, source: &SourceArgs) -> Result<LoadedProfile, Failure> {
-    match profile {
-        Some(path) => {
-            // The bytes parsed are the bytes hashed into a recording's context.
-            let origin = path.display().to_string();
-            let bytes = read_profile_file(path).bad_input()?;
-            let profile = parse_profile_bytes(&bytes, &origin).bad_input()?;
-            Ok(LoadedProfile {
-                profile,
-                origin,
-                bytes,
-            })
-        }
-        None if source.demo.is_some() => {
-            let profile = parse_profile(DEMO_PROFILE, DEMO_PROFILE_NAME).bad_input()?;
-            Ok(LoadedProfile {
-                profile,
-                origin: DEMO_PROFILE_NAME.into(),
-                bytes: DEMO_PROFILE.as_bytes().to_vec(),
-            })
-        }
-        None => Err(anyhow!(
-            "give the detector's profile with --profile FILE (see profiles/ for examples)"
-        ))
-        .bad_input(),
-    }
-}
-
-/// Loads the profile and starts the chosen source. A capture or a port starts first, its
-/// first samples waiting in the ring while the profile's model is fitted; the simulator
-/// needs the profile to start.
-pub fn load_and_start(
-    profile: Option<&PathBuf>,
-    source: &SourceArgs,
-    link: &LinkArgs,
-    until: Option<f64>,
-) -> Result<(LoadedProfile, Running), Failure> {
-    if let Some(running) = start_stream(source, link)? {
-        return Ok((load(profile, source)?, running));
-    }
-    let loaded = load(profile, source)?;
-    let running = start_simulator(source, link, &loaded.profile, until);
-    Ok((loaded, running))
-}
-
-/// Opens the chosen port or capture and starts its thread; None when the source is the
-/// simulator.
-fn start_stream(source: &SourceArgs, link: &LinkArgs) -> Result<Option<Running>, Failure> {
-    if let Some(path) = &source.port {
-        let port = open_port(path, link.baud).bad_input()?;
-        let spec = SerialSpec {
-            path: path.clone(),
-            baud: link.baud,
-            format: link.format,
-        };
-        return Ok(Some(spec.start(port)));
-    }
-    if let Some(path) = &source.replay {
-        let file = std::fs::File::open(path)
-            .with_context(|| format!("cannot open capture {}", path.display()))
-            .bad_input()?;
-        let spec = ReplaySpec {
-            path: path.clone(),
-            rate_hz: link.rate,
-            realtime: link.realtime,
-            format: link.format,
-        };
-        return Ok(Some(spec.start(file)));
-    }
-    Ok(None)
-}
-
-/// Starts the simulator made from `profile`; `until` bounds its run.
-fn start_simulator(
-    source: &SourceArgs,
-    link: &LinkArgs,
-    profile: &Profile,
-    until: Option<f64>,
-) -> Running {
-    let scenario = source.demo.unwrap_or(Scenario::Soak);
-    let simulator = Simulator::new(profile, scenario, link.rate, link.seed);
-    SimSpec {
-        simulator,
-        fast: link.fast,
-        until,
-        seed: link.seed,
-    }
-    .start()
-}
-
-/// The frequency to calibrate at: `--freq`, else the demo scenario's, else the profile's.
-pub fn frequency(freq: Option<f64>, source: &SourceArgs) -> Option<f64> {
-    freq.or(source.demo.map(Scenario::frequency_hz))
 }

@@ -404,11 +404,6 @@ impl App {
         self
     }
 
-    /// The profile in use.
-    pub fn profile(&self) -> &Arc<Profile> {
-        &self.profile
-    }
-
     /// The calibration for the current frequency and offset.
     pub fn calibration(&self) -> &Calibration {
         &self.cal

@@ -10,7 +10,7 @@ pub mod digits;
 pub mod line;
 pub mod noise;
 
-use std::fs::{File, OpenOptions};
+use std::fs::File;
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -24,7 +24,7 @@ use dbtrail::events::Event;
 use dbtrail::record::{Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
-use crate::cli::files::LogKeeper;
+use crate::cli::files::{IfExists, LogFile, LogKeeper, LogOpenError};
 use crate::source::Running;
 use app::{App, AppEvent, Command, LogEnd};
 
@@ -37,21 +37,9 @@ pub struct ScreenSetup {
     pub source: Running,
     /// Start logging here at once (`--log`), and what to do if the file exists.
     pub log: Option<(PathBuf, IfExists)>,
-    /// Tool name and version, for log headers.
-    pub tool: String,
-    /// A hash of the profile's bytes, for log headers.
-    pub profile_hash: String,
-}
-
-/// What a log does with a file of its name that already exists.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum IfExists {
-    /// Refuses it (the `l` key, and `--log` alone).
-    Refuse,
-    /// Adds to it after a `# resumed` line (`--append`).
-    Append,
-    /// Empties it first (`--force`).
-    Replace,
+    /// What a log's header says of the run; a log opened later starts its clock at the
+    /// source's start.
+    pub context: RunContext,
 }
 
 /// Runs the screen until the user quits or a signal arrives; the terminal is restored on
@@ -79,7 +67,7 @@ const SIGNAL_LOOK: Duration = Duration::from_millis(20);
 
 /// An open log and its keeper.
 struct Log {
-    recorder: Recorder<File>,
+    recorder: Recorder<LogFile>,
     path: PathBuf,
     keeper: LogKeeper,
 }
@@ -255,12 +243,8 @@ fn start_log(
 fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) -> Result<Log> {
     let (file, opening) = open_log_file(path, if_exists)?;
     let context = RunContext {
-        tool: setup.tool.clone(),
-        profile: app.profile().name.clone(),
-        profile_hash: setup.profile_hash.clone(),
         started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
-        source: setup.source.description.clone(),
-        every: Duration::from_secs(1),
+        ..setup.context.clone()
     };
     let budget = Some(app.uncertainty().clone());
     let cal = app.calibration().clone();
@@ -274,33 +258,19 @@ fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) ->
     })
 }
 
-/// Opens the log's file as `if_exists` says, locked against a second recorder (the same
-/// advisory lock as `record` takes), and how its rows begin.
-fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(File, Opening)> {
-    let name = path.display();
-    let mut options = OpenOptions::new();
-    match if_exists {
-        IfExists::Refuse => options.write(true).create_new(true),
-        IfExists::Append => options.read(true).append(true).create(true),
-        IfExists::Replace => options.write(true).create(true),
-    };
-    let file = match options.open(path) {
-        // Short, to fit the prompt's line: `watch --log --append/--force` is in the help.
-        Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
-            anyhow::bail!("{name} already exists: give another name")
+/// Opens the log's file as `if_exists` says, locked against a second recorder (as
+/// `record`'s are), and how its rows begin.
+fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(LogFile, Opening)> {
+    // Short, to fit the prompt's line: `watch --log --append/--force` is in the help.
+    let file = LogFile::open(path, if_exists).map_err(|e| match e {
+        LogOpenError::Exists(_) | LogOpenError::Locked(_) => {
+            anyhow::anyhow!("{e}: give another name")
         }
-        other => other.with_context(|| format!("cannot create {name}"))?,
-    };
-    file.try_lock()
-        .with_context(|| format!("cannot lock {name}: is another dbtrail writing it?"))?;
+        other => other.into(),
+    })?;
     let opening = match if_exists {
-        IfExists::Refuse => Opening::Fresh,
-        IfExists::Replace => {
-            file.set_len(0)
-                .with_context(|| format!("cannot empty {name}"))?;
-            Opening::Fresh
-        }
-        IfExists::Append => resume_opening(&file, path)?,
+        IfExists::Append => resume_opening(file.file(), path)?,
+        IfExists::Refuse | IfExists::Replace => Opening::Fresh,
     };
     Ok((file, opening))
 }
