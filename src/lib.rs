@@ -32,6 +32,7 @@ pub mod decode;
 pub mod detector;
 pub mod events;
 pub mod link;
+pub mod matching;
 pub mod maths;
 pub mod points;
 pub mod printable;
