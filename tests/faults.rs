@@ -22,8 +22,9 @@ fn flagged(rows: &[Vec<String>], flags: usize, word: &str) -> usize {
 fn twenty_unplugs_give_twenty_reconnects_every_gap_marked_and_no_row_lost() {
     const REPLUGS: usize = 20;
     const LINES: usize = 100;
-    let dir = scratch("replug20");
-    let profile = write_profile(&dir);
+    let tmp = scratch("replug20");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let out = dir.join("replug.csv");
     let link = dir.join("port");
     let (mut master, mut slave) = pty_pair();
@@ -98,8 +99,9 @@ fn samples_in(rows: &[Vec<String>], samples: usize) -> usize {
 fn a_device_replugged_with_two_channels_is_learned_again_and_refused_lines_are_flagged() {
     const LINES: usize = 100;
     let limit = Duration::from_secs(20);
-    let dir = scratch("relearn");
-    let profile = write_profile(&dir);
+    let tmp = scratch("relearn");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let out = dir.join("relearn.csv");
     let link = dir.join("port");
     let (mut master, slave) = pty_pair();
@@ -177,8 +179,9 @@ fn a_device_replugged_with_two_channels_is_learned_again_and_refused_lines_are_f
 
 #[test]
 fn a_silent_port_gets_gap_rows_and_the_recorder_goes_on() {
-    let dir = scratch("silent");
-    let profile = write_profile(&dir);
+    let tmp = scratch("silent");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let out = dir.join("silent.csv");
     let (mut master, slave) = pty_pair();
     let mut child = bin();
@@ -236,7 +239,8 @@ fn assert_valid_log(path: &std::path::Path, what: &str) {
 
 #[test]
 fn signals_at_twenty_random_moments_each_leave_a_valid_log() {
-    let dir = scratch("signals");
+    let tmp = scratch("signals");
+    let dir = tmp.path();
     let mut rng = Pcg64::seed_from_u64(20261202);
     let runs: Vec<(usize, &str, u64)> = (0..20)
         .map(|i| {
@@ -286,7 +290,8 @@ fn signals_at_twenty_random_moments_each_leave_a_valid_log() {
 
 #[test]
 fn unwritable_outputs_fail_with_exit_1_and_a_clear_message() {
-    let dir = scratch("unwritable");
+    let tmp = scratch("unwritable");
+    let dir = tmp.path();
     let cases = [
         ("/dev/full".to_string(), 1, "cannot write to /dev/full"),
         (

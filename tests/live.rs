@@ -13,8 +13,9 @@ use serialport::SerialPort;
 
 #[test]
 fn pty_to_csv_keeps_every_sample_and_its_value() {
-    let dir = scratch("pty");
-    let profile = write_profile(&dir);
+    let tmp = scratch("pty");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let out = dir.join("pty.csv");
     let (mut master, slave) = pty_pair();
     let path = slave.name().unwrap();
@@ -63,8 +64,9 @@ fn pty_to_csv_keeps_every_sample_and_its_value() {
 
 #[test]
 fn unplug_and_replug_marks_the_gap_and_loses_no_row() {
-    let dir = scratch("unplug");
-    let profile = write_profile(&dir);
+    let tmp = scratch("unplug");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let out = dir.join("unplug.csv");
     let link = dir.join("port");
     let (mut master, slave) = pty_pair();
@@ -134,7 +136,8 @@ fn unplug_and_replug_marks_the_gap_and_loses_no_row() {
 
 #[test]
 fn sigint_mid_interval_leaves_a_valid_csv_with_the_partial_row() {
-    let dir = scratch("sigint");
+    let tmp = scratch("sigint");
+    let dir = tmp.path();
     let out = dir.join("soak.csv");
     let child = &mut bin();
     child
@@ -170,8 +173,9 @@ fn sigint_mid_interval_leaves_a_valid_csv_with_the_partial_row() {
 
 #[test]
 fn replayed_capture_matches_the_profile_maths_by_hand() {
-    let dir = scratch("replay");
-    let profile = write_profile(&dir);
+    let tmp = scratch("replay");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let capture = dir.join("capture.txt");
     let counts: Vec<u32> = (0..40).map(|i| 700 + 31 * i).collect();
     let text: String = counts.iter().map(|c| format!("{c}\r\n")).collect();
@@ -225,7 +229,8 @@ fn replayed_capture_matches_the_profile_maths_by_hand() {
 
 #[test]
 fn an_existing_output_is_refused_and_a_full_disk_is_an_error() {
-    let dir = scratch("outputs");
+    let tmp = scratch("outputs");
+    let dir = tmp.path();
     let out = dir.join("exists.csv");
     std::fs::write(&out, "keep me\n").unwrap();
     let refused = &mut bin();
@@ -268,7 +273,8 @@ fn an_existing_output_is_refused_and_a_full_disk_is_an_error() {
 #[test]
 fn the_simulator_over_a_pty_arrives_sample_for_sample() {
     use std::io::BufRead;
-    let dir = scratch("simpty");
+    let tmp = scratch("simpty");
+    let dir = tmp.path();
     let reference = dir.join("reference.txt");
     let made = bin()
         .args([
@@ -357,8 +363,9 @@ fn the_simulator_over_a_pty_arrives_sample_for_sample() {
 
 #[test]
 fn two_channel_capture_gets_suffixed_columns_and_append_adds_rows() {
-    let dir = scratch("channels");
-    let profile = write_profile(&dir);
+    let tmp = scratch("channels");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let capture = dir.join("two.txt");
     std::fs::write(&capture, "1000,1500\n1000,1500\n").unwrap();
     let out = dir.join("two.csv");
@@ -413,7 +420,8 @@ fn two_channel_capture_gets_suffixed_columns_and_append_adds_rows() {
 // "watch needs a terminal", so the message shows which check came first.
 #[test]
 fn watch_refuses_an_existing_log_before_the_screen_opens() {
-    let dir = scratch("watch-existing-log");
+    let tmp = scratch("watch-existing-log");
+    let dir = tmp.path();
     let log = dir.join("kept.csv");
     std::fs::write(&log, "earlier rows\n").unwrap();
     let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap()]));

@@ -1,5 +1,5 @@
-//! Helpers shared by the end-to-end tests: the real binary, scratch folders, pseudo-terminals
-//! as serial ports, and the rows of a recording.
+//! Helpers shared by the end-to-end tests: the real binary, scratch folders removed after
+//! each test, pseudo-terminals as serial ports, and the rows of a recording.
 // Each test file uses its own subset of these.
 #![allow(dead_code)]
 
@@ -16,11 +16,12 @@ pub fn bin() -> Command {
     c
 }
 
-pub fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("dbtrail-live-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
+/// A folder of its own for one test, removed with everything in it when the guard drops.
+pub fn scratch(name: &str) -> tempfile::TempDir {
+    tempfile::Builder::new()
+        .prefix(&format!("dbtrail-{name}-"))
+        .tempdir()
+        .unwrap()
 }
 
 /// The hand-worked log-amp shared with the screen's tests (see the file for its maths).
