@@ -403,3 +403,100 @@ fn a_log_truncated_or_deleted_while_recording_stops_the_run_with_exit_1() {
     std::fs::write(&log, "another file\n").unwrap();
     ended_with(child, &err, 1, "was moved or replaced while recording");
 }
+
+#[test]
+fn an_existing_output_is_refused_and_a_full_disk_is_an_error() {
+    let tmp = scratch("outputs");
+    let dir = tmp.path();
+    let out = dir.join("exists.csv");
+    std::fs::write(&out, "keep me\n").unwrap();
+    let refused = &mut bin();
+    refused
+        .args([
+            "record",
+            "--demo",
+            "--fast",
+            "--duration",
+            "1s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stdin(Stdio::null());
+    let refused = output(refused);
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("--append"));
+    assert_eq!(std::fs::read_to_string(&out).unwrap(), "keep me\n");
+    let full = &mut bin();
+    full.args([
+        "record",
+        "--demo",
+        "--fast",
+        "--duration",
+        "30s",
+        "--force",
+        "--out",
+        "/dev/full",
+    ]);
+    let full = output(full);
+    assert_eq!(
+        full.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&full.stderr)
+    );
+    assert!(String::from_utf8_lossy(&full.stderr).contains("cannot write to /dev/full"));
+}
+
+// Source: the rule of issue 16 and record's own (src/cli/files.rs `refuse_existing`):
+// an existing log is refused with exit 2 unless --append or --force, and `watch` checks
+// it before the screen opens. Run without a terminal, watch would otherwise stop at
+// "watch needs a terminal", so the message shows which check came first.
+#[test]
+fn watch_refuses_an_existing_log_before_the_screen_opens() {
+    let tmp = scratch("watch-existing-log");
+    let dir = tmp.path();
+    let log = dir.join("kept.csv");
+    std::fs::write(&log, "earlier rows\n").unwrap();
+    let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap()]));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("kept.csv already exists; add --append to add to it or --force"),
+        "{stderr}"
+    );
+    assert_eq!(std::fs::read_to_string(&log).unwrap(), "earlier rows\n");
+    // With either flag the log is let through, to the terminal check.
+    for flag in ["--append", "--force"] {
+        let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap(), flag]));
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            stderr.contains("watch needs a terminal"),
+            "{flag}: {stderr}"
+        );
+    }
+    assert_eq!(std::fs::read_to_string(&log).unwrap(), "earlier rows\n");
+}
+
+#[test]
+fn unwritable_outputs_fail_with_exit_1_and_a_clear_message() {
+    let tmp = scratch("unwritable");
+    let dir = tmp.path();
+    let cases = [
+        ("/dev/full".to_string(), 1, "cannot write to /dev/full"),
+        (
+            dir.join("no/such/dir/out.csv").display().to_string(),
+            1,
+            "no/such/dir/out.csv",
+        ),
+    ];
+    for (path, code, want) in cases {
+        let out = output(
+            bin()
+                .args(["record", "--demo", "--fast", "--duration", "30s", "--force"])
+                .args(["--out", &path]),
+        );
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(code), "{path}: {stderr}");
+        assert!(stderr.contains(want), "{path}: `{stderr}` lacks `{want}`");
+    }
+}

@@ -216,6 +216,37 @@ pub fn row_count(path: &Path) -> usize {
     rows_so_far(path).1.len()
 }
 
+/// Waits until `record` has written its log's context lines: by then its source is open
+/// and its signal handlers are set.
+pub fn wait_for_log_start(limit: Duration, out: &Path) {
+    wait_for(limit, "the log's context lines", || {
+        std::fs::read_to_string(out).is_ok_and(|t| t.contains("# source:"))
+    });
+}
+
+/// Rows whose `flags` cell holds `word`.
+pub fn flagged(rows: &[Vec<String>], flags: usize, word: &str) -> usize {
+    rows.iter()
+        .filter(|r| r[flags].split('|').any(|f| f == word))
+        .count()
+}
+
+/// The samples the rows hold, from their `samples` column.
+pub fn samples_in(rows: &[Vec<String>], samples: usize) -> usize {
+    rows.iter()
+        .map(|r| r[samples].parse::<usize>().unwrap())
+        .sum()
+}
+
+/// Waits until the recording at `out` has a data row, and gives its header: a row is
+/// written only once the port is open.
+pub fn wait_for_first_row(limit: Duration, out: &Path) -> Vec<String> {
+    wait_until(limit, || match rows_so_far(out) {
+        (header, rows) if !rows.is_empty() => Ok(header),
+        _ => Err("no row yet".to_string()),
+    })
+}
+
 /// Sends `signal` (a name such as INT) to a child.
 pub fn signal(child: &KillOnDrop, signal: &str) {
     let sent = Command::new("kill")

@@ -1,6 +1,8 @@
 //! Sources that never end or block, and signals: every command ends soon after SIGINT,
 //! SIGTERM or SIGHUP whatever its source is doing, and every sample received before the
-//! signal is in the output.
+//! signal is in the output. Part of the real-time group (`cargo test --features
+//! realtime-tests --test 'realtime_*'`): it sends real signals, reads a pseudo-terminal and
+//! paces a replay by the clock.
 //!
 //! Source of every expectation here: the rules in docs/reliability.md (a signal ends the
 //! run cleanly with exit 0; nothing already received is lost). The deadlines only catch a
