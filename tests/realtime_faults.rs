@@ -43,10 +43,7 @@ fn twenty_unplugs_give_twenty_reconnects_every_gap_marked_and_no_row_lost() {
             (master, slave) = pty_pair();
             repoint(&link, &slave);
             // Written only once its interval is over: what is sent next lands after it.
-            wait_until(EFFECT_LIMIT, || match rows_so_far(&out).1 {
-                rows if flagged(&rows, flags, "reconnect") >= plug => Ok(()),
-                rows => Err(format!("reconnect {plug} not marked: {rows:?}")),
-            });
+            wait_for_flagged(EFFECT_LIMIT, &out, flags, "reconnect", plug);
         }
         master
             .write_all(format!("# plug {plug}\n").as_bytes())
@@ -56,10 +53,7 @@ fn twenty_unplugs_give_twenty_reconnects_every_gap_marked_and_no_row_lost() {
             (0..LINES).map(|i| 1000 + (plug * 7 + i) as u32 % 500),
         );
         // Unplugged only once the rows holding them are written, so the gap comes after.
-        wait_until(EFFECT_LIMIT, || match rows_so_far(&out).1 {
-            rows if samples_in(&rows, samples) >= (plug + 1) * LINES => Ok(()),
-            rows => Err(format!("plug {plug}'s samples not all recorded: {rows:?}")),
-        });
+        wait_for_samples(EFFECT_LIMIT, &out, samples, (plug + 1) * LINES);
     }
     signal(&child, "INT");
     assert!(wait(child.release(), Duration::from_secs(15)).success());
@@ -188,12 +182,7 @@ fn a_silent_port_gets_gap_rows_and_the_recorder_goes_on() {
     let child = KillOnDrop::new(spawn(&mut child));
     let header = wait_for_first_row(EFFECT_LIMIT, &out);
     let (samples, flags) = (column(&header, "samples"), column(&header, "flags"));
-    let recorded = |want: usize| {
-        wait_until(EFFECT_LIMIT, || match rows_so_far(&out).1 {
-            rows if samples_in(&rows, samples) >= want => Ok(rows.len()),
-            rows => Err(format!("{want} samples not recorded: {rows:?}")),
-        })
-    };
+    let recorded = |want| wait_for_samples(EFFECT_LIMIT, &out, samples, want);
     master.write_all(b"# banner\n").unwrap();
     write_lines(&mut master, std::iter::repeat_n(1200, 100));
     let before_silence = recorded(100);

@@ -91,12 +91,7 @@ fn unplug_and_replug_marks_the_gap_and_loses_no_row() {
         column(&header, "flags"),
         column(&header, "mean_dbm"),
     );
-    let recorded = |want: usize| {
-        wait_until(EFFECT_LIMIT, || match rows_so_far(&out).1 {
-            rows if samples_in(&rows, samples) >= want => Ok(()),
-            rows => Err(format!("{want} samples not recorded: {rows:?}")),
-        })
-    };
+    let recorded = |want| wait_for_samples(EFFECT_LIMIT, &out, samples, want);
     master.write_all(b"# first plug\n").unwrap();
     write_lines(&mut master, std::iter::repeat_n(1000, 400));
     recorded(400);
@@ -113,10 +108,7 @@ fn unplug_and_replug_marks_the_gap_and_loses_no_row() {
     });
     let (mut master, slave) = pty_pair();
     repoint(&link, &slave);
-    wait_until(EFFECT_LIMIT, || match rows_so_far(&out).1 {
-        rows if flagged(&rows, flags, "reconnect") > 0 => Ok(()),
-        rows => Err(format!("the replug not marked: {rows:?}")),
-    });
+    wait_for_flagged(EFFECT_LIMIT, &out, flags, "reconnect", 1);
     master.write_all(b"# second plug\n").unwrap();
     write_lines(&mut master, std::iter::repeat_n(1500, 300));
     recorded(700);

@@ -238,6 +238,24 @@ pub fn samples_in(rows: &[Vec<String>], samples: usize) -> usize {
         .sum()
 }
 
+/// Waits until the rows so far of the recording at `out` hold `want` samples or more (by
+/// their `samples` column); gives how many rows there are by then.
+pub fn wait_for_samples(limit: Duration, out: &Path, samples: usize, want: usize) -> usize {
+    wait_until(limit, || match rows_so_far(out).1 {
+        rows if samples_in(&rows, samples) >= want => Ok(rows.len()),
+        rows => Err(format!("{want} samples not recorded: {rows:?}")),
+    })
+}
+
+/// Waits until `count` or more rows so far of the recording at `out` are flagged `word`
+/// (in their `flags` column).
+pub fn wait_for_flagged(limit: Duration, out: &Path, flags: usize, word: &str, count: usize) {
+    wait_until(limit, || match rows_so_far(out).1 {
+        rows if flagged(&rows, flags, word) >= count => Ok(()),
+        rows => Err(format!("not {count} rows flagged {word}: {rows:?}")),
+    })
+}
+
 /// Waits until the recording at `out` has a data row, and gives its header: a row is
 /// written only once the port is open.
 pub fn wait_for_first_row(limit: Duration, out: &Path) -> Vec<String> {
