@@ -13,7 +13,7 @@ use rand::{Rng, SeedableRng};
 use rand_pcg::Pcg64;
 use serialport::SerialPort;
 
-/// Far beyond what each step takes (a few rows of 100 ms), so a loaded machine does not
+/// Far beyond what each step takes (a few short rows), so a loaded machine does not
 /// fail it; a lost reconnect or sample (the fault) never arrives at all.
 const EFFECT_LIMIT: Duration = Duration::from_secs(30);
 
@@ -32,7 +32,7 @@ fn twenty_unplugs_give_twenty_reconnects_every_gap_marked_and_no_row_lost() {
     child
         .args(["record", "--port", link.to_str().unwrap()])
         .args(["--profile", profile.to_str().unwrap()])
-        .args(["--every", "100ms", "--out", out.to_str().unwrap()])
+        .args(["--every", "50ms", "--out", out.to_str().unwrap()])
         .stderr(Stdio::null());
     let child = KillOnDrop::new(spawn(&mut child));
     let header = wait_for_first_row(EFFECT_LIMIT, &out);
