@@ -4,17 +4,12 @@
 
 mod common;
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Stdio};
 
-use dbtrail::sim::{BenchDetector, SignalBench};
+use common::scratch;
 
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("dbtrail-cal-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
+use dbtrail::sim::{BenchDetector, SignalBench};
 
 /// Runs `calibrate` with `script` on its standard input.
 fn calibrate(args: &[&str], script: &[&str]) -> std::process::Output {
@@ -93,7 +88,8 @@ fn round_trip(
     check: (f64, f64, f64),
     tolerance: f64,
 ) {
-    let dir = scratch(&format!("{demo}-{model}"));
+    let tmp = scratch(&format!("{demo}-{model}"));
+    let dir = tmp.path();
     let profile = dir.join("bench.toml");
     let mut script: Vec<String> = levels(cal.0, cal.1, cal.2);
     script.push("save".into());
@@ -174,7 +170,8 @@ fn logamp_bench_with_the_log_model_reads_true_power_within_0_1_db() {
 // corner; the figure is the bench's invented truth).
 #[test]
 fn frequency_stage_corrects_captured_frequencies_and_interpolates_between() {
-    let dir = scratch("freq");
+    let tmp = scratch("freq");
+    let dir = tmp.path();
     let profile = dir.join("freq.toml");
     let mut script: Vec<String> = levels(-16.0, 17.0, 3.0);
     script.extend(["freq 5dBm", "50MHz", "146MHz", "300MHz", "440MHz", "save"].map(String::from));
@@ -234,7 +231,8 @@ fn frequency_stage_corrects_captured_frequencies_and_interpolates_between() {
 
 #[test]
 fn bad_entries_get_a_message_and_the_session_goes_on() {
-    let dir = scratch("bad");
+    let tmp = scratch("bad");
+    let dir = tmp.path();
     let profile = dir.join("bad.toml");
     let script = [
         "-10dBm",
@@ -283,7 +281,8 @@ fn path(p: &Path) -> &str {
 // file and what to do) and issue 16's decision: --out is checked before any measuring.
 #[test]
 fn an_existing_out_is_refused_before_any_measuring() {
-    let dir = scratch("keep");
+    let tmp = scratch("keep");
+    let dir = tmp.path();
     let profile = dir.join("keep.toml");
     std::fs::write(&profile, "precious\n").unwrap();
     let out = calibrate(
@@ -307,7 +306,8 @@ fn an_existing_out_is_refused_before_any_measuring() {
 // refuses an existing FILE unless --force was given, saying so; the session goes on.
 #[test]
 fn save_with_a_file_name_writes_that_file_and_refuses_an_existing_one() {
-    let dir = scratch("save-as");
+    let tmp = scratch("save-as");
+    let dir = tmp.path();
     let taken = dir.join("taken.toml");
     std::fs::write(&taken, "precious\n").unwrap();
     let other = dir.join("other.toml");
@@ -348,7 +348,8 @@ fn point_rows(file: &Path) -> Vec<String> {
 // leaves with exit 0 and keeps the points in FILE.points.csv, saying where.
 #[test]
 fn quit_with_unsaved_points_warns_then_keeps_them() {
-    let dir = scratch("quit");
+    let tmp = scratch("quit");
+    let dir = tmp.path();
     let profile = dir.join("q.toml");
     let out = calibrate(
         &["--demo", "--out", path(&profile)],
@@ -377,7 +378,8 @@ fn quit_with_unsaved_points_warns_then_keeps_them() {
 // points CSV beside the intended profile, printing its path.
 #[test]
 fn input_ending_before_save_keeps_the_points_in_a_file() {
-    let dir = scratch("early");
+    let tmp = scratch("early");
+    let dir = tmp.path();
     let early = calibrate(
         &["--demo", "--out", path(&dir.join("early.toml"))],
         &["0dBm", "5dBm"],
@@ -398,7 +400,8 @@ fn input_ending_before_save_keeps_the_points_in_a_file() {
 // 1000 samples leave ±0.03, so 0.1 is a generous bound.
 #[test]
 fn the_zero_and_the_limits_are_measured_first_and_saved() {
-    let dir = scratch("zero");
+    let tmp = scratch("zero");
+    let dir = tmp.path();
     let profile = dir.join("z.toml");
     let mut script = vec!["zero", "limit detector 20dBm", "limit load 5W"];
     script.extend(["-5dBm", "0dBm", "5dBm", "10dBm", "save"]);
@@ -424,7 +427,8 @@ fn the_zero_and_the_limits_are_measured_first_and_saved() {
 // "replaced point N (was X counts, now Y)"; no order warning, no blanked fits.
 #[test]
 fn a_level_entered_again_replaces_its_point() {
-    let dir = scratch("again");
+    let tmp = scratch("again");
+    let dir = tmp.path();
     let profile = dir.join("a.toml");
     let out = calibrate(
         &["--demo", "--out", path(&profile)],
@@ -446,7 +450,8 @@ fn a_level_entered_again_replaces_its_point() {
 // 1e-9 relative); an option that differs from the file is used and reported.
 #[test]
 fn fit_on_calibrates_points_file_gives_the_saved_model() {
-    let dir = scratch("refit");
+    let tmp = scratch("refit");
+    let dir = tmp.path();
     let profile = dir.join("bench.toml");
     let mut script: Vec<String> = vec!["zero".into()];
     script.extend(levels(-16.0, 17.0, 3.0));

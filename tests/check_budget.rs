@@ -215,7 +215,8 @@ fn the_missing_list_names_exactly_what_the_profile_lacks() {
         )]),
         "{demo:?}"
     );
-    let dir = common::scratch("check-budget-missing");
+    let tmp = common::scratch("check-budget-missing");
+    let dir = tmp.path();
     let bare = dir.join("bare.toml");
     std::fs::write(&bare, demo_without_uncertainty()).unwrap();
     let bare_missing = not_included(&check(&[bare.to_str().unwrap(), "--freq", "440MHz"]));
@@ -310,7 +311,8 @@ fn a_profile_may_put_the_roll_off_in_use() {
         "[frequency_correction]\n",
         "[frequency_correction]\nkind = \"roll-off\"\n",
     );
-    let dir = common::scratch("check-budget-roll-off");
+    let tmp = common::scratch("check-budget-roll-off");
+    let dir = tmp.path();
     let path = dir.join("roll-off.toml");
     std::fs::write(&path, text).unwrap();
     let path = path.to_str().unwrap();
@@ -346,7 +348,8 @@ fn with_no_offset_the_offset_term_asks_for_no_key() {
     let text = demo_without_uncertainty();
     let (before, after) = text.split_at(text.find("# The 20 dB attenuator").unwrap());
     let no_offset = format!("{before}{}", &after[after.find("[limits]").unwrap()..]);
-    let dir = common::scratch("check-budget-no-offset");
+    let tmp = common::scratch("check-budget-no-offset");
+    let dir = tmp.path();
     let path = dir.join("no-offset.toml");
     std::fs::write(&path, no_offset).unwrap();
     let text = check(&[path.to_str().unwrap(), "--freq", "440MHz"]);

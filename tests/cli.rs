@@ -5,6 +5,8 @@ mod common;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
+use common::scratch;
+
 fn dbtrail(args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_dbtrail"))
         .args(args)
@@ -127,12 +129,6 @@ fn check_of_a_broken_profile_lists_problems_and_exits_2() {
     );
 }
 
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("dbtrail-cli-{}-{name}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
-
 fn fit_args<'a>(points: &'a str, model: &'a str, out: &'a str) -> Vec<&'a str> {
     let mut args = vec!["fit", points, "--model", model];
     args.extend(common::FIT_ADC_AND_FREQ);
@@ -144,7 +140,8 @@ fn fit_args<'a>(points: &'a str, model: &'a str, out: &'a str) -> Vec<&'a str> {
 // 25 mV/dB slope and a −80 dBm intercept.
 #[test]
 fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
-    let dir = scratch("fit");
+    let tmp = scratch("fit");
+    let dir = tmp.path();
     let points = dir.join("points.csv");
     let mut csv = String::from("applied,counts\n");
     for dbm in [-60, -45, -30, -15, 0] {
@@ -213,8 +210,9 @@ fn refused_log_fit(points: &Path, out_path: &Path) -> String {
 // nothing) and the profile loader's limit of 4096 points (docs/profiles.md).
 #[test]
 fn fit_refuses_more_points_than_a_profile_holds() {
-    let dir = scratch("too-many-points");
-    let message = refused_log_fit(&line_points(&dir, 4097, 0), &dir.join("many.toml"));
+    let tmp = scratch("too-many-points");
+    let dir = tmp.path();
+    let message = refused_log_fit(&line_points(dir, 4097, 0), &dir.join("many.toml"));
     assert!(
         message.contains("4097 calibration points; a profile holds at most 4096"),
         "{message}"
@@ -226,8 +224,9 @@ fn fit_refuses_more_points_than_a_profile_holds() {
 // must be refused with the loader's message before anything is written.
 #[test]
 fn fit_never_writes_a_profile_that_check_refuses() {
-    let dir = scratch("fit-too-large");
-    let message = refused_log_fit(&line_points(&dir, 4000, 250), &dir.join("large.toml"));
+    let tmp = scratch("fit-too-large");
+    let dir = tmp.path();
+    let message = refused_log_fit(&line_points(dir, 4000, 250), &dir.join("large.toml"));
     assert!(
         message.contains("would not load, so") && message.contains("was not written"),
         "{message}"
@@ -311,7 +310,8 @@ const BAD_POINTS: &[(&str, &str, &str)] = &[
 // an extra column): a points file is read by its header names, not by position.
 #[test]
 fn points_columns_are_found_by_name_in_any_order() {
-    let dir = scratch("reordered");
+    let tmp = scratch("reordered");
+    let dir = tmp.path();
     let points = dir.join("reordered.csv");
     let mut csv = String::from("note,counts,applied\n");
     for dbm in [-60, -45, -30, -15, 0] {
@@ -332,7 +332,8 @@ fn points_columns_are_found_by_name_in_any_order() {
 
 #[test]
 fn malformed_points_files_name_the_line_and_exit_2() {
-    let dir = scratch("bad-points");
+    let tmp = scratch("bad-points");
+    let dir = tmp.path();
     for &(file, model, want) in BAD_POINTS {
         let path = Path::new("tests/points/bad").join(file);
         let out_path = dir.join(format!("{file}.toml"));
@@ -393,7 +394,8 @@ fn check_shows_readings_and_end_points_stay_inside_their_span() {
 // 17.9 + 2.6 = 20.5 dBm, over 18 (worked by hand).
 #[test]
 fn check_flags_the_detector_limit_after_the_frequency_correction() {
-    let dir = scratch("detector-limit");
+    let tmp = scratch("detector-limit");
+    let dir = tmp.path();
     let profile = dir.join("rated-high.toml");
     let text = std::fs::read_to_string("profiles/demo-diode.toml").unwrap();
     let text = text.replacen("reference_max_dbm = 37", "reference_max_dbm = 60", 1);
@@ -431,7 +433,8 @@ fn a_missing_profile_is_named_once_with_the_os_reason() {
 // by the diode model; fit must refuse rather than write a profile 40 dB wrong.
 #[test]
 fn diode_fit_of_log_amp_points_is_refused() {
-    let dir = scratch("diode-on-logamp");
+    let tmp = scratch("diode-on-logamp");
+    let dir = tmp.path();
     let points = dir.join("points.csv");
     let mut csv = String::from("applied,counts\n");
     for dbm in (-60..=0).step_by(10) {
@@ -528,8 +531,8 @@ fn a_unit_written_apart_from_its_number_is_accepted() {
 // output file, so a second try is not refused as "already exists".
 #[test]
 fn a_record_with_a_bad_profile_or_capture_leaves_no_output_file() {
-    let dir = std::env::temp_dir().join(format!("dbtrail-no-output-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = scratch("no-output");
+    let dir = tmp.path();
     let capture = dir.join("c.txt");
     std::fs::write(&capture, "1200\n1201\n").unwrap();
     let missing = dir.join("missing.txt");
@@ -558,7 +561,6 @@ fn a_record_with_a_bad_profile_or_capture_leaves_no_output_file() {
         assert!(stderr(&out).contains(says), "{}", stderr(&out));
         assert!(!out_path.exists(), "{out_arg} was made");
     }
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 // Source: the rule in docs/reliability.md (bad input exits 2 with a message saying what
@@ -574,8 +576,8 @@ fn a_device_or_a_huge_file_as_points_is_refused_without_reading_it_all() {
         "{}",
         stderr(&out)
     );
-    let dir = std::env::temp_dir().join(format!("dbtrail-cli-{}-huge-points", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = scratch("huge-points");
+    let dir = tmp.path();
     let huge = dir.join("huge.csv");
     let row = "-10dBm,1000\n";
     std::fs::write(

@@ -2,6 +2,8 @@
 //! built with the C compiler for each mode and channel count, run on a stand-in board,
 //! and its output decoded.
 
+mod common;
+
 use std::path::Path;
 use std::process::Command;
 
@@ -20,11 +22,8 @@ fn build_and_run(binary_mode: bool, channels: u8) -> Vec<u8> {
             "#define BINARY_MODE   0",
             &format!("#define BINARY_MODE   {}", u8::from(binary_mode)),
         );
-    let dir = std::env::temp_dir().join(format!(
-        "dbtrail-firmware-{}-{binary_mode}-{channels}",
-        std::process::id()
-    ));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = common::scratch(&format!("firmware-{binary_mode}-{channels}"));
+    let dir = tmp.path();
     let source = dir.join("example_detector_board.c");
     std::fs::write(&source, firmware).unwrap();
     let exe = dir.join("example_detector_board");

@@ -17,8 +17,8 @@ fn fit(points: &str, out: &Path) -> Output {
 
 /// Points on V = 0.025·(P + 80) V (1 mV a count at 12 bits and 4.095 V), the two lowest
 /// read 60 counts high; `columns` says whether the noise columns are written.
-fn points_file(name: &str, columns: bool) -> PathBuf {
-    let path = common::scratch(name).join("points.csv");
+fn points_file(dir: &Path, columns: bool) -> PathBuf {
+    let path = dir.join("points.csv");
     let mut csv = String::from(if columns {
         "applied,counts,std_counts,samples\n"
     } else {
@@ -57,7 +57,8 @@ fn fitted_slope(out: &Path) -> f64 {
 // over 2 % flatter, as the issue found with the demo diode's lowest points.
 #[test]
 fn fit_weighs_points_by_their_stored_noise_and_says_so() {
-    let weighted_points = points_file("weighted", true);
+    let weighted_dir = common::scratch("weighted");
+    let weighted_points = points_file(weighted_dir.path(), true);
     let out = weighted_points.with_file_name("weighted.toml");
     let run = fit(weighted_points.to_str().unwrap(), &out);
     let text = String::from_utf8_lossy(&run.stdout);
@@ -73,7 +74,8 @@ fn fit_weighs_points_by_their_stored_noise_and_says_so() {
     let weighted = fitted_slope(&out);
     assert!((weighted - 0.025).abs() < 0.025e-3, "{weighted}");
 
-    let plain_points = points_file("unweighted", false);
+    let unweighted_dir = common::scratch("unweighted");
+    let plain_points = points_file(unweighted_dir.path(), false);
     let out = plain_points.with_file_name("unweighted.toml");
     let run = fit(plain_points.to_str().unwrap(), &out);
     let text = String::from_utf8_lossy(&run.stdout);

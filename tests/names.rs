@@ -32,8 +32,9 @@ fn text(bytes: &[u8]) -> String {
 // the column header; `report` must read such a log, whatever the profile's name.
 #[test]
 fn a_name_with_a_line_break_keeps_the_logs_context_lines_whole() {
-    let dir = scratch("named-log");
-    let profile = named_profile(&dir);
+    let tmp = scratch("named-log");
+    let dir = tmp.path();
+    let profile = named_profile(dir);
     let log = dir.join("log.csv");
     let out = output(
         bin()
@@ -65,8 +66,9 @@ fn a_name_with_a_line_break_keeps_the_logs_context_lines_whole() {
 // Source: the rule above (control characters never reach the terminal raw).
 #[test]
 fn check_shows_a_name_with_its_control_characters_escaped() {
-    let dir = scratch("named-check");
-    let profile = named_profile(&dir);
+    let tmp = scratch("named-check");
+    let dir = tmp.path();
+    let profile = named_profile(dir);
     let out = output(bin().arg("check").arg(&profile));
     assert!(out.status.success(), "{}", text(&out.stderr));
     let shown = text(&out.stdout);
@@ -85,7 +87,8 @@ fn demo_description() -> &'static str {
 // option and writes nothing).
 #[test]
 fn fit_refuses_a_name_with_control_characters() {
-    let dir = scratch("named-fit");
+    let tmp = scratch("named-fit");
+    let dir = tmp.path();
     let points = dir.join("points.csv");
     std::fs::write(
         &points,

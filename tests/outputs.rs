@@ -54,8 +54,9 @@ fn outputs_that_cannot_be_synced_take_the_whole_run() {
 
 #[test]
 fn a_fifo_as_the_output_takes_every_row() {
-    let dir = scratch("fifo-out");
-    let pipe = fifo(&dir, "rows.fifo");
+    let tmp = scratch("fifo-out");
+    let dir = tmp.path();
+    let pipe = fifo(dir, "rows.fifo");
     let reader = {
         let pipe = pipe.clone();
         std::thread::spawn(move || {
@@ -76,7 +77,8 @@ fn a_fifo_as_the_output_takes_every_row() {
 
 #[test]
 fn fit_can_write_its_profile_to_dev_null() {
-    let dir = scratch("fit-null");
+    let tmp = scratch("fit-null");
+    let dir = tmp.path();
     let points = dir.join("points.csv");
     let mut csv = String::from("applied,counts\n");
     // Source: worked example by hand: a log detector of 25 counts per dB, -80 dBm at 0.
@@ -94,7 +96,8 @@ fn fit_can_write_its_profile_to_dev_null() {
 
 #[test]
 fn sim_refuses_to_replace_a_file_without_force() {
-    let dir = scratch("sim-out");
+    let tmp = scratch("sim-out");
+    let dir = tmp.path();
     let path = dir.join("capture.txt");
     std::fs::write(&path, "keep me\n").unwrap();
     let sim = |extra: &[&str]| {
@@ -129,7 +132,8 @@ fn with_full_stderr(args: &[&str]) -> std::process::ExitStatus {
 
 #[test]
 fn an_unwritable_standard_error_never_panics() {
-    let dir = scratch("full-stderr");
+    let tmp = scratch("full-stderr");
+    let dir = tmp.path();
     let log = dir.join("log.csv");
     let status = with_full_stderr(&["check", "no-such-profile.toml"]);
     assert_eq!(status.code(), Some(2), "check of a missing profile");
@@ -178,13 +182,14 @@ fn refused_unchanged(out: &std::path::Path, extra: &[&str], words: &[&str]) {
 
 #[test]
 fn append_refuses_rows_that_would_not_fit_and_leaves_the_log_as_it_was() {
-    let dir = scratch("append-shapes");
+    let tmp = scratch("append-shapes");
+    let dir = tmp.path();
     let demo = ["--demo", "--fast", "--duration", "2s"];
     let foreign = dir.join("foreign.csv");
     std::fs::write(&foreign, "a,b\n1,2\n").unwrap();
     refused_unchanged(&foreign, &demo, &["not a dbtrail log", "`a,b`"]);
 
-    let intervals = three_row_log(&dir, "intervals.csv");
+    let intervals = three_row_log(dir, "intervals.csv");
     let per_sample = [&demo[..], &["--every", "0"]].concat();
     refused_unchanged(
         &intervals,
@@ -220,7 +225,8 @@ fn append_refuses_rows_that_would_not_fit_and_leaves_the_log_as_it_was() {
 // to the columns of those times (8 and 10 cells).
 #[test]
 fn append_refuses_a_log_of_earlier_columns() {
-    let dir = scratch("append-earlier-columns");
+    let tmp = scratch("append-earlier-columns");
+    let dir = tmp.path();
     for (cells, header) in [
         (
             8,
@@ -231,7 +237,7 @@ fn append_refuses_a_log_of_earlier_columns() {
             "time_s,utc,samples,mean_dbm,min_dbm,max_dbm,mean_w,flags,bound,averaged",
         ),
     ] {
-        let log = three_row_log(&dir, &format!("old-{cells}.csv"));
+        let log = three_row_log(dir, &format!("old-{cells}.csv"));
         let text = std::fs::read_to_string(&log).unwrap();
         let old: String = text
             .lines()
@@ -259,8 +265,9 @@ fn append_refuses_a_log_of_earlier_columns() {
 
 #[test]
 fn a_run_made_another_way_is_appended_as_a_run_of_its_own() {
-    let dir = scratch("append-runs");
-    let log = three_row_log(&dir, "soak.csv");
+    let tmp = scratch("append-runs");
+    let dir = tmp.path();
+    let log = three_row_log(dir, "soak.csv");
     let got = append(
         &log,
         &["--demo", "--fast", "--duration", "4s", "--every", "2s"],
@@ -289,8 +296,9 @@ fn a_run_made_another_way_is_appended_as_a_run_of_its_own() {
 
 #[test]
 fn a_row_cut_part_way_stays_on_its_own_line_when_a_run_is_appended() {
-    let dir = scratch("append-cut");
-    let log = three_row_log(&dir, "cut.csv");
+    let tmp = scratch("append-cut");
+    let dir = tmp.path();
+    let log = three_row_log(dir, "cut.csv");
     let text = std::fs::read_to_string(&log).unwrap();
     let cut_at = text.len() - 20;
     std::fs::write(&log, &text[..cut_at]).unwrap();
@@ -315,7 +323,8 @@ fn a_row_cut_part_way_stays_on_its_own_line_when_a_run_is_appended() {
 
 #[test]
 fn a_second_recorder_on_the_same_file_is_refused() {
-    let dir = scratch("append-lock");
+    let tmp = scratch("append-lock");
+    let dir = tmp.path();
     let log = dir.join("locked.csv");
     let first = recording(&log, &dir.join("first.txt"));
     let second = append(&log, &["--demo", "--fast", "--duration", "1s"]);
@@ -370,7 +379,8 @@ fn ended_with(child: KillOnDrop, err: &std::path::Path, code: i32, words: &str) 
 
 #[test]
 fn a_log_truncated_or_deleted_while_recording_stops_the_run_with_exit_1() {
-    let dir = scratch("tampered");
+    let tmp = scratch("tampered");
+    let dir = tmp.path();
     let err = dir.join("messages.txt");
     let log = dir.join("truncated.csv");
     let child = recording(&log, &err);
@@ -392,4 +402,101 @@ fn a_log_truncated_or_deleted_while_recording_stops_the_run_with_exit_1() {
     std::fs::rename(&log, dir.join("elsewhere.csv")).unwrap();
     std::fs::write(&log, "another file\n").unwrap();
     ended_with(child, &err, 1, "was moved or replaced while recording");
+}
+
+#[test]
+fn an_existing_output_is_refused_and_a_full_disk_is_an_error() {
+    let tmp = scratch("outputs");
+    let dir = tmp.path();
+    let out = dir.join("exists.csv");
+    std::fs::write(&out, "keep me\n").unwrap();
+    let refused = &mut bin();
+    refused
+        .args([
+            "record",
+            "--demo",
+            "--fast",
+            "--duration",
+            "1s",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .stdin(Stdio::null());
+    let refused = output(refused);
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("--append"));
+    assert_eq!(std::fs::read_to_string(&out).unwrap(), "keep me\n");
+    let full = &mut bin();
+    full.args([
+        "record",
+        "--demo",
+        "--fast",
+        "--duration",
+        "30s",
+        "--force",
+        "--out",
+        "/dev/full",
+    ]);
+    let full = output(full);
+    assert_eq!(
+        full.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&full.stderr)
+    );
+    assert!(String::from_utf8_lossy(&full.stderr).contains("cannot write to /dev/full"));
+}
+
+// Source: the rule of issue 16 and record's own (src/cli/files.rs `refuse_existing`):
+// an existing log is refused with exit 2 unless --append or --force, and `watch` checks
+// it before the screen opens. Run without a terminal, watch would otherwise stop at
+// "watch needs a terminal", so the message shows which check came first.
+#[test]
+fn watch_refuses_an_existing_log_before_the_screen_opens() {
+    let tmp = scratch("watch-existing-log");
+    let dir = tmp.path();
+    let log = dir.join("kept.csv");
+    std::fs::write(&log, "earlier rows\n").unwrap();
+    let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap()]));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("kept.csv already exists; add --append to add to it or --force"),
+        "{stderr}"
+    );
+    assert_eq!(std::fs::read_to_string(&log).unwrap(), "earlier rows\n");
+    // With either flag the log is let through, to the terminal check.
+    for flag in ["--append", "--force"] {
+        let out = output(bin().args(["watch", "--demo", "--log", log.to_str().unwrap(), flag]));
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            stderr.contains("watch needs a terminal"),
+            "{flag}: {stderr}"
+        );
+    }
+    assert_eq!(std::fs::read_to_string(&log).unwrap(), "earlier rows\n");
+}
+
+#[test]
+fn unwritable_outputs_fail_with_exit_1_and_a_clear_message() {
+    let tmp = scratch("unwritable");
+    let dir = tmp.path();
+    let cases = [
+        ("/dev/full".to_string(), 1, "cannot write to /dev/full"),
+        (
+            dir.join("no/such/dir/out.csv").display().to_string(),
+            1,
+            "no/such/dir/out.csv",
+        ),
+    ];
+    for (path, code, want) in cases {
+        let out = output(
+            bin()
+                .args(["record", "--demo", "--fast", "--duration", "30s", "--force"])
+                .args(["--out", &path]),
+        );
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(code), "{path}: {stderr}");
+        assert!(stderr.contains(want), "{path}: `{stderr}` lacks `{want}`");
+    }
 }

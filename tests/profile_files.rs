@@ -90,20 +90,21 @@ fn assert_refused(dir: &Path, profile: &Path, says: &str) {
 // file and what to do; a profile is a regular file of at most 1 MiB.
 #[test]
 fn a_fifo_or_a_device_as_the_profile_is_refused_without_blocking() {
-    let dir = scratch("fifo-profile");
+    let tmp = scratch("fifo-profile");
+    let dir = tmp.path();
     let fifo = dir.join("profile.toml");
     nix::unistd::mkfifo(&fifo, nix::sys::stat::Mode::S_IRWXU).unwrap();
     assert_refused(
-        &dir,
+        dir,
         &fifo,
         "profile.toml is a FIFO (named pipe), not a regular file",
     );
     assert_refused(
-        &dir,
+        dir,
         Path::new("/dev/zero"),
         "/dev/zero is a character device, not a regular file",
     );
-    assert_refused(&dir, &dir, "is a folder, not a regular file");
+    assert_refused(dir, dir, "is a folder, not a regular file");
 }
 
 // Source: the rule in docs/reliability.md (a profile over 1 MiB is refused before
@@ -111,12 +112,13 @@ fn a_fifo_or_a_device_as_the_profile_is_refused_without_blocking() {
 // runs in an address space smaller than the file.
 #[test]
 fn a_huge_profile_is_refused_reading_no_more_than_the_limit() {
-    let dir = scratch("huge-profile");
+    let tmp = scratch("huge-profile");
+    let dir = tmp.path();
     let huge: PathBuf = dir.join("huge.toml");
     let file = std::fs::File::create(&huge).unwrap();
     file.set_len(200 * 1000 * 1000).unwrap();
     assert_refused(
-        &dir,
+        dir,
         &huge,
         "huge.toml:1:1: (file): the file is 200000000 bytes; a profile is at most 1048576 bytes",
     );
@@ -128,11 +130,12 @@ fn a_huge_profile_is_refused_reading_no_more_than_the_limit() {
 // read every level about 4.4 dB wrong, so every command must refuse the profile.
 #[test]
 fn a_profile_whose_parameters_miss_its_points_is_refused_by_every_command() {
-    let dir = scratch("stale-fit");
+    let tmp = scratch("stale-fit");
+    let dir = tmp.path();
     let stale = dir.join("stale.toml");
     std::fs::write(&stale, demo_diode_with_stale_fit(0.6)).unwrap();
-    assert_refused(&dir, &stale, "model.n: with n = 1.05");
-    let (_, message) = run_limited(&dir, &["check".into(), "{}".into()], &stale);
+    assert_refused(dir, &stale, "model.n: with n = 1.05");
+    let (_, message) = run_limited(dir, &["check".into(), "{}".into()], &stale);
     assert!(
         message.contains("misses its own calibration points by 4.")
             && message.contains("Delete n and vl to fit them again"),

@@ -1,18 +1,16 @@
 //! The soak report checked against a certified regression dataset, synthetic runs with a
 //! known slope and noise, an exponential warm-up with a known time constant, and bad logs.
 
-use std::path::PathBuf;
+mod common;
+
+use std::path::{Path, PathBuf};
 use std::process::Command;
+
+use common::scratch;
 
 use dbtrail::report::{analyse, read_log, LogRow, ReportOptions, Run, Spacing};
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("dbtrail-report-{}-{name}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
 
 /// A log in `record`'s interval format: (time s, mean dBm or None, flags).
 fn log_text(every_s: f64, rows: &[(f64, Option<f64>, &str)]) -> String {
@@ -214,7 +212,8 @@ fn dbtrail(args: &[&str]) -> std::process::Output {
 
 #[test]
 fn plots_are_valid_svg_and_png_of_the_stated_size() {
-    let dir = scratch("plots");
+    let tmp = scratch("plots");
+    let dir = tmp.path();
     let log = dir.join("run.csv");
     let mut rows: Vec<(f64, Option<f64>, &str)> = (0..3000)
         .map(|i| (f64::from(i), Some(25.0 + 0.001 * f64::from(i)), ""))
@@ -251,7 +250,8 @@ fn plots_are_valid_svg_and_png_of_the_stated_size() {
 
 #[test]
 fn bad_logs_get_a_clear_message_and_exit_2() {
-    let dir = scratch("bad");
+    let tmp = scratch("bad");
+    let dir = tmp.path();
     let good = log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.0), "")]);
     let cases: [(&str, String, &str); 6] = [
         (
@@ -346,7 +346,8 @@ fn log_columns_are_found_by_name_in_any_order() {
 
 #[test]
 fn json_has_exactly_the_documented_keys() {
-    let dir = scratch("json");
+    let tmp = scratch("json");
+    let dir = tmp.path();
     let log = dir.join("j.csv");
     std::fs::write(
         &log,
@@ -409,7 +410,8 @@ fn json_has_exactly_the_documented_keys() {
 
 #[test]
 fn an_existing_plot_is_never_replaced_without_force() {
-    let dir = scratch("plot-exists");
+    let tmp = scratch("plot-exists");
+    let dir = tmp.path();
     let log = dir.join("run.csv");
     std::fs::write(
         &log,
@@ -505,9 +507,10 @@ fn clock_log(reads: &[(f64, usize)]) -> String {
 // (the median step was 1 ms, so every 0.1 s step was a gap: 49 of them).
 #[test]
 fn a_live_ports_silence_is_a_gap_and_its_burst_is_not() {
-    let dir = scratch("clock");
+    let tmp = scratch("clock");
+    let dir = tmp.path();
     let silence = report_on(
-        &dir,
+        dir,
         "silence.csv",
         &clock_log(&[(0.2, 5), (10.7, 5)]),
         &["--json"],
@@ -518,13 +521,13 @@ fn a_live_ports_silence_is_a_gap_and_its_burst_is_not() {
     let mut reads: Vec<(f64, usize)> = (0..50).map(|i| (f64::from(i) * 0.1, 1)).collect();
     reads.extend((1..=60).map(|i| (4.9 + f64::from(i) * 0.001, 1)));
     let burst = json_of(&report_on(
-        &dir,
+        dir,
         "burst.csv",
         &clock_log(&reads),
         &["--json"],
     ));
     assert_eq!(burst["gaps"], 0, "{burst}");
-    let text = report_on(&dir, "silence.csv", &clock_log(&[(0.2, 5), (10.7, 5)]), &[]);
+    let text = report_on(dir, "silence.csv", &clock_log(&[(0.2, 5), (10.7, 5)]), &[]);
     let stdout = String::from_utf8_lossy(&text.stdout);
     assert!(
         stdout.contains("one per sample stamped by the clock"),
@@ -536,7 +539,8 @@ fn a_live_ports_silence_is_a_gap_and_its_burst_is_not() {
 // recording of it says so and its report reads 2000 rows at 1000 samples/s, 2 s, no gaps.
 #[test]
 fn a_per_sample_recording_says_its_rate_and_the_report_uses_it() {
-    let dir = scratch("rate");
+    let tmp = scratch("rate");
+    let dir = tmp.path();
     let log = dir.join("tune.csv");
     let recorded = dbtrail(&[
         "record",
@@ -578,7 +582,8 @@ fn a_per_sample_recording_says_its_rate_and_the_report_uses_it() {
 // numbers count every line of the file.
 #[test]
 fn times_that_repeat_step_back_or_overlap_are_refused_with_their_line() {
-    let dir = scratch("order");
+    let tmp = scratch("order");
+    let dir = tmp.path();
     let head = context("every 10s", "aa", "2026-12-01T10:00:00.000Z") + INTERVAL_HEADER;
     let rows = |times: &[f64]| -> String { times.iter().map(|&t| interval_row(t, 1.0)).collect() };
     let cases = [
@@ -599,12 +604,12 @@ fn times_that_repeat_step_back_or_overlap_are_refused_with_their_line() {
         ),
     ];
     for (name, body, want) in cases {
-        refused(&report_on(&dir, name, &format!("{head}{body}"), &[]), &want);
+        refused(&report_on(dir, name, &format!("{head}{body}"), &[]), &want);
     }
     // Two logs joined end to end by `cat`: the second's `#` lines are named.
     let joined = format!("{head}{}{head}{}", rows(&[0.0, 10.0]), rows(&[0.0]));
     refused(
-        &report_on(&dir, "joined.csv", &joined, &[]),
+        &report_on(dir, "joined.csv", &joined, &[]),
         &[":9: ", "two logs joined"],
     );
 }
@@ -618,12 +623,13 @@ fn resumed(at: &str) -> String {
 // gap from 40 s to 3600 s (3560 s), and the run spans 3630 s.
 #[test]
 fn an_appended_run_on_the_same_profile_continues_at_its_resumed_time() {
-    let dir = scratch("resumed");
+    let tmp = scratch("resumed");
+    let dir = tmp.path();
     let mut text = context("every 10s", "aa", "2026-12-01T10:00:00.000Z") + INTERVAL_HEADER;
     text.extend([0.0, 10.0, 20.0, 30.0].map(|t| interval_row(t, 1.0)));
     text.push_str(&resumed("2026-12-01T11:00:00.000Z"));
     text.extend([0.0, 10.0, 20.0].map(|t| interval_row(t, 2.0)));
-    let value = json_of(&report_on(&dir, "one.csv", &text, &["--json"]));
+    let value = json_of(&report_on(dir, "one.csv", &text, &["--json"]));
     assert_eq!(
         (value["gaps"].as_u64(), value["samples"].as_u64()),
         (Some(1), Some(70))
@@ -638,7 +644,7 @@ fn an_appended_run_on_the_same_profile_continues_at_its_resumed_time() {
     early.push_str(&resumed("2026-12-01T10:00:05.000Z"));
     early.push_str(&interval_row(0.0, 1.0));
     refused(
-        &report_on(&dir, "early.csv", &early, &[]),
+        &report_on(dir, "early.csv", &early, &[]),
         &[":11: time_s:", "clock set back"],
     );
 }
@@ -658,8 +664,9 @@ fn two_run_log() -> String {
 // change the profile or the rows' spacing starts a run of its own, reported on its own.
 #[test]
 fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
-    let dir = scratch("runs");
-    let value = json_of(&report_on(&dir, "two.csv", &two_run_log(), &["--json"]));
+    let tmp = scratch("runs");
+    let dir = tmp.path();
+    let value = json_of(&report_on(dir, "two.csv", &two_run_log(), &["--json"]));
     let runs = value["runs"]
         .as_array()
         .expect("an array of runs under `runs`");
@@ -676,7 +683,7 @@ fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
     near(&runs[1], "mean_dbm", 5.0);
     assert_eq!(runs[0]["duration_s"].as_f64(), Some(40.0));
     assert_eq!(runs[1]["duration_s"].as_f64(), Some(4.0));
-    let text = report_on(&dir, "two.csv", &two_run_log(), &[]);
+    let text = report_on(dir, "two.csv", &two_run_log(), &[]);
     let stdout = String::from_utf8_lossy(&text.stdout);
     assert!(
         stdout.contains("Run 1 of 2, from line 1\n")
@@ -688,7 +695,7 @@ fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
         "{stdout}"
     );
     let second = json_of(&report_on(
-        &dir,
+        dir,
         "two.csv",
         &two_run_log(),
         &["--json", "--run", "2"],
@@ -696,7 +703,7 @@ fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
     near(&second, "mean_dbm", 5.0);
     let plot = dir.join("two.svg");
     let unchosen = report_on(
-        &dir,
+        dir,
         "two.csv",
         &two_run_log(),
         &["--plot", plot.to_str().unwrap()],
@@ -709,7 +716,8 @@ fn a_resumed_run_on_another_profile_and_interval_is_reported_on_its_own() {
 // and column (power −200 to +200 dBm, samples up to 10^12 a row, times 0 to 10^9 s).
 #[test]
 fn cells_outside_a_physical_range_are_refused_with_line_and_column() {
-    let dir = scratch("range");
+    let tmp = scratch("range");
+    let dir = tmp.path();
     let head = context("every 10s", "aa", "2026-12-01T10:00:00.000Z") + INTERVAL_HEADER;
     let good = interval_row(0.0, 1.0);
     let cases = [
@@ -737,7 +745,7 @@ fn cells_outside_a_physical_range_are_refused_with_line_and_column() {
     for (i, (row, at, what)) in cases.iter().enumerate() {
         let text = format!("{head}{good}{row}");
         refused(
-            &report_on(&dir, &format!("r{i}.csv"), &text, &[]),
+            &report_on(dir, &format!("r{i}.csv"), &text, &[]),
             &[at, what],
         );
     }
@@ -747,18 +755,19 @@ fn cells_outside_a_physical_range_are_refused_with_line_and_column() {
 // inside the log count as lines.
 #[test]
 fn messages_name_the_files_real_line_past_comment_lines() {
-    let dir = scratch("lines");
+    let tmp = scratch("lines");
+    let dir = tmp.path();
     let mut text = context("every 10s", "aa", "2026-12-01T10:00:00.000Z") + INTERVAL_HEADER;
     text.push_str(&interval_row(0.0, 1.0));
     text.push_str("# a note\n# another\n");
     text.push_str("10,x,10,abc,1,1,0.001,\n");
     refused(
-        &report_on(&dir, "letters.csv", &text, &[]),
+        &report_on(dir, "letters.csv", &text, &[]),
         &[":10: mean_dbm: `abc`"],
     );
     let short = text.replace("abc", "1") + "# end note\n20,x,10\n";
     refused(
-        &report_on(&dir, "short.csv", &short, &[]),
+        &report_on(dir, "short.csv", &short, &[]),
         &[":12: (row): 3 fields"],
     );
 }
@@ -767,11 +776,12 @@ fn messages_name_the_files_real_line_past_comment_lines() {
 // option; the plot formats are SVG and PNG (docs/report.md).
 #[test]
 fn a_plot_name_without_a_known_extension_is_bad_input() {
-    let dir = scratch("plot-name");
+    let tmp = scratch("plot-name");
+    let dir = tmp.path();
     let log = log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.5), "")]);
     for name in ["run.jpg", "run"] {
         let plot = dir.join(name);
-        let out = report_on(&dir, "run.csv", &log, &["--plot", plot.to_str().unwrap()]);
+        let out = report_on(dir, "run.csv", &log, &["--plot", plot.to_str().unwrap()]);
         refused(&out, &["--plot", "the extensions supported: .svg, .png"]);
         assert!(!plot.exists());
     }
@@ -794,13 +804,14 @@ fn report_on_two_hours(dir: &std::path::Path, args: &[&str]) -> std::process::Ou
 // the log names the log's time range.
 #[test]
 fn a_window_outside_the_log_says_what_the_range_is() {
-    let dir = scratch("window");
-    let backwards = report_on_two_hours(&dir, &["--from", "2h", "--to", "1h"]);
+    let tmp = scratch("window");
+    let dir = tmp.path();
+    let backwards = report_on_two_hours(dir, &["--from", "2h", "--to", "1h"]);
     refused(
         &backwards,
         &["--from 2:00:00 (7200 s) is after --to 1:00:00 (3600 s)"],
     );
-    let late = report_on_two_hours(&dir, &["--from", "100h"]);
+    let late = report_on_two_hours(dir, &["--from", "100h"]);
     refused(
         &late,
         &[
@@ -815,9 +826,10 @@ fn a_window_outside_the_log_says_what_the_range_is() {
 // 1:05:10 is 3910 s and 05:10 is 310 s, so they pick the same rows as those durations.
 #[test]
 fn times_as_the_report_prints_them_are_accepted_by_from_and_to() {
-    let dir = scratch("clock-times");
-    let by_clock = report_on_two_hours(&dir, &["--json", "--from", "05:10", "--to", "1:05:10"]);
-    let by_duration = report_on_two_hours(&dir, &["--json", "--from", "310s", "--to", "3910s"]);
+    let tmp = scratch("clock-times");
+    let dir = tmp.path();
+    let by_clock = report_on_two_hours(dir, &["--json", "--from", "05:10", "--to", "1:05:10"]);
+    let by_duration = report_on_two_hours(dir, &["--json", "--from", "310s", "--to", "3910s"]);
     let value = json_of(&by_clock);
     assert_eq!(value, json_of(&by_duration));
     // Rows 310 s to 3910 s: 361 rows of 10 s.
@@ -828,7 +840,8 @@ fn times_as_the_report_prints_them_are_accepted_by_from_and_to() {
 // the argument parser's "unexpected argument".
 #[test]
 fn negative_option_values_get_the_options_own_message() {
-    let dir = scratch("negative");
+    let tmp = scratch("negative");
+    let dir = tmp.path();
     let cases = [
         (["--size", "-5x100"], "`-5x100` is not a plot size"),
         (["--channel", "-1"], "`-1` is not a channel"),
@@ -840,7 +853,7 @@ fn negative_option_values_get_the_options_own_message() {
         (["--to", "-1:00"], "`-1:00` is not a time"),
     ];
     for (args, want) in cases {
-        let out = report_on_two_hours(&dir, &args);
+        let out = report_on_two_hours(dir, &args);
         refused(&out, &[want]);
         assert!(!String::from_utf8_lossy(&out.stderr).contains("unexpected argument"));
     }
@@ -879,7 +892,8 @@ fn a_row_counted_at_a_bound_makes_the_reports_mean_at_least() {
     let report = analysed(&text, &ReportOptions::default());
     assert!((report.mean_dbm.unwrap() - 5.118_833_61).abs() < 1e-6);
     assert_eq!(report.mean_bound, dbtrail::stats::Bound::AtLeast);
-    let dir = scratch("at-least");
+    let tmp = scratch("at-least");
+    let dir = tmp.path();
     let log = dir.join("a.csv");
     std::fs::write(&log, &text).unwrap();
     let out = dbtrail(&["report", log.to_str().unwrap()]);
@@ -927,8 +941,8 @@ fn below_span_rows_give_at_most_and_bounds_both_ways_give_none() {
 }
 
 /// A log of the overload demo, rows `every`, for `duration`: its path and text.
-fn overload_log(name: &str, every: &str, duration: &str) -> (PathBuf, String) {
-    let log = scratch(name).join("overload.csv");
+fn overload_log(dir: &Path, every: &str, duration: &str) -> (PathBuf, String) {
+    let log = dir.join("overload.csv");
     let out = dbtrail(&[
         "record",
         "--demo",
@@ -958,7 +972,8 @@ fn overload_log(name: &str, every: &str, duration: &str) -> (PathBuf, String) {
 // alone (+25 dBm, what leaving the bursts out gave: +25.0x) and that true mean.
 #[test]
 fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
-    let (log, text) = overload_log("overload", "5s", "40s");
+    let tmp = scratch("overload");
+    let (log, text) = overload_log(tmp.path(), "5s", "40s");
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
@@ -987,7 +1002,8 @@ fn the_overload_demo_marks_clipped_rows_at_least_and_the_report_says_so() {
 // bound, flagged `at-least`, where before its `dbm` cell was left empty.
 #[test]
 fn a_clipped_sample_of_a_per_sample_log_shows_its_bound() {
-    let (_, text) = overload_log("overload-samples", "0", "21s");
+    let tmp = scratch("overload-samples");
+    let (_, text) = overload_log(tmp.path(), "0", "21s");
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     assert_eq!(
@@ -1048,7 +1064,8 @@ fn the_reports_uncertainty_takes_the_rows_own_as_systematic() {
         analysed(&missing, &ReportOptions::default()).mean_u_db,
         None
     );
-    let dir = scratch("uncertainty");
+    let tmp = scratch("uncertainty");
+    let dir = tmp.path();
     let log = dir.join("u.csv");
     std::fs::write(&log, &text).unwrap();
     let out = dbtrail(&["report", log.to_str().unwrap()]);
@@ -1087,7 +1104,8 @@ fn bounds_and_old_logs_give_no_uncertainty() {
 // figure that is not the warm-up time.
 #[test]
 fn settled_after_is_the_warm_up_time_in_json_and_text() {
-    let dir = scratch("settled");
+    let tmp = scratch("settled");
+    let dir = tmp.path();
     let (tau, a) = (300.0, 2.0);
     let rows: Vec<(f64, Option<f64>, &str)> = (0..3600)
         .map(|i| {
@@ -1096,10 +1114,10 @@ fn settled_after_is_the_warm_up_time_in_json_and_text() {
         })
         .collect();
     let text = log_text(3.0, &rows);
-    let value = json_of(&report_on(&dir, "warm.csv", &text, &["--json"]));
+    let value = json_of(&report_on(dir, "warm.csv", &text, &["--json"]));
     let warmup = value["warmup_s"].as_f64().unwrap_or(0.0);
     near(&value, "settled_after_s", warmup);
-    let table = report_on(&dir, "warm.csv", &text, &[]);
+    let table = report_on(dir, "warm.csv", &text, &[]);
     let stdout = String::from_utf8_lossy(&table.stdout);
     let settled = stdout
         .lines()
@@ -1120,8 +1138,9 @@ fn settled_after_is_the_warm_up_time_in_json_and_text() {
 // log's mean_w cells are not used), 40 s + 4 s of span, 80 samples, 1 to 5 dBm.
 #[test]
 fn several_runs_are_reported_together_where_that_makes_sense() {
-    let dir = scratch("together");
-    let value = json_of(&report_on(&dir, "two.csv", &two_run_log(), &["--json"]));
+    let tmp = scratch("together");
+    let dir = tmp.path();
+    let value = json_of(&report_on(dir, "two.csv", &two_run_log(), &["--json"]));
     let mut keys: Vec<&str> = value
         .as_object()
         .unwrap()
@@ -1159,7 +1178,7 @@ fn several_runs_are_reported_together_where_that_makes_sense() {
     assert!(runs
         .iter()
         .all(|r| r["settled_after_s"].is_null() && r["model"].is_string()));
-    let text = report_on(&dir, "two.csv", &two_run_log(), &[]);
+    let text = report_on(dir, "two.csv", &two_run_log(), &[]);
     let stdout = String::from_utf8_lossy(&text.stdout);
     let together = stdout
         .split("\nAll 2 runs together\n")
@@ -1176,10 +1195,11 @@ fn several_runs_are_reported_together_where_that_makes_sense() {
 // line wrapped under its label.
 #[test]
 fn the_text_report_fits_100_columns() {
-    let dir = scratch("columns");
+    let tmp = scratch("columns");
+    let dir = tmp.path();
     let long_source = format!("# source: {}\n", "a very long description ".repeat(12));
     let text = two_hour_log().replacen("# source: test\n", &long_source, 1);
-    let out = report_on(&dir, "wide.csv", &text, &[]);
+    let out = report_on(dir, "wide.csv", &text, &[]);
     let stdout = String::from_utf8_lossy(&out.stdout);
     assert!(out.status.success());
     for line in stdout.lines() {
@@ -1213,7 +1233,8 @@ fn the_text_report_fits_100_columns() {
 // (h:mm:ss, m:ss, seconds, the Allan table's `2 min 40 s`) and the durations 30m, 1h30m.
 #[test]
 fn every_printed_time_form_is_a_from_or_to() {
-    let dir = scratch("time-forms");
+    let tmp = scratch("time-forms");
+    let dir = tmp.path();
     let pairs = [
         (["54:50", "1:05:10"], ["3290s", "3910s"]),
         (["2 min 40 s", "1 h 25 min 20 s"], ["160s", "5120s"]),
@@ -1221,9 +1242,9 @@ fn every_printed_time_form_is_a_from_or_to() {
     ];
     for (printed, plain) in pairs {
         let by_form =
-            report_on_two_hours(&dir, &["--json", "--from", printed[0], "--to", printed[1]]);
+            report_on_two_hours(dir, &["--json", "--from", printed[0], "--to", printed[1]]);
         let by_seconds =
-            report_on_two_hours(&dir, &["--json", "--from", plain[0], "--to", plain[1]]);
+            report_on_two_hours(dir, &["--json", "--from", plain[0], "--to", plain[1]]);
         assert_eq!(json_of(&by_form), json_of(&by_seconds), "{printed:?}");
     }
 }
@@ -1234,7 +1255,8 @@ fn every_printed_time_form_is_a_from_or_to() {
 // not settled, and each missing drift must give its own reason, never a generic one.
 #[test]
 fn a_soak_cut_short_in_its_warm_up_says_what_it_cannot_tell() {
-    let dir = scratch("short-soak");
+    let tmp = scratch("short-soak");
+    let dir = tmp.path();
     let log = dir.join("short.csv");
     let recorded = dbtrail(&[
         "record",
@@ -1357,15 +1379,16 @@ fn same_figures(a: &serde_json::Value, b: &serde_json::Value, path: &str) {
 // the intervals here are folded by hand in the test.
 #[test]
 fn a_per_sample_log_folded_to_seconds_reports_the_figures_of_its_interval_log() {
-    let dir = scratch("folded");
+    let tmp = scratch("folded");
+    let dir = tmp.path();
     let (samples, intervals) = a_sample_log_and_its_intervals();
     let mut folded = json_of(&report_on(
-        &dir,
+        dir,
         "s.csv",
         &samples,
         &["--json", "--every", "1s"],
     ));
-    let mut by_hand = json_of(&report_on(&dir, "i.csv", &intervals, &["--json"]));
+    let mut by_hand = json_of(&report_on(dir, "i.csv", &intervals, &["--json"]));
     assert_eq!(folded["reduced_to_s"], 1.0);
     assert_eq!(by_hand["reduced_to_s"], serde_json::Value::Null);
     assert_eq!(folded["samples"], 570);
@@ -1381,13 +1404,14 @@ fn a_per_sample_log_folded_to_seconds_reports_the_figures_of_its_interval_log() 
 // 1 s first; 100001 samples at 1000 samples/s span 100.001 s, so 101 intervals.
 #[test]
 fn a_per_sample_log_past_the_cap_is_folded_and_says_so() {
-    let dir = scratch("cap");
+    let tmp = scratch("cap");
+    let dir = tmp.path();
     let mut text = context("every sample", "0", "2026-12-01T10:00:00.000Z");
     text.push_str(&format!("# stamps: at 1000 samples/s\n{SAMPLE_HEADER}"));
     for k in 0..100_001u32 {
         text.push_str(&sample_row(f64::from(k) / 1000.0));
     }
-    let out = report_on(&dir, "long.csv", &text, &[]);
+    let out = report_on(dir, "long.csv", &text, &[]);
     let table = String::from_utf8_lossy(&out.stdout);
     assert!(
         out.status.success(),
@@ -1395,7 +1419,7 @@ fn a_per_sample_log_past_the_cap_is_folded_and_says_so() {
         String::from_utf8_lossy(&out.stderr)
     );
     assert!(table.contains("101 intervals of 1.000 s"), "{table}");
-    let json = json_of(&report_on(&dir, "long2.csv", &text, &["--json"]));
+    let json = json_of(&report_on(dir, "long2.csv", &text, &["--json"]));
     assert_eq!(json["reduced_to_s"], 1.0);
     assert_eq!(json["samples"], 100_001);
 }
@@ -1405,7 +1429,8 @@ fn a_per_sample_log_past_the_cap_is_folded_and_says_so() {
 // not UTF-8 further on (line 12) are never reached, so they are not what is reported.
 #[test]
 fn a_bad_row_half_way_is_reported_without_reading_the_rest() {
-    let dir = scratch("bad-half-way");
+    let tmp = scratch("bad-half-way");
+    let dir = tmp.path();
     let mut text = context("every 1s", "0", "2026-12-01T10:00:00.000Z").into_bytes();
     text.extend_from_slice(INTERVAL_HEADER.as_bytes());
     for t in 0..3 {
@@ -1426,7 +1451,8 @@ fn a_bad_row_half_way_is_reported_without_reading_the_rest() {
 // spread may differ by the rounding, 5e-5 dB at most; the extremes are the same readings.
 #[test]
 fn a_per_sample_recording_folded_to_10_s_agrees_with_the_same_run_recorded_at_10_s() {
-    let dir = scratch("same-run");
+    let tmp = scratch("same-run");
+    let dir = tmp.path();
     let (samples, intervals) = (dir.join("s.csv"), dir.join("i.csv"));
     for (every, log) in [("0", &samples), ("10s", &intervals)] {
         let out = dbtrail(&[
@@ -1494,15 +1520,16 @@ fn near_within(report: &serde_json::Value, key: &str, want: f64, within: f64) {
 // option; an interval of no time cannot hold a row.
 #[test]
 fn an_every_of_no_time_is_refused_naming_the_option() {
-    let dir = scratch("every-zero");
+    let tmp = scratch("every-zero");
+    let dir = tmp.path();
     let text = log_text(1.0, &[(0.0, Some(1.0), ""), (1.0, Some(1.0), "")]);
-    let out = report_on(&dir, "z.csv", &text, &["--every", "0s"]);
+    let out = report_on(dir, "z.csv", &text, &["--every", "0s"]);
     refused(&out, &["--every", "`0s` is no interval to fold rows into"]);
 }
 
 /// A demo soak recorded `--fast` for `duration`, one row per `every`.
-fn demo_soak(name: &str, duration: &str, every: &str) -> PathBuf {
-    let log = scratch(name).join("soak.csv");
+fn demo_soak(dir: &Path, duration: &str, every: &str) -> PathBuf {
+    let log = dir.join("soak.csv");
     let recorded = dbtrail(&[
         "record",
         "--demo",
@@ -1556,16 +1583,17 @@ fn text_line(text: &str, label: &str) -> String {
 // of at most −5 dBm. Before, both were printed as plain values.
 #[test]
 fn extremes_from_bound_rows_are_reported_as_bounds() {
-    let dir = scratch("extreme-bounds");
+    let tmp = scratch("extreme-bounds");
+    let dir = tmp.path();
     let high = bounded_log_text(&[
         (0.0, 10, Some(0.0), "", "", 10),
         (1.0, 10, Some(10.0), "clip", "at-least", 10),
         (2.0, 10, Some(0.0), "", "", 10),
     ]);
-    let value = json_of(&report_on(&dir, "high.csv", &high, &["--json"]));
+    let value = json_of(&report_on(dir, "high.csv", &high, &["--json"]));
     assert_eq!(value["max_bound"], "at-least", "{value}");
     assert!(value["min_bound"].is_null(), "{value}");
-    let text = report_on(&dir, "high.csv", &high, &[]);
+    let text = report_on(dir, "high.csv", &high, &[]);
     let text = String::from_utf8_lossy(&text.stdout);
     assert!(
         text_line(&text, "min / max")
@@ -1577,7 +1605,7 @@ fn extremes_from_bound_rows_are_reported_as_bounds() {
         (1.0, 10, Some(-5.0), "below", "at-most", 10),
         (2.0, 10, Some(0.0), "", "", 10),
     ]);
-    let value = json_of(&report_on(&dir, "low.csv", &low, &["--json"]));
+    let value = json_of(&report_on(dir, "low.csv", &low, &["--json"]));
     assert_eq!(value["min_bound"], "at-most", "{value}");
     assert!(value["max_bound"].is_null(), "{value}");
 }
@@ -1587,7 +1615,8 @@ fn extremes_from_bound_rows_are_reported_as_bounds() {
 // report says `at least`, and the plot marks those rows and names the marker.
 #[test]
 fn the_overload_demo_reports_its_highest_reading_as_a_bound_and_marks_the_rows() {
-    let (log, _) = overload_log("overload-extremes", "5s", "30s");
+    let tmp = scratch("overload-extremes");
+    let (log, _) = overload_log(tmp.path(), "5s", "30s");
     let out = dbtrail(&["report", log.to_str().unwrap()]);
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
@@ -1610,14 +1639,15 @@ fn the_overload_demo_reports_its_highest_reading_as_a_bound_and_marks_the_rows()
 // `settled from the start` and `settled_after_s: 0.0`.
 #[test]
 fn too_few_rows_for_the_warm_up_model_leave_settling_unknown() {
-    let dir = scratch("six-rows");
+    let tmp = scratch("six-rows");
+    let dir = tmp.path();
     let rows: Vec<(f64, Option<f64>, &str)> = (0..6)
         .map(|i| (f64::from(i) * 5.0, Some(25.0 + 0.01 * f64::from(i % 2)), ""))
         .collect();
     let text = log_text(5.0, &rows);
-    let value = json_of(&report_on(&dir, "six.csv", &text, &["--json"]));
+    let value = json_of(&report_on(dir, "six.csv", &text, &["--json"]));
     assert!(value["settled_after_s"].is_null(), "{value}");
-    let out = report_on(&dir, "six.csv", &text, &[]);
+    let out = report_on(dir, "six.csv", &text, &[]);
     let table = String::from_utf8_lossy(&out.stdout);
     assert_eq!(
         text_line(&table, "warm-up"),
@@ -1636,7 +1666,8 @@ fn too_few_rows_for_the_warm_up_model_leave_settling_unknown() {
 // short to tell them apart, and the run must not be called settled (before, it was).
 #[test]
 fn a_two_minute_soak_mid_warm_up_is_not_called_settled() {
-    let log = demo_soak("two-minutes", "2m", "0");
+    let tmp = scratch("two-minutes");
+    let log = demo_soak(tmp.path(), "2m", "0");
     let value = json_of(&dbtrail(&["report", log.to_str().unwrap(), "--json"]));
     assert!(value["settled_after_s"].is_null(), "{value}");
     assert!(
@@ -1663,15 +1694,16 @@ fn a_two_minute_soak_mid_warm_up_is_not_called_settled() {
 // rows`.
 #[test]
 fn a_short_span_says_its_rows_without_times_from_its_own_start() {
-    let dir = scratch("short-span");
-    let out = report_on_two_hours(&dir, &["--from", "1:59:40"]);
+    let tmp = scratch("short-span");
+    let dir = tmp.path();
+    let out = report_on_two_hours(dir, &["--from", "1:59:40"]);
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
         text_line(&text, "drift").starts_with("none after the warm-up: only 2 rows in the span,"),
         "{text}"
     );
     assert!(!text.contains("from 0 s on"), "{text}");
-    let out = report_on_two_hours(&dir, &["--from", "1:59:50"]);
+    let out = report_on_two_hours(dir, &["--from", "1:59:50"]);
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
         text_line(&text, "drift").contains("only 1 row in the span"),
@@ -1690,7 +1722,8 @@ fn a_short_span_says_its_rows_without_times_from_its_own_start() {
 // whole-span drift spoke of `more than half of the 120 there`.
 #[test]
 fn the_model_and_bandwidth_messages_use_the_span_line_and_plain_words() {
-    let log = demo_soak("plain-words", "20m", "10s");
+    let tmp = scratch("plain-words");
+    let log = demo_soak(tmp.path(), "20m", "10s");
     let out = dbtrail(&["report", log.to_str().unwrap()]);
     let text = String::from_utf8_lossy(&out.stdout);
     let model = text_line(&text, "model");
@@ -1708,7 +1741,8 @@ fn the_model_and_bandwidth_messages_use_the_span_line_and_plain_words() {
 // overload test is not a soak. Before, every plot was titled `Soak at …`.
 #[test]
 fn the_plot_title_fits_an_overload_run_too() {
-    let (log, _) = overload_log("overload-title", "5s", "30s");
+    let tmp = scratch("overload-title");
+    let (log, _) = overload_log(tmp.path(), "5s", "30s");
     let drawing = svg_of_log(&log);
     assert!(drawing.contains("Power at 146MHz · demo-diode"), "no title");
     assert!(

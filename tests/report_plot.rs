@@ -34,7 +34,8 @@ fn log_of(rows: u32, step_s: u32) -> String {
 // went (`dbtrail: plot written to PATH`), and the frequency in the title.
 #[test]
 fn the_report_says_where_the_plot_went_and_titles_it_with_the_frequency() {
-    let dir = common::scratch("report-plot");
+    let tmp = common::scratch("report-plot");
+    let dir = tmp.path();
     let log = dir.join("soak.csv");
     std::fs::write(&log, log_at_146_mhz()).unwrap();
     for name in ["soak.svg", "soak.png"] {
@@ -105,7 +106,8 @@ fn svg_texts(svg: &str) -> Vec<(f64, String, f64, String)> {
 // put different numbers at the right-hand end of the time axis.
 #[test]
 fn no_label_of_the_plot_runs_past_its_edges() {
-    let dir = common::scratch("report-plot-edges");
+    let tmp = common::scratch("report-plot-edges");
+    let dir = tmp.path();
     for (rows, step) in [
         (360, 10),
         (121, 1),

@@ -7,21 +7,25 @@ set -euo pipefail
 bin=${1:?path to the dbtrail binary}
 sock="dbtrail-smoke-$$"
 tm() { tmux -L "$sock" "$@"; }
+# Every wait below polls ten times a second, 30 s at most: generous for a loaded machine,
+# and spent only when the test fails.
+polls=300
 logs=$(mktemp -d)
-trap 'tm kill-server 2>/dev/null || true; rm -rf "$logs"' EXIT
 out=$(mktemp)
-# An earlier log, for the refusals and --append below.
-"$bin" record --demo --every 1s --duration 3s --out "$logs/earlier.csv" 2>/dev/null
+trap 'tm kill-server 2>/dev/null || true; rm -rf "$logs" "$out"' EXIT
+# An earlier log, for the refusals and --append below: made flat out (--fast), since only
+# its rows and shape matter, not the time they took.
+"$bin" record --demo --fast --every 1s --duration 3s --out "$logs/earlier.csv" 2>/dev/null
 earlier_rows=$(grep -vc '^#' "$logs/earlier.csv")
 
 tm new-session -d -x 100 -y 30 "bash --norc --noprofile"
 tm send-keys "PS1='ready> '" Enter
 tm send-keys "'$bin' watch --demo tune; echo \"exit=\$?\" > '$out'; stty -a >> '$out'" Enter
 
-# Waits (10 s at most) until the screen matches the extended regular expression $1, or
-# fails saying $2 and showing the screen.
+# Waits until the screen matches the extended regular expression $1, or fails saying $2
+# and showing the screen.
 wait_for_screen() {
-    for _ in $(seq 1 100); do
+    for _ in $(seq 1 "$polls"); do
         if tm capture-pane -p | grep -Eq "$1"; then return 0; fi
         sleep 0.1
     done
@@ -35,7 +39,7 @@ wait_for_screen "±[0-9]+\.[0-9]{2} dB.* k = 2, about 95 %" "no ± beside the re
 # Waits for the exit code and terminal modes the shell writes after watch ends, then
 # checks the code was $1 and the terminal is back in canonical, echoing mode.
 expect_exit_and_modes() {
-    for _ in $(seq 1 100); do
+    for _ in $(seq 1 "$polls"); do
         [ -s "$out" ] && grep -q "icanon" "$out" && break
         sleep 0.1
     done
@@ -53,7 +57,7 @@ held() { tm capture-pane -p | grep -Eo "for [0-9:]+" | head -1; }
 before=$(held)
 tm send-keys Escape
 wait_for_screen "for [0-9:]+" "the screen went away after Esc"
-for _ in $(seq 1 100); do [ "$(held)" != "$before" ] && break; sleep 0.1; done
+for _ in $(seq 1 "$polls"); do [ "$(held)" != "$before" ] && break; sleep 0.1; done
 [ "$(held)" != "$before" ] || { echo "the screen stopped after Esc:"; tm capture-pane -p; exit 1; }
 tm send-keys l
 wait_for_screen "log to file: dbtrail-" "Esc ended the screen, or l gave no prompt"

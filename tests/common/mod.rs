@@ -1,5 +1,5 @@
-//! Helpers shared by the end-to-end tests: the real binary, scratch folders, pseudo-terminals
-//! as serial ports, and the rows of a recording.
+//! Helpers shared by the end-to-end tests: the real binary, scratch folders removed after
+//! each test, pseudo-terminals as serial ports, and the rows of a recording.
 // Each test file uses its own subset of these.
 #![allow(dead_code)]
 
@@ -16,11 +16,12 @@ pub fn bin() -> Command {
     c
 }
 
-pub fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("dbtrail-live-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
+/// A folder of its own for one test, removed with everything in it when the guard drops.
+pub fn scratch(name: &str) -> tempfile::TempDir {
+    tempfile::Builder::new()
+        .prefix(&format!("dbtrail-{name}-"))
+        .tempdir()
+        .unwrap()
 }
 
 /// The hand-worked log-amp shared with the screen's tests (see the file for its maths).
@@ -213,6 +214,55 @@ pub fn wait_for(limit: Duration, what: &str, mut ready: impl FnMut() -> bool) {
 /// Complete data rows in a recording so far.
 pub fn row_count(path: &Path) -> usize {
     rows_so_far(path).1.len()
+}
+
+/// Waits until `record` has written its log's context lines: by then its source is open
+/// and its signal handlers are set.
+pub fn wait_for_log_start(limit: Duration, out: &Path) {
+    wait_for(limit, "the log's context lines", || {
+        std::fs::read_to_string(out).is_ok_and(|t| t.contains("# source:"))
+    });
+}
+
+/// Rows whose `flags` cell holds `word`.
+pub fn flagged(rows: &[Vec<String>], flags: usize, word: &str) -> usize {
+    rows.iter()
+        .filter(|r| r[flags].split('|').any(|f| f == word))
+        .count()
+}
+
+/// The samples the rows hold, from their `samples` column.
+pub fn samples_in(rows: &[Vec<String>], samples: usize) -> usize {
+    rows.iter()
+        .map(|r| r[samples].parse::<usize>().unwrap())
+        .sum()
+}
+
+/// Waits until the rows so far of the recording at `out` hold `want` samples or more (by
+/// their `samples` column); gives how many rows there are by then.
+pub fn wait_for_samples(limit: Duration, out: &Path, samples: usize, want: usize) -> usize {
+    wait_until(limit, || match rows_so_far(out).1 {
+        rows if samples_in(&rows, samples) >= want => Ok(rows.len()),
+        rows => Err(format!("{want} samples not recorded: {rows:?}")),
+    })
+}
+
+/// Waits until `count` or more rows so far of the recording at `out` are flagged `word`
+/// (in their `flags` column).
+pub fn wait_for_flagged(limit: Duration, out: &Path, flags: usize, word: &str, count: usize) {
+    wait_until(limit, || match rows_so_far(out).1 {
+        rows if flagged(&rows, flags, word) >= count => Ok(()),
+        rows => Err(format!("not {count} rows flagged {word}: {rows:?}")),
+    })
+}
+
+/// Waits until the recording at `out` has a data row, and gives its header: a row is
+/// written only once the port is open.
+pub fn wait_for_first_row(limit: Duration, out: &Path) -> Vec<String> {
+    wait_until(limit, || match rows_so_far(out) {
+        (header, rows) if !rows.is_empty() => Ok(header),
+        _ => Err("no row yet".to_string()),
+    })
 }
 
 /// Sends `signal` (a name such as INT) to a child.

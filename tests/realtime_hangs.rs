@@ -1,6 +1,8 @@
 //! Sources that never end or block, and signals: every command ends soon after SIGINT,
 //! SIGTERM or SIGHUP whatever its source is doing, and every sample received before the
-//! signal is in the output.
+//! signal is in the output. Part of the real-time group (`cargo test --features
+//! realtime-tests --test 'realtime_*'`): it sends real signals, reads a pseudo-terminal and
+//! paces a replay by the clock.
 //!
 //! Source of every expectation here: the rules in docs/reliability.md (a signal ends the
 //! run cleanly with exit 0; nothing already received is lost). The deadlines only catch a
@@ -41,10 +43,11 @@ fn total_samples(out: &Path) -> usize {
 
 #[test]
 fn a_silent_fifo_writer_gives_up_its_samples_and_every_signal_ends_the_replay() {
-    let dir = scratch("fifo-signals");
-    let profile = write_profile(&dir);
+    let tmp = scratch("fifo-signals");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     for signal_name in ["INT", "TERM", "HUP"] {
-        let pipe = fifo(&dir, &format!("{signal_name}.fifo"));
+        let pipe = fifo(dir, &format!("{signal_name}.fifo"));
         let out = dir.join(format!("{signal_name}.csv"));
         let child = record_replay(&pipe, &out, "0", &profile);
         // Opening blocks until the recorder opens its end; the writer then stays silent.
@@ -67,9 +70,10 @@ fn a_silent_fifo_writer_gives_up_its_samples_and_every_signal_ends_the_replay() 
 
 #[test]
 fn interval_rows_of_a_blocked_fifo_hold_every_sample_received_before_the_signal() {
-    let dir = scratch("fifo-intervals");
-    let profile = write_profile(&dir);
-    let pipe = fifo(&dir, "capture.fifo");
+    let tmp = scratch("fifo-intervals");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
+    let pipe = fifo(dir, "capture.fifo");
     let out = dir.join("intervals.csv");
     // 10 ms rows at the default 1000 samples/s: 50 samples make five rows.
     let child = record_replay(&pipe, &out, "10ms", &profile);
@@ -85,8 +89,9 @@ fn interval_rows_of_a_blocked_fifo_hold_every_sample_received_before_the_signal(
 
 #[test]
 fn a_pseudo_terminal_given_to_replay_ends_on_a_signal_with_its_samples() {
-    let dir = scratch("pty-replay");
-    let profile = write_profile(&dir);
+    let tmp = scratch("pty-replay");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let (mut master, slave) = pty_pair();
     let out = dir.join("pty.csv");
     let child = record_replay(Path::new(&slave.name().unwrap()), &out, "0", &profile);
@@ -100,8 +105,9 @@ fn a_pseudo_terminal_given_to_replay_ends_on_a_signal_with_its_samples() {
 
 #[test]
 fn an_endless_device_as_a_capture_ends_on_a_signal() {
-    let dir = scratch("dev-zero");
-    let profile = write_profile(&dir);
+    let tmp = scratch("dev-zero");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let out = dir.join("zero.csv");
     let child = record_replay(Path::new("/dev/zero"), &out, "1s", &profile);
     wait_for(EFFECT_LIMIT, "the log's context lines", || {
@@ -113,7 +119,8 @@ fn an_endless_device_as_a_capture_ends_on_a_signal() {
 
 #[test]
 fn a_fast_simulator_without_a_duration_says_how_to_stop_and_stops_on_a_signal() {
-    let dir = scratch("fast-endless");
+    let tmp = scratch("fast-endless");
+    let dir = tmp.path();
     for signal_name in ["INT", "TERM"] {
         let out = dir.join(format!("{signal_name}.csv"));
         let err = dir.join(format!("{signal_name}.err"));
@@ -146,8 +153,9 @@ fn a_fast_simulator_without_a_duration_says_how_to_stop_and_stops_on_a_signal() 
 
 #[test]
 fn a_signal_during_a_slow_paced_replay_writes_no_rows_for_time_that_did_not_pass() {
-    let dir = scratch("slow-paced");
-    let profile = write_profile(&dir);
+    let tmp = scratch("slow-paced");
+    let dir = tmp.path();
+    let profile = write_profile(dir);
     let capture = dir.join("slow.txt");
     std::fs::write(&capture, "1000\n1001\n1002\n").unwrap();
     let out = dir.join("slow.csv");

@@ -1,6 +1,8 @@
 //! Runs tests/tui_smoke.sh (the live screen in tmux: a reading and its ±, the quit key,
-//! the terminal restored). Without tmux it skips on a developer's machine, and fails in
-//! CI (CI=true), where .ci/run installs tmux: a missing tool must not pass unseen.
+//! the terminal restored). Part of the real-time group
+//! (`cargo test --features realtime-tests --test 'realtime_*'`). Without tmux it skips on
+//! a developer's machine, and fails in CI (CI=true), where .ci/run installs tmux: a
+//! missing tool must not pass unseen.
 
 use std::process::Command;
 
