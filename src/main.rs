@@ -2,6 +2,7 @@
 #![forbid(unsafe_code)]
 
 mod cli;
+mod desk;
 mod source;
 mod tui;
 
