@@ -630,8 +630,84 @@ fn write_new(path: &Path, text: &str, force: bool) -> anyhow::Result<()> {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
+    use dbtrail::procedure::{adc_settings, base_profile, SettleRule};
+    use dbtrail::stats::Averaging;
+
+    /// A desk over a 12-bit, 4.095 V ADC at 10 MHz, writing `t.toml`.
+    pub(crate) fn desk() -> Desk {
+        let base = base_profile("t", adc_settings(12, 4.095), 50.0, 10e6);
+        let measuring = Measuring {
+            rule: SettleRule::default(),
+            averaging: Averaging::Samples(100),
+        };
+        let session = Session::new(base, ModelKind::Table);
+        Desk::new(session, "t.toml".into(), false, measuring, "a test".into())
+    }
+
+    /// A settled level of `counts`.
+    pub(crate) fn at(counts: f64) -> Measured {
+        Measured {
+            counts,
+            std_counts: 0.5,
+            samples: 100,
+        }
+    }
+
+    /// Enters `line` and gives the measurement it asks for `counts`.
+    fn measured(desk: &mut Desk, line: &str, counts: f64) -> Said {
+        let Step::Measure(request) = desk.plan(line) else {
+            panic!("`{line}` asks for a measurement");
+        };
+        match desk.finish(request, Ok(at(counts))) {
+            Outcome::Continue(said) => said,
+            Outcome::End(end) => panic!("`{line}` ended the session: {end:?}"),
+        }
+    }
+
+    // Source: issue 16's decision: a level entered again replaces the earlier point and
+    // says what it replaced; the generator is set to the level (-10 dBm) at the reference
+    // frequency the profile was started with (10 MHz).
+    #[test]
+    fn a_level_entered_again_replaces_its_point_and_says_what_it_was() {
+        let mut desk = desk();
+        let Step::Measure(request) = desk.plan("-10dBm") else {
+            panic!("a level asks for a measurement");
+        };
+        assert_eq!(request.applied, Some((-10.0, 10e6)));
+        let first = desk.finish(request, Ok(at(500.0)));
+        assert!(matches!(first, Outcome::Continue(Said::Added(m)) if m.counts == 500.0));
+        let again = measured(&mut desk, "-10dBm", 510.0);
+        assert!(
+            matches!(&again, Said::Replaced { number: 1, applied, was, now }
+                if applied == "-10dBm" && *was == 500.0 && *now == 510.0),
+            "{again:?}"
+        );
+        assert_eq!(desk.session.points.len(), 1);
+    }
+
+    // Source: the desk's stated range for a limit, -200 to +100 dBm, and
+    // dBm = 10·log10(P / 1 mW) (5 W is 36.99 dBm): a limit out of range changes nothing.
+    #[test]
+    fn a_limit_out_of_range_is_refused_and_changes_nothing() {
+        let mut desk = desk();
+        let Step::Done(Outcome::Continue(said)) = desk.plan("limit load 150dBm") else {
+            panic!("a limit is set at once");
+        };
+        assert!(
+            matches!(said, Said::Refused(Refusal::LimitRange { dbm, .. }) if dbm == 150.0),
+            "{said:?}"
+        );
+        assert_eq!(desk.limits().reference_max_dbm, None);
+        let Step::Done(Outcome::Continue(Said::Limit { limit, dbm })) = desk.plan("limit load 5W")
+        else {
+            panic!("a limit in range is taken");
+        };
+        assert_eq!(limit, Limit::Load);
+        assert!((dbm - 36.99).abs() < 0.005, "{dbm}");
+        assert_eq!(desk.limits().reference_max_dbm, Some(dbm));
+    }
 
     // Source: issue 16's decision: kept points never overwrite an existing file; the
     // next free name is p.points-1.csv, then p.points-2.csv.

@@ -350,31 +350,10 @@ fn title_line(desk: &Desk, width: usize) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::desk::bench::Measuring;
-    use dbtrail::detector::ModelKind;
-    use dbtrail::procedure::SettleRule;
-    use dbtrail::procedure::{adc_settings, base_profile, MeasureError, Measured, Session};
-    use dbtrail::stats::Averaging;
+    use crate::desk::tests::{at, desk};
+    use dbtrail::procedure::MeasureError;
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
-
-    fn desk() -> Desk {
-        let base = base_profile("t", adc_settings(12, 4.095), 50.0, 10e6);
-        let measuring = Measuring {
-            rule: SettleRule::default(),
-            averaging: Averaging::Samples(100),
-        };
-        let session = Session::new(base, ModelKind::Table);
-        Desk::new(session, "t.toml".into(), false, measuring, "a test".into())
-    }
-
-    fn at(counts: f64) -> Measured {
-        Measured {
-            counts,
-            std_counts: 0.5,
-            samples: 100,
-        }
-    }
 
     /// The screen's rows as text.
     fn rows(screen: &Screen, width: u16, height: u16) -> Vec<String> {
