@@ -18,7 +18,7 @@ use dbtrail::stats::Averaging;
 
 use super::{parse_frequency_arg, parse_ohms, BadInput, Failure, Runtime};
 use crate::desk::bench::{Bench, Measuring, Worker};
-use crate::desk::{points_path, text, Desk, Outcome, Said, Step};
+use crate::desk::{points_path, text, Desk, Outcome, Output, Said, Step};
 use crate::source::{open_port, SerialSpec};
 
 #[derive(clap::Args)]
@@ -188,7 +188,12 @@ fn set_up(args: &Args) -> Result<(Desk, Bench), Failure> {
         averaging: args.average,
     };
     let session = Session::new(base, model);
-    let desk = Desk::new(session, args.out.clone(), args.force, measuring, source);
+    let output = Output {
+        out: args.out.clone(),
+        force: args.force,
+        sync: super::files::sync,
+    };
+    let desk = Desk::new(session, output, measuring, source);
     Ok((desk, bench))
 }
 

@@ -7,7 +7,8 @@
 pub mod bench;
 pub mod text;
 
-use std::io::Write as _;
+use std::fs::File;
+use std::io::{self, Write as _};
 use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
@@ -226,14 +227,23 @@ pub struct ModelFit {
     pub rms: Option<f64>,
 }
 
+/// Where a desk writes, and how.
+pub struct Output {
+    /// The profile to write (its points CSV goes beside it).
+    pub out: PathBuf,
+    /// Existing files may be replaced.
+    pub force: bool,
+    /// Makes a written file durable, as the command's other writers do.
+    pub sync: fn(&File) -> io::Result<()>,
+}
+
 /// The session driven one line of input at a time.
 pub struct Desk {
     /// The calibration in progress.
     pub session: Session,
     /// Which entries the prompt takes.
     pub stage: Stage,
-    out: PathBuf,
-    force: bool,
+    output: Output,
     /// How each level is measured.
     pub measuring: Measuring,
     reference_hz: f64,
@@ -246,20 +256,13 @@ pub struct Desk {
 type Answer = Result<Said, Refusal>;
 
 impl Desk {
-    /// A desk that will write `out` (and its points CSV beside it).
-    pub fn new(
-        session: Session,
-        out: PathBuf,
-        force: bool,
-        measuring: Measuring,
-        source: String,
-    ) -> Self {
+    /// A desk that will write to `output`.
+    pub fn new(session: Session, output: Output, measuring: Measuring, source: String) -> Self {
         let reference_hz = session.base.reference_frequency.hz().unwrap_or(10e6);
         Desk {
             session,
             stage: Stage::Zero,
-            out,
-            force,
+            output,
             measuring,
             reference_hz,
             source,
@@ -512,7 +515,7 @@ impl Desk {
     }
 
     fn save(&mut self, file: Option<&Path>) -> Outcome {
-        let target = file.unwrap_or(&self.out).to_path_buf();
+        let target = file.unwrap_or(&self.output.out).to_path_buf();
         match self.write_files(&target) {
             Ok(points) => Outcome::End(Ending::Saved {
                 profile: target,
@@ -533,7 +536,7 @@ impl Desk {
         );
         let profile = self.session.profile_text(&header)?;
         for path in [target, points.as_path()] {
-            if path.exists() && !self.force {
+            if path.exists() && !self.output.force {
                 return Err(anyhow!(
                     "{} already exists, and calibrate was started without --force; \
                      `save` another file name (e.g. `save {}`)",
@@ -542,8 +545,8 @@ impl Desk {
                 ));
             }
         }
-        write_new(target, &profile, self.force)?;
-        write_new(&points, &self.session.points_csv(), self.force)?;
+        self.write_new(target, &profile)?;
+        self.write_new(&points, &self.session.points_csv())?;
         Ok(points)
     }
 
@@ -568,7 +571,7 @@ impl Desk {
 
     /// Where [`Desk::keep_points`] would write now.
     fn kept_points_path(&self) -> PathBuf {
-        free_name(&self.out.with_extension("points"), "csv")
+        free_name(&self.output.out.with_extension("points"), "csv")
     }
 
     /// Writes the points CSV beside the intended profile, under a free name: an
@@ -581,9 +584,23 @@ impl Desk {
             .open(&path)
             .with_context(|| format!("cannot create {} to keep the points", path.display()))?;
         file.write_all(self.session.points_csv().as_bytes())
-            .and_then(|()| crate::cli::files::sync(&file))
+            .and_then(|()| (self.output.sync)(&file))
             .with_context(|| format!("cannot write {}", path.display()))?;
         Ok(path)
+    }
+
+    fn write_new(&self, path: &Path, text: &str) -> anyhow::Result<()> {
+        if path.exists() && !self.output.force {
+            return Err(anyhow!(
+                "{} already exists; choose another --out or add --force",
+                path.display()
+            ));
+        }
+        let mut file = std::fs::File::create(path)
+            .with_context(|| format!("cannot create {}", path.display()))?;
+        file.write_all(text.as_bytes())
+            .and_then(|()| (self.output.sync)(&file))
+            .with_context(|| format!("cannot write {}", path.display()))
     }
 }
 
@@ -615,20 +632,6 @@ pub fn points_path(out: &Path) -> PathBuf {
     out.with_extension("points.csv")
 }
 
-fn write_new(path: &Path, text: &str, force: bool) -> anyhow::Result<()> {
-    if path.exists() && !force {
-        return Err(anyhow!(
-            "{} already exists; choose another --out or add --force",
-            path.display()
-        ));
-    }
-    let mut file =
-        std::fs::File::create(path).with_context(|| format!("cannot create {}", path.display()))?;
-    file.write_all(text.as_bytes())
-        .and_then(|()| crate::cli::files::sync(&file))
-        .with_context(|| format!("cannot write {}", path.display()))
-}
-
 #[cfg(test)]
 pub(crate) mod tests {
     use super::*;
@@ -643,7 +646,12 @@ pub(crate) mod tests {
             averaging: Averaging::Samples(100),
         };
         let session = Session::new(base, ModelKind::Table);
-        Desk::new(session, "t.toml".into(), false, measuring, "a test".into())
+        let output = Output {
+            out: "t.toml".into(),
+            force: false,
+            sync: File::sync_data,
+        };
+        Desk::new(session, output, measuring, "a test".into())
     }
 
     /// A settled level of `counts`.
