@@ -184,3 +184,73 @@ impl Worker {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dbtrail::sim::BenchDetector;
+
+    fn worker(samples: usize) -> Worker {
+        let bench = SignalBench::new(BenchDetector::Diode, 1000.0, 1);
+        let measuring = Measuring {
+            rule: SettleRule::default(),
+            averaging: Averaging::Samples(samples),
+        };
+        Worker::start(Bench::Demo(bench), measuring)
+    }
+
+    /// The worker's events until its result, or until a deadline passes.
+    fn until_done(worker: &Worker) -> Vec<BenchEvent> {
+        let deadline = Instant::now() + Duration::from_secs(60);
+        let mut events = Vec::new();
+        while let Some(left) = deadline.checked_duration_since(Instant::now()) {
+            let Ok(event) = worker.events.recv_timeout(left) else {
+                break;
+            };
+            let done = matches!(event, BenchEvent::Done(_));
+            events.push(event);
+            if done {
+                break;
+            }
+        }
+        events
+    }
+
+    // Source: the rule in measure_watched's doc and issue 16's decision: the worker sends
+    // progress as the samples are read, then the result as its last event, the mean of
+    // the samples asked for (a steady level on the simulated bench at -10 dBm).
+    #[test]
+    fn the_worker_sends_the_result_after_any_progress() {
+        let worker = worker(2000);
+        worker.begin(Some((-10.0, 10e6))).unwrap();
+        let events = until_done(&worker);
+        let Some(BenchEvent::Done(Ok(measured))) = events.last() else {
+            panic!("no result: {events:?}");
+        };
+        assert_eq!(measured.samples, 2000);
+        let counts: Vec<u64> = events[..events.len() - 1]
+            .iter()
+            .map(|e| match e {
+                BenchEvent::Progress(p) => p.samples,
+                BenchEvent::Done(_) => panic!("a result before the last event: {events:?}"),
+            })
+            .collect();
+        assert!(counts.windows(2).all(|w| w[0] < w[1]), "{counts:?}");
+    }
+
+    // Source: issue 16's decision: a cancelled measurement ends with Cancelled and the
+    // worker then takes the next level.
+    #[test]
+    fn a_cancelled_measurement_ends_cancelled_and_the_worker_goes_on() {
+        let worker = worker(1_000_000);
+        worker.begin(None).unwrap();
+        worker.cancel();
+        let events = until_done(&worker);
+        assert_eq!(
+            events.last(),
+            Some(&BenchEvent::Done(Err(MeasureError::Cancelled)))
+        );
+        let next = worker.measure(None).unwrap();
+        assert!(next.is_ok(), "{next:?}");
+    }
+}
