@@ -7,6 +7,7 @@
 compile_error!("dbtrail builds on POSIX systems only, and is tested on Linux: see README.md");
 
 mod cli;
+mod desk;
 mod source;
 mod tui;
 

@@ -565,6 +565,18 @@ impl Session {
     }
 }
 
+/// ADC settings with only the resolution and the reference given: no divider, the zero
+/// not yet measured, the default clip margin.
+pub fn adc_settings(bits: i64, vref: f64) -> RawAdc {
+    RawAdc {
+        bits,
+        vref,
+        divider: None,
+        zero_counts: None,
+        clip_margin: None,
+    }
+}
+
 /// A base profile from the ADC settings given on the command line.
 pub fn base_profile(name: &str, adc: RawAdc, ohms: f64, reference_hz: f64) -> RawProfile {
     RawProfile {
@@ -643,14 +655,8 @@ mod tests {
     }
 
     fn session() -> Session {
-        let adc = RawAdc {
-            bits: 12,
-            vref: 4.095,
-            divider: None,
-            zero_counts: None,
-            clip_margin: None,
-        };
-        Session::new(base_profile("t", adc, 50.0, 10e6), ModelKind::Log)
+        let base = base_profile("t", adc_settings(12, 4.095), 50.0, 10e6);
+        Session::new(base, ModelKind::Log)
     }
 
     fn at(counts: f64) -> Measured {

@@ -1,16 +1,15 @@
-//! The calibration screen: the same [`Desk`] as the line prompts, shown on a terminal with
-//! the points table always in view and an input line at the bottom. Measuring runs on a
-//! worker thread that owns the [`Bench`], so the screen keeps drawing its progress and
-//! Esc or Ctrl-C can cancel it.
+//! The calibration screen: the [`Desk`] that the line prompts drive too, shown on a
+//! terminal with the points table always in view and an input line at the bottom. Keys
+//! and the measuring worker's events become [`ScreenEvent`]s; [`Screen::update`] is the
+//! one place the screen's state changes, and [`draw`] only reads it. Measuring runs on the
+//! worker, so the screen keeps drawing its progress and Esc or Ctrl-C can cancel it.
 
-use std::sync::atomic::{AtomicBool, Ordering::Relaxed};
-use std::sync::mpsc::{self, Receiver, Sender, TryRecvError};
-use std::sync::Arc;
+use std::sync::mpsc::TryRecvError;
 use std::time::{Duration, Instant};
 
 use anyhow::Result;
 use dbtrail::printable::wrap_words;
-use dbtrail::procedure::{MeasureError, Measured, Progress};
+use dbtrail::procedure::Progress;
 use ratatui::crossterm::event::{
     self as term_event, Event as TermEvent, KeyCode, KeyEvent, KeyEventKind, KeyModifiers,
 };
@@ -20,7 +19,8 @@ use ratatui::text::Line;
 use ratatui::widgets::{Block, Paragraph};
 use ratatui::{DefaultTerminal, Frame};
 
-use crate::cli::calibrate::{Bench, Desk, Measuring, Outcome, Request, Step, HELP};
+use crate::desk::bench::{Applied, BenchEvent, Worker};
+use crate::desk::{text, Desk, Ending, Outcome, Request, Step};
 
 /// What the screen is doing.
 enum Mode {
@@ -35,11 +35,35 @@ enum Mode {
     },
 }
 
-/// What the screen shows besides the desk.
-struct View {
+/// The screen's state: the desk, the line being typed, the last step's words and whether a
+/// measurement runs.
+pub struct Screen {
+    desk: Desk,
     input: String,
     message: String,
     mode: Mode,
+}
+
+/// What the screen reacts to.
+#[derive(Debug)]
+pub enum ScreenEvent {
+    /// A key pressed.
+    Key(KeyEvent),
+    /// The measuring worker's progress or result.
+    Bench(BenchEvent),
+    /// The measuring worker has stopped.
+    BenchGone,
+}
+
+/// What the screen asks its loop to do.
+#[derive(Debug, PartialEq)]
+enum Command {
+    /// Measure this level on the worker.
+    Measure(Applied),
+    /// Cancel the running measurement.
+    Cancel,
+    /// Close the screen.
+    End(Ending),
 }
 
 /// Shown when the measuring thread has stopped (it failed): no more levels can be read,
@@ -48,95 +72,35 @@ const WORKER_GONE: &str = "the measuring thread has stopped, so no more levels c
     `save` writes the points taken so far and `quit` keeps them in a points CSV; then start \
     calibrate again";
 
-/// What the measuring worker sends back.
-enum FromWorker {
-    Progress(Progress),
-    Done(Result<Measured, MeasureError>),
-}
-
-/// The measuring worker: owns the bench, measures what it is sent.
-struct Worker {
-    jobs: Sender<Option<(f64, f64)>>,
-    events: Receiver<FromWorker>,
-    cancel: Arc<AtomicBool>,
-}
-
-impl Worker {
-    fn start(mut bench: Bench, measuring: Measuring) -> Worker {
-        let (jobs, job_rx) = mpsc::channel::<Option<(f64, f64)>>();
-        let (event_tx, events) = mpsc::channel();
-        let cancel = Arc::new(AtomicBool::new(false));
-        let flag = Arc::clone(&cancel);
-        std::thread::spawn(move || {
-            for applied in job_rx {
-                let mut shown = Instant::now();
-                let result = bench.measure(applied, &measuring, &flag, |p| {
-                    // A progress line every 50 ms is plenty for the eye.
-                    if shown.elapsed() >= Duration::from_millis(50) {
-                        shown = Instant::now();
-                        let _ = event_tx.send(FromWorker::Progress(*p));
-                    }
-                });
-                // A closed channel means the screen has gone: stop.
-                if event_tx.send(FromWorker::Done(result)).is_err() {
-                    break;
-                }
-            }
-        });
-        Worker {
-            jobs,
-            events,
-            cancel,
-        }
-    }
-
-    fn begin(
-        &self,
-        applied: Option<(f64, f64)>,
-    ) -> Result<(), mpsc::SendError<Option<(f64, f64)>>> {
-        self.cancel.store(false, Relaxed);
-        self.jobs.send(applied)
-    }
-}
-
-/// Runs the screen until the user saves or quits; the terminal is restored on every way out.
-pub fn run(mut desk: Desk, bench: Bench) -> Result<()> {
-    let worker = Worker::start(bench, desk.measuring);
+/// Runs the screen until the user saves or quits, measuring on `worker`; the terminal is
+/// restored on every way out. Returns how the session ended, for the caller to say.
+pub fn run(desk: Desk, worker: &Worker) -> Result<Option<Ending>> {
+    let mut screen = Screen::new(desk);
     let mut terminal = ratatui::init();
-    let outcome = screen(&mut terminal, &mut desk, &worker);
+    let outcome = event_loop(&mut terminal, &mut screen, worker);
     ratatui::restore();
-    if let Ok(Some(text)) = &outcome {
-        // A closed standard output loses the closing line, not the saved profile.
-        let _ = crate::cli::emit(&format!("{text}\n"));
-    }
-    outcome.map(|_| ())
+    outcome
 }
 
-fn screen(
+fn event_loop(
     terminal: &mut DefaultTerminal,
-    desk: &mut Desk,
+    screen: &mut Screen,
     worker: &Worker,
-) -> Result<Option<String>> {
-    let mut view = View {
-        input: String::new(),
-        message: HELP.to_string(),
-        mode: Mode::Typing,
-    };
+) -> Result<Option<Ending>> {
     loop {
-        terminal.draw(|frame| draw(frame, desk, &view))?;
+        terminal.draw(|frame| draw(frame, screen))?;
         loop {
-            match worker.events.try_recv() {
-                Ok(event) => {
-                    if let Some(end) = on_worker(desk, &mut view, event) {
-                        return Ok(Some(end));
-                    }
-                }
-                Err(TryRecvError::Disconnected) if matches!(view.mode, Mode::Measuring { .. }) => {
-                    // The points already taken are still here: say so rather than end.
-                    view.mode = Mode::Typing;
-                    view.message = WORKER_GONE.into();
-                }
-                Err(_) => break,
+            let event = match worker.events.try_recv() {
+                Ok(event) => ScreenEvent::Bench(event),
+                Err(TryRecvError::Disconnected) => ScreenEvent::BenchGone,
+                Err(TryRecvError::Empty) => break,
+            };
+            let gone = matches!(event, ScreenEvent::BenchGone);
+            if let Some(end) = feed(screen, worker, event) {
+                return Ok(Some(end));
+            }
+            if gone {
+                break;
             }
         }
         if !term_event::poll(Duration::from_millis(50))? {
@@ -148,89 +112,122 @@ fn screen(
         if key.kind == KeyEventKind::Release {
             continue;
         }
-        if let Some(end) = on_key(desk, &mut view, worker, key)? {
+        if let Some(end) = feed(screen, worker, ScreenEvent::Key(key)) {
             return Ok(Some(end));
         }
     }
 }
 
-fn on_worker(desk: &mut Desk, view: &mut View, event: FromWorker) -> Option<String> {
-    match event {
-        FromWorker::Progress(p) => {
-            if let Mode::Measuring { progress, .. } = &mut view.mode {
-                *progress = Some(p);
+/// Gives `event` to the screen and carries out what it asks; returns the ending when the
+/// screen closes.
+fn feed(screen: &mut Screen, worker: &Worker, event: ScreenEvent) -> Option<Ending> {
+    match screen.update(event)? {
+        Command::Measure(applied) => {
+            if worker.begin(applied).is_err() {
+                return feed(screen, worker, ScreenEvent::BenchGone);
             }
             None
         }
-        FromWorker::Done(result) => {
-            let Mode::Measuring { request, .. } = std::mem::replace(&mut view.mode, Mode::Typing)
-            else {
+        Command::Cancel => {
+            worker.cancel();
+            None
+        }
+        Command::End(ending) => Some(ending),
+    }
+}
+
+impl Screen {
+    /// The screen on opening: the help shown, nothing typed.
+    fn new(desk: Desk) -> Self {
+        Screen {
+            desk,
+            input: String::new(),
+            message: text::HELP.to_string(),
+            mode: Mode::Typing,
+        }
+    }
+
+    /// The one way the screen's state changes.
+    fn update(&mut self, event: ScreenEvent) -> Option<Command> {
+        match event {
+            ScreenEvent::Key(key) => self.on_key(key),
+            ScreenEvent::Bench(BenchEvent::Progress(p)) => {
+                if let Mode::Measuring { progress, .. } = &mut self.mode {
+                    *progress = Some(p);
+                }
+                None
+            }
+            ScreenEvent::Bench(BenchEvent::Done(result)) => {
+                let Mode::Measuring { request, .. } =
+                    std::mem::replace(&mut self.mode, Mode::Typing)
+                else {
+                    return None;
+                };
+                let outcome = self.desk.finish(request, result);
+                self.show(outcome)
+            }
+            ScreenEvent::BenchGone => {
+                // The points already taken are still here: say so rather than end.
+                if matches!(self.mode, Mode::Measuring { .. }) {
+                    self.mode = Mode::Typing;
+                    self.message = WORKER_GONE.into();
+                }
+                None
+            }
+        }
+    }
+
+    /// Shows an outcome: the step's words, as the table is always in view above.
+    fn show(&mut self, outcome: Outcome) -> Option<Command> {
+        match outcome {
+            Outcome::Continue(said) => {
+                self.message = text::message(&self.desk, &said);
+                None
+            }
+            Outcome::End(ending) => Some(Command::End(ending)),
+        }
+    }
+
+    fn on_key(&mut self, key: KeyEvent) -> Option<Command> {
+        let ctrl_c =
+            key.code == KeyCode::Char('c') && key.modifiers.contains(KeyModifiers::CONTROL);
+        if let Mode::Measuring { cancelling, .. } = &mut self.mode {
+            if ctrl_c || key.code == KeyCode::Esc {
+                *cancelling = true;
+                return Some(Command::Cancel);
+            }
+            return None;
+        }
+        let line = match key.code {
+            // Ctrl-C when idle is `quit`, with the same care for unsaved points.
+            _ if ctrl_c => "quit".to_string(),
+            KeyCode::Char(c) => {
+                self.input.push(c);
                 return None;
-            };
-            let outcome = desk.finish(request, result);
-            show(desk, view, outcome)
-        }
-    }
-}
-
-/// Shows an outcome; returns the closing text when it ends the screen.
-fn show(desk: &Desk, view: &mut View, outcome: Outcome) -> Option<String> {
-    match outcome {
-        // The table is always in view above; keep only what is new.
-        Outcome::Continue(text) => {
-            view.message = text.replace(&desk.report(), "");
-            None
-        }
-        Outcome::Saved(text) | Outcome::Quit(text) => Some(text),
-    }
-}
-
-fn on_key(
-    desk: &mut Desk,
-    view: &mut View,
-    worker: &Worker,
-    key: KeyEvent,
-) -> Result<Option<String>> {
-    let ctrl_c = key.code == KeyCode::Char('c') && key.modifiers.contains(KeyModifiers::CONTROL);
-    if let Mode::Measuring { cancelling, .. } = &mut view.mode {
-        if ctrl_c || key.code == KeyCode::Esc {
-            worker.cancel.store(true, Relaxed);
-            *cancelling = true;
-        }
-        return Ok(None);
-    }
-    let line = match key.code {
-        // Ctrl-C when idle is `quit`, with the same care for unsaved points.
-        _ if ctrl_c => "quit".to_string(),
-        KeyCode::Char(c) => {
-            view.input.push(c);
-            return Ok(None);
-        }
-        KeyCode::Backspace => {
-            view.input.pop();
-            return Ok(None);
-        }
-        KeyCode::Esc => {
-            view.input.clear();
-            return Ok(None);
-        }
-        KeyCode::Enter => std::mem::take(&mut view.input),
-        _ => return Ok(None),
-    };
-    match desk.plan(&line) {
-        Step::Done(outcome) => Ok(show(desk, view, outcome)),
-        Step::Measure(request) => {
-            if worker.begin(request.applied).is_err() {
-                view.message = WORKER_GONE.into();
-                return Ok(None);
             }
-            view.mode = Mode::Measuring {
-                request,
-                started: Instant::now(),
-                progress: None,
-                cancelling: false,
-            };
-            Ok(None)
+            KeyCode::Backspace => {
+                self.input.pop();
+                return None;
+            }
+            KeyCode::Esc => {
+                self.input.clear();
+                return None;
+            }
+            KeyCode::Enter => std::mem::take(&mut self.input),
+            _ => return None,
+        };
+        match self.desk.plan(&line) {
+            Step::Done(outcome) => self.show(outcome),
+            Step::Measure(request) => {
+                let applied = request.applied;
+                self.mode = Mode::Measuring {
+                    request,
+                    started: Instant::now(),
+                    progress: None,
+                    cancelling: false,
+                };
+                Some(Command::Measure(applied))
+            }
         }
     }
 }
@@ -291,10 +288,11 @@ fn wrap_text(text: &str, width: usize) -> Vec<Line<'static>> {
     out
 }
 
-fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
+fn draw(frame: &mut Frame, screen: &Screen) {
+    let desk = &screen.desk;
     let area = frame.area();
     let inner = usize::from(area.width.saturating_sub(2));
-    let message_text = measuring_text(desk, &view.mode).unwrap_or_else(|| view.message.clone());
+    let message_text = measuring_text(desk, &screen.mode).unwrap_or_else(|| screen.message.clone());
     let message_lines = wrap_text(&message_text, inner);
     // The message takes what it needs; the table keeps at least its header and a row.
     let most = area.height.saturating_sub(2 + 5);
@@ -312,7 +310,7 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
         title,
     );
     frame.render_widget(
-        Paragraph::new(wrap_text(&desk.report(), inner))
+        Paragraph::new(wrap_text(&text::table(desk), inner))
             .block(Block::bordered().title(" points and fits ")),
         table,
     );
@@ -320,12 +318,12 @@ fn draw(frame: &mut Frame, desk: &Desk, view: &View) {
         Paragraph::new(message_lines).block(Block::bordered()),
         message,
     );
-    let busy = matches!(view.mode, Mode::Measuring { .. });
+    let busy = matches!(screen.mode, Mode::Measuring { .. });
     let cursor = if busy { "" } else { "▏" };
     let prompt = format!(
         " {}{}{cursor}   (help · save · quit)",
-        desk.prompt(),
-        view.input
+        text::prompt(desk),
+        screen.input
     );
     frame.render_widget(
         Paragraph::new(prompt).style(Style::new().add_modifier(Modifier::BOLD)),
@@ -352,33 +350,15 @@ fn title_line(desk: &Desk, width: usize) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use dbtrail::detector::ModelKind;
-    use dbtrail::procedure::{base_profile, Session, SettleRule};
-    use dbtrail::profile::raw::RawAdc;
-    use dbtrail::stats::Averaging;
+    use crate::desk::tests::{at, desk};
+    use dbtrail::procedure::MeasureError;
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
 
-    fn desk() -> Desk {
-        let adc = RawAdc {
-            bits: 12,
-            vref: 4.095,
-            divider: None,
-            zero_counts: None,
-            clip_margin: None,
-        };
-        let session = Session::new(base_profile("t", adc, 50.0, 10e6), ModelKind::Table);
-        let measuring = Measuring {
-            rule: SettleRule::default(),
-            averaging: Averaging::Samples(100),
-        };
-        Desk::new(session, "t.toml".into(), false, measuring, "a test".into())
-    }
-
     /// The screen's rows as text.
-    fn rows(desk: &Desk, view: &View, width: u16, height: u16) -> Vec<String> {
+    fn rows(screen: &Screen, width: u16, height: u16) -> Vec<String> {
         let mut terminal = Terminal::new(TestBackend::new(width, height)).unwrap();
-        terminal.draw(|frame| draw(frame, desk, view)).unwrap();
+        terminal.draw(|frame| draw(frame, screen)).unwrap();
         let buffer = terminal.backend().buffer();
         (0..height)
             .map(|y| (0..width).map(|x| buffer[(x, y)].symbol()).collect())
@@ -401,52 +381,54 @@ mod tests {
         text.split_whitespace().collect::<Vec<_>>().join(" ")
     }
 
-    fn typing(message: &str) -> View {
-        View {
-            input: String::new(),
-            message: message.to_string(),
-            mode: Mode::Typing,
+    /// Asserts that `text`'s words are all on `screen`, in order, at 80×24 and 100×30.
+    fn shown_whole(screen: &Screen, text: &str) {
+        for (width, height) in [(80, 24), (100, 30)] {
+            let shown = rows(screen, width, height);
+            assert!(
+                words(&shown).contains(&flat(text)),
+                "{width}×{height}:\n{}",
+                shown.join("\n")
+            );
         }
+    }
+
+    fn typing(desk: Desk, message: &str) -> Screen {
+        Screen {
+            message: message.to_string(),
+            ..Screen::new(desk)
+        }
+    }
+
+    fn key(code: KeyCode) -> ScreenEvent {
+        ScreenEvent::Key(KeyEvent::new(code, KeyModifiers::NONE))
+    }
+
+    /// Types `line` and Enter; returns what the screen asked for at Enter.
+    fn enter(screen: &mut Screen, line: &str) -> Option<Command> {
+        for c in line.chars() {
+            assert_eq!(screen.update(key(KeyCode::Char(c))), None);
+        }
+        screen.update(key(KeyCode::Enter))
     }
 
     // Source: issue 16: at 80 and 100 columns the help is shown whole, nothing cut
     // mid-word, `save`/`quit` and the safety text in view.
     #[test]
     fn help_is_shown_whole_at_80_and_100_columns() {
-        let desk = desk();
-        for (width, height) in [(80, 24), (100, 30)] {
-            let screen = rows(&desk, &typing(HELP), width, height);
-            let shown = words(&screen);
-            assert!(
-                shown.contains(&flat(HELP)),
-                "{width}×{height}:\n{}",
-                screen.join("\n")
-            );
-        }
+        shown_whole(&Screen::new(desk()), text::HELP);
     }
 
     // Source: issue 16: warnings wrap to the width instead of being cut.
     #[test]
     fn a_long_warning_wraps_instead_of_being_cut() {
         let mut desk = desk();
-        let at = |counts| dbtrail::procedure::Measured {
-            counts,
-            std_counts: 0.5,
-            samples: 100,
-        };
         for (level, counts) in [("-60dBm", 500.0), ("-30dBm", 1250.0), ("0dBm", 2000.0)] {
             desk.session.add(level, at(counts)).unwrap();
         }
         desk.session.add("-45dBm", at(1900.0)).unwrap();
         let warning = desk.session.warnings().remove(0);
-        for (width, height) in [(80, 24), (100, 30)] {
-            let screen = rows(&desk, &typing(""), width, height);
-            assert!(
-                words(&screen).contains(&flat(&warning)),
-                "{width}×{height}:\n{}",
-                screen.join("\n")
-            );
-        }
+        shown_whole(&typing(desk, ""), &warning);
     }
 
     /// The calibrate screen exactly, at both sizes: on opening (the help) and with three
@@ -456,17 +438,13 @@ mod tests {
     fn the_calibrate_screen_at_80_by_24_and_100_by_30() {
         let mut with_points = desk();
         for (level, counts) in [("-20dBm", 500.0), ("-10dBm", 1250.0), ("0dBm", 2000.0)] {
-            let measured = dbtrail::procedure::Measured {
-                counts,
-                std_counts: 0.5,
-                samples: 100,
-            };
-            with_points.session.add(level, measured).unwrap();
+            with_points.session.add(level, at(counts)).unwrap();
         }
+        let with_points = typing(with_points, "");
         for (width, height) in [(80, 24), (100, 30)] {
-            let opening = rows(&desk(), &typing(HELP), width, height).join("\n");
+            let opening = rows(&Screen::new(desk()), width, height).join("\n");
             insta::assert_snapshot!(format!("calibrate-opening-{width}x{height}"), opening);
-            let table = rows(&with_points, &typing(""), width, height).join("\n");
+            let table = rows(&with_points, width, height).join("\n");
             insta::assert_snapshot!(format!("calibrate-points-{width}x{height}"), table);
         }
     }
@@ -475,25 +453,17 @@ mod tests {
     // cancel it while it runs.
     #[test]
     fn a_running_measurement_shows_its_progress_and_how_to_cancel() {
-        let mut desk = desk();
-        let Step::Measure(request) = desk.plan("0dBm") else {
+        let mut screen = typing(desk(), "");
+        let Some(Command::Measure(Some(_))) = enter(&mut screen, "0dBm") else {
             panic!("a level asks for a measurement");
         };
-        let view = View {
-            input: String::new(),
-            message: String::new(),
-            mode: Mode::Measuring {
-                request,
-                started: Instant::now(),
-                progress: Some(Progress {
-                    samples: 120,
-                    elapsed_s: 0.12,
-                    settled: false,
-                }),
-                cancelling: false,
-            },
+        let progress = Progress {
+            samples: 120,
+            elapsed_s: 0.12,
+            settled: false,
         };
-        let shown = words(&rows(&desk, &view, 80, 24));
+        screen.update(ScreenEvent::Bench(BenchEvent::Progress(progress)));
+        let shown = words(&rows(&screen, 80, 24));
         assert!(
             shown.contains("measuring 0dBm")
                 && shown.contains("120 samples, 0.1 s of at most 10 s")
@@ -505,14 +475,19 @@ mod tests {
     // Source: issue 16's decision: a cancelled measurement adds no point and says so.
     #[test]
     fn a_cancelled_measurement_adds_no_point() {
-        let mut desk = desk();
-        let Step::Measure(request) = desk.plan("0dBm") else {
+        let mut screen = typing(desk(), "");
+        let Some(Command::Measure(_)) = enter(&mut screen, "0dBm") else {
             panic!("a level asks for a measurement");
         };
-        let Outcome::Continue(text) = desk.finish(request, Err(MeasureError::Cancelled)) else {
-            panic!("the session goes on");
-        };
-        assert!(text.contains("0dBm: measurement cancelled"), "{text}");
-        assert!(desk.session.points.is_empty());
+        assert_eq!(screen.update(key(KeyCode::Esc)), Some(Command::Cancel));
+        let cancelled = BenchEvent::Done(Err(MeasureError::Cancelled));
+        assert_eq!(screen.update(ScreenEvent::Bench(cancelled)), None);
+        assert!(
+            screen.message.contains("0dBm: measurement cancelled"),
+            "{}",
+            screen.message
+        );
+        assert!(screen.desk.session.points.is_empty());
+        assert!(matches!(screen.mode, Mode::Typing));
     }
 }
