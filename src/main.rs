@@ -8,6 +8,8 @@ compile_error!("dbtrail builds on POSIX systems only, and is tested on Linux: se
 
 mod cli;
 mod desk;
+mod logs;
+mod signals;
 mod source;
 mod tui;
 

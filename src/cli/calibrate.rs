@@ -191,7 +191,7 @@ fn set_up(args: &Args) -> Result<(Desk, Bench), Failure> {
     let output = Output {
         out: args.out.clone(),
         force: args.force,
-        sync: super::files::sync,
+        sync: crate::logs::sync,
     };
     let desk = Desk::new(session, output, measuring, source);
     Ok((desk, bench))

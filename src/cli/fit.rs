@@ -342,7 +342,7 @@ fn with_fitted_params(mut raw: RawProfile, profile: &Profile) -> RawProfile {
 fn write_new(path: &Path, text: &str, force: bool) -> Result<(), Failure> {
     let mut file = super::files::create(path, force)?;
     file.write_all(text.as_bytes())
-        .and_then(|()| super::files::sync(&file))
+        .and_then(|()| crate::logs::sync(&file))
         .with_context(|| format!("cannot write {}", path.display()))
         .runtime()
 }

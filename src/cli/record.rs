@@ -12,10 +12,10 @@ use dbtrail::events::Event;
 use dbtrail::record::{ChannelMismatch, Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
-use super::files::{Durable, IfExists, LogFile, LogKeeper, LogOpenError, LogTampered};
 use super::run_plan::{RunPlan, SourcePlan, StartedRun};
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
+use crate::logs::{Durable, IfExists, LogFile, LogKeeper, LogOpenError, LogTampered};
 use crate::source::Running;
 
 #[derive(clap::Args)]
@@ -54,7 +54,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     // Opened once the source and the profile are known good, so a bad one leaves no
     // empty file behind.
     let (out, earlier) = open_output(&args.out, args.append, args.force)?;
-    let stop = super::signals::stop_flag().runtime()?;
+    let stop = crate::signals::stop_flag().runtime()?;
     if matches!(plan.source, SourcePlan::Demo { fast: true, .. }) && until.is_none() {
         super::say_err!(
             "dbtrail: the simulator runs flat out with no --duration and writes until it is \

@@ -7,10 +7,10 @@ use std::time::Duration;
 
 use anyhow::anyhow;
 
-use super::files::IfExists;
 use super::run_plan::RunPlan;
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{BadInput, Failure, Runtime};
+use crate::logs::IfExists;
 use crate::tui::{self, app::App, ScreenSetup};
 
 #[derive(clap::Args)]

@@ -24,7 +24,7 @@ use dbtrail::events::Event;
 use dbtrail::record::{Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
-use crate::cli::files::{IfExists, LogFile, LogKeeper, LogOpenError};
+use crate::logs::{IfExists, LogFile, LogKeeper, LogOpenError};
 use crate::source::Running;
 use app::{App, AppEvent, Command, LogEnd};
 
@@ -47,7 +47,7 @@ pub struct ScreenSetup {
 pub fn run(app: App, setup: ScreenSetup) -> Result<()> {
     // Ctrl-C arrives as a key in raw mode; SIGINT from elsewhere ends the screen as
     // SIGTERM and SIGHUP do, with the log finished and the terminal restored.
-    let stop = crate::cli::signals::stop_flag().context("cannot watch for signals")?;
+    let stop = crate::signals::stop_flag().context("cannot watch for signals")?;
     let mut terminal = ratatui::init();
     let outcome = event_loop(&mut terminal, app, setup, &stop);
     ratatui::restore();
