@@ -67,8 +67,12 @@ impl fmt::Display for FieldPath {
     }
 }
 
-/// The keys each table of a profile may hold, by schema name.
-const SCHEMA: &[(&str, &[&str])] = &[
+/// The keys each table of a kind of file may hold, by schema name (the table's path with
+/// indices left out; "" for the top).
+pub type Schema = &'static [(&'static str, &'static [&'static str])];
+
+/// The keys each table of a profile may hold.
+pub const PROFILE_SCHEMA: Schema = &[
     (
         "",
         &[
@@ -212,10 +216,15 @@ impl<'a> Located<'a> {
         path
     }
 
-    /// Every key the profile format does not have: (path, span, message).
-    pub fn unknown_keys(&self) -> Vec<(FieldPath, Range<usize>, String)> {
+    /// Every key that `schema` does not have: (path, span, message).
+    pub fn unknown_keys(&self, schema: Schema) -> Vec<(FieldPath, Range<usize>, String)> {
         let mut found = Vec::new();
-        walk_table(self.root.get_ref(), &FieldPath::default(), &mut found);
+        walk_table(
+            schema,
+            self.root.get_ref(),
+            &FieldPath::default(),
+            &mut found,
+        );
         found
     }
 }
@@ -257,12 +266,13 @@ fn search_value(
 }
 
 fn walk_table(
+    schema: Schema,
     table: &DeTable,
     path: &FieldPath,
     found: &mut Vec<(FieldPath, Range<usize>, String)>,
 ) {
     let schema_name = path.schema_name();
-    let Some((_, allowed)) = SCHEMA.iter().find(|(name, _)| *name == schema_name) else {
+    let Some((_, allowed)) = schema.iter().find(|(name, _)| *name == schema_name) else {
         return;
     };
     for (key, value) in table {
@@ -280,11 +290,11 @@ fn walk_table(
             continue;
         }
         match value.get_ref() {
-            DeValue::Table(inner) => walk_table(inner, &key_path, found),
+            DeValue::Table(inner) => walk_table(schema, inner, &key_path, found),
             DeValue::Array(items) => {
                 for (i, item) in items.iter().enumerate() {
                     if let DeValue::Table(inner) = item.get_ref() {
-                        walk_table(inner, &key_path.at(i), found);
+                        walk_table(schema, inner, &key_path.at(i), found);
                     }
                 }
             }
@@ -329,7 +339,7 @@ mod tests {
     #[test]
     fn unknown_keys_come_with_a_suggestion() {
         let doc = Located::parse("name = \"x\"\n[adc]\nbitz = 12\n").unwrap();
-        let found = doc.unknown_keys();
+        let found = doc.unknown_keys(PROFILE_SCHEMA);
         assert_eq!(found.len(), 1);
         assert_eq!(found[0].0.to_string(), "adc.bitz");
         assert!(found[0].2.contains("did you mean `bits`"), "{}", found[0].2);

@@ -18,7 +18,7 @@ use crate::adc::Adc;
 use crate::correction::{FreqTable, FrequencyCorrection, Offset};
 use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind, PointU};
 use crate::units::Level;
-use locate::{line_col, Located};
+use locate::{line_col, FieldPath, Located};
 pub use raw::RawProfile;
 
 /// The largest profile file read; anything bigger is not a profile.
@@ -42,12 +42,36 @@ pub struct Problem {
     pub message: String,
 }
 
-/// Why a profile could not be used.
+/// A kind of TOML file dbtrail reads its set-up from, for the loader's messages and its
+/// check of unknown keys.
+#[derive(Debug)]
+pub struct FileKind {
+    /// What the file is called in messages, e.g. `profile`.
+    pub noun: &'static str,
+    /// Where examples of it are, e.g. `profiles/`.
+    pub examples: &'static str,
+    /// The document that describes every field.
+    pub docs: &'static str,
+    /// The keys each of its tables may hold.
+    pub schema: locate::Schema,
+}
+
+/// A detector profile.
+pub const PROFILE_FILE: FileKind = FileKind {
+    noun: "profile",
+    examples: "profiles/",
+    docs: "docs/profiles.md",
+    schema: locate::PROFILE_SCHEMA,
+};
+
+/// Why a profile (or another set-up file, as `kind` says) could not be used.
 #[derive(Debug, Error)]
 pub enum ProfileError {
     /// The file could not be read.
-    #[error("cannot read profile {path}")]
+    #[error("cannot read {} {path}", kind.noun)]
     Io {
+        /// What kind of file.
+        kind: &'static FileKind,
         /// The path.
         path: String,
         /// What the OS said.
@@ -55,18 +79,24 @@ pub enum ProfileError {
     },
     /// The path names something other than a regular file (a FIFO, a device, a folder).
     #[error(
-        "profile {path} is {what}, not a regular file; give the path of a profile file \
-         (TOML), for example one in profiles/"
+        "{noun} {path} is {what}, not a regular file; give the path of a {noun} file (TOML), \
+         for example one in {examples}",
+        noun = kind.noun,
+        examples = kind.examples
     )]
     NotAFile {
+        /// What kind of file.
+        kind: &'static FileKind,
         /// The path.
         path: String,
         /// What it is instead, e.g. `a FIFO (named pipe)`.
         what: &'static str,
     },
     /// The file was read but is not a valid profile.
-    #[error("{}", render_problems(origin, problems))]
+    #[error("{}", render_problems(kind, origin, problems))]
     Invalid {
+        /// What kind of file.
+        kind: &'static FileKind,
         /// The file name or other origin.
         origin: String,
         /// Every problem found.
@@ -74,9 +104,10 @@ pub enum ProfileError {
     },
 }
 
-fn render_problems(origin: &str, problems: &[Problem]) -> String {
+fn render_problems(kind: &FileKind, origin: &str, problems: &[Problem]) -> String {
     let mut out = format!(
-        "profile {origin} is not valid ({} problem{}):",
+        "{} {origin} is not valid ({} problem{}):",
+        kind.noun,
         problems.len(),
         if problems.len() == 1 { "" } else { "s" }
     );
@@ -86,7 +117,7 @@ fn render_problems(origin: &str, problems: &[Problem]) -> String {
             p.line, p.column, p.field, p.message
         ));
     }
-    out.push_str("\n  (every field is described in docs/profiles.md)");
+    out.push_str(&format!("\n  (every field is described in {})", kind.docs));
     out
 }
 
@@ -228,23 +259,27 @@ pub fn load_profile(path: &Path) -> Result<Profile, ProfileError> {
 /// FIFO, a device or a folder is refused before it is opened (and the file is opened so
 /// that a FIFO put in its place meanwhile cannot block), a longer file after the limit.
 pub fn read_profile_file(path: &Path) -> Result<Vec<u8>, ProfileError> {
+    read_setup_file(path, &PROFILE_FILE)
+}
+
+/// The bytes of a set-up file of `kind`, read as [`read_profile_file`] reads a profile.
+pub fn read_setup_file(path: &Path, kind: &'static FileKind) -> Result<Vec<u8>, ProfileError> {
     let origin = path.display().to_string();
     let io_error = |source| ProfileError::Io {
+        kind,
         path: origin.clone(),
         source,
     };
-    refuse_unless_regular(&std::fs::metadata(path).map_err(io_error)?, &origin)?;
+    refuse_unless_regular(&std::fs::metadata(path).map_err(io_error)?, kind, &origin)?;
     let file = open_without_blocking(path).map_err(io_error)?;
     let metadata = file.metadata().map_err(io_error)?;
-    refuse_unless_regular(&metadata, &origin)?;
+    refuse_unless_regular(&metadata, kind, &origin)?;
     let limit = MAX_PROFILE_BYTES as u64 + 1;
     let mut bytes = Vec::with_capacity(metadata.len().min(limit) as usize);
     file.take(limit).read_to_end(&mut bytes).map_err(io_error)?;
     if bytes.len() > MAX_PROFILE_BYTES {
-        return Err(whole_file_problem(
-            &origin,
-            too_long(metadata.len().max(bytes.len() as u64)),
-        ));
+        let len = metadata.len().max(bytes.len() as u64);
+        return Err(whole_file_problem(kind, &origin, too_long(kind, len)));
     }
     Ok(bytes)
 }
@@ -260,12 +295,16 @@ fn open_without_blocking(path: &Path) -> std::io::Result<std::fs::File> {
     options.open(path)
 }
 
-fn refuse_unless_regular(metadata: &std::fs::Metadata, origin: &str) -> Result<(), ProfileError> {
-    let kind = metadata.file_type();
-    if kind.is_file() {
+fn refuse_unless_regular(
+    metadata: &std::fs::Metadata,
+    kind: &'static FileKind,
+    origin: &str,
+) -> Result<(), ProfileError> {
+    let file_type = metadata.file_type();
+    if file_type.is_file() {
         return Ok(());
     }
-    let mut what = if kind.is_dir() {
+    let mut what = if file_type.is_dir() {
         "a folder"
     } else {
         "something else"
@@ -273,31 +312,28 @@ fn refuse_unless_regular(metadata: &std::fs::Metadata, origin: &str) -> Result<(
     #[cfg(unix)]
     {
         use std::os::unix::fs::FileTypeExt;
-        if kind.is_fifo() {
+        if file_type.is_fifo() {
             what = "a FIFO (named pipe)";
-        } else if kind.is_char_device() {
+        } else if file_type.is_char_device() {
             what = "a character device";
-        } else if kind.is_block_device() {
+        } else if file_type.is_block_device() {
             what = "a block device";
-        } else if kind.is_socket() {
+        } else if file_type.is_socket() {
             what = "a socket";
         }
     }
     Err(ProfileError::NotAFile {
+        kind,
         path: origin.to_string(),
         what,
     })
 }
 
-fn whole_file_problem(origin: &str, message: String) -> ProfileError {
+fn whole_file_problem(kind: &'static FileKind, origin: &str, message: String) -> ProfileError {
     ProfileError::Invalid {
+        kind,
         origin: origin.to_string(),
-        problems: vec![Problem {
-            line: 1,
-            column: 1,
-            field: "(file)".into(),
-            message,
-        }],
+        problems: vec![Problem::whole_file(message)],
     }
 }
 
@@ -309,46 +345,76 @@ pub fn too_many_points(count: usize) -> String {
     )
 }
 
-fn too_long(bytes: u64) -> String {
+fn too_long(kind: &FileKind, bytes: u64) -> String {
     format!(
-        "the file is {bytes} bytes; a profile is at most {MAX_PROFILE_BYTES} bytes: is this \
-         the right file?"
+        "the file is {bytes} bytes; a {} is at most {MAX_PROFILE_BYTES} bytes: is this the \
+         right file?",
+        kind.noun
     )
 }
 
 /// Validates a profile given as bytes; `origin` names it in messages.
 pub fn parse_profile_bytes(bytes: &[u8], origin: &str) -> Result<Profile, ProfileError> {
-    if bytes.len() > MAX_PROFILE_BYTES {
-        return Err(whole_file_problem(origin, too_long(bytes.len() as u64)));
-    }
-    let text = std::str::from_utf8(bytes).map_err(|e| {
-        let (line, column) = line_col(&String::from_utf8_lossy(bytes), e.valid_up_to());
-        ProfileError::Invalid {
-            origin: origin.to_string(),
-            problems: vec![Problem {
-                line,
-                column,
-                field: "(file)".into(),
-                message: "bytes that are not UTF-8 text: a profile is a TOML text file".into(),
-            }],
-        }
-    })?;
+    let text = setup_text(bytes, &PROFILE_FILE, origin)?;
     parse_profile(text, origin)
 }
 
 /// Validates a profile given as text; `origin` names it in messages.
 pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> {
+    parse_setup(text, origin, &PROFILE_FILE, validate::validate)
+}
+
+/// The text of a set-up file given as bytes: within the size limit, and UTF-8.
+pub fn setup_text<'b>(
+    bytes: &'b [u8],
+    kind: &'static FileKind,
+    origin: &str,
+) -> Result<&'b str, ProfileError> {
+    if bytes.len() > MAX_PROFILE_BYTES {
+        return Err(whole_file_problem(
+            kind,
+            origin,
+            too_long(kind, bytes.len() as u64),
+        ));
+    }
+    std::str::from_utf8(bytes).map_err(|e| {
+        let (line, column) = line_col(&String::from_utf8_lossy(bytes), e.valid_up_to());
+        ProfileError::Invalid {
+            kind,
+            origin: origin.to_string(),
+            problems: vec![Problem {
+                line,
+                column,
+                field: "(file)".into(),
+                message: format!(
+                    "bytes that are not UTF-8 text: a {} is a TOML text file",
+                    kind.noun
+                ),
+            }],
+        }
+    })
+}
+
+/// A set-up file of `kind` in its two stages: serde reads the raw fields (after a check
+/// for keys the kind does not have), then `validate` checks every value; each problem is
+/// tied to its line, column and field.
+pub fn parse_setup<R: serde::de::DeserializeOwned, T>(
+    text: &str,
+    origin: &str,
+    kind: &'static FileKind,
+    validate: impl FnOnce(R) -> Result<T, Vec<(FieldPath, String)>>,
+) -> Result<T, ProfileError> {
     let invalid = |problems: Vec<Problem>| ProfileError::Invalid {
+        kind,
         origin: origin.to_string(),
         problems,
     };
+    let whole = |message: String| invalid(vec![Problem::whole_file(message)]);
     if text.trim().is_empty() {
-        return Err(invalid(vec![Problem {
-            line: 1,
-            column: 1,
-            field: "(file)".into(),
-            message: "the profile is empty; start from one in profiles/".into(),
-        }]));
+        return Err(whole(format!(
+            "the {} is empty; start from one in {}",
+            kind.noun, kind.examples
+        )));
     }
     let doc = Located::parse(text).map_err(|e| {
         let (line, column) = line_col(text, e.span().map_or(0, |s| s.start));
@@ -360,15 +426,12 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
         }])
     })?;
     if doc.is_blank() {
-        return Err(invalid(vec![Problem {
-            line: 1,
-            column: 1,
-            field: "(file)".into(),
-            message: "the profile holds only comments or blank lines; start from one in profiles/"
-                .into(),
-        }]));
+        return Err(whole(format!(
+            "the {} holds only comments or blank lines; start from one in {}",
+            kind.noun, kind.examples
+        )));
     }
-    let unknown = doc.unknown_keys();
+    let unknown = doc.unknown_keys(kind.schema);
     if !unknown.is_empty() {
         let problems = unknown
             .into_iter()
@@ -376,7 +439,7 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
             .collect();
         return Err(invalid(problems));
     }
-    let raw: RawProfile = toml::from_str(text).map_err(|e| {
+    let raw: R = toml::from_str(text).map_err(|e| {
         let at = e.span().map_or(0, |s| s.start);
         let field = match missing_field(e.message()) {
             Some(name) => doc.table_at(at).then(name),
@@ -389,7 +452,7 @@ pub fn parse_profile(text: &str, origin: &str) -> Result<Profile, ProfileError> 
             friendly_serde_message(e.message()),
         )])
     })?;
-    validate::validate(raw).map_err(|found| {
+    validate(raw).map_err(|found| {
         let mut problems: Vec<Problem> = found
             .into_iter()
             .map(|(path, message)| Problem::at(&doc, doc.span_of(&path).start, &path, message))
@@ -441,6 +504,16 @@ impl Problem {
             line,
             column,
             field: field.to_string(),
+            message,
+        }
+    }
+
+    /// A problem with the file as a whole.
+    fn whole_file(message: String) -> Self {
+        Problem {
+            line: 1,
+            column: 1,
+            field: "(file)".into(),
             message,
         }
     }
