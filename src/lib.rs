@@ -28,6 +28,7 @@
 pub mod adc;
 pub mod calibration;
 pub mod correction;
+pub mod coupler;
 pub mod decode;
 pub mod detector;
 pub mod events;

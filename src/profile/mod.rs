@@ -5,7 +5,7 @@
 
 pub mod locate;
 pub mod raw;
-mod validate;
+pub(crate) mod validate;
 
 use std::fmt;
 use std::io::Read;

@@ -5,7 +5,7 @@ use std::sync::Arc;
 
 use super::locate::{did_you_mean, FieldPath};
 use super::raw::{
-    FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawMatch, RawModel, RawProfile,
+    FreqValue, RawAdc, RawFreqPoint, RawFreqTable, RawMatch, RawModel, RawOffset, RawProfile,
     RawReturnLossRow, RawSpread, RawSwrRow, RawUncertainty,
 };
 use super::{
@@ -20,15 +20,15 @@ use crate::detector::{
 };
 use crate::units::{parse_level, DEFAULT_OHMS};
 
-type Found = Vec<(FieldPath, String)>;
+pub(crate) type Found = Vec<(FieldPath, String)>;
 
 /// Where a profile quantity may lie: wide enough for any bench, narrow enough that no
 /// reading computed from it overflows to an infinity.
-struct Bounds {
-    lo: f64,
-    hi: f64,
+pub(crate) struct Bounds {
+    pub(crate) lo: f64,
+    pub(crate) hi: f64,
     /// What the quantity is and its range, for messages.
-    what: &'static str,
+    pub(crate) what: &'static str,
 }
 
 const FREQUENCY: Bounds = Bounds {
@@ -52,7 +52,7 @@ const DIVIDER: Bounds = Bounds {
     what: "the divider ratio (detector volts / ADC pin volts) must be above 0, from 0.001 \
            to 1000; 1 when there is none",
 };
-const LEVEL_DBM: Bounds = Bounds {
+pub(crate) const LEVEL_DBM: Bounds = Bounds {
     lo: -200.0,
     hi: 100.0,
     what: "a level lies from -200 to +100 dBm",
@@ -86,17 +86,25 @@ const VL: Bounds = Bounds {
 
 /// Collects problems as they are found, so a profile reports all of them at once.
 #[derive(Default)]
-struct Checker {
+pub(crate) struct Checker {
     found: Found,
 }
 
 impl Checker {
-    fn fail(&mut self, path: FieldPath, message: impl Into<String>) {
+    /// Everything found, or `value` when nothing was.
+    pub(crate) fn outcome<T>(self, value: Option<T>) -> Result<T, Found> {
+        match value {
+            Some(value) if self.found.is_empty() => Ok(value),
+            _ => Err(self.found),
+        }
+    }
+
+    pub(crate) fn fail(&mut self, path: FieldPath, message: impl Into<String>) {
         self.found.push((path, message.into()));
     }
 
     /// `value` if it is finite and `ok` holds for it; else a problem saying `want`.
-    fn number(
+    pub(crate) fn number(
         &mut self,
         path: FieldPath,
         value: f64,
@@ -115,7 +123,7 @@ impl Checker {
     }
 
     /// `value` if it is finite and within `bounds`.
-    fn within(&mut self, path: FieldPath, value: f64, bounds: &Bounds) -> Option<f64> {
+    pub(crate) fn within(&mut self, path: FieldPath, value: f64, bounds: &Bounds) -> Option<f64> {
         self.number(
             path,
             value,
@@ -446,19 +454,40 @@ fn gamma_of_return_loss(check: &mut Checker, path: FieldPath, rl: f64) -> Option
 }
 
 fn check_offset(check: &mut Checker, raw: &RawProfile) -> Option<Offset> {
-    let path = FieldPath::key("offset");
-    match raw.offset.as_ref().map(|o| (o.db, o.points.as_deref())) {
+    db_figure(
+        check,
+        FieldPath::key("offset"),
+        raw.offset.as_ref(),
+        &DB_FIGURE,
+    )
+}
+
+/// A dB figure given as `db` (the same at every frequency) or `points` (a table against
+/// frequency), each value within `bounds`; 0 dB when the table is absent.
+pub(crate) fn db_figure(
+    check: &mut Checker,
+    path: FieldPath,
+    raw: Option<&RawOffset>,
+    bounds: &Bounds,
+) -> Option<Offset> {
+    match raw.map(|o| (o.db, o.points.as_deref())) {
         None | Some((None, None)) => Some(Offset::Fixed(0.0)),
-        Some((Some(db), None)) => check
-            .within(path.then("db"), db, &DB_FIGURE)
-            .map(Offset::Fixed),
+        Some((Some(db), None)) => check.within(path.then("db"), db, bounds).map(Offset::Fixed),
         Some((None, Some(rows))) => {
-            freq_table(check, &path.then("points"), rows).map(Offset::Table)
+            let table = freq_table(check, &path.then("points"), rows)?;
+            let rows_path = path.then("points");
+            let mut all_within = true;
+            for (i, &(_, db)) in table.rows().iter().enumerate() {
+                all_within &= check
+                    .within(rows_path.at(i).then("db"), db, bounds)
+                    .is_some();
+            }
+            all_within.then_some(Offset::Table(table))
         }
         Some((Some(_), Some(_))) => {
             check.fail(
                 path,
-                "give either `db` (a fixed offset) or `points` (a table), not both",
+                "give either `db` (the same at every frequency) or `points` (a table), not both",
             );
             None
         }
