@@ -52,6 +52,11 @@ pub const COUPLER_FILE: FileKind = FileKind {
     examples: "profiles/",
     docs: "docs/profiles.md (Coupler set-ups)",
     schema: COUPLER_SCHEMA,
+    mistaken_for: (
+        &["adc", "model"],
+        "this is a detector profile, not a coupler set-up: give it with --profile FILE (to \
+         `check`, as its first argument)",
+    ),
 };
 
 const COUPLING_DB: Bounds = Bounds {
@@ -541,5 +546,22 @@ swr_max = 2.0
                 && said.contains("reflected.toml is not valid"),
             "{said}"
         );
+    }
+
+    #[test]
+    fn a_profile_given_for_a_set_up_and_the_other_way_round_is_named_for_what_it_is() {
+        let profile = include_str!("../profiles/demo-diode.toml");
+        let found = problems(profile);
+        assert_eq!(found.len(), 1, "{found:#?}");
+        assert!(found[0].contains("(file): this is a detector profile, not a coupler set-up"));
+        let Err(ProfileError::Invalid { problems, .. }) =
+            crate::profile::parse_profile(SETUP, "c.toml")
+        else {
+            panic!("a set-up is not a profile");
+        };
+        assert_eq!(problems.len(), 1, "{problems:#?}");
+        assert!(problems[0]
+            .message
+            .starts_with("this is a coupler set-up, not a detector"));
     }
 }

@@ -15,10 +15,16 @@ use dbtrail::units::Si;
 
 use super::{emit, parse_counts_arg, parse_frequency_arg, summary, BadInput, Failure};
 
+mod coupler;
+
 #[derive(clap::Args)]
 pub struct Args {
     /// The profile file (TOML)
-    profile: PathBuf,
+    #[arg(required_unless_present = "coupler", conflicts_with = "coupler")]
+    profile: Option<PathBuf>,
+    /// A coupler set-up (TOML) instead: both arms' detectors and the match they can read
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["counts", "json"])]
+    coupler: Option<PathBuf>,
     /// Frequency in use, e.g. 145.5MHz (default: the profile's reference frequency)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_frequency_arg)]
     freq: Option<f64>,
@@ -37,7 +43,12 @@ const SPAN_LEVELS: usize = 6;
 const COLUMNS_PER_BLOCK: usize = 6;
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let profile = load_profile(&args.profile).bad_input()?;
+    let path = match (&args.coupler, &args.profile) {
+        (Some(setup), _) => return coupler::run(setup, args.freq),
+        (None, Some(path)) => path,
+        (None, None) => unreachable!("clap asks for a profile or --coupler"),
+    };
+    let profile = load_profile(path).bad_input()?;
     let cal = Calibration::new(&profile, args.freq, 0.0);
     let uncertainty = Uncertainty::new(&profile, &cal);
     let columns = budget_columns(&cal, &uncertainty, &args.counts);
@@ -51,7 +62,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     text.push_str(&summary::readings(&cal, &args.counts));
     text.push_str(&correction_text(&profile, cal.freq_hz()));
     text.push_str(&budget_text(&profile, &cal, &columns));
-    let shown = args.profile.display().to_string();
+    let shown = path.display().to_string();
     text.push_str(&format!("\n{} is valid.\n", escape_controls(&shown)));
     emit(&text)
 }

@@ -54,6 +54,9 @@ pub struct FileKind {
     pub docs: &'static str,
     /// The keys each of its tables may hold.
     pub schema: locate::Schema,
+    /// Top-level keys that mark a file of another kind given in its place, and what to
+    /// say then.
+    pub mistaken_for: (&'static [&'static str], &'static str),
 }
 
 /// A detector profile.
@@ -62,6 +65,10 @@ pub const PROFILE_FILE: FileKind = FileKind {
     examples: "profiles/",
     docs: "docs/profiles.md",
     schema: locate::PROFILE_SCHEMA,
+    mistaken_for: (
+        &["forward", "reflected"],
+        "this is a coupler set-up, not a detector profile: give it with --coupler FILE",
+    ),
 };
 
 /// Why a profile (or another set-up file, as `kind` says) could not be used.
@@ -432,6 +439,15 @@ pub fn parse_setup<R: serde::de::DeserializeOwned, T>(
         )));
     }
     let unknown = doc.unknown_keys(kind.schema);
+    let (marks, mistaken) = kind.mistaken_for;
+    let top_level_unknown = |key: &str| {
+        unknown
+            .iter()
+            .any(|(path, ..)| *path == FieldPath::key(key))
+    };
+    if marks.iter().all(|key| top_level_unknown(key)) {
+        return Err(whole(mistaken.to_string()));
+    }
     if !unknown.is_empty() {
         let problems = unknown
             .into_iter()
