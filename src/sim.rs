@@ -15,6 +15,10 @@ use crate::correction::{FrequencyCorrection, Offset};
 use crate::detector::{Detector, DiodeDetector, ModelKind};
 use crate::profile::Profile;
 
+pub mod matching;
+
+use matching::ArmDrive;
+
 /// ADC noise of the simulated board, in counts (standard deviation).
 pub const NOISE_COUNTS: f64 = 0.7;
 
@@ -128,10 +132,20 @@ struct DiodeParams {
     span: (f64, f64),
 }
 
+/// Where a simulator's true power comes from.
+#[derive(Debug, Clone)]
+enum Drive {
+    /// A scenario's, at the profile's reference plane.
+    Story(Scenario),
+    /// One arm of the simulated matching bench.
+    Arm(ArmDrive),
+}
+
 /// A simulated detector and ADC running a scenario.
 #[derive(Debug, Clone)]
 pub struct Simulator {
     scenario: Scenario,
+    drive: Drive,
     rate_hz: f64,
     adc: Adc,
     detector: Arc<dyn Detector>,
@@ -153,6 +167,21 @@ pub const MODEL_STEP_S: f64 = 0.01;
 impl Simulator {
     /// A simulator of the detector described by `profile`, sampling at `rate_hz`.
     pub fn new(profile: &Profile, scenario: Scenario, rate_hz: f64, seed: u64) -> Self {
+        Self::driven(profile, Drive::Story(scenario), scenario, rate_hz, seed)
+    }
+
+    /// A simulator of one arm of the matching bench, the arm's power from `drive`.
+    fn of_arm(profile: &Profile, drive: ArmDrive, rate_hz: f64, seed: u64) -> Self {
+        Self::driven(profile, Drive::Arm(drive), Scenario::Soak, rate_hz, seed)
+    }
+
+    fn driven(
+        profile: &Profile,
+        drive: Drive,
+        scenario: Scenario,
+        rate_hz: f64,
+        seed: u64,
+    ) -> Self {
         let model = &profile.model;
         let diode = match (model.kind, model.param("n"), model.param("vl")) {
             (ModelKind::Diode, Some(n), Some(vl)) => Some(DiodeParams {
@@ -166,6 +195,7 @@ impl Simulator {
         };
         Simulator {
             scenario,
+            drive,
             rate_hz,
             adc: profile.adc.clone(),
             detector: Arc::clone(&model.detector),
@@ -249,16 +279,22 @@ impl Simulator {
 
     /// The detector output the scenario gives at time `t`, before the ADC.
     pub fn detector_volts(&self, t: f64) -> f64 {
-        let hz = self.scenario.frequency_at(t);
-        let at_detector = self.scenario.true_dbm(t) - self.offset.at(hz).db;
+        let (hz, true_dbm, board_kelvin) = match &self.drive {
+            Drive::Story(scenario) => (
+                scenario.frequency_at(t),
+                scenario.true_dbm(t),
+                self.diode.map(|d| scenario.board_kelvin(t, d.kelvin)),
+            ),
+            Drive::Arm(arm) => (arm.hz(), arm.true_dbm(t), self.diode.map(|d| d.kelvin)),
+        };
+        let at_detector = true_dbm - self.offset.at(hz).db;
         // The correction is true minus indicated, so the detector indicates that much less.
         let indicated = at_detector - self.correction.as_ref().map_or(0.0, |c| c.at(hz).db);
-        match self.diode {
-            Some(d) => {
-                let kelvin = self.scenario.board_kelvin(t, d.kelvin);
+        match (self.diode, board_kelvin) {
+            (Some(d), Some(kelvin)) => {
                 DiodeDetector::new(d.n, d.vl, kelvin, d.ohms, d.span).volts_at(indicated)
             }
-            None => self.detector.volts_at(indicated),
+            _ => self.detector.volts_at(indicated),
         }
     }
 
