@@ -9,6 +9,8 @@
 //! |Γ| = √(Pr/Pf), SWR = (1 + |Γ|)/(1 − |Γ|), return loss = −20·log10|Γ| dB,
 //! mismatch loss = −10·log10(1 − |Γ|²) dB, net power = Pf − Pr.
 
+use crate::stats::Bound;
+
 /// |Γ| from forward and reflected power, watts. None without forward power (nothing to
 /// compare with) or with a power that is not a number; reflected power at or above the
 /// forward gives |Γ| ≥ 1, which [`Match::from_gamma`] says is reversed.
@@ -108,6 +110,145 @@ pub fn net_power_w(forward_w: f64, reflected_w: f64) -> f64 {
     forward_w - reflected_w
 }
 
+/// Why an interval's match is not a plain value.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum MatchState {
+    /// Both powers are values: every figure is one.
+    Value,
+    /// The true return loss is at least the one given (SWR at most): reflected power
+    /// below its detector's span, or forward power clipped.
+    ReturnLossAtLeast,
+    /// The true return loss is at most the one given (SWR at least): reflected power
+    /// clipped or above its span.
+    ReturnLossAtMost,
+    /// The measured |Γ| is within the coupler's own leakage: the match is better than
+    /// the coupler can resolve, and only the return loss's lower end is known.
+    Unresolved,
+    /// Reflected power at or above the forward: the channels are swapped, or one is
+    /// miscalibrated. No SWR.
+    Reversed,
+    /// Forward power below its detector's span, or no forward figure at all: no ratio.
+    NoForward,
+    /// Bounds that lean opposite ways: nothing can be said of the ratio.
+    Unknown,
+}
+
+impl MatchState {
+    /// The state's name in a log's flags cell.
+    pub fn flag(self) -> &'static str {
+        match self {
+            MatchState::Value => "",
+            MatchState::ReturnLossAtLeast => "rl-at-least",
+            MatchState::ReturnLossAtMost => "rl-at-most",
+            MatchState::Unresolved => "below-directivity",
+            MatchState::Reversed => "reversed",
+            MatchState::NoForward => "no-forward",
+            MatchState::Unknown => "match-unknown",
+        }
+    }
+
+    /// What it means, in plain words.
+    pub fn words(self) -> &'static str {
+        match self {
+            MatchState::Value => "",
+            MatchState::ReturnLossAtLeast => {
+                "reflected power is below what its detector reads: the return loss is at least this"
+            }
+            MatchState::ReturnLossAtMost => {
+                "reflected power is past what its detector reads: the return loss is at most this"
+            }
+            MatchState::Unresolved => "better than the coupler can resolve",
+            MatchState::Reversed => {
+                "reflected power at or above forward: channels swapped, or a calibration error"
+            }
+            MatchState::NoForward => "forward power below what its detector reads: no ratio",
+            MatchState::Unknown => "powers bounded both ways: no ratio",
+        }
+    }
+}
+
+/// One channel's power over an interval as the match needs it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ArmPower {
+    /// Mean power, watts at the reference plane; None when there is no figure.
+    pub watts: Option<f64>,
+    /// Whether it is a value or a bound.
+    pub bound: Bound,
+    /// Its expanded uncertainty, dB (k = 2), for a value.
+    pub u_db: Option<f64>,
+}
+
+/// An interval's match: the figures of the ratio of forward and reflected power, what they
+/// are (a value, a bound, or none), their uncertainty from both channels' budgets, and
+/// the range the coupler's directivity leaves.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MatchInterval {
+    /// What the figures are.
+    pub state: MatchState,
+    /// The figures of the measured |Γ| (a bound as `state` says); None without a ratio.
+    pub figures: Option<Match>,
+    /// Net power to the load, watts, when both powers are values.
+    pub net_w: Option<f64>,
+    /// Expanded uncertainty of the return loss, dB (k = 2), from both channels' budgets.
+    pub u_return_loss_db: Option<f64>,
+    /// The return loss the true |Γ| may have given the directivity, dB: (lowest,
+    /// highest), the highest infinite when the leakage could hide the whole reflection.
+    pub return_loss_range_db: Option<(f64, f64)>,
+}
+
+impl MatchInterval {
+    /// The match of an interval's forward and reflected power through a coupler whose
+    /// leakage is Γd.
+    pub fn new(forward: ArmPower, reflected: ArmPower, leakage: f64) -> Self {
+        let none = |state| MatchInterval {
+            state,
+            figures: None,
+            net_w: None,
+            u_return_loss_db: None,
+            return_loss_range_db: None,
+        };
+        let (Some(pf), Some(pr)) = (forward.watts, reflected.watts) else {
+            return none(if forward.watts.is_none() {
+                MatchState::NoForward
+            } else {
+                MatchState::Unknown
+            });
+        };
+        let state = match (forward.bound, reflected.bound) {
+            (Bound::AtMost | Bound::Unknown, _) => return none(MatchState::NoForward),
+            (_, Bound::Unknown) => return none(MatchState::Unknown),
+            (Bound::Exact, Bound::Exact) => MatchState::Value,
+            (Bound::Exact | Bound::AtLeast, Bound::AtMost) | (Bound::AtLeast, Bound::Exact) => {
+                MatchState::ReturnLossAtLeast
+            }
+            (Bound::Exact, Bound::AtLeast) => MatchState::ReturnLossAtMost,
+            (Bound::AtLeast, Bound::AtLeast) => return none(MatchState::Unknown),
+        };
+        let Some(figures) = Match::from_powers(pf, pr) else {
+            return none(MatchState::NoForward);
+        };
+        if figures.reversed {
+            return none(MatchState::Reversed);
+        }
+        let (low, high) = gamma_range(figures.gamma, leakage);
+        let state = if state == MatchState::Value && figures.gamma <= leakage {
+            MatchState::Unresolved
+        } else {
+            state
+        };
+        let values = forward.bound == Bound::Exact && reflected.bound == Bound::Exact;
+        MatchInterval {
+            state,
+            figures: Some(figures),
+            net_w: values.then(|| net_power_w(pf, pr)),
+            u_return_loss_db: (state == MatchState::Value)
+                .then(|| Some(forward.u_db?.hypot(reflected.u_db?)))
+                .flatten(),
+            return_loss_range_db: Some((return_loss_db(high.min(1.0)), return_loss_db(low))),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -201,5 +342,98 @@ mod tests {
         let perfect = Match::from_powers(5.0, 0.0).unwrap();
         assert_eq!(perfect.swr, 1.0);
         assert!(perfect.return_loss_db.is_infinite());
+    }
+
+    fn value(watts: f64, u_db: f64) -> ArmPower {
+        ArmPower {
+            watts: Some(watts),
+            bound: Bound::Exact,
+            u_db: Some(u_db),
+        }
+    }
+
+    fn bounded(watts: f64, bound: Bound) -> ArmPower {
+        ArmPower {
+            watts: Some(watts),
+            bound,
+            u_db: None,
+        }
+    }
+
+    // Source: JCGM 100:2008 (GUM) 5.1.2, the law of propagation for uncorrelated inputs:
+    // the return loss 10·log10(Pf/Pr) is the difference of the two levels in dB, each with
+    // sensitivity 1, so its uncertainty is the root sum of squares of theirs (both at
+    // k = 2, so the expanded figures combine the same way).
+    #[test]
+    fn a_return_loss_of_two_values_carries_both_channels_uncertainty() {
+        let leakage = directivity_gamma(30.0);
+        let m = MatchInterval::new(value(100.0, 0.3), value(4.0, 0.4), leakage);
+        assert_eq!(m.state, MatchState::Value);
+        let figures = m.figures.unwrap();
+        assert!(close(figures.swr, 1.5, 1e-12));
+        assert!(close(m.net_w.unwrap(), 96.0, 1e-12));
+        assert!(close(m.u_return_loss_db.unwrap(), 0.5, 1e-12));
+        // |Γ| 0.2 through 30 dB directivity (Γd 0.0316): true |Γ| 0.168 to 0.232.
+        let (low, high) = m.return_loss_range_db.unwrap();
+        assert!(close(low, -20.0 * (0.2 + leakage).log10(), 1e-9), "{low}");
+        assert!(close(high, -20.0 * (0.2 - leakage).log10(), 1e-9), "{high}");
+    }
+
+    // The edge cases of a ratio of bounded powers, each its own state: a reflected power
+    // below its span makes the return loss a floor, a clipped one a ceiling, a forward
+    // below its span leaves no ratio, and bounds leaning opposite ways say nothing.
+    #[test]
+    fn bounds_on_either_power_make_the_match_a_bound_or_nothing() {
+        let leakage = directivity_gamma(30.0);
+        let cases = [
+            (
+                value(100.0, 0.3),
+                bounded(0.01, Bound::AtMost),
+                MatchState::ReturnLossAtLeast,
+            ),
+            (
+                bounded(100.0, Bound::AtLeast),
+                value(4.0, 0.3),
+                MatchState::ReturnLossAtLeast,
+            ),
+            (
+                value(100.0, 0.3),
+                bounded(4.0, Bound::AtLeast),
+                MatchState::ReturnLossAtMost,
+            ),
+            (
+                bounded(1e-3, Bound::AtMost),
+                value(1e-4, 0.3),
+                MatchState::NoForward,
+            ),
+            (
+                bounded(100.0, Bound::AtLeast),
+                bounded(4.0, Bound::AtLeast),
+                MatchState::Unknown,
+            ),
+            (value(1.0, 0.3), value(1.2, 0.3), MatchState::Reversed),
+            (value(100.0, 0.3), value(0.01, 0.3), MatchState::Unresolved),
+        ];
+        for (forward, reflected, state) in cases {
+            let m = MatchInterval::new(forward, reflected, leakage);
+            assert_eq!(m.state, state, "{forward:?} {reflected:?}");
+            let has_figures = !matches!(
+                state,
+                MatchState::NoForward | MatchState::Unknown | MatchState::Reversed
+            );
+            assert_eq!(m.figures.is_some(), has_figures, "{state:?}");
+            assert_eq!(m.u_return_loss_db.is_some(), state == MatchState::Value);
+            assert_eq!(
+                m.net_w.is_some(),
+                state == MatchState::Unresolved,
+                "{state:?}"
+            );
+        }
+        // 100 W forward, 10 mW reflected: |Γ| 0.01 inside Γd 0.0316, so the return loss is
+        // known only to be above 20·log10 of 1/(0.01 + Γd), with no top.
+        let m = MatchInterval::new(value(100.0, 0.3), value(0.01, 0.3), leakage);
+        let (low, high) = m.return_loss_range_db.unwrap();
+        assert!(close(low, -20.0 * (0.01 + leakage).log10(), 1e-9));
+        assert!(high.is_infinite());
     }
 }
