@@ -9,14 +9,18 @@ use std::path::{Path, PathBuf};
 
 use serde::Deserialize;
 
+use crate::calibration::Calibration;
 use crate::correction::Offset;
 use crate::decode::MAX_CHANNELS;
+use crate::matching::{directivity_gamma, ArmPower, MatchInterval};
 use crate::profile::locate::{did_you_mean, FieldPath, Schema};
 use crate::profile::raw::RawOffset;
 use crate::profile::validate::{db_figure, Bounds, Checker, Found, LEVEL_DBM};
 use crate::profile::{
     load_profile, parse_setup, read_setup_file, setup_text, FileKind, Profile, ProfileError,
 };
+use crate::stats::{Bound, Figures};
+use crate::uncertainty::Uncertainty;
 
 /// The keys each table of a coupler set-up may hold.
 const COUPLER_SCHEMA: Schema = &[
@@ -233,6 +237,63 @@ pub struct Coupler {
     pub forward: Profile,
     /// The reflected detector's profile.
     pub reflected: Profile,
+}
+
+/// Both arms calibrated at one frequency, with the coupling added, and their budgets:
+/// what turns two channels' figures into a match.
+#[derive(Debug, Clone)]
+pub struct CouplerCalibration {
+    /// The forward arm's chain, powers at the reference plane.
+    pub forward: Calibration,
+    /// The reflected arm's chain.
+    pub reflected: Calibration,
+    /// The forward arm's uncertainty budget.
+    pub forward_budget: Uncertainty,
+    /// The reflected arm's.
+    pub reflected_budget: Uncertainty,
+    /// The coupler's leakage Γd at the frequency.
+    pub leakage: f64,
+}
+
+impl CouplerCalibration {
+    /// Both arms of `coupler` at `hz`.
+    pub fn new(coupler: &Coupler, hz: f64) -> Self {
+        let setup = &coupler.setup;
+        let forward = Calibration::new(&coupler.forward, Some(hz), setup.forward_offset_db(hz));
+        let reflected =
+            Calibration::new(&coupler.reflected, Some(hz), setup.reflected_offset_db(hz));
+        CouplerCalibration {
+            forward_budget: Uncertainty::new(&coupler.forward, &forward),
+            reflected_budget: Uncertainty::new(&coupler.reflected, &reflected),
+            forward,
+            reflected,
+            leakage: directivity_gamma(setup.directivity.at(hz).db),
+        }
+    }
+
+    /// The match of an interval from each arm's figures (their means over watts).
+    pub fn interval(&self, forward: &Figures, reflected: &Figures) -> MatchInterval {
+        MatchInterval::new(
+            arm_power(forward, &self.forward_budget),
+            arm_power(reflected, &self.reflected_budget),
+            self.leakage,
+        )
+    }
+}
+
+/// One arm's mean power and its uncertainty, as the match takes them.
+fn arm_power(figures: &Figures, budget: &Uncertainty) -> ArmPower {
+    let u_db = match (figures.bound, figures.mean_dbm, figures.noise) {
+        (Bound::Exact, Some(mean), Some(noise)) => {
+            Some(budget.budget(mean, Some(noise)).expanded_db())
+        }
+        _ => None,
+    };
+    ArmPower {
+        watts: figures.mean_w,
+        bound: figures.bound,
+        u_db,
+    }
 }
 
 /// Why a coupler set-up could not be used.

@@ -193,6 +193,7 @@ pub struct MatchInterval {
     pub u_return_loss_db: Option<f64>,
     /// The return loss the true |Γ| may have given the directivity, dB: (lowest,
     /// highest), the highest infinite when the leakage could hide the whole reflection.
+    /// Both arms leak: the range holds |Γm|·(1 ± |Γm|·Γd) ± Γd.
     pub return_loss_range_db: Option<(f64, f64)>,
 }
 
@@ -230,7 +231,11 @@ impl MatchInterval {
         if figures.reversed {
             return none(MatchState::Reversed);
         }
-        let (low, high) = gamma_range(figures.gamma, leakage);
+        // The reflected arm's leakage adds ±Γd; the forward arm's, a factor 1 ± |Γ|·Γd
+        // on the forward wave it divides by (taken at the measured |Γ|, first order).
+        let forward_error = figures.gamma * leakage;
+        let (low, _) = gamma_range(figures.gamma * (1.0 - forward_error), leakage);
+        let (_, high) = gamma_range(figures.gamma * (1.0 + forward_error), leakage);
         let state = if state == MatchState::Value && figures.gamma <= leakage {
             MatchState::Unresolved
         } else {
@@ -373,10 +378,13 @@ mod tests {
         assert!(close(figures.swr, 1.5, 1e-12));
         assert!(close(m.net_w.unwrap(), 96.0, 1e-12));
         assert!(close(m.u_return_loss_db.unwrap(), 0.5, 1e-12));
-        // |Γ| 0.2 through 30 dB directivity (Γd 0.0316): true |Γ| 0.168 to 0.232.
+        // |Γ| 0.2 through 30 dB directivity (Γd 0.0316): the reflected arm's leakage moves
+        // it ±Γd, the forward arm's by a factor 1 ± 0.2·Γd: true |Γ| 0.167 to 0.233.
         let (low, high) = m.return_loss_range_db.unwrap();
-        assert!(close(low, -20.0 * (0.2 + leakage).log10(), 1e-9), "{low}");
-        assert!(close(high, -20.0 * (0.2 - leakage).log10(), 1e-9), "{high}");
+        let widest = 0.2 * (1.0 + 0.2 * leakage) + leakage;
+        let narrowest = 0.2 * (1.0 - 0.2 * leakage) - leakage;
+        assert!(close(low, -20.0 * widest.log10(), 1e-9), "{low}");
+        assert!(close(high, -20.0 * narrowest.log10(), 1e-9), "{high}");
     }
 
     // The edge cases of a ratio of bounded powers, each its own state: a reflected power
@@ -430,10 +438,14 @@ mod tests {
             );
         }
         // 100 W forward, 10 mW reflected: |Γ| 0.01 inside Γd 0.0316, so the return loss is
-        // known only to be above 20·log10 of 1/(0.01 + Γd), with no top.
+        // known only to be above 20·log10 of 1/(0.01·(1 + 0.01·Γd) + Γd), with no top.
         let m = MatchInterval::new(value(100.0, 0.3), value(0.01, 0.3), leakage);
         let (low, high) = m.return_loss_range_db.unwrap();
-        assert!(close(low, -20.0 * (0.01 + leakage).log10(), 1e-9));
+        assert!(close(
+            low,
+            -20.0 * (0.01 * (1.0 + 0.01 * leakage) + leakage).log10(),
+            1e-9
+        ));
         assert!(high.is_infinite());
     }
 }
