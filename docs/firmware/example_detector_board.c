@@ -5,6 +5,8 @@
  * Written for no particular microcontroller: fill in the four board functions at the top
  * (ADC read, serial write, a periodic tick, start-up) for yours. Everything else is plain
  * C99. One or two channels, ASCII lines or binary frames, chosen by the defines below.
+ * Two channels suit a directional coupler with a detector on each arm: forward on
+ * channel 1 and reflected on channel 2, as ../../profiles/demo-coupler.toml has them.
  *
  * Safety: the detector's input must never see more than its rated power. Put enough
  * attenuation in front of it, and respect the ratings of loads and attenuators.
