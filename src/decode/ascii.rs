@@ -73,9 +73,10 @@ impl AsciiDecoder {
         out: &mut impl FrameSink,
     ) -> Option<usize> {
         if self.on_plain_path() {
-            let (used, taken) = plain_lines(bytes, |v| out.push_singles(v));
+            let mut cursor = Cursor::new(bytes);
+            let taken = plain_lines(&mut cursor, |v| out.push_singles(v));
             self.took_plain(taken, stats);
-            *bytes = &bytes[used..];
+            *bytes = &bytes[cursor.at..];
         }
         memchr::memchr2(b'\n', b'\r', bytes)
     }
@@ -177,55 +178,102 @@ impl AsciiDecoder {
     }
 }
 
-/// Takes the plain lines (digits, then LF or CRLF) at the start of `b`, handing the values
-/// to `take` in batches, up to the first other line or cut line. Returns where it stopped and the
-/// lines taken.
-///
-/// A fast stream's lines mostly have the same number of digits, so each batch first
-/// checks the lines against the shape of the last one searched (masks over one word, and
-/// the next line's start known at once); a line of another shape is searched and sets the
-/// shape. Lines that keep changing shape finish the batch by search alone.
+/// The bytes of one feed and where the next line starts in them: what the plain-line
+/// readers below move along.
+#[derive(Debug, Clone, Copy)]
+struct Cursor<'a> {
+    bytes: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Cursor<'a> {
+    fn new(bytes: &'a [u8]) -> Self {
+        Cursor { bytes, at: 0 }
+    }
+
+    /// The `len` bytes from the cursor on, when there are that many.
+    #[inline(always)]
+    fn ahead(&self, len: usize) -> Option<&'a [u8]> {
+        self.bytes.get(self.at..self.at + len)
+    }
+
+    /// The little-endian word of the eight bytes from the cursor on, when there are eight.
+    #[inline(always)]
+    fn word(&self) -> Option<u64> {
+        let bytes = self.ahead(8)?;
+        Some(u64::from_le_bytes(bytes.try_into().ok()?))
+    }
+
+    /// Reads a plain line, `digits + LF` (or CRLF), a byte at a time and moves past it;
+    /// None, not moving, for any other line or one cut by the end of the bytes. Up to
+    /// nine digits, which always fit a u32; longer numbers take the general path.
+    fn plain_line(&mut self) -> Option<u32> {
+        let (b, at) = (self.bytes, self.at);
+        let mut i = at;
+        let mut value: u32 = 0;
+        while i < b.len() && i - at < 9 {
+            let d = b[i].wrapping_sub(b'0');
+            if d > 9 {
+                break;
+            }
+            value = value * 10 + u32::from(d);
+            i += 1;
+        }
+        if i == at {
+            return None;
+        }
+        self.at = match (b.get(i), b.get(i + 1)) {
+            (Some(b'\n'), _) => i + 1,
+            (Some(b'\r'), Some(b'\n')) => i + 2,
+            _ => return None,
+        };
+        Some(value)
+    }
+}
+
+/// Values gathered in a local array before they are handed on, so the hot loops keep
+/// their counters in registers instead of a vector's length in memory.
+struct Batch {
+    values: [u32; BATCH],
+    len: usize,
+}
+
+const BATCH: usize = 128;
+
+impl Batch {
+    fn new() -> Self {
+        Batch {
+            values: [0; BATCH],
+            len: 0,
+        }
+    }
+
+    #[inline(always)]
+    fn push(&mut self, value: u32) {
+        self.values[self.len] = value;
+        self.len += 1;
+    }
+
+    #[inline(always)]
+    fn is_full(&self) -> bool {
+        self.len == BATCH
+    }
+}
+
+/// Takes the plain lines (digits, then LF or CRLF) from the cursor on, handing the values
+/// to `take` in batches, up to the first other line or cut line, and leaves the cursor
+/// there. Returns the lines taken.
 #[inline]
-fn plain_lines(b: &[u8], mut take: impl FnMut(&[u32])) -> (usize, u64) {
-    let mut at = 0;
+fn plain_lines(cursor: &mut Cursor, mut take: impl FnMut(&[u32])) -> u64 {
     let mut taken = 0;
-    let mut values = [0u32; BATCH];
-    let mut shape: Option<LineShape> = None;
+    let mut shape = None;
     loop {
-        let mut n = 0;
-        let mut ended = false;
-        loop {
-            if let Some(shape) = &shape {
-                let from = n;
-                (n, at) = shape.run(b, at, &mut values, n);
-                if n == BATCH || n - from < STEADY_RUN {
-                    break;
-                }
-            }
-            let Some((value, used)) = searched_line(b, at) else {
-                ended = true;
-                break;
-            };
-            values[n] = value;
-            n += 1;
-            shape = LineShape::of(&b[at..at + used]);
-            at += used;
-            if n == BATCH {
-                break;
-            }
-        }
-        while !ended && n < BATCH {
-            let Some((value, used)) = searched_line(b, at) else {
-                break;
-            };
-            values[n] = value;
-            n += 1;
-            at += used;
-        }
-        take(&values[..n]);
-        taken += n as u64;
-        if n < BATCH {
-            return (at, taken);
+        let mut batch = Batch::new();
+        fill_batch(cursor, &mut shape, &mut batch);
+        take(&batch.values[..batch.len]);
+        taken += batch.len as u64;
+        if !batch.is_full() {
+            return taken;
         }
     }
 }
@@ -233,9 +281,37 @@ fn plain_lines(b: &[u8], mut take: impl FnMut(&[u32])) -> (usize, u64) {
 /// Lines in a row that show a stream's shape is steady enough to check lines against.
 const STEADY_RUN: usize = 8;
 
-#[inline]
-fn searched_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
-    swar_line(b, at).or_else(|| short_line(b, at))
+/// Fills `batch` with plain lines, up to the first other line. A fast stream's lines
+/// mostly have the same number of digits, so the lines are first checked against the
+/// shape of the last one read (masks over one word, and the next line's start known at
+/// once); a line of another shape is read a byte at a time and sets the shape. Lines that
+/// keep changing shape fill the batch a byte at a time.
+#[inline(always)]
+fn fill_batch(cursor: &mut Cursor, shape: &mut Option<LineShape>, batch: &mut Batch) {
+    loop {
+        if let Some(shape) = shape {
+            let from = batch.len;
+            shape.take_lines(cursor, batch);
+            if batch.is_full() || batch.len - from < STEADY_RUN {
+                break;
+            }
+        }
+        let start = cursor.at;
+        let Some(value) = cursor.plain_line() else {
+            return;
+        };
+        batch.push(value);
+        *shape = LineShape::of(&cursor.bytes[start..cursor.at]);
+        if batch.is_full() {
+            return;
+        }
+    }
+    while !batch.is_full() {
+        let Some(value) = cursor.plain_line() else {
+            return;
+        };
+        batch.push(value);
+    }
 }
 
 /// A plain line's layout in the word that starts it: `digits` digits, then LF or CRLF.
@@ -255,7 +331,7 @@ struct LineShape {
     block: BlockMasks,
 }
 
-/// Lines checked at once by `LineShape::run_blocks`: their bytes fill whole words.
+/// Lines checked at once by `LineShape::take_blocks`: their bytes fill whole words.
 const BLOCK_LINES: usize = 8;
 
 /// Which bytes of each word of a block of lines are digits and which are line ends (and
@@ -310,30 +386,24 @@ impl LineShape {
         })
     }
 
-    /// Takes the lines of this shape from `at` on into `values[n..]`, up to the first
-    /// other line or a full batch; returns the new count and position.
+    /// Takes the lines of this shape from the cursor on, up to the first other line or a
+    /// full batch.
     #[inline(always)]
-    fn run(
-        &self,
-        b: &[u8],
-        mut at: usize,
-        values: &mut [u32; BATCH],
-        mut n: usize,
-    ) -> (usize, usize) {
+    fn take_lines(&self, cursor: &mut Cursor, batch: &mut Batch) {
         loop {
-            (n, at) = self.run_blocks(b, at, values, n);
+            self.take_blocks(cursor, batch);
             // A block that holds another line, or the last bytes: a line at a time, up
             // to the other line or a block's worth.
-            let from = n;
-            let limit = (n + BLOCK_LINES).min(BATCH);
-            (n, at) = match self.short {
-                true => self.run_summing(b, at, values, n, limit, |digits| {
-                    sum_four_digits((digits >> 32) as u32)
+            let from = batch.len;
+            let limit = (from + BLOCK_LINES).min(BATCH);
+            match self.short {
+                true => self.take_each(cursor, batch, limit, |digits| {
+                    sum_two_fours(digits >> 32) as u32
                 }),
-                false => self.run_summing(b, at, values, n, limit, sum_digits),
-            };
-            if n != from + BLOCK_LINES || n == BATCH {
-                return (n, at);
+                false => self.take_each(cursor, batch, limit, sum_eight),
+            }
+            if batch.len != from + BLOCK_LINES || batch.is_full() {
+                return;
             }
         }
     }
@@ -341,42 +411,35 @@ impl LineShape {
     /// Takes whole blocks of `BLOCK_LINES` lines of this shape: each block checked word
     /// by word, then its numbers read (two at a time in a word when short).
     #[inline(always)]
-    fn run_blocks(
-        &self,
-        b: &[u8],
-        mut at: usize,
-        values: &mut [u32; BATCH],
-        mut n: usize,
-    ) -> (usize, usize) {
+    fn take_blocks(&self, cursor: &mut Cursor, batch: &mut Batch) {
         let len = self.len;
         // The block's words, and the word that starts its last line.
         let span = (BLOCK_LINES - 1) * len + 8;
-        while n + BLOCK_LINES <= BATCH {
-            let Some(block) = b.get(at..at + span) else {
+        while batch.len + BLOCK_LINES <= BATCH {
+            let Some(block) = cursor.ahead(span) else {
                 break;
             };
             if !self.block_fits(block) {
                 break;
             }
             let digits_at = |line: usize| word_at(block, line * len).wrapping_sub(ZEROS);
-            let out = &mut values[n..n + BLOCK_LINES];
+            let out = &mut batch.values[batch.len..batch.len + BLOCK_LINES];
             if self.short {
                 for (pair, out) in out.chunks_exact_mut(2).enumerate() {
                     let [first, second] = [2 * pair, 2 * pair + 1]
                         .map(|line| ((digits_at(line) as u32) << (self.shift - 32)) as u64);
-                    let both = sum_two_four_digits(first | second << 32);
+                    let both = sum_two_fours(first | second << 32);
                     out[0] = both as u32;
                     out[1] = (both >> 32) as u32;
                 }
             } else {
                 for (line, out) in out.iter_mut().enumerate() {
-                    *out = sum_digits(digits_at(line) << self.shift);
+                    *out = sum_eight(digits_at(line) << self.shift);
                 }
             }
-            n += BLOCK_LINES;
-            at += BLOCK_LINES * len;
+            batch.len += BLOCK_LINES;
+            cursor.at += BLOCK_LINES * len;
         }
-        (n, at)
     }
 
     /// True when every line of the block has this shape: digits where digits belong and
@@ -396,22 +459,24 @@ impl LineShape {
         bad == 0
     }
 
+    /// Takes lines of this shape one word each, up to `limit` values in the batch, their
+    /// digits summed by `sum`.
     #[inline(always)]
-    fn run_summing(
+    fn take_each(
         &self,
-        b: &[u8],
-        mut at: usize,
-        values: &mut [u32; BATCH],
-        mut n: usize,
+        cursor: &mut Cursor,
+        batch: &mut Batch,
         limit: usize,
         sum: impl Fn(u64) -> u32,
-    ) -> (usize, usize) {
-        while n < limit {
-            let Some(word) = b.get(at..at + 8) else {
+    ) {
+        while batch.len < limit {
+            let Some(word) = cursor.word() else {
                 break;
             };
-            let word = u64::from_le_bytes(word.try_into().unwrap_or([0; 8]));
             let digits = word.wrapping_sub(ZEROS);
+            // A byte is a digit exactly when it and it plus 6 both stay below 0x10; a
+            // borrow only reaches later bytes: the line end, checked on the word itself,
+            // or bytes past the line.
             let not_digit =
                 (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & self.digit_nibbles;
             if not_digit | ((word & self.end_mask) ^ self.end_bytes) != 0 {
@@ -419,75 +484,10 @@ impl LineShape {
             }
             // The digits are the word's low bytes, 0 to 9 each once checked (no borrow
             // reaches them); the shift drops the bytes after them off the top.
-            values[n] = sum(digits << self.shift);
-            n += 1;
-            at += self.len;
+            batch.push(sum(digits << self.shift));
+            cursor.at += self.len;
         }
-        (n, at)
     }
-}
-
-/// Values gathered in a local array before they are handed on, so the hot loops keep
-/// their counters in registers instead of a vector's length in memory.
-const BATCH: usize = 128;
-
-/// Reads `digits + LF` (or CRLF) at `b[at..]` a byte at a time, for lines near the end of
-/// a read and numbers of eight or nine digits.
-fn short_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
-    let mut i = at;
-    let mut value: u32 = 0;
-    // Nine digits always fit a u32; longer numbers take the general path.
-    while i < b.len() && i - at < 9 {
-        let d = b[i].wrapping_sub(b'0');
-        if d > 9 {
-            break;
-        }
-        value = value * 10 + u32::from(d);
-        i += 1;
-    }
-    if i == at {
-        return None;
-    }
-    match (b.get(i), b.get(i + 1)) {
-        (Some(b'\n'), _) => Some((value, i + 1 - at)),
-        (Some(b'\r'), Some(b'\n')) => Some((value, i + 2 - at)),
-        _ => None,
-    }
-}
-
-/// Reads `digits + LF` (or CRLF) at `b[at..]` eight bytes at a time: the leading digits
-/// are found and summed with word arithmetic instead of a loop per byte. None when the
-/// line is not 1 to 7 digits and a line end, or when fewer than eight bytes remain.
-#[inline]
-fn swar_line(b: &[u8], at: usize) -> Option<(u32, usize)> {
-    let word = u64::from_le_bytes(b.get(at..at + 8)?.try_into().ok()?);
-    let digits = word.wrapping_sub(0x3030_3030_3030_3030);
-    // A byte is a digit exactly when it and it plus 6 both stay below 0x10. A borrow from
-    // a byte below '0' only reaches the bytes after it, which are not used.
-    let not_digit = (digits | digits.wrapping_add(0x0606_0606_0606_0606)) & 0xF0F0_F0F0_F0F0_F0F0;
-    let len = (not_digit.trailing_zeros() / 8) as usize;
-    if len.wrapping_sub(1) >= 7 {
-        return None;
-    }
-    // The byte after the digits is in the word already.
-    let end = match (word >> (8 * len)) as u8 {
-        b'\n' => 1,
-        b'\r' if b.get(at + len + 1) == Some(&b'\n') => 2,
-        _ => return None,
-    };
-    // Move the digits to the top bytes (zeros before them add nothing).
-    let top = (digits << (8 * (8 - len))) & 0x0F0F_0F0F_0F0F_0F0F;
-    Some((sum_digits(top), len + end))
-}
-
-/// The number whose decimal digits (one a byte, the first lowest) fill a word: pairs,
-/// quads and the eight summed with word arithmetic.
-#[inline(always)]
-fn sum_digits(digits: u64) -> u32 {
-    let mut v = (digits.wrapping_mul(10) + (digits >> 8)) & 0x00FF_00FF_00FF_00FF;
-    v = (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF;
-    v = (v.wrapping_mul(10000) + (v >> 32)) & 0x0000_0000_FFFF_FFFF;
-    v as u32
 }
 
 /// ASCII '0' in every byte.
@@ -501,18 +501,19 @@ fn word_at(bytes: &[u8], at: usize) -> u64 {
     u64::from_le_bytes(word)
 }
 
-/// `sum_four_digits` of each half of the word at once.
+/// The numbers whose decimal digits (one a byte, the first lowest) fill each half of the
+/// word, up to four digits each: pairs, then quads, with word arithmetic.
 #[inline(always)]
-fn sum_two_four_digits(digits: u64) -> u64 {
+fn sum_two_fours(digits: u64) -> u64 {
     let v = (digits.wrapping_mul(10) + (digits >> 8)) & 0x00FF_00FF_00FF_00FF;
     (v.wrapping_mul(100) + (v >> 16)) & 0x0000_FFFF_0000_FFFF
 }
 
-/// As `sum_digits` for a number of up to four digits in the four bytes of a u32.
+/// The number whose decimal digits fill the word: its two halves' numbers joined.
 #[inline(always)]
-fn sum_four_digits(digits: u32) -> u32 {
-    let v = (digits.wrapping_mul(10) + (digits >> 8)) & 0x00FF_00FF;
-    (v.wrapping_mul(100) + (v >> 16)) & 0xFFFF
+fn sum_eight(digits: u64) -> u32 {
+    let v = sum_two_fours(digits);
+    ((v.wrapping_mul(10000) + (v >> 32)) & 0xFFFF_FFFF) as u32
 }
 
 fn is_blank(b: u8) -> bool {
@@ -578,21 +579,31 @@ mod tests {
         frames.iter().map(|f| f.counts().to_vec()).collect()
     }
 
+    /// The value and the bytes used of the plain line at the start of `b`.
+    fn read_line(b: &[u8]) -> Option<(u32, usize)> {
+        let mut cursor = Cursor::new(b);
+        cursor.plain_line().map(|v| (v, cursor.at))
+    }
+
     #[test]
-    fn word_at_a_time_lines_agree_with_the_plain_parser() {
-        for value in [0u32, 7, 42, 999, 4095, 65535, 1_234_567] {
+    fn plain_lines_agree_with_the_plain_parser() {
+        for value in [0u32, 7, 42, 999, 4095, 65535, 1_234_567, 999_999_999] {
             for end in ["\n", "\r\n"] {
                 let line = format!("{value}{end}XXXXXXXX");
-                let got = swar_line(line.as_bytes(), 0);
-                let want =
-                    (value < 10_000_000).then(|| (value, value.to_string().len() + end.len()));
-                assert_eq!(got, want, "{line:?}");
+                let want = Some((value, value.to_string().len() + end.len()));
+                assert_eq!(read_line(line.as_bytes()), want, "{line:?}");
             }
         }
-        assert_eq!(swar_line(b"12a\n5678", 0), None);
-        assert_eq!(swar_line(b"12,3\n567", 0), None);
-        assert_eq!(swar_line(b"#12\n5678", 0), None);
-        assert_eq!(swar_line(b"12\n", 0), None, "fewer than eight bytes left");
+        assert_eq!(read_line(b"12a\n5678"), None);
+        assert_eq!(read_line(b"12,3\n567"), None);
+        assert_eq!(read_line(b"#12\n5678"), None);
+        assert_eq!(
+            read_line(b"1234567890\n"),
+            None,
+            "ten digits: the general path"
+        );
+        assert_eq!(read_line(b"12\r"), None, "a line end cut by the read");
+        assert_eq!(read_line(b"12\n"), Some((12, 3)));
     }
 
     #[test]
@@ -686,26 +697,53 @@ mod helper_props {
     proptest! {
         // Source: `str::parse` (the standard library) as the reference reading.
         #[test]
-        fn swar_line_reads_what_parse_reads(b in bytes_like_lines(8..24)) {
-            let want = plain(&b, 7);
-            prop_assert_eq!(swar_line(&b, 0), want);
-        }
-
-        #[test]
-        fn short_line_reads_what_parse_reads(b in bytes_like_lines(0..16)) {
-            prop_assert_eq!(short_line(&b, 0), plain(&b, 9));
+        fn plain_line_reads_what_parse_reads(b in bytes_like_lines(0..16)) {
+            let mut cursor = Cursor::new(&b);
+            let got = cursor.plain_line().map(|v| (v, cursor.at));
+            prop_assert_eq!(got, plain(&b, 9));
+            if got.is_none() {
+                prop_assert_eq!(cursor.at, 0, "a line not read leaves the cursor");
+            }
         }
 
         #[test]
         fn the_digit_summers_agree_with_parse(text in digit_string(8)) {
             let want: u32 = text.parse().unwrap_or(0);
-            prop_assert_eq!(sum_digits(digit_bytes(&text, 8)), want);
+            prop_assert_eq!(sum_eight(digit_bytes(&text, 8)), want);
             if text.len() <= 4 {
-                let four = digit_bytes(&text, 4) as u32;
-                prop_assert_eq!(sum_four_digits(four), want);
-                let both = sum_two_four_digits(u64::from(four) << 32 | u64::from(four));
+                let four = digit_bytes(&text, 4);
+                prop_assert_eq!(sum_two_fours(four), u64::from(want));
+                let both = sum_two_fours(four << 32 | four);
                 prop_assert_eq!(both, u64::from(want) << 32 | u64::from(want));
             }
+        }
+
+        // Source: `plain` above, line after line: the lines taken through a shape, by
+        // blocks and one by one, are those read one at a time.
+        #[test]
+        fn plain_lines_take_what_parse_reads(lines in proptest::collection::vec((0u32..200_000, any::<bool>()), 0..300), noise in proptest::collection::vec((0usize..4000, any::<u8>()), 0..3)) {
+            let mut b: Vec<u8> = lines
+                .iter()
+                .flat_map(|&(v, crlf)| format!("{v}{}", if crlf { "\r\n" } else { "\n" }).into_bytes())
+                .collect();
+            for (at, byte) in noise {
+                if !b.is_empty() {
+                    let at = at % b.len();
+                    b[at] = byte;
+                }
+            }
+            let mut want = Vec::new();
+            let mut at = 0;
+            while let Some((v, used)) = plain(&b[at..], 9) {
+                want.push(v);
+                at += used;
+            }
+            let mut cursor = Cursor::new(&b);
+            let mut got = Vec::new();
+            let taken = plain_lines(&mut cursor, |v| got.extend_from_slice(v));
+            prop_assert_eq!(&got, &want);
+            prop_assert_eq!(taken, want.len() as u64);
+            prop_assert_eq!(cursor.at, at);
         }
 
         // Source: the definition in `BlockMasks`' doc: byte p of a block of lines of
