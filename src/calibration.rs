@@ -15,6 +15,13 @@ use crate::detector::Detector;
 use crate::profile::{Limits, Profile};
 use crate::units::dbm_to_watts;
 
+mod table;
+
+pub use table::{
+    untally, CodeEntry, CodeRuns, CodeTable, TableTotals, CODE_BLOCK, TABLE_MAX_CODES,
+    TALLY_AT_LEAST, TALLY_AT_MOST, TALLY_VALUE,
+};
+
 bitflags! {
     /// What is doubtful or dangerous about a reading.
     #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
@@ -177,64 +184,6 @@ fn model_span_dbm(profile: &Profile, detector: &dyn Detector) -> (f64, f64) {
     (lo.min(lowest), hi.max(highest))
 }
 
-fn dense_watts(table: &[CodeEntry]) -> Box<[f64; TABLE_MAX_CODES as usize]> {
-    let mut watts = vec![0.0; TABLE_MAX_CODES as usize];
-    for (slot, entry) in watts.iter_mut().zip(table) {
-        *slot = entry.watts;
-    }
-    watts
-        .into_boxed_slice()
-        .try_into()
-        .expect("a vector of the table's largest length")
-}
-
-/// The largest ADC whose every code gets a precomputed reading (16 bits: 65536 entries).
-pub const TABLE_MAX_CODES: u32 = 1 << 16;
-
-/// One ADC code's reading, computed once: what the hot path needs per sample, laid out
-/// so that a sample adds to a set of statistics without a branch, whether it is a value or
-/// a bound (see `stats::Bound`).
-#[derive(Debug, Clone, Copy, PartialEq)]
-#[repr(align(32))]
-pub struct CodeEntry {
-    /// Reference-plane dBm, as the reading shows it (the span's low end below the span).
-    pub dbm: f64,
-    /// The watts interval statistics count: the value's, or its bound's; 0 for a code
-    /// never counted.
-    pub watts: f64,
-    /// The level interval statistics count: `dbm` for a value, the span's top for an
-    /// above-span code or a clipped one above it; NaN for a code never counted, which
-    /// leaves the lowest and highest level unchanged.
-    pub counted_dbm: f64,
-    /// Its flags.
-    pub flags: Flags,
-    /// Its kind as one tally, [`TALLY_VALUE`], [`TALLY_AT_LEAST`], [`TALLY_AT_MOST`] or 0
-    /// (never counted): one integer addition per sample counts all three kinds, each in
-    /// its own 10-bit lane, for up to 1023 samples (a block of `stats::add_codes`).
-    pub tally: u32,
-}
-
-/// The tally of a value (see [`CodeEntry::tally`]).
-pub const TALLY_VALUE: u32 = 1;
-/// The tally of a code counted at a bound the true level is at least (clip, above span).
-pub const TALLY_AT_LEAST: u32 = 1 << 10;
-/// The tally of a code counted at a bound the true level is at most (below span).
-pub const TALLY_AT_MOST: u32 = 1 << 20;
-
-/// (values, at least, at most) of a sum of at most 1023 tallies.
-#[inline(always)]
-pub fn untally(tally: u32) -> (u64, u64, u64) {
-    let lane = |shift: u32| u64::from((tally >> shift) & 0x3FF);
-    (lane(0), lane(10), lane(20))
-}
-
-impl CodeEntry {
-    /// 1 for a value, 0 for a bound or a code never counted.
-    pub fn valid(&self) -> u64 {
-        untally(self.tally).0
-    }
-}
-
 /// A profile made ready for one frequency and offset.
 #[derive(Debug, Clone)]
 pub struct Calibration {
@@ -249,69 +198,7 @@ pub struct Calibration {
     /// Detector volts at the low and the high end of the span.
     span_volts: (f64, f64),
     limits: Limits,
-    table: Arc<Vec<CodeEntry>>,
-    runs: Arc<CodeRuns>,
-}
-
-/// The table arranged for whole blocks of codes: when a block's lowest and highest code
-/// lie in one run of counted codes with the same flags (so all values, or all bounds of
-/// one way) and counted levels that move one way only, its extremes, flags and kinds are
-/// those of its end codes, and only its watts need a look-up per code.
-#[derive(Debug, Clone)]
-pub struct CodeRuns {
-    /// Each code's watts, packed densely for the summing loop, in an array as long as
-    /// the largest table so that a 16-bit index needs no bounds check (only the codes'
-    /// pages are touched).
-    pub(crate) watts: Box<[f64; TABLE_MAX_CODES as usize]>,
-    /// For each code that is counted, the last code of the run it lies in.
-    run_end: Vec<Option<u32>>,
-    /// Levels fall as codes rise (a detector whose output falls with power).
-    falling: bool,
-}
-
-impl CodeRuns {
-    fn of(table: &[CodeEntry]) -> CodeRuns {
-        let values = || table.iter().filter(|e| e.tally == TALLY_VALUE);
-        let falling = match (values().next(), values().next_back()) {
-            (Some(first), Some(last)) => last.dbm < first.dbm,
-            _ => false,
-        };
-        let counted = |e: &CodeEntry| !e.counted_dbm.is_nan();
-        // Equal flags make equal kinds: values, or bounds of one way.
-        let joins = |a: &CodeEntry, b: &CodeEntry| {
-            let steady = if falling {
-                b.counted_dbm <= a.counted_dbm
-            } else {
-                b.counted_dbm >= a.counted_dbm
-            };
-            counted(a) && counted(b) && a.flags == b.flags && steady
-        };
-        let mut run_end: Vec<Option<u32>> = (0..table.len() as u32)
-            .map(|code| counted(&table[code as usize]).then_some(code))
-            .collect();
-        for code in (1..table.len()).rev() {
-            if joins(&table[code - 1], &table[code]) {
-                run_end[code - 1] = run_end[code];
-            }
-        }
-        CodeRuns {
-            watts: dense_watts(table),
-            run_end,
-            falling,
-        }
-    }
-
-    /// The codes whose entries give the lowest and the highest level of every code from
-    /// `lo` to `hi`, when those codes lie in one run.
-    #[inline]
-    pub fn extreme_codes(&self, lo: u32, hi: u32) -> Option<(u32, u32)> {
-        let end = (*self.run_end.get(lo as usize)?)?;
-        match (hi <= end, self.falling) {
-            (false, _) => None,
-            (true, false) => Some((lo, hi)),
-            (true, true) => Some((hi, lo)),
-        }
-    }
+    table: Arc<CodeTable>,
 }
 
 impl Calibration {
@@ -342,79 +229,38 @@ impl Calibration {
             span_dbm,
             span_volts,
             limits: profile.limits,
-            table: Arc::new(Vec::new()),
-            runs: Arc::new(CodeRuns::of(&[])),
+            table: Arc::new(CodeTable::empty()),
         };
-        cal.table = Arc::new(cal.build_table());
-        cal.runs = Arc::new(CodeRuns::of(&cal.table));
+        let codes = cal.adc.full_scale() as u32 + 1;
+        let span_top_dbm = cal.span_dbm().1;
+        let table = CodeTable::build(codes, |code| {
+            CodeEntry::of(&cal.reading(f64::from(code)), span_top_dbm)
+        });
+        cal.table = Arc::new(table);
         cal
-    }
-
-    /// Every ADC code's reading through the exact model, for ADCs of up to 16 bits.
-    fn build_table(&self) -> Vec<CodeEntry> {
-        let codes = self.adc.full_scale() as u32 + 1;
-        if codes > TABLE_MAX_CODES {
-            return Vec::new();
-        }
-        // Each code is independent and a diode model's inverse takes microseconds: shared
-        // out over the cores, a 12-bit table is ready before the first samples arrive. On
-        // threads of its own, not the thread pool's: a replay's reader may sit in the pool
-        // blocked on a silent FIFO while the table is built, and the table would wait.
-        let threads = std::thread::available_parallelism().map_or(1, |n| n.get().min(8)) as u32;
-        let per_thread = codes.div_ceil(threads);
-        std::thread::scope(|scope| {
-            let parts: Vec<_> = (0..threads)
-                .map(|t| {
-                    let first = t * per_thread;
-                    let last = (first + per_thread).min(codes);
-                    scope.spawn(move || {
-                        (first..last)
-                            .map(|code| self.exact_entry(code))
-                            .collect::<Vec<_>>()
-                    })
-                })
-                .collect();
-            parts
-                .into_iter()
-                .flat_map(|part| {
-                    part.join()
-                        .expect("a table part computes without panicking")
-                })
-                .collect()
-        })
-    }
-
-    fn exact_entry(&self, code: u32) -> CodeEntry {
-        let r = self.reading(f64::from(code));
-        let counted = Counted::of(r.flags, r.dbm, self.span_dbm().1);
-        let counted_dbm = counted.dbm();
-        CodeEntry {
-            dbm: r.dbm,
-            watts: if counted_dbm.is_nan() {
-                0.0
-            } else {
-                dbm_to_watts(counted_dbm)
-            },
-            counted_dbm,
-            flags: r.flags,
-            tally: counted.tally(),
-        }
     }
 
     /// The precomputed entries, one per ADC code from 0 (empty above 16 bits).
     pub fn code_table(&self) -> &[CodeEntry] {
-        &self.table
+        self.table.entries()
     }
 
     /// The table arranged by runs of codes, for statistics over blocks of codes.
     pub fn code_runs(&self) -> &CodeRuns {
-        &self.runs
+        self.table.runs()
+    }
+
+    /// Adds up `codes` through the per-code table (see [`CodeTable::accumulate`]): the
+    /// interval statistics' inner loop.
+    #[inline]
+    pub fn accumulate(&self, codes: &[u32], each_block: impl FnMut(&[u32], bool)) -> TableTotals {
+        self.table.accumulate(codes, each_block)
     }
 
     /// The precomputed entry for an ADC code, when the table covers it.
     #[inline]
     pub fn code_entry(&self, code: u32) -> Option<&CodeEntry> {
-        self.table.get(code as usize)
+        self.code_table().get(code as usize)
     }
 
     /// The reading of a whole ADC code: from the table when it covers the code, else

@@ -9,7 +9,7 @@
 
 use std::collections::VecDeque;
 
-use crate::calibration::{untally, Calibration, CodeEntry, Counted, Flags, Reading, NOT_A_VALUE};
+use crate::calibration::{untally, Calibration, Counted, Flags, Reading, CODE_BLOCK, NOT_A_VALUE};
 use crate::uncertainty::Noise;
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
@@ -54,121 +54,6 @@ impl Bound {
             (a, b) if a == b => a,
             _ => Bound::Unknown,
         }
-    }
-}
-
-/// What `add_codes` keeps in registers over a run of table look-ups (the sums apart).
-struct TableRun {
-    taken: u64,
-    valid: u64,
-    at_least: u64,
-    at_most: u64,
-    /// The tallies of the block being taken, added into the counts at its end.
-    tally: u32,
-    lo: f64,
-    hi: f64,
-    flags: Flags,
-}
-
-impl From<&PowerStats> for TableRun {
-    fn from(stats: &PowerStats) -> Self {
-        TableRun {
-            taken: 0,
-            valid: 0,
-            at_least: 0,
-            at_most: 0,
-            tally: 0,
-            lo: stats.min_dbm,
-            hi: stats.max_dbm,
-            flags: Flags::empty(),
-        }
-    }
-}
-
-/// Codes taken as one block by `add_codes`: a multiple of four, so that a code adds to the
-/// same partial sum whichever way it is taken.
-const CODE_BLOCK: usize = 256;
-/// Blocks taken the long way after one that did not lie in one run.
-const BLOCKS_UNLOOKED: u32 = 3;
-
-/// Hands each code with one of four partial sums in turn (the last few with the first),
-/// so four chains of additions run side by side.
-#[inline(always)]
-fn sum_by_fours(codes: &[u32], sums: &mut [f64; 4], mut step: impl FnMut(u32, &mut f64)) {
-    let [s0, s1, s2, s3] = sums;
-    let groups = codes.chunks_exact(4);
-    let rest = groups.remainder();
-    for group in groups {
-        step(group[0], s0);
-        step(group[1], s1);
-        step(group[2], s2);
-        step(group[3], s3);
-    }
-    for &code in rest {
-        step(code, s0);
-    }
-}
-
-impl TableRun {
-    /// Takes a block whose codes all lie in one run of the table (see `CodeRuns`): watts
-    /// looked up per code, the rest from the block's end codes (a run's codes are all of
-    /// one kind, values or bounds of one way). False, taking nothing, for any other block.
-    #[inline(always)]
-    fn take_steady(&mut self, cal: &Calibration, block: &[u32], sums: &mut [f64; 4]) -> bool {
-        let runs = cal.code_runs();
-        let (lo, hi) = block.iter().fold((u32::MAX, 0), |(lo, hi), &code| {
-            (lo.min(code), hi.max(code))
-        });
-        let Some((lowest, highest)) = runs.extreme_codes(lo, hi) else {
-            return false;
-        };
-        // Every code of the block is at most `hi`, inside the table: the mask only
-        // spares the loop its bounds checks.
-        let watts = &*runs.watts;
-        sum_by_fours(block, sums, |code, sum| {
-            *sum += watts[code as usize & 0xFFFF]
-        });
-        let table = cal.code_table();
-        let (low, high) = (&table[lowest as usize], &table[highest as usize]);
-        let n = block.len() as u64;
-        let (valid, at_least, at_most) = untally(low.tally);
-        self.taken += n;
-        self.valid += n * valid;
-        self.at_least += n * at_least;
-        self.at_most += n * at_most;
-        self.flags |= low.flags;
-        self.widen(low.counted_dbm, high.counted_dbm);
-        true
-    }
-
-    #[inline(always)]
-    fn take(&mut self, entry: &CodeEntry, sum_w: &mut f64) {
-        self.flags |= entry.flags;
-        self.tally += entry.tally;
-        *sum_w += entry.watts;
-        self.widen(entry.counted_dbm, entry.counted_dbm);
-    }
-
-    /// Ends a block taken code by code: its tallies into the counts.
-    #[inline(always)]
-    fn end_block(&mut self, tabled: usize) {
-        let (valid, at_least, at_most) = untally(std::mem::take(&mut self.tally));
-        self.taken += tabled as u64;
-        self.valid += valid;
-        self.at_least += at_least;
-        self.at_most += at_most;
-    }
-
-    /// Plain comparisons (one instruction each): a NaN key, the level of a code never
-    /// counted, compares false and leaves the extreme as it was.
-    #[inline(always)]
-    fn widen(&mut self, low_key: f64, high_key: f64) {
-        self.lo = if low_key < self.lo { low_key } else { self.lo };
-        self.hi = if high_key > self.hi {
-            high_key
-        } else {
-            self.hi
-        };
     }
 }
 
@@ -459,49 +344,25 @@ impl PowerStats {
     }
 
     /// Adds a run of ADC codes, as `add_within` of each code's reading (the recorder's
-    /// inner loop). The codes take four partial sums in turn, added together at the end:
-    /// one chain of float additions would hold the loop to an add's latency per sample.
+    /// inner loop): the per-code table adds up what it covers (`Calibration::accumulate`),
+    /// and each of its blocks brings its count moments here.
     pub fn add_codes(&mut self, cal: &Calibration, codes: &[u32]) {
-        let table = cal.code_table();
-        let mut run = TableRun::from(&*self);
-        let mut sums = [0.0; 4];
-        // Codes that swing over the table rarely fall in one run: after a block that did
-        // not, the next few go the long way without looking (the result is the same).
-        let mut unlooked = 0;
-        for block in codes.chunks(CODE_BLOCK) {
-            if unlooked > 0 {
-                unlooked -= 1;
-            } else if run.take_steady(cal, block, &mut sums) {
-                // A run lies inside the table.
-                self.add_moments(table.len(), block);
-                continue;
+        let table_len = cal.code_table().len();
+        let totals = cal.accumulate(codes, |block, all_tabled| {
+            if all_tabled {
+                self.add_moments(table_len, block);
             } else {
-                unlooked = BLOCKS_UNLOOKED;
+                self.add_untabled(cal, table_len, block);
             }
-            let mut untabled = 0;
-            sum_by_fours(block, &mut sums, |code, sum| {
-                match table.get(code as usize) {
-                    Some(entry) => run.take(entry, sum),
-                    None => {
-                        untabled += 1;
-                        self.add_untabled(cal, code)
-                    }
-                }
-            });
-            run.end_block(block.len() - untabled);
-            if untabled == 0 {
-                self.add_moments(table.len(), block);
-            }
-        }
-        let [s0, s1, s2, s3] = sums;
-        self.samples += run.taken;
-        self.valid += run.valid;
-        self.at_least += run.at_least;
-        self.at_most += run.at_most;
-        self.sum_w += (s0 + s1) + (s2 + s3);
-        self.min_dbm = self.min_dbm.min(run.lo);
-        self.max_dbm = self.max_dbm.max(run.hi);
-        self.flags |= run.flags;
+        });
+        self.samples += totals.samples;
+        self.valid += totals.valid;
+        self.at_least += totals.at_least;
+        self.at_most += totals.at_most;
+        self.sum_w += totals.sum_w;
+        self.min_dbm = self.min_dbm.min(totals.min_dbm);
+        self.max_dbm = self.max_dbm.max(totals.max_dbm);
+        self.flags |= totals.flags;
     }
 
     /// The count moments of a block whose every code lies in the table. A block with a
@@ -518,12 +379,14 @@ impl PowerStats {
         self.moments.merge(&block);
     }
 
-    /// The exact model for a code the table does not cover (above the ADC's full scale):
-    /// out of the hot loop so its registers stay free.
+    /// The exact model for the codes of `block` the table does not cover (above the ADC's
+    /// full scale): out of the hot loop so its registers stay free.
     #[cold]
     #[inline(never)]
-    fn add_untabled(&mut self, cal: &Calibration, code: u32) {
-        self.add_within(&cal.reading_code(code), cal.span_dbm().1);
+    fn add_untabled(&mut self, cal: &Calibration, table_len: usize, block: &[u32]) {
+        for &code in block.iter().filter(|&&code| code as usize >= table_len) {
+            self.add_within(&cal.reading_code(code), cal.span_dbm().1);
+        }
     }
 
     /// Adds every `width`-th code of `counts` from `first` on: one channel of
