@@ -1,4 +1,4 @@
-//! The live screen: one loop on one thread that turns keys, a steady frame tick, sample
+//! The live screen: one loop that turns keys (from a small reader thread), a steady frame tick, sample
 //! batches drained from the source's ring and what became of its commands (a log opened,
 //! refused, closed) into [`app::AppEvent`]s, feeds them to [`app::App::update`], and
 //! draws with [`app::draw::draw`]. A signal (SIGTERM, SIGHUP, SIGINT) raises the same
@@ -14,6 +14,7 @@ use std::fs::File;
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc;
 use std::time::{Duration, Instant, SystemTime};
 
 use anyhow::{Context, Result};
@@ -64,6 +65,8 @@ fn test_panic_frame() -> Option<u64> {
 
 /// The longest the loop waits for a key before it looks at the signal flag again.
 const SIGNAL_LOOK: Duration = Duration::from_millis(20);
+/// How long the key thread waits for a key before it looks whether the loop is gone.
+const KEY_POLL: Duration = Duration::from_millis(100);
 
 /// An open log and its keeper.
 struct Log {
@@ -72,7 +75,7 @@ struct Log {
     keeper: LogKeeper,
 }
 
-/// One thread: keys as they come, a frame (samples drained, the link's counters, a tick,
+/// Keys as they come, a frame (samples drained, the link's counters, a tick,
 /// a draw) every 1/[`FRAMES_PER_SECOND`] s, and the signal flag between the two.
 fn event_loop(
     terminal: &mut DefaultTerminal,
@@ -88,6 +91,7 @@ fn event_loop(
         let opened = start_log(&mut log, &app, &setup, &path, if_exists);
         app.update(opened);
     }
+    let keys = spawn_key_reader();
     let mut next_frame = Instant::now();
     let result = loop {
         if stop.load(Ordering::Acquire) {
@@ -107,10 +111,12 @@ fn event_loop(
             }
             commands
         } else {
-            match next_key((next_frame - now).min(SIGNAL_LOOK)) {
-                Ok(Some(key)) => app.update(AppEvent::Key(key)),
-                Ok(None) => continue,
-                Err(e) => break Err(e).context("cannot read the keyboard"),
+            match keys.recv_timeout((next_frame - now).min(SIGNAL_LOOK)) {
+                Ok(key) => app.update(AppEvent::Key(key)),
+                Err(mpsc::RecvTimeoutError::Timeout) => continue,
+                Err(mpsc::RecvTimeoutError::Disconnected) => {
+                    break Err(anyhow::anyhow!("the keyboard can no longer be read"))
+                }
             }
         };
         if carry_out(commands, &mut app, &mut log, &setup) {
@@ -123,15 +129,28 @@ fn event_loop(
     result
 }
 
-/// A key pressed within `wait`, if any.
-fn next_key(wait: Duration) -> io::Result<Option<KeyEvent>> {
-    if !term_event::poll(wait)? {
-        return Ok(None);
-    }
-    match term_event::read()? {
-        TermEvent::Key(key) => Ok(Some(key)),
-        _ => Ok(None),
-    }
+/// A thread that reads the keys: a terminal that has gone away can leave crossterm's
+/// read spinning, and the loop must still see a signal and end (the thread ends with the
+/// process). It stops reading when the loop has gone.
+fn spawn_key_reader() -> mpsc::Receiver<KeyEvent> {
+    let (tx, rx) = mpsc::channel();
+    std::thread::spawn(move || loop {
+        match term_event::poll(KEY_POLL) {
+            Ok(false) => continue,
+            Ok(true) => {}
+            Err(_) => break,
+        }
+        match term_event::read() {
+            Ok(TermEvent::Key(key)) => {
+                if tx.send(key).is_err() {
+                    break;
+                }
+            }
+            Ok(_) => {}
+            Err(_) => break,
+        }
+    });
+    rx
 }
 
 /// What a frame feeds the app: what the source sent, its link's counters, its end, the time.
