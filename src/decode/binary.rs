@@ -106,18 +106,77 @@ impl BinaryDecoder {
 
     /// Decodes `bytes`, appending samples to `out`.
     pub fn feed(&mut self, bytes: &[u8], stats: &mut DecodeStats, out: &mut impl FrameSink) {
+        let mut first = None;
         if self.pending.is_empty() {
             // Frames are read where they lie; only a cut frame at the end is kept.
-            let used = scan_frames(bytes, &mut self.next_seq, stats, out);
+            let used = scan_frames(bytes, &mut self.next_seq, &mut first, stats, out);
             self.pending.extend_from_slice(&bytes[used..]);
             return;
         }
         self.pending.extend_from_slice(bytes);
         let pending = std::mem::take(&mut self.pending);
-        let used = scan_frames(&pending, &mut self.next_seq, stats, out);
+        let used = scan_frames(&pending, &mut self.next_seq, &mut first, stats, out);
         self.pending = pending;
         self.pending.drain(..used);
     }
+
+    /// Takes the frames [`frames_ahead`] scanned from `part`, the bytes that come next in
+    /// the stream, when feeding them would have done just that: no cut frame is held.
+    /// False, and nothing changed, otherwise.
+    pub(super) fn accept_ahead(
+        &mut self,
+        ahead: &FramesAhead,
+        part: &[u8],
+        stats: &mut DecodeStats,
+    ) -> bool {
+        if !self.pending.is_empty() || ahead.used > part.len() {
+            return false;
+        }
+        let mut tally = ahead.stats;
+        if let Some(first) = ahead.first_seq {
+            tally.dropped_frames += frames_missing(self.next_seq, first);
+            self.next_seq = ahead.next_seq;
+        }
+        *stats += tally;
+        self.pending.extend_from_slice(&part[ahead.used..]);
+        true
+    }
+}
+
+/// What [`frames_ahead`] found in one part of a binary stream.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct FramesAhead {
+    /// Counters, frames lost before the first good frame apart.
+    stats: DecodeStats,
+    first_seq: Option<u16>,
+    next_seq: Option<u16>,
+    /// Bytes done with; the rest may be the start of a frame cut at the part's end.
+    used: usize,
+}
+
+/// Scans the frames of `bytes` as the binary decoder does from a frame boundary with
+/// nothing held, appending their samples to `out`: for decoding one part of a file while
+/// another thread decodes the part before it. `Decoder::accept_ahead` takes the result.
+pub fn frames_ahead(bytes: &[u8], out: &mut impl FrameSink) -> FramesAhead {
+    let mut ahead = FramesAhead::default();
+    ahead.used = scan_frames(
+        bytes,
+        &mut ahead.next_seq,
+        &mut ahead.first_seq,
+        &mut ahead.stats,
+        out,
+    );
+    ahead
+}
+
+/// Where the first frame of `bytes` starts and how long frames like it are, when a frame
+/// header is there: the grid a clean stream's frames lie on.
+pub fn frame_grid(bytes: &[u8]) -> Option<(usize, usize)> {
+    let start = find_sync(bytes)?;
+    let n = usize::from(*bytes.get(start + 4)?);
+    (1..=MAX_CHANNELS)
+        .contains(&n)
+        .then_some((start, FRAME_OVERHEAD + 2 * n))
 }
 
 /// Decodes the frames in `buf`; returns how many bytes are done with (the rest may be the
@@ -125,6 +184,7 @@ impl BinaryDecoder {
 fn scan_frames(
     buf: &[u8],
     next_seq: &mut Option<u16>,
+    first_seq: &mut Option<u16>,
     stats: &mut DecodeStats,
     out: &mut impl FrameSink,
 ) -> usize {
@@ -132,6 +192,7 @@ fn scan_frames(
     // Counted in locals, which stay in registers, and stored once at the end.
     let mut tally = DecodeStats::default();
     let mut expected = *next_seq;
+    let mut first = *first_seq;
     let mut at = 0;
     let used = loop {
         // In a clean stream the next frame starts where the last ended: no search needed.
@@ -153,6 +214,9 @@ fn scan_frames(
                 at += 1;
             }
             FrameCheck::Good(frame) => {
+                if first.is_none() {
+                    first = Some(frame.seq);
+                }
                 tally.dropped_frames += frames_missing(expected, frame.seq);
                 expected = Some(frame.seq.wrapping_add(1));
                 tally.frames += 1;
@@ -162,6 +226,7 @@ fn scan_frames(
         }
     };
     *next_seq = expected;
+    *first_seq = first;
     *stats += tally;
     used
 }

@@ -242,7 +242,7 @@ mod ascii;
 mod binary;
 
 pub use ascii::AsciiDecoder;
-pub use binary::BinaryDecoder;
+pub use binary::{frame_grid, frames_ahead, BinaryDecoder, FramesAhead};
 
 /// A decoder for either mode, recognising the mode first when asked to.
 #[derive(Debug, Clone)]
@@ -302,6 +302,18 @@ impl Decoder {
                     self.adopt_format(format, out);
                 }
             }
+        }
+    }
+
+    /// Takes the frames [`frames_ahead`] scanned from `part`, the bytes that come next in
+    /// the stream, when feeding them would have done just that: the decoder is in binary
+    /// mode and holds no cut frame. Otherwise it returns false, changes nothing, and the
+    /// bytes must be fed. Frames lost between the last frame and the part's first are
+    /// counted here, where the last sequence number is known.
+    pub fn accept_ahead(&mut self, ahead: &FramesAhead, part: &[u8]) -> bool {
+        match &mut self.state {
+            State::Binary(d) => d.accept_ahead(ahead, part, &mut self.stats),
+            _ => false,
         }
     }
 

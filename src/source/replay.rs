@@ -8,8 +8,9 @@ use std::time::{Duration, Instant};
 
 #[cfg(test)]
 use dbtrail::decode::DecodeStats;
-use dbtrail::decode::{Decoder, FlatCounts, Format};
+use dbtrail::decode::{frame_grid, frames_ahead, Decoder, FlatCounts, Format};
 use dbtrail::events::{Chunk, Event};
+use rayon::prelude::*;
 
 use super::{spawn, EventSender, Running, WhenFull};
 
@@ -57,10 +58,10 @@ impl ReplaySpec {
 
 /// Bytes read at a time.
 const READ_BYTES: usize = 1 << 20;
-/// Parts a read is decoded and sent in: the recorder starts on the first while the
-/// decoder takes the next.
+/// Parts a read is cut into (binary reads are scanned in parts on all cores): small
+/// enough that the cores share them out evenly while the recorder takes its share.
 const PARTS: usize = 8;
-/// Bytes of a part of a read.
+/// Bytes of a part of an ASCII read.
 const PART_BYTES: usize = READ_BYTES / PARTS;
 /// Events the ring holds for a replay: two reads' worth of parts (about 1.6 MB).
 const REPLAY_RING: usize = 2 * PARTS;
@@ -71,31 +72,35 @@ fn replay(spec: &ReplaySpec, mut file: File, sender: &mut EventSender, started: 
     let dt = 1.0 / spec.rate_hz;
     sender.counters.set_connected(true);
     let mut before = decoder.stats();
+    // On a worker of the pool: each read's parts are shared out from inside it, not
+    // handed in from outside and waited for.
     let one_read_at_a_time = spec.realtime || !reads_ahead(&file);
-    let finished = decode_reads(
-        &mut file,
-        &mut decoder,
-        one_read_at_a_time,
-        |parts, decoder| {
-            if sender.stopped() {
-                return false;
-            }
-            sender.counters.add_decoded(&before, &decoder.stats());
-            before = decoder.stats();
-            for chunk in parts
-                .into_iter()
-                .flat_map(|part| split(part, spec, &mut index, dt))
-            {
-                if spec.realtime && !pace(started, chunk.t0, || sender.stopped()) {
+    let finished = rayon::scope(|_| {
+        decode_reads(
+            &mut file,
+            &mut decoder,
+            one_read_at_a_time,
+            |parts, decoder| {
+                if sender.stopped() {
                     return false;
                 }
-                if !sender.send(Event::Samples(chunk)) {
-                    return false;
+                sender.counters.add_decoded(&before, &decoder.stats());
+                before = decoder.stats();
+                for chunk in parts
+                    .into_iter()
+                    .flat_map(|part| split(part, spec, &mut index, dt))
+                {
+                    if spec.realtime && !pace(started, chunk.t0, || sender.stopped()) {
+                        return false;
+                    }
+                    if !sender.send(Event::Samples(chunk)) {
+                        return false;
+                    }
                 }
-            }
-            true
-        },
-    );
+                true
+            },
+        )
+    });
     if finished {
         sender
             .counters
@@ -107,10 +112,10 @@ fn replay(spec: &ReplaySpec, mut file: File, sender: &mut EventSender, started: 
 /// Decodes `reader` to its end, handing each read's samples (and the decoder, for its
 /// counters) to `take`; stops early, returning false, when `take` does. With
 /// `one_at_a_time`, each read's samples are taken before the next read starts (a paced
-/// replay, or a source that may block); otherwise the next read is made before they are
-/// taken, so the recorder has them while the decoder goes on. Either mode is decoded on
-/// this thread (see `decode_block`).
-fn decode_reads<R: Read>(
+/// replay, or a source that may block); otherwise binary reads are scanned in parts on all
+/// cores while the next read goes on, and ASCII reads are decoded on this thread, read
+/// after read (see `decode_block`).
+fn decode_reads<R: Read + Send>(
     reader: &mut R,
     decoder: &mut Decoder,
     one_at_a_time: bool,
@@ -119,8 +124,18 @@ fn decode_reads<R: Read>(
     let (mut buf, mut spare) = (vec![0u8; READ_BYTES], vec![0u8; READ_BYTES]);
     let mut len = read_some(reader, &mut buf);
     loop {
-        let mut parts = decode_block(decoder, &buf[..len]);
-        let next = (len > 0 && !one_at_a_time).then(|| read_some(reader, &mut spare));
+        let ahead = len > 0 && !one_at_a_time && decoder.format() == Some(Format::Binary);
+        let (next, mut parts) = if ahead {
+            let (next, parts) = rayon::join(
+                || read_some(reader, &mut spare),
+                || decode_frames_ahead(decoder, &buf[..len]),
+            );
+            (Some(next), parts)
+        } else {
+            let parts = decode_block(decoder, &buf[..len]);
+            let next = (len > 0 && !one_at_a_time).then(|| read_some(reader, &mut spare));
+            (next, parts)
+        };
         if len == 0 {
             let mut rest = FlatCounts::default();
             decoder.finish(&mut rest);
@@ -164,16 +179,70 @@ fn decode(decoder: &mut Decoder, bytes: &[u8]) -> FlatCounts {
 }
 
 /// Decodes one read on this thread, in parts of `PART_BYTES` (the decoder carries a line
-/// or frame cut between them). This beats reading ahead on both cores: a line or frame
+/// or frame cut between them). For ASCII this beats reading ahead on both cores: a line
 /// costs little more to decode than its bytes cost to copy in, so the decoder keeps pace
 /// on the core whose cache the read just filled, while the recorder has the other core;
 /// read ahead in parts, the two cores' caches passing the bytes and the recorder
-/// competing for a core cost more than the decoding they share (docs/performance.md).
+/// competing for a core cost more than the decoding they share.
 fn decode_block(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
     bytes
         .chunks(PART_BYTES)
         .map(|part| decode(decoder, part))
         .collect()
+}
+
+/// Binary: the parts meet on the grid of the read's first frame, and all but the first
+/// (which may finish a frame cut by the last read, and goes to the decoder meanwhile) are
+/// scanned ahead (`Decoder::accept_ahead`).
+fn decode_frames_ahead(decoder: &mut Decoder, bytes: &[u8]) -> Vec<FlatCounts> {
+    let Some((start, frame)) = frame_grid(bytes) else {
+        return vec![decode(decoder, bytes)];
+    };
+    let parts = grid_parts(bytes, start, frame, PARTS);
+    let (first, ahead) = rayon::join(
+        || decode(decoder, parts[0]),
+        || {
+            parts[1..]
+                .par_iter()
+                .map(|part| {
+                    let mut samples = FlatCounts {
+                        channels: 0,
+                        counts: Vec::with_capacity(part.len() / 4 + 16),
+                    };
+                    let ahead = frames_ahead(part, &mut samples);
+                    (samples, ahead)
+                })
+                .collect::<Vec<_>>()
+        },
+    );
+    let rest = parts[1..]
+        .iter()
+        .zip(ahead)
+        .map(|(part, (samples, ahead))| {
+            if decoder.accept_ahead(&ahead, part) {
+                samples
+            } else {
+                decode(decoder, part)
+            }
+        });
+    std::iter::once(first).chain(rest).collect()
+}
+
+/// `bytes` cut into up to `parts` pieces of about equal length, the cuts on the grid of
+/// frames of `frame` bytes from `start`.
+fn grid_parts(bytes: &[u8], start: usize, frame: usize, parts: usize) -> Vec<&[u8]> {
+    let mut pieces = Vec::with_capacity(parts);
+    let mut from = 0;
+    for k in 1..parts {
+        let target = (bytes.len() * k / parts).saturating_sub(start);
+        let cut = start + target / frame * frame;
+        if cut > from && cut < bytes.len() {
+            pieces.push(&bytes[from..cut]);
+            from = cut;
+        }
+    }
+    pieces.push(&bytes[from..]);
+    pieces
 }
 
 /// The decoded samples as chunks, numbered on from `index`: all in one when running flat
@@ -345,7 +414,7 @@ mod tests {
 
     proptest! {
         // Source: the sequential decoder is the reference, as above, for binary frames
-        // cut anywhere by the reads and the parts.
+        // scanned ahead in parts on the grid of each read's first frame.
         #[test]
         fn binary_in_parts_equals_one_pass(
             bytes in frames(),
