@@ -252,7 +252,7 @@ impl<W: Write> Recorder<W> {
             self.advance(t)?;
             let current = self.interval.unwrap_or(0);
             let started = current as f64 * self.every;
-            let has_data = self.stats.iter().any(|s| s.samples > 0)
+            let has_data = self.stats.iter().any(|s| s.totals.samples > 0)
                 || !self.row_flags.is_empty()
                 || self.rejected;
             // An end a rounding error past an interval's start begins no interval.
@@ -416,12 +416,12 @@ impl<W: Write> Recorder<W> {
         self.stats.resize(channels, PowerStats::default());
         let mut row = vec![seconds(start), calendar_time(self.started, start)];
         for stats in std::mem::take(&mut self.stats) {
-            let mut row_flags = flags | stats.flags;
-            if stats.samples == 0 {
+            let mut row_flags = flags | stats.totals.flags;
+            if stats.totals.samples == 0 {
                 row_flags |= Flags::GAP;
             }
             let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
-            row.push(stats.samples.to_string());
+            row.push(stats.totals.samples.to_string());
             let figures = stats.figures(&self.cal);
             row.push(number(figures.mean_dbm));
             row.push(number(figures.min_dbm));

@@ -9,7 +9,9 @@
 
 use std::collections::VecDeque;
 
-use crate::calibration::{untally, Calibration, Counted, Flags, Reading, CODE_BLOCK, NOT_A_VALUE};
+use crate::calibration::{
+    untally, Calibration, Counted, Flags, Reading, TableTotals, CODE_BLOCK, NOT_A_VALUE,
+};
 use crate::uncertainty::Noise;
 use crate::units::{dbm_to_watts, parse_duration, watts_to_dbm, UnitError};
 
@@ -238,24 +240,10 @@ impl CountMoments {
 
 /// Count, power-domain sum, extremes and flags of a set of readings, and the moments of
 /// their counts.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct PowerStats {
-    /// Readings seen, valid or not.
-    pub samples: u64,
-    /// Readings that are values (in the span, not clipped).
-    pub valid: u64,
-    /// Clipped or above-span readings, counted at the clip level or the span's top.
-    pub at_least: u64,
-    /// Below-span readings, counted at the span's bottom.
-    pub at_most: u64,
-    /// Sum in watts of the readings counted: the values and the bounds.
-    pub sum_w: f64,
-    /// Lowest reading counted, dBm (+∞ when none).
-    pub min_dbm: f64,
-    /// Highest reading counted, dBm (−∞ when none).
-    pub max_dbm: f64,
-    /// Every flag any reading carried.
-    pub flags: Flags,
+    /// Count, sum of watts, extremes and flags.
+    pub totals: TableTotals,
     /// Moments of the counts of the readings added with their code (`add_codes`,
     /// `add_within` of a whole count): `moments.n` falls short of `samples` otherwise, as
     /// it does after a block of `add_codes` that held a code past the table (over full
@@ -263,21 +251,6 @@ pub struct PowerStats {
     pub moments: CountMoments,
 }
 
-impl Default for PowerStats {
-    fn default() -> Self {
-        PowerStats {
-            samples: 0,
-            valid: 0,
-            at_least: 0,
-            at_most: 0,
-            sum_w: 0.0,
-            min_dbm: f64::INFINITY,
-            max_dbm: f64::NEG_INFINITY,
-            flags: Flags::empty(),
-            moments: CountMoments::default(),
-        }
-    }
-}
 
 /// An interval's figures as a row gives them.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -307,8 +280,8 @@ impl PowerStats {
     /// flags for a bound (see [`NOT_A_VALUE`]).
     pub fn add(&mut self, reading: &Reading) {
         if reading.flags.intersects(NOT_A_VALUE) {
-            self.samples += 1;
-            self.flags |= reading.flags;
+            self.totals.samples += 1;
+            self.totals.flags |= reading.flags;
             return;
         }
         self.add_within(reading, f64::INFINITY);
@@ -319,22 +292,22 @@ impl PowerStats {
     /// at its level but no higher than that, a below-span one at the span's bottom.
     pub fn add_within(&mut self, reading: &Reading, span_top_dbm: f64) {
         let counted = Counted::of(reading.flags, reading.dbm, span_top_dbm);
-        self.samples += 1;
-        self.flags |= reading.flags;
+        self.totals.samples += 1;
+        self.totals.flags |= reading.flags;
         if reading.counts.fract() == 0.0 {
             self.moments.add(reading.counts);
         }
         let (valid, at_least, at_most) = untally(counted.tally());
-        self.valid += valid;
-        self.at_least += at_least;
-        self.at_most += at_most;
+        self.totals.valid += valid;
+        self.totals.at_least += at_least;
+        self.totals.at_most += at_most;
         if counted == Counted::Nothing {
             return;
         }
         let dbm = counted.dbm();
-        self.sum_w += dbm_to_watts(dbm);
-        self.min_dbm = self.min_dbm.min(dbm);
-        self.max_dbm = self.max_dbm.max(dbm);
+        self.totals.sum_w += dbm_to_watts(dbm);
+        self.totals.min_dbm = self.totals.min_dbm.min(dbm);
+        self.totals.max_dbm = self.totals.max_dbm.max(dbm);
     }
 
     /// Adds one ADC code through the calibration's precomputed table, falling back to the
@@ -355,14 +328,7 @@ impl PowerStats {
                 self.add_untabled(cal, table_len, block);
             }
         });
-        self.samples += totals.samples;
-        self.valid += totals.valid;
-        self.at_least += totals.at_least;
-        self.at_most += totals.at_most;
-        self.sum_w += totals.sum_w;
-        self.min_dbm = self.min_dbm.min(totals.min_dbm);
-        self.max_dbm = self.max_dbm.max(totals.max_dbm);
-        self.flags |= totals.flags;
+        self.totals.merge(&totals);
     }
 
     /// The count moments of a block whose every code lies in the table. A block with a
@@ -412,27 +378,20 @@ impl PowerStats {
     /// Adds another set, whose readings came after these (as if they had been added one by
     /// one).
     pub fn merge(&mut self, other: &PowerStats) {
-        self.samples += other.samples;
-        self.valid += other.valid;
-        self.at_least += other.at_least;
-        self.at_most += other.at_most;
-        self.sum_w += other.sum_w;
-        self.min_dbm = self.min_dbm.min(other.min_dbm);
-        self.max_dbm = self.max_dbm.max(other.max_dbm);
-        self.flags |= other.flags;
+        self.totals.merge(&other.totals);
         self.moments.merge(&other.moments);
     }
 
     /// Whether the count moments cover every reading.
     pub fn counts_complete(&self) -> bool {
-        self.moments.n == self.samples
+        self.moments.n == self.totals.samples
     }
 
     /// Whether the mean and extremes over watts are values or bounds.
     pub fn bound(&self) -> Bound {
-        match (self.at_least > 0, self.at_most > 0) {
+        match (self.totals.at_least > 0, self.totals.at_most > 0) {
             (true, true) => Bound::Unknown,
-            _ if self.averaged() == 0 && self.samples > 0 => Bound::Unknown,
+            _ if self.averaged() == 0 && self.totals.samples > 0 => Bound::Unknown,
             (true, false) => Bound::AtLeast,
             (false, true) => Bound::AtMost,
             (false, false) => Bound::Exact,
@@ -442,17 +401,17 @@ impl PowerStats {
     /// Readings that went into the mean over watts: the values and those counted at a
     /// bound; 0 when the bounds go both ways and there is no mean.
     pub fn averaged(&self) -> u64 {
-        if self.at_least > 0 && self.at_most > 0 {
+        if self.totals.at_least > 0 && self.totals.at_most > 0 {
             0
         } else {
-            self.valid + self.at_least + self.at_most
+            self.totals.valid + self.totals.at_least + self.totals.at_most
         }
     }
 
     /// Mean power in watts over the readings counted (see [`PowerStats::bound`]).
     pub fn mean_w(&self) -> Option<f64> {
         let n = self.averaged();
-        (n > 0).then(|| self.sum_w / n as f64)
+        (n > 0).then(|| self.totals.sum_w / n as f64)
     }
 
     /// Mean power in dBm (of the mean in watts).
@@ -462,7 +421,7 @@ impl PowerStats {
 
     /// Lowest and highest reading counted, dBm.
     pub fn extremes(&self) -> Option<(f64, f64)> {
-        (self.averaged() > 0).then_some((self.min_dbm, self.max_dbm))
+        (self.averaged() > 0).then_some((self.totals.min_dbm, self.totals.max_dbm))
     }
 
     /// The reading of the mean count when the counts are a steady level (see
@@ -472,7 +431,7 @@ impl PowerStats {
     /// bottom of the span"). Samples of such a level may stray past the span's ends.
     pub fn steady_reading(&self, cal: &Calibration) -> Option<Reading> {
         let unmeasured = Flags::ADC_CLIP | Flags::OVER_FULL_SCALE;
-        if self.flags.intersects(unmeasured) || !self.counts_complete() {
+        if self.totals.flags.intersects(unmeasured) || !self.counts_complete() {
             return None;
         }
         if !self.moments.is_steady() {
@@ -491,15 +450,16 @@ impl PowerStats {
                 mean_dbm: Some(reading.dbm),
                 mean_w: Some(reading.watts()),
                 // A sample past a span's end has no value to show as an extreme.
-                min_dbm: (self.at_most == 0).then_some(self.min_dbm),
-                max_dbm: (self.at_least == 0).then_some(self.max_dbm),
-                averaged: self.samples,
+                min_dbm: (self.totals.at_most == 0).then_some(self.totals.min_dbm),
+                max_dbm: (self.totals.at_least == 0).then_some(self.totals.max_dbm),
+                averaged: self.totals.samples,
                 steady: true,
                 noise: self.moments.noise(),
             };
         }
         let bound = self.bound();
         let measured = !self
+            .totals
             .flags
             .intersects(Flags::ADC_CLIP | Flags::OVER_FULL_SCALE);
         Figures {
@@ -519,9 +479,9 @@ impl PowerStats {
 
     /// Moves every level by `db` (the offset or frequency correction changed).
     pub fn shift_db(&mut self, db: f64) {
-        self.sum_w *= 10f64.powf(db / 10.0);
-        self.min_dbm += db;
-        self.max_dbm += db;
+        self.totals.sum_w *= 10f64.powf(db / 10.0);
+        self.totals.min_dbm += db;
+        self.totals.max_dbm += db;
     }
 }
 
@@ -661,7 +621,7 @@ impl Averager {
             Held::Readings(last) => (last.watts.len() as u64, last.sum_w),
             Held::Buckets(buckets) => {
                 let all = buckets.total();
-                (all.averaged(), all.sum_w)
+                (all.averaged(), all.totals.sum_w)
             }
         }
     }
@@ -926,7 +886,7 @@ mod tests {
         assert!((clipped.mean_dbm().unwrap() - 1.876_812_716).abs() < 1e-8);
         assert_eq!(clipped.bound(), Bound::AtLeast);
         assert_eq!(clipped.extremes(), Some((0.0, 5.0)));
-        assert_eq!((clipped.samples, clipped.averaged()), (4, 4));
+        assert_eq!((clipped.totals.samples, clipped.averaged()), (4, 4));
         let above = three_at_zero_and(reading(12.0, Flags::ABOVE_SPAN));
         assert!((above.mean_dbm().unwrap() - 2.418_621_075).abs() < 1e-8);
         assert_eq!(above.bound(), Bound::AtLeast);
@@ -961,7 +921,7 @@ mod tests {
         assert_eq!(damaged.mean_dbm(), None);
         let mixed = three_at_zero_and(reading(f64::NAN, Flags::OVER_FULL_SCALE));
         assert_eq!(mixed.bound(), Bound::Exact);
-        assert_eq!((mixed.samples, mixed.averaged()), (4, 3));
+        assert_eq!((mixed.totals.samples, mixed.averaged()), (4, 3));
         assert!(mixed.mean_dbm().unwrap().abs() < 1e-12);
         assert_eq!(
             PowerStats::default().bound(),
@@ -994,20 +954,31 @@ mod tests {
         let (bottom, top) = cal.span_dbm();
         let mut below = PowerStats::default();
         below.add_codes(&cal, &[100; 512]);
-        assert_eq!((below.valid, below.at_least, below.at_most), (0, 0, 512));
+        assert_eq!(
+            (
+                below.totals.valid,
+                below.totals.at_least,
+                below.totals.at_most
+            ),
+            (0, 0, 512)
+        );
         assert_eq!(below.bound(), Bound::AtMost);
         assert_eq!(below.extremes(), Some((bottom, bottom)));
         assert!((below.mean_dbm().unwrap() - bottom).abs() < 1e-9);
         let mut clipped = PowerStats::default();
         clipped.add_codes(&cal, &[4095; 512]);
         assert_eq!(
-            (clipped.valid, clipped.at_least, clipped.at_most),
+            (
+                clipped.totals.valid,
+                clipped.totals.at_least,
+                clipped.totals.at_most
+            ),
             (0, 512, 0)
         );
         assert_eq!(clipped.bound(), Bound::AtLeast);
         let level = cal.reading(4095.0).dbm.min(top);
         assert_eq!(clipped.extremes(), Some((level, level)));
-        assert!(clipped.flags.contains(Flags::ADC_CLIP));
+        assert!(clipped.totals.flags.contains(Flags::ADC_CLIP));
     }
 
     // Source: the rule in docs/screen.md: readings below the span or at ADC clip "are left
@@ -1019,9 +990,17 @@ mod tests {
         s.add(&reading(9.0, Flags::ADC_CLIP));
         assert_eq!(s.extremes(), None);
         s.add(&reading(3.0, Flags::empty()));
-        assert_eq!((s.samples, s.valid, s.at_least, s.at_most), (3, 1, 0, 0));
+        assert_eq!(
+            (
+                s.totals.samples,
+                s.totals.valid,
+                s.totals.at_least,
+                s.totals.at_most
+            ),
+            (3, 1, 0, 0)
+        );
         assert_eq!(s.extremes(), Some((3.0, 3.0)));
-        assert_eq!(s.flags, Flags::BELOW_SPAN | Flags::ADC_CLIP);
+        assert_eq!(s.totals.flags, Flags::BELOW_SPAN | Flags::ADC_CLIP);
     }
 
     // Source: worked by hand. Counts 1, 2, 3, 4: mean 2.5, sample variance 5/3, squared
@@ -1267,8 +1246,8 @@ mod tests {
             }
         }
         left.merge(&right);
-        assert_eq!(left.samples, all.samples);
-        assert!((left.sum_w - all.sum_w).abs() < 1e-18);
+        assert_eq!(left.totals.samples, all.totals.samples);
+        assert!((left.totals.sum_w - all.totals.sum_w).abs() < 1e-18);
         assert_eq!(left.extremes(), all.extremes());
     }
 }

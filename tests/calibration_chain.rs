@@ -255,16 +255,16 @@ mod batched_statistics {
                         slow.moments.successive_ratio()
                     ));
                 }
-                prop_assert_eq!(fast.samples, slow.samples);
-                prop_assert_eq!(fast.valid, slow.valid);
-                prop_assert_eq!(fast.at_least, slow.at_least);
-                prop_assert_eq!(fast.at_most, slow.at_most);
+                prop_assert_eq!(fast.totals.samples, slow.totals.samples);
+                prop_assert_eq!(fast.totals.valid, slow.totals.valid);
+                prop_assert_eq!(fast.totals.at_least, slow.totals.at_least);
+                prop_assert_eq!(fast.totals.at_most, slow.totals.at_most);
                 prop_assert_eq!(fast.bound(), slow.bound());
-                prop_assert_eq!(fast.flags, slow.flags);
-                prop_assert!((fast.sum_w - slow.sum_w).abs() <= 1e-12 * slow.sum_w.abs());
+                prop_assert_eq!(fast.totals.flags, slow.totals.flags);
+                prop_assert!((fast.totals.sum_w - slow.totals.sum_w).abs() <= 1e-12 * slow.totals.sum_w.abs());
                 if slow.averaged() > 0 {
-                    prop_assert!((fast.min_dbm - slow.min_dbm).abs() < 1e-9);
-                    prop_assert!((fast.max_dbm - slow.max_dbm).abs() < 1e-9);
+                    prop_assert!((fast.totals.min_dbm - slow.totals.min_dbm).abs() < 1e-9);
+                    prop_assert!((fast.totals.max_dbm - slow.totals.max_dbm).abs() < 1e-9);
                 }
             }
         }

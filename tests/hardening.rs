@@ -63,9 +63,12 @@ fn counts_above_full_scale_are_flagged_and_never_calibrated() {
 
     let mut stats = PowerStats::default();
     stats.add_codes(&cal, &[2000u32, 4096, 65_535, 2000]);
-    assert_eq!(stats.samples, 4);
-    assert_eq!(stats.valid, 2, "only the two real codes are averaged");
-    assert!(stats.flags.contains(Flags::OVER_FULL_SCALE));
+    assert_eq!(stats.totals.samples, 4);
+    assert_eq!(
+        stats.totals.valid, 2,
+        "only the two real codes are averaged"
+    );
+    assert!(stats.totals.flags.contains(Flags::OVER_FULL_SCALE));
     let one = cal.reading(2000.0).dbm;
     assert!((stats.mean_dbm().unwrap() - one).abs() < 1e-9);
 }

@@ -257,7 +257,8 @@ fn entries_in_parallel(codes: u32, entry: &(impl Fn(u32) -> CodeEntry + Sync)) -
     })
 }
 
-/// What [`CodeTable::accumulate`] adds up over the codes the table covers.
+/// The tallies of a set of readings: what [`CodeTable::accumulate`] adds up over the codes
+/// the table covers, and what `stats::PowerStats` keeps beside the counts' moments.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TableTotals {
     /// Codes the table covered.
@@ -276,6 +277,35 @@ pub struct TableTotals {
     pub max_dbm: f64,
     /// Every flag of the codes covered.
     pub flags: Flags,
+}
+
+impl Default for TableTotals {
+    fn default() -> Self {
+        TableTotals {
+            samples: 0,
+            valid: 0,
+            at_least: 0,
+            at_most: 0,
+            sum_w: 0.0,
+            min_dbm: f64::INFINITY,
+            max_dbm: f64::NEG_INFINITY,
+            flags: Flags::empty(),
+        }
+    }
+}
+
+impl TableTotals {
+    /// Adds `other`'s tallies, as if its readings had been added one by one.
+    pub fn merge(&mut self, other: &TableTotals) {
+        self.samples += other.samples;
+        self.valid += other.valid;
+        self.at_least += other.at_least;
+        self.at_most += other.at_most;
+        self.sum_w += other.sum_w;
+        self.min_dbm = self.min_dbm.min(other.min_dbm);
+        self.max_dbm = self.max_dbm.max(other.max_dbm);
+        self.flags |= other.flags;
+    }
 }
 
 /// Codes taken as one block by `accumulate`: a multiple of four, so that a code adds to
