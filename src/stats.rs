@@ -251,7 +251,6 @@ pub struct PowerStats {
     pub moments: CountMoments,
 }
 
-
 /// An interval's figures as a row gives them.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Figures {
