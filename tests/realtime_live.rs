@@ -168,6 +168,9 @@ fn sigint_mid_interval_leaves_a_valid_csv_with_the_partial_row() {
     assert!((mean - 29.2).abs() < 0.3, "{mean}");
 }
 
+/// Three seconds of the soak scenario, seed 5: to a file, and the same over a pty.
+const SIM_SOAK_3S: [&str; 7] = ["sim", "--scenario", "soak", "--seconds", "3", "--seed", "5"];
+
 #[test]
 fn the_simulator_over_a_pty_arrives_sample_for_sample() {
     use std::io::BufRead;
@@ -175,17 +178,8 @@ fn the_simulator_over_a_pty_arrives_sample_for_sample() {
     let dir = tmp.path();
     let reference = dir.join("reference.txt");
     let made = bin()
-        .args([
-            "sim",
-            "--scenario",
-            "soak",
-            "--seconds",
-            "3",
-            "--seed",
-            "5",
-            "--out",
-            reference.to_str().unwrap(),
-        ])
+        .args(SIM_SOAK_3S)
+        .args(["--out", reference.to_str().unwrap()])
         .status()
         .unwrap();
     assert!(made.success());
@@ -197,17 +191,7 @@ fn the_simulator_over_a_pty_arrives_sample_for_sample() {
     assert_eq!(sent.len(), 3000);
 
     let sim = &mut bin();
-    sim.args([
-        "sim",
-        "--scenario",
-        "soak",
-        "--seconds",
-        "3",
-        "--seed",
-        "5",
-        "--pty",
-    ])
-    .stdout(Stdio::piped());
+    sim.args(SIM_SOAK_3S).arg("--pty").stdout(Stdio::piped());
     let mut sim = spawn(sim);
     let mut path = String::new();
     std::io::BufReader::new(sim.stdout.take().unwrap())

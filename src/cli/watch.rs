@@ -47,9 +47,10 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let run = plan.start(None)?;
     let context = run.context(Duration::from_secs(1));
     let color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
-    let app = App::new(
+    let app = App::calibrated(
         Arc::new(run.loaded.profile),
-        plan.freq_hz,
+        run.cal,
+        run.uncertainty,
         plan.offset_db,
         plan.short_label(),
     )

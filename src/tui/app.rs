@@ -307,6 +307,7 @@ pub struct App {
 impl App {
     /// A screen for `profile` at `freq_hz` (None: the profile's reference) and an extra
     /// offset.
+    #[cfg(test)]
     pub fn new(
         profile: Arc<Profile>,
         freq_hz: Option<f64>,
@@ -314,8 +315,21 @@ impl App {
         source: String,
     ) -> Self {
         let cal = Calibration::new(&profile, freq_hz, extra_offset_db);
+        let uncertainty = Uncertainty::new(&profile, &cal);
+        Self::calibrated(profile, cal, uncertainty, extra_offset_db, source)
+    }
+
+    /// A screen for a calibration already built (with its budget) for `profile` with an
+    /// extra offset, so that a run's start builds the code table once.
+    pub fn calibrated(
+        profile: Arc<Profile>,
+        cal: Calibration,
+        uncertainty: Uncertainty,
+        extra_offset_db: f64,
+        source: String,
+    ) -> Self {
         App {
-            uncertainty: Uncertainty::new(&profile, &cal),
+            uncertainty,
             profile,
             cal,
             extra_offset_db,
