@@ -282,7 +282,7 @@ impl CouplerCalibration {
 }
 
 /// One arm's mean power and its uncertainty, as the match takes them.
-fn arm_power(figures: &Figures, budget: &Uncertainty) -> ArmPower {
+pub fn arm_power(figures: &Figures, budget: &Uncertainty) -> ArmPower {
     let u_db = match (figures.bound, figures.mean_dbm, figures.noise) {
         (Bound::Exact, Some(mean), Some(noise)) => {
             Some(budget.budget(mean, Some(noise)).expanded_db())

@@ -7,6 +7,7 @@ use std::io::{self, Write};
 use std::time::{Duration, SystemTime};
 
 use crate::calibration::{Calibration, Flags};
+use crate::coupler::{CouplerCalibration, CouplerSetup};
 use crate::events::{Chunk, Event};
 use crate::printable::escape_controls;
 use crate::stats::{Bound, Figures, PowerStats};
@@ -43,14 +44,38 @@ const EDGE_SLACK: f64 = 1e-6;
 /// taken as each read of a live port arrived (the other form is `at N samples/s`).
 pub const STAMPED_BY_CLOCK: &str = "by the clock as each read arrived (a live port)";
 
-/// Writes readings as CSV rows.
-pub struct Recorder<W: Write> {
-    out: csv::Writer<W>,
+mod coupled;
+
+use coupled::Coupled;
+pub use coupled::{CouplerChannels, COUPLER_MATCH_COLUMNS, OVER_REFLECTED_LIMIT, OVER_SWR_LIMIT};
+
+/// One detector's chain as rows read it: its calibration, its budget, and the per-sample
+/// cells of each code it has met.
+struct Chain {
     cal: Calibration,
     budget: Option<Uncertainty>,
     /// Per-sample rows' cells after the time, by code (they depend on nothing else),
     /// worked out at a code's first sample: formatting them is most of such a row's cost.
     per_code_cells: Vec<Option<SampleCells>>,
+}
+
+impl Chain {
+    fn new(cal: Calibration, budget: Option<Uncertainty>) -> Self {
+        Chain {
+            per_code_cells: vec![None; cal.code_table().len()],
+            cal,
+            budget,
+        }
+    }
+}
+
+/// Writes readings as CSV rows.
+pub struct Recorder<W: Write> {
+    out: csv::Writer<W>,
+    /// One chain for every channel alike, or a coupler's forward and reflected arms.
+    chains: Vec<Chain>,
+    /// The coupler whose arms `chains` are, with the match columns' rules.
+    coupled: Option<Coupled>,
     every: f64,
     started: SystemTime,
     channels: Option<usize>,
@@ -107,7 +132,7 @@ impl<W: Write> Recorder<W> {
     /// A recorder whose rows carry the expanded uncertainty of their means from `budget`
     /// (the profile's, at this calibration).
     pub fn with_uncertainty(
-        mut out: W,
+        out: W,
         cal: Calibration,
         budget: Option<Uncertainty>,
         context: &RunContext,
@@ -118,6 +143,42 @@ impl<W: Write> Recorder<W> {
             context_lines(&cal, context),
             uncertainty_line(budget.as_ref(), &cal, context.every.is_zero())
         );
+        Self::opened(
+            out,
+            vec![Chain::new(cal, budget)],
+            None,
+            lines,
+            context,
+            opening,
+        )
+    }
+
+    /// A recorder of a coupler's two arms and their match: each row holds the forward
+    /// arm's cells, the reflected arm's, then [`COUPLER_MATCH_COLUMNS`].
+    pub fn for_coupler(
+        out: W,
+        cal: CouplerCalibration,
+        setup: &CouplerSetup,
+        context: &RunContext,
+        opening: Opening,
+    ) -> io::Result<Self> {
+        let coupled = Coupled::new(&cal, setup);
+        let lines = coupled.context_lines(&cal, setup, context);
+        let chains = vec![
+            Chain::new(cal.forward, Some(cal.forward_budget)),
+            Chain::new(cal.reflected, Some(cal.reflected_budget)),
+        ];
+        Self::opened(out, chains, Some(coupled), lines, context, opening)
+    }
+
+    fn opened(
+        mut out: W,
+        chains: Vec<Chain>,
+        coupled: Option<Coupled>,
+        lines: String,
+        context: &RunContext,
+        opening: Opening,
+    ) -> io::Result<Self> {
         let (pending, log_channels) = match opening {
             Opening::Fresh => {
                 out.write_all(lines.as_bytes())?;
@@ -141,9 +202,8 @@ impl<W: Write> Recorder<W> {
                 .flexible(true)
                 .quote_style(csv::QuoteStyle::Never)
                 .from_writer(out),
-            per_code_cells: vec![None; cal.code_table().len()],
-            cal,
-            budget,
+            chains,
+            coupled,
             every: context.every.as_secs_f64(),
             started: context.started,
             channels: None,
@@ -182,6 +242,14 @@ impl<W: Write> Recorder<W> {
         self.channels.or(self.log_channels).unwrap_or(1)
     }
 
+    /// The column groups of a row: one per channel, or a coupler's two arms.
+    fn groups(&self) -> usize {
+        match &self.coupled {
+            Some(_) => 2,
+            None => self.channel_count(),
+        }
+    }
+
     /// Starts the first interval at source time `t` rather than 0, for a recording that
     /// begins part-way through a session.
     pub fn begin_at(&mut self, t: f64) {
@@ -195,9 +263,9 @@ impl<W: Write> Recorder<W> {
         self.rows
     }
 
-    /// The calibration in use.
+    /// The calibration in use (a coupler's forward arm's).
     pub fn calibration(&self) -> &Calibration {
-        &self.cal
+        &self.chains[0].cal
     }
 
     /// The destination.
@@ -280,8 +348,11 @@ impl<W: Write> Recorder<W> {
                 let mismatch = ChannelMismatch { log, stream };
                 return Err(io::Error::new(io::ErrorKind::InvalidInput, mismatch));
             }
+            if let Some(coupled) = &self.coupled {
+                coupled.check_stream(stream)?;
+            }
         }
-        let channels = *self.channels.get_or_insert(chunk.channels());
+        self.channels.get_or_insert(chunk.channels());
         if self.every <= 0.0 {
             self.note_stamps(chunk.dt)?;
             for i in 0..chunk.len() {
@@ -296,7 +367,7 @@ impl<W: Write> Recorder<W> {
         while i < chunk.len() {
             self.advance(chunk.time(i) + slack)?;
             // Writing an interval takes its statistics away.
-            self.stats.resize(channels, PowerStats::default());
+            self.stats.resize(self.groups(), PowerStats::default());
             let boundary = (self.interval.unwrap_or(0) + 1) as f64 * self.every;
             // Samples of this run that fall before the current interval's end.
             let end = if chunk.dt > 0.0 {
@@ -309,11 +380,13 @@ impl<W: Write> Recorder<W> {
             };
             let width = chunk.channels();
             let counts = &chunk.samples.counts[i * width..end * width];
-            if width == 1 {
-                self.stats[0].add_codes(&self.cal, counts);
+            if width == 1 && self.coupled.is_none() {
+                self.stats[0].add_codes(&self.chains[0].cal, counts);
             } else {
-                for (ch, stats) in self.stats.iter_mut().enumerate().take(width) {
-                    stats.add_channel(&self.cal, counts, ch, width);
+                let coupled = self.coupled.as_ref();
+                for (g, stats) in self.stats.iter_mut().enumerate().take(width) {
+                    let (ch, chain) = source_of(coupled, g);
+                    stats.add_channel(&self.chains[chain].cal, counts, ch, width);
                 }
             }
             i = end;
@@ -323,29 +396,37 @@ impl<W: Write> Recorder<W> {
 
     fn sample_row(&mut self, t: f64, counts: &[u32]) -> io::Result<()> {
         let mut row = vec![seconds(t)];
-        let channels = self.channel_count();
-        for &code in counts.iter().take(channels) {
-            match self.per_code_cells.get(code as usize) {
+        let groups = self.groups().min(counts.len());
+        for g in 0..groups {
+            let (ch, chain) = source_of(self.coupled.as_ref(), g);
+            let Some(&code) = counts.get(ch) else {
+                continue;
+            };
+            let chain = &mut self.chains[chain];
+            match chain.per_code_cells.get(code as usize) {
                 Some(Some(cells)) => row.extend(cells.iter().cloned()),
                 _ => {
-                    let cells = self.sample_cells(code);
+                    let cells = chain.sample_cells(code);
                     row.extend(cells.iter().cloned());
-                    if let Some(slot) = self.per_code_cells.get_mut(code as usize) {
+                    if let Some(slot) = chain.per_code_cells.get_mut(code as usize) {
                         *slot = Some(cells);
                     }
                 }
             }
         }
+        if let Some(coupled) = &self.coupled {
+            row.extend(coupled.sample_cells(&self.chains[0].cal, &self.chains[1].cal, counts));
+        }
         self.write_row(row)
     }
+}
 
+impl Chain {
     /// A sample's cells after the time: counts, volts, its level or bound, flags, which
     /// it is, and the expanded uncertainty of a value (its noise is not known).
     fn sample_cells(&self, code: u32) -> SampleCells {
         let r = self.cal.reading_code(code);
-        // One reading's statistics: its level, or its bound, and which it is.
-        let mut one = PowerStats::default();
-        one.add_within(&r, self.cal.span_dbm().1);
+        let one = one_reading(&self.cal, code);
         let value = (one.bound() == Bound::Exact).then_some(r.dbm);
         let u_db = value
             .zip(self.budget.as_ref())
@@ -361,6 +442,30 @@ impl<W: Write> Recorder<W> {
         ]
     }
 
+    /// The expanded uncertainty of an interval's mean: none for a bound, or without the
+    /// noise of its counts (a single sample, a clipped one or one over full scale).
+    fn interval_u_db(&self, figures: &Figures) -> Option<f64> {
+        let (budget, mean, noise) = (self.budget.as_ref()?, figures.mean_dbm?, figures.noise?);
+        (figures.bound == Bound::Exact).then(|| budget.budget(mean, Some(noise)).expanded_db())
+    }
+}
+
+/// One reading's statistics: its level, or its bound, and which it is.
+fn one_reading(cal: &Calibration, code: u32) -> PowerStats {
+    let mut one = PowerStats::default();
+    one.add_within(&cal.reading_code(code), cal.span_dbm().1);
+    one
+}
+
+/// Which stream channel a row's column group `g` reads, and through which chain.
+fn source_of(coupled: Option<&Coupled>, g: usize) -> (usize, usize) {
+    match coupled {
+        Some(c) => (c.channels[g], g),
+        None => (g, 0),
+    }
+}
+
+impl<W: Write> Recorder<W> {
     /// Marks the interval holding `t` (or, per sample, writes a marker row).
     fn mark(&mut self, t: f64, flags: Flags) -> io::Result<()> {
         if self.every > 0.0 {
@@ -370,9 +475,8 @@ impl<W: Write> Recorder<W> {
         // Only a live source loses its link or samples, and its time is the clock's.
         self.note_stamps(0.0)?;
         let cell = flags_cell(flags, std::mem::take(&mut self.rejected));
-        let channels = self.channel_count();
         let mut row = vec![seconds(t)];
-        for _ in 0..channels {
+        for _ in 0..self.groups() {
             row.extend([
                 String::new(),
                 String::new(),
@@ -381,6 +485,12 @@ impl<W: Write> Recorder<W> {
                 String::new(),
                 String::new(),
             ]);
+        }
+        if self.coupled.is_some() {
+            row.extend(std::iter::repeat_n(
+                String::new(),
+                COUPLER_MATCH_COLUMNS.len(),
+            ));
         }
         self.write_row(row)
     }
@@ -412,17 +522,18 @@ impl<W: Write> Recorder<W> {
         if self.link_down {
             flags |= Flags::GAP;
         }
-        let channels = self.channel_count();
-        self.stats.resize(channels, PowerStats::default());
+        self.stats.resize(self.groups(), PowerStats::default());
         let mut row = vec![seconds(start), calendar_time(self.started, start)];
-        for stats in std::mem::take(&mut self.stats) {
+        let mut arms = Vec::with_capacity(2);
+        for (g, stats) in std::mem::take(&mut self.stats).into_iter().enumerate() {
+            let chain = &self.chains[source_of(self.coupled.as_ref(), g).1];
             let mut row_flags = flags | stats.totals.flags;
             if stats.totals.samples == 0 {
                 row_flags |= Flags::GAP;
             }
             let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
             row.push(stats.totals.samples.to_string());
-            let figures = stats.figures(&self.cal);
+            let figures = stats.figures(&chain.cal);
             row.push(number(figures.mean_dbm));
             row.push(number(figures.min_dbm));
             row.push(number(figures.max_dbm));
@@ -430,16 +541,13 @@ impl<W: Write> Recorder<W> {
             row.push(flags_cell(row_flags, rejected));
             row.push(figures.bound.cell().to_string());
             row.push(figures.averaged.to_string());
-            row.push(u_cell(self.interval_u_db(&figures)));
+            row.push(u_cell(chain.interval_u_db(&figures)));
+            arms.push(figures);
+        }
+        if let (Some(coupled), [forward, reflected]) = (&self.coupled, arms.as_slice()) {
+            row.extend(coupled.interval_cells(forward, reflected));
         }
         self.write_row(row)
-    }
-
-    /// The expanded uncertainty of an interval's mean: none for a bound, or without the
-    /// noise of its counts (a single sample, a clipped one or one over full scale).
-    fn interval_u_db(&self, figures: &Figures) -> Option<f64> {
-        let (budget, mean, noise) = (self.budget.as_ref()?, figures.mean_dbm?, figures.noise?);
-        (figures.bound == Bound::Exact).then(|| budget.budget(mean, Some(noise)).expanded_db())
     }
 
     fn write_row(&mut self, row: Vec<String>) -> io::Result<()> {
@@ -463,6 +571,10 @@ impl<W: Write> Recorder<W> {
         let mut names = vec!["time_s".to_string()];
         if self.every > 0.0 {
             names.push("utc".into());
+        }
+        if self.coupled.is_some() {
+            names.extend(coupled::column_names(per_channel));
+            return names;
         }
         for ch in 0..self.channel_count() {
             let suffix = if ch == 0 {
@@ -491,7 +603,6 @@ fn u_cell(u_db: Option<f64>) -> String {
     u_db.map_or(String::new(), |u| format!("{u:.4}"))
 }
 
-/// A budget term's name in the `# u_db:` line: `MismatchUse` → `mismatch-use`.
 /// The `# u_db:` line: what the column holds and which terms of the budget it leaves out
 /// (those whose inputs are missing at the span's ends and middle, and the noise of one
 /// sample in per-sample rows), so that nothing is claimed silently.
@@ -501,6 +612,35 @@ fn uncertainty_line(budget: Option<&Uncertainty>, cal: &Calibration, per_sample:
                 empty\n"
             .into();
     };
+    uncertainty_lines(&[("", budget, cal)], per_sample)
+}
+
+/// The `# u_db:` line of rows whose chains are `chains` (a label, for more than one, and
+/// each chain's budget and calibration).
+fn uncertainty_lines(chains: &[(&str, &Uncertainty, &Calibration)], per_sample: bool) -> String {
+    let left_out: Vec<String> = chains
+        .iter()
+        .map(|(label, budget, cal)| {
+            let terms = left_out_terms(budget, cal, per_sample);
+            if label.is_empty() {
+                terms
+            } else {
+                format!("{label} {terms}")
+            }
+        })
+        .collect();
+    format!(
+        "# u_db: expanded uncertainty (k = {}) of the row's {}, dB; empty for a bound; \
+         leaves out: {}; not modelled: {}\n",
+        crate::uncertainty::COVERAGE_K,
+        if per_sample { "reading" } else { "mean" },
+        left_out.join(", "),
+        crate::uncertainty::NOT_MODELLED
+    )
+}
+
+/// The terms of `budget` whose inputs are missing somewhere in the span, as words.
+fn left_out_terms(budget: &Uncertainty, cal: &Calibration, per_sample: bool) -> String {
     let (lo, hi) = cal.span_dbm();
     // Any noise stands for the rows' own: which terms are missing does not depend on it.
     let noise = (!per_sample).then_some(Noise {
@@ -516,18 +656,11 @@ fn uncertainty_line(budget: Option<&Uncertainty>, cal: &Calibration, per_sample:
         }
     }
     let names: Vec<String> = missing.into_iter().map(|k| k.label().to_string()).collect();
-    let left_out = if names.is_empty() {
+    if names.is_empty() {
         "nothing".to_string()
     } else {
         names.join(", ")
-    };
-    format!(
-        "# u_db: expanded uncertainty (k = {}) of the row's {}, dB; empty for a bound; \
-         leaves out: {left_out}; not modelled: {}\n",
-        crate::uncertainty::COVERAGE_K,
-        if per_sample { "reading" } else { "mean" },
-        crate::uncertainty::NOT_MODELLED
-    )
+    }
 }
 
 /// The calendar time `t` seconds after `started`; empty past what the clock can hold, so
@@ -556,6 +689,17 @@ fn flags_cell(flags: Flags, rejected: bool) -> String {
 
 /// The `#` lines that open a recording.
 pub(crate) fn context_lines(cal: &Calibration, c: &RunContext) -> String {
+    let frequency = format!(
+        "{}; frequency correction {:+.2} dB; offset {:+.2} dB",
+        format_frequency(cal.freq_hz()),
+        cal.correction_db(),
+        cal.offset_db(),
+    );
+    context_lines_with(&frequency, c)
+}
+
+/// The `#` lines that open a recording whose calibration `frequency` describes.
+fn context_lines_with(frequency: &str, c: &RunContext) -> String {
     let every = if c.every.is_zero() {
         "every sample".to_string()
     } else {
@@ -563,16 +707,13 @@ pub(crate) fn context_lines(cal: &Calibration, c: &RunContext) -> String {
     };
     format!(
         "# {tool} record\n# profile: {profile}; sha256 {hash}\n\
-         # frequency: {freq}; frequency correction {corr:+.2} dB; offset {offset:+.2} dB\n\
+         # frequency: {frequency}\n\
          # started: {started}\n# source: {source}\n# rows: {every}; power averaged over watts; \
          flags: {legend}\n",
         legend = flags_cell(Flags::all(), true).replace('|', " "),
         tool = escape_controls(&c.tool),
         profile = escape_controls(&c.profile),
         hash = c.profile_hash,
-        freq = format_frequency(cal.freq_hz()),
-        corr = cal.correction_db(),
-        offset = cal.offset_db(),
         started = humantime::format_rfc3339_millis(c.started),
         source = escape_controls(&c.source),
     )
@@ -807,7 +948,7 @@ mod tests {
     // the bound column these rows showed plain means of their values alone.
     #[test]
     fn interval_rows_name_their_bound_and_the_samples_averaged() {
-        let cal = recorder(1.0).cal;
+        let cal = recorder(1.0).chains.remove(0).cal;
         let bottom = format!("{:.4}", cal.span_dbm().0);
         let (bound, averaged, mean, _) = bound_cells(&[2000, 2000, 2000]);
         assert_eq!((bound.as_str(), averaged.as_str()), ("", "3"));

@@ -9,7 +9,7 @@ use std::time::{Duration, Instant};
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::events::Event;
-use dbtrail::record::{ChannelMismatch, Opening, Recorder, RunContext};
+use dbtrail::record::{ChannelMismatch, CouplerChannels, Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
 use super::run_plan::{RunPlan, SourcePlan, StartedRun};
@@ -75,9 +75,14 @@ pub fn run(args: Args) -> Result<(), Failure> {
         mut source,
         cal,
         uncertainty,
+        coupled,
         ..
     } = run;
-    let mut recorder = Recorder::with_uncertainty(out, cal, Some(uncertainty), &context, opening)
+    let recorder = match coupled {
+        Some(run) => Recorder::for_coupler(out, run.cal, &run.coupler.setup, &context, opening),
+        None => Recorder::with_uncertainty(out, cal, Some(uncertainty), &context, opening),
+    };
+    let mut recorder = recorder
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
     let pumped = pump(
@@ -248,6 +253,9 @@ fn cut_at(event: &mut Event, end: f64) -> bool {
 /// bad input; a log tampered with, or a write that failed, a failure while running.
 fn pump_failure(e: io::Error, target: &str) -> Failure {
     let inner = e.get_ref();
+    if let Some(channels) = inner.and_then(|i| i.downcast_ref::<CouplerChannels>()) {
+        return Failure::BadInput(anyhow!("{channels}; rows written before this are kept"));
+    }
     if let Some(mismatch) = inner.and_then(|i| i.downcast_ref::<ChannelMismatch>()) {
         return Failure::BadInput(anyhow!(
             "cannot add to {target}: {mismatch}; record this stream to another --out (the \

@@ -3,11 +3,12 @@
 //! the profile, the calibration and its budget, the running source, and the context every
 //! log header is written from).
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::time::{Duration, SystemTime};
 
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
+use dbtrail::coupler::{load_coupler, profile_path, Coupler, CouplerCalibration, CouplerSetup};
 use dbtrail::decode::Format;
 use dbtrail::profile::{parse_profile, parse_profile_bytes, read_profile_file, Profile};
 use dbtrail::record::RunContext;
@@ -53,6 +54,8 @@ pub struct RunPlan {
     pub source: SourcePlan,
     /// `--profile`; None runs the demo on its bundled profile.
     pub profile: Option<PathBuf>,
+    /// `--coupler`: two arms and their match instead of one profile.
+    pub coupler: Option<PathBuf>,
     /// The frequency to calibrate at: `--freq`, else the demo scenario's, else None (the
     /// profile's reference).
     pub freq_hz: Option<f64>,
@@ -93,6 +96,7 @@ impl RunPlan {
         RunPlan {
             source: plan,
             profile: reading.profile.clone(),
+            coupler: reading.coupler.clone(),
             freq_hz: reading.freq.or(demo_freq),
             offset_db: reading.offset,
             rate_hz: link.rate,
@@ -128,6 +132,9 @@ impl RunPlan {
     /// capture or a port starts first, its first samples waiting in the ring while the
     /// profile's model is fitted; the simulator needs the profile to start.
     pub fn start(&self, until: Option<f64>) -> Result<StartedRun, Failure> {
+        if let Some(path) = &self.coupler {
+            return self.start_coupled(path, until);
+        }
         let (loaded, source) = match self.start_stream()? {
             Some(running) => (self.load()?, running),
             None => {
@@ -143,6 +150,48 @@ impl RunPlan {
             source,
             cal,
             uncertainty,
+            coupled: None,
+        })
+    }
+
+    /// Starts a coupler run: both arms' profiles from the set-up in `path`, the powers at
+    /// its reference plane; the run's calibration and budget are the forward arm's.
+    fn start_coupled(&self, path: &Path, _until: Option<f64>) -> Result<StartedRun, Failure> {
+        if self.offset_db != 0.0 {
+            return Err(anyhow!(
+                "--offset does not apply to a coupler run: the set-up file {} holds each \
+                 arm's coupling and the through-loss; change them there",
+                path.display()
+            ))
+            .bad_input();
+        }
+        let source = match self.start_stream()? {
+            Some(running) => running,
+            None => {
+                return Err(anyhow!(
+                    "the simulator cannot run a coupler set-up yet; replay a two-channel \
+                     capture with --replay, or read a board with --port"
+                ))
+                .bad_input()
+            }
+        };
+        let coupler = load_coupler(path).bad_input()?;
+        let bytes = coupler_bytes(path, &coupler.setup).bad_input()?;
+        let hz = self.freq_hz.unwrap_or(coupler.forward.reference_hz);
+        let coupler_cal = CouplerCalibration::new(&coupler, hz);
+        Ok(StartedRun {
+            loaded: LoadedProfile {
+                profile: coupler.forward.clone(),
+                origin: path.display().to_string(),
+                bytes,
+            },
+            source,
+            cal: coupler_cal.forward.clone(),
+            uncertainty: coupler_cal.forward_budget.clone(),
+            coupled: Some(CoupledRun {
+                coupler,
+                cal: coupler_cal,
+            }),
         })
     }
 
@@ -233,6 +282,28 @@ pub struct LoadedProfile {
     pub bytes: Vec<u8>,
 }
 
+/// The set-up file's bytes and its two profiles', which a log's hash covers.
+fn coupler_bytes(path: &Path, setup: &CouplerSetup) -> anyhow::Result<Vec<u8>> {
+    let folder = path.parent().unwrap_or(Path::new("."));
+    let mut bytes =
+        std::fs::read(path).with_context(|| format!("cannot read {}", path.display()))?;
+    for arm in [&setup.forward, &setup.reflected] {
+        let file = profile_path(folder, &arm.profile);
+        bytes.extend(
+            std::fs::read(&file).with_context(|| format!("cannot read {}", file.display()))?,
+        );
+    }
+    Ok(bytes)
+}
+
+/// A coupler run's set-up and both arms' chains.
+pub struct CoupledRun {
+    /// The set-up, its profiles loaded.
+    pub coupler: Coupler,
+    /// Both arms at the run's frequency.
+    pub cal: CouplerCalibration,
+}
+
 /// A run under way: what both commands build their logs and their screen from.
 pub struct StartedRun {
     /// The profile.
@@ -243,15 +314,27 @@ pub struct StartedRun {
     pub cal: Calibration,
     /// Its uncertainty budget.
     pub uncertainty: Uncertainty,
+    /// A coupler run's set-up and arms (the calibration above is its forward arm's).
+    pub coupled: Option<CoupledRun>,
 }
 
 impl StartedRun {
     /// The context a log's header is written from, for rows every `every` (zero: one row
     /// per sample), for a run that starts now.
     pub fn context(&self, every: Duration) -> RunContext {
+        let profile = match &self.coupled {
+            Some(run) => format!(
+                "coupler set-up {} ({}): forward {}, reflected {}",
+                run.coupler.setup.name,
+                self.loaded.origin,
+                run.coupler.forward.name,
+                run.coupler.reflected.name
+            ),
+            None => format!("{} ({})", self.loaded.profile.name, self.loaded.origin),
+        };
         RunContext {
             tool: format!("dbtrail {}", env!("CARGO_PKG_VERSION")),
-            profile: format!("{} ({})", self.loaded.profile.name, self.loaded.origin),
+            profile,
             profile_hash: hex_digest(&self.loaded.bytes),
             started: SystemTime::now(),
             source: self.source.description.clone(),

@@ -30,6 +30,10 @@ pub struct ReadingArgs {
     /// Detector profile (TOML); --demo uses the bundled demo profile without one
     #[arg(long)]
     pub profile: Option<PathBuf>,
+    /// Coupler set-up (TOML) instead of --profile: forward and reflected power from two
+    /// channels, and the match of the two
+    #[arg(long, conflicts_with = "profile")]
+    pub coupler: Option<PathBuf>,
     /// Frequency in use, e.g. 145.5MHz (default: the demo scenario's, else the profile's)
     #[arg(long, allow_hyphen_values = true, value_parser = super::parse_frequency_arg)]
     pub freq: Option<f64>,

@@ -1,0 +1,250 @@
+//! The rows of a coupler run: the forward arm's cells, the reflected arm's, then the match
+//! of the two, worked out from each arm's mean over watts (the ratio of the averages), with
+//! its bound, its uncertainty, the range the coupler's directivity leaves, and the limits
+//! the transmitter tolerates (docs/calibration.md, "Forward and reflected power").
+
+use std::io;
+
+use crate::calibration::Calibration;
+use crate::coupler::{arm_power, CouplerCalibration, CouplerSetup, MatchLimits};
+use crate::matching::{MatchInterval, MatchState};
+use crate::printable::escape_controls;
+use crate::stats::{Bound, Figures};
+use crate::uncertainty::Uncertainty;
+use crate::units::format_frequency;
+
+use super::{one_reading, RunContext};
+
+/// The columns after both arms' cells in a coupler run's rows.
+pub const COUPLER_MATCH_COLUMNS: [&str; 9] = [
+    "net_w",
+    "gamma",
+    "swr",
+    "return_loss_db",
+    "mismatch_loss_db",
+    "match",
+    "u_return_loss_db",
+    "return_loss_low_db",
+    "return_loss_high_db",
+];
+
+/// The `match` cell's mark of a row whose SWR is above the set-up's `swr_max` (a value,
+/// or a bound that says it is at least that).
+pub const OVER_SWR_LIMIT: &str = "over-swr-limit";
+/// The mark of a row whose reflected power is above the set-up's `reflected_max_dbm`.
+pub const OVER_REFLECTED_LIMIT: &str = "over-reflected-limit";
+
+/// The prefixes of the forward and the reflected arm's columns.
+const ARM_PREFIXES: [&str; 2] = ["fwd_", "ref_"];
+
+/// A stream with too few channels for the set-up's arms.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, thiserror::Error)]
+#[error(
+    "the coupler set-up reads channel {needs} but the stream sends {stream} channel(s); check \
+     the set-up's [forward] and [reflected] channels against the board"
+)]
+pub struct CouplerChannels {
+    /// The highest channel the set-up reads, from 1.
+    pub needs: usize,
+    /// Channels the stream sends.
+    pub stream: usize,
+}
+
+/// What a recorder needs of a coupler beyond its arms' chains.
+pub(super) struct Coupled {
+    /// The stream channels of the forward and the reflected arm, from 0.
+    pub(super) channels: [usize; 2],
+    budgets: [Uncertainty; 2],
+    leakage: f64,
+    limits: MatchLimits,
+}
+
+impl Coupled {
+    pub(super) fn new(cal: &CouplerCalibration, setup: &CouplerSetup) -> Self {
+        Coupled {
+            channels: [setup.forward.channel, setup.reflected.channel],
+            budgets: [cal.forward_budget.clone(), cal.reflected_budget.clone()],
+            leakage: cal.leakage,
+            limits: setup.limits,
+        }
+    }
+
+    /// Refuses a stream that lacks one of the arms' channels.
+    pub(super) fn check_stream(&self, stream: usize) -> io::Result<()> {
+        let needs = self.channels[0].max(self.channels[1]) + 1;
+        if needs > stream {
+            let error = CouplerChannels { needs, stream };
+            return Err(io::Error::new(io::ErrorKind::InvalidInput, error));
+        }
+        Ok(())
+    }
+
+    /// The match cells of an interval from its arms' figures.
+    pub(super) fn interval_cells(&self, forward: &Figures, reflected: &Figures) -> Vec<String> {
+        let m = MatchInterval::new(
+            arm_power(forward, &self.budgets[0]),
+            arm_power(reflected, &self.budgets[1]),
+            self.leakage,
+        );
+        self.cells(&m, reflected)
+    }
+
+    /// The match cells of one sample of each arm (no noise is known: no uncertainty).
+    pub(super) fn sample_cells(
+        &self,
+        forward: &Calibration,
+        reflected: &Calibration,
+        counts: &[u32],
+    ) -> Vec<String> {
+        let figures = |cal: &Calibration, ch: usize| {
+            counts
+                .get(ch)
+                .map(|&code| one_reading(cal, code).figures(cal))
+        };
+        match (
+            figures(forward, self.channels[0]),
+            figures(reflected, self.channels[1]),
+        ) {
+            (Some(f), Some(r)) => self.interval_cells(&f, &r),
+            _ => vec![String::new(); COUPLER_MATCH_COLUMNS.len()],
+        }
+    }
+
+    fn cells(&self, m: &MatchInterval, reflected: &Figures) -> Vec<String> {
+        let fixed = |v: Option<f64>, digits: usize| {
+            v.map_or(String::new(), |v| {
+                if v.is_infinite() {
+                    "inf".into()
+                } else {
+                    format!("{v:.digits$}")
+                }
+            })
+        };
+        let figures = m.figures.as_ref();
+        let range = m.return_loss_range_db;
+        vec![
+            m.net_w.map_or(String::new(), |w| format!("{w:.6e}")),
+            fixed(figures.map(|f| f.gamma), 6),
+            fixed(figures.map(|f| f.swr), 4),
+            fixed(figures.map(|f| f.return_loss_db), 4),
+            fixed(figures.map(|f| f.mismatch_loss_db), 4),
+            self.marks(m, reflected).join("|"),
+            fixed(m.u_return_loss_db, 4),
+            fixed(range.map(|r| r.0), 4),
+            fixed(range.map(|r| r.1), 4),
+        ]
+    }
+
+    /// The `match` cell: the state's flag, then any limit the row is over.
+    fn marks(&self, m: &MatchInterval, reflected: &Figures) -> Vec<&'static str> {
+        let mut marks: Vec<&'static str> = Vec::new();
+        if m.state != MatchState::Value {
+            marks.push(m.state.flag());
+        }
+        // A value over the limit, or a bound that puts it over (an SWR at least this).
+        let swr_over = matches!(m.state, MatchState::Value | MatchState::ReturnLossAtMost)
+            && m.figures
+                .zip(self.limits.swr_max)
+                .is_some_and(|(f, max)| f.swr > max);
+        if swr_over {
+            marks.push(OVER_SWR_LIMIT);
+        }
+        let reflected_over = matches!(reflected.bound, Bound::Exact | Bound::AtLeast)
+            && reflected
+                .mean_dbm
+                .zip(self.limits.reflected_max_dbm)
+                .is_some_and(|(dbm, max)| dbm > max);
+        if reflected_over {
+            marks.push(OVER_REFLECTED_LIMIT);
+        }
+        marks
+    }
+
+    /// The `#` lines that open a coupler run's log: the common ones with the coupler's
+    /// and each arm's chain, the limits, and what the uncertainty columns hold.
+    pub(super) fn context_lines(
+        &self,
+        cal: &CouplerCalibration,
+        setup: &CouplerSetup,
+        context: &RunContext,
+    ) -> String {
+        let hz = cal.forward.freq_hz();
+        let arm = |name: &str, c: &Calibration| {
+            format!(
+                "{name} arm: frequency correction {:+.2} dB, offset {:+.2} dB",
+                c.correction_db(),
+                c.offset_db()
+            )
+        };
+        let frequency = format!(
+            "{}; {}; {}",
+            format_frequency(hz),
+            arm("forward", &cal.forward),
+            arm("reflected", &cal.reflected)
+        );
+        let coupler = format!(
+            "# coupler: {name}: forward on channel {f}, reflected on channel {r}; directivity \
+             {d:.1} dB (|Γd| {leak:.4}); through-loss {l:.2} dB; powers at the {plane}\n\
+             # limits: {limits}\n",
+            name = escape_controls(&setup.name),
+            f = setup.forward.channel + 1,
+            r = setup.reflected.channel + 1,
+            d = setup.directivity.at(hz).db,
+            leak = self.leakage,
+            l = setup.through_loss.at(hz).db,
+            plane = setup.plane.name(),
+            limits = limits_words(&setup.limits),
+        );
+        let per_sample = context.every.is_zero();
+        format!(
+            "{}{coupler}{}# u_return_loss_db: expanded uncertainty (k = 2) of the return loss, \
+             from both arms' u_db (root sum of squares); empty unless both arms are values; \
+             return_loss_low_db and return_loss_high_db are the range the directivity leaves \
+             the true return loss\n",
+            super::context_lines_with(&frequency, context),
+            super::uncertainty_lines(
+                &[
+                    ("forward arm", &self.budgets[0], &cal.forward),
+                    ("reflected arm", &self.budgets[1], &cal.reflected),
+                ],
+                per_sample
+            ),
+        )
+    }
+}
+
+fn limits_words(limits: &MatchLimits) -> String {
+    let mut words = Vec::new();
+    if let Some(swr) = limits.swr_max {
+        words.push(format!("SWR above {swr} marked {OVER_SWR_LIMIT}"));
+    }
+    if let Some(dbm) = limits.reflected_max_dbm {
+        words.push(format!(
+            "reflected power above {dbm:+.1} dBm marked {OVER_REFLECTED_LIMIT}"
+        ));
+    }
+    if words.is_empty() {
+        "none set".into()
+    } else {
+        words.join("; ")
+    }
+}
+
+/// A coupler run's column names after the time (and the calendar time of interval rows):
+/// each arm's columns under its prefix (an interval's mean is the arm's `dbm` and `w`),
+/// then [`COUPLER_MATCH_COLUMNS`].
+pub(super) fn column_names(per_channel: &[&str]) -> Vec<String> {
+    let mut names = Vec::new();
+    for prefix in ARM_PREFIXES {
+        names.extend(per_channel.iter().map(|name| {
+            let name = match *name {
+                "mean_dbm" => "dbm",
+                "mean_w" => "w",
+                other => other,
+            };
+            format!("{prefix}{name}")
+        }));
+    }
+    names.extend(COUPLER_MATCH_COLUMNS.iter().map(|n| n.to_string()));
+    names
+}
