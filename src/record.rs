@@ -47,7 +47,10 @@ pub const STAMPED_BY_CLOCK: &str = "by the clock as each read arrived (a live po
 mod coupled;
 
 use coupled::Coupled;
-pub use coupled::{CouplerChannels, COUPLER_MATCH_COLUMNS, OVER_REFLECTED_LIMIT, OVER_SWR_LIMIT};
+pub use coupled::{
+    coupler_context_lines, coupler_header, CouplerChannels, COUPLER_MATCH_COLUMNS,
+    OVER_REFLECTED_LIMIT, OVER_SWR_LIMIT,
+};
 
 /// One detector's chain as rows read it: its calibration, its budget, and the per-sample
 /// cells of each code it has met.
@@ -163,7 +166,7 @@ impl<W: Write> Recorder<W> {
         opening: Opening,
     ) -> io::Result<Self> {
         let coupled = Coupled::new(&cal, setup);
-        let lines = coupled.context_lines(&cal, setup, context);
+        let lines = coupler_context_lines(&cal, setup, context);
         let chains = vec![
             Chain::new(cal.forward, Some(cal.forward_budget)),
             Chain::new(cal.reflected, Some(cal.reflected_budget)),
@@ -344,7 +347,8 @@ impl<W: Write> Recorder<W> {
         }
         if self.channels.is_none() {
             let stream = chunk.channels();
-            if let Some(log) = self.log_channels.filter(|&log| log != stream) {
+            let log_channels = self.log_channels.filter(|_| self.coupled.is_none());
+            if let Some(log) = log_channels.filter(|&log| log != stream) {
                 let mismatch = ChannelMismatch { log, stream };
                 return Err(io::Error::new(io::ErrorKind::InvalidInput, mismatch));
             }
@@ -573,8 +577,7 @@ impl<W: Write> Recorder<W> {
             names.push("utc".into());
         }
         if self.coupled.is_some() {
-            names.extend(coupled::column_names(per_channel));
-            return names;
+            return coupler_header(self.every <= 0.0);
         }
         for ch in 0..self.channel_count() {
             let suffix = if ch == 0 {
@@ -625,7 +628,7 @@ fn uncertainty_lines(chains: &[(&str, &Uncertainty, &Calibration)], per_sample: 
             if label.is_empty() {
                 terms
             } else {
-                format!("{label} {terms}")
+                format!("on the {label} {terms}")
             }
         })
         .collect();
@@ -634,7 +637,7 @@ fn uncertainty_lines(chains: &[(&str, &Uncertainty, &Calibration)], per_sample: 
          leaves out: {}; not modelled: {}\n",
         crate::uncertainty::COVERAGE_K,
         if per_sample { "reading" } else { "mean" },
-        left_out.join(", "),
+        left_out.join("; "),
         crate::uncertainty::NOT_MODELLED
     )
 }

@@ -7,15 +7,19 @@ use std::io::{self, BufRead};
 use thiserror::Error;
 
 use crate::calibration::Calibration;
-use crate::record::{context_lines, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS};
+use crate::record::{
+    context_lines, coupler_header, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS,
+};
 
 /// What a log's rows look like, and how its last run was made.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct LogShape {
     /// One row per sample (`counts, volts, dbm, flags`), not per interval.
     pub per_sample: bool,
-    /// Channels in each row.
+    /// Channels in each row (a coupler run's: its two arms).
     pub channels: usize,
+    /// The rows are a coupler run's: both arms and their match.
+    pub coupled: bool,
     /// The last row was cut part-way: the log does not end with a line end.
     pub cut: bool,
     /// The last run's context lines that say how it was made (profile, frequency, rows).
@@ -73,7 +77,7 @@ impl LogShape {
     pub fn scan(mut reader: impl BufRead) -> Result<LogShape, ShapeError> {
         let mut line = Vec::new();
         let mut number = 0u64;
-        let mut header: Option<(usize, bool)> = None;
+        let mut header: Option<Header> = None;
         let mut made = Vec::new();
         let mut cut = false;
         let mut in_context = true;
@@ -104,11 +108,12 @@ impl LogShape {
             }
             line.clear();
         }
-        let (channels, per_sample) = header.ok_or(ShapeError::NoHeader)?;
+        let header = header.ok_or(ShapeError::NoHeader)?;
         made.sort();
         Ok(LogShape {
-            per_sample,
-            channels,
+            per_sample: header.per_sample,
+            channels: header.channels,
+            coupled: header.coupled,
             cut,
             made,
         })
@@ -117,7 +122,12 @@ impl LogShape {
     /// Which of the last run's context lines differ from those a run with this
     /// calibration and context writes: the words before each line's colon.
     pub fn differences(&self, cal: &Calibration, context: &RunContext) -> Vec<String> {
-        let ours = context_lines(cal, context);
+        self.differences_from(&context_lines(cal, context))
+    }
+
+    /// Which of the last run's context lines differ from `ours`, the `#` lines a new run
+    /// writes.
+    pub fn differences_from(&self, ours: &str) -> Vec<String> {
         let mut ours: Vec<String> = ours
             .lines()
             .filter(|l| MADE_BY.iter().any(|k| l.starts_with(k)))
@@ -144,9 +154,36 @@ fn made_part(line: &str) -> String {
     }
 }
 
-/// Channels and kind (true: per sample) of a column header dbtrail writes.
-fn columns(header: &str, line: u64) -> Result<(usize, bool), ShapeError> {
+/// What a column header dbtrail writes says of its rows.
+struct Header {
+    channels: usize,
+    per_sample: bool,
+    coupled: bool,
+}
+
+/// Channels and kind of a column header dbtrail writes.
+fn columns(header: &str, line: u64) -> Result<Header, ShapeError> {
     let names: Vec<&str> = header.split(',').collect();
+    for per_sample in [true, false] {
+        if names
+            .iter()
+            .copied()
+            .eq(coupler_header(per_sample).iter().map(String::as_str))
+        {
+            return Ok(Header {
+                channels: 2,
+                per_sample,
+                coupled: true,
+            });
+        }
+    }
+    let plain = |channels, per_sample| {
+        Ok(Header {
+            channels,
+            per_sample,
+            coupled: false,
+        })
+    };
     let fits = |lead: &[&str], per: &[&str]| -> Option<usize> {
         let rest = names.strip_prefix(lead)?;
         let channels = rest.len() / per.len();
@@ -162,10 +199,10 @@ fn columns(header: &str, line: u64) -> Result<(usize, bool), ShapeError> {
             .then_some(channels)
     };
     if let Some(channels) = fits(&["time_s"], &PER_SAMPLE_COLUMNS) {
-        return Ok((channels, true));
+        return plain(channels, true);
     }
     if let Some(channels) = fits(&["time_s", "utc"], &PER_INTERVAL_COLUMNS) {
-        return Ok((channels, false));
+        return plain(channels, false);
     }
     let earlier = |lead: &[&str], columns: &[&str], first: usize| {
         (first..columns.len()).any(|n| fits(lead, &columns[..n]).is_some())

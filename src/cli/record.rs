@@ -9,7 +9,9 @@ use std::time::{Duration, Instant};
 use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::events::Event;
-use dbtrail::record::{ChannelMismatch, CouplerChannels, Opening, Recorder, RunContext};
+use dbtrail::record::{
+    coupler_context_lines, ChannelMismatch, CouplerChannels, Opening, Recorder, RunContext,
+};
 use dbtrail::resume::LogShape;
 
 use super::run_plan::{RunPlan, SourcePlan, StartedRun};
@@ -63,7 +65,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     }
     let context = run.context(args.every);
     let opening = match &earlier {
-        Some(shape) => resume(shape, &args.out, &run.cal, &context)?,
+        Some(shape) => resume(shape, &args.out, &run, &context)?,
         None => Opening::Fresh,
     };
     let target = if args.out == "-" {
@@ -276,10 +278,28 @@ fn pump_failure(e: io::Error, target: &str) -> Failure {
 fn resume(
     shape: &LogShape,
     out: &str,
-    cal: &Calibration,
+    run: &StartedRun,
     context: &RunContext,
 ) -> Result<Opening, Failure> {
     let per_sample = context.every.is_zero();
+    if shape.coupled != run.coupled.is_some() {
+        let (log, this) = if shape.coupled {
+            (
+                "a coupler run's rows (both arms and their match)",
+                "one detector's",
+            )
+        } else {
+            (
+                "one detector's rows",
+                "a coupler run's (both arms and their match)",
+            )
+        };
+        return Err(anyhow!(
+            "cannot add to {out}: it holds {log} and this run would write {this}; choose \
+             another --out"
+        ))
+        .bad_input();
+    }
     if shape.per_sample != per_sample {
         let (log, run) = if shape.per_sample {
             ("one row per sample", "rows per interval")
@@ -292,7 +312,12 @@ fn resume(
         ))
         .bad_input();
     }
-    let differ = shape.differences(cal, context);
+    let differ = match &run.coupled {
+        Some(c) => {
+            shape.differences_from(&coupler_context_lines(&c.cal, &c.coupler.setup, context))
+        }
+        None => shape.differences(&run.cal, context),
+    };
     if !differ.is_empty() {
         super::say_err!(
             "dbtrail: this run's {} differ from the last run in {out}: it is added as a run \

@@ -13,7 +13,7 @@ use crate::stats::{Bound, Figures};
 use crate::uncertainty::Uncertainty;
 use crate::units::format_frequency;
 
-use super::{one_reading, RunContext};
+use super::{one_reading, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS};
 
 /// The columns after both arms' cells in a coupler run's rows.
 pub const COUPLER_MATCH_COLUMNS: [&str; 9] = [
@@ -159,58 +159,57 @@ impl Coupled {
         }
         marks
     }
+}
 
-    /// The `#` lines that open a coupler run's log: the common ones with the coupler's
-    /// and each arm's chain, the limits, and what the uncertainty columns hold.
-    pub(super) fn context_lines(
-        &self,
-        cal: &CouplerCalibration,
-        setup: &CouplerSetup,
-        context: &RunContext,
-    ) -> String {
-        let hz = cal.forward.freq_hz();
-        let arm = |name: &str, c: &Calibration| {
-            format!(
-                "{name} arm: frequency correction {:+.2} dB, offset {:+.2} dB",
-                c.correction_db(),
-                c.offset_db()
-            )
-        };
-        let frequency = format!(
-            "{}; {}; {}",
-            format_frequency(hz),
-            arm("forward", &cal.forward),
-            arm("reflected", &cal.reflected)
-        );
-        let coupler = format!(
-            "# coupler: {name}: forward on channel {f}, reflected on channel {r}; directivity \
-             {d:.1} dB (|Γd| {leak:.4}); through-loss {l:.2} dB; powers at the {plane}\n\
-             # limits: {limits}\n",
-            name = escape_controls(&setup.name),
-            f = setup.forward.channel + 1,
-            r = setup.reflected.channel + 1,
-            d = setup.directivity.at(hz).db,
-            leak = self.leakage,
-            l = setup.through_loss.at(hz).db,
-            plane = setup.plane.name(),
-            limits = limits_words(&setup.limits),
-        );
-        let per_sample = context.every.is_zero();
+/// The `#` lines that open a coupler run's log: the common ones with the coupler's and
+/// each arm's chain, the limits, and what the uncertainty columns hold.
+pub fn coupler_context_lines(
+    cal: &CouplerCalibration,
+    setup: &CouplerSetup,
+    context: &RunContext,
+) -> String {
+    let hz = cal.forward.freq_hz();
+    let arm = |name: &str, c: &Calibration| {
         format!(
-            "{}{coupler}{}# u_return_loss_db: expanded uncertainty (k = 2) of the return loss, \
-             from both arms' u_db (root sum of squares); empty unless both arms are values; \
-             return_loss_low_db and return_loss_high_db are the range the directivity leaves \
-             the true return loss\n",
-            super::context_lines_with(&frequency, context),
-            super::uncertainty_lines(
-                &[
-                    ("forward arm", &self.budgets[0], &cal.forward),
-                    ("reflected arm", &self.budgets[1], &cal.reflected),
-                ],
-                per_sample
-            ),
+            "{name} arm: frequency correction {:+.2} dB, offset {:+.2} dB",
+            c.correction_db(),
+            c.offset_db()
         )
-    }
+    };
+    let frequency = format!(
+        "{}; {}; {}",
+        format_frequency(hz),
+        arm("forward", &cal.forward),
+        arm("reflected", &cal.reflected)
+    );
+    let coupler = format!(
+        "# coupler: {name}: forward on channel {f}, reflected on channel {r}; directivity \
+         {d:.1} dB (|Γd| {leak:.4}); through-loss {l:.2} dB; powers at the {plane}\n\
+         # limits: {limits}\n",
+        name = escape_controls(&setup.name),
+        f = setup.forward.channel + 1,
+        r = setup.reflected.channel + 1,
+        d = setup.directivity.at(hz).db,
+        leak = cal.leakage,
+        l = setup.through_loss.at(hz).db,
+        plane = setup.plane.name(),
+        limits = limits_words(&setup.limits),
+    );
+    let per_sample = context.every.is_zero();
+    format!(
+        "{}{coupler}{}# u_return_loss_db: expanded uncertainty (k = 2) of the return loss, \
+         from both arms' u_db (root sum of squares); empty unless both arms are values; \
+         return_loss_low_db and return_loss_high_db are the range the directivity leaves \
+         the true return loss\n",
+        super::context_lines_with(&frequency, context),
+        super::uncertainty_lines(
+            &[
+                ("forward arm", &cal.forward_budget, &cal.forward),
+                ("reflected arm", &cal.reflected_budget, &cal.reflected),
+            ],
+            per_sample
+        ),
+    )
 }
 
 fn limits_words(limits: &MatchLimits) -> String {
@@ -230,11 +229,15 @@ fn limits_words(limits: &MatchLimits) -> String {
     }
 }
 
-/// A coupler run's column names after the time (and the calendar time of interval rows):
-/// each arm's columns under its prefix (an interval's mean is the arm's `dbm` and `w`),
-/// then [`COUPLER_MATCH_COLUMNS`].
-pub(super) fn column_names(per_channel: &[&str]) -> Vec<String> {
-    let mut names = Vec::new();
+/// A coupler run's column header: the time (and the calendar time of interval rows), each
+/// arm's columns under its prefix (an interval's mean is the arm's `dbm` and `w`), then
+/// [`COUPLER_MATCH_COLUMNS`].
+pub fn coupler_header(per_sample: bool) -> Vec<String> {
+    let (mut names, per_channel): (Vec<String>, &[&str]) = if per_sample {
+        (vec!["time_s".into()], &PER_SAMPLE_COLUMNS)
+    } else {
+        (vec!["time_s".into(), "utc".into()], &PER_INTERVAL_COLUMNS)
+    };
     for prefix in ARM_PREFIXES {
         names.extend(per_channel.iter().map(|name| {
             let name = match *name {
