@@ -189,3 +189,35 @@ fn a_profile_given_as_the_coupler_is_refused_with_where_it_belongs() {
     ]);
     assert!(said.contains("not a coupler set-up"), "{said}");
 }
+
+// Source: docs/protocol.md, "A two-channel board", must show what the simulator writes;
+// the frame's CRC there was worked by hand from the CRC-16/CCITT-FALSE definition
+// (polynomial 0x1021, initial 0xFFFF; the CRC catalogue's check value 0x29B1), and the
+// library's decoder must take both forms as two channels of 367 and 2843.
+#[test]
+fn the_protocol_documents_the_first_match_samples() {
+    let run = |format| {
+        succeeded([
+            "sim",
+            "--scenario",
+            "match",
+            "--seconds",
+            "0.003",
+            "--format",
+            format,
+        ])
+        .stdout
+    };
+    assert_eq!(run("ascii"), b"367,2843\n365,2845\n365,2845\n");
+    let frame = [
+        0xA5, 0x5A, 0x00, 0x00, 0x02, 0x6F, 0x01, 0x1B, 0x0B, 0xA3, 0x61,
+    ];
+    let binary = run("binary");
+    assert_eq!(binary.len(), 3 * frame.len());
+    assert_eq!(binary[..frame.len()], frame);
+    let mut decoder = Decoder::new(Format::Binary);
+    let mut samples = FlatCounts::default();
+    decoder.feed(&frame, &mut samples);
+    decoder.finish(&mut samples);
+    assert_eq!((samples.channels, samples.counts), (2, vec![367, 2843]));
+}
