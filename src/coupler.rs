@@ -17,7 +17,8 @@ use crate::profile::locate::{did_you_mean, FieldPath, Schema};
 use crate::profile::raw::RawOffset;
 use crate::profile::validate::{db_figure, Bounds, Checker, Found, LEVEL_DBM};
 use crate::profile::{
-    load_profile, parse_setup, read_setup_file, setup_text, FileKind, Profile, ProfileError,
+    load_profile, parse_profile, parse_setup, read_setup_file, setup_text, FileKind, Profile,
+    ProfileError, PROFILE_FILE,
 };
 use crate::stats::{Bound, Figures};
 use crate::uncertainty::Uncertainty;
@@ -340,6 +341,43 @@ pub fn load_coupler(path: &Path) -> Result<Coupler, CouplerError> {
     })
 }
 
+/// Validates a coupler set-up given as text and both detectors' profiles, whose texts
+/// `profile_text` gives for the names the set-up writes (as a bundled set-up carries them
+/// in the program); `origin` names the set-up in messages.
+pub fn coupler_from_texts<'t>(
+    setup_text: &str,
+    origin: &str,
+    profile_text: impl Fn(&str) -> Option<&'t str>,
+) -> Result<Coupler, CouplerError> {
+    let setup = parse_coupler(setup_text, origin)?;
+    let parse = |arm: &'static str, named: &str| {
+        let source = match profile_text(named) {
+            Some(text) => match parse_profile(text, named) {
+                Ok(profile) => return Ok(profile),
+                Err(invalid) => invalid,
+            },
+            None => ProfileError::Io {
+                kind: &PROFILE_FILE,
+                path: named.to_string(),
+                source: std::io::Error::new(
+                    std::io::ErrorKind::NotFound,
+                    "no such profile is given with the set-up",
+                ),
+            },
+        };
+        Err(CouplerError::Profile {
+            arm,
+            origin: origin.to_string(),
+            source,
+        })
+    };
+    Ok(Coupler {
+        forward: parse("forward", &setup.forward.profile)?,
+        reflected: parse("reflected", &setup.reflected.profile)?,
+        setup,
+    })
+}
+
 /// A profile named in a set-up file: as given when absolute, else beside the file.
 pub fn profile_path(folder: &Path, named: &str) -> PathBuf {
     let named = Path::new(named);
@@ -624,5 +662,16 @@ swr_max = 2.0
         assert!(problems[0]
             .message
             .starts_with("this is a coupler set-up, not a detector"));
+    }
+
+    #[test]
+    fn a_set_up_from_texts_names_the_arm_whose_profile_is_missing() {
+        let err = coupler_from_texts(SETUP, "bundled", |_| None).unwrap_err();
+        let message = err.to_string();
+        assert!(
+            matches!(err, CouplerError::Profile { arm: "forward", .. }),
+            "{message}"
+        );
+        assert!(message.contains("forward.toml"), "{message}");
     }
 }

@@ -17,7 +17,7 @@ use crate::profile::Profile;
 
 pub mod matching;
 
-use matching::ArmDrive;
+use matching::{ArmDrive, MatchBench};
 
 /// ADC noise of the simulated board, in counts (standard deviation).
 pub const NOISE_COUNTS: f64 = 0.7;
@@ -33,6 +33,8 @@ pub enum Scenario {
     Sweep,
     /// A steady carrier with short bursts that overdrive the detector.
     Overload,
+    /// A matching network adjusted by hand, read through a directional coupler.
+    Match,
 }
 
 /// The frequencies of the sweep scenario, Hz, five seconds each.
@@ -40,11 +42,12 @@ const SWEEP_STEPS_HZ: [f64; 8] = [1e6, 10e6, 30e6, 50e6, 100e6, 146e6, 250e6, 44
 
 impl Scenario {
     /// Every scenario.
-    pub const ALL: [Scenario; 4] = [
+    pub const ALL: [Scenario; 5] = [
         Scenario::Soak,
         Scenario::Tune,
         Scenario::Sweep,
         Scenario::Overload,
+        Scenario::Match,
     ];
 
     /// Its name on the command line.
@@ -54,6 +57,7 @@ impl Scenario {
             Scenario::Tune => "tune",
             Scenario::Sweep => "sweep",
             Scenario::Overload => "overload",
+            Scenario::Match => "match",
         }
     }
 
@@ -69,13 +73,21 @@ impl Scenario {
             Scenario::Tune => "a trimmer on a home-made 2 m band-pass filter turned through the passband peak and back, every 40 s",
             Scenario::Sweep => "a +20 dBm carrier stepped from 1 MHz to 440 MHz, five seconds a step, showing the detector's roll-off",
             Scenario::Overload => "a steady +25 dBm carrier with a 1.5 s burst to +40 dBm every 20 s that overdrives the detector",
+            Scenario::Match => "a 10 W 2 m transmitter feeding an antenna through an L-network whose capacitor is turned by hand through the match and back every 30 s, read through a directional coupler with a detector on each arm",
         }
+    }
+
+    /// True when the scenario reads two detectors on a coupler, so it needs a coupler
+    /// set-up rather than one detector's profile.
+    pub fn needs_coupler(self) -> bool {
+        matches!(self, Scenario::Match)
     }
 
     /// The frequency the scenario runs at for most of its time, Hz.
     pub fn frequency_hz(self) -> f64 {
         match self {
             Scenario::Sweep => SWEEP_STEPS_HZ[0],
+            Scenario::Match => matching::MATCH_HZ,
             _ => 146e6,
         }
     }
@@ -88,7 +100,9 @@ impl Scenario {
         }
     }
 
-    /// The true power at the reference plane at time `t` seconds, dBm.
+    /// The true power at the reference plane at time `t` seconds, dBm. For `match`, the
+    /// forward power at the load: what one detector in place of the coupler's forward arm
+    /// would be calibrated to read.
     pub fn true_dbm(self, t: f64) -> f64 {
         match self {
             Scenario::Soak => 30.0 - 0.8 * (-t / 480.0).exp() - 0.12 * t / 3600.0,
@@ -110,6 +124,7 @@ impl Scenario {
                     25.0
                 }
             }
+            Scenario::Match => matching::forward_at_load_dbm(t),
         }
     }
 
@@ -172,7 +187,7 @@ impl Simulator {
 
     /// A simulator of one arm of the matching bench, the arm's power from `drive`.
     fn of_arm(profile: &Profile, drive: ArmDrive, rate_hz: f64, seed: u64) -> Self {
-        Self::driven(profile, Drive::Arm(drive), Scenario::Soak, rate_hz, seed)
+        Self::driven(profile, Drive::Arm(drive), Scenario::Match, rate_hz, seed)
     }
 
     fn driven(
@@ -304,6 +319,66 @@ impl Simulator {
         self.index += 1;
         let ideal = self.ideal_counts(t);
         (t, self.quantise(ideal))
+    }
+}
+
+/// A simulated source: one detector running a scenario, or the matching bench's two
+/// detectors read as two channels of one stream.
+// One bench is made per run and moved once onto its thread, so the larger variant's
+// size costs nothing and a box would only add an indirection to every fill.
+#[allow(clippy::large_enum_variant)]
+#[derive(Debug, Clone)]
+pub enum SimBench {
+    /// One detector and its ADC.
+    One(Simulator),
+    /// The `match` scenario's coupler, a detector on each arm.
+    Match(MatchBench),
+}
+
+impl SimBench {
+    /// Appends the next `n` samples to `out`, [`SimBench::channels`] counts each;
+    /// returns the time of the first.
+    pub fn fill(&mut self, n: usize, out: &mut Vec<u32>) -> f64 {
+        match self {
+            SimBench::One(sim) => sim.fill(n, out),
+            SimBench::Match(bench) => bench.fill(n, out),
+        }
+    }
+
+    /// Channels per sample.
+    pub fn channels(&self) -> usize {
+        match self {
+            SimBench::One(_) => 1,
+            SimBench::Match(bench) => bench.channels(),
+        }
+    }
+
+    /// Samples per second of simulated time.
+    pub fn rate_hz(&self) -> f64 {
+        match self {
+            SimBench::One(sim) => sim.rate_hz(),
+            SimBench::Match(bench) => bench.rate_hz(),
+        }
+    }
+
+    /// The scenario it runs.
+    pub fn scenario(&self) -> Scenario {
+        match self {
+            SimBench::One(sim) => sim.scenario(),
+            SimBench::Match(_) => Scenario::Match,
+        }
+    }
+}
+
+impl From<Simulator> for SimBench {
+    fn from(sim: Simulator) -> Self {
+        SimBench::One(sim)
+    }
+}
+
+impl From<MatchBench> for SimBench {
+    fn from(bench: MatchBench) -> Self {
+        SimBench::Match(bench)
     }
 }
 

@@ -266,7 +266,7 @@ impl RunPlan {
             unreachable!("start_stream starts every source but the simulator")
         };
         SimSpec {
-            simulator: Simulator::new(profile, scenario, rate_hz, seed),
+            simulator: Simulator::new(profile, scenario, rate_hz, seed).into(),
             fast,
             until,
             seed,

@@ -6,15 +6,17 @@ use std::path::PathBuf;
 use std::time::{Duration, Instant};
 
 use anyhow::Context;
+use dbtrail::coupler::Coupler;
 use dbtrail::decode::{encode_ascii, encode_binary, Format};
-use dbtrail::sim::{Scenario, Simulator};
+use dbtrail::sim::matching::MatchBench;
+use dbtrail::sim::{Scenario, SimBench, Simulator};
 
-use super::source_args::{parse_rate, parse_scenario, DEMO_PROFILE};
+use super::source_args::{parse_rate, parse_scenario, DEMO_COUPLER, DEMO_PROFILE};
 use super::{BadInput, Failure, Runtime};
 
 #[derive(clap::Args)]
 pub struct Args {
-    /// Scenario: soak, tune, sweep or overload
+    /// Scenario: soak, tune, sweep, overload or match (two channels, forward and reflected)
     #[arg(long, default_value = "soak", value_parser = parse_scenario)]
     scenario: Scenario,
     /// Samples per second, e.g. 1000 or 10k
@@ -29,9 +31,12 @@ pub struct Args {
     /// Seed of the noise
     #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
     seed: u64,
-    /// Detector profile to simulate (default: the bundled demo diode)
+    /// Detector profile to simulate (default: the bundled demo diode); not for match
     #[arg(long)]
     profile: Option<PathBuf>,
+    /// Coupler set-up to simulate with --scenario match (default: the bundled demo coupler)
+    #[arg(long, conflicts_with = "profile")]
+    coupler: Option<PathBuf>,
     /// Create a pseudo-terminal, print its path on the first line, and stream in real time
     #[arg(long, conflicts_with = "out")]
     pty: bool,
@@ -55,13 +60,7 @@ fn parse_seconds(text: &str) -> Result<f64, String> {
 const CHUNK_S: f64 = 0.01;
 
 pub fn run(args: Args) -> Result<(), Failure> {
-    let profile = match &args.profile {
-        Some(path) => dbtrail::profile::load_profile(path).bad_input()?,
-        None => {
-            dbtrail::profile::parse_profile(DEMO_PROFILE, "bundled demo profile").bad_input()?
-        }
-    };
-    let simulator = Simulator::new(&profile, args.scenario, args.rate, args.seed);
+    let simulator = bench(&args)?;
     let format = Format::from_name(&args.format).unwrap_or(Format::Ascii);
     if args.pty {
         return stream_to_pty(simulator, format, args.seconds);
@@ -88,11 +87,47 @@ pub fn run(args: Args) -> Result<(), Failure> {
     }
 }
 
-fn stream_to_pty(
-    simulator: Simulator,
-    format: Format,
-    seconds: Option<f64>,
-) -> Result<(), Failure> {
+/// The bench the options describe: the match bench on a coupler set-up for `match`, one
+/// detector on a profile for the others.
+fn bench(args: &Args) -> Result<SimBench, Failure> {
+    let scenario = args.scenario;
+    if scenario.needs_coupler() {
+        if args.profile.is_some() {
+            return Err(Failure::BadInput(anyhow::anyhow!(
+                "--profile describes one detector, but --scenario {} reads two on a coupler; \
+                 give --coupler FILE (a coupler set-up) instead, or leave both out for the \
+                 bundled demo coupler",
+                scenario.name()
+            )));
+        }
+        let coupler = load_coupler(args.coupler.as_deref())?;
+        return Ok(MatchBench::new(&coupler, args.rate, args.seed).into());
+    }
+    if args.coupler.is_some() {
+        return Err(Failure::BadInput(anyhow::anyhow!(
+            "--coupler is only for --scenario match (two detectors on a coupler); --scenario \
+             {} reads one detector: give --profile FILE instead",
+            scenario.name()
+        )));
+    }
+    let profile = match &args.profile {
+        Some(path) => dbtrail::profile::load_profile(path).bad_input()?,
+        None => {
+            dbtrail::profile::parse_profile(DEMO_PROFILE, "bundled demo profile").bad_input()?
+        }
+    };
+    Ok(Simulator::new(&profile, scenario, args.rate, args.seed).into())
+}
+
+/// The coupler set-up at `path`, or the bundled demo coupler.
+fn load_coupler(path: Option<&std::path::Path>) -> Result<Coupler, Failure> {
+    match path {
+        Some(path) => dbtrail::coupler::load_coupler(path).bad_input(),
+        None => DEMO_COUPLER.load().bad_input(),
+    }
+}
+
+fn stream_to_pty(simulator: SimBench, format: Format, seconds: Option<f64>) -> Result<(), Failure> {
     let (mut master, slave) = serialport::TTYPort::pair()
         .context("cannot create a pseudo-terminal")
         .runtime()?;
@@ -140,7 +175,7 @@ impl<W: Write> Write for DropOnTimeout<'_, W> {
 
 /// Writes samples in chunks of [`CHUNK_S`], paced to the wall clock when `realtime`.
 fn stream(
-    mut simulator: Simulator,
+    mut simulator: SimBench,
     format: Format,
     seconds: Option<f64>,
     realtime: bool,
@@ -153,19 +188,23 @@ fn stream(
     let mut written: u64 = 0;
     let mut seq: u16 = 0;
     let mut counts = Vec::new();
+    let mut frame: Vec<u16> = Vec::new();
+    let channels = simulator.channels();
     while total.is_none_or(|n| written < n) {
         buf.clear();
         let n = total.map_or(per_chunk, |n| per_chunk.min(n - written));
         counts.clear();
         let t0 = simulator.fill(n as usize, &mut counts);
         let t = t0 + (n.saturating_sub(1)) as f64 / simulator.rate_hz();
-        for &counts in &counts {
+        for sample in counts.chunks_exact(channels) {
             match format {
                 Format::Binary => {
-                    encode_binary(seq, &[counts.min(u32::from(u16::MAX)) as u16], &mut buf);
+                    frame.clear();
+                    frame.extend(sample.iter().map(|&c| c.min(u32::from(u16::MAX)) as u16));
+                    encode_binary(seq, &frame, &mut buf);
                     seq = seq.wrapping_add(1);
                 }
-                _ => encode_ascii(&[counts], &mut buf),
+                _ => encode_ascii(sample, &mut buf),
             }
             written += 1;
         }

@@ -4,11 +4,48 @@
 
 use std::path::PathBuf;
 
+use dbtrail::coupler::{coupler_from_texts, Coupler, CouplerError};
 use dbtrail::decode::Format;
 use dbtrail::sim::Scenario;
 
 /// The bundled profile the demo runs with when no `--profile` is given.
 pub const DEMO_PROFILE: &str = include_str!("../../profiles/demo-diode.toml");
+
+/// The bundled coupler set-up the `match` demo runs with when no `--coupler` is given,
+/// and the texts of the two arms' profiles it names.
+pub const DEMO_COUPLER: BundledCoupler = BundledCoupler {
+    setup: include_str!("../../profiles/demo-coupler.toml"),
+    profiles: &[
+        (
+            "demo-coupler-forward.toml",
+            include_str!("../../profiles/demo-coupler-forward.toml"),
+        ),
+        (
+            "demo-coupler-reflected.toml",
+            include_str!("../../profiles/demo-coupler-reflected.toml"),
+        ),
+    ],
+};
+
+/// A coupler set-up carried in the program: its text and its profiles' texts by name.
+pub struct BundledCoupler {
+    /// The set-up file's text.
+    pub setup: &'static str,
+    /// Each profile it names, with its text.
+    pub profiles: &'static [(&'static str, &'static str)],
+}
+
+impl BundledCoupler {
+    /// The set-up, validated with both profiles.
+    pub fn load(&self) -> Result<Coupler, CouplerError> {
+        coupler_from_texts(self.setup, "bundled demo coupler", |named| {
+            self.profiles
+                .iter()
+                .find(|(name, _)| *name == named)
+                .map(|(_, text)| *text)
+        })
+    }
+}
 
 #[derive(clap::Args, Debug)]
 #[group(required = true, multiple = false, id = "source")]
@@ -19,7 +56,7 @@ pub struct SourceArgs {
     /// A raw capture to replay (ASCII or binary)
     #[arg(long, group = "source")]
     pub replay: Option<PathBuf>,
-    /// Run the built-in simulator: soak, tune, sweep or overload
+    /// Run the built-in simulator: soak, tune, sweep, overload or match
     #[arg(long, group = "source", num_args = 0..=1, default_missing_value = "soak", value_parser = parse_scenario)]
     pub demo: Option<Scenario>,
 }
@@ -91,5 +128,33 @@ pub fn parse_rate(text: &str) -> Result<f64, String> {
             "`{text}` is out of range: a sample rate must lie between 0.001 and 10M samples/s"
         )),
         Err(e) => Err(format!("{e} (a sample rate such as 1000 or 10k)")),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dbtrail::coupler::load_coupler;
+
+    // Source: the files in profiles/ are what the bundled set-up must be; loading them from
+    // disk is the program's other way to the same coupler.
+    #[test]
+    fn the_bundled_coupler_is_the_one_its_files_load() {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/profiles/demo-coupler.toml");
+        let from_files = load_coupler(std::path::Path::new(path)).unwrap();
+        let bundled = DEMO_COUPLER.load().unwrap();
+        assert_eq!(
+            format!("{:?}", bundled.setup),
+            format!("{:?}", from_files.setup)
+        );
+        assert_eq!(
+            format!("{:?}", bundled.forward),
+            format!("{:?}", from_files.forward)
+        );
+        assert_eq!(
+            format!("{:?}", bundled.reflected),
+            format!("{:?}", from_files.reflected)
+        );
+        assert_ne!(bundled.forward.name, bundled.reflected.name);
     }
 }

@@ -3,7 +3,7 @@
 
 use dbtrail::decode::FlatCounts;
 use dbtrail::events::{Chunk, Event};
-use dbtrail::sim::Simulator;
+use dbtrail::sim::SimBench;
 
 use super::replay::pace;
 use super::{spawn, Running, WhenFull, WAITING_RING};
@@ -15,8 +15,8 @@ const PACED_CHUNK_S: f64 = 0.01;
 
 /// A simulated bench.
 pub struct SimSpec {
-    /// The model, ready to run.
-    pub simulator: Simulator,
+    /// The model, ready to run: one detector, or the match bench's two channels.
+    pub simulator: SimBench,
     /// Run as fast as possible instead of in real time.
     pub fast: bool,
     /// Stop after this much simulated time, seconds.
@@ -44,6 +44,7 @@ impl SimSpec {
             (rate * PACED_CHUNK_S).ceil().max(1.0) as usize
         };
         let total = self.until.map(|s| (s * rate).ceil() as u64);
+        let channels = self.simulator.channels();
         spawn(
             description,
             !self.fast,
@@ -54,8 +55,8 @@ impl SimSpec {
                 while total.is_none_or(|n| made < n) {
                     let n = total.map_or(per_chunk, |total| per_chunk.min((total - made) as usize));
                     let mut samples = FlatCounts {
-                        channels: 1,
-                        counts: Vec::with_capacity(n),
+                        channels,
+                        counts: Vec::with_capacity(n * channels),
                     };
                     let t0 = self.simulator.fill(n, &mut samples.counts);
                     let chunk = Chunk {
