@@ -101,3 +101,69 @@ fn a_missing_arm_profile_is_refused_naming_the_field_to_mend() {
         "{said}"
     );
 }
+
+// A coupler run takes its arms' offsets from the set-up file; a one-detector demo cannot
+// run a coupler set-up, nor the match demo one profile: each refused with exit 2 and what
+// to give instead, before any file is written.
+#[test]
+fn coupler_runs_refuse_what_does_not_fit_them() {
+    let dir = scratch("coupler-refusals");
+    let out_path = dir.path().join("never.csv");
+    let out = out_path.to_str().unwrap();
+    for (args, said) in [
+        (
+            vec!["--demo", "soak", "--coupler", "profiles/demo-coupler.toml"],
+            "a coupler set-up runs with --demo match",
+        ),
+        (
+            vec!["--demo", "match", "--profile", "profiles/demo-diode.toml"],
+            "give --coupler FILE instead of --profile",
+        ),
+        (
+            vec!["--demo", "match", "--offset", "3dB"],
+            "--offset does not apply to a coupler run",
+        ),
+    ] {
+        let run = output(
+            bin()
+                .args(["record", "--fast", "--duration", "1s", "--out", out])
+                .args(&args),
+        );
+        assert_eq!(run.status.code(), Some(2), "{args:?}");
+        let stderr = String::from_utf8_lossy(&run.stderr);
+        assert!(stderr.contains(said), "{args:?}: {stderr}");
+        assert!(!out_path.exists(), "{args:?} left a file");
+    }
+}
+
+// The match demo runs on the bundled set-up without files: its log names the set-up and
+// holds both arms and the match.
+#[test]
+fn the_match_demo_records_both_arms_on_the_bundled_set_up() {
+    let dir = scratch("coupler-demo");
+    let log = dir.path().join("demo.csv");
+    succeeded([
+        "record",
+        "--demo",
+        "match",
+        "--fast",
+        "--duration",
+        "3s",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    let text = std::fs::read_to_string(&log).unwrap();
+    assert!(
+        text.contains("# profile: coupler set-up demo coupler (bundled profiles/demo-coupler.toml)"),
+        "{text}"
+    );
+    let (header, rows) = rows(&log);
+    assert_eq!(rows.len(), 3);
+    let swr = column(&header, "swr");
+    for row in &rows {
+        let swr: f64 = row[swr].parse().unwrap();
+        // The bench's knob starts far from the match: SWR between 1 and 10 (common
+        // practice: a mistuned network on an antenna).
+        assert!((1.0..10.0).contains(&swr), "{row:?}");
+    }
+}

@@ -121,14 +121,10 @@ fn a_coupler_run_replayed_holds_the_truth_and_marks_every_edge_case() {
     let capture = dir.path().join("bench.txt");
     let truth = write_capture(&capture);
     let log = dir.path().join("match.csv");
-    if let Ok(keep) = std::env::var("KEEP_CAPTURE") {
-        std::fs::copy(&capture, keep).unwrap();
-    }
     record(&capture, &log, "0.5s");
     let (header, rows) = rows(&log);
     let col = |name: &str| column(&header, name);
-    let (rl, u, low, high, mark) = (
-        col("return_loss_db"),
+    let (u, low, high, mark) = (
         col("u_return_loss_db"),
         col("return_loss_low_db"),
         col("return_loss_high_db"),

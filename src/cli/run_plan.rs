@@ -12,15 +12,17 @@ use dbtrail::coupler::{load_coupler, profile_path, Coupler, CouplerCalibration, 
 use dbtrail::decode::Format;
 use dbtrail::profile::{parse_profile, parse_profile_bytes, read_profile_file, Profile};
 use dbtrail::record::RunContext;
-use dbtrail::sim::{Scenario, Simulator};
+use dbtrail::sim::matching::MatchBench;
+use dbtrail::sim::{Scenario, SimBench, Simulator};
 use dbtrail::uncertainty::Uncertainty;
 use sha2::{Digest, Sha256};
 
-use super::source_args::{LinkArgs, ReadingArgs, SourceArgs, DEMO_PROFILE};
+use super::source_args::{LinkArgs, ReadingArgs, SourceArgs, DEMO_COUPLER, DEMO_PROFILE};
 use super::{BadInput, Failure};
 use crate::source::{open_port, ReplaySpec, Running, SerialSpec, SimSpec};
 
 const DEMO_PROFILE_NAME: &str = "bundled profiles/demo-diode.toml";
+const DEMO_COUPLER_NAME: &str = "bundled profiles/demo-coupler.toml";
 
 /// Where the samples come from, with the link settings that source uses.
 #[derive(Debug, Clone, PartialEq)]
@@ -132,8 +134,8 @@ impl RunPlan {
     /// capture or a port starts first, its first samples waiting in the ring while the
     /// profile's model is fitted; the simulator needs the profile to start.
     pub fn start(&self, until: Option<f64>) -> Result<StartedRun, Failure> {
-        if let Some(path) = &self.coupler {
-            return self.start_coupled(path, until);
+        if self.is_coupled()? {
+            return self.start_coupled(until);
         }
         let (loaded, source) = match self.start_stream()? {
             Some(running) => (self.load()?, running),
@@ -154,35 +156,52 @@ impl RunPlan {
         })
     }
 
-    /// Starts a coupler run: both arms' profiles from the set-up in `path`, the powers at
-    /// its reference plane; the run's calibration and budget are the forward arm's.
-    fn start_coupled(&self, path: &Path, _until: Option<f64>) -> Result<StartedRun, Failure> {
+    /// Whether the run reads a coupler's two arms: `--coupler`, or the `match` demo
+    /// (on its bundled set-up); a scenario and a set-up that do not go together refused.
+    fn is_coupled(&self) -> Result<bool, Failure> {
+        let scenario = match &self.source {
+            SourcePlan::Demo { scenario, .. } => Some(*scenario),
+            _ => None,
+        };
+        match (scenario, &self.coupler, &self.profile) {
+            (Some(s), Some(_), _) if !s.needs_coupler() => Err(anyhow!(
+                "the {} demo simulates one detector; a coupler set-up runs with --demo match",
+                s.name()
+            ))
+            .bad_input(),
+            (Some(s), _, Some(_)) if s.needs_coupler() => Err(anyhow!(
+                "the match demo simulates a coupler with two detectors: give --coupler FILE \
+                 instead of --profile (or neither, for the bundled demo set-up)"
+            ))
+            .bad_input(),
+            (Some(s), _, _) => Ok(s.needs_coupler()),
+            (None, coupler, _) => Ok(coupler.is_some()),
+        }
+    }
+
+    /// Starts a coupler run: both arms' profiles from `--coupler`'s set-up (or the bundled
+    /// one for the demo), the powers at its reference plane; the run's calibration and
+    /// budget are the forward arm's.
+    fn start_coupled(&self, until: Option<f64>) -> Result<StartedRun, Failure> {
         if self.offset_db != 0.0 {
             return Err(anyhow!(
-                "--offset does not apply to a coupler run: the set-up file {} holds each \
-                 arm's coupling and the through-loss; change them there",
-                path.display()
+                "--offset does not apply to a coupler run: the set-up file holds each arm's \
+                 coupling and the through-loss; change them there"
             ))
             .bad_input();
         }
-        let source = match self.start_stream()? {
+        let stream = self.start_stream()?;
+        let (coupler, origin, bytes) = self.load_coupler()?;
+        let source = match stream {
             Some(running) => running,
-            None => {
-                return Err(anyhow!(
-                    "the simulator cannot run a coupler set-up yet; replay a two-channel \
-                     capture with --replay, or read a board with --port"
-                ))
-                .bad_input()
-            }
+            None => self.start_bench(MatchBench::new(&coupler, self.rate_hz, self.seed()), until),
         };
-        let coupler = load_coupler(path).bad_input()?;
-        let bytes = coupler_bytes(path, &coupler.setup).bad_input()?;
         let hz = self.freq_hz.unwrap_or(coupler.forward.reference_hz);
         let coupler_cal = CouplerCalibration::new(&coupler, hz);
         Ok(StartedRun {
             loaded: LoadedProfile {
                 profile: coupler.forward.clone(),
-                origin: path.display().to_string(),
+                origin,
                 bytes,
             },
             source,
@@ -254,22 +273,56 @@ impl RunPlan {
         }
     }
 
+    /// Loads `--coupler`'s set-up, or the bundled one; with where it came from and the
+    /// bytes a log's hash covers.
+    fn load_coupler(&self) -> Result<(Coupler, String, Vec<u8>), Failure> {
+        match &self.coupler {
+            Some(path) => {
+                let coupler = load_coupler(path).bad_input()?;
+                let bytes = coupler_bytes(path, &coupler.setup).bad_input()?;
+                Ok((coupler, path.display().to_string(), bytes))
+            }
+            None => {
+                let coupler = DEMO_COUPLER.load().bad_input()?;
+                let mut bytes = DEMO_COUPLER.setup.as_bytes().to_vec();
+                for (_, text) in DEMO_COUPLER.profiles {
+                    bytes.extend(text.as_bytes());
+                }
+                Ok((coupler, DEMO_COUPLER_NAME.into(), bytes))
+            }
+        }
+    }
+
+    /// The simulator's seed (the demo's).
+    fn seed(&self) -> u64 {
+        match self.source {
+            SourcePlan::Demo { seed, .. } => seed,
+            _ => 0,
+        }
+    }
+
     /// Starts the simulator made from `profile`; `until` bounds its run.
     fn start_simulator(&self, profile: &Profile, until: Option<f64>) -> Running {
         let SourcePlan::Demo {
-            scenario,
-            rate_hz,
-            fast,
-            seed,
+            scenario, rate_hz, ..
         } = self.source
         else {
             unreachable!("start_stream starts every source but the simulator")
         };
+        self.start_bench(
+            Simulator::new(profile, scenario, rate_hz, self.seed()),
+            until,
+        )
+    }
+
+    /// Starts a simulated bench; `until` bounds its run.
+    fn start_bench(&self, bench: impl Into<SimBench>, until: Option<f64>) -> Running {
+        let fast = matches!(self.source, SourcePlan::Demo { fast: true, .. });
         SimSpec {
-            simulator: Simulator::new(profile, scenario, rate_hz, seed).into(),
+            simulator: bench.into(),
             fast,
             until,
-            seed,
+            seed: self.seed(),
         }
         .start()
     }
