@@ -491,10 +491,14 @@ impl<W: Write> Recorder<W> {
             ]);
         }
         if self.coupled.is_some() {
-            row.extend(std::iter::repeat_n(
-                String::new(),
-                COUPLER_MATCH_COLUMNS.len(),
-            ));
+            // No reading, no match: the match cell says why, as the arms' flags do.
+            row.extend(COUPLER_MATCH_COLUMNS.iter().map(|&name| {
+                if name == "match" {
+                    cell.clone()
+                } else {
+                    String::new()
+                }
+            }));
         }
         self.write_row(row)
     }

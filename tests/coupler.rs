@@ -154,7 +154,9 @@ fn the_match_demo_records_both_arms_on_the_bundled_set_up() {
     ]);
     let text = std::fs::read_to_string(&log).unwrap();
     assert!(
-        text.contains("# profile: coupler set-up demo coupler (bundled profiles/demo-coupler.toml)"),
+        text.contains(
+            "# profile: coupler set-up demo coupler (bundled profiles/demo-coupler.toml)"
+        ),
         "{text}"
     );
     let (header, rows) = rows(&log);

@@ -34,6 +34,14 @@ pub const OVER_SWR_LIMIT: &str = "over-swr-limit";
 /// The mark of a row whose reflected power is above the set-up's `reflected_max_dbm`.
 pub const OVER_REFLECTED_LIMIT: &str = "over-reflected-limit";
 
+/// The `match` cell of a row in which the forward arm had no sample at all (a gap).
+pub const NO_SAMPLES: &str = "gap";
+
+/// Whether an arm's figures come from no sample at all.
+fn no_samples(figures: &Figures) -> bool {
+    figures.averaged == 0 && figures.mean_w.is_none()
+}
+
 /// The prefixes of the forward and the reflected arm's columns.
 const ARM_PREFIXES: [&str; 2] = ["fwd_", "ref_"];
 
@@ -86,7 +94,7 @@ impl Coupled {
             arm_power(reflected, &self.budgets[1]),
             self.leakage,
         );
-        self.cells(&m, reflected)
+        self.cells(&m, forward, reflected)
     }
 
     /// The match cells of one sample of each arm (no noise is known: no uncertainty).
@@ -110,7 +118,7 @@ impl Coupled {
         }
     }
 
-    fn cells(&self, m: &MatchInterval, reflected: &Figures) -> Vec<String> {
+    fn cells(&self, m: &MatchInterval, forward: &Figures, reflected: &Figures) -> Vec<String> {
         let fixed = |v: Option<f64>, digits: usize| {
             v.map_or(String::new(), |v| {
                 if v.is_infinite() {
@@ -128,7 +136,7 @@ impl Coupled {
             fixed(figures.map(|f| f.swr), 4),
             fixed(figures.map(|f| f.return_loss_db), 4),
             fixed(figures.map(|f| f.mismatch_loss_db), 4),
-            self.marks(m, reflected).join("|"),
+            self.marks(m, forward, reflected).join("|"),
             fixed(m.u_return_loss_db, 4),
             fixed(range.map(|r| r.0), 4),
             fixed(range.map(|r| r.1), 4),
@@ -136,7 +144,16 @@ impl Coupled {
     }
 
     /// The `match` cell: the state's flag, then any limit the row is over.
-    fn marks(&self, m: &MatchInterval, reflected: &Figures) -> Vec<&'static str> {
+    fn marks(
+        &self,
+        m: &MatchInterval,
+        forward: &Figures,
+        reflected: &Figures,
+    ) -> Vec<&'static str> {
+        if m.state == MatchState::NoForward && no_samples(forward) {
+            // Nothing came: a gap, which the arms' flags say, not a carrier too weak.
+            return vec![NO_SAMPLES];
+        }
         let mut marks: Vec<&'static str> = Vec::new();
         if m.state != MatchState::Value {
             marks.push(m.state.flag());
@@ -250,4 +267,117 @@ pub fn coupler_header(per_sample: bool) -> Vec<String> {
     }
     names.extend(COUPLER_MATCH_COLUMNS.iter().map(|n| n.to_string()));
     names
+}
+
+#[cfg(test)]
+mod tests {
+    use std::path::Path;
+    use std::time::{Duration, SystemTime};
+
+    use super::*;
+    use crate::coupler::load_coupler;
+    use crate::events::Event;
+    use crate::record::{Opening, Recorder};
+
+    fn recorder(every: f64) -> (Recorder<Vec<u8>>, CouplerCalibration) {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/profiles/demo-coupler.toml");
+        let coupler = load_coupler(Path::new(path)).unwrap();
+        let cal = CouplerCalibration::new(&coupler, 146e6);
+        let context = RunContext {
+            tool: "dbtrail test".into(),
+            profile: "demo coupler".into(),
+            profile_hash: "0".into(),
+            started: SystemTime::UNIX_EPOCH,
+            source: "test".into(),
+            every: Duration::from_secs_f64(every),
+        };
+        let recorder = Recorder::for_coupler(
+            Vec::new(),
+            cal.clone(),
+            &coupler.setup,
+            &context,
+            Opening::Fresh,
+        )
+        .unwrap();
+        (recorder, cal)
+    }
+
+    /// The rows as cells by column name.
+    fn rows(r: Recorder<Vec<u8>>) -> Vec<std::collections::HashMap<String, String>> {
+        let text = String::from_utf8(r.out.into_inner().unwrap()).unwrap();
+        let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+        let header: Vec<String> = lines.next().unwrap().split(',').map(String::from).collect();
+        lines
+            .map(|l| {
+                header
+                    .iter()
+                    .cloned()
+                    .zip(l.split(',').map(String::from))
+                    .collect()
+            })
+            .collect()
+    }
+
+    fn frame(cal: &CouplerCalibration, forward_dbm: f64, reflected_dbm: f64) -> [u32; 2] {
+        [
+            cal.forward.counts_for(forward_dbm).round() as u32,
+            cal.reflected.counts_for(reflected_dbm).round() as u32,
+        ]
+    }
+
+    // An interval in which nothing came is a gap: the match says so, not "no forward".
+    #[test]
+    fn a_silent_interval_is_a_gap_not_a_missing_carrier() {
+        let (mut r, cal) = recorder(1.0);
+        let counts = frame(&cal, 40.0, 25.0);
+        r.handle(&Event::sample(0.1, &counts)).unwrap();
+        r.handle(&Event::sample(2.1, &counts)).unwrap();
+        r.finish(2.5).unwrap();
+        let rows = rows(r);
+        assert_eq!(rows.len(), 3);
+        assert_eq!(rows[0]["match"], "");
+        assert_eq!(rows[1]["match"], NO_SAMPLES);
+        assert_eq!(rows[1]["fwd_flags"], "gap");
+        assert_eq!(rows[1]["swr"], "");
+        assert_eq!(rows[2]["match"], "");
+    }
+
+    // Source: the standard relations (SWR = (1 + |Γ|)/(1 − |Γ|), |Γ| = √(Pr/Pf); Pozar,
+    // Microwave Engineering, from memory): 10 W forward and 1 W reflected at the plane
+    // is |Γ| 0.3162, SWR 1.925, return loss 10 dB, 9 W net.
+    #[test]
+    fn one_sample_of_each_arm_gives_its_match_per_sample() {
+        let (mut r, cal) = recorder(0.0);
+        r.handle(&Event::sample(0.0, &frame(&cal, 40.0, 30.0)))
+            .unwrap();
+        r.handle(&Event::LinkDown { t: 0.5 }).unwrap();
+        r.finish(1.0).unwrap();
+        let rows = rows(r);
+        let number = |cell: &str| cell.parse::<f64>().unwrap();
+        let row = &rows[0];
+        // A count is worth under 0.02 dB on either arm at these levels.
+        assert!(
+            (number(&row["return_loss_db"]) - 10.0).abs() < 0.05,
+            "{row:?}"
+        );
+        assert!((number(&row["gamma"]) - 0.3162).abs() < 0.002, "{row:?}");
+        assert!((number(&row["swr"]) - 1.925).abs() < 0.01, "{row:?}");
+        assert!((number(&row["net_w"]) - 9.0).abs() < 0.06, "{row:?}");
+        assert_eq!(row["u_return_loss_db"], "", "one sample shows no noise");
+        assert_eq!(rows[1]["match"], "gap", "{:?}", rows[1]);
+    }
+
+    #[test]
+    fn a_stream_without_the_reflected_channel_is_refused() {
+        let (mut r, _) = recorder(1.0);
+        let error = r.handle(&Event::sample(0.0, &[1000])).unwrap_err();
+        let inner = error.get_ref().unwrap().downcast_ref::<CouplerChannels>();
+        assert_eq!(
+            inner,
+            Some(&CouplerChannels {
+                needs: 2,
+                stream: 1
+            })
+        );
+    }
 }
