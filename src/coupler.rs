@@ -327,16 +327,28 @@ pub fn load_coupler(path: &Path) -> Result<Coupler, CouplerError> {
     let bytes = read_setup_file(path, &COUPLER_FILE)?;
     let setup = parse_coupler(setup_text(&bytes, &COUPLER_FILE, &origin)?, &origin)?;
     let folder = path.parent().unwrap_or(Path::new(""));
-    let load = |arm: &'static str, named: &str| {
-        load_profile(&profile_path(folder, named)).map_err(|source| CouplerError::Profile {
+    with_profiles(setup, &origin, |named| {
+        load_profile(&profile_path(folder, named))
+    })
+}
+
+/// The set-up with both arms' profiles, each got by `profile` from the name the set-up
+/// gives it; a failure names the arm and the set-up.
+fn with_profiles(
+    setup: CouplerSetup,
+    origin: &str,
+    profile: impl Fn(&str) -> Result<Profile, ProfileError>,
+) -> Result<Coupler, CouplerError> {
+    let arm = |arm: &'static str, named: &str| {
+        profile(named).map_err(|source| CouplerError::Profile {
             arm,
-            origin: origin.clone(),
+            origin: origin.to_string(),
             source,
         })
     };
     Ok(Coupler {
-        forward: load("forward", &setup.forward.profile)?,
-        reflected: load("reflected", &setup.reflected.profile)?,
+        forward: arm("forward", &setup.forward.profile)?,
+        reflected: arm("reflected", &setup.reflected.profile)?,
         setup,
     })
 }
@@ -350,31 +362,16 @@ pub fn coupler_from_texts<'t>(
     profile_text: impl Fn(&str) -> Option<&'t str>,
 ) -> Result<Coupler, CouplerError> {
     let setup = parse_coupler(setup_text, origin)?;
-    let parse = |arm: &'static str, named: &str| {
-        let source = match profile_text(named) {
-            Some(text) => match parse_profile(text, named) {
-                Ok(profile) => return Ok(profile),
-                Err(invalid) => invalid,
-            },
-            None => ProfileError::Io {
-                kind: &PROFILE_FILE,
-                path: named.to_string(),
-                source: std::io::Error::new(
-                    std::io::ErrorKind::NotFound,
-                    "no such profile is given with the set-up",
-                ),
-            },
-        };
-        Err(CouplerError::Profile {
-            arm,
-            origin: origin.to_string(),
-            source,
-        })
-    };
-    Ok(Coupler {
-        forward: parse("forward", &setup.forward.profile)?,
-        reflected: parse("reflected", &setup.reflected.profile)?,
-        setup,
+    with_profiles(setup, origin, |named| match profile_text(named) {
+        Some(text) => parse_profile(text, named),
+        None => Err(ProfileError::Io {
+            kind: &PROFILE_FILE,
+            path: named.to_string(),
+            source: std::io::Error::new(
+                std::io::ErrorKind::NotFound,
+                "no such profile is given with the set-up",
+            ),
+        }),
     })
 }
 
