@@ -23,7 +23,7 @@ use crate::tui::noise::NOISE_MIN_COUNTS;
 /// one dB more at 100 MHz; limits −5 dBm at the detector, +20 dBm at the reference plane.
 const HAND_PROFILE: &str = include_str!("../../../tests/profiles/good/hand-logamp.toml");
 
-fn app() -> App {
+pub(super) fn app() -> App {
     let profile = parse_profile(HAND_PROFILE, "hand.toml").unwrap();
     App::new(Arc::new(profile), None, 0.0, "test bench".into())
 }
@@ -32,7 +32,7 @@ fn sample(app: &mut App, t: f64, counts: u32) -> Vec<Command> {
     app.update(AppEvent::Samples(vec![Event::sample(t, &[counts])]))
 }
 
-fn keys(app: &mut App, text: &str) -> Vec<Command> {
+pub(super) fn keys(app: &mut App, text: &str) -> Vec<Command> {
     let mut commands = Vec::new();
     for c in text.chars() {
         let code = match c {
@@ -45,7 +45,7 @@ fn keys(app: &mut App, text: &str) -> Vec<Command> {
     commands
 }
 
-fn screen(app: &App, width: u16, height: u16) -> Vec<String> {
+pub(super) fn screen(app: &App, width: u16, height: u16) -> Vec<String> {
     let mut terminal = Terminal::new(TestBackend::new(width, height)).unwrap();
     terminal.draw(|frame| draw(app, frame)).unwrap();
     let buffer = terminal.backend().buffer();
