@@ -601,7 +601,8 @@ impl App {
                 Event::Lost { .. } | Event::Rejected { .. } => {}
             }
         }
-        if let Some(run) = self.coupled.as_mut() {
+        let sampled = events.iter().any(|e| matches!(e, Event::Samples(_)));
+        if let Some(run) = self.coupled.as_mut().filter(|_| sampled) {
             run.refresh(self.now);
         }
         let raised = self.active_warnings().difference(before);

@@ -61,15 +61,18 @@ pub struct OverLimits {
     pub reflected: bool,
 }
 
-/// Both arms' counts over the averaging window.
+/// Both arms' counts over the averaging window, and when its first sample came.
 #[derive(Debug, Clone)]
-enum PairWindow {
+struct PairWindow {
+    held: PairsHeld,
+    first_t: Option<f64>,
+}
+
+/// What a [`PairWindow`] keeps.
+#[derive(Debug, Clone)]
+enum PairsHeld {
     /// Off (the last pair) or by count: the codes themselves, tallied when asked.
-    Last {
-        keep: usize,
-        forward: VecDeque<u32>,
-        reflected: VecDeque<u32>,
-    },
+    Last(LastPairs),
     /// By time: each slice's tallies of both arms, [`AVERAGE_BUCKETS`] slices as the
     /// power view's average keeps them.
     Slices {
@@ -80,36 +83,26 @@ enum PairWindow {
 
 impl PairWindow {
     fn new(mode: Averaging) -> Self {
-        let last = |keep: usize| PairWindow::Last {
-            keep: keep.max(1),
-            forward: VecDeque::new(),
-            reflected: VecDeque::new(),
-        };
-        match mode {
+        let last = |keep: usize| PairsHeld::Last(LastPairs::new(keep));
+        let held = match mode {
             Averaging::Off => last(1),
             Averaging::Samples(n) => last(n),
-            Averaging::Seconds(s) => PairWindow::Slices {
+            Averaging::Seconds(s) => PairsHeld::Slices {
                 width_s: s / AVERAGE_BUCKETS as f64,
                 slices: VecDeque::new(),
             },
+        };
+        PairWindow {
+            held,
+            first_t: None,
         }
     }
 
     fn push(&mut self, t: f64, codes: (u32, u32), cal: &CouplerCalibration) {
-        match self {
-            PairWindow::Last {
-                keep,
-                forward,
-                reflected,
-            } => {
-                forward.push_back(codes.0);
-                reflected.push_back(codes.1);
-                while forward.len() > *keep {
-                    forward.pop_front();
-                    reflected.pop_front();
-                }
-            }
-            PairWindow::Slices { width_s, slices } => {
+        self.first_t.get_or_insert(t);
+        match &mut self.held {
+            PairsHeld::Last(last) => last.push(codes, cal),
+            PairsHeld::Slices { width_s, slices } => {
                 let index = (t / *width_s).floor() as i64;
                 match slices.back_mut() {
                     Some((last, _, _)) if *last > index => return,
@@ -133,18 +126,9 @@ impl PairWindow {
     /// Each arm's tally over the window, counted as a log's interval counts it.
     fn tallies(&self, cal: &CouplerCalibration) -> (PowerStats, PowerStats) {
         let (mut f, mut r) = (PowerStats::default(), PowerStats::default());
-        match self {
-            PairWindow::Last {
-                forward, reflected, ..
-            } => {
-                for part in [forward.as_slices().0, forward.as_slices().1] {
-                    f.add_codes(&cal.forward, part);
-                }
-                for part in [reflected.as_slices().0, reflected.as_slices().1] {
-                    r.add_codes(&cal.reflected, part);
-                }
-            }
-            PairWindow::Slices { slices, .. } => {
+        match &self.held {
+            PairsHeld::Last(last) => (f, r) = last.tallies(cal),
+            PairsHeld::Slices { slices, .. } => {
                 for (_, sf, sr) in slices {
                     f.merge(sf);
                     r.merge(sr);
@@ -154,26 +138,108 @@ impl PairWindow {
         (f, r)
     }
 
-    /// True when the window holds all it is meant to.
+    /// True when the window holds all it is meant to: as many pairs as it keeps, or
+    /// samples from its whole time.
     fn is_full(&self, now: f64) -> bool {
-        match self {
-            PairWindow::Last { keep, forward, .. } => forward.len() >= *keep,
-            PairWindow::Slices { width_s, slices } => {
-                slices.front().is_some_and(|(first, _, _)| {
-                    now - *first as f64 * width_s >= width_s * AVERAGE_BUCKETS as f64
-                })
-            }
+        match &self.held {
+            PairsHeld::Last(last) => last.codes.len() >= last.keep,
+            PairsHeld::Slices { width_s, .. } => self
+                .first_t
+                .is_some_and(|t0| now - t0 >= width_s * AVERAGE_BUCKETS as f64),
         }
     }
 
     /// Moves each arm's levels (the frequency changed); codes kept as codes need nothing.
     fn shift_db(&mut self, forward_db: f64, reflected_db: f64) {
-        if let PairWindow::Slices { slices, .. } = self {
-            for (_, f, r) in slices {
-                f.shift_db(forward_db);
-                r.shift_db(reflected_db);
-            }
+        let tallies = match &mut self.held {
+            PairsHeld::Slices { slices, .. } => slices.iter_mut(),
+            PairsHeld::Last(last) => last.blocks.iter_mut(),
+        };
+        for (_, f, r) in tallies {
+            f.shift_db(forward_db);
+            r.shift_db(reflected_db);
         }
+    }
+}
+
+/// Pairs are tallied in blocks of this many as they come, so that the tally of a long
+/// window is its blocks' merged and the codes of at most one block tallied afresh.
+const BLOCK: u64 = 1024;
+
+/// The last few pairs of codes, and the tallies of the blocks they fall in.
+#[derive(Debug, Clone)]
+struct LastPairs {
+    keep: usize,
+    codes: VecDeque<(u32, u32)>,
+    /// Pairs pushed since the window started; pair i falls in block i / [`BLOCK`].
+    pushed: u64,
+    /// Each block's tallies of both arms, oldest first, the newest still filling.
+    blocks: VecDeque<(i64, PowerStats, PowerStats)>,
+}
+
+impl LastPairs {
+    fn new(keep: usize) -> Self {
+        LastPairs {
+            keep: keep.max(1),
+            codes: VecDeque::new(),
+            pushed: 0,
+            blocks: VecDeque::new(),
+        }
+    }
+
+    fn push(&mut self, codes: (u32, u32), cal: &CouplerCalibration) {
+        let block = (self.pushed / BLOCK) as i64;
+        self.pushed += 1;
+        self.codes.push_back(codes);
+        if self.codes.len() > self.keep {
+            self.codes.pop_front();
+        }
+        if self.blocks.back().is_none_or(|(b, _, _)| *b != block) {
+            let empty = PowerStats::default();
+            self.blocks.push_back((block, empty, empty));
+        }
+        if let Some((_, f, r)) = self.blocks.back_mut() {
+            f.add_code(&cal.forward, codes.0);
+            r.add_code(&cal.reflected, codes.1);
+        }
+        let first_block = (self.start() / BLOCK) as i64;
+        while self
+            .blocks
+            .front()
+            .is_some_and(|(b, _, _)| *b < first_block)
+        {
+            self.blocks.pop_front();
+        }
+    }
+
+    /// The index of the window's oldest pair.
+    fn start(&self) -> u64 {
+        self.pushed - self.codes.len() as u64
+    }
+
+    /// Both arms' tallies over the window: the pairs of its first block that are in it
+    /// tallied afresh (all of that block when the window starts on its edge), then the
+    /// later blocks' tallies merged in order.
+    fn tallies(&self, cal: &CouplerCalibration) -> (PowerStats, PowerStats) {
+        let (mut f, mut r) = (PowerStats::default(), PowerStats::default());
+        let start = self.start();
+        let first_block = start / BLOCK;
+        let mut later = self.blocks.iter().peekable();
+        if !start.is_multiple_of(BLOCK) {
+            let head = ((first_block + 1) * BLOCK - start) as usize;
+            let (fwd, refl): (Vec<u32>, Vec<u32>) = self.codes.iter().take(head).copied().unzip();
+            f.add_codes(&cal.forward, &fwd);
+            r.add_codes(&cal.reflected, &refl);
+            while later
+                .next_if(|(b, _, _)| *b == first_block as i64)
+                .is_some()
+            {}
+        }
+        for (_, bf, br) in later {
+            f.merge(bf);
+            r.merge(br);
+        }
+        (f, r)
     }
 }
 
@@ -384,5 +450,65 @@ fn return_loss_reading(db: f64) -> Reading {
         detector_dbm: db,
         dbm: db,
         flags: Flags::empty(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use std::path::Path;
+
+    use dbtrail::coupler::load_coupler;
+
+    use super::*;
+
+    fn demo() -> CouplerCalibration {
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("profiles/demo-coupler.toml");
+        CouplerCalibration::new(&load_coupler(&path).unwrap(), 145e6)
+    }
+
+    /// Codes that wander over both detectors' spans and past them.
+    fn code(i: u32, arm: u32) -> u32 {
+        (i * 37 + arm * 1001) % 4096
+    }
+
+    // The block tallies are a shortcut: whatever the window's length and where it falls
+    // on the blocks, they must agree with tallying the window's codes one by one, as a
+    // log's interval counts them (`PowerStats::add_code`).
+    #[test]
+    fn a_window_tallied_by_blocks_agrees_with_its_codes_tallied_one_by_one() {
+        let cal = demo();
+        for (keep, pushed) in [
+            (16, 10),
+            (16, 5000),
+            (1024, 3072),
+            (1500, 4000),
+            (3000, 2999),
+        ] {
+            let mut window = LastPairs::new(keep);
+            for i in 0..pushed {
+                window.push((code(i, 0), code(i, 1)), &cal);
+            }
+            let (f, r) = window.tallies(&cal);
+            let first = pushed.saturating_sub(keep as u32);
+            let (mut f1, mut r1) = (PowerStats::default(), PowerStats::default());
+            for i in first..pushed {
+                f1.add_code(&cal.forward, code(i, 0));
+                r1.add_code(&cal.reflected, code(i, 1));
+            }
+            for (by_blocks, one_by_one) in [(f, f1), (r, r1)] {
+                let (a, b) = (by_blocks.totals, one_by_one.totals);
+                assert_eq!(
+                    (a.samples, a.valid, a.at_least, a.at_most),
+                    (b.samples, b.valid, b.at_least, b.at_most),
+                    "{keep} of {pushed}"
+                );
+                assert!(
+                    (a.sum_w - b.sum_w).abs() <= 1e-12 * b.sum_w,
+                    "{keep} of {pushed}"
+                );
+                assert_eq!(by_blocks.moments.n, one_by_one.moments.n);
+            }
+            assert!(window.blocks.len() as u64 <= keep as u64 / BLOCK + 2);
+        }
     }
 }

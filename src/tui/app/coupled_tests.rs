@@ -414,3 +414,41 @@ fn the_matching_view_at_80_by_24_and_100_by_30() {
         }
     }
 }
+
+// A window by time keeps its tallies in slices, moved by each arm's own change when the
+// frequency changes: the match must read as one started at the new frequency would.
+#[test]
+fn a_time_window_after_a_new_frequency_reads_as_one_started_there() {
+    let two_seconds = |hz: f64| {
+        let mut app = App::coupled(Arc::new(demo_coupler()), hz, "bench".into());
+        keys(&mut app, "a2s\n");
+        app
+    };
+    let mut app = two_seconds(FREQ_HZ);
+    let counts = counts_for(&app, 40.0, 26.0);
+    let feed = |app: &mut App| {
+        for i in 0..30 {
+            let t = f64::from(i) * 0.05;
+            app.update(AppEvent::Samples(vec![Event::sample(t, &counts)]));
+            app.update(AppEvent::Tick { now: t });
+        }
+    };
+    feed(&mut app);
+    assert_eq!(
+        app.coupled.as_ref().unwrap().best_db(),
+        None,
+        "1.5 s of a 2 s window is not a full one"
+    );
+    keys(&mut app, "f435MHz\n");
+    let mut there = two_seconds(435e6);
+    feed(&mut there);
+    let (moved, fresh) = (live(&app).interval, live(&there).interval);
+    assert_eq!(moved.state, fresh.state);
+    let rl = |m: dbtrail::matching::MatchInterval| m.figures.unwrap().return_loss_db;
+    assert!((rl(moved) - rl(fresh)).abs() < 1e-9, "{moved:?} {fresh:?}");
+    steady(&mut app, 1.5, 1.0, 40.0, 26.0);
+    assert!(
+        app.coupled.as_ref().unwrap().best_db().is_some(),
+        "full after 2 s"
+    );
+}

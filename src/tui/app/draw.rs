@@ -514,14 +514,7 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
             // A bound's phrase says it is one; the reason matters more than the marker.
             text = format!(" {unit}{frozen}");
         }
-        let row = Rect {
-            y: area.y + area.height.saturating_sub(1) / 2,
-            height: 1,
-            ..area
-        };
-        Paragraph::new(text.trim_end().to_string())
-            .style(style)
-            .render(row, buf);
+        one_line_reading(&text, style, area, buf);
         return;
     }
     let width = digits::render(&number, area.x + 2, area.y, style, buf);
@@ -540,6 +533,19 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         ..unit_row
     };
     beside_digits(app, &beside, side, buf);
+}
+
+/// A reading in one line of text, in the middle row of the room the large digits would
+/// take: on a small screen, or for a phrase.
+fn one_line_reading(text: &str, style: Style, area: Rect, buf: &mut Buffer) {
+    let row = Rect {
+        y: area.y + area.height.saturating_sub(1) / 2,
+        height: 1,
+        ..area
+    };
+    Paragraph::new(text.trim_end().to_string())
+        .style(style)
+        .render(row, buf);
 }
 
 /// Why no more samples come ("ended" for a finished replay, "no signal" while the

@@ -13,7 +13,8 @@ use dbtrail::stats::{Bound, Figures};
 use dbtrail::units::Si;
 
 use super::{
-    bar_position, draw_chart, no_new_samples, paint, plusminus_db, reading_style, Chart, HOLD_MARK,
+    bar_position, draw_chart, no_new_samples, one_line_reading, paint, plusminus_db, reading_style,
+    Chart, HOLD_MARK,
 };
 use crate::tui::app::coupled::{BigFigure, CoupledRun, MatchNow};
 use crate::tui::app::{App, TREND_WINDOWS};
@@ -127,9 +128,10 @@ fn other_figure(run: &CoupledRun, shown: &MatchNow) -> String {
     let Some(m) = interval.figures else {
         return String::new();
     };
-    let plusminus = match interval.u_return_loss_db {
-        Some(u) => format!("{} · k = {COVERAGE_K}, about 95 %", plusminus_db(u)),
-        None => return "a bound, no ±".into(),
+    let plusminus = match (interval.u_return_loss_db, interval.state) {
+        (Some(u), _) => format!("{} · k = {COVERAGE_K}, about 95 %", plusminus_db(u)),
+        (None, MatchState::Value) => "(no ±: too few samples in the window for their noise)".into(),
+        (None, _) => return "a bound, no ±".into(),
     };
     match run.big {
         BigFigure::Swr => format!("return loss {:.2} dB {plusminus}", m.return_loss_db),
@@ -166,14 +168,7 @@ fn big_figure(
     let Some((number, unit)) = big.clone().filter(|_| full) else {
         let figure = big.map(|(n, u)| format!("{n} {u} · ")).unwrap_or_default();
         let text = format!(" {figure}{other} {words}{marker}");
-        let row = Rect {
-            y: area.y + area.height.saturating_sub(1) / 2,
-            height: 1,
-            ..area
-        };
-        Paragraph::new(text.trim_end().to_string())
-            .style(style)
-            .render(row, buf);
+        one_line_reading(&text, style, area, buf);
         return;
     };
     let width = digits::render(&number, area.x + 2, area.y, style, buf);
