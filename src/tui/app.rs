@@ -638,6 +638,9 @@ impl App {
                 Some(run) => match run.codes(counts) {
                     Some(codes) => {
                         run.push(t, codes);
+                        // The reflected detector has its ratings and its clip too.
+                        let reflected = run.cal.reflected.reading_code(codes.1).flags;
+                        self.raise_warnings(reflected, t);
                         self.sample(t, codes.0);
                     }
                     None => {
@@ -669,13 +672,7 @@ impl App {
             // A damaged sample raises its warning but is neither shown nor averaged.
             self.last = Some(reading);
         }
-        let alarms = reading.flags & ALARMS;
-        for flag in alarms.iter() {
-            match self.warnings.iter_mut().find(|(f, _)| *f == flag) {
-                Some(entry) => entry.1 = t,
-                None => self.warnings.push((flag, t)),
-            }
-        }
+        self.raise_warnings(reading.flags, t);
         if reading
             .flags
             .intersects(Flags::BELOW_SPAN | Flags::ADC_CLIP)
@@ -701,6 +698,16 @@ impl App {
             self.holds.add(&reading);
             for trend in &mut self.trends {
                 trend.push(t, &reading);
+            }
+        }
+    }
+
+    /// Raises (or holds up) the warnings of a reading's alarm flags, at `t`.
+    fn raise_warnings(&mut self, flags: Flags, t: f64) {
+        for flag in (flags & ALARMS).iter() {
+            match self.warnings.iter_mut().find(|(f, _)| *f == flag) {
+                Some(entry) => entry.1 = t,
+                None => self.warnings.push((flag, t)),
             }
         }
     }

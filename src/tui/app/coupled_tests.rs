@@ -452,3 +452,80 @@ fn a_time_window_after_a_new_frequency_reads_as_one_started_there() {
         "full after 2 s"
     );
 }
+
+// Source: the demo reflected detector's safe input, +15 dBm at the detector
+// (profiles/demo-coupler-reflected.toml), is +45 dBm on the line through its 30 dB arm:
+// +46 dBm reflected is over it, whatever the forward arm reads.
+#[test]
+fn the_reflected_detector_over_its_safe_input_warns_as_the_forward_one_would() {
+    let mut app = coupled_app();
+    let commands = steady(&mut app, 0.0, 0.5, 50.0, 46.0);
+    assert_eq!(commands, [Command::Bell]);
+    let lines = screen(&app, 100, 30);
+    assert!(lines[1].contains("OVER DETECTOR SAFE INPUT"), "{lines:#?}");
+}
+
+#[test]
+fn the_key_bar_of_a_coupler_run_offers_the_matching_key_and_no_offset() {
+    let mut app = coupled_app();
+    pair(&mut app, 0.0, 40.0, 26.0);
+    for view in ["", "m"] {
+        keys(&mut app, view);
+        for (width, height) in [(80, 24), (100, 30)] {
+            let lines = screen(&app, width, height);
+            let bar: Vec<&str> = lines[usize::from(height) - 2..]
+                .iter()
+                .flat_map(|l| l.split(" · "))
+                .map(str::trim)
+                .collect();
+            let (m, u) = if view.is_empty() {
+                ("m match", "u units")
+            } else {
+                ("m power", "u SWR/RL")
+            };
+            assert!(bar.contains(&m) && bar.contains(&u), "{lines:#?}");
+            assert!(!bar.contains(&"o offset"), "{lines:#?}");
+        }
+    }
+}
+
+// Source: the standard relations (as above): reflected power falling 2 dB a second
+// at steady forward is return loss rising 2 dB a second, a match getting better.
+#[test]
+fn a_falling_reflected_power_is_a_match_getting_better() {
+    let mut app = coupled_app();
+    keys(&mut app, "aoff\n");
+    for i in 0..60 {
+        let t = f64::from(i) * 0.05;
+        pair(&mut app, t, 40.0, 26.0 - 2.0 * t);
+        app.update(AppEvent::Tick { now: t });
+    }
+    keys(&mut app, "m");
+    let change = app
+        .coupled
+        .as_ref()
+        .unwrap()
+        .change_over_last_second(app.now);
+    // The ADC's counts make each reading good to a few hundredths of a dB.
+    assert!((change.unwrap() - 2.0).abs() < 0.1, "{change:?}");
+    let lines = screen(&app, 100, 30);
+    assert!(words(&lines).contains("getting better +2."), "{lines:#?}");
+}
+
+#[test]
+fn the_freeze_key_holds_the_match_while_samples_go_on() {
+    let mut app = coupled_app();
+    steady(&mut app, 0.0, 1.0, 40.0, reflected_for_swr(40.0, 1.5));
+    keys(&mut app, "m ");
+    steady(&mut app, 1.0, 1.0, 40.0, reflected_for_swr(40.0, 3.0));
+    let run = app.coupled.as_ref().unwrap();
+    let held = run.shown().unwrap().interval.figures.unwrap().swr;
+    let live = run.live().unwrap().interval.figures.unwrap().swr;
+    assert!(
+        (held - 1.5).abs() < 0.01 && (live - 3.0).abs() < 0.02,
+        "{held} {live}"
+    );
+    assert!(words(&screen(&app, 100, 30)).contains("[frozen]"));
+    keys(&mut app, " ");
+    assert!(app.coupled.as_ref().unwrap().frozen.is_none());
+}

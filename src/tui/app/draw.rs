@@ -243,7 +243,11 @@ fn warnings_now(app: &App) -> Vec<&'static Warning> {
     if app.is_rejecting() {
         list.push(&REJECTING);
     }
-    if app.cal.fixed_flags().contains(Flags::FREQ_OUTSIDE) {
+    let reflected_off_table = app.coupled.as_ref().is_some_and(|run| {
+        let flags = run.cal.reflected.fixed_flags();
+        flags.contains(Flags::FREQ_OUTSIDE)
+    });
+    if app.cal.fixed_flags().contains(Flags::FREQ_OUTSIDE) || reflected_off_table {
         list.push(&OFF_TABLE);
     }
     list
