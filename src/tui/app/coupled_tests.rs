@@ -12,7 +12,7 @@ use dbtrail::events::Event;
 use dbtrail::matching::{return_loss_db, swr, MatchState};
 
 use super::coupled::{BigFigure, MatchNow};
-use super::tests::{keys, screen};
+use super::tests::{key_bar, keys, screen};
 use super::{App, AppEvent, Command, Mode, Shown, Units, View, COUPLER_OFFSET_REFUSED, NO_COUPLER};
 
 /// The demo set-up at 145 MHz: forward reads +13.4 to +55.4 dBm at the load, reflected
@@ -336,7 +336,8 @@ fn the_edge_states_say_what_they_are_in_plain_words() {
     keys(&mut app, "m");
     assert_eq!(live(&app).interval.state, MatchState::ReturnLossAtLeast);
     let ceiling = number_after(&screen(&app, 60, 20), "≤");
-    assert_eq!(ceiling, 1.0, "SWR at most 1.0004, to two decimals");
+    // A bound is rounded the way that keeps it true: at most 1.0004 shows as at most 1.01.
+    assert_eq!(ceiling, 1.01);
     keys(&mut app, "u");
     let floor = number_after(&screen(&app, 60, 20), "≥");
     assert!((floor - (35.0 + 40.096)).abs() < 0.05, "{floor}");
@@ -473,11 +474,7 @@ fn the_key_bar_of_a_coupler_run_offers_the_matching_key_and_no_offset() {
         keys(&mut app, view);
         for (width, height) in [(80, 24), (100, 30)] {
             let lines = screen(&app, width, height);
-            let bar: Vec<&str> = lines[usize::from(height) - 2..]
-                .iter()
-                .flat_map(|l| l.split(" · "))
-                .map(str::trim)
-                .collect();
+            let bar = key_bar(&lines);
             let (m, u) = if view.is_empty() {
                 ("m match", "u units")
             } else {

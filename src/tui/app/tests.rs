@@ -1095,18 +1095,23 @@ const KEY_HINTS: &str =
 // Source: the rule of issue 16: at 80×24 and 100×30 the key bar shows every key,
 // `l`, `t` and the freeze key included, none cut mid-word; before, `l` was missing even
 // at 100 columns and `t` and the freeze key at 80.
+/// The hints of the key bar, the screen's last two rows.
+pub(super) fn key_bar(lines: &[String]) -> Vec<&str> {
+    lines[lines.len() - 2..]
+        .iter()
+        .flat_map(|l| l.split(" · "))
+        .map(str::trim)
+        .filter(|hint| !hint.is_empty())
+        .collect()
+}
+
 #[test]
 fn the_key_bar_shows_every_key_whole_at_80_by_24_and_100_by_30() {
     let mut app = app();
     sample(&mut app, 0.0, 1500);
     for (width, height) in [(80, 24), (100, 30)] {
         let lines = screen(&app, width, height);
-        let bar: Vec<&str> = lines[usize::from(height) - 2..]
-            .iter()
-            .flat_map(|l| l.split(" · "))
-            .map(str::trim)
-            .filter(|hint| !hint.is_empty())
-            .collect();
+        let bar = key_bar(&lines);
         let mut expected: Vec<&str> = KEY_HINTS.split('|').collect();
         let mut got = bar.clone();
         expected.sort_unstable();

@@ -14,7 +14,7 @@ use dbtrail::units::Si;
 
 use super::{
     bar_position, draw_chart, no_new_samples, one_line_reading, paint, plusminus_db, reading_style,
-    Chart, HOLD_MARK,
+    round_up, Chart, HOLD_MARK,
 };
 use crate::tui::app::coupled::{BigFigure, CoupledRun, MatchNow};
 use crate::tui::app::{App, TREND_WINDOWS};
@@ -74,11 +74,34 @@ fn title_bar(app: &App, run: &CoupledRun, area: Rect, buf: &mut Buffer) {
 
 /// SWR as the screen gives it: two decimals, fewer when it is large.
 fn swr_text(value: f64) -> String {
+    let decimals = swr_decimals(value);
+    format!("{value:.decimals$}")
+}
+
+fn swr_decimals(value: f64) -> usize {
     match value {
-        v if v >= 100.0 => format!("{v:.0}"),
-        v if v >= 10.0 => format!("{v:.1}"),
-        v => format!("{v:.2}"),
+        v if v >= 100.0 => 0,
+        v if v >= 10.0 => 1,
+        _ => 2,
     }
+}
+
+/// A bound rounded the way that keeps it true at `decimals` places: an upper one up, a
+/// lower one down.
+fn bound_text(sign: &str, value: f64, decimals: usize) -> String {
+    let rounded = match sign {
+        "≤" => round_up(value, decimals),
+        "≥" => round_down(value, decimals),
+        _ => value,
+    };
+    format!("{sign}{rounded:.decimals$}")
+}
+
+/// `value` (positive) rounded down at `decimals` places, a sliver over the digit taken as
+/// floating-point error as [`round_up`] takes one under it.
+fn round_down(value: f64, decimals: usize) -> f64 {
+    let scale = 10f64.powi(decimals as i32);
+    (value * scale + 1e-7).floor() / scale
 }
 
 /// SWR of a return loss in dB.
@@ -104,7 +127,7 @@ fn big_text(run: &CoupledRun, shown: &MatchNow) -> Option<(String, String)> {
         return None;
     }
     Some(match run.big {
-        BigFigure::ReturnLoss => (format!("{rl_sign}{rl:.2}"), "dB return loss".into()),
+        BigFigure::ReturnLoss => (bound_text(rl_sign, rl, 2), "dB return loss".into()),
         BigFigure::Swr => {
             let sign = match rl_sign {
                 "≥" => "≤",
@@ -116,7 +139,7 @@ fn big_text(run: &CoupledRun, shown: &MatchNow) -> Option<(String, String)> {
             } else {
                 swr_of_db(rl)
             };
-            (format!("{sign}{}", swr_text(value)), "SWR".into())
+            (bound_text(sign, value, swr_decimals(value)), "SWR".into())
         }
     })
 }
@@ -321,19 +344,23 @@ fn range_line(run: &CoupledRun, shown: Option<&MatchNow>, width: usize) -> Strin
     let Some((low, high)) = shown.and_then(|s| s.interval.return_loss_range_db) else {
         return format!("  directivity {directivity:.1} dB: no match to give a range of");
     };
+    // Each end rounded outwards, so the range shown holds the one worked out.
+    let (low_text, low_swr) = (round_down(low, 2), swr_of_db(low));
+    let low_swr = round_up(low_swr, swr_decimals(low_swr));
     let (rl, swrs) = if high.is_finite() {
+        let high_swr = swr_of_db(high);
         (
-            format!("{low:.2} to {high:.2} dB"),
+            format!("{low_text:.2} to {:.2} dB", round_up(high, 2)),
             format!(
                 " (SWR {} to {})",
-                swr_text(swr_of_db(high)),
-                swr_text(swr_of_db(low))
+                swr_text(round_down(high_swr, swr_decimals(high_swr))),
+                swr_text(low_swr)
             ),
         )
     } else {
         (
-            format!("at least {low:.2} dB"),
-            format!(" (SWR at most {})", swr_text(swr_of_db(low))),
+            format!("at least {low_text:.2} dB"),
+            format!(" (SWR at most {})", swr_text(low_swr)),
         )
     };
     let long = format!("  directivity {directivity:.1} dB leaves the true return loss {rl}{swrs}");
