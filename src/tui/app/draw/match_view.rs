@@ -23,13 +23,21 @@ use dbtrail::uncertainty::COVERAGE_K;
 
 /// The rows of the screen the view fills, as the power view's layout gives them.
 pub struct Rows {
+    /// The title line.
     pub title: Rect,
+    /// The large digits and what is beside them.
     pub reading: Rect,
+    /// Forward, reflected and net power.
     pub powers: Rect,
+    /// The level bar of return loss.
     pub bar: Rect,
+    /// The marks under it.
     pub markers: Rect,
+    /// The range the directivity leaves.
     pub range: Rect,
+    /// The best match and how the present one compares.
     pub best: Rect,
+    /// The trend of return loss.
     pub trend: Rect,
 }
 
