@@ -4,6 +4,9 @@
 //! [`draw`] is a child of it so that it can read them, and takes `&App`, so it cannot
 //! change them.
 
+pub mod coupled;
+#[cfg(test)]
+mod coupled_tests;
 pub mod draw;
 #[cfg(test)]
 mod tests;
@@ -14,6 +17,7 @@ use std::sync::Arc;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
 
 use dbtrail::calibration::{Calibration, Flags, Reading, NOT_A_VALUE};
+use dbtrail::coupler::{Coupler, CouplerCalibration};
 use dbtrail::events::Event;
 use dbtrail::link::LinkSnapshot;
 use dbtrail::profile::Profile;
@@ -23,6 +27,7 @@ use dbtrail::units::{parse_db, parse_frequency};
 
 use super::line::LineEdit;
 use super::noise::{CountWindow, ReadingSpread};
+use coupled::CoupledRun;
 
 /// Everything that can happen to the screen.
 #[derive(Debug, Clone)]
@@ -219,6 +224,22 @@ impl Ask {
     }
 }
 
+/// Which readings fill the screen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum View {
+    /// The power of one channel (the forward arm in a coupler run).
+    Power,
+    /// The match of the forward and reflected arms (a coupler run only).
+    Matching,
+}
+
+/// What the offset key says in a coupler run, where an extra offset would move one arm.
+pub const COUPLER_OFFSET_REFUSED: &str = "no extra offset in a coupler run: the coupler \
+     set-up file holds each arm's coupling and the through-loss; edit them there";
+/// What the matching key says in a run without a coupler.
+pub const NO_COUPLER: &str = "the matching view needs a coupler set-up: start the run with \
+     --coupler FILE";
+
 /// The screen's mode.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Mode {
@@ -302,6 +323,10 @@ pub struct App {
     settle: Settle,
     trends: Vec<Trend>,
     rate_mark: (f64, u64),
+    /// Which readings fill the screen.
+    view: View,
+    /// Both arms and their match, in a coupler run.
+    coupled: Option<CoupledRun>,
 }
 
 impl App {
@@ -363,7 +388,37 @@ impl App {
                 .map(|(s, _)| Trend::new(*s, TREND_BUCKETS))
                 .collect(),
             rate_mark: (0.0, 0),
+            view: View::Power,
+            coupled: None,
         }
+    }
+
+    /// A screen for a coupler run at `freq_hz`: the power view shows the forward arm, the
+    /// matching view both.
+    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
+    pub fn coupled(coupler: Arc<Coupler>, freq_hz: f64, source: String) -> Self {
+        let cal = CouplerCalibration::new(&coupler, freq_hz);
+        Self::coupled_calibrated(coupler, cal, source)
+    }
+
+    /// A screen for a coupler run whose calibration is already built (so that a run's
+    /// start builds the code tables once).
+    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
+    pub fn coupled_calibrated(
+        coupler: Arc<Coupler>,
+        cal: CouplerCalibration,
+        source: String,
+    ) -> Self {
+        let forward = Arc::new(coupler.forward.clone());
+        let mut app = Self::calibrated(
+            forward,
+            cal.forward.clone(),
+            cal.forward_budget.clone(),
+            0.0,
+            source,
+        );
+        app.coupled = Some(CoupledRun::new(coupler, cal, app.averager.mode()));
+        app
     }
 
     /// The one place state changes.
@@ -426,6 +481,18 @@ impl App {
     /// The uncertainty budget that goes with [`App::calibration`].
     pub fn uncertainty(&self) -> &Uncertainty {
         &self.uncertainty
+    }
+
+    /// Both arms' calibration, in a coupler run.
+    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
+    pub fn coupler_calibration(&self) -> Option<&CouplerCalibration> {
+        self.coupled.as_ref().map(|run| &run.cal)
+    }
+
+    /// The coupler set-up, in a coupler run.
+    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
+    pub fn coupler(&self) -> Option<&Arc<Coupler>> {
+        self.coupled.as_ref().map(|run| &run.coupler)
     }
 
     /// Whether a replay has reached the end of its file.
@@ -524,25 +591,77 @@ impl App {
 
     fn samples(&mut self, events: &[Event]) -> Vec<Command> {
         let before = self.active_warnings();
+        let limits_before = self.over_limits();
         for event in events {
             match event {
-                Event::Samples(chunk) => {
-                    for i in 0..chunk.len() {
-                        self.sample(chunk.time(i), chunk.counts(i)[0]);
-                    }
-                }
+                Event::Samples(chunk) => self.chunk(chunk),
                 Event::LinkDown { .. } => self.connected = false,
                 Event::LinkUp { .. } => self.connected = true,
                 // Shown from the link counters, which every source keeps.
                 Event::Lost { .. } | Event::Rejected { .. } => {}
             }
         }
+        let sampled = events.iter().any(|e| matches!(e, Event::Samples(_)));
+        if let Some(run) = self.coupled.as_mut().filter(|_| sampled) {
+            run.refresh(self.now);
+        }
         let raised = self.active_warnings().difference(before);
-        if raised.is_empty() {
+        let limits = self.over_limits();
+        let limit_raised =
+            (limits.swr && !limits_before.swr) || (limits.reflected && !limits_before.reflected);
+        if raised.is_empty() && !limit_raised {
             Vec::new()
         } else {
             vec![Command::Bell]
         }
+    }
+
+    /// The transmitter's limits the match is past now (none in a plain run).
+    pub fn over_limits(&self) -> coupled::OverLimits {
+        self.coupled
+            .as_ref()
+            .map(|run| run.over_now(self.now))
+            .unwrap_or_default()
+    }
+
+    /// A chunk's samples: channel 0 in a plain run; in a coupler run the forward arm's
+    /// channel for the power view and both arms' for the match.
+    fn chunk(&mut self, chunk: &dbtrail::events::Chunk) {
+        for i in 0..chunk.len() {
+            let (t, counts) = (chunk.time(i), chunk.counts(i));
+            match self.coupled.as_mut() {
+                None => {
+                    if let Some(&code) = counts.first() {
+                        self.sample(t, code);
+                    }
+                }
+                Some(run) => match run.codes(counts) {
+                    Some(codes) => {
+                        run.push(t, codes);
+                        // The reflected detector has its ratings and its clip too.
+                        let reflected = run.cal.reflected.reading_code(codes.1).flags;
+                        self.raise_warnings(reflected, t);
+                        self.sample(t, codes.0);
+                    }
+                    None => {
+                        self.notice = Some(self.too_few_channels(counts.len()));
+                        return;
+                    }
+                },
+            }
+        }
+    }
+
+    /// What the screen says of a stream with too few channels for the coupler set-up.
+    fn too_few_channels(&self, channels: usize) -> String {
+        let (f, r) = self.coupled.as_ref().map_or((0, 0), |run| {
+            let setup = &run.coupler.setup;
+            (setup.forward.channel + 1, setup.reflected.channel + 1)
+        });
+        format!(
+            "the stream has {channels} channel(s); the coupler set-up reads forward on \
+             channel {f} and reflected on {r}: check the board or the set-up file"
+        )
     }
 
     fn sample(&mut self, t: f64, code: u32) {
@@ -553,13 +672,7 @@ impl App {
             // A damaged sample raises its warning but is neither shown nor averaged.
             self.last = Some(reading);
         }
-        let alarms = reading.flags & ALARMS;
-        for flag in alarms.iter() {
-            match self.warnings.iter_mut().find(|(f, _)| *f == flag) {
-                Some(entry) => entry.1 = t,
-                None => self.warnings.push((flag, t)),
-            }
-        }
+        self.raise_warnings(reading.flags, t);
         if reading
             .flags
             .intersects(Flags::BELOW_SPAN | Flags::ADC_CLIP)
@@ -589,6 +702,16 @@ impl App {
         }
     }
 
+    /// Raises (or holds up) the warnings of a reading's alarm flags, at `t`.
+    fn raise_warnings(&mut self, flags: Flags, t: f64) {
+        for flag in (flags & ALARMS).iter() {
+            match self.warnings.iter_mut().find(|(f, _)| *f == flag) {
+                Some(entry) => entry.1 = t,
+                None => self.warnings.push((flag, t)),
+            }
+        }
+    }
+
     fn tick(&mut self, now: f64) -> Vec<Command> {
         self.now = self.now.max(now);
         match self.live_shown() {
@@ -604,6 +727,10 @@ impl App {
             }
             // Settled counts from the first value shown after a bound, not from before it.
             _ => self.settle.clear(),
+        }
+        let flowing = self.samples_flow();
+        if let Some(run) = self.coupled.as_mut() {
+            run.tick(self.now, flowing);
         }
         self.tick_counters()
     }
@@ -665,11 +792,16 @@ impl App {
             'q' => return self.quit_key(),
             '?' | 'h' => self.mode = Mode::Help,
             'f' => self.ask(Ask::Frequency, LineEdit::default()),
+            'o' if self.coupled.is_some() => self.notice = Some(COUPLER_OFFSET_REFUSED.into()),
             'o' => self.ask(Ask::Offset, LineEdit::default()),
+            'm' => self.switch_view(),
             'a' => self.ask(Ask::Averaging, LineEdit::default()),
             'l' if self.logging.is_some() => return vec![Command::StopLog],
             'l' => self.ask(Ask::LogFile, LineEdit::offered(&default_log_name())),
-            'u' => self.units = self.units.next(self.reference_dbm.is_some()),
+            'u' => match (self.view, self.coupled.as_mut()) {
+                (View::Matching, Some(run)) => run.cycle_big(),
+                _ => self.units = self.units.next(self.reference_dbm.is_some()),
+            },
             't' => self.trend_window = (self.trend_window + 1) % TREND_WINDOWS.len(),
             'r' => self.reset_holds(),
             's' => self.set_reference(),
@@ -679,19 +811,34 @@ impl App {
                     self.units = Units::Dbm;
                 }
             }
-            ' ' => {
-                self.frozen = if self.frozen.is_some() {
-                    None
-                } else {
-                    Some(Frozen {
-                        shown: self.live_shown(),
-                        plusminus: self.live_plusminus(),
-                    })
-                }
-            }
+            ' ' => self.freeze(),
             _ => {}
         }
         Vec::new()
+    }
+
+    /// The freeze key: holds (or lets go) the shown reading, and in a coupler run the
+    /// shown match with it.
+    fn freeze(&mut self) {
+        let freezing = self.frozen.is_none();
+        self.frozen = freezing.then(|| Frozen {
+            shown: self.live_shown(),
+            plusminus: self.live_plusminus(),
+        });
+        if let Some(run) = self.coupled.as_mut() {
+            run.frozen = if freezing { run.live().copied() } else { None };
+        }
+    }
+
+    fn switch_view(&mut self) {
+        if self.coupled.is_none() {
+            self.notice = Some(NO_COUPLER.into());
+            return;
+        }
+        self.view = match self.view {
+            View::Power => View::Matching,
+            View::Matching => View::Power,
+        };
     }
 
     fn ask(&mut self, ask: Ask, line: LineEdit) {
@@ -753,6 +900,9 @@ impl App {
                 self.spread = ReadingSpread::new(mode);
                 self.counts = CountWindow::new(mode);
                 self.settle.clear();
+                if let Some(run) = self.coupled.as_mut() {
+                    run.set_averaging(mode);
+                }
                 Ok(Vec::new())
             }
             Ask::LogFile => {
@@ -769,9 +919,19 @@ impl App {
     /// the history is shifted by the change rather than thrown away.
     fn recalibrate(&mut self, freq_hz: Option<f64>, extra_offset_db: f64) -> Vec<Command> {
         let before = self.cal.correction_db() + self.cal.offset_db();
-        self.cal = Calibration::new(&self.profile, freq_hz, extra_offset_db);
-        // The budget's terms depend on the level at the detector and the frequency.
-        self.uncertainty = Uncertainty::new(&self.profile, &self.cal);
+        match self.coupled.as_mut() {
+            // The power view is the forward arm's, rebuilt with both.
+            Some(run) => {
+                run.retune(freq_hz.unwrap_or(self.cal.freq_hz()));
+                self.cal = run.cal.forward.clone();
+                self.uncertainty = run.cal.forward_budget.clone();
+            }
+            None => {
+                self.cal = Calibration::new(&self.profile, freq_hz, extra_offset_db);
+                // The budget's terms depend on the level at the detector and the frequency.
+                self.uncertainty = Uncertainty::new(&self.profile, &self.cal);
+            }
+        }
         self.extra_offset_db = extra_offset_db;
         let shift = self.cal.correction_db() + self.cal.offset_db() - before;
         self.averager.shift_db(shift);
@@ -790,6 +950,9 @@ impl App {
         self.holds = PowerStats::default();
         self.holds_since = self.now;
         self.best_dbm = None;
+        if let Some(run) = self.coupled.as_mut() {
+            run.reset_best();
+        }
     }
 
     fn set_reference(&mut self) {

@@ -1,5 +1,5 @@
-//! Large digits for the main reading, five rows high, and the partial-block glyphs the
-//! level bar and the trend chart use.
+//! Large digits for the main reading and for a match (with ≥ and ≤ for its bounds), five
+//! rows high, and the partial-block glyphs the level bar and the trend chart use.
 
 use ratatui::buffer::Buffer;
 use ratatui::style::Style;
@@ -23,6 +23,8 @@ fn glyph(c: char) -> Option<[&'static str; 5]> {
         '-' => ["   ", "   ", "███", "   ", "   "],
         '+' => ["   ", " █ ", "███", " █ ", "   "],
         '.' => [" ", " ", " ", " ", "█"],
+        '≥' => ["██ ", "  █", "██ ", "   ", "███"],
+        '≤' => [" ██", "█  ", " ██", "   ", "███"],
         ' ' => ["  ", "  ", "  ", "  ", "  "],
         _ => return None,
     })

@@ -12,9 +12,11 @@ use dbtrail::printable::{fields_to_keep, wrap_words};
 use dbtrail::uncertainty::COVERAGE_K;
 use dbtrail::units::{Power, Si, VoltageForm};
 
-use super::{App, Mode, Plusminus, Shown, Units, TREND_WINDOWS};
+use super::{App, Mode, Plusminus, Shown, Units, View, TREND_WINDOWS};
 use crate::tui::digits;
 use crate::tui::line::LineEdit;
+
+mod match_view;
 
 /// The smallest screen that gets the large digits.
 pub const FULL_SIZE: (u16, u16) = (80, 24);
@@ -25,7 +27,7 @@ pub fn draw(app: &App, frame: &mut Frame) {
     let full = area.width >= FULL_SIZE.0 && area.height >= FULL_SIZE.1;
     let reading_rows = if full { digits::HEIGHT + 1 } else { 1 };
     let hint_rows = if matches!(app.mode, Mode::Normal | Mode::Help) && app.notice.is_none() {
-        key_hint_lines(usize::from(area.width)).len() as u16
+        key_hint_lines(app, usize::from(area.width)).len() as u16
     } else {
         1
     };
@@ -54,14 +56,31 @@ pub fn draw(app: &App, frame: &mut Frame) {
         ])
         .areas(area);
     let buf = frame.buffer_mut();
-    title_bar(app, title, buf);
     warning_banner(app, banner, buf);
-    main_reading(app, reading, full, buf);
-    Paragraph::new(other_forms(app)).render(forms, buf);
-    level_bar(app, bar, markers, buf);
-    Paragraph::new(holds_line(app)).render(holds, buf);
-    Paragraph::new(peak_line(app)).render(peak, buf);
-    trend_chart(app, trend, buf);
+    match app.coupled.as_ref().filter(|_| app.view == View::Matching) {
+        Some(run) => {
+            let rows = match_view::Rows {
+                title,
+                reading,
+                powers: forms,
+                bar,
+                markers,
+                range: holds,
+                best: peak,
+                trend,
+            };
+            match_view::draw(app, run, &rows, full, buf);
+        }
+        None => {
+            title_bar(app, title, buf);
+            main_reading(app, reading, full, buf);
+            Paragraph::new(other_forms(app)).render(forms, buf);
+            level_bar(app, bar, markers, buf);
+            Paragraph::new(holds_line(app)).render(holds, buf);
+            Paragraph::new(peak_line(app)).render(peak, buf);
+            trend_chart(app, trend, buf);
+        }
+    }
     match &app.mode {
         Mode::Prompt {
             error: Some(error), ..
@@ -190,11 +209,29 @@ fn warnings_now(app: &App) -> Vec<&'static Warning> {
         "FREQ OFF TABLE",
         Weight::Caution,
     );
+    const HIGH_SWR: Warning = warning(
+        "HIGH SWR: past the transmitter's limit",
+        "HIGH SWR",
+        Weight::Alarm,
+    );
+    const HIGH_REFLECTED: Warning = warning(
+        "HIGH REFLECTED POWER: past the transmitter's limit",
+        "HIGH REFLECTED",
+        Weight::Alarm,
+    );
     let mut list = Vec::new();
     if app.ended {
         list.push(&ENDED);
     } else if !app.connected {
         list.push(&DISCONNECTED);
+    }
+    // The transmitter's limits first: they protect what drives the line.
+    let over = app.over_limits();
+    if over.swr {
+        list.push(&HIGH_SWR);
+    }
+    if over.reflected {
+        list.push(&HIGH_REFLECTED);
     }
     let active = app.active_warnings();
     list.extend(
@@ -206,7 +243,11 @@ fn warnings_now(app: &App) -> Vec<&'static Warning> {
     if app.is_rejecting() {
         list.push(&REJECTING);
     }
-    if app.cal.fixed_flags().contains(Flags::FREQ_OUTSIDE) {
+    let reflected_off_table = app.coupled.as_ref().is_some_and(|run| {
+        let flags = run.cal.reflected.fixed_flags();
+        flags.contains(Flags::FREQ_OUTSIDE)
+    });
+    if app.cal.fixed_flags().contains(Flags::FREQ_OUTSIDE) || reflected_off_table {
         list.push(&OFF_TABLE);
     }
     list
@@ -477,14 +518,7 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
             // A bound's phrase says it is one; the reason matters more than the marker.
             text = format!(" {unit}{frozen}");
         }
-        let row = Rect {
-            y: area.y + area.height.saturating_sub(1) / 2,
-            height: 1,
-            ..area
-        };
-        Paragraph::new(text.trim_end().to_string())
-            .style(style)
-            .render(row, buf);
+        one_line_reading(&text, style, area, buf);
         return;
     }
     let width = digits::render(&number, area.x + 2, area.y, style, buf);
@@ -503,6 +537,19 @@ fn main_reading(app: &App, area: Rect, full: bool, buf: &mut Buffer) {
         ..unit_row
     };
     beside_digits(app, &beside, side, buf);
+}
+
+/// A reading in one line of text, in the middle row of the room the large digits would
+/// take: on a small screen, or for a phrase.
+fn one_line_reading(text: &str, style: Style, area: Rect, buf: &mut Buffer) {
+    let row = Rect {
+        y: area.y + area.height.saturating_sub(1) / 2,
+        height: 1,
+        ..area
+    };
+    Paragraph::new(text.trim_end().to_string())
+        .style(style)
+        .render(row, buf);
 }
 
 /// Why no more samples come ("ended" for a finished replay, "no signal" while the
@@ -656,14 +703,31 @@ fn peak_line(app: &App) -> String {
 }
 
 fn trend_chart(app: &App, area: Rect, buf: &mut Buffer) {
-    if area.height < 3 || area.width < 20 {
-        return;
-    }
-    let label = format!(
+    let title = format!(
         " trend, last {} (t cycles) ",
         TREND_WINDOWS[app.trend_window].1
     );
-    let block = Block::bordered().title(label);
+    let chart = Chart {
+        title,
+        columns: &|n| app.trend_columns(n),
+        label: |v| format!("{v:+7.2} "),
+    };
+    draw_chart(app, &chart, area, buf);
+}
+
+/// A trend to draw: its title, its columns of (min, max) for a width, and how an axis
+/// value is labelled (eight cells at most).
+struct Chart<'a> {
+    title: String,
+    columns: &'a dyn Fn(usize) -> Vec<Option<(f64, f64)>>,
+    label: fn(f64) -> String,
+}
+
+fn draw_chart(app: &App, chart: &Chart, area: Rect, buf: &mut Buffer) {
+    if area.height < 3 || area.width < 20 {
+        return;
+    }
+    let block = Block::bordered().title(chart.title.clone());
     let inner = block.inner(area);
     block.render(area, buf);
     let axis = 9u16;
@@ -672,7 +736,7 @@ fn trend_chart(app: &App, area: Rect, buf: &mut Buffer) {
         width: inner.width.saturating_sub(axis),
         ..inner
     };
-    let columns = app.trend_columns(usize::from(plot.width));
+    let columns = (chart.columns)(usize::from(plot.width));
     let values = columns.iter().flatten();
     let (lo, hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (a, b)| {
         (lo.min(*a), hi.max(*b))
@@ -691,11 +755,11 @@ fn trend_chart(app: &App, area: Rect, buf: &mut Buffer) {
     } else {
         (lo, hi)
     };
-    buf.set_string(inner.x, inner.y, format!("{hi:+7.2} "), Style::new());
+    buf.set_string(inner.x, inner.y, (chart.label)(hi), Style::new());
     buf.set_string(
         inner.x,
         inner.y + inner.height - 1,
-        format!("{lo:+7.2} "),
+        (chart.label)(lo),
         Style::new(),
     );
     let style = reading_style(app).patch(paint(app, Color::Cyan, None));
@@ -704,6 +768,13 @@ fn trend_chart(app: &App, area: Rect, buf: &mut Buffer) {
         let Some((a, b)) = column else { continue };
         let bottom = ((a - lo) / (hi - lo) * eighths).floor().max(0.0) as u16;
         let top = ((b - lo) / (hi - lo) * eighths).ceil().max(1.0) as u16;
+        // A column of one level on a cell's edge takes an eighth beside it, or no cell
+        // would draw it: above, or below at the chart's top.
+        let (bottom, top) = match top {
+            t if t != bottom || t % 8 != 0 => (bottom, top),
+            t if f64::from(t) >= eighths => (t - 1, t),
+            t => (t, t + 1),
+        };
         for row in 0..plot.height {
             let (cell_lo, cell_hi) = (row * 8, row * 8 + 8);
             if top <= cell_lo || bottom >= cell_hi {
@@ -785,7 +856,7 @@ fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) -> Option<(u16, u16)> {
         _ => {
             let lines = match &app.notice {
                 Some(notice) => vec![format!(" {notice}")],
-                None => key_hint_lines(usize::from(area.width)),
+                None => key_hint_lines(app, usize::from(area.width)),
             };
             Paragraph::new(lines.into_iter().map(Line::from).collect::<Vec<_>>())
                 .style(paint(app, Color::Gray, None))
@@ -855,7 +926,7 @@ fn prompt_line(
 
 /// Every key, by priority: in one line when they all fit, else in two, else as many as
 /// fit in two with the help key first (it lists the rest). Never a hint cut part-way.
-fn key_hint_lines(width: usize) -> Vec<String> {
+fn key_hint_lines(app: &App, width: usize) -> Vec<String> {
     const HINTS: [&str; 11] = [
         "? help",
         "q quit",
@@ -869,8 +940,18 @@ fn key_hint_lines(width: usize) -> Vec<String> {
         "o offset",
         "s/c ref",
     ];
+    // A coupler run has no extra offset (its set-up file holds the arms' figures), and
+    // has the matching view; in that view the units key picks SWR or return loss.
+    let coupled = app.coupled.is_some();
+    let matching = coupled && app.view == View::Matching;
+    let hints = HINTS.iter().map(|&hint| match hint {
+        "o offset" if matching => "m power",
+        "o offset" if coupled => "m match",
+        "u units" if matching => "u SWR/RL",
+        other => other,
+    });
     let mut lines = vec![String::new()];
-    for hint in HINTS {
+    for hint in hints {
         let current = lines.last_mut().expect("one line at least");
         if current.chars().count() + hint.chars().count() + 3 <= width {
             current.push_str(if current.is_empty() { " " } else { " · " });
@@ -897,6 +978,22 @@ pub const HELP_KEYS: &[&str] = &[
     "l        start or stop logging to a CSV file (as `record` writes)",
     "q        quit (asks first while a log is open)     Esc  cancel a prompt",
 ];
+
+/// The line of the help for `m`, in a coupler run, in place of the offset's: there the
+/// set-up file holds each arm's coupling and through-loss.
+pub const MATCH_KEY_HELP: &str =
+    "m        matching view and back; there u picks SWR or return loss";
+
+/// The help's key lines for this run.
+fn help_keys(app: &App) -> impl Iterator<Item = String> + Clone + '_ {
+    HELP_KEYS.iter().map(|line| {
+        if app.coupled.is_some() && line.starts_with("o ") {
+            MATCH_KEY_HELP.to_string()
+        } else {
+            line.to_string()
+        }
+    })
+}
 
 /// The safety cautions in brief.
 pub const SAFETY: &[&str] = &[
@@ -959,7 +1056,7 @@ fn help_rows(lines: &[String], width: u16) -> usize {
 /// first, so that they are never the part cut off.
 fn help_lines(app: &App, width: u16, height: u16) -> Vec<String> {
     let fits = |lines: &[String]| help_rows(lines, width) + 2 <= usize::from(height);
-    let keys = HELP_KEYS.iter().map(|l| l.to_string());
+    let keys = help_keys(app);
     let safety = SAFETY.iter().map(|l| l.to_string());
     let blank = || std::iter::once(String::new());
     // Inside the border, after the margin.

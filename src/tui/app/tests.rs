@@ -23,7 +23,7 @@ use crate::tui::noise::NOISE_MIN_COUNTS;
 /// one dB more at 100 MHz; limits −5 dBm at the detector, +20 dBm at the reference plane.
 const HAND_PROFILE: &str = include_str!("../../../tests/profiles/good/hand-logamp.toml");
 
-fn app() -> App {
+pub(super) fn app() -> App {
     let profile = parse_profile(HAND_PROFILE, "hand.toml").unwrap();
     App::new(Arc::new(profile), None, 0.0, "test bench".into())
 }
@@ -32,7 +32,7 @@ fn sample(app: &mut App, t: f64, counts: u32) -> Vec<Command> {
     app.update(AppEvent::Samples(vec![Event::sample(t, &[counts])]))
 }
 
-fn keys(app: &mut App, text: &str) -> Vec<Command> {
+pub(super) fn keys(app: &mut App, text: &str) -> Vec<Command> {
     let mut commands = Vec::new();
     for c in text.chars() {
         let code = match c {
@@ -45,7 +45,7 @@ fn keys(app: &mut App, text: &str) -> Vec<Command> {
     commands
 }
 
-fn screen(app: &App, width: u16, height: u16) -> Vec<String> {
+pub(super) fn screen(app: &App, width: u16, height: u16) -> Vec<String> {
     let mut terminal = Terminal::new(TestBackend::new(width, height)).unwrap();
     terminal.draw(|frame| draw(app, frame)).unwrap();
     let buffer = terminal.backend().buffer();
@@ -1095,18 +1095,23 @@ const KEY_HINTS: &str =
 // Source: the rule of issue 16: at 80×24 and 100×30 the key bar shows every key,
 // `l`, `t` and the freeze key included, none cut mid-word; before, `l` was missing even
 // at 100 columns and `t` and the freeze key at 80.
+/// The hints of the key bar, the screen's last two rows.
+pub(super) fn key_bar(lines: &[String]) -> Vec<&str> {
+    lines[lines.len() - 2..]
+        .iter()
+        .flat_map(|l| l.split(" · "))
+        .map(str::trim)
+        .filter(|hint| !hint.is_empty())
+        .collect()
+}
+
 #[test]
 fn the_key_bar_shows_every_key_whole_at_80_by_24_and_100_by_30() {
     let mut app = app();
     sample(&mut app, 0.0, 1500);
     for (width, height) in [(80, 24), (100, 30)] {
         let lines = screen(&app, width, height);
-        let bar: Vec<&str> = lines[usize::from(height) - 2..]
-            .iter()
-            .flat_map(|l| l.split(" · "))
-            .map(str::trim)
-            .filter(|hint| !hint.is_empty())
-            .collect();
+        let bar = key_bar(&lines);
         let mut expected: Vec<&str> = KEY_HINTS.split('|').collect();
         let mut got = bar.clone();
         expected.sort_unstable();
