@@ -47,13 +47,18 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let run = plan.start(None)?;
     let context = run.context(Duration::from_secs(1));
     let color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
-    let app = App::calibrated(
-        Arc::new(run.loaded.profile),
-        run.cal,
-        run.uncertainty,
-        plan.offset_db,
-        plan.short_label(),
-    )
+    let app = match run.coupled {
+        Some(coupled) => {
+            App::coupled_calibrated(Arc::new(coupled.coupler), coupled.cal, plan.short_label())
+        }
+        None => App::calibrated(
+            Arc::new(run.loaded.profile),
+            run.cal,
+            run.uncertainty,
+            plan.offset_db,
+            plan.short_label(),
+        ),
+    }
     .with_color(color);
     let log = args.log.map(|path| {
         let if_exists = if args.append {

@@ -395,7 +395,7 @@ impl App {
 
     /// A screen for a coupler run at `freq_hz`: the power view shows the forward arm, the
     /// matching view both.
-    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
+    #[cfg(test)]
     pub fn coupled(coupler: Arc<Coupler>, freq_hz: f64, source: String) -> Self {
         let cal = CouplerCalibration::new(&coupler, freq_hz);
         Self::coupled_calibrated(coupler, cal, source)
@@ -403,7 +403,6 @@ impl App {
 
     /// A screen for a coupler run whose calibration is already built (so that a run's
     /// start builds the code tables once).
-    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
     pub fn coupled_calibrated(
         coupler: Arc<Coupler>,
         cal: CouplerCalibration,
@@ -484,13 +483,11 @@ impl App {
     }
 
     /// Both arms' calibration, in a coupler run.
-    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
     pub fn coupler_calibration(&self) -> Option<&CouplerCalibration> {
         self.coupled.as_ref().map(|run| &run.cal)
     }
 
     /// The coupler set-up, in a coupler run.
-    #[cfg_attr(not(test), allow(dead_code))] // the loop takes it up with `--coupler`
     pub fn coupler(&self) -> Option<&Arc<Coupler>> {
         self.coupled.as_ref().map(|run| &run.coupler)
     }

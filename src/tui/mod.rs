@@ -260,15 +260,22 @@ fn start_log(
 }
 
 fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) -> Result<Log> {
-    let (file, opening) = open_log_file(path, if_exists)?;
+    let (file, opening) = open_log_file(path, if_exists, app.coupler().is_some())?;
     let context = RunContext {
         started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
         ..setup.context.clone()
     };
-    let budget = Some(app.uncertainty().clone());
-    let cal = app.calibration().clone();
-    let mut recorder = Recorder::with_uncertainty(file, cal, budget, &context, opening)
-        .with_context(|| format!("cannot write {}", path.display()))?;
+    let recorder = match (app.coupler(), app.coupler_calibration()) {
+        (Some(coupler), Some(cal)) => {
+            Recorder::for_coupler(file, cal.clone(), &coupler.setup, &context, opening)
+        }
+        _ => {
+            let budget = Some(app.uncertainty().clone());
+            let cal = app.calibration().clone();
+            Recorder::with_uncertainty(file, cal, budget, &context, opening)
+        }
+    };
+    let mut recorder = recorder.with_context(|| format!("cannot write {}", path.display()))?;
     recorder.begin_at(setup.source.now());
     Ok(Log {
         recorder,
@@ -279,7 +286,7 @@ fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) ->
 
 /// Opens the log's file as `if_exists` says, locked against a second recorder (as
 /// `record`'s are), and how its rows begin.
-fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(LogFile, Opening)> {
+fn open_log_file(path: &Path, if_exists: IfExists, coupled: bool) -> Result<(LogFile, Opening)> {
     // Short, to fit the prompt's line: `watch --log --append/--force` is in the help.
     let file = LogFile::open(path, if_exists).map_err(|e| match e {
         LogOpenError::Exists(_) | LogOpenError::Locked(_) => {
@@ -288,7 +295,7 @@ fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(LogFile, Opening)>
         other => other.into(),
     })?;
     let opening = match if_exists {
-        IfExists::Append => resume_opening(file.file(), path)?,
+        IfExists::Append => resume_opening(file.file(), path, coupled)?,
         IfExists::Refuse | IfExists::Replace => Opening::Fresh,
     };
     Ok((file, opening))
@@ -296,7 +303,7 @@ fn open_log_file(path: &Path, if_exists: IfExists) -> Result<(LogFile, Opening)>
 
 /// How rows go on after those of the log in `file`: fresh when it is empty, else after a
 /// `# resumed` line, when it holds rows per interval as the screen writes them.
-fn resume_opening(file: &File, path: &Path) -> Result<Opening> {
+fn resume_opening(file: &File, path: &Path, coupled: bool) -> Result<Opening> {
     let name = path.display();
     let len = file
         .metadata()
@@ -311,6 +318,16 @@ fn resume_opening(file: &File, path: &Path) -> Result<Opening> {
         anyhow::bail!(
             "cannot add to {name}: it holds one row per sample and the screen logs a row a \
              second; choose another file"
+        );
+    }
+    if shape.coupled != coupled {
+        let (log, run) = if shape.coupled {
+            ("a coupler run's rows", "one detector's")
+        } else {
+            ("one detector's rows", "a coupler run's")
+        };
+        anyhow::bail!(
+            "cannot add to {name}: it holds {log}, this screen logs {run}; choose another file"
         );
     }
     Ok(Opening::Resume {
