@@ -656,8 +656,8 @@ impl App {
             (setup.forward.channel + 1, setup.reflected.channel + 1)
         });
         format!(
-            "the stream has {channels} channel(s); the coupler set-up reads forward on \
-             channel {f} and reflected on {r}: check the board or the set-up file"
+            "stream sends {channels} channel(s), set-up reads forward on {f}, reflected on \
+             {r}: check board or set-up"
         )
     }
 
