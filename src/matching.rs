@@ -147,6 +147,20 @@ impl MatchState {
         }
     }
 
+    /// The state a log's flag names (none for a plain value's empty cell).
+    pub fn from_flag(flag: &str) -> Option<Self> {
+        [
+            MatchState::ReturnLossAtLeast,
+            MatchState::ReturnLossAtMost,
+            MatchState::Unresolved,
+            MatchState::Reversed,
+            MatchState::NoForward,
+            MatchState::Unknown,
+        ]
+        .into_iter()
+        .find(|s| s.flag() == flag)
+    }
+
     /// What it means, in plain words.
     pub fn words(self) -> &'static str {
         match self {

@@ -15,6 +15,7 @@ use allan::AllanPoint;
 use soak::{SoakFit, SoakModel};
 
 pub mod allan;
+pub mod matched;
 mod read;
 pub mod reduce;
 pub mod soak;

@@ -200,6 +200,53 @@ fn a_coupler_run_replayed_holds_the_truth_and_marks_every_edge_case() {
     assert!(number(&at_least[col("return_loss_db")]).unwrap() > 85.0);
 }
 
+// Source: the definition of return loss, 10·log10(Pf/Pr) (common practice), of the mean
+// powers over the valid rows: worked out here from the rows' own powers and sample counts;
+// and the held rows' marks counted as the capture holds them (two rows each).
+#[test]
+fn the_report_of_a_coupler_log_gives_the_match_of_the_mean_powers() {
+    let dir = scratch("coupler-report");
+    let capture = dir.path().join("bench.txt");
+    write_capture(&capture);
+    let log = dir.path().join("match.csv");
+    record(&capture, &log, "0.5s");
+    let (header, rows) = rows(&log);
+    let (mut pf, mut pr) = (0.0, 0.0);
+    for row in rows.iter().filter(|r| {
+        r[column(&header, "match")].is_empty() || r[column(&header, "match")] == "over-swr-limit"
+    }) {
+        let n: f64 = row[column(&header, "fwd_samples")].parse().unwrap();
+        pf += n * number(&row[column(&header, "fwd_w")]).unwrap();
+        pr += n * number(&row[column(&header, "ref_w")]).unwrap();
+    }
+    let expected = 10.0 * (pf / pr).log10();
+    let out = succeeded(["report", log.to_str().unwrap(), "--json"]);
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let summary = &json["match"];
+    let mean = summary["mean_return_loss_db"].as_f64().unwrap();
+    // The rows' watts are written to 7 digits.
+    assert!((mean - expected).abs() < 1e-4, "{mean} vs {expected}");
+    let states = &summary["states"];
+    for mark in ["rl-at-least", "rl-at-most", "no-forward", "reversed"] {
+        let held = HELD.iter().filter(|h| h.2 == mark).count() as u64;
+        assert_eq!(
+            states[mark].as_u64(),
+            Some(held * 2 * HELD_S as u64),
+            "{mark}"
+        );
+    }
+    let text = succeeded(["report", log.to_str().unwrap()]);
+    let text = String::from_utf8_lossy(&text.stdout);
+    assert!(
+        text.contains("Soak report:") && text.contains("the forward arm"),
+        "{text}"
+    );
+    assert!(
+        text.contains(&format!("mean match    {mean:.2} dB")),
+        "{text}"
+    );
+}
+
 // A per-sample coupler log holds the same columns for each sample, and a stream with one
 // channel is refused as bad input naming the set-up's channels.
 #[test]

@@ -5,6 +5,7 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 
 use anyhow::{anyhow, Context};
+use dbtrail::report::matched::{summarise, MatchSummary};
 use dbtrail::report::{
     analyse, extreme_bound, read_log_folded, span_rows, Reduction, Report, ReportOptions, Run,
 };
@@ -45,7 +46,7 @@ pub struct Args {
     /// End of the span, time since the run started (e.g. 2h, 2:00:00, or 1 h 25 min 20 s)
     #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
     to: Option<f64>,
-    /// Channel to report on, from 1
+    /// Channel to report on, from 1 (a coupler run: 1 the forward arm, 2 the reflected)
     #[arg(long, default_value_t = 1, allow_hyphen_values = true, value_parser = parse_channel)]
     channel: u64,
     /// Fold the rows into intervals of this width while reading (e.g. 1s, 10s, 1m); without it a log of more than 100000 rows is folded into the smallest width of 1 s times a power of two (or its own interval times one) that keeps it within 100000 intervals, and a wider one if the rows still pass that
@@ -197,32 +198,45 @@ pub fn run(args: Args) -> Result<(), Failure> {
         plot::plot(path, args.size, runs[0], &reports[0], &options).runtime()?;
         say_err!("dbtrail: plot written to {}", path.display());
     }
+    let matched = match_summary(&args, &origin)?;
     let text = if args.json {
-        json(&runs, &reports, &options).map_err(|e| Failure::Runtime(e.into()))?
+        json(&runs, &reports, &options, matched.as_ref()).map_err(|e| Failure::Runtime(e.into()))?
     } else {
-        text_report(
-            &origin,
-            args.channel,
-            log.runs.len(),
-            &runs,
-            &reports,
-            &options,
-        )
+        let read = match (&matched, args.channel) {
+            (Some(_), 2) => "the reflected arm (--channel 2)".to_string(),
+            (Some(_), _) => "the forward arm (--channel 2 for the reflected)".to_string(),
+            (None, channel) => format!("channel {channel}"),
+        };
+        let mut text = text_report(&origin, &read, log.runs.len(), &runs, &reports, &options);
+        if let Some(summary) = &matched {
+            text.push_str(&text::match_table(summary, log.runs.len()));
+        }
+        text
     };
     emit(&text)
+}
+
+/// The match over a coupler run's log (a second pass over the file, its rows in the span
+/// asked for); None for one detector's.
+fn match_summary(args: &Args, origin: &str) -> Result<Option<MatchSummary>, Failure> {
+    let file = std::fs::File::open(&args.log)
+        .with_context(|| format!("cannot read {origin}"))
+        .bad_input()?;
+    let input = std::io::BufReader::with_capacity(1 << 16, file);
+    summarise(input, origin, args.from, args.to).bad_input()
 }
 
 /// The whole text report: a heading, a section per run and, for several, the runs
 /// together.
 fn text_report(
     origin: &str,
-    channel: u64,
+    read: &str,
     in_log: usize,
     runs: &[&Run],
     reports: &[Report],
     options: &ReportOptions,
 ) -> String {
-    let mut out = format!("Soak report: {origin}, channel {channel}");
+    let mut out = format!("Soak report: {origin}, {read}");
     if let ([run], true) = (runs, in_log > 1) {
         out.push_str(&format!(
             ", run {} of {in_log} (from line {})",
@@ -445,8 +459,13 @@ fn run_object(report: &Report) -> serde_json::Result<serde_json::Map<String, Val
 /// One object for a single run, with the figures at the top level; for several runs,
 /// one object with the figures taken together at the top level and `runs`, one object
 /// per run with its number and first line.
-fn json(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> serde_json::Result<String> {
-    let value = if let [report] = reports {
+fn json(
+    runs: &[&Run],
+    reports: &[Report],
+    options: &ReportOptions,
+    matched: Option<&MatchSummary>,
+) -> serde_json::Result<String> {
+    let mut value = if let [report] = reports {
         Value::Object(run_object(report)?)
     } else {
         let per_run = runs
@@ -463,5 +482,8 @@ fn json(runs: &[&Run], reports: &[Report], options: &ReportOptions) -> serde_jso
         all.insert("runs".into(), Value::Array(per_run));
         Value::Object(all)
     };
+    if let (Some(summary), Value::Object(object)) = (matched, &mut value) {
+        object.insert("match".into(), serde_json::to_value(summary)?);
+    }
     Ok(format!("{}\n", serde_json::to_string(&value)?))
 }

@@ -535,18 +535,45 @@ fn columns(
     origin: &str,
 ) -> Result<Columns, LogError> {
     let names: Vec<String> = header.iter().map(|h| h.trim().to_string()).collect();
-    let suffix = if channel <= 1 {
-        String::new()
-    } else {
-        format!("_ch{channel}")
-    };
-    let find = |name: &str| names.iter().position(|h| *h == format!("{name}{suffix}"));
     let not_a_log = |why: String| not_a_log(origin, line, why);
+    // A coupler run's arms are its channels: 1 the forward arm, 2 the reflected.
+    let coupled = names.iter().any(|h| h == "fwd_dbm");
+    let (prefix, suffix) = match (coupled, channel) {
+        (true, 0 | 1) => ("fwd_", String::new()),
+        (true, 2) => ("ref_", String::new()),
+        (true, _) => {
+            return Err(bad(
+                origin,
+                line,
+                "--channel",
+                format!(
+                    "the log is a coupler run's, with two arms: give --channel 1 (forward) or \
+                     2 (reflected), not {channel}"
+                ),
+            ))
+        }
+        (false, 0 | 1) => ("", String::new()),
+        (false, _) => ("", format!("_ch{channel}")),
+    };
+    let find = |name: &str| {
+        // A coupler arm's mean is its `dbm` (and `w`), as per-sample rows name a reading.
+        let name = match (coupled, name) {
+            (true, "mean_dbm") => "dbm",
+            (_, other) => other,
+        };
+        names
+            .iter()
+            .position(|h| *h == format!("{prefix}{name}{suffix}"))
+    };
     let time = names
         .iter()
         .position(|h| h == "time_s")
         .ok_or_else(|| not_a_log("no `time_s` column".into()))?;
-    let per_sample = find("dbm").is_some() && find("mean_dbm").is_none();
+    let per_sample = if coupled {
+        find("samples").is_none()
+    } else {
+        find("dbm").is_some() && find("mean_dbm").is_none()
+    };
     let mean = find(if per_sample { "dbm" } else { "mean_dbm" }).ok_or_else(|| {
         not_a_log(if channel > 1 {
             format!("no columns for channel {channel}")

@@ -1,7 +1,9 @@
 //! The report as a table a person reads: one labelled line per figure, wrapped to fit
 //! 100 columns, with the warm-up, both drifts and the Allan deviation explained in words.
 
+use dbtrail::matching::MatchState;
 use dbtrail::printable::wrap_words;
+use dbtrail::report::matched::{MatchSummary, PowerSpread, RowMatch};
 use dbtrail::report::soak::SoakModel;
 use dbtrail::report::{span_rows, Report, ReportOptions, Run, Spacing};
 use dbtrail::stats::Bound;
@@ -416,6 +418,91 @@ pub fn together_table(all: &Together) -> String {
         .iter()
         .map(|(label, value)| labelled(label, value))
         .collect()
+}
+
+/// The match over a coupler run's rows: forward and net power, the return loss of the
+/// valid rows (best, worst, and of their mean powers), and what the other rows were.
+pub fn match_table(m: &MatchSummary, runs_in_log: usize) -> String {
+    let spread = |p: &Option<PowerSpread>| {
+        p.map_or("no row gives one".to_string(), |p| {
+            format!(
+                "mean {:+.3} dBm ({}), over watts; min {}, max {}",
+                p.mean_dbm,
+                Si::new(p.mean_w, "W"),
+                Si::new(p.min_w, "W"),
+                Si::new(p.max_w, "W")
+            )
+        })
+    };
+    let at = |row: &Option<RowMatch>| {
+        row.map_or("no valid row".to_string(), |r| {
+            let u = r
+                .u_return_loss_db
+                .map_or(String::new(), |u| format!(" ±{u:.2} dB (k = 2)"));
+            format!(
+                "{:.2} dB{u}, SWR {:.3}, at {} ({:.1} s)",
+                r.return_loss_db,
+                r.swr,
+                format_clock(r.t),
+                r.t
+            )
+        })
+    };
+    let mean = match (m.mean_return_loss_db, m.mean_swr) {
+        (Some(rl), Some(swr)) => format!(
+            "{rl:.2} dB, SWR {swr:.3}: the return loss of the arms' mean powers over the valid \
+             rows (not the mean of their dB)"
+        ),
+        _ => "no valid row".to_string(),
+    };
+    let lines = [
+        ("forward", spread(&m.forward)),
+        ("net power", spread(&m.net)),
+        (
+            "valid rows",
+            format!("{} of {}, their match a value", m.valid_rows, m.rows),
+        ),
+        ("best match", at(&m.best)),
+        ("worst match", at(&m.worst)),
+        ("mean match", mean),
+        ("other rows", state_words(m)),
+    ];
+    let mut out = if runs_in_log > 1 {
+        format!("\nMatch (forward and reflected arms), over all {runs_in_log} runs of the log\n")
+    } else {
+        String::from("\nMatch (forward and reflected arms)\n")
+    };
+    for (label, value) in &lines {
+        out.push_str(&labelled(label, value));
+    }
+    out
+}
+
+/// The rows whose match is not a value, and those over a limit, in words.
+fn state_words(m: &MatchSummary) -> String {
+    let mut parts: Vec<String> = m
+        .states
+        .iter()
+        .map(|(mark, n)| {
+            let words = MatchState::from_flag(mark)
+                .map_or_else(|| "no reading (the arms' flags say why)", MatchState::words);
+            format!("{n} {mark} ({words})")
+        })
+        .collect();
+    if m.over_swr_limit > 0 {
+        parts.push(format!("{} over the set-up's SWR limit", m.over_swr_limit));
+    }
+    if m.over_reflected_limit > 0 {
+        parts.push(format!(
+            "{} over its reflected-power limit",
+            m.over_reflected_limit
+        ));
+    }
+    if parts.is_empty() {
+        "none".into()
+    } else {
+        parts.join("; ")
+    }
 }
 
 #[cfg(test)]
