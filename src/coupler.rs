@@ -275,17 +275,18 @@ impl CouplerCalibration {
     /// The match of an interval from each arm's figures (their means over watts).
     pub fn interval(&self, forward: &Figures, reflected: &Figures) -> MatchInterval {
         MatchInterval::new(
-            arm_power(forward, &self.forward_budget),
-            arm_power(reflected, &self.reflected_budget),
+            arm_power(forward, Some(&self.forward_budget)),
+            arm_power(reflected, Some(&self.reflected_budget)),
             self.leakage,
         )
     }
 }
 
-/// One arm's mean power and its uncertainty, as the match takes them.
-pub fn arm_power(figures: &Figures, budget: &Uncertainty) -> ArmPower {
-    let u_db = match (figures.bound, figures.mean_dbm, figures.noise) {
-        (Bound::Exact, Some(mean), Some(noise)) => {
+/// One arm's mean power and its uncertainty (from `budget`, when there is one), as the
+/// match takes them.
+pub fn arm_power(figures: &Figures, budget: Option<&Uncertainty>) -> ArmPower {
+    let u_db = match (figures.bound, figures.mean_dbm, figures.noise, budget) {
+        (Bound::Exact, Some(mean), Some(noise), Some(budget)) => {
             Some(budget.budget(mean, Some(noise)).expanded_db())
         }
         _ => None,

@@ -400,7 +400,7 @@ impl<W: Write> Recorder<W> {
 
     fn sample_row(&mut self, t: f64, counts: &[u32]) -> io::Result<()> {
         let mut row = vec![seconds(t)];
-        let groups = self.groups().min(counts.len());
+        let groups = self.groups();
         for g in 0..groups {
             let (ch, chain) = source_of(self.coupled.as_ref(), g);
             let Some(&code) = counts.get(ch) else {
@@ -419,7 +419,7 @@ impl<W: Write> Recorder<W> {
             }
         }
         if let Some(coupled) = &self.coupled {
-            row.extend(coupled.sample_cells(&self.chains[0].cal, &self.chains[1].cal, counts));
+            row.extend(coupled.sample_cells(&self.chains, counts));
         }
         self.write_row(row)
     }
@@ -553,7 +553,7 @@ impl<W: Write> Recorder<W> {
             arms.push(figures);
         }
         if let (Some(coupled), [forward, reflected]) = (&self.coupled, arms.as_slice()) {
-            row.extend(coupled.interval_cells(forward, reflected));
+            row.extend(coupled.interval_cells(&self.chains, forward, reflected));
         }
         self.write_row(row)
     }

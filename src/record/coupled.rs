@@ -10,10 +10,9 @@ use crate::coupler::{arm_power, CouplerCalibration, CouplerSetup, MatchLimits};
 use crate::matching::{MatchInterval, MatchState};
 use crate::printable::escape_controls;
 use crate::stats::{Bound, Figures};
-use crate::uncertainty::Uncertainty;
 use crate::units::format_frequency;
 
-use super::{one_reading, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS};
+use super::{one_reading, Chain, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS};
 
 /// The columns after both arms' cells in a coupler run's rows.
 pub const COUPLER_MATCH_COLUMNS: [&str; 9] = [
@@ -62,7 +61,6 @@ pub struct CouplerChannels {
 pub(super) struct Coupled {
     /// The stream channels of the forward and the reflected arm, from 0.
     pub(super) channels: [usize; 2],
-    budgets: [Uncertainty; 2],
     leakage: f64,
     limits: MatchLimits,
 }
@@ -71,7 +69,6 @@ impl Coupled {
     pub(super) fn new(cal: &CouplerCalibration, setup: &CouplerSetup) -> Self {
         Coupled {
             channels: [setup.forward.channel, setup.reflected.channel],
-            budgets: [cal.forward_budget.clone(), cal.reflected_budget.clone()],
             leakage: cal.leakage,
             limits: setup.limits,
         }
@@ -87,33 +84,34 @@ impl Coupled {
         Ok(())
     }
 
-    /// The match cells of an interval from its arms' figures.
-    pub(super) fn interval_cells(&self, forward: &Figures, reflected: &Figures) -> Vec<String> {
+    /// The match cells of an interval from its arms' figures, through the arms' `chains`
+    /// (forward, reflected).
+    pub(super) fn interval_cells(
+        &self,
+        chains: &[Chain],
+        forward: &Figures,
+        reflected: &Figures,
+    ) -> Vec<String> {
         let m = MatchInterval::new(
-            arm_power(forward, &self.budgets[0]),
-            arm_power(reflected, &self.budgets[1]),
+            arm_power(forward, chains[0].budget.as_ref()),
+            arm_power(reflected, chains[1].budget.as_ref()),
             self.leakage,
         );
         self.cells(&m, forward, reflected)
     }
 
     /// The match cells of one sample of each arm (no noise is known: no uncertainty).
-    pub(super) fn sample_cells(
-        &self,
-        forward: &Calibration,
-        reflected: &Calibration,
-        counts: &[u32],
-    ) -> Vec<String> {
+    pub(super) fn sample_cells(&self, chains: &[Chain], counts: &[u32]) -> Vec<String> {
         let figures = |cal: &Calibration, ch: usize| {
             counts
                 .get(ch)
                 .map(|&code| one_reading(cal, code).figures(cal))
         };
         match (
-            figures(forward, self.channels[0]),
-            figures(reflected, self.channels[1]),
+            figures(&chains[0].cal, self.channels[0]),
+            figures(&chains[1].cal, self.channels[1]),
         ) {
-            (Some(f), Some(r)) => self.interval_cells(&f, &r),
+            (Some(f), Some(r)) => self.interval_cells(chains, &f, &r),
             _ => vec![String::new(); COUPLER_MATCH_COLUMNS.len()],
         }
     }
