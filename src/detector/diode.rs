@@ -6,9 +6,9 @@
 //! so either direction is a one-dimensional bracketed root.
 
 use super::covariance::{gradient, FitCovariance};
+use super::thermal::ordered_at;
 use super::{
-    ordered_points, point_u_volts, residuals_db, rms, CalPoint, Detector, ModelError, ModelKind,
-    Weighting, MAX_FIT_RMS_DB,
+    point_u_volts, rms, CalPoint, Detector, ModelError, ModelKind, Weighting, MAX_FIT_RMS_DB,
 };
 use crate::maths::numeric::{
     levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton, unscaled_covariance,
@@ -22,7 +22,45 @@ pub const N_BOUNDS: (f64, f64) = (0.5, 5.0);
 /// See [`N_BOUNDS`].
 pub const VL_BOUNDS: (f64, f64) = (1e-6, 1e4);
 
-/// A diode peak detector with ideality `n`, V_L = Is·RL, at temperature `kelvin`.
+/// The saturation current's temperature exponent XTI of a Schottky barrier diode.
+// Source: the diode model parameter table of SPICE (Berkeley SPICE2/3 user's guide): XTI
+// defaults to 3.0 for a pn junction, 2.0 suggested for a Schottky barrier diode (from memory).
+pub const SCHOTTKY_XTI: f64 = 2.0;
+/// The barrier energy EG of a Schottky barrier diode, eV.
+// Source: the same table: EG 1.11 eV for silicon, 0.69 eV for a Schottky barrier diode,
+// 0.67 eV for germanium (from memory).
+pub const SCHOTTKY_EG_EV: f64 = 0.69;
+
+/// How the saturation current follows temperature: the exponent XTI and the energy EG.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SaturationLaw {
+    /// The exponent XTI.
+    pub xti: f64,
+    /// The energy EG, eV.
+    pub eg_ev: f64,
+}
+
+impl Default for SaturationLaw {
+    fn default() -> Self {
+        SaturationLaw {
+            xti: SCHOTTKY_XTI,
+            eg_ev: SCHOTTKY_EG_EV,
+        }
+    }
+}
+
+impl SaturationLaw {
+    /// Is(T)/Is(T0) for ideality `n`: (T/T0)^(XTI/n)·exp((T/T0 − 1)·EG/(n·Vt)), Vt = kT/q
+    /// at T, the law circuit simulators use.
+    pub fn ratio(self, kelvin: f64, t0_kelvin: f64, n: f64) -> f64 {
+        let r = kelvin / t0_kelvin;
+        let exponent = (r - 1.0) * self.eg_ev / (n * thermal_voltage(kelvin));
+        r.powf(self.xti / n) * exponent.exp()
+    }
+}
+
+/// A diode peak detector with ideality `n`, V_L = Is·RL, at temperature `kelvin`; its
+/// saturation current follows `law` with temperature, RL staying as it is.
 #[derive(Debug, Clone, PartialEq)]
 pub struct DiodeDetector {
     n: f64,
@@ -31,6 +69,7 @@ pub struct DiodeDetector {
     ohms: f64,
     n_vt: f64,
     span: (f64, f64),
+    law: SaturationLaw,
     covariance: Option<FitCovariance>,
 }
 
@@ -56,8 +95,33 @@ impl DiodeDetector {
             ohms,
             n_vt: n * thermal_voltage(kelvin),
             span,
+            law: SaturationLaw::default(),
             covariance: None,
         }
+    }
+
+    /// The same detector with its saturation current following `law`.
+    pub fn with_law(mut self, law: SaturationLaw) -> Self {
+        self.law = law;
+        self
+    }
+
+    /// The same diode at another junction temperature: V_L scaled by the saturation law,
+    /// Vt = kT/q at the new temperature. The covariance is kept: the parameters are still
+    /// the ones the points gave, now carried to that temperature.
+    pub fn at_kelvin(&self, kelvin: f64) -> DiodeDetector {
+        let vl = self.vl * self.law.ratio(kelvin, self.kelvin, self.n);
+        DiodeDetector {
+            vl,
+            kelvin,
+            n_vt: self.n * thermal_voltage(kelvin),
+            ..self.clone()
+        }
+    }
+
+    /// The saturation law it follows.
+    pub fn law(&self) -> SaturationLaw {
+        self.law
     }
 
     /// The same detector, carrying the covariance that `points` give its parameters
@@ -65,7 +129,14 @@ impl DiodeDetector {
     /// fit this is the fit's own covariance; for parameters given from elsewhere it is what
     /// the points say about parameters near those, and a misfit enlarges it through the
     /// residuals. Unchanged when V_L is infinite or the curve cannot be evaluated there.
-    pub fn with_covariance(mut self, points: &[CalPoint]) -> Self {
+    pub fn with_covariance(self, points: &[CalPoint]) -> Self {
+        let kelvins = vec![self.kelvin; points.len()];
+        self.with_covariance_at(points, &kelvins)
+    }
+
+    /// [`DiodeDetector::with_covariance`] for points taken at junction temperatures
+    /// `kelvins`, one per point, each read through the diode carried to its temperature.
+    pub fn with_covariance_at(mut self, points: &[CalPoint], kelvins: &[f64]) -> Self {
         let params = [self.n, self.vl.ln()];
         if !params.iter().all(|p| p.is_finite()) {
             return self;
@@ -73,8 +144,8 @@ impl DiodeDetector {
         let weighting = Weighting::of(points);
         let u = point_u_volts(points, weighting);
         let residuals = |p: [f64; 2], out: &mut [f64]| {
-            let model = DiodeDetector::new(p[0], p[1].exp(), self.kelvin, self.ohms, self.span);
-            fit_residuals(&model, points, &u, weighting, out)
+            let model = self.with_params(p);
+            fit_residuals(&model, points, kelvins, &u, weighting, out)
         };
         let mut r = vec![0.0; points.len()];
         if !residuals(params, &mut r) {
@@ -86,7 +157,7 @@ impl DiodeDetector {
         let weighted_sse = r.iter().map(|v| v * v).sum();
         let by_level = points
             .iter()
-            .zip(residuals_db(&self, points))
+            .zip(residuals_db_at(&self, points, kelvins))
             .map(|(p, e)| (p.dbm, e))
             .collect();
         self.covariance = Some(FitCovariance::new(
@@ -96,6 +167,20 @@ impl DiodeDetector {
             by_level,
         ));
         self
+    }
+
+    /// The same diode with parameters (n, ln V_L), without a covariance.
+    fn with_params(&self, p: [f64; 2]) -> DiodeDetector {
+        DiodeDetector::new(p[0], p[1].exp(), self.kelvin, self.ohms, self.span).with_law(self.law)
+    }
+
+    /// The diode at `kelvin`: itself at its own temperature, else carried there.
+    fn at_point_kelvin(&self, kelvin: f64) -> std::borrow::Cow<'_, DiodeDetector> {
+        if kelvin == self.kelvin {
+            std::borrow::Cow::Borrowed(self)
+        } else {
+            std::borrow::Cow::Owned(self.at_kelvin(kelvin))
+        }
     }
 
     /// Ideality factor n.
@@ -152,7 +237,22 @@ impl DiodeDetector {
     /// residuals divided by each point's uncertainty when every point has one, else on the
     /// dB residuals with equal weights. The fitted detector carries its covariance.
     pub fn fit(points: &[CalPoint], kelvin: f64, ohms: f64) -> Result<DiodeFit, ModelError> {
-        let sorted = ordered_points(points, ModelKind::Diode)?;
+        let kelvins = vec![kelvin; points.len()];
+        Self::fit_at(points, &kelvins, kelvin, ohms, SaturationLaw::default())
+    }
+
+    /// [`DiodeDetector::fit`] to points taken at junction temperatures `kelvins` (one per
+    /// point): n and V_L are those at `t0`, and each point is read through the diode
+    /// carried to its own temperature by `law`, so that sets taken at several
+    /// temperatures make one fit.
+    pub fn fit_at(
+        points: &[CalPoint],
+        kelvins: &[f64],
+        t0: f64,
+        ohms: f64,
+        law: SaturationLaw,
+    ) -> Result<DiodeFit, ModelError> {
+        let (sorted, sorted_kelvins) = ordered_at(points, kelvins, ModelKind::Diode)?;
         if let Some(index) = points.iter().position(|p| p.volts <= 0.0) {
             return Err(ModelError::NonPositiveOutput {
                 index,
@@ -160,12 +260,14 @@ impl DiodeDetector {
                 model: ModelKind::Diode,
             });
         }
-        let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
+        let span = level_span(&sorted);
         let weighting = Weighting::of(&sorted);
         let u = point_u_volts(&sorted, weighting);
-        let model = |p: [f64; 2]| DiodeDetector::new(p[0], p[1].exp(), kelvin, ohms, span);
-        let residuals =
-            |p: [f64; 2], out: &mut [f64]| fit_residuals(&model(p), &sorted, &u, weighting, out);
+        let model =
+            |p: [f64; 2]| DiodeDetector::new(p[0], p[1].exp(), t0, ohms, span).with_law(law);
+        let residuals = |p: [f64; 2], out: &mut [f64]| {
+            fit_residuals(&model(p), &sorted, &sorted_kelvins, &u, weighting, out)
+        };
         let bounds = [N_BOUNDS, (VL_BOUNDS.0.ln(), VL_BOUNDS.1.ln())];
         // Several valleys can exist; descending from the best few grid points finds the
         // deepest one.
@@ -175,7 +277,7 @@ impl DiodeDetector {
             .min_by(|a, b| a.sse.total_cmp(&b.sse))
             .expect("the grid always yields a start");
         let detector = model(fit.params);
-        let rms_db = rms(&residuals_db(&detector, &sorted));
+        let rms_db = rms(&residuals_db_at(&detector, &sorted, &sorted_kelvins));
         if !fit.converged || !fit.sse.is_finite() {
             return Err(ModelError::FitFailed {
                 model: ModelKind::Diode,
@@ -205,7 +307,7 @@ impl DiodeDetector {
             at_bound.push("vl");
         }
         Ok(DiodeFit {
-            detector: detector.with_covariance(&sorted),
+            detector: detector.with_covariance_at(&sorted, &sorted_kelvins),
             iterations: fit.iterations,
             at_bound,
         })
@@ -219,11 +321,13 @@ impl DiodeDetector {
 fn fit_residuals(
     model: &DiodeDetector,
     points: &[CalPoint],
+    kelvins: &[f64],
     u: &[f64],
     weighting: Weighting,
     out: &mut [f64],
 ) -> bool {
-    for ((slot, point), u) in out.iter_mut().zip(points).zip(u) {
+    for (((slot, point), u), &kelvin) in out.iter_mut().zip(points).zip(u).zip(kelvins) {
+        let model = model.at_point_kelvin(kelvin);
         *slot = match weighting {
             Weighting::Unweighted => model.dbm_at(point.volts) - point.dbm,
             Weighting::Relative | Weighting::Absolute => {
@@ -232,6 +336,24 @@ fn fit_residuals(
         };
     }
     out.iter().all(|r| r.is_finite())
+}
+
+/// Each point's error in dB, read through the diode at the point's own temperature.
+fn residuals_db_at(model: &DiodeDetector, points: &[CalPoint], kelvins: &[f64]) -> Vec<f64> {
+    points
+        .iter()
+        .zip(kelvins)
+        .map(|(p, &kelvin)| model.at_point_kelvin(kelvin).dbm_at(p.volts) - p.dbm)
+        .collect()
+}
+
+/// The lowest and highest applied level of the points.
+fn level_span(points: &[CalPoint]) -> (f64, f64) {
+    points
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
+            (lo.min(p.dbm), hi.max(p.dbm))
+        })
 }
 
 /// The best few points of a coarse grid of starting values, one per ideality factor.
@@ -289,9 +411,7 @@ impl Detector for DiodeDetector {
         }
         let covariance = self.covariance.as_ref()?;
         let volts = self.volts_at(detector_dbm);
-        let (kelvin, ohms, span) = (self.kelvin, self.ohms, self.span);
-        let dbm_with =
-            |p: [f64; 2]| DiodeDetector::new(p[0], p[1].exp(), kelvin, ohms, span).dbm_at(volts);
+        let dbm_with = |p: [f64; 2]| self.with_params(p).dbm_at(volts);
         let g = gradient(dbm_with, [self.n, self.vl.ln()]);
         Some(covariance.u_db(g, detector_dbm)).filter(|u| u.is_finite())
     }

@@ -9,12 +9,13 @@ pub mod covariance;
 pub mod diode;
 pub mod log_amp;
 pub mod table;
+pub mod thermal;
 
 use std::fmt;
 
 use thiserror::Error;
 
-pub use diode::DiodeDetector;
+pub use diode::{DiodeDetector, SaturationLaw};
 pub use log_amp::LogAmpDetector;
 pub use table::{Axis, TableDetector};
 

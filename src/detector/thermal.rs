@@ -1,0 +1,358 @@
+//! Detector models across temperature: calibration sets taken at several board
+//! temperatures, the model at any temperature between them, and whether a temperature
+//! lies outside what was calibrated.
+//!
+//! A diode carries its one set of parameters to any temperature by its saturation law; a
+//! table or log-amp model has one curve per calibrated temperature, and between two of
+//! them reads the dBm of each and takes the mean weighted linearly in temperature. For
+//! the log-amp line that keeps it a line whose intercept and 1/slope move linearly with
+//! temperature.
+
+use std::sync::Arc;
+
+use super::diode::DiodeDetector;
+use super::{ordered_points, CalPoint, Detector, ModelError, ModelKind};
+use crate::maths::numeric::solve_bracketed;
+
+/// How far beyond its calibrated temperatures a diode's saturation law is trusted, K.
+/// A choice: over ±10 K the law's XTI and EG move the reading by a few tenths of a dB at
+/// most in the square-law region, an error the budget's temperature term can still hold.
+pub const DIODE_LAW_REACH_K: f64 = 10.0;
+
+/// The points' temperatures, each distinct one with the indices of its points, coldest
+/// first.
+pub fn temperature_groups(kelvins: &[f64]) -> Vec<(f64, Vec<usize>)> {
+    let mut groups: Vec<(f64, Vec<usize>)> = Vec::new();
+    for (i, &k) in kelvins.iter().enumerate() {
+        match groups.iter_mut().find(|(g, _)| *g == k) {
+            Some((_, members)) => members.push(i),
+            None => groups.push((k, vec![i])),
+        }
+    }
+    groups.sort_by(|a, b| a.0.total_cmp(&b.0));
+    groups
+}
+
+/// The points in order (by temperature, then level) with their temperatures, after the
+/// checks of [`ordered_points`] within each temperature: a level may repeat across
+/// temperatures, never within one. Each temperature needs the points of a table (two),
+/// or of a log-amp line (three); all together, the model's own minimum. Indices in errors
+/// refer to the order given.
+pub fn ordered_at(
+    points: &[CalPoint],
+    kelvins: &[f64],
+    model: ModelKind,
+) -> Result<(Vec<CalPoint>, Vec<f64>), ModelError> {
+    let groups = temperature_groups(kelvins);
+    if groups.len() <= 1 {
+        let sorted = ordered_points(points, model)?;
+        let kelvin = kelvins.first().copied().unwrap_or(f64::NAN);
+        return Ok((sorted.clone(), vec![kelvin; sorted.len()]));
+    }
+    if points.len() < model.min_points() {
+        return Err(ModelError::TooFewPoints {
+            model,
+            need: model.min_points(),
+            got: points.len(),
+        });
+    }
+    let per_temperature = match model {
+        ModelKind::Log => ModelKind::Log,
+        ModelKind::Table | ModelKind::Diode => ModelKind::Table,
+    };
+    let mut sorted = Vec::with_capacity(points.len());
+    let mut sorted_kelvins = Vec::with_capacity(points.len());
+    for (kelvin, members) in groups {
+        let group: Vec<CalPoint> = members.iter().map(|&i| points[i]).collect();
+        let ordered = ordered_points(&group, per_temperature).map_err(|e| to_given(e, &members))?;
+        sorted_kelvins.extend(std::iter::repeat_n(kelvin, ordered.len()));
+        sorted.extend(ordered);
+    }
+    Ok((sorted, sorted_kelvins))
+}
+
+/// An error about a group's points, its indices made those of the points given.
+fn to_given(err: ModelError, members: &[usize]) -> ModelError {
+    let given = |i: usize| members.get(i).copied().unwrap_or(i);
+    match err {
+        ModelError::DuplicateLevel { first, second, dbm } => ModelError::DuplicateLevel {
+            first: given(first),
+            second: given(second),
+            dbm,
+        },
+        ModelError::NotMonotone { index, dbm, volts } => ModelError::NotMonotone {
+            index: given(index),
+            dbm,
+            volts,
+        },
+        ModelError::NonPositiveOutput {
+            index,
+            volts,
+            model,
+        } => ModelError::NonPositiveOutput {
+            index: given(index),
+            volts,
+            model,
+        },
+        other => other,
+    }
+}
+
+/// One calibrated temperature's curve, and the span its readings are flagged against.
+#[derive(Debug, Clone)]
+pub struct Curve {
+    /// The board temperature the curve was taken at, K.
+    pub kelvin: f64,
+    /// The curve.
+    pub detector: Arc<dyn Detector>,
+    /// Detector dBm: the calibrated levels, widened to where the curve reads its own
+    /// lowest and highest points (so that no point reads as outside its own span).
+    pub span_dbm: (f64, f64),
+}
+
+impl Curve {
+    /// The curve of `detector`, built from `points` (taken at `kelvin`).
+    pub fn new(kelvin: f64, detector: Arc<dyn Detector>, points: &[CalPoint]) -> Self {
+        let span_dbm = widened_span(detector.as_ref(), points);
+        Curve {
+            kelvin,
+            detector,
+            span_dbm,
+        }
+    }
+}
+
+/// The span of `detector`, widened to where it reads the lowest and highest of `points`.
+pub fn widened_span(detector: &dyn Detector, points: &[CalPoint]) -> (f64, f64) {
+    let (lo, hi) = detector.span_dbm();
+    let by_level = |a: &&CalPoint, b: &&CalPoint| a.dbm.total_cmp(&b.dbm);
+    let reads = |p: Option<&CalPoint>| {
+        p.map(|p| detector.dbm_at(p.volts))
+            .filter(|dbm| dbm.is_finite())
+    };
+    let lowest = reads(points.iter().min_by(by_level)).unwrap_or(lo);
+    let highest = reads(points.iter().max_by(by_level)).unwrap_or(hi);
+    (lo.min(lowest), hi.max(highest))
+}
+
+/// A detector model across temperature.
+#[derive(Debug, Clone)]
+pub enum ThermalModel {
+    /// A diode, carried from its calibration temperature by its saturation law.
+    Diode {
+        /// The diode at its reference temperature (its `kelvin`).
+        detector: DiodeDetector,
+        /// Its span, detector dBm.
+        span_dbm: (f64, f64),
+        /// The temperatures it is trusted at, K: the calibrated ones widened by
+        /// [`DIODE_LAW_REACH_K`].
+        range_k: (f64, f64),
+    },
+    /// Curves taken at one temperature each, coldest first.
+    Curves {
+        /// The curves.
+        curves: Vec<Curve>,
+        /// The temperature read when none is known: the first calibration set's, K.
+        reference_k: f64,
+    },
+}
+
+/// The model at one temperature.
+#[derive(Debug, Clone)]
+pub struct AtTemperature {
+    /// The curve there.
+    pub detector: Arc<dyn Detector>,
+    /// Its span, detector dBm.
+    pub span_dbm: (f64, f64),
+    /// The temperature lay outside the calibrated range: for curves, the nearest end's
+    /// curve was used; a diode's law was carried beyond its reach.
+    pub outside: bool,
+}
+
+impl ThermalModel {
+    /// A diode calibrated at the temperatures `kelvins` (those of its points).
+    pub fn diode(detector: DiodeDetector, span_dbm: (f64, f64), kelvins: &[f64]) -> Self {
+        let (lo, hi) = kelvins
+            .iter()
+            .fold((detector.kelvin(), detector.kelvin()), |(lo, hi), &k| {
+                (lo.min(k), hi.max(k))
+            });
+        ThermalModel::Diode {
+            detector,
+            span_dbm,
+            range_k: (lo - DIODE_LAW_REACH_K, hi + DIODE_LAW_REACH_K),
+        }
+    }
+
+    /// Curves taken at distinct temperatures (sorted here), read at `reference_k` when no
+    /// temperature is known. None without any curve.
+    pub fn curves(mut curves: Vec<Curve>, reference_k: f64) -> Option<Self> {
+        if curves.is_empty() {
+            return None;
+        }
+        curves.sort_by(|a, b| a.kelvin.total_cmp(&b.kelvin));
+        Some(ThermalModel::Curves {
+            curves,
+            reference_k,
+        })
+    }
+
+    /// The temperatures readings are calibrated for, K.
+    pub fn range_k(&self) -> (f64, f64) {
+        match self {
+            ThermalModel::Diode { range_k, .. } => *range_k,
+            ThermalModel::Curves { curves, .. } => {
+                (curves[0].kelvin, curves[curves.len() - 1].kelvin)
+            }
+        }
+    }
+
+    /// The temperature of the model as calibrated, K: what an uncompensated reading
+    /// assumes.
+    pub fn reference_kelvin(&self) -> f64 {
+        match self {
+            ThermalModel::Diode { detector, .. } => detector.kelvin(),
+            ThermalModel::Curves { reference_k, .. } => *reference_k,
+        }
+    }
+
+    /// The model at `kelvin`.
+    pub fn at_kelvin(&self, kelvin: f64) -> AtTemperature {
+        let (lo, hi) = self.range_k();
+        let outside = !(lo..=hi).contains(&kelvin);
+        match self {
+            ThermalModel::Diode {
+                detector, span_dbm, ..
+            } => AtTemperature {
+                detector: Arc::new(detector.at_kelvin(kelvin)),
+                span_dbm: *span_dbm,
+                outside,
+            },
+            ThermalModel::Curves { curves, .. } => {
+                let mut at = between(curves, kelvin.clamp(lo, hi));
+                at.outside = outside;
+                at
+            }
+        }
+    }
+}
+
+/// The curves blended at `kelvin`, which lies within their temperatures.
+fn between(curves: &[Curve], kelvin: f64) -> AtTemperature {
+    let warm = curves
+        .iter()
+        .position(|c| c.kelvin >= kelvin)
+        .unwrap_or(curves.len() - 1);
+    let on = |c: &Curve| AtTemperature {
+        detector: Arc::clone(&c.detector),
+        span_dbm: c.span_dbm,
+        outside: false,
+    };
+    if warm == 0 || curves[warm].kelvin == kelvin {
+        return on(&curves[warm]);
+    }
+    let (cold, warm) = (&curves[warm - 1], &curves[warm]);
+    let w = (kelvin - cold.kelvin) / (warm.kelvin - cold.kelvin);
+    let lerp = |a: f64, b: f64| a + w * (b - a);
+    let span_dbm = (
+        lerp(cold.span_dbm.0, warm.span_dbm.0),
+        lerp(cold.span_dbm.1, warm.span_dbm.1),
+    );
+    AtTemperature {
+        detector: Arc::new(Blend {
+            cold: Arc::clone(&cold.detector),
+            warm: Arc::clone(&warm.detector),
+            w,
+            span_dbm,
+        }),
+        span_dbm,
+        outside: false,
+    }
+}
+
+/// Two curves' readings, weighted `1 − w` and `w`.
+#[derive(Debug)]
+struct Blend {
+    cold: Arc<dyn Detector>,
+    warm: Arc<dyn Detector>,
+    w: f64,
+    span_dbm: (f64, f64),
+}
+
+impl Blend {
+    fn mix(&self, cold: f64, warm: f64) -> f64 {
+        cold + self.w * (warm - cold)
+    }
+}
+
+impl Detector for Blend {
+    fn kind(&self) -> ModelKind {
+        self.cold.kind()
+    }
+
+    fn dbm_at(&self, volts: f64) -> f64 {
+        self.mix(self.cold.dbm_at(volts), self.warm.dbm_at(volts))
+    }
+
+    /// Both curves run the same way, so the blend's volts for a level lie between the
+    /// volts each curve gives it.
+    fn volts_at(&self, dbm: f64) -> f64 {
+        let (a, b) = (self.cold.volts_at(dbm), self.warm.volts_at(dbm));
+        if a == b || !(a.is_finite() && b.is_finite()) {
+            return self.mix(a, b);
+        }
+        solve_bracketed(|v| self.dbm_at(v) - dbm, a.min(b), a.max(b))
+            .unwrap_or_else(|_| self.mix(a, b))
+    }
+
+    fn span_dbm(&self) -> (f64, f64) {
+        self.span_dbm
+    }
+
+    fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
+        match (
+            self.cold.model_u_db(detector_dbm),
+            self.warm.model_u_db(detector_dbm),
+        ) {
+            (Some(c), Some(w)) => Some(self.mix(c, w)),
+            (one, other) => one.or(other),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn groups_are_coldest_first_with_their_members() {
+        let groups = temperature_groups(&[310.0, 290.0, 310.0, 300.0, 290.0]);
+        assert_eq!(
+            groups,
+            vec![(290.0, vec![1, 4]), (300.0, vec![3]), (310.0, vec![0, 2])]
+        );
+    }
+
+    #[test]
+    fn a_level_may_repeat_across_temperatures_but_not_within_one() {
+        let p = |dbm, volts| CalPoint::new(dbm, volts);
+        let points = [p(-10.0, 0.1), p(0.0, 0.5), p(-10.0, 0.12), p(0.0, 0.55)];
+        let (sorted, kelvins) =
+            ordered_at(&points, &[290.0, 290.0, 310.0, 310.0], ModelKind::Table).unwrap();
+        assert_eq!(kelvins, [290.0, 290.0, 310.0, 310.0]);
+        assert_eq!(sorted[2].volts, 0.12);
+        let twice = [p(-10.0, 0.1), p(0.0, 0.5), p(-10.0, 0.12), p(-10.0, 0.13)];
+        let err = ordered_at(&twice, &[290.0, 290.0, 310.0, 310.0], ModelKind::Table).unwrap_err();
+        assert!(
+            matches!(
+                err,
+                ModelError::DuplicateLevel {
+                    first: 2,
+                    second: 3,
+                    ..
+                }
+            ),
+            "{err:?}"
+        );
+    }
+}
