@@ -11,11 +11,15 @@ use std::sync::Arc;
 use bitflags::bitflags;
 
 use crate::adc::Adc;
+use crate::detector::thermal::AtTemperature;
 use crate::detector::Detector;
 use crate::profile::{Limits, Profile};
 use crate::units::dbm_to_watts;
 
+mod compensation;
 mod table;
+
+pub use compensation::{Compensation, RETABLE_STEP_K};
 
 pub use table::{
     untally, CodeEntry, CodeRuns, CodeTable, TableTotals, CODE_BLOCK, TABLE_MAX_CODES,
@@ -41,12 +45,19 @@ bitflags! {
         /// A count above the ADC's full scale, which the ADC cannot give: a damaged sample
         /// or a profile with the wrong number of bits. Never calibrated.
         const OVER_FULL_SCALE = 1 << 6;
+        /// The board was outside the temperatures the model was calibrated at: read with
+        /// the nearest calibrated curve (or a diode's law beyond its reach), with no
+        /// stated uncertainty.
+        const TEMP_OUTSIDE = 1 << 7;
         /// The source was disconnected or silent for some or all of the interval.
         const GAP = 1 << 8;
         /// The source came back after a gap in this interval.
         const RECONNECT = 1 << 9;
         /// Samples were lost in this interval (dropped frames or ring overruns).
         const LOST = 1 << 10;
+        /// The board's temperature was not known (no good sensor reading yet, or the
+        /// sensor faulty): read uncompensated, at the calibration's own temperature.
+        const TEMP_UNKNOWN = 1 << 11;
     }
 }
 
@@ -60,7 +71,7 @@ pub const NOT_A_VALUE: Flags = Flags::BELOW_SPAN
 impl Flags {
     /// Short names, for logs and status lines.
     pub fn names(self) -> Vec<&'static str> {
-        const NAMES: [(Flags, &str); 10] = [
+        const NAMES: [(Flags, &str); 12] = [
             (Flags::ADC_CLIP, "clip"),
             (Flags::BELOW_SPAN, "below"),
             (Flags::ABOVE_SPAN, "above"),
@@ -68,6 +79,8 @@ impl Flags {
             (Flags::OVER_DETECTOR_MAX, "over-detector-max"),
             (Flags::OVER_RATED, "over-rated"),
             (Flags::OVER_FULL_SCALE, "over-full-scale"),
+            (Flags::TEMP_OUTSIDE, "temp-outside"),
+            (Flags::TEMP_UNKNOWN, "temp-unknown"),
             (Flags::GAP, "gap"),
             (Flags::RECONNECT, "reconnect"),
             (Flags::LOST, "lost"),
@@ -213,9 +226,14 @@ impl Calibration {
         let offset = profile.offset.at(freq_hz);
         let outside = correction.is_some_and(|c| c.outside) || offset.outside;
         let detector = Arc::clone(&profile.model.detector);
-        let span_dbm = model_span_dbm(profile, detector.as_ref());
+        // Points taken at other temperatures would widen the span wrongly: a model across
+        // temperature gives its own.
+        let span_dbm = match &profile.model.thermal {
+            Some(thermal) => thermal.at_kelvin(thermal.reference_kelvin()).span_dbm,
+            None => model_span_dbm(profile, detector.as_ref()),
+        };
         let span_volts = (detector.volts_at(span_dbm.0), detector.volts_at(span_dbm.1));
-        let mut cal = Calibration {
+        let cal = Calibration {
             adc: profile.adc.clone(),
             detector,
             freq_hz,
@@ -231,13 +249,50 @@ impl Calibration {
             limits: profile.limits,
             table: Arc::new(CodeTable::empty()),
         };
-        let codes = cal.adc.full_scale() as u32 + 1;
-        let span_top_dbm = cal.span_dbm().1;
+        cal.tabled()
+    }
+
+    /// The same set-up with the detector model `at` one board temperature: its curve, its
+    /// span, and the `temp-outside` flag on every reading when the temperature lay
+    /// outside the calibrated ones. The per-code table is built afresh.
+    pub fn at_temperature(&self, at: &AtTemperature) -> Calibration {
+        let detector = Arc::clone(&at.detector);
+        let span_volts = (
+            detector.volts_at(at.span_dbm.0),
+            detector.volts_at(at.span_dbm.1),
+        );
+        let mut fixed_flags = self.fixed_flags - Flags::TEMP_OUTSIDE;
+        fixed_flags.set(Flags::TEMP_OUTSIDE, at.outside);
+        Calibration {
+            detector,
+            span_dbm: at.span_dbm,
+            span_volts,
+            fixed_flags,
+            table: Arc::new(CodeTable::empty()),
+            ..self.clone()
+        }
+        .tabled()
+    }
+
+    /// The same calibration with `flags` on every reading.
+    pub fn with_fixed_flags(&self, flags: Flags) -> Calibration {
+        Calibration {
+            fixed_flags: self.fixed_flags | flags,
+            table: Arc::new(CodeTable::empty()),
+            ..self.clone()
+        }
+        .tabled()
+    }
+
+    /// With its per-code table built.
+    fn tabled(mut self) -> Self {
+        let codes = self.adc.full_scale() as u32 + 1;
+        let span_top_dbm = self.span_dbm().1;
         let table = CodeTable::build(codes, |code| {
-            CodeEntry::of(&cal.reading(f64::from(code)), span_top_dbm)
+            CodeEntry::of(&self.reading(f64::from(code)), span_top_dbm)
         });
-        cal.table = Arc::new(table);
-        cal
+        self.table = Arc::new(table);
+        self
     }
 
     /// The precomputed entries, one per ADC code from 0 (empty above 16 bits).

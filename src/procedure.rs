@@ -508,6 +508,16 @@ impl Session {
             },
             n: None,
             vl: None,
+            xti: if model == ModelKind::Diode {
+                base_model.xti
+            } else {
+                None
+            },
+            eg_ev: if model == ModelKind::Diode {
+                base_model.eg_ev
+            } else {
+                None
+            },
             slope: None,
             intercept: None,
             points: self
@@ -591,6 +601,8 @@ pub fn base_profile(name: &str, adc: RawAdc, ohms: f64, reference_hz: f64) -> Ra
             temperature: None,
             n: None,
             vl: None,
+            xti: None,
+            eg_ev: None,
             slope: None,
             intercept: None,
             points: Vec::new(),

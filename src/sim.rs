@@ -137,14 +137,22 @@ impl Scenario {
     }
 }
 
-/// Diode parameters when the profile's detector is a diode, so temperature can act on it.
-#[derive(Debug, Clone, Copy)]
-struct DiodeParams {
-    n: f64,
-    vl: f64,
-    kelvin: f64,
-    ohms: f64,
-    span: (f64, f64),
+/// The profile's diode at its calibration temperature, when its model is one.
+fn profile_diode(profile: &Profile) -> Option<DiodeDetector> {
+    let model = &profile.model;
+    match (model.kind, model.param("n"), model.param("vl")) {
+        (ModelKind::Diode, Some(n), Some(vl)) => Some(
+            DiodeDetector::new(
+                n,
+                vl,
+                profile.raw.model.temperature.unwrap_or(300.0),
+                profile.ohms,
+                model.detector.span_dbm(),
+            )
+            .with_law(profile.diode_law()),
+        ),
+        _ => None,
+    }
 }
 
 /// Where a simulator's true power comes from.
@@ -164,7 +172,9 @@ pub struct Simulator {
     rate_hz: f64,
     adc: Adc,
     detector: Arc<dyn Detector>,
-    diode: Option<DiodeParams>,
+    /// The profile's diode at its calibration temperature, when it is one, so that the
+    /// board's temperature can act on it through the saturation law.
+    diode: Option<DiodeDetector>,
     correction: Option<FrequencyCorrection>,
     offset: Offset,
     rng: Pcg64,
@@ -197,23 +207,13 @@ impl Simulator {
         rate_hz: f64,
         seed: u64,
     ) -> Self {
-        let model = &profile.model;
-        let diode = match (model.kind, model.param("n"), model.param("vl")) {
-            (ModelKind::Diode, Some(n), Some(vl)) => Some(DiodeParams {
-                n,
-                vl,
-                kelvin: profile.raw.model.temperature.unwrap_or(300.0),
-                ohms: profile.ohms,
-                span: model.detector.span_dbm(),
-            }),
-            _ => None,
-        };
+        let diode = profile_diode(profile);
         Simulator {
             scenario,
             drive,
             rate_hz,
             adc: profile.adc.clone(),
-            detector: Arc::clone(&model.detector),
+            detector: Arc::clone(&profile.model.detector),
             diode,
             correction: profile.frequency_correction.clone(),
             offset: profile.offset.clone(),
@@ -294,22 +294,31 @@ impl Simulator {
 
     /// The detector output the scenario gives at time `t`, before the ADC.
     pub fn detector_volts(&self, t: f64) -> f64 {
-        let (hz, true_dbm, board_kelvin) = match &self.drive {
-            Drive::Story(scenario) => (
-                scenario.frequency_at(t),
-                scenario.true_dbm(t),
-                self.diode.map(|d| scenario.board_kelvin(t, d.kelvin)),
-            ),
-            Drive::Arm(arm) => (arm.hz(), arm.true_dbm(t), self.diode.map(|d| d.kelvin)),
+        let (hz, true_dbm) = match &self.drive {
+            Drive::Story(scenario) => (scenario.frequency_at(t), scenario.true_dbm(t)),
+            Drive::Arm(arm) => (arm.hz(), arm.true_dbm(t)),
         };
         let at_detector = true_dbm - self.offset.at(hz).db;
         // The correction is true minus indicated, so the detector indicates that much less.
         let indicated = at_detector - self.correction.as_ref().map_or(0.0, |c| c.at(hz).db);
-        match (self.diode, board_kelvin) {
-            (Some(d), Some(kelvin)) => {
-                DiodeDetector::new(d.n, d.vl, kelvin, d.ohms, d.span).volts_at(indicated)
-            }
-            _ => self.detector.volts_at(indicated),
+        match &self.diode {
+            Some(diode) => match self.board_kelvin(t) {
+                Some(kelvin) if kelvin != diode.kelvin() => {
+                    diode.at_kelvin(kelvin).volts_at(indicated)
+                }
+                _ => diode.volts_at(indicated),
+            },
+            None => self.detector.volts_at(indicated),
+        }
+    }
+
+    /// The board's temperature at `t`, K, when a scenario warms it (an arm of the matching
+    /// bench stays at its calibration temperature).
+    pub fn board_kelvin(&self, t: f64) -> Option<f64> {
+        let calibrated = self.diode.as_ref().map(|d| d.kelvin())?;
+        match &self.drive {
+            Drive::Story(scenario) => Some(scenario.board_kelvin(t, calibrated)),
+            Drive::Arm(_) => None,
         }
     }
 

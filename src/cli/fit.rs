@@ -255,6 +255,8 @@ fn raw_profile(args: &FitSettings, rows: &[PointRow], name: String) -> RawProfil
             temperature: args.temperature,
             n: None,
             vl: None,
+            xti: None,
+            eg_ev: None,
             slope: None,
             intercept: None,
             points: rows.iter().map(|r| r.point.clone()).collect(),

@@ -216,6 +216,15 @@ impl ThermalModel {
         }
     }
 
+    /// How much a reading at the detector-input level `detector_dbm` moves per kelvin of
+    /// error in the board temperature `kelvin`, dB/K: the volts that level gives there,
+    /// read through the model half a kelvin either side.
+    pub fn db_per_kelvin(&self, detector_dbm: f64, kelvin: f64) -> f64 {
+        let volts = self.at_kelvin(kelvin).detector.volts_at(detector_dbm);
+        let read = |k: f64| self.at_kelvin(k).detector.dbm_at(volts);
+        read(kelvin + 0.5) - read(kelvin - 0.5)
+    }
+
     /// The model at `kelvin`.
     pub fn at_kelvin(&self, kelvin: f64) -> AtTemperature {
         let (lo, hi) = self.range_k();

@@ -100,6 +100,8 @@ pub const PROFILE_SCHEMA: Schema = &[
             "temperature",
             "n",
             "vl",
+            "xti",
+            "eg_ev",
             "slope",
             "intercept",
             "points",

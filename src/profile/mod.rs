@@ -16,6 +16,8 @@ use thiserror::Error;
 
 use crate::adc::Adc;
 use crate::correction::{FreqTable, FrequencyCorrection, Offset};
+use crate::detector::thermal::ThermalModel;
+use crate::detector::SaturationLaw;
 use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind, PointU};
 use crate::units::Level;
 use locate::{line_col, FieldPath, Located};
@@ -143,6 +145,9 @@ pub struct Model {
     pub notes: Vec<String>,
     /// The model's parameters by their profile field names (`slope`, `intercept`, `n`, `vl`).
     pub params: Vec<(&'static str, f64)>,
+    /// The model across board temperature, when the profile reads one; `detector` is then
+    /// the model at its reference temperature.
+    pub thermal: Option<Arc<ThermalModel>>,
 }
 
 impl Model {
@@ -245,6 +250,16 @@ pub struct UncertaintyInputs {
 }
 
 impl Profile {
+    /// The saturation law of the profile's diode: its `xti` and `eg_ev`, a Schottky
+    /// diode's where not given (the loader has checked them).
+    pub fn diode_law(&self) -> SaturationLaw {
+        let default = SaturationLaw::default();
+        SaturationLaw {
+            xti: self.raw.model.xti.unwrap_or(default.xti),
+            eg_ev: self.raw.model.eg_ev.unwrap_or(default.eg_ev),
+        }
+    }
+
     /// The points as the models take them.
     pub fn cal_points(&self) -> Vec<CalPoint> {
         self.points.iter().map(ProfilePoint::cal_point).collect()

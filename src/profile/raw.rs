@@ -77,6 +77,12 @@ pub struct RawModel {
     /// Diode V_L = Is·RL, volts (fitted from the points when absent).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub vl: Option<f64>,
+    /// Diode saturation current's temperature exponent XTI (default 2, a Schottky's).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub xti: Option<f64>,
+    /// Diode barrier energy EG, eV (default 0.69, a Schottky's).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub eg_ev: Option<f64>,
     /// Log-amp slope, volts per dB (fitted when absent).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub slope: Option<f64>,

@@ -13,7 +13,7 @@ use super::{
 };
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{CorrectionKind, FreqTable, FrequencyCorrection, Offset, TableError};
-use crate::detector::diode::{N_BOUNDS, VL_BOUNDS};
+use crate::detector::diode::{SaturationLaw, N_BOUNDS, VL_BOUNDS};
 use crate::detector::{
     ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
     ModelKind, PointU, TableDetector, MAX_FIT_RMS_DB,
@@ -82,6 +82,18 @@ const VL: Bounds = Bounds {
     lo: VL_BOUNDS.0,
     hi: VL_BOUNDS.1,
     what: "V_L = Is·RL is a voltage above 0, from 1 µV to 10 kV",
+};
+const XTI: Bounds = Bounds {
+    lo: 0.0,
+    hi: 10.0,
+    what: "the saturation current's temperature exponent XTI lies from 0 to 10 (2 for a \
+           Schottky diode, 3 for a pn junction)",
+};
+const EG_EV: Bounds = Bounds {
+    lo: 0.1,
+    hi: 3.0,
+    what: "the barrier energy EG is in eV, from 0.1 to 3 (0.69 for a Schottky diode, 1.11 \
+           for silicon)",
 };
 
 /// Collects problems as they are found, so a profile reports all of them at once.
@@ -596,11 +608,13 @@ fn check_agreement(check: &mut Checker, model: &Model, points: &[ProfilePoint]) 
 
 /// Fields that only some models take must not appear with the others.
 fn check_fields_belong(check: &mut Checker, raw: &RawModel, kind: ModelKind) {
-    let owners: [(&str, bool, ModelKind); 6] = [
+    let owners: [(&str, bool, ModelKind); 8] = [
         ("axis", raw.axis.is_some(), ModelKind::Table),
         ("temperature", raw.temperature.is_some(), ModelKind::Diode),
         ("n", raw.n.is_some(), ModelKind::Diode),
         ("vl", raw.vl.is_some(), ModelKind::Diode),
+        ("xti", raw.xti.is_some(), ModelKind::Diode),
+        ("eg_ev", raw.eg_ev.is_some(), ModelKind::Diode),
         ("slope", raw.slope.is_some(), ModelKind::Log),
         ("intercept", raw.intercept.is_some(), ModelKind::Log),
     ];
@@ -804,6 +818,7 @@ fn intercept_fits(intercept: f64) -> bool {
 fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64) -> Option<Model> {
     let path = FieldPath::key("model");
     let kelvin = check_temperature(check, raw.temperature.unwrap_or(300.0))?;
+    let law = check_law(check, raw)?;
     if let Some(index) = cal.iter().position(|p| p.volts <= 0.0) {
         model_problem(
             check,
@@ -817,7 +832,8 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
     }
     match (raw.n, raw.vl) {
         (None, None) => {
-            let fit = DiodeDetector::fit(cal, kelvin, ohms)
+            let kelvins = vec![kelvin; cal.len()];
+            let fit = DiodeDetector::fit_at(cal, &kelvins, kelvin, ohms, law)
                 .map_err(|e| model_problem(check, e))
                 .ok()?;
             let notes = fit
@@ -836,7 +852,9 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
             let vl = check.within(path.then("vl"), vl, &VL);
             let (n, vl) = (n?, vl?);
             let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
-            let detector = DiodeDetector::new(n, vl, kelvin, ohms, span).with_covariance(&sorted);
+            let detector = DiodeDetector::new(n, vl, kelvin, ohms, span)
+                .with_law(law)
+                .with_covariance(&sorted);
             Some(model(
                 Arc::new(detector),
                 None,
@@ -853,6 +871,22 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
             None
         }
     }
+}
+
+/// The diode's saturation law: the profile's XTI and EG, a Schottky's where not given.
+fn check_law(check: &mut Checker, raw: &RawModel) -> Option<SaturationLaw> {
+    let path = FieldPath::key("model");
+    let default = SaturationLaw::default();
+    let xti = check.within(path.then("xti"), raw.xti.unwrap_or(default.xti), &XTI);
+    let eg_ev = check.within(
+        path.then("eg_ev"),
+        raw.eg_ev.unwrap_or(default.eg_ev),
+        &EG_EV,
+    );
+    Some(SaturationLaw {
+        xti: xti?,
+        eg_ev: eg_ev?,
+    })
 }
 
 fn check_temperature(check: &mut Checker, kelvin: f64) -> Option<f64> {
@@ -886,6 +920,7 @@ fn model(
         fitted_at_load,
         notes,
         params,
+        thermal: None,
     }
 }
 
