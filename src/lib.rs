@@ -9,6 +9,8 @@
 //! - [`correction`]: frequency correction and the offset of what sits in front;
 //! - [`calibration`]: the chain that turns one count into a flagged reading;
 //! - [`stats`]: power-domain statistics that merge;
+//! - [`thermal`]: the board temperature channel: sensor counts to °C, faults at the rails,
+//!   the averaging window;
 //! - [`sim`]: the built-in simulator, from a scenario's true power to ADC counts;
 //! - [`events`]: what a source sends down the ring: samples in source time, link events;
 //! - [`link`]: link-health counters shared with reader threads;
@@ -44,5 +46,6 @@ pub mod report;
 pub mod resume;
 pub mod sim;
 pub mod stats;
+pub mod thermal;
 pub mod uncertainty;
 pub mod units;
