@@ -1,5 +1,6 @@
 //! The calibration points file: CSV with a header naming `applied` and `counts` (in any
-//! order, each once; `std_counts` and `samples` may follow), one measured point per row.
+//! order, each once; `std_counts`, `samples` and `temp_c`, the board temperature in °C,
+//! may follow), one measured point per row.
 //! `applied` is a level with its unit (`-10dBm`, `2.5mW`, `0.5Vpk`, `1.25Vdc`); `counts`
 //! the mean ADC reading at it. Lines starting with `#` are comments; those of the form
 //! `# key = value` with a key of [`read_settings`] carry the bench settings the points
@@ -38,6 +39,7 @@ struct Columns {
     counts: usize,
     std_counts: Option<usize>,
     samples: Option<usize>,
+    temp_c: Option<usize>,
 }
 
 /// Reads a points file given as bytes.
@@ -94,6 +96,7 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
             )
         })?;
         let std_counts = optional(columns.std_counts.map(cell), "std_counts", line, &fail)?;
+        let temp_c = optional(columns.temp_c.map(cell), "temp_c", line, &fail)?;
         let samples = match columns.samples.map(cell).filter(|s| !s.is_empty()) {
             None => None,
             Some(s) => Some(s.parse::<u64>().ok().filter(|&n| n >= 1).ok_or_else(|| {
@@ -110,6 +113,7 @@ pub fn read_points(bytes: &[u8], origin: &str) -> Result<Vec<PointRow>, PointsEr
                 counts,
                 std_counts,
                 samples,
+                temp_c,
             },
             line,
         });
@@ -133,7 +137,7 @@ fn find_columns(headers: &csv::StringRecord) -> Result<Columns, String> {
             .map(|(i, _)| i + 1)
             .collect::<Vec<_>>()
     };
-    for name in ["applied", "counts", "std_counts", "samples"] {
+    for name in ["applied", "counts", "std_counts", "samples", "temp_c"] {
         if let [first, second, ..] = named(name)[..] {
             return Err(format!(
                 "two `{name}` columns (columns {first} and {second}); keep one, so that it is \
@@ -153,6 +157,7 @@ fn find_columns(headers: &csv::StringRecord) -> Result<Columns, String> {
         counts: find("counts").ok_or_else(|| missing("counts"))?,
         std_counts: find("std_counts"),
         samples: find("samples"),
+        temp_c: find("temp_c"),
     })
 }
 

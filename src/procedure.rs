@@ -528,6 +528,7 @@ impl Session {
                     counts: p.measured.counts,
                     std_counts: Some(p.measured.std_counts),
                     samples: Some(p.measured.samples),
+                    temp_c: None,
                 })
                 .collect(),
         };
@@ -611,6 +612,7 @@ pub fn base_profile(name: &str, adc: RawAdc, ohms: f64, reference_hz: f64) -> Ra
         offset: None,
         limits: None,
         uncertainty: None,
+        temperature: None,
     }
 }
 

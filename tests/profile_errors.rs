@@ -316,6 +316,120 @@ const CASES: &[(&str, usize, &str, &str)] = &[
         "frequency_correction.kind",
         "do not rise with frequency",
     ),
+    // [temperature] and the points' temp_c; source: the rules in docs/profiles.md
+    // ("[temperature]"): each sensor kind takes only its own keys, each value within its
+    // range, the channel counted from 1, temp_c on every point or on none.
+    (
+        "temperature_beta_key_on_linear",
+        20,
+        "temperature.beta_k",
+        "`beta_k` belongs to the ntc-beta sensor, but this table's sensor is linear",
+    ),
+    (
+        "temperature_linear_key_on_beta",
+        21,
+        "temperature.volts_at_0c",
+        "belongs to the linear sensor, but this table's sensor is ntc-beta",
+    ),
+    (
+        "temperature_degrees_key_on_steinhart_hart",
+        22,
+        "temperature.c_per_count",
+        "belongs to the degrees sensor, but this table's sensor is ntc-steinhart-hart",
+    ),
+    (
+        "temperature_ntc_key_on_degrees",
+        18,
+        "temperature.placement",
+        "belongs to the ntc-beta and ntc-steinhart-hart sensors, but this table's sensor is degrees",
+    ),
+    (
+        "temperature_beta_out_of_range",
+        19,
+        "temperature.beta_k",
+        "3.95 is out of range; β lies from 500 to 20000 K",
+    ),
+    (
+        "temperature_steinhart_hart_b_negative",
+        19,
+        "temperature.b",
+        "above 0",
+    ),
+    // Source: the Steinhart–Hart law (from memory, a common 10 kΩ set): at 10 Ω it gives
+    // 1/T = 1.5594e-3 K⁻¹, 368 °C, so mid-scale reads no board temperature.
+    (
+        "temperature_fixed_ohms_in_kilohms",
+        21,
+        "temperature.fixed_ohms",
+        "reads 368.",
+    ),
+    (
+        "temperature_linear_slope_zero",
+        18,
+        "temperature.volts_per_c",
+        "the output's slope is not zero",
+    ),
+    (
+        "temperature_degrees_scale_negative",
+        18,
+        "temperature.c_per_count",
+        "the scale is above 0",
+    ),
+    (
+        "temperature_unknown_sensor",
+        17,
+        "temperature.sensor",
+        "did you mean `ntc-beta`",
+    ),
+    (
+        "temperature_unknown_placement",
+        21,
+        "temperature.placement",
+        "unknown placement `to-gnd`",
+    ),
+    (
+        "temperature_missing_r0",
+        16,
+        "temperature.r0_ohms",
+        "the ntc-beta sensor needs `r0_ohms`",
+    ),
+    (
+        "temperature_missing_sensor",
+        16,
+        "temperature.sensor",
+        "required and missing",
+    ),
+    (
+        "temperature_channel_zero",
+        17,
+        "temperature.channel",
+        "counted from 1",
+    ),
+    (
+        "temperature_window_too_long",
+        18,
+        "temperature.window_s",
+        "up to 600 s",
+    ),
+    ("temperature_u_c_negative", 18, "temperature.u_c", "0 °C or more"),
+    (
+        "temperature_unknown_key",
+        19,
+        "temperature.beta",
+        "did you mean `beta_k`",
+    ),
+    (
+        "temp_c_on_some_points",
+        12,
+        "model.points[1].temp_c",
+        "this point has no `temp_c` but model.points[0] has one",
+    ),
+    (
+        "temp_c_out_of_range",
+        12,
+        "model.points[1].temp_c",
+        "298.15 is out of range; a board temperature lies from -55 to 150 °C",
+    ),
 ];
 
 #[test]
@@ -429,6 +543,48 @@ fn shipped_profiles_load() {
         let profile = load_profile(Path::new(&path)).unwrap_or_else(|e| panic!("{e}"));
         assert_eq!(profile.name, name);
     }
+}
+
+// Source: the β equation (../shared/REFERENCES.md, from memory; recomputed): a 10 kΩ,
+// β 3950 K thermistor reads 33 620.6 Ω at 0 °C; to ground under a 10 kΩ fixed resistor
+// the pin sits at 33 620.6/43 620.6 of the reference, 3156.2 counts of 4095. The other
+// keys take the defaults docs/profiles.md gives: channel 2, to-ground, t0_c 25 °C,
+// window_s 5 s, u_c 0.5 °C.
+#[test]
+fn a_profile_with_a_temperature_table_loads_with_its_defaults_and_renders_back() {
+    use dbtrail::thermal::{Ntc, NtcLaw, NtcPlacement, Sensor};
+    let path = format!(
+        "{}/tests/profiles/good/board-ntc.toml",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let profile = load_profile(Path::new(&path)).unwrap_or_else(|e| panic!("{e}"));
+    let channel = profile.temperature.expect("a temperature channel");
+    assert_eq!(
+        (channel.channel, channel.window_s, channel.u_c),
+        (1, 5.0, 0.5)
+    );
+    let Sensor::Ntc(Ntc {
+        law: NtcLaw::Beta { t0_c, .. },
+        placement,
+        fixed_ohms,
+    }) = channel.sensor
+    else {
+        panic!("an ntc-beta sensor: {:?}", channel.sensor);
+    };
+    assert_eq!(
+        (t0_c, placement, fixed_ohms),
+        (25.0, NtcPlacement::ToGround, 1e4)
+    );
+    let at_0c = channel.counts_for(&profile.adc, 0.0);
+    assert!((at_0c - 3156.2).abs() < 0.05, "{at_0c}");
+    assert!(channel.celsius(&profile.adc, 3156).unwrap().abs() < 0.02);
+    let temps: Vec<Option<f64>> = profile.points.iter().map(|p| p.temp_c).collect();
+    assert_eq!(temps, [Some(24.8), Some(25.1), Some(25.6)]);
+
+    let rendered = dbtrail::profile::render_profile(&profile.raw, "again").unwrap();
+    let again = parse_profile(&rendered, "again.toml").unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(again.temperature, Some(channel));
+    assert_eq!(again.points, profile.points);
 }
 
 #[test]

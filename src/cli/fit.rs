@@ -265,6 +265,7 @@ fn raw_profile(args: &FitSettings, rows: &[PointRow], name: String) -> RawProfil
         offset: None,
         limits: None,
         uncertainty: None,
+        temperature: None,
     }
 }
 

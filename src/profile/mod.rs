@@ -19,6 +19,7 @@ use crate::correction::{FreqTable, FrequencyCorrection, Offset};
 use crate::detector::thermal::ThermalModel;
 use crate::detector::SaturationLaw;
 use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind, PointU};
+use crate::thermal::TemperatureChannel;
 use crate::units::Level;
 use locate::{line_col, FieldPath, Located};
 pub use raw::RawProfile;
@@ -171,6 +172,8 @@ pub struct ProfilePoint {
     pub dbm: f64,
     /// Mean ADC counts.
     pub counts: f64,
+    /// The board temperature when the point was taken, °C (on every point or on none).
+    pub temp_c: Option<f64>,
     /// Detector output volts for those counts.
     pub volts: f64,
     /// How well those volts are known (from `std_counts` and `samples`).
@@ -223,6 +226,8 @@ pub struct Profile {
     pub limits: Limits,
     /// The inputs of the uncertainty budget (the `[uncertainty]` table).
     pub uncertainty: UncertaintyInputs,
+    /// The stream's board temperature channel (the `[temperature]` table), if any.
+    pub temperature: Option<TemperatureChannel>,
     /// The fields as written.
     pub raw: RawProfile,
 }

@@ -38,6 +38,9 @@ pub struct RawProfile {
     /// Inputs of the uncertainty budget that cannot be measured here.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub uncertainty: Option<RawUncertainty>,
+    /// The stream's board temperature channel.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub temperature: Option<RawTemperature>,
 }
 
 /// `[adc]`.
@@ -108,6 +111,63 @@ pub struct RawPoint {
     /// How many samples were averaged, if known.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub samples: Option<u64>,
+    /// The board temperature when the point was taken, °C.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub temp_c: Option<f64>,
+}
+
+/// `[temperature]`: the sensor on one channel of the stream. Only `sensor` is required;
+/// which other keys apply depends on it.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawTemperature {
+    /// 1-based stream channel (default 2).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub channel: Option<i64>,
+    /// `ntc-beta`, `ntc-steinhart-hart`, `linear` or `degrees`.
+    pub sensor: String,
+    /// ntc-beta: resistance at `t0_c`, ohms.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub r0_ohms: Option<f64>,
+    /// ntc-beta: the temperature `r0_ohms` is given at, °C (default 25).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub t0_c: Option<f64>,
+    /// ntc-beta: β, kelvin.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub beta_k: Option<f64>,
+    /// ntc-steinhart-hart: a.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub a: Option<f64>,
+    /// ntc-steinhart-hart: b.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub b: Option<f64>,
+    /// ntc-steinhart-hart: c.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub c: Option<f64>,
+    /// Both NTC kinds: the divider's fixed resistor, ohms.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fixed_ohms: Option<f64>,
+    /// Both NTC kinds: `to-ground` (default) or `to-supply`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub placement: Option<String>,
+    /// linear: volts per °C.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub volts_per_c: Option<f64>,
+    /// linear: output volts at 0 °C.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub volts_at_0c: Option<f64>,
+    /// degrees: °C per count (default 0.01).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub c_per_count: Option<f64>,
+    /// degrees: °C at count 0 (default −273.15: hundredths of a kelvin).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub c_at_zero: Option<f64>,
+    /// The averaging window, seconds (default 5).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub window_s: Option<f64>,
+    /// Standard uncertainty of the board temperature, °C (default 0.5).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub u_c: Option<f64>,
 }
 
 /// `[frequency_correction]`.

@@ -1,6 +1,8 @@
 //! The second stage of loading: every value of a raw profile checked, the detector model
 //! built, and each problem tied to its field path.
 
+mod temperature;
+
 use std::sync::Arc;
 
 use super::locate::{did_you_mean, FieldPath};
@@ -163,6 +165,13 @@ impl Checker {
     }
 }
 
+/// "did you mean `x`? " when `word` is close to one of `names`, else nothing.
+fn suggestion(word: &str, names: &[&str]) -> String {
+    did_you_mean(word, names)
+        .map(|c| format!("did you mean `{c}`? "))
+        .unwrap_or_default()
+}
+
 /// A number as a person wrote it when it is of everyday size, else in exponent form
 /// (`1e-300`, not three hundred zeros).
 fn shown(value: f64) -> String {
@@ -202,6 +211,10 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
         .as_ref()
         .map(|table| check_uncertainty(&mut check, table))
         .unwrap_or_default();
+    let temperature = raw
+        .temperature
+        .as_ref()
+        .and_then(|table| temperature::check_temperature_channel(&mut check, table));
     let model_and_points = match (adc.as_ref(), ohms) {
         (Some(adc), Some(ohms)) => check_model(&mut check, &raw.model, adc, ohms),
         _ => None,
@@ -227,6 +240,7 @@ pub(super) fn validate(raw: RawProfile) -> Result<Profile, Found> {
                 offset,
                 limits,
                 uncertainty,
+                temperature,
                 raw,
             })
         }
@@ -308,9 +322,7 @@ fn check_frequency_correction(
         None => Some(CorrectionKind::Table),
         Some(name) => CorrectionKind::from_name(name).or_else(|| {
             let names = CorrectionKind::NAMES.map(|(n, _)| n);
-            let hint = did_you_mean(name, &names)
-                .map(|c| format!("did you mean `{c}`? "))
-                .unwrap_or_default();
+            let hint = suggestion(name, &names);
             check.fail(
                 path.then("kind"),
                 format!(
@@ -528,10 +540,7 @@ fn check_model(
 ) -> Option<(Model, Vec<ProfilePoint>)> {
     let path = FieldPath::key("model");
     let Some(kind) = ModelKind::from_name(&raw.kind) else {
-        let names = ["table", "log", "diode"];
-        let hint = did_you_mean(&raw.kind, &names)
-            .map(|c| format!("did you mean `{c}`? "))
-            .unwrap_or_default();
+        let hint = suggestion(&raw.kind, &["table", "log", "diode"]);
         check.fail(
             path.then("kind"),
             format!(
@@ -652,6 +661,7 @@ fn check_points(
         return None;
     }
     let before = check.found.len();
+    temperature::check_point_temperatures(check, &path, &raw.points);
     let mut points = Vec::with_capacity(raw.points.len());
     for (i, point) in raw.points.iter().enumerate() {
         let level = parse_level(&point.applied, true)
@@ -711,6 +721,7 @@ fn check_points(
                 level,
                 dbm,
                 counts,
+                temp_c: point.temp_c,
                 volts: adc.volts(counts),
                 u_volts: PointU::from_counts(
                     point.std_counts,
