@@ -29,6 +29,14 @@ impl Adc {
         }
     }
 
+    /// The same front end with `zero_counts` as its zero (one taken with the RF off).
+    pub fn with_zero(&self, zero_counts: f64) -> Adc {
+        Adc {
+            zero_counts,
+            ..self.clone()
+        }
+    }
+
     /// Resolution in bits.
     pub fn bits(&self) -> u8 {
         self.bits

@@ -11,9 +11,10 @@ use std::sync::Arc;
 use bitflags::bitflags;
 
 use crate::adc::Adc;
-use crate::detector::thermal::AtTemperature;
+use crate::detector::thermal::{AtTemperature, ThermalModel};
 use crate::detector::Detector;
 use crate::profile::{Limits, Profile};
+use crate::thermal::TemperatureChannel;
 use crate::units::dbm_to_watts;
 
 mod compensation;
@@ -212,6 +213,17 @@ pub struct Calibration {
     span_volts: (f64, f64),
     limits: Limits,
     table: Arc<CodeTable>,
+    thermal: Option<Arc<ThermalSetup>>,
+}
+
+/// What a profile says of the board's temperature: the channel that reads it and the
+/// model across it.
+#[derive(Debug, Clone)]
+pub struct ThermalSetup {
+    /// The temperature channel and its sensor.
+    pub channel: TemperatureChannel,
+    /// The detector model across temperature.
+    pub model: Arc<ThermalModel>,
 }
 
 impl Calibration {
@@ -248,6 +260,10 @@ impl Calibration {
             span_volts,
             limits: profile.limits,
             table: Arc::new(CodeTable::empty()),
+            thermal: profile
+                .temperature
+                .zip(profile.model.thermal.clone())
+                .map(|(channel, model)| Arc::new(ThermalSetup { channel, model })),
         };
         cal.tabled()
     }
@@ -274,6 +290,28 @@ impl Calibration {
         .tabled()
     }
 
+    /// The same calibration with the ADC zero at `zero_counts` (one taken with the RF off
+    /// during a run). The per-code table is built afresh.
+    pub fn with_zero(&self, zero_counts: f64) -> Calibration {
+        let adc = self.adc.with_zero(zero_counts);
+        Calibration {
+            adc,
+            table: Arc::new(CodeTable::empty()),
+            ..self.clone()
+        }
+        .tabled()
+    }
+
+    /// How far a zero moved from `zero_counts` (this calibration's) to `new_zero` shifts
+    /// a reading at the bottom of the span, dB: the counts the bottom level gives, moved
+    /// by the change, read through the detector model.
+    pub fn zero_shift_db_at_span_bottom(&self, new_zero: f64) -> f64 {
+        let (bottom, _) = self.span_dbm;
+        let counts =
+            self.adc.counts(self.detector.volts_at(bottom)) + new_zero - self.adc.zero_counts();
+        self.detector.dbm_at(self.adc.volts(counts)) - bottom
+    }
+
     /// The same calibration with `flags` on every reading.
     pub fn with_fixed_flags(&self, flags: Flags) -> Calibration {
         Calibration {
@@ -293,6 +331,12 @@ impl Calibration {
         });
         self.table = Arc::new(table);
         self
+    }
+
+    /// The board's temperature channel and the model across temperature, when the
+    /// profile reads one.
+    pub fn thermal(&self) -> Option<&ThermalSetup> {
+        self.thermal.as_deref()
     }
 
     /// The precomputed entries, one per ADC code from 0 (empty above 16 bits).

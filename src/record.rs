@@ -6,7 +6,7 @@
 use std::io::{self, Write};
 use std::time::{Duration, SystemTime};
 
-use crate::calibration::{Calibration, Flags};
+use crate::calibration::{Calibration, Compensation, Flags};
 use crate::coupler::{CouplerCalibration, CouplerSetup};
 use crate::events::{Chunk, Event};
 use crate::printable::escape_controls;
@@ -44,8 +44,11 @@ const EDGE_SLACK: f64 = 1e-6;
 /// taken as each read of a live port arrived (the other form is `at N samples/s`).
 pub const STAMPED_BY_CLOCK: &str = "by the clock as each read arrived (a live port)";
 
+mod board;
 mod coupled;
 
+use board::Board;
+pub use board::{BOARD_COLUMNS, TEMP_UNKNOWN, UNCOMPENSATED_COLUMN};
 use coupled::Coupled;
 pub use coupled::{
     coupler_context_lines, coupler_header, CouplerChannels, COUPLER_MATCH_COLUMNS,
@@ -59,15 +62,37 @@ struct Chain {
     budget: Option<Uncertainty>,
     /// Per-sample rows' cells after the time, by code (they depend on nothing else),
     /// worked out at a code's first sample: formatting them is most of such a row's cost.
+    /// Unused when the readings are compensated for temperature, since a code's cells
+    /// then move with it.
     per_code_cells: Vec<Option<SampleCells>>,
+    /// The calibration at each board temperature, when the run reads one.
+    compensation: Option<Compensation>,
 }
 
 impl Chain {
     fn new(cal: Calibration, budget: Option<Uncertainty>) -> Self {
         Chain {
             per_code_cells: vec![None; cal.code_table().len()],
+            compensation: None,
             cal,
             budget,
+        }
+    }
+
+    /// The same chain, its readings compensated at the board's temperature.
+    fn compensated(mut self) -> Self {
+        self.compensation = self
+            .cal
+            .thermal()
+            .map(|t| Compensation::new(self.cal.clone(), std::sync::Arc::clone(&t.model)));
+        self
+    }
+
+    /// The calibration for a board at `kelvin` (the plain one without compensation).
+    fn cal_at(&mut self, kelvin: Option<f64>) -> &Calibration {
+        match &mut self.compensation {
+            Some(compensation) => compensation.at(kelvin),
+            None => &self.cal,
         }
     }
 }
@@ -92,6 +117,12 @@ pub struct Recorder<W: Write> {
     stamps_noted: bool,
     log_channels: Option<usize>,
     pending: Option<String>,
+    /// The board's temperature channel, when the profile reads one.
+    board: Option<Board>,
+    /// Each column group's statistics without temperature compensation (with a board).
+    uncompensated: Vec<PowerStats>,
+    /// The ADC zero the run started with, counts.
+    start_zero: f64,
 }
 
 /// How a recording begins: a new file, or more rows for an earlier recording.
@@ -142,13 +173,15 @@ impl<W: Write> Recorder<W> {
         opening: Opening,
     ) -> io::Result<Self> {
         let lines = format!(
-            "{}{}",
+            "{}{}{}{}",
             context_lines(&cal, context),
+            zero_line(0.0, cal.adc().zero_counts(), None),
+            board::context_line(&cal),
             uncertainty_line(budget.as_ref(), &cal, context.every.is_zero())
         );
         Self::opened(
             out,
-            vec![Chain::new(cal, budget)],
+            vec![Chain::new(cal, budget).compensated()],
             None,
             lines,
             context,
@@ -198,7 +231,17 @@ impl<W: Write> Recorder<W> {
                 (Some(block), Some(channels))
             }
         };
+        let board = match &coupled {
+            None => chains[0]
+                .cal
+                .thermal()
+                .map(|setup| Board::new(setup, chains[0].cal.adc())),
+            Some(_) => None,
+        };
         Ok(Recorder {
+            start_zero: chains[0].cal.adc().zero_counts(),
+            board,
+            uncompensated: Vec::new(),
             // Never quoted: the cells are numbers, times and flag names, and `#` lines go
             // through as one cell each, commas and all.
             out: csv::WriterBuilder::new()
@@ -245,12 +288,22 @@ impl<W: Write> Recorder<W> {
         self.channels.or(self.log_channels).unwrap_or(1)
     }
 
-    /// The column groups of a row: one per channel, or a coupler's two arms.
+    /// The column groups of a row: one per power channel (every channel but the board's
+    /// temperature), or a coupler's two arms.
     fn groups(&self) -> usize {
         match &self.coupled {
             Some(_) => 2,
-            None => self.channel_count(),
+            None => self.channel_count() - usize::from(self.board.is_some()),
         }
+    }
+
+    /// Which stream channel a row's column group `g` reads, and through which chain.
+    fn source_of(&self, g: usize) -> (usize, usize) {
+        source_of(
+            self.coupled.as_ref(),
+            self.board.as_ref().map(Board::channel),
+            g,
+        )
     }
 
     /// Starts the first interval at source time `t` rather than 0, for a recording that
@@ -300,6 +353,40 @@ impl<W: Write> Recorder<W> {
                 self.mark(t, Flags::empty())
             }
         }
+    }
+
+    /// A zero taken with the RF off at source time `t`: the ADC zero of the run becomes
+    /// `zero_counts` from here on, and a `# zero:` line says how far it moved since the
+    /// run began and what that moves at the bottom of the span. Refused for a coupler run,
+    /// whose arms' zeros are their profiles'.
+    pub fn rezero(&mut self, t: f64, zero_counts: f64) -> io::Result<()> {
+        if self.coupled.is_some() || !zero_counts.is_finite() {
+            return Err(io::Error::new(
+                io::ErrorKind::InvalidInput,
+                "a zero is taken on a one-detector run only (a coupler's arms take theirs                  from their profiles)",
+            ));
+        }
+        if self.every > 0.0 {
+            self.advance(t)?;
+        }
+        let chain = &mut self.chains[0];
+        let started = chain.cal.with_zero(self.start_zero);
+        let shift = started.zero_shift_db_at_span_bottom(zero_counts);
+        let bottom = started.span_dbm().0;
+        let cal = chain.cal.with_zero(zero_counts);
+        *chain = Chain::new(
+            cal.clone(),
+            chain.budget.take().map(|b| b.with_calibration(&cal)),
+        )
+        .compensated();
+        let line = zero_line(
+            t,
+            zero_counts,
+            Some((zero_counts - self.start_zero, shift, bottom)),
+        );
+        self.write_pending()?;
+        self.out.write_record([line.trim_end()])?;
+        Ok(())
     }
 
     /// Source time has reached `t`: every interval that ended by then is written, empty
@@ -355,6 +442,9 @@ impl<W: Write> Recorder<W> {
             if let Some(coupled) = &self.coupled {
                 coupled.check_stream(stream)?;
             }
+            if let Some(board) = &self.board {
+                board::check_stream(board, stream)?;
+            }
         }
         self.channels.get_or_insert(chunk.channels());
         if self.every <= 0.0 {
@@ -386,10 +476,12 @@ impl<W: Write> Recorder<W> {
             let counts = &chunk.samples.counts[i * width..end * width];
             if width == 1 && self.coupled.is_none() {
                 self.stats[0].add_codes(&self.chains[0].cal, counts);
+            } else if self.board.is_some() {
+                self.add_compensated(chunk, i, end);
             } else {
                 let coupled = self.coupled.as_ref();
                 for (g, stats) in self.stats.iter_mut().enumerate().take(width) {
-                    let (ch, chain) = source_of(coupled, g);
+                    let (ch, chain) = source_of(coupled, None, g);
                     stats.add_channel(&self.chains[chain].cal, counts, ch, width);
                 }
             }
@@ -398,11 +490,38 @@ impl<W: Write> Recorder<W> {
         Ok(())
     }
 
+    /// Adds the frames `from..to` of `chunk` with the board's temperature: first its
+    /// samples of the temperature channel, then each power channel through the
+    /// calibration at the temperature that makes, and through the uncompensated one.
+    fn add_compensated(&mut self, chunk: &Chunk, from: usize, to: usize) {
+        let width = chunk.channels();
+        let Some(board) = self.board.as_mut() else {
+            return;
+        };
+        for i in from..to {
+            board.take(chunk.time(i), chunk.counts(i)[board.channel()]);
+        }
+        let kelvin = board.kelvin();
+        board.applied(kelvin, to - from);
+        let counts = &chunk.samples.counts[from * width..to * width];
+        let groups = self.groups();
+        self.uncompensated.resize(groups, PowerStats::default());
+        for g in 0..groups {
+            let (ch, c) = self.source_of(g);
+            let chain = &mut self.chains[c];
+            self.stats[g].add_channel(chain.cal_at(kelvin), counts, ch, width);
+            self.uncompensated[g].add_channel(&chain.cal, counts, ch, width);
+        }
+    }
+
     fn sample_row(&mut self, t: f64, counts: &[u32]) -> io::Result<()> {
+        if self.board.is_some() {
+            return self.compensated_sample_row(t, counts);
+        }
         let mut row = vec![seconds(t)];
         let groups = self.groups();
         for g in 0..groups {
-            let (ch, chain) = source_of(self.coupled.as_ref(), g);
+            let (ch, chain) = self.source_of(g);
             let Some(&code) = counts.get(ch) else {
                 continue;
             };
@@ -425,16 +544,74 @@ impl<W: Write> Recorder<W> {
     }
 }
 
+impl<W: Write> Recorder<W> {
+    /// A per-sample row of a run that reads the board's temperature: each power channel's
+    /// cells at the temperature of the moment and its uncompensated level, then the
+    /// board's cells.
+    fn compensated_sample_row(&mut self, t: f64, counts: &[u32]) -> io::Result<()> {
+        let Some(board) = self.board.as_mut() else {
+            return Ok(());
+        };
+        if let Some(&code) = counts.get(board.channel()) {
+            board.take(t, code);
+        }
+        let kelvin = board.kelvin();
+        board.applied(kelvin, 1);
+        let mut row = vec![seconds(t)];
+        for g in 0..self.groups() {
+            let (ch, c) = self.source_of(g);
+            let Some(&code) = counts.get(ch) else {
+                continue;
+            };
+            let chain = &mut self.chains[c];
+            let cal = match &mut chain.compensation {
+                Some(compensation) => compensation.at(kelvin),
+                None => &chain.cal,
+            };
+            row.extend(sample_cells(cal, chain.budget.as_ref(), code, kelvin));
+            let plain = one_reading(&chain.cal, code);
+            let level = plain.mean_dbm().filter(|_| plain.bound() == Bound::Exact);
+            row.push(level.map_or(String::new(), |dbm| format!("{dbm:.4}")));
+        }
+        if let Some(board) = &mut self.board {
+            row.extend(board.take_cells());
+        }
+        self.write_row(row)
+    }
+}
+
 impl Chain {
-    /// A sample's cells after the time: counts, volts, its level or bound, flags, which
-    /// it is, and the expanded uncertainty of a value (its noise is not known).
+    /// A sample's cells after the time (see [`sample_cells`]).
     fn sample_cells(&self, code: u32) -> SampleCells {
-        let r = self.cal.reading_code(code);
-        let one = one_reading(&self.cal, code);
-        let value = (one.bound() == Bound::Exact).then_some(r.dbm);
+        sample_cells(&self.cal, self.budget.as_ref(), code, None)
+    }
+
+    /// The expanded uncertainty of an interval's mean: none for a bound, or without the
+    /// noise of its counts (a single sample, a clipped one or one over full scale).
+    fn interval_u_db(&self, figures: &Figures, kelvin: Option<f64>) -> Option<f64> {
+        let (budget, mean, noise) = (self.budget.as_ref()?, figures.mean_dbm?, figures.noise?);
+        (figures.bound == Bound::Exact)
+            .then(|| budget.budget_at(mean, Some(noise), kelvin).expanded_db())
+    }
+}
+
+/// A sample's cells after the time: counts, volts, its level or bound, flags, which it
+/// is, and the expanded uncertainty of a value (its noise is not known; none outside the
+/// calibrated temperatures), through `cal` with the board at `kelvin`.
+fn sample_cells(
+    cal: &Calibration,
+    budget: Option<&Uncertainty>,
+    code: u32,
+    kelvin: Option<f64>,
+) -> SampleCells {
+    {
+        let r = cal.reading_code(code);
+        let one = one_reading(cal, code);
+        let value = (one.bound() == Bound::Exact && !r.flags.contains(Flags::TEMP_OUTSIDE))
+            .then_some(r.dbm);
         let u_db = value
-            .zip(self.budget.as_ref())
-            .map(|(dbm, budget)| budget.budget(dbm, None).expanded_db());
+            .zip(budget)
+            .map(|(dbm, budget)| budget.budget_at(dbm, None, kelvin).expanded_db());
         [
             format!("{}", r.counts),
             format!("{:.6}", r.volts),
@@ -445,13 +622,6 @@ impl Chain {
             u_cell(u_db),
         ]
     }
-
-    /// The expanded uncertainty of an interval's mean: none for a bound, or without the
-    /// noise of its counts (a single sample, a clipped one or one over full scale).
-    fn interval_u_db(&self, figures: &Figures) -> Option<f64> {
-        let (budget, mean, noise) = (self.budget.as_ref()?, figures.mean_dbm?, figures.noise?);
-        (figures.bound == Bound::Exact).then(|| budget.budget(mean, Some(noise)).expanded_db())
-    }
 }
 
 /// One reading's statistics: its level, or its bound, and which it is.
@@ -461,11 +631,13 @@ fn one_reading(cal: &Calibration, code: u32) -> PowerStats {
     one
 }
 
-/// Which stream channel a row's column group `g` reads, and through which chain.
-fn source_of(coupled: Option<&Coupled>, g: usize) -> (usize, usize) {
-    match coupled {
-        Some(c) => (c.channels[g], g),
-        None => (g, 0),
+/// Which stream channel a row's column group `g` reads, and through which chain: a
+/// coupler's arm, or the `g`-th channel that is not the board's temperature channel.
+fn source_of(coupled: Option<&Coupled>, board_channel: Option<usize>, g: usize) -> (usize, usize) {
+    match (coupled, board_channel) {
+        (Some(c), _) => (c.channels[g], g),
+        (None, Some(board)) if g >= board => (g + 1, 0),
+        (None, _) => (g, 0),
     }
 }
 
@@ -480,6 +652,7 @@ impl<W: Write> Recorder<W> {
         self.note_stamps(0.0)?;
         let cell = flags_cell(flags, std::mem::take(&mut self.rejected));
         let mut row = vec![seconds(t)];
+        let with_board = self.board.is_some();
         for _ in 0..self.groups() {
             row.extend([
                 String::new(),
@@ -489,6 +662,12 @@ impl<W: Write> Recorder<W> {
                 String::new(),
                 String::new(),
             ]);
+            if with_board {
+                row.push(String::new());
+            }
+        }
+        if let Some(board) = &mut self.board {
+            row.extend(board.take_cells());
         }
         if self.coupled.is_some() {
             // No reading, no match: the match cell says why, as the arms' flags do.
@@ -533,15 +712,19 @@ impl<W: Write> Recorder<W> {
         self.stats.resize(self.groups(), PowerStats::default());
         let mut row = vec![seconds(start), calendar_time(self.started, start)];
         let mut arms = Vec::with_capacity(2);
+        let kelvin = self.board.as_ref().and_then(Board::row_kelvin);
+        let mut uncompensated = std::mem::take(&mut self.uncompensated);
+        uncompensated.resize(self.groups(), PowerStats::default());
         for (g, stats) in std::mem::take(&mut self.stats).into_iter().enumerate() {
-            let chain = &self.chains[source_of(self.coupled.as_ref(), g).1];
+            let c = self.source_of(g).1;
+            let chain = &mut self.chains[c];
             let mut row_flags = flags | stats.totals.flags;
             if stats.totals.samples == 0 {
                 row_flags |= Flags::GAP;
             }
             let number = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
             row.push(stats.totals.samples.to_string());
-            let figures = stats.figures(&chain.cal);
+            let figures = stats.figures(chain.cal_at(kelvin));
             row.push(number(figures.mean_dbm));
             row.push(number(figures.min_dbm));
             row.push(number(figures.max_dbm));
@@ -549,11 +732,25 @@ impl<W: Write> Recorder<W> {
             row.push(flags_cell(row_flags, rejected));
             row.push(figures.bound.cell().to_string());
             row.push(figures.averaged.to_string());
-            row.push(u_cell(chain.interval_u_db(&figures)));
+            let u_db = if row_flags.contains(Flags::TEMP_OUTSIDE) {
+                None
+            } else {
+                chain.interval_u_db(&figures, kelvin)
+            };
+            row.push(u_cell(u_db));
+            if self.board.is_some() {
+                let plain = uncompensated[g].figures(&chain.cal);
+                row.push(number(
+                    plain.mean_dbm.filter(|_| plain.bound == Bound::Exact),
+                ));
+            }
             arms.push(figures);
         }
         if let (Some(coupled), [forward, reflected]) = (&self.coupled, arms.as_slice()) {
             row.extend(coupled.interval_cells(&self.chains, forward, reflected));
+        }
+        if let Some(board) = &mut self.board {
+            row.extend(board.take_cells());
         }
         self.write_row(row)
     }
@@ -583,13 +780,20 @@ impl<W: Write> Recorder<W> {
         if self.coupled.is_some() {
             return coupler_header(self.every <= 0.0);
         }
-        for ch in 0..self.channel_count() {
+        for g in 0..self.groups() {
+            let ch = self.source_of(g).0;
             let suffix = if ch == 0 {
                 String::new()
             } else {
                 format!("_ch{}", ch + 1)
             };
             names.extend(per_channel.iter().map(|n| format!("{n}{suffix}")));
+            if self.board.is_some() {
+                names.push(format!("{UNCOMPENSATED_COLUMN}{suffix}"));
+            }
+        }
+        if self.board.is_some() {
+            names.extend(BOARD_COLUMNS.iter().map(|n| n.to_string()));
         }
         names
     }
@@ -667,6 +871,19 @@ fn left_out_terms(budget: &Uncertainty, cal: &Calibration, per_sample: bool) -> 
         "nothing".to_string()
     } else {
         names.join(", ")
+    }
+}
+
+/// A `# zero:` line: the zero at `t`, and for one taken during the run its change since
+/// the start (counts), what that change moves at the span's bottom (dB) and that bottom
+/// (dBm at the reference plane).
+fn zero_line(t: f64, counts: f64, change: Option<(f64, f64, f64)>) -> String {
+    match change {
+        None => format!("# zero: time_s={t:.3} counts={counts:.3} source=profile\n"),
+        Some((counts_change, db, bottom)) => format!(
+            "# zero: time_s={t:.3} counts={counts:.3} change_counts={counts_change:+.3} \
+             change_db_at_span_bottom={db:+.3} span_bottom_dbm={bottom:.3}\n"
+        ),
     }
 }
 

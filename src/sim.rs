@@ -12,12 +12,18 @@ use rand_pcg::Pcg64;
 
 use crate::adc::Adc;
 use crate::correction::{FrequencyCorrection, Offset};
+use crate::detector::thermal::ThermalModel;
 use crate::detector::{Detector, DiodeDetector, ModelKind};
 use crate::profile::Profile;
+use crate::thermal::{Sensor, TemperatureChannel};
+use crate::units::CELSIUS_ZERO_K;
 
 pub mod matching;
 
 use matching::{ArmDrive, MatchBench};
+
+/// The board's temperature for a profile that says nothing of its own, K.
+const DEFAULT_BOARD_K: f64 = 300.0;
 
 /// ADC noise of the simulated board, in counts (standard deviation).
 pub const NOISE_COUNTS: f64 = 0.7;
@@ -137,22 +143,37 @@ impl Scenario {
     }
 }
 
-/// The profile's diode at its calibration temperature, when its model is one.
-fn profile_diode(profile: &Profile) -> Option<DiodeDetector> {
+/// How the profile's detector moves with temperature: its model across temperature, or
+/// for a diode without one its saturation law from its calibration temperature.
+fn profile_thermal(profile: &Profile) -> Option<Arc<ThermalModel>> {
+    if let Some(thermal) = &profile.model.thermal {
+        return Some(Arc::clone(thermal));
+    }
     let model = &profile.model;
     match (model.kind, model.param("n"), model.param("vl")) {
-        (ModelKind::Diode, Some(n), Some(vl)) => Some(
-            DiodeDetector::new(
+        (ModelKind::Diode, Some(n), Some(vl)) => {
+            let span = model.detector.span_dbm();
+            let diode = DiodeDetector::new(
                 n,
                 vl,
                 profile.raw.model.temperature.unwrap_or(300.0),
                 profile.ohms,
-                model.detector.span_dbm(),
+                span,
             )
-            .with_law(profile.diode_law()),
-        ),
+            .with_law(profile.diode_law());
+            Some(Arc::new(ThermalModel::diode(diode, span, &[])))
+        }
         _ => None,
     }
+}
+
+/// The simulated board's temperature.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum BoardTemperature {
+    /// As the scenario warms it from the calibration temperature.
+    Scenario,
+    /// Held at this many kelvin.
+    Held(f64),
 }
 
 /// Where a simulator's true power comes from.
@@ -172,9 +193,12 @@ pub struct Simulator {
     rate_hz: f64,
     adc: Adc,
     detector: Arc<dyn Detector>,
-    /// The profile's diode at its calibration temperature, when it is one, so that the
-    /// board's temperature can act on it through the saturation law.
-    diode: Option<DiodeDetector>,
+    /// How the detector moves with the board's temperature, when the profile says.
+    thermal: Option<Arc<ThermalModel>>,
+    board: BoardTemperature,
+    /// The channel the board's temperature sensor is streamed on, when the profile
+    /// reads one.
+    sensor: Option<TemperatureChannel>,
     correction: Option<FrequencyCorrection>,
     offset: Offset,
     rng: Pcg64,
@@ -197,7 +221,10 @@ impl Simulator {
 
     /// A simulator of one arm of the matching bench, the arm's power from `drive`.
     fn of_arm(profile: &Profile, drive: ArmDrive, rate_hz: f64, seed: u64) -> Self {
-        Self::driven(profile, Drive::Arm(drive), Scenario::Match, rate_hz, seed)
+        let mut arm = Self::driven(profile, Drive::Arm(drive), Scenario::Match, rate_hz, seed);
+        // The bench streams each arm as one channel.
+        arm.sensor = None;
+        arm
     }
 
     fn driven(
@@ -207,14 +234,16 @@ impl Simulator {
         rate_hz: f64,
         seed: u64,
     ) -> Self {
-        let diode = profile_diode(profile);
+        let thermal = profile_thermal(profile);
         Simulator {
             scenario,
             drive,
             rate_hz,
             adc: profile.adc.clone(),
             detector: Arc::clone(&profile.model.detector),
-            diode,
+            thermal,
+            board: BoardTemperature::Scenario,
+            sensor: profile.temperature,
             correction: profile.frequency_correction.clone(),
             offset: profile.offset.clone(),
             rng: Pcg64::seed_from_u64(seed),
@@ -256,9 +285,46 @@ impl Simulator {
         (noisy.clamp(0.0, self.adc.full_scale()) + 0.5) as u32
     }
 
-    /// Appends the next `n` counts to `out`; returns the time of the first. The same
-    /// samples as `n` calls of `next_sample`, made knot interval by knot interval.
+    /// Appends the next `n` frames to `out` ([`Simulator::channels`] counts each);
+    /// returns the time of the first. The detector's counts are those `n` calls of
+    /// `next_sample` give, made knot interval by knot interval; the board's sensor, when
+    /// streamed, reads the board's temperature with the same ADC noise.
     pub fn fill(&mut self, n: usize, out: &mut Vec<u32>) -> f64 {
+        let Some(sensor) = self.sensor else {
+            return self.fill_detector(n, out);
+        };
+        let mut power = Vec::with_capacity(n);
+        let t0 = self.fill_detector(n, &mut power);
+        let width = self.channels();
+        out.reserve(n * width);
+        for (k, count) in power.into_iter().enumerate() {
+            let temperature = self.sensor_count(&sensor, t0 + k as f64 / self.rate_hz);
+            out.extend((0..width).map(|ch| {
+                if ch == sensor.channel {
+                    temperature
+                } else {
+                    count
+                }
+            }));
+        }
+        t0
+    }
+
+    /// What the board's sensor reads at `t`, with the ADC's noise (a sensor that sends
+    /// degrees is not held to the ADC's full scale).
+    fn sensor_count(&mut self, sensor: &TemperatureChannel, t: f64) -> u32 {
+        let kelvin = self.board_kelvin(t).unwrap_or(DEFAULT_BOARD_K);
+        let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
+        let noisy = ideal + self.noise.sample(&mut self.rng);
+        let top = match sensor.sensor {
+            Sensor::Degrees { .. } => f64::from(u32::MAX),
+            _ => self.adc.full_scale(),
+        };
+        (noisy.clamp(0.0, top) + 0.5) as u32
+    }
+
+    /// The detector's next `n` counts.
+    fn fill_detector(&mut self, n: usize, out: &mut Vec<u32>) -> f64 {
         let t0 = self.index as f64 / self.rate_hz;
         out.reserve(n);
         let mut left = n as u64;
@@ -301,24 +367,41 @@ impl Simulator {
         let at_detector = true_dbm - self.offset.at(hz).db;
         // The correction is true minus indicated, so the detector indicates that much less.
         let indicated = at_detector - self.correction.as_ref().map_or(0.0, |c| c.at(hz).db);
-        match &self.diode {
-            Some(diode) => match self.board_kelvin(t) {
-                Some(kelvin) if kelvin != diode.kelvin() => {
-                    diode.at_kelvin(kelvin).volts_at(indicated)
-                }
-                _ => diode.volts_at(indicated),
-            },
-            None => self.detector.volts_at(indicated),
+        match (&self.thermal, self.board_kelvin(t)) {
+            (Some(thermal), Some(kelvin)) if kelvin != thermal.reference_kelvin() => {
+                thermal.at_kelvin(kelvin).detector.volts_at(indicated)
+            }
+            _ => self.detector.volts_at(indicated),
         }
     }
 
-    /// The board's temperature at `t`, K, when a scenario warms it (an arm of the matching
-    /// bench stays at its calibration temperature).
+    /// The board's temperature at `t`, K: held, or as the scenario warms it from the
+    /// calibration temperature (an arm of the matching bench stays there). None when
+    /// the profile says nothing of temperature.
     pub fn board_kelvin(&self, t: f64) -> Option<f64> {
-        let calibrated = self.diode.as_ref().map(|d| d.kelvin())?;
-        match &self.drive {
-            Drive::Story(scenario) => Some(scenario.board_kelvin(t, calibrated)),
-            Drive::Arm(_) => None,
+        let calibrated = self.thermal.as_ref()?.reference_kelvin();
+        match (self.board, &self.drive) {
+            (BoardTemperature::Held(kelvin), _) => Some(kelvin),
+            (BoardTemperature::Scenario, Drive::Story(scenario)) => {
+                Some(scenario.board_kelvin(t, calibrated))
+            }
+            (BoardTemperature::Scenario, Drive::Arm(_)) => Some(calibrated),
+        }
+    }
+
+    /// The same simulator with its board held at `kelvin`.
+    pub fn with_board(mut self, board: BoardTemperature) -> Self {
+        self.board = board;
+        self.knots = (f64::NAN, f64::NAN, f64::NAN, f64::NAN);
+        self
+    }
+
+    /// Channels a frame holds: the detector's, and the board's temperature sensor's
+    /// when the profile reads one (every channel but the sensor's carries the detector).
+    pub fn channels(&self) -> usize {
+        match &self.sensor {
+            Some(sensor) => (sensor.channel + 1).max(2),
+            None => 1,
         }
     }
 
@@ -357,7 +440,7 @@ impl SimBench {
     /// Channels per sample.
     pub fn channels(&self) -> usize {
         match self {
-            SimBench::One(_) => 1,
+            SimBench::One(sim) => sim.channels(),
             SimBench::Match(bench) => bench.channels(),
         }
     }

@@ -8,8 +8,11 @@
 //! [`Uncertainty::budget`] gives the terms at one level. A term whose input is missing is
 //! left out and named in [`Budget::missing`]: nothing is guessed silently.
 
+use std::sync::Arc;
+
 use crate::calibration::Calibration;
 use crate::correction::FreqTable;
+use crate::detector::thermal::ThermalModel;
 use crate::profile::{Profile, UncertaintyInputs};
 
 /// What no budget includes yet, besides the temperature term (docs/calibration.md, "What
@@ -39,7 +42,8 @@ pub enum TermKind {
     Offset,
     /// Interpolation of the frequency correction between its rows.
     FrequencyInterpolation,
-    /// The detector's temperature (not modelled yet: always missing).
+    /// The detector's temperature: how far the board temperature's own uncertainty moves
+    /// a compensated reading (missing without a temperature channel).
     Temperature,
 }
 
@@ -186,6 +190,17 @@ pub struct Uncertainty {
     fixed: Vec<Term>,
     /// The level-independent terms whose input is missing.
     fixed_missing: Vec<TermKind>,
+    /// What the temperature term is made of, when the board's temperature is read.
+    temperature: Option<TemperatureInput>,
+}
+
+/// The temperature term's inputs: how the model moves with temperature, and how well the
+/// board's temperature is known.
+#[derive(Debug, Clone)]
+struct TemperatureInput {
+    model: Arc<ThermalModel>,
+    /// The board temperature's standard uncertainty, K.
+    u_k: f64,
 }
 
 impl Uncertainty {
@@ -226,16 +241,44 @@ impl Uncertainty {
         put(TermKind::Offset, offset);
         put(TermKind::FrequencyInterpolation, interpolation.into());
         put(TermKind::Temperature, Known::Missing);
-        Uncertainty {
+        let plain = Uncertainty {
             cal: cal.clone(),
             fixed,
             fixed_missing,
+            temperature: None,
+        };
+        match cal.thermal() {
+            Some(setup) => plain.with_temperature(Arc::clone(&setup.model), setup.channel.u_c),
+            None => plain,
         }
+    }
+
+    /// The same budget for readings through `cal` (the same profile made ready again, as
+    /// with a new zero).
+    pub fn with_calibration(mut self, cal: &Calibration) -> Self {
+        self.cal = cal.clone();
+        self
+    }
+
+    /// The same budget for readings compensated by `model` with a board temperature known
+    /// to `u_k` (standard, K): its temperature term is the reading's movement per kelvin
+    /// at the level times `u_k`.
+    pub fn with_temperature(mut self, model: Arc<ThermalModel>, u_k: f64) -> Self {
+        self.fixed_missing
+            .retain(|&kind| kind != TermKind::Temperature);
+        self.temperature = Some(TemperatureInput { model, u_k });
+        self
     }
 
     /// The budget of a reading or mean at `dbm` (reference plane), with the samples'
     /// noise when it is known.
     pub fn budget(&self, dbm: f64, noise: Option<Noise>) -> Budget {
+        self.budget_at(dbm, noise, None)
+    }
+
+    /// [`Uncertainty::budget`] of a reading compensated at the board temperature `kelvin`
+    /// (the model's reference temperature when None).
+    pub fn budget_at(&self, dbm: f64, noise: Option<Noise>, kelvin: Option<f64>) -> Budget {
         let per_count = self.cal.db_per_count(dbm);
         let mut budget = Budget::default();
         // Noise of half a count or more dithers the steps away in a mean; below that the
@@ -263,6 +306,18 @@ impl Uncertainty {
         }
         budget.terms.extend_from_slice(&self.fixed);
         budget.missing.extend_from_slice(&self.fixed_missing);
+        if let Some(input) = &self.temperature {
+            let kelvin = kelvin.unwrap_or(input.model.reference_kelvin());
+            let u_db = (input.model.db_per_kelvin(detector_dbm, kelvin) * input.u_k).abs();
+            if u_db.is_finite() {
+                budget.terms.push(Term {
+                    kind: TermKind::Temperature,
+                    u_db,
+                });
+            } else {
+                budget.missing.push(TermKind::Temperature);
+            }
+        }
         budget
     }
 }

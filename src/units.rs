@@ -12,6 +12,9 @@ use thiserror::Error;
 /// The reference impedance used when none is given, in ohms.
 pub const DEFAULT_OHMS: f64 = 50.0;
 
+/// 0 °C in kelvin (the definition of the Celsius scale).
+pub const CELSIUS_ZERO_K: f64 = 273.15;
+
 const POWER_UNITS: &str = "dBm, dBW, W, mW, uW (or µW), nW, pW";
 const VOLTAGE_UNITS: &str = "Vrms, Vpk, Vpp with an optional m or u (µ) prefix, e.g. 350mVpp";
 const DC_UNITS: &str = "Vdc (the DC equal to the RF peak), e.g. 1.25Vdc";

@@ -21,6 +21,7 @@ use crate::detector::SaturationLaw;
 use crate::detector::{residuals_db, Axis, CalPoint, Detector, ModelKind, PointU};
 use crate::thermal::TemperatureChannel;
 use crate::units::Level;
+use crate::units::CELSIUS_ZERO_K;
 use locate::{line_col, FieldPath, Located};
 pub use raw::RawProfile;
 
@@ -152,6 +153,15 @@ pub struct Model {
 }
 
 impl Model {
+    /// The detector-input dBm the model reads for `volts` with the board at `kelvin` (at
+    /// its reference temperature without a model across temperature).
+    pub fn reads_at(&self, volts: f64, kelvin: f64) -> f64 {
+        match &self.thermal {
+            Some(thermal) => thermal.at_kelvin(kelvin).detector.dbm_at(volts),
+            None => self.detector.dbm_at(volts),
+        }
+    }
+
     /// A parameter by its profile field name.
     pub fn param(&self, name: &str) -> Option<f64> {
         self.params
@@ -270,9 +280,22 @@ impl Profile {
         self.points.iter().map(ProfilePoint::cal_point).collect()
     }
 
-    /// Each point's error in dB under the model.
+    /// Each point's error in dB under the model, at the point's board temperature.
     pub fn residuals_db(&self) -> Vec<f64> {
-        residuals_db(self.model.detector.as_ref(), &self.cal_points())
+        if self.model.thermal.is_none() {
+            return residuals_db(self.model.detector.as_ref(), &self.cal_points());
+        }
+        self.points
+            .iter()
+            .map(|p| self.model.reads_at(p.volts, self.point_kelvin(p)) - p.dbm)
+            .collect()
+    }
+
+    /// The board temperature a point was taken at, K: its `temp_c`, else the model's
+    /// (a diode's `temperature`, 300 K by default).
+    pub fn point_kelvin(&self, point: &ProfilePoint) -> f64 {
+        let untagged = self.raw.model.temperature.unwrap_or(300.0);
+        point.temp_c.map_or(untagged, |c| c + CELSIUS_ZERO_K)
     }
 }
 

@@ -1,6 +1,7 @@
 //! The second stage of loading: every value of a raw profile checked, the detector model
 //! built, and each problem tied to its field path.
 
+mod across;
 mod temperature;
 
 use std::sync::Arc;
@@ -16,9 +17,10 @@ use super::{
 use crate::adc::{Adc, DEFAULT_CLIP_MARGIN};
 use crate::correction::{CorrectionKind, FreqTable, FrequencyCorrection, Offset, TableError};
 use crate::detector::diode::{SaturationLaw, N_BOUNDS, VL_BOUNDS};
+use crate::detector::thermal::{ordered_at, ThermalModel};
 use crate::detector::{
-    ordered_points, rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError,
-    ModelKind, PointU, TableDetector, MAX_FIT_RMS_DB,
+    rms, Axis, CalPoint, Detector, DiodeDetector, LogAmpDetector, ModelError, ModelKind, PointU,
+    TableDetector, MAX_FIT_RMS_DB,
 };
 use crate::units::{parse_level, DEFAULT_OHMS};
 
@@ -553,24 +555,39 @@ fn check_model(
     check_fields_belong(check, raw, kind);
     let points = check_points(check, raw, adc, ohms, kind)?;
     let cal: Vec<CalPoint> = points.iter().map(ProfilePoint::cal_point).collect();
+    let diode_k = raw.temperature.unwrap_or(300.0);
+    let kelvins = across::point_kelvins(&points, diode_k);
     let model = match kind {
+        ModelKind::Table | ModelKind::Log if across::tagged(&points) => {
+            let axis = match kind {
+                ModelKind::Table => Some(table_axis(check, raw)?),
+                _ => None,
+            };
+            across::build_curves(check, raw, kind, axis, &cal, &kelvins)
+        }
         ModelKind::Table => build_table(check, raw, &cal),
         ModelKind::Log => build_log(check, raw, &cal),
-        ModelKind::Diode => build_diode(check, raw, &cal, ohms),
+        ModelKind::Diode => build_diode(check, raw, &cal, &kelvins, ohms),
     }?;
-    check_agreement(check, &model, &points).then_some((model, points))
+    check_agreement(check, &model, &points, &kelvins).then_some((model, points))
 }
 
 /// A model must read its own calibration points within the fit limit: parameters left
 /// from another [adc] or impedance would read every level wrong by as much, and nothing
 /// in a reading could show it. False, with the problem noted, when it misses.
-fn check_agreement(check: &mut Checker, model: &Model, points: &[ProfilePoint]) -> bool {
+fn check_agreement(
+    check: &mut Checker,
+    model: &Model,
+    points: &[ProfilePoint],
+    kelvins: &[f64],
+) -> bool {
     if model.kind == ModelKind::Table {
         return true;
     }
     let errors: Vec<f64> = points
         .iter()
-        .map(|p| model.detector.dbm_at(p.volts) - p.dbm)
+        .zip(kelvins)
+        .map(|(p, &kelvin)| model.reads_at(p.volts, kelvin) - p.dbm)
         .collect();
     let rms_db = rms(&errors);
     if rms_db <= MAX_FIT_RMS_DB {
@@ -747,20 +764,24 @@ fn model_problem(check: &mut Checker, error: ModelError) {
     check.fail(path, error.to_string());
 }
 
+/// The table's axis, log-volts when not given.
+fn table_axis(check: &mut Checker, raw: &RawModel) -> Option<Axis> {
+    match raw.axis.as_deref() {
+        None => Some(Axis::LogVolts),
+        Some(name) => Axis::from_name(name).or_else(|| {
+            check.fail(
+                FieldPath::key("model").then("axis"),
+                format!(
+                    "unknown axis `{name}`; choose log-volts (diode detectors) or volts (log-amps)"
+                ),
+            );
+            None
+        }),
+    }
+}
+
 fn build_table(check: &mut Checker, raw: &RawModel, cal: &[CalPoint]) -> Option<Model> {
-    let axis = match raw.axis.as_deref() {
-        None => Axis::LogVolts,
-        Some(name) => match Axis::from_name(name) {
-            Some(axis) => axis,
-            None => {
-                check.fail(
-                    FieldPath::key("model").then("axis"),
-                    format!("unknown axis `{name}`; choose log-volts (diode detectors) or volts (log-amps)"),
-                );
-                return None;
-            }
-        },
-    };
+    let axis = table_axis(check, raw)?;
     let table = TableDetector::new(cal, axis)
         .map_err(|e| model_problem(check, e))
         .ok()?;
@@ -826,7 +847,29 @@ fn intercept_fits(intercept: f64) -> bool {
     (INTERCEPT_DBM.lo..=INTERCEPT_DBM.hi).contains(&intercept)
 }
 
-fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64) -> Option<Model> {
+fn build_diode(
+    check: &mut Checker,
+    raw: &RawModel,
+    cal: &[CalPoint],
+    kelvins: &[f64],
+    ohms: f64,
+) -> Option<Model> {
+    let built = build_diode_at(check, raw, cal, kelvins, ohms)?;
+    let (mut built, diode) = built;
+    let plain = ThermalModel::diode(diode.clone(), diode.span_dbm(), kelvins);
+    let span = across::diode_span(&plain, diode.span_dbm(), cal, kelvins);
+    built.thermal = Some(Arc::new(ThermalModel::diode(diode, span, kelvins)));
+    Some(built)
+}
+
+/// The diode model (n and V_L at the model's temperature) and the diode itself.
+fn build_diode_at(
+    check: &mut Checker,
+    raw: &RawModel,
+    cal: &[CalPoint],
+    kelvins: &[f64],
+    ohms: f64,
+) -> Option<(Model, DiodeDetector)> {
     let path = FieldPath::key("model");
     let kelvin = check_temperature(check, raw.temperature.unwrap_or(300.0))?;
     let law = check_law(check, raw)?;
@@ -843,8 +886,7 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
     }
     match (raw.n, raw.vl) {
         (None, None) => {
-            let kelvins = vec![kelvin; cal.len()];
-            let fit = DiodeDetector::fit_at(cal, &kelvins, kelvin, ohms, law)
+            let fit = DiodeDetector::fit_at(cal, kelvins, kelvin, ohms, law)
                 .map_err(|e| model_problem(check, e))
                 .ok()?;
             let notes = fit
@@ -853,25 +895,31 @@ fn build_diode(check: &mut Checker, raw: &RawModel, cal: &[CalPoint], ohms: f64)
                 .map(|p| format!("the fitted {p} ended on the edge of its search range"))
                 .collect();
             let params = vec![("n", fit.detector.n()), ("vl", fit.detector.vl())];
-            Some(model(Arc::new(fit.detector), None, true, notes, params))
+            let diode = fit.detector;
+            Some((
+                model(Arc::new(diode.clone()), None, true, notes, params),
+                diode,
+            ))
         }
         (Some(n), Some(vl)) => {
-            let sorted = ordered_points(cal, ModelKind::Diode)
+            let (sorted, sorted_kelvins) = ordered_at(cal, kelvins, ModelKind::Diode)
                 .map_err(|e| model_problem(check, e))
                 .ok()?;
             let n = check.within(path.then("n"), n, &N);
             let vl = check.within(path.then("vl"), vl, &VL);
             let (n, vl) = (n?, vl?);
-            let span = (sorted[0].dbm, sorted[sorted.len() - 1].dbm);
-            let detector = DiodeDetector::new(n, vl, kelvin, ohms, span)
+            let span = sorted
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
+                    (lo.min(p.dbm), hi.max(p.dbm))
+                });
+            let diode = DiodeDetector::new(n, vl, kelvin, ohms, span)
                 .with_law(law)
-                .with_covariance(&sorted);
-            Some(model(
-                Arc::new(detector),
-                None,
-                false,
-                Vec::new(),
-                vec![("n", n), ("vl", vl)],
+                .with_covariance_at(&sorted, &sorted_kelvins);
+            let params = vec![("n", n), ("vl", vl)];
+            Some((
+                model(Arc::new(diode.clone()), None, false, Vec::new(), params),
+                diode,
             ))
         }
         (Some(_), None) | (None, Some(_)) => {
