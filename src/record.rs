@@ -494,15 +494,28 @@ impl<W: Write> Recorder<W> {
     /// samples of the temperature channel, then each power channel through the
     /// calibration at the temperature that makes, and through the uncompensated one.
     fn add_compensated(&mut self, chunk: &Chunk, from: usize, to: usize) {
-        let width = chunk.channels();
         let Some(board) = self.board.as_mut() else {
             return;
         };
+        // Runs of frames read at the same temperature go in together.
+        let mut runs: Vec<(usize, Option<f64>)> = Vec::new();
         for i in from..to {
-            board.take(chunk.time(i), chunk.counts(i)[board.channel()]);
+            let kelvin = board.frame(chunk.time(i), chunk.counts(i)[board.channel()]);
+            board.applied(kelvin, 1);
+            if runs.last().is_none_or(|&(_, k)| k != kelvin) {
+                runs.push((i, kelvin));
+            }
         }
-        let kelvin = board.kelvin();
-        board.applied(kelvin, to - from);
+        for (n, &(start, kelvin)) in runs.iter().enumerate() {
+            let end = runs.get(n + 1).map_or(to, |&(next, _)| next);
+            self.add_at(chunk, start, end, kelvin);
+        }
+    }
+
+    /// Adds the power channels of frames `from..to` of `chunk` read at `kelvin`, and
+    /// without compensation.
+    fn add_at(&mut self, chunk: &Chunk, from: usize, to: usize, kelvin: Option<f64>) {
+        let width = chunk.channels();
         let counts = &chunk.samples.counts[from * width..to * width];
         let groups = self.groups();
         self.uncompensated.resize(groups, PowerStats::default());
@@ -552,10 +565,8 @@ impl<W: Write> Recorder<W> {
         let Some(board) = self.board.as_mut() else {
             return Ok(());
         };
-        if let Some(&code) = counts.get(board.channel()) {
-            board.take(t, code);
-        }
-        let kelvin = board.kelvin();
+        let code = counts.get(board.channel()).copied().unwrap_or(0);
+        let kelvin = board.frame(t, code);
         board.applied(kelvin, 1);
         let mut row = vec![seconds(t)];
         for g in 0..self.groups() {
@@ -1104,6 +1115,75 @@ mod tests {
 
     fn text(r: Recorder<Vec<u8>>) -> String {
         String::from_utf8(r.out.into_inner().unwrap()).unwrap()
+    }
+
+    /// The rows of the demo diode's soak (its board streamed as channel 2) for 30 s at
+    /// 1 kHz, fed in chunks of `chunk_len` frames, every `every` seconds.
+    fn board_rows(every: f64, chunk_len: usize) -> Vec<Vec<String>> {
+        let profile = parse_profile(
+            include_str!("../profiles/demo-diode.toml"),
+            "demo-diode.toml",
+        )
+        .unwrap();
+        let cal = Calibration::new(&profile, Some(146e6), 0.0);
+        let budget = Uncertainty::new(&profile, &cal);
+        let mut sim = crate::sim::Simulator::new(&profile, crate::sim::Scenario::Soak, 1e3, 9);
+        let mut frames = Vec::new();
+        sim.fill(30_000, &mut frames);
+        let mut r = recorder(every);
+        let context = r.context_for_test();
+        r = Recorder::with_uncertainty(Vec::new(), cal, Some(budget), &context, Opening::Fresh)
+            .unwrap();
+        for (k, part) in frames.chunks(2 * chunk_len).enumerate() {
+            let chunk = Chunk {
+                t0: (k * chunk_len) as f64 * 1e-3,
+                dt: 1e-3,
+                samples: FlatCounts {
+                    channels: 2,
+                    counts: part.to_vec(),
+                },
+            };
+            r.handle(&Event::Samples(chunk)).unwrap();
+        }
+        r.finish(30.0).unwrap();
+        data_rows(r)
+    }
+
+    // Source: the rule in docs/recording.md ("The board's temperature"): the temperature a
+    // sample is compensated at is the window's mean taken at fixed ticks of source time,
+    // so rows are the same however the samples came in, and an interval's mean is that of
+    // its per-sample readings.
+    #[test]
+    fn compensated_rows_do_not_depend_on_chunking_and_per_sample_rows_agree() {
+        let whole = board_rows(1.0, 30_000);
+        assert_eq!(whole.len(), 30);
+        for chunk_len in [1, 37, 1000] {
+            assert_eq!(board_rows(1.0, chunk_len), whole, "chunks of {chunk_len}");
+        }
+        let samples = board_rows(0.0, 4096);
+        assert_eq!(samples.len(), 30_000);
+        let cell = |row: &[String], back: usize| -> f64 { row[row.len() - back].parse().unwrap() };
+        for (second, row) in whole.iter().enumerate() {
+            let these = &samples[second * 1000..(second + 1) * 1000];
+            // Each sample's temp_c is the temperature it was read at (3 decimals).
+            let applied = these.iter().map(|s| cell(s, 2)).sum::<f64>() / 1000.0;
+            assert!(
+                (applied - cell(row, 2)).abs() < 6e-4,
+                "{second} s: {applied} vs {row:?}"
+            );
+            let watts = these
+                .iter()
+                .map(|s| crate::units::dbm_to_watts(s[3].parse().unwrap()))
+                .sum::<f64>();
+            let folded = crate::units::watts_to_dbm(watts / 1000.0);
+            let mean: f64 = row[3].parse().unwrap();
+            // 4 decimals a cell, and a steady level's mean is the reading of its mean count.
+            assert!(
+                (folded - mean).abs() < 3e-4,
+                "{second} s: {folded} vs {mean}"
+            );
+            assert_eq!(row.last().unwrap(), "", "no sensor fault");
+        }
     }
 
     // Source: the rule in docs/recording.md: a per-sample recording says before its first

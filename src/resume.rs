@@ -8,7 +8,8 @@ use thiserror::Error;
 
 use crate::calibration::Calibration;
 use crate::record::{
-    context_lines, coupler_header, RunContext, PER_INTERVAL_COLUMNS, PER_SAMPLE_COLUMNS,
+    context_lines, coupler_header, RunContext, BOARD_COLUMNS, PER_INTERVAL_COLUMNS,
+    PER_SAMPLE_COLUMNS, UNCOMPENSATED_COLUMN,
 };
 
 /// What a log's rows look like, and how its last run was made.
@@ -20,6 +21,9 @@ pub struct LogShape {
     pub channels: usize,
     /// The rows are a coupler run's: both arms and their match.
     pub coupled: bool,
+    /// The rows carry the board's temperature (`uncomp_dbm`, `temp_c`, `temp_flags`);
+    /// `channels` then counts the temperature channel too, as the stream does.
+    pub board: bool,
     /// The last row was cut part-way: the log does not end with a line end.
     pub cut: bool,
     /// The last run's context lines that say how it was made (profile, frequency, rows).
@@ -114,8 +118,27 @@ impl LogShape {
             per_sample: header.per_sample,
             channels: header.channels,
             coupled: header.coupled,
+            board: header.board,
             cut,
             made,
+        })
+    }
+
+    /// Why rows of a run of this kind (a coupler's, or one detector's with or without the
+    /// board's temperature) would not fit this log: "it holds … and this run would write
+    /// …"; None when they would.
+    pub fn other_kind(&self, coupled: bool, board: bool) -> Option<String> {
+        let kind = |coupled: bool, board: bool| match (coupled, board) {
+            (true, _) => "a coupler run's rows (both arms and their match)",
+            (false, true) => "one detector's rows with the board's temperature",
+            (false, false) => "one detector's rows without a board temperature",
+        };
+        ((self.coupled, self.board) != (coupled, board)).then(|| {
+            format!(
+                "it holds {} and this run would write {}",
+                kind(self.coupled, self.board),
+                kind(coupled, board)
+            )
         })
     }
 
@@ -159,6 +182,7 @@ struct Header {
     channels: usize,
     per_sample: bool,
     coupled: bool,
+    board: bool,
 }
 
 /// Channels and kind of a column header dbtrail writes.
@@ -174,6 +198,7 @@ fn columns(header: &str, line: u64) -> Result<Header, ShapeError> {
                 channels: 2,
                 per_sample,
                 coupled: true,
+                board: false,
             });
         }
     }
@@ -182,8 +207,22 @@ fn columns(header: &str, line: u64) -> Result<Header, ShapeError> {
             channels,
             per_sample,
             coupled: false,
+            board: false,
         })
     };
+    for (lead, per, per_sample) in [
+        (&["time_s"][..], &PER_SAMPLE_COLUMNS[..], true),
+        (&["time_s", "utc"][..], &PER_INTERVAL_COLUMNS[..], false),
+    ] {
+        if let Some(groups) = board_groups(&names, lead, per) {
+            return Ok(Header {
+                channels: groups + 1,
+                per_sample,
+                coupled: false,
+                board: true,
+            });
+        }
+    }
     let fits = |lead: &[&str], per: &[&str]| -> Option<usize> {
         let rest = names.strip_prefix(lead)?;
         let channels = rest.len() / per.len();
@@ -220,6 +259,27 @@ fn columns(header: &str, line: u64) -> Result<Header, ShapeError> {
         header: shortened(header),
         line,
     })
+}
+
+/// The power column groups of a header with the board's temperature: after `lead`, each
+/// group's `per` columns and `uncomp_dbm`, all with the group's own channel suffix, then
+/// the board's columns.
+fn board_groups(names: &[&str], lead: &[&str], per: &[&str]) -> Option<usize> {
+    let rest = names.strip_prefix(lead)?.strip_suffix(&BOARD_COLUMNS[..])?;
+    let width = per.len() + 1;
+    if rest.is_empty() || rest.len() % width != 0 {
+        return None;
+    }
+    let fits = rest.chunks(width).all(|group| {
+        let suffix = group[0].strip_prefix(per[0]).unwrap_or("");
+        (suffix.is_empty() || suffix.starts_with("_ch"))
+            && per
+                .iter()
+                .chain([&UNCOMPENSATED_COLUMN])
+                .zip(group)
+                .all(|(name, got)| *got == format!("{name}{suffix}"))
+    });
+    fits.then_some(rest.len() / width)
 }
 
 fn shortened(text: &str) -> String {

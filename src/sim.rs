@@ -591,9 +591,18 @@ mod tests {
         .unwrap()
     }
 
+    /// The demo profile without its board temperature channel.
+    fn demo_without_sensor() -> Profile {
+        let text = include_str!("../profiles/demo-diode.toml");
+        let plain = text.split("\n[temperature]").next().unwrap();
+        let p = parse_profile(plain, "demo-diode.toml").unwrap();
+        assert!(p.temperature.is_none());
+        p
+    }
+
     #[test]
     fn fill_makes_the_samples_next_sample_would() {
-        let p = demo();
+        let p = demo_without_sensor();
         for scenario in Scenario::ALL {
             let mut one = Simulator::new(&p, scenario, 10_000.0, 3);
             let mut many = one.clone();
@@ -603,6 +612,35 @@ mod tests {
             many.fill(15_000, &mut filled);
             let differ = singles.iter().zip(&filled).filter(|(a, b)| a != b).count();
             assert_eq!(differ, 0, "{scenario:?}");
+        }
+    }
+
+    // Source: worked example — the board's sensor channel, read back through the
+    // profile's own sensor equation and averaged over a second, gives the board
+    // temperature the scenario sets (the soak warms the board 6 K with τ = 900 s), within
+    // the ADC noise averaged.
+    #[test]
+    fn the_board_sensor_streams_the_boards_temperature() {
+        let p = demo();
+        let sensor = p.temperature.unwrap();
+        let mut sim = Simulator::new(&p, Scenario::Soak, 1000.0, 4);
+        assert_eq!(sim.channels(), 2);
+        for second in [0.0, 900.0, 3600.0] {
+            sim.index = (second * 1000.0) as u64;
+            let mut frames = Vec::new();
+            let t0 = sim.fill(1000, &mut frames);
+            let mean: f64 = frames
+                .chunks(2)
+                .map(|f| sensor.celsius(&p.adc, f[sensor.channel]).unwrap())
+                .sum::<f64>()
+                / 1000.0;
+            let board = sim.board_kelvin(t0 + 0.5).unwrap() - CELSIUS_ZERO_K;
+            let want = Scenario::Soak.board_kelvin(t0 + 0.5, 300.0) - CELSIUS_ZERO_K;
+            assert!((board - want).abs() < 1e-12);
+            assert!(
+                (mean - want).abs() < 0.01,
+                "{second} s: {mean} °C vs {want} °C"
+            );
         }
     }
 

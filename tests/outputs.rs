@@ -216,7 +216,26 @@ fn append_refuses_rows_that_would_not_fit_and_leaves_the_log_as_it_was() {
         "--every",
         "10ms",
     ];
-    refused_unchanged(&intervals, &replay, &["1 channel(s)", "sends 2"]);
+    // The demo's log carries its board's temperature; a profile without one would not fit.
+    refused_unchanged(
+        &intervals,
+        &replay,
+        &[
+            "with the board's temperature",
+            "without a board temperature",
+        ],
+    );
+    let single = dir.join("one.txt");
+    let lines: String = (0..100).map(|i| format!("{}\n", 1000 + i)).collect();
+    std::fs::write(&single, lines).unwrap();
+    let one_channel = dir.join("one-channel.csv");
+    let mut record = bin();
+    record
+        .args(["record", "--replay", single.to_str().unwrap(), "--out"])
+        .arg(&one_channel)
+        .args(&replay[2..]);
+    assert!(output(&mut record).status.success());
+    refused_unchanged(&one_channel, &replay, &["1 channel(s)", "sends 2"]);
 }
 
 // Source: the rule in docs/recording.md ("Bounds"): a log written before the `bound`

@@ -1006,9 +1006,21 @@ fn a_clipped_sample_of_a_per_sample_log_shows_its_bound() {
     let (_, text) = overload_log(tmp.path(), "0", "21s");
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    // The demo board's temperature adds the uncompensated level and the board's cells.
     assert_eq!(
         header,
-        ["time_s", "counts", "volts", "dbm", "flags", "bound", "u_db"]
+        [
+            "time_s",
+            "counts",
+            "volts",
+            "dbm",
+            "flags",
+            "bound",
+            "u_db",
+            "uncomp_dbm",
+            "temp_c",
+            "temp_flags"
+        ]
     );
     let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect::<Vec<_>>()).collect();
     let (clipped, values): (Vec<_>, Vec<_>) = rows

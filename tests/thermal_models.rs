@@ -119,6 +119,7 @@ fn between_two_log_amp_lines_the_reading_is_their_temperature_weighted_mean() {
             Curve::new(280.0, Arc::new(cold.clone()), &points),
         ],
         280.0,
+        (280.0, 320.0),
     )
     .unwrap();
     assert_eq!(model.range_k(), (280.0, 320.0));

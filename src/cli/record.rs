@@ -282,23 +282,8 @@ fn resume(
     context: &RunContext,
 ) -> Result<Opening, Failure> {
     let per_sample = context.every.is_zero();
-    if shape.coupled != run.coupled.is_some() {
-        let (log, this) = if shape.coupled {
-            (
-                "a coupler run's rows (both arms and their match)",
-                "one detector's",
-            )
-        } else {
-            (
-                "one detector's rows",
-                "a coupler run's (both arms and their match)",
-            )
-        };
-        return Err(anyhow!(
-            "cannot add to {out}: it holds {log} and this run would write {this}; choose \
-             another --out"
-        ))
-        .bad_input();
+    if let Some(why) = shape.other_kind(run.coupled.is_some(), run.cal.thermal().is_some()) {
+        return Err(anyhow!("cannot add to {out}: {why}; choose another --out")).bad_input();
     }
     if shape.per_sample != per_sample {
         let (log, run) = if shape.per_sample {

@@ -19,18 +19,40 @@ use crate::maths::numeric::solve_bracketed;
 /// most in the square-law region, an error the budget's temperature term can still hold.
 pub const DIODE_LAW_REACH_K: f64 = 10.0;
 
-/// The points' temperatures, each distinct one with the indices of its points, coldest
-/// first.
+/// Points whose temperatures lie within this of the next colder point's are one
+/// calibration set, K. A choice: a board drifts a degree or so while a set is taken, and
+/// a second set worth taking lies several degrees away.
+pub const SET_GAP_K: f64 = 2.0;
+
+/// The points' calibration sets, coldest first: each set's mean temperature and the
+/// indices of its points (see [`SET_GAP_K`]).
 pub fn temperature_groups(kelvins: &[f64]) -> Vec<(f64, Vec<usize>)> {
-    let mut groups: Vec<(f64, Vec<usize>)> = Vec::new();
-    for (i, &k) in kelvins.iter().enumerate() {
-        match groups.iter_mut().find(|(g, _)| *g == k) {
-            Some((_, members)) => members.push(i),
-            None => groups.push((k, vec![i])),
+    let mut order: Vec<usize> = (0..kelvins.len()).collect();
+    order.sort_by(|&a, &b| kelvins[a].total_cmp(&kelvins[b]));
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    for i in order {
+        match groups.last_mut() {
+            Some(set) if kelvins[i] - kelvins[set[set.len() - 1]] <= SET_GAP_K => set.push(i),
+            _ => groups.push(vec![i]),
         }
     }
-    groups.sort_by(|a, b| a.0.total_cmp(&b.0));
     groups
+        .into_iter()
+        .map(|mut set| {
+            let mean = set.iter().map(|&i| kelvins[i]).sum::<f64>() / set.len() as f64;
+            set.sort_unstable();
+            (mean, set)
+        })
+        .collect()
+}
+
+/// The lowest and highest of the temperatures, K.
+pub fn temperature_span(kelvins: &[f64]) -> (f64, f64) {
+    kelvins
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &k| {
+            (lo.min(k), hi.max(k))
+        })
 }
 
 /// The points in order (by temperature, then level) with their temperatures, after the
@@ -44,11 +66,6 @@ pub fn ordered_at(
     model: ModelKind,
 ) -> Result<(Vec<CalPoint>, Vec<f64>), ModelError> {
     let groups = temperature_groups(kelvins);
-    if groups.len() <= 1 {
-        let sorted = ordered_points(points, model)?;
-        let kelvin = kelvins.first().copied().unwrap_or(f64::NAN);
-        return Ok((sorted.clone(), vec![kelvin; sorted.len()]));
-    }
     if points.len() < model.min_points() {
         return Err(ModelError::TooFewPoints {
             model,
@@ -56,17 +73,19 @@ pub fn ordered_at(
             got: points.len(),
         });
     }
-    let per_temperature = match model {
+    let per_set = match model {
+        _ if groups.len() <= 1 => model,
         ModelKind::Log => ModelKind::Log,
         ModelKind::Table | ModelKind::Diode => ModelKind::Table,
     };
     let mut sorted = Vec::with_capacity(points.len());
     let mut sorted_kelvins = Vec::with_capacity(points.len());
-    for (kelvin, members) in groups {
-        let group: Vec<CalPoint> = members.iter().map(|&i| points[i]).collect();
-        let ordered = ordered_points(&group, per_temperature).map_err(|e| to_given(e, &members))?;
-        sorted_kelvins.extend(std::iter::repeat_n(kelvin, ordered.len()));
-        sorted.extend(ordered);
+    for (_, mut members) in groups {
+        let set: Vec<CalPoint> = members.iter().map(|&i| points[i]).collect();
+        ordered_points(&set, per_set).map_err(|e| to_given(e, &members))?;
+        members.sort_by(|&a, &b| points[a].dbm.total_cmp(&points[b].dbm));
+        sorted.extend(members.iter().map(|&i| points[i]));
+        sorted_kelvins.extend(members.iter().map(|&i| kelvins[i]));
     }
     Ok((sorted, sorted_kelvins))
 }
@@ -154,6 +173,8 @@ pub enum ThermalModel {
         curves: Vec<Curve>,
         /// The temperature read when none is known: the first calibration set's, K.
         reference_k: f64,
+        /// The temperatures the points were taken at, lowest to highest, K.
+        range_k: (f64, f64),
     },
 }
 
@@ -170,13 +191,13 @@ pub struct AtTemperature {
 }
 
 impl ThermalModel {
-    /// A diode calibrated at the temperatures `kelvins` (those of its points).
+    /// A diode calibrated at the temperatures `kelvins` (those of its points; its own
+    /// when none is given).
     pub fn diode(detector: DiodeDetector, span_dbm: (f64, f64), kelvins: &[f64]) -> Self {
-        let (lo, hi) = kelvins
-            .iter()
-            .fold((detector.kelvin(), detector.kelvin()), |(lo, hi), &k| {
-                (lo.min(k), hi.max(k))
-            });
+        let (lo, hi) = match kelvins.is_empty() {
+            true => (detector.kelvin(), detector.kelvin()),
+            false => temperature_span(kelvins),
+        };
         ThermalModel::Diode {
             detector,
             span_dbm,
@@ -184,9 +205,10 @@ impl ThermalModel {
         }
     }
 
-    /// Curves taken at distinct temperatures (sorted here), read at `reference_k` when no
-    /// temperature is known. None without any curve.
-    pub fn curves(mut curves: Vec<Curve>, reference_k: f64) -> Option<Self> {
+    /// Curves taken at distinct temperatures (sorted here) from points taken over
+    /// `range_k`, read at `reference_k` when no temperature is known. None without any
+    /// curve.
+    pub fn curves(mut curves: Vec<Curve>, reference_k: f64, range_k: (f64, f64)) -> Option<Self> {
         if curves.is_empty() {
             return None;
         }
@@ -194,16 +216,14 @@ impl ThermalModel {
         Some(ThermalModel::Curves {
             curves,
             reference_k,
+            range_k,
         })
     }
 
     /// The temperatures readings are calibrated for, K.
     pub fn range_k(&self) -> (f64, f64) {
         match self {
-            ThermalModel::Diode { range_k, .. } => *range_k,
-            ThermalModel::Curves { curves, .. } => {
-                (curves[0].kelvin, curves[curves.len() - 1].kelvin)
-            }
+            ThermalModel::Diode { range_k, .. } | ThermalModel::Curves { range_k, .. } => *range_k,
         }
     }
 
@@ -334,12 +354,14 @@ mod tests {
     use super::*;
 
     #[test]
-    fn groups_are_coldest_first_with_their_members() {
-        let groups = temperature_groups(&[310.0, 290.0, 310.0, 300.0, 290.0]);
+    fn sets_are_coldest_first_with_their_members_and_mean_temperature() {
+        let groups = temperature_groups(&[310.0, 290.0, 311.0, 300.0, 290.5]);
         assert_eq!(
             groups,
-            vec![(290.0, vec![1, 4]), (300.0, vec![3]), (310.0, vec![0, 2])]
+            vec![(290.25, vec![1, 4]), (300.0, vec![3]), (310.5, vec![0, 2])]
         );
+        // A board that drifts a little while a set is taken makes one set.
+        assert_eq!(temperature_groups(&[298.0, 298.4, 299.1]).len(), 1);
     }
 
     #[test]

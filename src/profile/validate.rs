@@ -558,7 +558,7 @@ fn check_model(
     let diode_k = raw.temperature.unwrap_or(300.0);
     let kelvins = across::point_kelvins(&points, diode_k);
     let model = match kind {
-        ModelKind::Table | ModelKind::Log if across::tagged(&points) => {
+        ModelKind::Table | ModelKind::Log if across::several_sets(&points, &kelvins) => {
             let axis = match kind {
                 ModelKind::Table => Some(table_axis(check, raw)?),
                 _ => None,
@@ -568,7 +568,8 @@ fn check_model(
         ModelKind::Table => build_table(check, raw, &cal),
         ModelKind::Log => build_log(check, raw, &cal),
         ModelKind::Diode => build_diode(check, raw, &cal, &kelvins, ohms),
-    }?;
+    }
+    .map(|model| across::one_set(model, &points, &cal, &kelvins))?;
     check_agreement(check, &model, &points, &kelvins).then_some((model, points))
 }
 

@@ -14,6 +14,11 @@ pub const BOARD_COLUMNS: [&str; 2] = ["temp_c", "temp_flags"];
 /// A `temp_flags` name: some samples were read without a known board temperature.
 pub const TEMP_UNKNOWN: &str = "temp-unknown";
 
+/// How often the temperature readings are compensated at is taken from the window,
+/// seconds of source time. A choice: far faster than any board warms, and fixed in source
+/// time so that rows do not depend on how the samples were chunked on their way.
+pub const TEMPERATURE_TICK_S: f64 = 0.1;
+
 /// Faults in the order their names are written.
 const FAULTS: [SensorFault; 4] = [
     SensorFault::Open,
@@ -35,6 +40,9 @@ pub(crate) struct Board {
     unknown: u64,
     /// Since the last row: which of [`FAULTS`] the sensor showed.
     faults: [bool; FAULTS.len()],
+    /// The tick (of [`TEMPERATURE_TICK_S`]) now running, and the temperature its samples
+    /// are read at, K.
+    tick: Option<(i64, Option<f64>)>,
 }
 
 impl Board {
@@ -46,7 +54,24 @@ impl Board {
             applied: (0.0, 0),
             unknown: 0,
             faults: [false; FAULTS.len()],
+            tick: None,
         }
+    }
+
+    /// Takes the temperature sample of the frame at `t` and gives the temperature the
+    /// frame's power samples are read at, K: the window's mean as the frame's tick
+    /// began (with an empty window, the tick's first reading); None while unknown.
+    pub(crate) fn frame(&mut self, t: f64, code: u32) -> Option<f64> {
+        let tick = (t / TEMPERATURE_TICK_S).floor() as i64;
+        let running = self.tick.filter(|(at, _)| *at == tick);
+        let held_before = running.map_or_else(|| self.kelvin(), |(_, held)| held);
+        self.take(t, code);
+        let held = match running {
+            Some((_, held)) => held,
+            None => held_before.or_else(|| self.kelvin()),
+        };
+        self.tick = Some((tick, held));
+        held
     }
 
     /// The frame index of the temperature channel.
@@ -55,7 +80,7 @@ impl Board {
     }
 
     /// Takes the temperature sample of one frame taken at `t`.
-    pub(crate) fn take(&mut self, t: f64, code: u32) {
+    fn take(&mut self, t: f64, code: u32) {
         match self.channel.celsius(&self.adc, code) {
             Ok(celsius) => self.window.push(t, celsius),
             Err(fault) => {
@@ -67,7 +92,7 @@ impl Board {
     }
 
     /// The board's temperature now, K: the window's mean; None before a good reading.
-    pub(crate) fn kelvin(&self) -> Option<f64> {
+    fn kelvin(&self) -> Option<f64> {
         self.window.mean().map(|c| c + CELSIUS_ZERO_K)
     }
 

@@ -260,7 +260,8 @@ fn start_log(
 }
 
 fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) -> Result<Log> {
-    let (file, opening) = open_log_file(path, if_exists, app.coupler().is_some())?;
+    let board = app.coupler().is_none() && app.calibration().thermal().is_some();
+    let (file, opening) = open_log_file(path, if_exists, app.coupler().is_some(), board)?;
     let context = RunContext {
         started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
         ..setup.context.clone()
@@ -286,7 +287,12 @@ fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) ->
 
 /// Opens the log's file as `if_exists` says, locked against a second recorder (as
 /// `record`'s are), and how its rows begin.
-fn open_log_file(path: &Path, if_exists: IfExists, coupled: bool) -> Result<(LogFile, Opening)> {
+fn open_log_file(
+    path: &Path,
+    if_exists: IfExists,
+    coupled: bool,
+    board: bool,
+) -> Result<(LogFile, Opening)> {
     // Short, to fit the prompt's line: `watch --log --append/--force` is in the help.
     let file = LogFile::open(path, if_exists).map_err(|e| match e {
         LogOpenError::Exists(_) | LogOpenError::Locked(_) => {
@@ -295,7 +301,7 @@ fn open_log_file(path: &Path, if_exists: IfExists, coupled: bool) -> Result<(Log
         other => other.into(),
     })?;
     let opening = match if_exists {
-        IfExists::Append => resume_opening(file.file(), path, coupled)?,
+        IfExists::Append => resume_opening(file.file(), path, coupled, board)?,
         IfExists::Refuse | IfExists::Replace => Opening::Fresh,
     };
     Ok((file, opening))
@@ -303,7 +309,7 @@ fn open_log_file(path: &Path, if_exists: IfExists, coupled: bool) -> Result<(Log
 
 /// How rows go on after those of the log in `file`: fresh when it is empty, else after a
 /// `# resumed` line, when it holds rows per interval as the screen writes them.
-fn resume_opening(file: &File, path: &Path, coupled: bool) -> Result<Opening> {
+fn resume_opening(file: &File, path: &Path, coupled: bool, board: bool) -> Result<Opening> {
     let name = path.display();
     let len = file
         .metadata()
@@ -320,15 +326,8 @@ fn resume_opening(file: &File, path: &Path, coupled: bool) -> Result<Opening> {
              second; choose another file"
         );
     }
-    if shape.coupled != coupled {
-        let (log, run) = if shape.coupled {
-            ("a coupler run's rows", "one detector's")
-        } else {
-            ("one detector's rows", "a coupler run's")
-        };
-        anyhow::bail!(
-            "cannot add to {name}: it holds {log}, this screen logs {run}; choose another file"
-        );
+    if let Some(why) = shape.other_kind(coupled, board) {
+        anyhow::bail!("cannot add to {name}: {why}; choose another file");
     }
     Ok(Opening::Resume {
         channels: shape.channels,

@@ -5,7 +5,9 @@
 use std::sync::Arc;
 
 use super::{model, model_problem, Checker};
-use crate::detector::thermal::{ordered_at, temperature_groups, Curve, ThermalModel};
+use crate::detector::thermal::{
+    ordered_at, temperature_groups, temperature_span, Curve, ThermalModel,
+};
 use crate::detector::{Axis, CalPoint, Detector, LogAmpDetector, ModelKind, TableDetector};
 use crate::profile::locate::FieldPath;
 use crate::profile::raw::RawModel;
@@ -20,13 +22,32 @@ pub(super) fn point_kelvins(points: &[ProfilePoint], untagged_k: f64) -> Vec<f64
         .collect()
 }
 
-/// True when the points were taken at a temperature they say (their `temp_c`).
-pub(super) fn tagged(points: &[ProfilePoint]) -> bool {
-    points.iter().any(|p| p.temp_c.is_some())
+/// True when the points were taken at temperatures they say (their `temp_c`) that make
+/// more than one calibration set.
+pub(super) fn several_sets(points: &[ProfilePoint], kelvins: &[f64]) -> bool {
+    points.iter().any(|p| p.temp_c.is_some()) && temperature_groups(kelvins).len() > 1
 }
 
-/// A table or log-amp model with one curve per calibrated temperature, read at the first
-/// point's temperature when none is known.
+/// A table or log-amp model from one tagged calibration set, made a model across
+/// temperature that holds only over the temperatures its points were taken at.
+pub(super) fn one_set(
+    mut built: Model,
+    points: &[ProfilePoint],
+    cal: &[CalPoint],
+    kelvins: &[f64],
+) -> Model {
+    if built.kind == ModelKind::Diode || points.iter().all(|p| p.temp_c.is_none()) {
+        return built;
+    }
+    let mean = kelvins.iter().sum::<f64>() / kelvins.len() as f64;
+    let curve = Curve::new(mean, Arc::clone(&built.detector), cal);
+    let range = temperature_span(kelvins);
+    built.thermal = ThermalModel::curves(vec![curve], mean, range).map(Arc::new);
+    built
+}
+
+/// A table or log-amp model with one curve per calibration set, read at the first
+/// point's set's temperature when none is known.
 pub(super) fn build_curves(
     check: &mut Checker,
     raw: &RawModel,
@@ -36,36 +57,38 @@ pub(super) fn build_curves(
     kelvins: &[f64],
 ) -> Option<Model> {
     if kind == ModelKind::Log && (raw.slope.is_some() || raw.intercept.is_some()) {
-        let several = temperature_groups(kelvins).len() > 1;
-        if several {
-            check.fail(
-                FieldPath::key("model").then(if raw.slope.is_some() {
-                    "slope"
-                } else {
-                    "intercept"
-                }),
-                "points at several temperatures give a line at each; remove `slope` and \
-                 `intercept` to fit them from the points",
-            );
-            return None;
-        }
+        let field = if raw.slope.is_some() {
+            "slope"
+        } else {
+            "intercept"
+        };
+        check.fail(
+            FieldPath::key("model").then(field),
+            "points at several temperatures give a line at each; remove `slope` and \
+             `intercept` to fit them from the points",
+        );
+        return None;
     }
     ordered_at(cal, kelvins, kind)
         .map_err(|e| model_problem(check, e))
         .ok()?;
+    let sets = temperature_groups(kelvins);
+    let reference_k = sets
+        .iter()
+        .find(|(_, members)| members.contains(&0))
+        .map(|(kelvin, _)| *kelvin)?;
     let mut curves = Vec::new();
-    for (kelvin, members) in temperature_groups(kelvins) {
-        let group: Vec<CalPoint> = members.iter().map(|&i| cal[i]).collect();
+    for (kelvin, members) in sets {
+        let set: Vec<CalPoint> = members.iter().map(|&i| cal[i]).collect();
         let built: Result<Arc<dyn Detector>, _> = match kind {
-            ModelKind::Log => LogAmpDetector::fit(&group).map(|d| Arc::new(d) as Arc<dyn Detector>),
-            _ => TableDetector::new(&group, axis.unwrap_or(Axis::LogVolts))
+            ModelKind::Log => LogAmpDetector::fit(&set).map(|d| Arc::new(d) as Arc<dyn Detector>),
+            _ => TableDetector::new(&set, axis.unwrap_or(Axis::LogVolts))
                 .map(|d| Arc::new(d) as Arc<dyn Detector>),
         };
         let detector = built.map_err(|e| model_problem(check, e)).ok()?;
-        curves.push(Curve::new(kelvin, detector, &group));
+        curves.push(Curve::new(kelvin, detector, &set));
     }
-    let reference_k = kelvins.first().copied()?;
-    let thermal = ThermalModel::curves(curves, reference_k)?;
+    let thermal = ThermalModel::curves(curves, reference_k, temperature_span(kelvins))?;
     let detector = thermal.at_kelvin(reference_k).detector;
     // A log-amp's lines are fitted here; a table's curves are the points themselves.
     let fitted_at_load = kind == ModelKind::Log;
