@@ -1,5 +1,6 @@
 //! The hot path, stage by stage: decoding (both wire modes), calibration (the exact table
-//! and diode models, and the per-code table), and the statistics' inner loop. Figures are
+//! and diode models, and the per-code table), the statistics' inner loop, and the board
+//! temperature channel (a thermistor's code to °C, the averaging window). Figures are
 //! shown, never asserted; docs/performance.md records them.
 
 use criterion::{black_box, criterion_group, criterion_main, Criterion, Throughput};
@@ -7,6 +8,7 @@ use dbtrail::calibration::Calibration;
 use dbtrail::decode::{encode_ascii, encode_binary, Decoder, FlatCounts, Format};
 use dbtrail::profile::parse_profile;
 use dbtrail::stats::PowerStats;
+use dbtrail::thermal::{Ntc, NtcLaw, NtcPlacement, Sensor, TemperatureWindow};
 
 const SAMPLES: usize = 1 << 16;
 
@@ -141,5 +143,44 @@ fn statistics(c: &mut Criterion) {
     group.finish();
 }
 
-criterion_group!(benches, decoding, calibration, statistics);
+/// A 10 kΩ, β 3950 K thermistor to ground under 10 kΩ, and a window of 5 s at 10 k
+/// readings a second (50 000 held), as a fast board sensor would fill it.
+fn thermal(c: &mut Criterion) {
+    let adc = dbtrail::adc::Adc::new(12, 3.3, 1.0, 0.0, 0.005);
+    let law = NtcLaw::Beta {
+        r0_ohms: 1e4,
+        t0_c: 25.0,
+        beta_k: 3950.0,
+    };
+    let sensor = Sensor::Ntc(Ntc {
+        law,
+        fixed_ohms: 1e4,
+        placement: NtcPlacement::ToGround,
+    });
+    let codes: Vec<u32> = (0..SAMPLES as u32).map(|i| 1000 + i % 2000).collect();
+    let mut group = c.benchmark_group("thermal");
+    group.throughput(Throughput::Elements(SAMPLES as u64));
+    group.bench_function("thermistor code to celsius", |b| {
+        b.iter(|| {
+            black_box(&codes)
+                .iter()
+                .filter_map(|&code| sensor.celsius(&adc, f64::from(code)).ok())
+                .sum::<f64>()
+        })
+    });
+    let mut window = TemperatureWindow::new(5.0);
+    let mut t = 0.0;
+    group.bench_function("window push, 5 s at 10 k/s", |b| {
+        b.iter(|| {
+            for i in 0..SAMPLES {
+                t += 1e-4;
+                window.push(t, 25.0 + (i % 13) as f64 * 0.01);
+            }
+            window.mean()
+        })
+    });
+    group.finish();
+}
+
+criterion_group!(benches, decoding, calibration, statistics, thermal);
 criterion_main!(benches);

@@ -9,7 +9,8 @@
 //!   is ratiometric: ratio = volts at the pin / vref = counts / full scale, and vref
 //!   cancels;
 //! - a linear sensor (volts against °C) is read as pin volts, counts / full scale · vref;
-//! - a digital sensor that sends degrees as a count is scaled directly.
+//! - a digital sensor that sends degrees as a count is scaled directly; the ADC's full
+//!   scale does not enter.
 
 use std::collections::VecDeque;
 
@@ -29,7 +30,7 @@ pub const RAIL_MARGIN: f64 = 0.005;
 /// [`SensorFault::Implausible`].
 pub const PLAUSIBLE_C: (f64, f64) = (-55.0, 150.0);
 
-/// The sensor kinds by their profile names, in the order of [`Sensor`]'s forms.
+/// The sensor kinds by their profile names: the two NTC laws, then linear and digital.
 pub const SENSOR_NAMES: [&str; 4] = ["ntc-beta", "ntc-steinhart-hart", "linear", "degrees"];
 
 /// The most readings a [`TemperatureWindow`] holds; beyond it the oldest are dropped, so

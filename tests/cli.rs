@@ -179,6 +179,32 @@ fn fit_writes_a_profile_that_loads_and_keeps_its_fit() {
     );
 }
 
+// Source: worked example — the log-amp line of the test above, each point with the board
+// temperature it was taken at (the column first, as the header may order columns any
+// way): the written profile keeps them, on the same points, and the fit is the line's own
+// 25 mV/dB (temp_c does not enter the model).
+#[test]
+fn fit_carries_each_points_board_temperature_into_the_profile() {
+    let tmp = scratch("fit-temp");
+    let dir = tmp.path();
+    let points = dir.join("points.csv");
+    let mut csv = String::from("temp_c,applied,counts\n");
+    let temps = [21.5, 22.0, 23.25, 24.0, 26.5];
+    for (dbm, temp) in [-60, -45, -30, -15, 0].into_iter().zip(temps) {
+        csv.push_str(&format!("{temp},{dbm}dBm,{}\n", 25.0 * f64::from(dbm + 80)));
+    }
+    std::fs::write(&points, csv).unwrap();
+    let out_path = dir.join("warm.toml");
+    let (p, o) = (points.to_str().unwrap(), out_path.to_str().unwrap());
+    let out = dbtrail(&fit_args(p, "log", o));
+    assert!(out.status.success(), "{}", stderr(&out));
+    let profile = dbtrail::profile::load_profile(&out_path).unwrap();
+    let got: Vec<Option<f64>> = profile.points.iter().map(|p| p.temp_c).collect();
+    assert_eq!(got, temps.map(Some));
+    assert_eq!(profile.points[4].applied, "0dBm");
+    assert!((profile.raw.model.slope.unwrap() - 0.025).abs() < 1e-12);
+}
+
 /// A points file of `count` points on the log-amp line V = 0.025·(P + 80) (1 mV a count),
 /// each level written with `padding` zeros after its decimal point.
 fn line_points(dir: &Path, count: usize, padding: usize) -> PathBuf {
@@ -293,6 +319,23 @@ const BAD_POINTS: &[(&str, &str, &str)] = &[
         "truncated.csv",
         "table",
         "truncated.csv:4: counts: `` is not a finite",
+    ),
+    // Source: the rules in docs/profiles.md: temp_c is °C from -55 to 150, on every
+    // point or on none.
+    (
+        "temp_c_missing_on_a_row.csv",
+        "table",
+        "temp_c_missing_on_a_row.csv:3: temp_c: this point has no `temp_c`",
+    ),
+    (
+        "temp_c_with_unit.csv",
+        "table",
+        "temp_c_with_unit.csv:3: temp_c: `25C` is not a finite number",
+    ),
+    (
+        "temp_c_in_kelvin.csv",
+        "table",
+        "temp_c_in_kelvin.csv:3: temp_c: 298.15 is out of range",
     ),
     (
         "duplicate_applied_column.csv",
