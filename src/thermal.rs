@@ -17,9 +17,7 @@ use std::collections::VecDeque;
 use thiserror::Error;
 
 use crate::adc::Adc;
-
-/// 0 °C in kelvin.
-const ZERO_C_IN_K: f64 = 273.15;
+use crate::units::CELSIUS_ZERO_K;
 
 /// A code within this fraction of full scale of either rail (0 or full scale) is a sensor
 /// fault, never a temperature.
@@ -64,13 +62,13 @@ pub enum NtcLaw {
 impl NtcLaw {
     /// The thermistor's resistance at `celsius`, ohms.
     pub fn ohms_at(&self, celsius: f64) -> f64 {
-        let kelvin = celsius + ZERO_C_IN_K;
+        let kelvin = celsius + CELSIUS_ZERO_K;
         match *self {
             NtcLaw::Beta {
                 r0_ohms,
                 t0_c,
                 beta_k,
-            } => r0_ohms * (beta_k * (1.0 / kelvin - 1.0 / (t0_c + ZERO_C_IN_K))).exp(),
+            } => r0_ohms * (beta_k * (1.0 / kelvin - 1.0 / (t0_c + CELSIUS_ZERO_K))).exp(),
             NtcLaw::SteinhartHart { a, b, c } => ln_ohms_of_steinhart_hart(a, b, c, kelvin).exp(),
         }
     }
@@ -83,16 +81,16 @@ impl NtcLaw {
                 r0_ohms,
                 t0_c,
                 beta_k,
-            } => 1.0 / (t0_c + ZERO_C_IN_K) + (ln_r - r0_ohms.ln()) / beta_k,
+            } => 1.0 / (t0_c + CELSIUS_ZERO_K) + (ln_r - r0_ohms.ln()) / beta_k,
             NtcLaw::SteinhartHart { a, b, c } => a + b * ln_r + c * ln_r.powi(3),
         };
-        1.0 / inverse_kelvin - ZERO_C_IN_K
+        1.0 / inverse_kelvin - CELSIUS_ZERO_K
     }
 
     /// The Steinhart–Hart (a, b, c) of a β law: β is Steinhart–Hart with c = 0, so
     /// a = 1/T0 − ln(R0)/β and b = 1/β.
     pub fn steinhart_hart_of_beta(r0_ohms: f64, t0_c: f64, beta_k: f64) -> (f64, f64, f64) {
-        let a = 1.0 / (t0_c + ZERO_C_IN_K) - r0_ohms.ln() / beta_k;
+        let a = 1.0 / (t0_c + CELSIUS_ZERO_K) - r0_ohms.ln() / beta_k;
         (a, 1.0 / beta_k, 0.0)
     }
 }
@@ -452,6 +450,75 @@ impl TemperatureWindow {
         self.readings.clear();
         self.sum = 0.0;
         self.evicted_since_sum = 0;
+    }
+}
+
+/// How often the temperature that readings are compensated at is taken from the
+/// window, seconds of source time. A choice: far faster than any board warms, and fixed
+/// in source time so that what is read does not depend on how the samples were chunked on
+/// their way.
+pub const TEMPERATURE_TICK_S: f64 = 0.1;
+
+/// The board's temperature as a stream gives it, frame by frame: each sample of the
+/// temperature channel into the window, and for each frame the temperature its power
+/// samples are read at, taken from the window at fixed ticks of source time.
+#[derive(Debug, Clone)]
+pub struct BoardReader {
+    channel: TemperatureChannel,
+    adc: Adc,
+    window: TemperatureWindow,
+    /// The tick now running and the temperature its frames are read at, K.
+    tick: Option<(i64, Option<f64>)>,
+}
+
+impl BoardReader {
+    /// A reader of `channel`, whose codes are those of `adc`.
+    pub fn new(channel: TemperatureChannel, adc: &Adc) -> Self {
+        BoardReader {
+            window: channel.window(),
+            channel,
+            adc: adc.clone(),
+            tick: None,
+        }
+    }
+
+    /// The frame index of the temperature channel.
+    pub fn channel(&self) -> usize {
+        self.channel.channel
+    }
+
+    /// Takes the temperature sample `code` of the frame at `t`. Gives the temperature the
+    /// frame's power samples are read at, K (the window's mean as the frame's tick of
+    /// [`TEMPERATURE_TICK_S`] began; with an empty window then, the tick's first
+    /// reading; None while unknown), and the sample's fault, if it shows one.
+    pub fn frame(&mut self, t: f64, code: u32) -> (Option<f64>, Option<SensorFault>) {
+        let tick = (t / TEMPERATURE_TICK_S).floor() as i64;
+        let running = self.tick.filter(|(at, _)| *at == tick);
+        let before = running.map_or_else(|| self.kelvin(), |(_, held)| held);
+        let fault = match self.channel.celsius(&self.adc, code) {
+            Ok(celsius) => {
+                self.window.push(t, celsius);
+                None
+            }
+            Err(fault) => Some(fault),
+        };
+        let held = match running {
+            Some((_, held)) => held,
+            None => before.or_else(|| self.kelvin()),
+        };
+        self.tick = Some((tick, held));
+        (held, fault)
+    }
+
+    /// The window's mean now, K; None before a good reading.
+    pub fn kelvin(&self) -> Option<f64> {
+        self.window.mean().map(|c| c + CELSIUS_ZERO_K)
+    }
+
+    /// Forgets every reading (the source was restarted).
+    pub fn clear(&mut self) {
+        self.window.clear();
+        self.tick = None;
     }
 }
 

@@ -4,7 +4,7 @@
 
 use crate::adc::Adc;
 use crate::calibration::ThermalSetup;
-use crate::thermal::{SensorFault, TemperatureChannel, TemperatureWindow};
+use crate::thermal::{BoardReader, SensorFault};
 use crate::units::CELSIUS_ZERO_K;
 
 /// The columns a run with a temperature channel adds after each power column group.
@@ -13,11 +13,6 @@ pub const UNCOMPENSATED_COLUMN: &str = "uncomp_dbm";
 pub const BOARD_COLUMNS: [&str; 2] = ["temp_c", "temp_flags"];
 /// A `temp_flags` name: some samples were read without a known board temperature.
 pub const TEMP_UNKNOWN: &str = "temp-unknown";
-
-/// How often the temperature readings are compensated at is taken from the window,
-/// seconds of source time. A choice: far faster than any board warms, and fixed in source
-/// time so that rows do not depend on how the samples were chunked on their way.
-pub const TEMPERATURE_TICK_S: f64 = 0.1;
 
 /// Faults in the order their names are written.
 const FAULTS: [SensorFault; 4] = [
@@ -30,9 +25,7 @@ const FAULTS: [SensorFault; 4] = [
 /// The temperature channel of a run and what it has read.
 #[derive(Debug, Clone)]
 pub(crate) struct Board {
-    channel: TemperatureChannel,
-    adc: Adc,
-    window: TemperatureWindow,
+    reader: BoardReader,
     /// Since the last row: Σ kelvin·samples compensated at a known temperature, and
     /// how many samples that was.
     applied: (f64, u64),
@@ -40,60 +33,31 @@ pub(crate) struct Board {
     unknown: u64,
     /// Since the last row: which of [`FAULTS`] the sensor showed.
     faults: [bool; FAULTS.len()],
-    /// The tick (of [`TEMPERATURE_TICK_S`]) now running, and the temperature its samples
-    /// are read at, K.
-    tick: Option<(i64, Option<f64>)>,
 }
 
 impl Board {
     pub(crate) fn new(setup: &ThermalSetup, adc: &Adc) -> Self {
         Board {
-            channel: setup.channel,
-            adc: adc.clone(),
-            window: setup.channel.window(),
+            reader: BoardReader::new(setup.channel, adc),
             applied: (0.0, 0),
             unknown: 0,
             faults: [false; FAULTS.len()],
-            tick: None,
         }
-    }
-
-    /// Takes the temperature sample of the frame at `t` and gives the temperature the
-    /// frame's power samples are read at, K: the window's mean as the frame's tick
-    /// began (with an empty window, the tick's first reading); None while unknown.
-    pub(crate) fn frame(&mut self, t: f64, code: u32) -> Option<f64> {
-        let tick = (t / TEMPERATURE_TICK_S).floor() as i64;
-        let running = self.tick.filter(|(at, _)| *at == tick);
-        let held_before = running.map_or_else(|| self.kelvin(), |(_, held)| held);
-        self.take(t, code);
-        let held = match running {
-            Some((_, held)) => held,
-            None => held_before.or_else(|| self.kelvin()),
-        };
-        self.tick = Some((tick, held));
-        held
     }
 
     /// The frame index of the temperature channel.
     pub(crate) fn channel(&self) -> usize {
-        self.channel.channel
+        self.reader.channel()
     }
 
-    /// Takes the temperature sample of one frame taken at `t`.
-    fn take(&mut self, t: f64, code: u32) {
-        match self.channel.celsius(&self.adc, code) {
-            Ok(celsius) => self.window.push(t, celsius),
-            Err(fault) => {
-                if let Some(i) = FAULTS.iter().position(|&f| f == fault) {
-                    self.faults[i] = true;
-                }
-            }
+    /// Takes the temperature sample of the frame at `t` (noting a fault) and gives the
+    /// temperature the frame's power samples are read at (see [`BoardReader::frame`]).
+    pub(crate) fn frame(&mut self, t: f64, code: u32) -> Option<f64> {
+        let (kelvin, fault) = self.reader.frame(t, code);
+        if let Some(i) = fault.and_then(|fault| FAULTS.iter().position(|&f| f == fault)) {
+            self.faults[i] = true;
         }
-    }
-
-    /// The board's temperature now, K: the window's mean; None before a good reading.
-    fn kelvin(&self) -> Option<f64> {
-        self.window.mean().map(|c| c + CELSIUS_ZERO_K)
+        kelvin
     }
 
     /// Notes that `samples` power samples were read at `kelvin`.
