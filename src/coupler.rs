@@ -314,6 +314,22 @@ pub enum CouplerError {
         /// What is wrong with the profile.
         source: ProfileError,
     },
+    /// An arm's profile reads a board temperature, which a coupler run does not
+    /// compensate.
+    #[error(
+        "the {arm} detector's profile {profile}, named in {origin}, has a [temperature] table, \
+         but a coupler run does not compensate its arms for temperature yet; remove the table \
+         from that profile (its readings are then as calibrated), or record that detector on \
+         its own with --profile"
+    )]
+    ArmTemperature {
+        /// `forward` or `reflected`.
+        arm: &'static str,
+        /// The profile's name as the set-up gives it.
+        profile: String,
+        /// The set-up file.
+        origin: String,
+    },
 }
 
 /// Validates a coupler set-up given as text; `origin` names it in messages.
@@ -341,11 +357,19 @@ fn with_profiles(
     profile: impl Fn(&str) -> Result<Profile, ProfileError>,
 ) -> Result<Coupler, CouplerError> {
     let arm = |arm: &'static str, named: &str| {
-        profile(named).map_err(|source| CouplerError::Profile {
+        let loaded = profile(named).map_err(|source| CouplerError::Profile {
             arm,
             origin: origin.to_string(),
             source,
-        })
+        })?;
+        match loaded.temperature {
+            Some(_) => Err(CouplerError::ArmTemperature {
+                arm,
+                profile: named.to_string(),
+                origin: origin.to_string(),
+            }),
+            None => Ok(loaded),
+        }
     };
     Ok(Coupler {
         forward: arm("forward", &setup.forward.profile)?,

@@ -4,10 +4,11 @@
 use std::fmt::Write;
 
 use dbtrail::calibration::Calibration;
-use dbtrail::detector::{rms, table::leave_one_out_db, ModelKind};
+use dbtrail::detector::thermal::{temperature_groups, ThermalModel};
+use dbtrail::detector::{rms, table::leave_one_out_db, Axis, CalPoint, ModelKind};
 use dbtrail::printable::escape_controls;
 use dbtrail::profile::Profile;
-use dbtrail::units::{format_signed_db, Si};
+use dbtrail::units::{format_signed_db, Si, CELSIUS_ZERO_K};
 
 /// The model lines: which model and how it was set, then its parameters on a line of
 /// their own (so the block stays inside 100 columns).
@@ -23,6 +24,26 @@ fn model_line(profile: &Profile) -> String {
     let params = |kind: &str, params: String| {
         format!("{kind}, {source} over {count} points:\n             {params}")
     };
+    let sets = match model.thermal.as_deref() {
+        Some(ThermalModel::Curves { curves, .. }) if curves.len() > 1 => Some(curves),
+        _ => None,
+    };
+    if let Some(curves) = sets {
+        let at: Vec<String> = curves
+            .iter()
+            .map(|c| format!("{:.1} °C", c.kelvin - CELSIUS_ZERO_K))
+            .collect();
+        let kind = if model.kind == ModelKind::Log {
+            "log-amp lines fitted at load"
+        } else {
+            "PCHIP tables"
+        };
+        return format!(
+            "{kind} over {count} points in {} sets taken at {}",
+            curves.len(),
+            at.join(", ")
+        );
+    }
     match model.kind {
         ModelKind::Table => format!(
             "table of {count} points, PCHIP on {} axis",
@@ -39,13 +60,37 @@ fn model_line(profile: &Profile) -> String {
         ModelKind::Diode => params(
             "diode peak detector",
             format!(
-                "n = {:.4}, V_L = Is·RL = {}, T = {} K",
+                "n = {:.4}, V_L = Is·RL = {}, T = {} K; Is follows XTI {}, EG {} eV",
                 model.param("n").unwrap_or(f64::NAN),
                 Si::new(model.param("vl").unwrap_or(f64::NAN), "V"),
-                raw.temperature.unwrap_or(300.0)
+                raw.temperature.unwrap_or(300.0),
+                profile.diode_law().xti,
+                profile.diode_law().eg_ev
             ),
         ),
     }
+}
+
+/// What the set-up says of the board's temperature: its sensor and the range readings are
+/// compensated over, or that they are not.
+fn board_line(cal: &Calibration) -> String {
+    let Some(setup) = cal.thermal() else {
+        return "no [temperature] table; readings are not compensated for the board's \
+                temperature"
+            .into();
+    };
+    let (lo, hi) = setup.model.range_k();
+    let channel = &setup.channel;
+    format!(
+        "channel {}, {} sensor averaged over {} s (±{} °C); readings compensated from {:.2} \
+         to {:.2} °C, flagged temp-outside beyond",
+        channel.channel + 1,
+        channel.sensor.name(),
+        channel.window_s,
+        channel.u_c,
+        lo - CELSIUS_ZERO_K,
+        hi - CELSIUS_ZERO_K
+    )
 }
 
 /// The set-up block: model, ADC, frequency, offset, span and limits.
@@ -94,6 +139,11 @@ pub fn setup(profile: &Profile, cal: &Calibration) -> String {
     let _ = writeln!(
         out,
         "  span       {lo:+.2} to {hi:+.2} dBm at the reference plane ({dlo:+.2} to {dhi:+.2} dBm at the detector)"
+    );
+    let _ = writeln!(
+        out,
+        "  board      {}",
+        board_line(cal).replace("; ", "\n             ")
     );
     let limits = &profile.limits;
     let limit = |v: Option<f64>| v.map_or("none".to_string(), |v| format!("{v:+.1} dBm"));
@@ -149,15 +199,33 @@ pub fn readings(cal: &Calibration, counts: &[f64]) -> String {
     out
 }
 
+/// Each point's leave-one-out error within its own calibration set (a table of several
+/// temperatures is a table per set).
+fn left_out_by_set(profile: &Profile, axis: Axis) -> Vec<Option<f64>> {
+    let cal = profile.cal_points();
+    let kelvins: Vec<f64> = profile
+        .points
+        .iter()
+        .map(|p| profile.point_kelvin(p))
+        .collect();
+    let mut out = vec![None; cal.len()];
+    for (_, members) in temperature_groups(&kelvins) {
+        let set: Vec<CalPoint> = members.iter().map(|&i| cal[i]).collect();
+        for (&i, e) in members.iter().zip(leave_one_out_db(&set, axis)) {
+            out[i] = e;
+        }
+    }
+    out
+}
+
 /// Each point's error under the model, and the RMS; for a table, the leave-one-out error.
 pub fn residuals(profile: &Profile) -> String {
     let errors = profile.residuals_db();
-    let detector = profile.model.detector.as_ref();
     let table = profile.model.kind == ModelKind::Table;
     let loo = profile
         .model
         .axis
-        .map(|axis| leave_one_out_db(&profile.cal_points(), axis));
+        .map(|axis| left_out_by_set(profile, axis));
     let mut out =
         String::from("\nCalibration points (at the detector; error = model minus applied)\n");
     out.push_str("  applied          counts    model dBm   error dB");
@@ -168,7 +236,7 @@ pub fn residuals(profile: &Profile) -> String {
             "  {:<14} {:>8.2} {:>12.3} {:>+10.3}",
             escape_controls(&point.applied),
             point.counts,
-            detector.dbm_at(point.volts),
+            point.dbm + errors[i],
             errors[i]
         );
         if let Some(loo) = &loo {

@@ -20,9 +20,10 @@ use crate::maths::numeric::solve_bracketed;
 pub const DIODE_LAW_REACH_K: f64 = 10.0;
 
 /// Points whose temperatures lie within this of the next colder point's are one
-/// calibration set, K. A choice: a board drifts a degree or so while a set is taken, and
-/// a second set worth taking lies several degrees away.
-pub const SET_GAP_K: f64 = 2.0;
+/// calibration set, K. A choice: a board drifts a few degrees while a set is taken (more
+/// on a bench that warms up with it), and a second set worth taking lies ten or more
+/// degrees away.
+pub const SET_GAP_K: f64 = 5.0;
 
 /// The points' calibration sets, coldest first: each set's mean temperature and the
 /// indices of its points (see [`SET_GAP_K`]).
