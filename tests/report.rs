@@ -1750,3 +1750,31 @@ fn the_plot_title_fits_an_overload_run_too() {
         "a soak title on an overload run"
     );
 }
+
+// Source: the rule that nothing panics on user input (docs/report.md, "Bad logs"). A log
+// whose every row reads −10.2000 dBm leaves a line's residuals of rounding only, each
+// like the last (lag-1 coefficient 1), so Andrews' bandwidth 1.1447·(α·n)^(1/3) is
+// infinite; before, it was taken as usize::MAX lags and doubled, which overflowed. The
+// drift is refused in words instead.
+#[test]
+fn a_perfectly_steady_log_is_reported_without_a_panic() {
+    let tmp = scratch("steady");
+    let rows: Vec<(f64, Option<f64>, &str)> = (0..91)
+        .map(|i| (f64::from(i) * 60.0, Some(-10.2), ""))
+        .collect();
+    let out = report_on(
+        tmp.path(),
+        "steady.csv",
+        &log_text(60.0, &rows),
+        &["--json"],
+    );
+    let value = json_of(&out);
+    near(&value, "mean_dbm", -10.2);
+    assert!(value["drift_db_per_hour"].is_null(), "{value}");
+    assert!(
+        value["drift_missing"]
+            .as_str()
+            .is_some_and(|why| why.contains("are all alike")),
+        "{value}"
+    );
+}
