@@ -240,3 +240,231 @@ fn the_drift_without_compensation_is_read_from_its_own_column() {
     let whole_at = table.find("  whole span ").unwrap();
     assert!(drift_at < uncomp_at && uncomp_at < whole_at, "{table}");
 }
+
+/// Eight 10 s rows whose temperatures are worked by hand below: two without one (a
+/// sensor fault and an unknown), one read outside the calibrated temperature range.
+fn temperature_log() -> String {
+    let mut rows = vec![
+        row(0.0, 10.0, 10.1, "24.000"),
+        row(10.0, 10.0, 10.1, "23.500"),
+        row(20.0, 10.0, 10.1, ""),
+        row(30.0, 10.0, 10.1, "31.250"),
+        row(40.0, 10.0, 10.1, "29.125"),
+        row(50.0, 10.0, 10.1, ""),
+        row(60.0, 10.0, 10.1, "30.000"),
+        row(70.0, 10.0, 10.1, "30.500"),
+    ];
+    rows[2].temp_flags = "sensor-open|temp-unknown";
+    rows[2].flags = "temp-unknown";
+    rows[5].temp_flags = "temp-unknown";
+    rows[5].flags = "temp-unknown";
+    rows[3].flags = "temp-outside";
+    rows[7].uncomp = None;
+    log_of(10.0, &rows)
+}
+
+// Source: worked by hand from the rows above: the lowest temperature is 23.500 °C (10 s),
+// the highest 31.250 °C (30 s), the first 24.000 °C and the last 30.500 °C; the rows at
+// 20 and 50 s have empty `temp_c` (2 unknown). From 25 s to 65 s: 31.250 / 29.125 °C,
+// first 31.250, last 30.000, 1 unknown. A row flagged `temp-outside` counts as any flag
+// is counted (docs/report.md, "Flags"), and carries no `u_db`, so the mean has none.
+#[test]
+fn the_temperature_range_and_its_unknown_rows_come_from_temp_c() {
+    let tmp = common::scratch("temperature");
+    let dir = tmp.path();
+    let text = temperature_log();
+    let value = json_of(&report_on(dir, "t.csv", &text, &["--json"]));
+    let range = &value["temperature_c"];
+    assert_eq!(
+        (number(range, "min"), number(range, "max")),
+        (23.5, 31.25),
+        "{range}"
+    );
+    assert_eq!(
+        (number(range, "first"), number(range, "last")),
+        (24.0, 30.5),
+        "{range}"
+    );
+    assert_eq!(range["rows_unknown"], 2, "{range}");
+    assert_eq!(value["flagged_rows"]["temp-outside"], 1, "{value}");
+    assert_eq!(value["flagged_rows"]["temp-unknown"], 2, "{value}");
+    assert!(value["mean_u_db"].is_null(), "{value}");
+    // Eight rows are too few for a drift, with the column or without it: null, not absent.
+    assert!(
+        value["drift_uncompensated_db_per_hour"].is_null(),
+        "{value}"
+    );
+    assert!(
+        value
+            .as_object()
+            .unwrap()
+            .contains_key("drift_uncompensated_db_per_hour"),
+        "{value}"
+    );
+
+    let cut = json_of(&report_on(
+        dir,
+        "t.csv",
+        &text,
+        &["--json", "--from", "25s", "--to", "65s"],
+    ));
+    let range = &cut["temperature_c"];
+    assert_eq!(
+        (
+            number(range, "min"),
+            number(range, "max"),
+            number(range, "first"),
+            number(range, "last")
+        ),
+        (29.125, 31.25, 31.25, 30.0),
+        "{range}"
+    );
+    assert_eq!(range["rows_unknown"], 1, "{range}");
+
+    let table = text_of(&report_on(dir, "t.csv", &text, &[]));
+    assert_eq!(
+        text_line(&table, "temperature"),
+        "23.50 to 31.25 °C on the board, 24.00 °C at the span's start and 30.50 °C at its \
+         end; 2 rows with no temperature"
+    );
+    assert!(
+        text_line(&table, "flagged rows").contains("temp-outside 1"),
+        "{table}"
+    );
+    assert!(
+        text_line(&table, "uncertainty").starts_with(
+            "not known: 1 row was read outside the calibrated temperature range (temp-outside)"
+        ),
+        "{table}"
+    );
+}
+
+// Source: the rule in docs/report.md ("Long logs"): folded intervals keep the extremes
+// and counts of the rows as logged, so folding the rows above into 40 s intervals gives
+// the same temperature figures.
+#[test]
+fn folded_rows_keep_the_temperature_figures_of_the_rows_as_logged() {
+    let tmp = common::scratch("temperature-folded");
+    let dir = tmp.path();
+    let text = temperature_log();
+    let logged = json_of(&report_on(dir, "t.csv", &text, &["--json"]));
+    let folded = json_of(&report_on(
+        dir,
+        "t.csv",
+        &text,
+        &["--json", "--every", "40s"],
+    ));
+    assert_eq!(folded["reduced_to_s"], 40.0, "{folded}");
+    assert_eq!(folded["temperature_c"], logged["temperature_c"]);
+}
+
+/// Rows of an hour and a half at 60 s with the starting zero and two zeros taken, one
+/// after 30 min and one after 1 h 30 min, and a unit of each change in the same line.
+fn zero_log() -> String {
+    let mut text = opening(60.0);
+    for i in 0..=90 {
+        let t = f64::from(i) * 60.0;
+        text.push_str(&row_line(&row(t, -10.0, -10.2, "25.000")));
+        if i == 30 {
+            text.push_str(
+                "# zero: time_s=1800.000 counts=3.200 change_counts=+0.200 \
+                 change_db_at_span_bottom=-0.074 span_bottom_dbm=-27.000\n",
+            );
+        }
+        if i == 89 {
+            text.push_str(
+                "# zero: span_bottom_dbm=-27.000 change_db_at_span_bottom=-0.153 \
+                 change_counts=+0.412 counts=3.412 time_s=5400.000 by=operator\n",
+            );
+        }
+    }
+    text
+}
+
+// Source: worked by hand from the zero lines above. Whole log: 2 zeros taken, the last
+// 3.412 counts at 5400 s, +0.412 counts from the start's 3.000, which over the 1.5 h
+// from the starting zero (time 0) is 0.412 / 1.5 = 0.274667 counts/h; at the span's
+// bottom (−27 dBm) a change of −0.153 dB. Up to 40 min only the first counts: +0.200
+// over 0.5 h = 0.4 counts/h. Up to 20 min no zero was taken, and a log whose only zero
+// line is its start has none either: the key is absent.
+#[test]
+fn zeros_taken_give_the_change_and_its_rate_from_the_runs_starting_zero() {
+    let tmp = common::scratch("zeros");
+    let dir = tmp.path();
+    let text = zero_log();
+    let value = json_of(&report_on(dir, "z.csv", &text, &["--json"]));
+    let zero = &value["zero"];
+    assert_eq!(number(zero, "start_counts"), 3.0, "{zero}");
+    assert_eq!(zero["zeros_taken"], 2, "{zero}");
+    assert_eq!(number(zero, "last_counts"), 3.412, "{zero}");
+    assert_eq!(number(zero, "change_counts"), 0.412, "{zero}");
+    assert_eq!(number(zero, "change_db_at_span_bottom"), -0.153, "{zero}");
+    assert_eq!(number(zero, "span_bottom_dbm"), -27.0, "{zero}");
+    assert!(
+        (number(zero, "change_counts_per_hour") - 0.412 / 1.5).abs() < 1e-12,
+        "{zero}"
+    );
+
+    let early = json_of(&report_on(dir, "z.csv", &text, &["--json", "--to", "40m"]));
+    let zero = &early["zero"];
+    assert_eq!(zero["zeros_taken"], 1, "{zero}");
+    assert_eq!(number(zero, "change_counts"), 0.2, "{zero}");
+    assert!(
+        (number(zero, "change_counts_per_hour") - 0.4).abs() < 1e-12,
+        "{zero}"
+    );
+
+    let before = json_of(&report_on(dir, "z.csv", &text, &["--json", "--to", "20m"]));
+    assert!(
+        !before.as_object().unwrap().contains_key("zero"),
+        "{before}"
+    );
+    let only_start = temperature_log();
+    let plain = json_of(&report_on(dir, "s.csv", &only_start, &["--json"]));
+    assert!(!plain.as_object().unwrap().contains_key("zero"), "{plain}");
+
+    let table = text_of(&report_on(dir, "z.csv", &text, &[]));
+    assert_eq!(
+        text_line(&table, "zero"),
+        "2 taken with the RF off; the last, at 1:30:00 (5400 s), 3.412 counts, +0.412 counts \
+         from the run's starting zero of 3.000 (+0.275 counts/h): a reading at the span's \
+         bottom (-27.000 dBm) moves by -0.153 dB"
+    );
+}
+
+// Source: the rule in docs/report.md ("Bad logs"): a bad line gets a message naming the
+// file and its line, and exit code 2. Line numbers count every line: the zero line after
+// the first row of `opening` (7 context lines and the header) is line 10.
+#[test]
+fn a_malformed_zero_line_is_refused_with_its_file_and_line() {
+    let tmp = common::scratch("bad-zero");
+    let dir = tmp.path();
+    let cases = [
+        (
+            "# zero: time_s=60.000 counts=3.1x change_counts=+0.1 \
+             change_db_at_span_bottom=-0.04 span_bottom_dbm=-27.000\n",
+            "`counts=3.1x`: `3.1x` is not a number",
+        ),
+        (
+            "# zero: time_s=60.000 counts=3.100\n",
+            "a zero line among the rows is a zero taken during the run",
+        ),
+        (
+            "# zero: time_s=60.000 counts=3.100 change_counts=+0.100\n",
+            "`change_db_at_span_bottom`, `span_bottom_dbm` is missing",
+        ),
+    ];
+    for (zero_line, want) in cases {
+        let mut text = opening(60.0);
+        text.push_str(&row_line(&row(0.0, -10.0, -10.2, "25.000")));
+        text.push_str(&row_line(&row(60.0, -10.0, -10.2, "25.000")));
+        text.push_str(zero_line);
+        text.push_str(&row_line(&row(120.0, -10.0, -10.2, "25.000")));
+        let out = report_on(dir, "bad.csv", &text, &[]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{stderr}");
+        let place = format!("{}:10: # zero: ", dir.join("bad.csv").display());
+        assert!(stderr.contains(&place), "`{stderr}` lacks `{place}`");
+        assert!(stderr.contains(want), "`{stderr}` lacks `{want}`");
+    }
+}
