@@ -165,13 +165,10 @@ pub(super) fn parse_zero(fields: &str, line: u64, origin: &str) -> Result<Zero, 
         }
     }
     let [Some(t), Some(counts), change @ ..] = known else {
-        let missing: Vec<&str> = ZERO_KEYS
-            .iter()
-            .zip(&known)
-            .filter(|(_, v)| v.is_none())
-            .map(|(k, _)| *k)
-            .collect();
-        return Err(wrong(format!("no `{}`", missing.join("` or `"))));
+        return Err(wrong(format!(
+            "no `{}`",
+            missing(&ZERO_KEYS, &known, "` or `")
+        )));
     };
     if !(0.0..=super::MAX_TIME_S).contains(&t) {
         return Err(wrong(format!(
@@ -187,15 +184,9 @@ pub(super) fn parse_zero(fields: &str, line: u64, origin: &str) -> Result<Zero, 
         }),
         [None, None, None] => None,
         _ => {
-            let missing: Vec<&str> = CHANGE_KEYS
-                .iter()
-                .zip(&change)
-                .filter(|(_, v)| v.is_none())
-                .map(|(k, _)| *k)
-                .collect();
             return Err(wrong(format!(
                 "a zero taken during the run gives all of its change, but `{}` is missing",
-                missing.join("`, `")
+                missing(&CHANGE_KEYS, &change, "`, `")
             )));
         }
     };
@@ -205,6 +196,17 @@ pub(super) fn parse_zero(fields: &str, line: u64, origin: &str) -> Result<Zero, 
         counts,
         change,
     })
+}
+
+/// The `keys` whose `values` were not given, joined by `between`.
+fn missing(keys: &[&str], values: &[Option<f64>], between: &str) -> String {
+    let names: Vec<&str> = keys
+        .iter()
+        .zip(values)
+        .filter(|(_, v)| v.is_none())
+        .map(|(k, _)| *k)
+        .collect();
+    names.join(between)
 }
 
 /// The drift read without temperature compensation.
