@@ -2214,3 +2214,46 @@ fn a_malformed_zero_line_is_refused_with_its_file_and_line() {
         assert!(stderr.contains(want), "`{stderr}` lacks `{want}`");
     }
 }
+
+// Source: the rule in docs/report.md ("A run with a temperature channel"): a resumed leg
+// that continues the run has its zeros placed in time as its rows are, and its own
+// starting zero line is passed over. Worked by hand: the leg resumed at 09:00 on a run
+// started at 08:00 takes its zero at 600 s of its own, so at 3600 + 600 = 4200 s of the
+// run; +0.300 counts over 4200 s is 0.3 / (7/6 h) = 0.257143 counts/h.
+#[test]
+fn a_resumed_legs_zero_is_placed_in_the_runs_time() {
+    let tmp = scratch("resumed-zero");
+    let leg = |started: &str, temp: &str, zero: &str| {
+        let mut text = opening(60.0).replace("2026-12-03T08:00:00.000Z", started);
+        for i in 0..10 {
+            text.push_str(&row_line(&row(f64::from(i) * 60.0, -10.0, -10.1, temp)));
+        }
+        text + zero
+    };
+    let text = leg(
+        "2026-12-03T08:00:00.000Z",
+        "25.000",
+        "# zero: time_s=600.000 counts=3.100 change_counts=+0.100 \
+         change_db_at_span_bottom=-0.040 span_bottom_dbm=-27.000\n",
+    ) + "# resumed 2026-12-03T09:00:00.000Z by dbtrail 0.1.0 from test\n"
+        + &leg(
+            "2026-12-03T09:00:00.000Z",
+            "26.000",
+            "# zero: time_s=600.000 counts=3.300 change_counts=+0.300 \
+             change_db_at_span_bottom=-0.110 span_bottom_dbm=-27.000\n",
+        );
+    let value = json_of(&report_on(tmp.path(), "r.csv", &text, &["--json"]));
+    assert!(value.get("runs").is_none(), "one run: {value}");
+    let zero = &value["zero"];
+    assert_eq!(zero["zeros_taken"], 2, "{zero}");
+    assert_eq!(number(zero, "start_counts"), 3.0, "{zero}");
+    assert!(
+        (number(zero, "change_counts_per_hour") - 0.3 / (4200.0 / 3600.0)).abs() < 1e-12,
+        "{zero}"
+    );
+    let range = &value["temperature_c"];
+    assert_eq!(
+        (number(range, "first"), number(range, "last")),
+        (25.0, 26.0)
+    );
+}
