@@ -1,7 +1,9 @@
 //! The soak report: reading a recorded log back (`read`), and the figures a person needs after a
 //! long run: mean power (over watts), extremes, spread, drift with its standard error,
 //! when the output settled, gaps and flagged rows; and the decimation that lets a long log
-//! be drawn without losing its extremes.
+//! be drawn without losing its extremes; for a run with a temperature channel, the drift
+//! read without compensation, the board's temperature and the zeros taken
+//! (`compensation`).
 
 use std::collections::BTreeMap;
 
@@ -12,9 +14,11 @@ use crate::maths::numeric::fit_line;
 use crate::stats::Bound;
 use crate::units::{dbm_to_watts, format_clock, watts_to_dbm};
 use allan::AllanPoint;
+use compensation::{RunCompensation, TemperatureRange, UncompensatedDrift, ZeroSummary};
 use soak::{SoakFit, SoakModel};
 
 pub mod allan;
+pub mod compensation;
 pub mod matched;
 mod read;
 pub mod reduce;
@@ -214,6 +218,15 @@ impl Run {
 pub struct Log {
     /// The runs, in file order.
     pub runs: Vec<Run>,
+    /// What each run logs about its compensation, one per run in the same order.
+    pub compensation: Vec<RunCompensation>,
+}
+
+impl Log {
+    /// What `run` (one of this log's) logs about its compensation.
+    pub fn compensation_of(&self, run: &Run) -> Option<&RunCompensation> {
+        self.compensation.get(run.number.checked_sub(1)?)
+    }
 }
 
 /// Reads a log written by `record` (or the screen's logging), per interval or per sample,
@@ -370,6 +383,16 @@ pub struct Report {
     /// The gaps as (start, end) seconds since the run started.
     #[serde(skip)]
     pub gap_spans: Vec<(f64, f64)>,
+    /// The drift read without temperature compensation; no keys at all for a log
+    /// without the `uncomp_dbm` column.
+    #[serde(flatten)]
+    pub uncompensated: Option<UncompensatedDrift>,
+    /// The board's temperature over the span; absent for a log without `temp_c`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub temperature_c: Option<TemperatureRange>,
+    /// How far the zero moved; absent when the span holds no zero taken.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub zero: Option<ZeroSummary>,
 }
 
 /// The rows within the options' span.
@@ -403,6 +426,45 @@ fn span_words(options: &ReportOptions) -> String {
 
 /// Works out the figures of `run` over the chosen span.
 pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Report, LogError> {
+    analyse_compensated(run, None, origin, options)
+}
+
+/// [`analyse`], with the figures of what the run logs about its compensation (from
+/// [`Log::compensation_of`]) when given.
+pub fn analyse_compensated(
+    run: &Run,
+    compensation: Option<&RunCompensation>,
+    origin: &str,
+    options: &ReportOptions,
+) -> Result<Report, LogError> {
+    let mut report = analyse_power(run, origin, options)?;
+    if let Some(logged) = compensation {
+        add_compensation(&mut report, run, logged, options);
+    }
+    Ok(report)
+}
+
+/// The compensation's figures over the span: each only when the log has its column or
+/// lines.
+fn add_compensation(
+    report: &mut Report,
+    run: &Run,
+    logged: &RunCompensation,
+    options: &ReportOptions,
+) {
+    report.zero = compensation::zero_summary(logged, options);
+    let Some(pairs) = compensation::span_pairs(run, logged, options) else {
+        return;
+    };
+    report.uncompensated = logged.has_uncomp.then(|| {
+        compensation::uncompensated_drift(&pairs, report.start_s, &report.fit, report.drift_from_s)
+    });
+    report.temperature_c = logged
+        .has_temp
+        .then(|| compensation::temperature_range(&pairs));
+}
+
+fn analyse_power(run: &Run, origin: &str, options: &ReportOptions) -> Result<Report, LogError> {
     let rows = span_rows(run, options);
     if let (Some(first), Some(last), true) = (run.rows.first(), run.rows.last(), rows.is_empty()) {
         return Err(LogError::OutsideRows {
@@ -538,6 +600,9 @@ pub fn analyse(run: &Run, origin: &str, options: &ReportOptions) -> Result<Repor
         drift_at_start_dbm: line.map_or(means[0], |l| l.intercept),
         start_s: start,
         gap_spans,
+        uncompensated: None,
+        temperature_c: None,
+        zero: None,
     })
 }
 

@@ -7,7 +7,8 @@ use std::path::PathBuf;
 use anyhow::{anyhow, Context};
 use dbtrail::report::matched::{summarise, MatchSummary};
 use dbtrail::report::{
-    analyse, extreme_bound, read_log_folded, span_rows, Reduction, Report, ReportOptions, Run,
+    analyse_compensated, extreme_bound, read_log_folded, span_rows, Reduction, Report,
+    ReportOptions, Run,
 };
 use dbtrail::stats::Bound;
 use dbtrail::units::{format_clock, parse_duration, watts_to_dbm};
@@ -185,7 +186,10 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let several = log.runs.len() > 1;
     let reports = runs
         .iter()
-        .map(|run| analyse(run, &run_label(&origin, run, several), &options))
+        .map(|run| {
+            let label = run_label(&origin, run, several);
+            analyse_compensated(run, log.compensation_of(run), &label, &options)
+        })
         .collect::<Result<Vec<_>, _>>()
         .map_err(|e| match runs.len() {
             1 => anyhow::Error::new(e),

@@ -2,11 +2,14 @@
 //! runs it holds. A `# resumed` line (an appended recording) starts a new leg whose times
 //! restart; a leg whose fresh context lines change the profile, the frequency or the rows'
 //! spacing starts a new run, reported on its own. Rows must move forward in time through a
-//! run; every message names the file's real line.
+//! run; every message names the file's real line. A run with a temperature channel logs
+//! its rows' uncompensated means and temperatures, and the zeros it takes as `# zero:`
+//! lines between rows; those are read beside the runs (see [`super::compensation`]).
 
 use std::io::BufRead;
 use std::time::SystemTime;
 
+use super::compensation::{parse_zero, RowCompensation, RunCompensation, Temperatures, Zero};
 use super::reduce::{Folder, Reduction};
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
 use crate::stats::Bound;
@@ -17,6 +20,9 @@ pub const DBM_RANGE: (f64, f64) = (-200.0, 200.0);
 
 /// The largest `u_db` a cell may hold, dB: an uncertainty of a factor of 10^10 says nothing.
 const U_DB_MAX: f64 = 100.0;
+/// The temperatures a `temp_c` cell may hold, °C: from absolute zero to well past where
+/// any detector board still works.
+const TEMP_C_RANGE: (f64, f64) = (-273.15, 1000.0);
 /// The latest time a row may carry, seconds since the run started (about 32 years).
 pub const MAX_TIME_S: f64 = 1e9;
 /// The most samples one row may count: a million a second for over eleven days.
@@ -50,6 +56,10 @@ struct Columns {
     bound: Option<usize>,
     averaged: Option<usize>,
     u_db: Option<usize>,
+    /// The channel's mean read without temperature compensation.
+    uncomp: Option<usize>,
+    /// The board's temperature, one for all channels.
+    temp: Option<usize>,
     names: Vec<String>,
 }
 
@@ -58,6 +68,8 @@ struct Pending {
     line: u64,
     stamp: Option<SystemTime>,
     context: Vec<(u64, String)>,
+    /// The zero lines among them, their times the leg's own.
+    zeros: Vec<Zero>,
     header: bool,
 }
 
@@ -77,13 +89,15 @@ struct Current {
     leg_start: bool,
     /// The run's rows, as logged or folded into intervals.
     folder: Folder,
+    /// What the run logs about its compensation (its rows' part comes from the folder).
+    compensation: RunCompensation,
 }
 
 struct Reader<'a> {
     origin: &'a str,
     channel: usize,
     columns: Option<Columns>,
-    done: Vec<Run>,
+    done: Vec<(Run, RunCompensation)>,
     current: Current,
     pending: Option<Pending>,
     reduction: Reduction,
@@ -266,27 +280,59 @@ impl Current {
             last: None,
             leg_start: false,
             folder: Folder::new(reduction, None),
+            compensation: RunCompensation::default(),
         }
     }
 }
 
 impl Reader<'_> {
     fn comment(&mut self, line: u64, text: &str) -> Result<(), LogError> {
+        let zero = match text.strip_prefix("zero:") {
+            Some(fields) => Some(parse_zero(fields, line, self.origin)?),
+            None => None,
+        };
         if self.columns.is_none() {
             self.current.run.context.push(text.to_string());
             self.current.context_at.push(line);
+            if let Some(zero) = zero {
+                self.current.compensation.add_zero(zero);
+            }
         } else if let Some(rest) = text.strip_prefix("resumed") {
             self.pending = Some(Pending {
                 line,
                 stamp: rest.split_whitespace().next().and_then(parse_utc),
                 context: Vec::new(),
+                zeros: Vec::new(),
                 header: false,
             });
         } else if let Some(pending) = &mut self.pending {
             pending.context.push((line, text.to_string()));
+            pending.zeros.extend(zero);
         } else if text.starts_with("dbtrail") {
             return Err(self.joined(line, "a second log's `# dbtrail` lines begin here"));
+        } else if let Some(zero) = zero {
+            self.zero_taken(zero)?;
         }
+        Ok(())
+    }
+
+    /// A zero line among a run's rows: a zero taken during the run, placed in time as the
+    /// rows of its leg are.
+    fn zero_taken(&mut self, mut zero: Zero) -> Result<(), LogError> {
+        if zero.change.is_none() {
+            return Err(bad(
+                self.origin,
+                zero.line,
+                "# zero",
+                "a zero line among the rows is a zero taken during the run and gives its \
+                 `change_counts=… change_db_at_span_bottom=… span_bottom_dbm=…`; only the \
+                 run's opening lines hold its starting zero without them; fix or remove \
+                 the line"
+                    .into(),
+            ));
+        }
+        zero.t += self.current.offset;
+        self.current.compensation.add_zero(zero);
         Ok(())
     }
 
@@ -332,10 +378,13 @@ impl Reader<'_> {
         if record.len() < columns.width && place.before_resuming {
             return Ok(());
         }
-        let mut row = parse_row(record, columns, place, self.origin)?;
+        let (mut row, compensation) = parse_row(record, columns, place, self.origin)?;
         row.t += self.current.offset;
         self.current.check_order(row.t, line, self.origin)?;
-        self.current.folder.push(row);
+        let logged = &mut self.current.compensation;
+        logged.has_uncomp |= columns.uncomp.is_some();
+        logged.has_temp |= columns.temp.is_some();
+        self.current.folder.push(row, compensation);
         Ok(())
     }
 
@@ -350,6 +399,9 @@ impl Reader<'_> {
             let mut next = Current::new(run.number + 1, pending.line, context, self.reduction);
             next.base = next.base.or(pending.stamp);
             next.declare(columns, self.reduction, self.origin)?;
+            for zero in pending.zeros {
+                next.compensation.add_zero(zero);
+            }
             let done = std::mem::replace(&mut self.current, next);
             self.done.push(done.finish());
             return Ok(());
@@ -372,6 +424,12 @@ impl Reader<'_> {
         self.current.offset = offset;
         self.current.leg_start = true;
         self.current.run.resumed_lines.push(pending.line);
+        // The leg's own starting zero is passed over when the run has one; the zeros it
+        // takes are placed in time as its rows are.
+        for mut zero in pending.zeros {
+            zero.t += offset;
+            self.current.compensation.add_zero(zero);
+        }
         Ok(())
     }
 
@@ -387,7 +445,8 @@ impl Reader<'_> {
             });
         }
         self.done.push(self.current.finish());
-        Ok(Log { runs: self.done })
+        let (runs, compensation) = self.done.into_iter().unzip();
+        Ok(Log { runs, compensation })
     }
 }
 
@@ -499,15 +558,16 @@ impl Current {
         fresh
     }
 
-    fn finish(self) -> Run {
+    fn finish(self) -> (Run, RunCompensation) {
         let mut run = self.run;
+        let mut compensation = self.compensation;
         run.reduced_to_s = self.folder.width_s();
-        run.rows = self.folder.into_rows();
+        (run.rows, compensation.rows) = self.folder.into_rows();
         run.spacing = match (run.reduced_to_s, self.declared) {
             (Some(width), _) => Spacing::Interval(width),
             (None, declared) => declared_spacing(declared, &run.rows),
         };
-        run
+        (run, compensation)
     }
 }
 
@@ -594,6 +654,8 @@ fn columns(
         bound: find("bound"),
         averaged: find("averaged"),
         u_db: find("u_db"),
+        uncomp: find("uncomp_dbm"),
+        temp: names.iter().position(|h| h == "temp_c"),
         names,
     })
 }
@@ -603,7 +665,7 @@ fn parse_row(
     cols: &Columns,
     place: Place,
     origin: &str,
-) -> Result<LogRow, LogError> {
+) -> Result<(LogRow, RowCompensation), LogError> {
     let line = place.line;
     if record.len() != cols.width {
         // A short last line with no line end: the recording was cut off mid-row.
@@ -703,7 +765,32 @@ fn parse_row(
         },
         None => None,
     };
-    Ok(LogRow {
+    let temp_c = match cols.temp {
+        Some(i) => match number(i)? {
+            Some(c) if !(TEMP_C_RANGE.0..=TEMP_C_RANGE.1).contains(&c) => {
+                return Err(bad(
+                    origin,
+                    line,
+                    name(i),
+                    format!(
+                        "`{}` °C is outside {} to {} °C, colder than absolute zero or hotter \
+                         than any board works at; fix or remove the row",
+                        cell(i),
+                        TEMP_C_RANGE.0,
+                        TEMP_C_RANGE.1
+                    ),
+                ))
+            }
+            c => c,
+        },
+        None => None,
+    };
+    let compensation = RowCompensation {
+        uncomp_dbm: cols.uncomp.map_or(Ok(None), dbm)?,
+        temp_c: temp_c.map(Temperatures::at),
+        unknown_rows: u64::from(cols.temp.is_some() && temp_c.is_none()),
+    };
+    let row = LogRow {
         t,
         samples,
         mean_dbm,
@@ -717,7 +804,8 @@ fn parse_row(
         bound,
         averaged,
         u_db,
-    })
+    };
+    Ok((row, compensation))
 }
 
 fn time(value: Option<f64>, text: &str, line: u64, origin: &str) -> Result<f64, LogError> {

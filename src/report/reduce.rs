@@ -6,6 +6,7 @@
 //! on the grid is the row's place at the first width shifted right, so merging in steps
 //! gives the same intervals as folding at the final width in one go.
 
+use super::compensation::{RowCompensation, UncompSums};
 use super::LogRow;
 use crate::units::{dbm_to_watts, watts_to_dbm};
 
@@ -50,6 +51,11 @@ struct Interval {
     energy_u: f64,
     /// False once a row with a mean has no `u_db`.
     every_u: bool,
+    /// What its rows add: their temperatures joined (the uncompensated mean comes from
+    /// `uncomp`).
+    compensation: RowCompensation,
+    /// The sums its uncompensated mean is made from.
+    uncomp: UncompSums,
 }
 
 /// The rows of one run, as logged or folded.
@@ -60,7 +66,7 @@ pub(super) struct Folder {
     first_width_s: f64,
     /// None while rows are kept as logged.
     doublings: Option<u32>,
-    logged: Vec<LogRow>,
+    logged: Vec<(LogRow, RowCompensation)>,
     intervals: Vec<Interval>,
 }
 
@@ -78,21 +84,21 @@ impl Folder {
         }
     }
 
-    /// Takes the next row (rows come in time order).
-    pub(super) fn push(&mut self, row: LogRow) {
+    /// Takes the next row (rows come in time order) with what it adds.
+    pub(super) fn push(&mut self, row: LogRow, compensation: RowCompensation) {
         match self.doublings {
             None => {
-                self.logged.push(row);
+                self.logged.push((row, compensation));
                 if self.logged.len() > self.most_rows {
                     self.doublings = Some(0);
-                    for row in std::mem::take(&mut self.logged) {
-                        self.fold(row);
+                    for (row, compensation) in std::mem::take(&mut self.logged) {
+                        self.fold(row, compensation);
                     }
                     self.keep_under_cap();
                 }
             }
             Some(_) => {
-                self.fold(row);
+                self.fold(row, compensation);
                 self.keep_under_cap();
             }
         }
@@ -104,22 +110,23 @@ impl Folder {
             .map(|d| self.first_width_s * 2f64.powi(d as i32))
     }
 
-    /// The rows held: as logged, or one per interval (stamped at its start).
-    pub(super) fn into_rows(self) -> Vec<LogRow> {
+    /// The rows held: as logged, or one per interval (stamped at its start); and beside
+    /// them what each adds.
+    pub(super) fn into_rows(self) -> (Vec<LogRow>, Vec<RowCompensation>) {
         match self.width_s() {
-            None => self.logged,
-            Some(width) => self.intervals.iter().map(|i| finished(i, width)).collect(),
+            None => self.logged.into_iter().unzip(),
+            Some(width) => self.intervals.iter().map(|i| finished(i, width)).unzip(),
         }
     }
 
-    fn fold(&mut self, row: LogRow) {
+    fn fold(&mut self, row: LogRow, compensation: RowCompensation) {
         let first = (row.t / self.first_width_s).floor().max(0.0) as u64;
         let index = first.checked_shr(self.doublings.unwrap_or(0)).unwrap_or(0);
         match self.intervals.last_mut() {
             // A resumed leg may start a few milliseconds before the rows above it end:
             // such a row joins the interval those rows are in.
-            Some(last) if index <= last.index => merge(last, &start(index, row)),
-            _ => self.intervals.push(start(index, row)),
+            Some(last) if index <= last.index => merge(last, &start(index, row, compensation)),
+            _ => self.intervals.push(start(index, row, compensation)),
         }
     }
 
@@ -140,7 +147,8 @@ impl Folder {
 }
 
 /// An interval of one row.
-fn start(index: u64, row: LogRow) -> Interval {
+fn start(index: u64, row: LogRow, compensation: RowCompensation) -> Interval {
+    let uncomp = UncompSums::of(&row, &compensation);
     let (weight, energy, u) = match row.mean_dbm {
         Some(mean) => {
             let w = row.averaged.max(1) as f64;
@@ -162,6 +170,8 @@ fn start(index: u64, row: LogRow) -> Interval {
         weight,
         energy_u: energy * u.unwrap_or(0.0),
         every_u: u.is_some(),
+        compensation,
+        uncomp,
     }
 }
 
@@ -182,6 +192,8 @@ fn merge(into: &mut Interval, other: &Interval) {
     into.weight += other.weight;
     into.energy_u += other.energy_u;
     into.every_u &= other.every_u;
+    into.compensation.join_temperatures(&other.compensation);
+    into.uncomp.add(other.uncomp);
 }
 
 fn either(a: Option<f64>, b: Option<f64>, pick: fn(f64, f64) -> f64) -> Option<f64> {
@@ -193,23 +205,30 @@ fn either(a: Option<f64>, b: Option<f64>, pick: fn(f64, f64) -> f64) -> Option<f
 
 /// The row an interval stands as: stamped at its start, its mean the power mean of its
 /// rows' (over watts, weighted by samples averaged), its uncertainty theirs weighted by
-/// energy as the report weighs rows' (each wholly systematic).
-fn finished(interval: &Interval, width_s: f64) -> LogRow {
+/// energy as the report weighs rows' (each wholly systematic); beside it, its
+/// uncompensated mean over watts the same way and its rows' temperatures.
+fn finished(interval: &Interval, width_s: f64) -> (LogRow, RowCompensation) {
     let has_mean = interval.weight > 0.0;
     let mean_w = interval.energy / interval.weight;
-    LogRow {
+    let compensation = RowCompensation {
+        uncomp_dbm: interval.uncomp.mean_dbm(),
+        ..interval.compensation
+    };
+    let row = LogRow {
         t: interval.index as f64 * width_s,
         mean_dbm: has_mean.then(|| watts_to_dbm(mean_w)),
         u_db: (has_mean && interval.every_u && interval.energy > 0.0)
             .then(|| interval.energy_u / interval.energy),
         bound: interval.row.bound,
         ..interval.row.clone()
-    }
+    };
+    (row, compensation)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::report::compensation::Temperatures;
     use crate::stats::Bound;
 
     fn sample(t: f64, dbm: Option<f64>) -> LogRow {
@@ -237,13 +256,13 @@ mod tests {
             },
             None,
         );
-        folder.push(sample(0.0, Some(0.0)));
+        folder.push(sample(0.0, Some(0.0)), RowCompensation::default());
         let mut flagged = sample(0.5, Some(10.0 * 3f64.log10()));
         flagged.flags.push("clip".into());
         flagged.bound = Bound::AtLeast;
-        folder.push(flagged);
-        folder.push(sample(1.2, None));
-        let rows = folder.into_rows();
+        folder.push(flagged, RowCompensation::default());
+        folder.push(sample(1.2, None), RowCompensation::default());
+        let rows = folder.into_rows().0;
         assert_eq!(rows.len(), 2);
         assert!((rows[0].mean_dbm.unwrap() - 10.0 * 2f64.log10()).abs() < 1e-12);
         assert_eq!(rows[0].min_dbm, Some(0.0));
@@ -272,14 +291,14 @@ mod tests {
             None,
         );
         for i in 0..4 {
-            folder.push(sample(f64::from(i), Some(1.0)));
+            folder.push(sample(f64::from(i), Some(1.0)), RowCompensation::default());
         }
         assert_eq!(folder.width_s(), None);
         for i in 4..10 {
-            folder.push(sample(f64::from(i), Some(1.0)));
+            folder.push(sample(f64::from(i), Some(1.0)), RowCompensation::default());
         }
         assert_eq!(folder.width_s(), Some(4.0));
-        let rows = folder.into_rows();
+        let rows = folder.into_rows().0;
         let stamps: Vec<(f64, u64)> = rows.iter().map(|r| (r.t, r.samples)).collect();
         assert_eq!(stamps, [(0.0, 4), (4.0, 4), (8.0, 2)]);
     }
@@ -287,10 +306,15 @@ mod tests {
     /// The reduction done the plain way, after reading every row: the smallest doubling
     /// that keeps the intervals within the cap, then each interval's figures summed
     /// straight from its rows.
-    fn two_pass(rows: &[LogRow], reduction: Reduction, interval_s: Option<f64>) -> Vec<LogRow> {
-        if reduction.width_s.is_none() && rows.len() <= reduction.most_rows {
-            return rows.to_vec();
+    fn two_pass(
+        pairs: &[(LogRow, RowCompensation)],
+        reduction: Reduction,
+        interval_s: Option<f64>,
+    ) -> Vec<(LogRow, RowCompensation)> {
+        if reduction.width_s.is_none() && pairs.len() <= reduction.most_rows {
+            return pairs.to_vec();
         }
+        let rows: Vec<LogRow> = pairs.iter().map(|(r, _)| r.clone()).collect();
         let first = reduction.width_s.or(interval_s).unwrap_or(FIRST_WIDTH_S);
         let place = |r: &LogRow, d: u32| ((r.t / first).floor() as u64) >> d;
         let count = |d: u32| {
@@ -309,7 +333,10 @@ mod tests {
                     .iter()
                     .take_while(|r| place(r, doublings) == at)
                     .count();
-            out.push(summed(&rows[from..to], at as f64 * width));
+            out.push((
+                summed(&rows[from..to], at as f64 * width),
+                summed_compensation(&pairs[from..to]),
+            ));
             from = to;
         }
         out
@@ -357,6 +384,31 @@ mod tests {
         }
     }
 
+    /// An interval's compensation straight from its rows: the uncompensated means over
+    /// watts weighted by samples averaged, the temperatures' extremes, first and last.
+    fn summed_compensation(pairs: &[(LogRow, RowCompensation)]) -> RowCompensation {
+        let with_uncomp: Vec<(f64, f64)> = pairs
+            .iter()
+            .filter_map(|(r, c)| c.uncomp_dbm.map(|u| (r.averaged.max(1) as f64, u)))
+            .collect();
+        let energy: f64 = with_uncomp.iter().map(|(w, u)| w * dbm_to_watts(*u)).sum();
+        let weight: f64 = with_uncomp.iter().map(|(w, _)| w).sum();
+        let temps: Vec<Temperatures> = pairs.iter().filter_map(|(_, c)| c.temp_c).collect();
+        RowCompensation {
+            uncomp_dbm: (!with_uncomp.is_empty()).then(|| watts_to_dbm(energy / weight)),
+            temp_c: (!temps.is_empty()).then(|| Temperatures {
+                lowest: temps.iter().map(|t| t.lowest).fold(f64::INFINITY, f64::min),
+                highest: temps
+                    .iter()
+                    .map(|t| t.highest)
+                    .fold(f64::NEG_INFINITY, f64::max),
+                first: temps[0].first,
+                last: temps[temps.len() - 1].last,
+            }),
+            unknown_rows: pairs.iter().map(|(_, c)| c.unknown_rows).sum(),
+        }
+    }
+
     fn close(a: Option<f64>, b: Option<f64>) -> bool {
         match (a, b) {
             (Some(a), Some(b)) => (a - b).abs() <= 1e-9 * a.abs().max(1.0),
@@ -368,16 +420,23 @@ mod tests {
     const BOUNDS: [Bound; 4] = [Bound::Exact, Bound::AtLeast, Bound::AtMost, Bound::Unknown];
 
     /// Random rows in time order: steps of up to 3 s (gaps among them), some without a
-    /// mean, random flags, bounds and uncertainties.
-    fn random_rows() -> impl Strategy<Value = Vec<LogRow>> {
+    /// mean, random flags, bounds and uncertainties, and beside them uncompensated means
+    /// and temperatures, some missing.
+    fn random_rows() -> impl Strategy<Value = Vec<(LogRow, RowCompensation)>> {
         proptest::collection::vec(
             (
-                0.0..3.0f64,
-                proptest::option::weighted(0.8, -60.0..30.0f64),
-                0..8usize,
-                0..4usize,
-                proptest::option::weighted(0.9, 0.0..2.0f64),
-                1..20u64,
+                (
+                    0.0..3.0f64,
+                    proptest::option::weighted(0.8, -60.0..30.0f64),
+                    0..8usize,
+                    0..4usize,
+                    proptest::option::weighted(0.9, 0.0..2.0f64),
+                    1..20u64,
+                ),
+                (
+                    proptest::option::weighted(0.8, -60.0..30.0f64),
+                    proptest::option::weighted(0.8, -20.0..70.0f64),
+                ),
             ),
             1..400,
         )
@@ -385,23 +444,31 @@ mod tests {
             let mut t = 0.0;
             cells
                 .into_iter()
-                .map(|(step, mean, flags, bound, u_db, samples)| {
-                    t += step;
-                    LogRow {
-                        t,
-                        samples,
-                        mean_dbm: mean,
-                        min_dbm: mean.map(|m| m - 0.5),
-                        max_dbm: mean.map(|m| m + 0.25),
-                        flags: (0..3)
-                            .filter(|i| flags & (1 << i) != 0)
-                            .map(|i| FLAGS[i].to_string())
-                            .collect(),
-                        bound: BOUNDS[bound],
-                        averaged: samples,
-                        u_db,
-                    }
-                })
+                .map(
+                    |((step, mean, flags, bound, u_db, samples), (uncomp, temp))| {
+                        t += step;
+                        let compensation = RowCompensation {
+                            uncomp_dbm: uncomp,
+                            temp_c: temp.map(Temperatures::at),
+                            unknown_rows: u64::from(temp.is_none()),
+                        };
+                        let row = LogRow {
+                            t,
+                            samples,
+                            mean_dbm: mean,
+                            min_dbm: mean.map(|m| m - 0.5),
+                            max_dbm: mean.map(|m| m + 0.25),
+                            flags: (0..3)
+                                .filter(|i| flags & (1 << i) != 0)
+                                .map(|i| FLAGS[i].to_string())
+                                .collect(),
+                            bound: BOUNDS[bound],
+                            averaged: samples,
+                            u_db,
+                        };
+                        (row, compensation)
+                    },
+                )
                 .collect()
         })
     }
@@ -420,13 +487,19 @@ mod tests {
         ) {
             let reduction = Reduction { width_s: width, most_rows };
             let mut folder = Folder::new(reduction, interval);
-            for row in &rows {
-                folder.push(row.clone());
+            for (row, compensation) in &rows {
+                folder.push(row.clone(), *compensation);
             }
-            let streamed = folder.into_rows();
-            let reference = two_pass(&rows, reduction, interval);
+            let (streamed, beside) = folder.into_rows();
+            let (reference, reference_beside): (Vec<LogRow>, Vec<RowCompensation>) =
+                two_pass(&rows, reduction, interval).into_iter().unzip();
             prop_assert!(streamed.len() <= most_rows.max(rows.len().min(most_rows)));
             prop_assert_eq!(streamed.len(), reference.len());
+            prop_assert_eq!(beside.len(), streamed.len());
+            for (s, r) in beside.iter().zip(&reference_beside) {
+                prop_assert!(close(s.uncomp_dbm, r.uncomp_dbm), "{:?} {:?}", s, r);
+                prop_assert_eq!((s.temp_c, s.unknown_rows), (r.temp_c, r.unknown_rows));
+            }
             for (s, r) in streamed.iter().zip(&reference) {
                 prop_assert_eq!(
                     (s.t, s.samples, s.averaged, &s.flags, s.bound),

@@ -93,6 +93,9 @@ pub const MIN_DRIFT_ROWS: usize = 30;
 /// The largest lag-1 correlation the standard errors allow for (Andrews & Monahan's
 /// bound on a prewhitening filter), so that 1 − ρ never divides by almost nothing.
 pub const MAX_RHO: f64 = 0.97;
+/// A bandwidth of more than this many lags per row is no bandwidth: it comes only from
+/// residuals with a lag-1 coefficient of 1 (rounding alone).
+const UNBOUNDED_LAGS_PER_ROW: usize = 1000;
 /// Candidate time constants in the starting grid.
 const TAU_GRID_POINTS: usize = 48;
 
@@ -419,6 +422,13 @@ pub fn drift(t_s: &[f64], dbm: &[f64], from_s: f64) -> Result<Drift, String> {
     }
     let hac = prewhitened_slope(&t, &m)
         .ok_or_else(|| format!("the rows {stretch} have no spread in time"))?;
+    // Residuals of rounding alone, each like the last, give an unbounded bandwidth.
+    if hac.lags > t.len().saturating_mul(UNBOUNDED_LAGS_PER_ROW) {
+        return Err(format!(
+            "the residuals {stretch} are all alike (the rows lie on the line to the last \
+             digit), so how far they stay correlated cannot be judged"
+        ));
+    }
     if hac.lags * 2 > t.len() {
         return Err(format!(
             "the residuals {stretch} stay correlated over longer than the stretch itself can show \

@@ -96,6 +96,9 @@ pub fn warm_run(hours: f64) -> (Run, Report) {
         drift_at_start_dbm: 29.8,
         start_s: 0.0,
         gap_spans: vec![(5000.0, 5300.0)],
+        uncompensated: None,
+        temperature_c: None,
+        zero: None,
     };
     let run = Run {
         number: 1,

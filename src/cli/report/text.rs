@@ -3,6 +3,7 @@
 
 use dbtrail::matching::MatchState;
 use dbtrail::printable::wrap_words;
+use dbtrail::report::compensation::{TemperatureRange, UncompensatedDrift, ZeroSummary};
 use dbtrail::report::matched::{MatchSummary, PowerSpread, RowMatch};
 use dbtrail::report::soak::SoakModel;
 use dbtrail::report::{span_rows, Report, ReportOptions, Run, Spacing};
@@ -10,6 +11,9 @@ use dbtrail::stats::Bound;
 use dbtrail::units::{format_clock, Si};
 
 use super::Together;
+
+/// The flag of a row read outside the calibrated temperature range (issue 19).
+const OUTSIDE_TEMPERATURE: &str = "temp-outside";
 
 /// The widest line the table prints.
 pub const COLUMNS: usize = 100;
@@ -127,6 +131,14 @@ fn mean_uncertainty(r: &Report) -> String {
         (Some(u), _) => format!(
             "±{u:.3} dB (k = 2), the rows' own taken as systematic, so not reduced by their \
              number{left_out}"
+        ),
+        (None, Bound::Exact) if r.flagged_rows.contains_key(OUTSIDE_TEMPERATURE) => format!(
+            "not known: {} read outside the calibrated temperature range ({OUTSIDE_TEMPERATURE}), \
+             with no stated uncertainty",
+            match r.flagged_rows[OUTSIDE_TEMPERATURE] {
+                1 => "1 row was".to_string(),
+                n => format!("{n} rows were"),
+            }
         ),
         (None, Bound::Exact) => {
             "not known: rows with a mean carry no u_db (a log from before that column, or \
@@ -352,7 +364,7 @@ pub fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
         clock(r.duration_s),
         r.start_s,
     );
-    let lines = [
+    let mut lines = vec![
         ("span", span),
         ("samples", r.samples.to_string()),
         ("mean power", mean_power(r.mean_dbm, r.mean_w, r.mean_bound)),
@@ -369,20 +381,84 @@ pub fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
         ("model", model_words(r)),
         ("warm-up", warmup_words(r, tol)),
         ("drift", drift_words(r)),
+    ];
+    if let Some(drift) = &r.uncompensated {
+        lines.push(("uncompensated", uncompensated_words(drift)));
+    }
+    lines.extend([
         ("whole span", whole_drift_words(r)),
         ("settled", settled_words(r, tol)),
+    ]);
+    let mut after_allan = vec![
         ("gaps", format!("{}, {:.1} s in all", r.gaps, r.gap_s)),
         ("flagged rows", flag_words(&r.flagged_rows)),
     ];
+    if let Some(range) = &r.temperature_c {
+        after_allan.push(("temperature", temperature_words(range)));
+    }
+    if let Some(zero) = &r.zero {
+        after_allan.push(("zero", zero_words(zero)));
+    }
     let mut out = context_lines(run);
-    for (label, value) in &lines[..lines.len() - 2] {
+    for (label, value) in &lines {
         out.push_str(&labelled(label, value));
     }
     out.push_str(&allan_lines(r));
-    for (label, value) in &lines[lines.len() - 2..] {
+    for (label, value) in &after_allan {
         out.push_str(&labelled(label, value));
     }
     out
+}
+
+/// The drift without temperature compensation, beside the drift with it.
+fn uncompensated_words(drift: &UncompensatedDrift) -> String {
+    match drift.db_per_hour {
+        Some(d) => format!(
+            "without temperature compensation: {}; the drift's own stretch and method",
+            slope_words(d, drift.stderr_db_per_hour, None)
+        ),
+        None => format!(
+            "without temperature compensation: none: {}",
+            drift.missing.as_deref().unwrap_or("no fit")
+        ),
+    }
+}
+
+/// The board's temperature over the span, and how many rows had none.
+fn temperature_words(range: &TemperatureRange) -> String {
+    let unknown = match range.rows_unknown {
+        0 => String::new(),
+        1 => "; 1 row with no temperature".into(),
+        n => format!("; {n} rows with no temperature"),
+    };
+    match (range.min, range.max, range.first, range.last) {
+        (Some(min), Some(max), Some(first), Some(last)) => format!(
+            "{min:.2} to {max:.2} °C on the board, {first:.2} °C at the span's start and \
+             {last:.2} °C at its end{unknown}"
+        ),
+        _ => format!("not known: no row of the span gives one{unknown}"),
+    }
+}
+
+/// How far the zero moved by the last zero taken in the span.
+fn zero_words(z: &ZeroSummary) -> String {
+    let taken = match z.zeros_taken {
+        1 => "1 taken with the RF off".to_string(),
+        n => format!("{n} taken with the RF off"),
+    };
+    let rate = z
+        .change_counts_per_hour
+        .map_or(String::new(), |r| format!(" ({r:+.3} counts/h)"));
+    format!(
+        "{taken}; the last, at {}, {:.3} counts, {:+.3} counts from the run's starting zero \
+         of {:.3}{rate}: a reading at the span's bottom ({:+.3} dBm) moves by {:+.3} dB",
+        clock(z.last_t),
+        z.last_counts,
+        z.change_counts,
+        z.start_counts,
+        z.span_bottom_dbm,
+        z.change_db_at_span_bottom
+    )
 }
 
 /// The figures of several runs taken together.
