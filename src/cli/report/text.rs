@@ -414,11 +414,12 @@ pub fn table(run: &Run, r: &Report, options: &ReportOptions) -> String {
 fn uncompensated_words(drift: &UncompensatedDrift) -> String {
     match drift.db_per_hour {
         Some(d) => format!(
-            "without temperature compensation: {}; the drift's own stretch and method",
+            "{} read without temperature compensation (uncomp_dbm), over the drift's own \
+             stretch and by its method",
             slope_words(d, drift.stderr_db_per_hour, None)
         ),
         None => format!(
-            "without temperature compensation: none: {}",
+            "none read without temperature compensation: {}",
             drift.missing.as_deref().unwrap_or("no fit")
         ),
     }
