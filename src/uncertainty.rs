@@ -297,7 +297,16 @@ impl Uncertainty {
             None => budget.missing.push(TermKind::Noise),
         }
         let detector_dbm = dbm - self.cal.correction_db() - self.cal.offset_db();
-        match self.cal.detector().model_u_db(detector_dbm) {
+        // Compensated, the model is the one at the board's temperature.
+        let model_u_db = match (&self.temperature, kelvin) {
+            (Some(input), Some(kelvin)) => input
+                .model
+                .at_kelvin(kelvin)
+                .detector
+                .model_u_db(detector_dbm),
+            _ => self.cal.detector().model_u_db(detector_dbm),
+        };
+        match model_u_db {
             Some(u_db) => budget.terms.push(Term {
                 kind: TermKind::Model,
                 u_db,

@@ -177,3 +177,54 @@ fn compensated_readings_hold_the_truth_at_a_temperature_between_the_calibrations
         "compensated {comp_err} dB, uncompensated {plain_err} dB"
     );
 }
+
+/// The calibrated profile as a table model, its sets the same points.
+fn calibrated_table() -> String {
+    calibrated_profile()
+        .replace("kind = \"diode\"", "kind = \"table\"")
+        .replace(&format!("temperature = {CALIBRATED_AT_K}\n"), "")
+}
+
+// Source: the GUM's coverage at k = 2 (JCGM 100:2008 6.2), as above, for a table model
+// of two sets: between them the reading is the temperature-weighted mean of both curves,
+// and its stated uncertainty holds the interpolation's own error (docs/calibration.md,
+// "Temperature"), so the truth at 30 °C lies within it in at least 95 % of the rows.
+#[test]
+fn a_table_of_two_temperature_sets_holds_the_truth_between_them() {
+    let dir = scratch("temperature-table");
+    let profile = dir.path().join("table.toml");
+    std::fs::write(&profile, calibrated_table()).unwrap();
+    let capture = dir.path().join("at-30C.txt");
+    let truth = write_capture(&capture, 30.0 + CELSIUS_ZERO_K);
+    let log = dir.path().join("table.csv");
+    succeeded([
+        "record",
+        "--replay",
+        capture.to_str().unwrap(),
+        "--profile",
+        profile.to_str().unwrap(),
+        "--rate",
+        "1000",
+        "--every",
+        "1s",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    let (header, rows) = rows(&log);
+    let (mean, u) = (column(&header, "mean_dbm"), column(&header, "u_db"));
+    let (mut values, mut covered, mut worst) = (0, 0, 0.0f64);
+    for (row, truth) in rows.iter().zip(&truth).skip(1) {
+        let (Some(mean), Some(u)) = (number(&row[mean]), number(&row[u])) else {
+            continue;
+        };
+        values += 1;
+        covered += usize::from((mean - truth).abs() <= u);
+        worst = worst.max((mean - truth).abs());
+    }
+    eprintln!("table: {covered} of {values} covered; worst error {worst:.4} dB");
+    assert!(values >= SECONDS * 9 / 10, "{values} rows with a value");
+    assert!(
+        covered * 100 >= values * 95,
+        "{covered} of {values} covered"
+    );
+}

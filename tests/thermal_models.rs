@@ -147,3 +147,41 @@ fn a_diode_is_outside_its_range_ten_kelvin_past_its_calibration() {
     assert!(model.at_kelvin(321.0).outside);
     assert!(model.at_kelvin(279.0).outside);
 }
+
+// Source: the rule in docs/calibration.md ("Temperature"): between two sets the model's
+// uncertainty holds each curve's own (mixed as the readings are) and, in quadrature, a
+// rectangular interpolation error of half-width 2·w·(1 − w)·|cold − warm| (worked here at
+// w = 1/4: 0.375 of the gap, divided by √3), nothing of it on a set itself.
+#[test]
+fn between_two_sets_the_uncertainty_holds_the_interpolation() {
+    let line = |slope: f64, intercept: f64| {
+        let points: Vec<CalPoint> = [-50.0, -40.0, -30.0, -20.0, -10.0, 0.0]
+            .iter()
+            .map(|&dbm| CalPoint::new(dbm, slope * (dbm - intercept)))
+            .collect();
+        (LogAmpDetector::fit(&points).unwrap(), points)
+    };
+    let (cold, cold_points) = line(0.025, -60.0);
+    let (warm, warm_points) = line(0.024, -57.0);
+    let model = ThermalModel::curves(
+        vec![
+            Curve::new(280.0, Arc::new(cold.clone()), &cold_points),
+            Curve::new(320.0, Arc::new(warm.clone()), &warm_points),
+        ],
+        280.0,
+        (280.0, 320.0),
+    )
+    .unwrap();
+    let dbm = -25.0;
+    let at = model.at_kelvin(290.0);
+    let volts = at.detector.volts_at(dbm);
+    let gap = (cold.dbm_at(volts) - warm.dbm_at(volts)).abs();
+    assert!(gap > 2.0, "{gap}");
+    let (uc, uw) = (cold.model_u_db(dbm).unwrap(), warm.model_u_db(dbm).unwrap());
+    let curves = uc + 0.25 * (uw - uc);
+    let between = 0.375 * gap / 3f64.sqrt();
+    let want = curves.hypot(between);
+    let got = at.detector.model_u_db(dbm).unwrap();
+    assert!((got - want).abs() < 1e-9, "{got} vs {want}");
+    assert_eq!(model.at_kelvin(280.0).detector.model_u_db(dbm), Some(uc));
+}

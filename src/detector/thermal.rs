@@ -339,14 +339,25 @@ impl Detector for Blend {
         self.span_dbm
     }
 
+    /// Each curve's own uncertainty, mixed as the readings are, with the interpolation's
+    /// in quadrature: a rectangular error of half-width 2·w·(1 − w)·|cold − warm| (the
+    /// two curves' readings at the level). It vanishes on either curve and is half their
+    /// gap midway, where a detector that moves one way with temperature can be at most
+    /// that far from the straight line between them (its reading lies between the two).
+    /// An estimate of this project: how far the truth bows from that line is not known
+    /// from two sets alone, and a diode's bow is large (its Is rises exponentially).
     fn model_u_db(&self, detector_dbm: f64) -> Option<f64> {
-        match (
+        let curves = match (
             self.cold.model_u_db(detector_dbm),
             self.warm.model_u_db(detector_dbm),
         ) {
             (Some(c), Some(w)) => Some(self.mix(c, w)),
             (one, other) => one.or(other),
-        }
+        }?;
+        let volts = self.volts_at(detector_dbm);
+        let gap = (self.cold.dbm_at(volts) - self.warm.dbm_at(volts)).abs();
+        let between = 2.0 * self.w * (1.0 - self.w) * gap / 3f64.sqrt();
+        Some(curves.hypot(between)).filter(|u| u.is_finite())
     }
 }
 

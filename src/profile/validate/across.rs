@@ -29,14 +29,16 @@ pub(super) fn several_sets(points: &[ProfilePoint], kelvins: &[f64]) -> bool {
 }
 
 /// A table or log-amp model from one tagged calibration set, made a model across
-/// temperature that holds only over the temperatures its points were taken at.
+/// temperature that holds only over the temperatures its points were taken at (a model
+/// already across temperature, a diode's or one of several sets, is left as it is).
 pub(super) fn one_set(
     mut built: Model,
     points: &[ProfilePoint],
     cal: &[CalPoint],
     kelvins: &[f64],
 ) -> Model {
-    if built.kind == ModelKind::Diode || points.iter().all(|p| p.temp_c.is_none()) {
+    let untagged = points.iter().all(|p| p.temp_c.is_none());
+    if built.thermal.is_some() || untagged {
         return built;
     }
     let mean = kelvins.iter().sum::<f64>() / kelvins.len() as f64;
