@@ -652,13 +652,24 @@ swr_max = 2.0
     #[test]
     fn both_profiles_load_from_beside_the_set_up_and_a_bad_one_names_its_arm() {
         let dir = tempfile::tempdir().unwrap();
-        let demo = include_str!("../profiles/demo-diode.toml");
+        let with_board = include_str!("../profiles/demo-diode.toml");
+        let demo = with_board.split("\n[temperature]").next().unwrap();
         std::fs::write(dir.path().join("forward.toml"), demo).unwrap();
         std::fs::write(dir.path().join("reflected.toml"), demo).unwrap();
         let path = dir.path().join("coupler.toml");
         std::fs::write(&path, SETUP).unwrap();
         let coupler = load_coupler(&path).unwrap();
         assert_eq!(coupler.forward.name, coupler.reflected.name);
+        // An arm that reads its board's temperature is refused: a coupler run would not
+        // compensate it.
+        std::fs::write(dir.path().join("forward.toml"), with_board).unwrap();
+        let err = load_coupler(&path).unwrap_err();
+        assert!(
+            matches!(err, CouplerError::ArmTemperature { arm: "forward", .. }),
+            "{err}"
+        );
+        assert!(err.to_string().contains("remove the table"), "{err}");
+        std::fs::write(dir.path().join("forward.toml"), demo).unwrap();
         std::fs::write(dir.path().join("reflected.toml"), "name = 3\n").unwrap();
         let said = load_coupler(&path).unwrap_err().to_string();
         assert!(
