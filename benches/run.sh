@@ -8,14 +8,19 @@ cd "$(dirname "$0")/.."
 live_s=${1:-60}
 cargo build --release -q
 bin=target/release/dbtrail
-profile=profiles/demo-diode.toml
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
+# The plain path's figures: the demo diode without its board's temperature channel (one
+# channel a sample, as before temperature); the board's own path is measured after.
+board=profiles/demo-diode.toml
+profile="$work/plain.toml"
+sed '/^\[temperature\]/,$d' "$board" > "$profile"
 secs() { /usr/bin/time -f "%e %M" "$@" 2>&1 >/dev/null | tail -1; }
 
 echo "machine: $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | xargs); $(date -u +%F)"
-"$bin" sim --scenario soak --rate 10k --seconds 2000 --out "$work/a.txt"
-"$bin" sim --scenario soak --rate 10k --seconds 2000 --format binary --out "$work/b.bin"
+"$bin" sim --scenario soak --rate 10k --seconds 2000 --profile "$profile" --out "$work/a.txt"
+"$bin" sim --scenario soak --rate 10k --seconds 2000 --profile "$profile" --format binary --out "$work/b.bin"
+"$bin" sim --scenario soak --rate 10k --seconds 2000 --format binary --out "$work/t.bin"
 # Best of five wall times, to the microsecond (/usr/bin/time rounds to 10 ms).
 best() {
     python3 - "$@" <<'PY'
@@ -31,19 +36,21 @@ PY
 wc_s=$(best wc -l "$work/a.txt")
 ascii_s=$(best "$bin" record --replay "$work/a.txt" --profile "$profile" --rate 10k --every 1s --out "$work/r.csv" --force)
 bin_s=$(best "$bin" record --replay "$work/b.bin" --profile "$profile" --rate 10k --every 1s --out "$work/r.csv" --force)
-python3 - "$wc_s" "$ascii_s" "$bin_s" <<'PY'
+board_s=$(best "$bin" record --replay "$work/t.bin" --profile "$board" --rate 10k --every 1s --out "$work/r.csv" --force)
+python3 - "$wc_s" "$ascii_s" "$bin_s" "$board_s" <<'PY'
 import sys
-wc, a, b = map(float, sys.argv[1:])
+wc, a, b, t = map(float, sys.argv[1:])
 n = 20e6
 print(f"replay ascii 20M samples: {a:.3f} s = {n/a/1e6:.0f} M samples/s; wc -l {wc:.3f} s; ratio {a/max(wc,1e-3):.1f}x")
 print(f"replay binary 20M samples: {b:.3f} s = {n/b/1e6:.0f} M samples/s")
+print(f"replay binary 20M samples with the board's temperature (2 channels, compensated): {t:.3f} s = {n/t/1e6:.0f} M samples/s")
 PY
 
 read -r h1 m1 < <(secs "$bin" record --demo soak --rate 10k --duration 1h --fast --every 1s --out "$work/s1.csv")
 read -r h24 m24 < <(secs "$bin" record --demo soak --rate 10k --duration 24h --fast --every 1s --out "$work/s24.csv")
 echo "soak 1 h fast: $h1 s, peak RSS $m1 KB; 24 h fast (864 M samples): $h24 s, peak RSS $m24 KB ($(python3 -c "print(f'{100*($m24/$m1-1):+.1f}')") %)"
 
-"$bin" sim --scenario soak --rate 1M --format binary --seconds "$live_s" --pty > "$work/pty" &
+"$bin" sim --scenario soak --rate 1M --format binary --seconds "$live_s" --profile "$profile" --pty > "$work/pty" &
 sim=$!
 sleep 0.3
 port=$(head -1 "$work/pty")

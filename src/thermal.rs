@@ -466,6 +466,9 @@ pub const TEMPERATURE_TICK_S: f64 = 0.1;
 pub struct BoardReader {
     channel: TemperatureChannel,
     adc: Adc,
+    /// Each ADC code's temperature or fault, worked out once (empty for a sensor that
+    /// sends degrees, whose codes are not the ADC's).
+    by_code: Vec<Result<f64, SensorFault>>,
     window: TemperatureWindow,
     /// The tick now running and the temperature its frames are read at, K.
     tick: Option<(i64, Option<f64>)>,
@@ -474,10 +477,17 @@ pub struct BoardReader {
 impl BoardReader {
     /// A reader of `channel`, whose codes are those of `adc`.
     pub fn new(channel: TemperatureChannel, adc: &Adc) -> Self {
+        let by_code = match channel.sensor {
+            Sensor::Degrees { .. } => Vec::new(),
+            _ => (0..=adc.full_scale() as u32)
+                .map(|code| channel.celsius(adc, code))
+                .collect(),
+        };
         BoardReader {
             window: channel.window(),
             channel,
             adc: adc.clone(),
+            by_code,
             tick: None,
         }
     }
@@ -495,7 +505,11 @@ impl BoardReader {
         let tick = (t / TEMPERATURE_TICK_S).floor() as i64;
         let running = self.tick.filter(|(at, _)| *at == tick);
         let before = running.map_or_else(|| self.kelvin(), |(_, held)| held);
-        let fault = match self.channel.celsius(&self.adc, code) {
+        let read = match self.by_code.get(code as usize) {
+            Some(read) => *read,
+            None => self.channel.celsius(&self.adc, code),
+        };
+        let fault = match read {
             Ok(celsius) => {
                 self.window.push(t, celsius);
                 None

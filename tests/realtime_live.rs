@@ -186,7 +186,8 @@ fn the_simulator_over_a_pty_arrives_sample_for_sample() {
     let sent: Vec<u32> = std::fs::read_to_string(&reference)
         .unwrap()
         .lines()
-        .map(|l| l.parse().unwrap())
+        // The detector's channel; the demo board's thermistor follows as channel 2.
+        .map(|l| l.split(',').next().unwrap().parse().unwrap())
         .collect();
     assert_eq!(sent.len(), 3000);
 
