@@ -37,6 +37,10 @@ pub struct RunContext {
 /// readings' [`Flags`]; it follows their names in the flags cell.
 pub const REJECTED: &str = "rejected";
 
+/// Readings whose board temperature lay outside the calibrated ones, or was not known:
+/// how far off they are is not known, so no uncertainty is stated for them.
+const NO_STATED_U: Flags = Flags::TEMP_OUTSIDE.union(Flags::TEMP_UNKNOWN);
+
 /// How close below an interval's end, in sample periods, a sample stamp counts as on it.
 const EDGE_SLACK: f64 = 1e-6;
 
@@ -48,7 +52,7 @@ mod board;
 mod coupled;
 
 use board::Board;
-pub use board::{BOARD_COLUMNS, TEMP_UNKNOWN, UNCOMPENSATED_COLUMN};
+pub use board::{BoardChannel, BOARD_COLUMNS, TEMP_UNKNOWN, UNCOMPENSATED_COLUMN};
 use coupled::Coupled;
 pub use coupled::{
     coupler_context_lines, coupler_header, CouplerChannels, COUPLER_MATCH_COLUMNS,
@@ -618,8 +622,8 @@ fn sample_cells(
     {
         let r = cal.reading_code(code);
         let one = one_reading(cal, code);
-        let value = (one.bound() == Bound::Exact && !r.flags.contains(Flags::TEMP_OUTSIDE))
-            .then_some(r.dbm);
+        let value =
+            (one.bound() == Bound::Exact && !r.flags.intersects(NO_STATED_U)).then_some(r.dbm);
         let u_db = value
             .zip(budget)
             .map(|(dbm, budget)| budget.budget_at(dbm, None, kelvin).expanded_db());
@@ -743,7 +747,7 @@ impl<W: Write> Recorder<W> {
             row.push(flags_cell(row_flags, rejected));
             row.push(figures.bound.cell().to_string());
             row.push(figures.averaged.to_string());
-            let u_db = if row_flags.contains(Flags::TEMP_OUTSIDE) {
+            let u_db = if row_flags.intersects(NO_STATED_U) {
                 None
             } else {
                 chain.interval_u_db(&figures, kelvin)

@@ -228,3 +228,60 @@ fn a_table_of_two_temperature_sets_holds_the_truth_between_them() {
         "{covered} of {values} covered"
     );
 }
+
+// Source: the rules in docs/recording.md ("The board's temperature"): a sensor at a rail
+// is flagged, never turned into a temperature; readings without a temperature are read
+// as calibrated, flagged `temp-unknown`, with no stated uncertainty; a stream without the
+// channel the profile names is refused, exit 2, saying which.
+#[test]
+fn a_shorted_sensor_is_flagged_and_a_missing_channel_refused() {
+    let dir = scratch("temperature-faults");
+    let capture = dir.path().join("short.txt");
+    // The demo board's thermistor to ground reads code 0 when shorted, about 1964 at
+    // 26.85 °C (10 kΩ·e^(3950·(1/300 − 1/298.15)) = 9.215 kΩ against 10 kΩ: 0.4796 of 4095).
+    let lines: String = (0..3000)
+        .map(|i| format!("1500,{}\n", if i < 1500 { 0 } else { 1964 }))
+        .collect();
+    std::fs::write(&capture, lines).unwrap();
+    let log = dir.path().join("short.csv");
+    let run = |profile: &str, out: &Path| {
+        common::output(common::bin().args([
+            "record",
+            "--replay",
+            capture.to_str().unwrap(),
+            "--profile",
+            profile,
+            "--rate",
+            "1000",
+            "--every",
+            "1s",
+            "--out",
+            out.to_str().unwrap(),
+        ]))
+    };
+    assert!(run("profiles/demo-diode.toml", &log).status.success());
+    let (header, rows) = rows(&log);
+    let col = |name: &str| column(&header, name);
+    let cells = |row: &Vec<String>| {
+        [col("flags"), col("u_db"), col("temp_c"), col("temp_flags")].map(|c| row[c].clone())
+    };
+    assert_eq!(
+        cells(&rows[0]),
+        ["temp-unknown", "", "", "sensor-short|temp-unknown"]
+    );
+    let [flags, u, temp, faults] = cells(&rows[2]);
+    assert_eq!((flags.as_str(), faults.as_str()), ("", ""));
+    assert!(number(&u).is_some());
+    assert!((number(&temp).unwrap() - 26.85).abs() < 0.05, "{temp}");
+
+    let other = dir.path().join("channel-3.toml");
+    let text = std::fs::read_to_string("profiles/demo-diode.toml").unwrap();
+    std::fs::write(&other, text.replace("channel = 2", "channel = 3")).unwrap();
+    let out = run(other.to_str().unwrap(), &dir.path().join("refused.csv"));
+    let said = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{said}");
+    assert!(
+        said.contains("on channel 3 but the stream sends 2"),
+        "{said}"
+    );
+}

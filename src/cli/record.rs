@@ -10,7 +10,8 @@ use anyhow::{anyhow, Context};
 use dbtrail::calibration::Calibration;
 use dbtrail::events::Event;
 use dbtrail::record::{
-    coupler_context_lines, ChannelMismatch, CouplerChannels, Opening, Recorder, RunContext,
+    coupler_context_lines, BoardChannel, ChannelMismatch, CouplerChannels, Opening, Recorder,
+    RunContext,
 };
 use dbtrail::resume::LogShape;
 
@@ -257,6 +258,9 @@ fn pump_failure(e: io::Error, target: &str) -> Failure {
     let inner = e.get_ref();
     if let Some(channels) = inner.and_then(|i| i.downcast_ref::<CouplerChannels>()) {
         return Failure::BadInput(anyhow!("{channels}; rows written before this are kept"));
+    }
+    if let Some(board) = inner.and_then(|i| i.downcast_ref::<BoardChannel>()) {
+        return Failure::BadInput(anyhow!("{board}; rows written before this are kept"));
     }
     if let Some(mismatch) = inner.and_then(|i| i.downcast_ref::<ChannelMismatch>()) {
         return Failure::BadInput(anyhow!(

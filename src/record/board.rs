@@ -99,21 +99,32 @@ impl Board {
     }
 }
 
+/// A stream without the temperature channel the profile names, or with no other.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, thiserror::Error)]
+#[error(
+    "the profile reads the board temperature on channel {channel} but the stream sends \
+     {stream} channel(s), and at least one other must carry the detector; send the \
+     temperature as channel {channel}, or change `[temperature] channel` in the profile"
+)]
+pub struct BoardChannel {
+    /// The channel the profile names, from 1.
+    pub channel: usize,
+    /// Channels the stream sends.
+    pub stream: usize,
+}
+
 /// Refuses a stream without the temperature channel the profile names.
 pub(crate) fn check_stream(board: &Board, stream: usize) -> std::io::Result<()> {
     if board.channel() < stream && stream >= 2 {
         return Ok(());
     }
-    let message = format!(
-        "the profile reads the board temperature on channel {} but the stream sends {stream} \
-         channel(s), and at least one must be a power channel; send the temperature as \
-         channel {} or change `[temperature] channel` in the profile",
-        board.channel() + 1,
-        board.channel() + 1,
-    );
+    let refused = BoardChannel {
+        channel: board.channel() + 1,
+        stream,
+    };
     Err(std::io::Error::new(
         std::io::ErrorKind::InvalidInput,
-        message,
+        refused,
     ))
 }
 
