@@ -6,7 +6,7 @@ mod common;
 
 use std::path::Path;
 
-use common::{column, rows, scratch, succeeded};
+use common::{column, rows, scratch};
 use dbtrail::adc::Adc;
 use dbtrail::decode::encode_ascii;
 use dbtrail::detector::{Detector, DiodeDetector};
@@ -106,6 +106,23 @@ fn write_capture(path: &Path, kelvin: f64) -> Vec<f64> {
     truth_dbm
 }
 
+/// `record` of a capture at 1000 samples/s through `profile`, a row a second.
+fn record(capture: &Path, profile: &str, out: &Path) -> std::process::Output {
+    common::output(common::bin().args([
+        "record",
+        "--replay",
+        capture.to_str().unwrap(),
+        "--profile",
+        profile,
+        "--rate",
+        "1000",
+        "--every",
+        "1s",
+        "--out",
+        out.to_str().unwrap(),
+    ]))
+}
+
 fn number(cell: &str) -> Option<f64> {
     cell.parse().ok()
 }
@@ -123,19 +140,12 @@ fn compensated_readings_hold_the_truth_at_a_temperature_between_the_calibrations
     let capture = dir.path().join("at-30C.txt");
     let truth = write_capture(&capture, 30.0 + CELSIUS_ZERO_K);
     let log = dir.path().join("at-30C.csv");
-    succeeded([
-        "record",
-        "--replay",
-        capture.to_str().unwrap(),
-        "--profile",
-        profile.to_str().unwrap(),
-        "--rate",
-        "1000",
-        "--every",
-        "1s",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
+    let out = record(&capture, profile.to_str().unwrap(), &log);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let (header, rows) = rows(&log);
     let col = |name: &str| column(&header, name);
     let (mean, u, plain, temp, flags) = (
@@ -197,19 +207,12 @@ fn a_table_of_two_temperature_sets_holds_the_truth_between_them() {
     let capture = dir.path().join("at-30C.txt");
     let truth = write_capture(&capture, 30.0 + CELSIUS_ZERO_K);
     let log = dir.path().join("table.csv");
-    succeeded([
-        "record",
-        "--replay",
-        capture.to_str().unwrap(),
-        "--profile",
-        profile.to_str().unwrap(),
-        "--rate",
-        "1000",
-        "--every",
-        "1s",
-        "--out",
-        log.to_str().unwrap(),
-    ]);
+    let out = record(&capture, profile.to_str().unwrap(), &log);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let (header, rows) = rows(&log);
     let (mean, u) = (column(&header, "mean_dbm"), column(&header, "u_db"));
     let (mut values, mut covered, mut worst) = (0, 0, 0.0f64);
@@ -244,21 +247,7 @@ fn a_shorted_sensor_is_flagged_and_a_missing_channel_refused() {
         .collect();
     std::fs::write(&capture, lines).unwrap();
     let log = dir.path().join("short.csv");
-    let run = |profile: &str, out: &Path| {
-        common::output(common::bin().args([
-            "record",
-            "--replay",
-            capture.to_str().unwrap(),
-            "--profile",
-            profile,
-            "--rate",
-            "1000",
-            "--every",
-            "1s",
-            "--out",
-            out.to_str().unwrap(),
-        ]))
-    };
+    let run = |profile: &str, out: &Path| record(&capture, profile, out);
     assert!(run("profiles/demo-diode.toml", &log).status.success());
     let (header, rows) = rows(&log);
     let col = |name: &str| column(&header, name);
