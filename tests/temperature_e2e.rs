@@ -106,6 +106,22 @@ fn write_capture(path: &Path, kelvin: f64) -> Vec<f64> {
     truth_dbm
 }
 
+/// A capture with the board held at 30 °C recorded through the profile `text`: the
+/// truth of each second, and the log's header and rows.
+fn replayed_at_30_c(name: &str, text: &str) -> (Vec<f64>, Vec<String>, Vec<Vec<String>>) {
+    let dir = scratch(name);
+    let profile = dir.path().join("calibrated.toml");
+    std::fs::write(&profile, text).unwrap();
+    let capture = dir.path().join("at-30C.txt");
+    let truth = write_capture(&capture, 30.0 + CELSIUS_ZERO_K);
+    let log = dir.path().join("at-30C.csv");
+    let out = record(&capture, profile.to_str().unwrap(), &log);
+    let said = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{said}");
+    let (header, rows) = rows(&log);
+    (truth, header, rows)
+}
+
 /// `record` of a capture at 1000 samples/s through `profile`, a row a second.
 fn record(capture: &Path, profile: &str, out: &Path) -> std::process::Output {
     common::output(common::bin().args([
@@ -134,19 +150,7 @@ fn number(cell: &str) -> Option<f64> {
 // 15 K off) must miss the truth by far more.
 #[test]
 fn compensated_readings_hold_the_truth_at_a_temperature_between_the_calibrations() {
-    let dir = scratch("temperature-e2e");
-    let profile = dir.path().join("calibrated.toml");
-    std::fs::write(&profile, calibrated_profile()).unwrap();
-    let capture = dir.path().join("at-30C.txt");
-    let truth = write_capture(&capture, 30.0 + CELSIUS_ZERO_K);
-    let log = dir.path().join("at-30C.csv");
-    let out = record(&capture, profile.to_str().unwrap(), &log);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let (header, rows) = rows(&log);
+    let (truth, header, rows) = replayed_at_30_c("temperature-e2e", &calibrated_profile());
     let col = |name: &str| column(&header, name);
     let (mean, u, plain, temp, flags) = (
         col("mean_dbm"),
@@ -201,19 +205,7 @@ fn calibrated_table() -> String {
 // "Temperature"), so the truth at 30 °C lies within it in at least 95 % of the rows.
 #[test]
 fn a_table_of_two_temperature_sets_holds_the_truth_between_them() {
-    let dir = scratch("temperature-table");
-    let profile = dir.path().join("table.toml");
-    std::fs::write(&profile, calibrated_table()).unwrap();
-    let capture = dir.path().join("at-30C.txt");
-    let truth = write_capture(&capture, 30.0 + CELSIUS_ZERO_K);
-    let log = dir.path().join("table.csv");
-    let out = record(&capture, profile.to_str().unwrap(), &log);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let (header, rows) = rows(&log);
+    let (truth, header, rows) = replayed_at_30_c("temperature-table", &calibrated_table());
     let (mean, u) = (column(&header, "mean_dbm"), column(&header, "u_db"));
     let (mut values, mut covered, mut worst) = (0, 0, 0.0f64);
     for (row, truth) in rows.iter().zip(&truth).skip(1) {
