@@ -6,9 +6,9 @@
 //! so either direction is a one-dimensional bracketed root.
 
 use super::covariance::{gradient, FitCovariance};
-use super::thermal::ordered_at;
 use super::{
-    point_u_volts, rms, CalPoint, Detector, ModelError, ModelKind, Weighting, MAX_FIT_RMS_DB,
+    ordered_at, point_u_volts, rms, CalPoint, Detector, ModelError, ModelKind, Weighting,
+    MAX_FIT_RMS_DB,
 };
 use crate::maths::numeric::{
     levenberg_marquardt, solve_bracketed, solve_increasing, solve_newton, unscaled_covariance,

@@ -3,7 +3,9 @@
 //!
 //! Three models share one trait: a calibration table interpolated by PCHIP ([`table`]), a
 //! logarithmic-amplifier line ([`log_amp`]) and the exponential-diode peak detector
-//! ([`diode`]). Fits and their residuals live here too, since they belong to the model.
+//! ([`diode`]). Fits and their residuals live here too, since they belong to the model, and
+//! so do the checks of calibration points, within one set or across sets taken at several
+//! board temperatures; [`thermal`] holds the models across temperature.
 
 pub mod covariance;
 pub mod diode;
@@ -315,6 +317,105 @@ pub fn ordered_points(points: &[CalPoint], model: ModelKind) -> Result<Vec<CalPo
         }
     }
     Ok(order.iter().map(|&i| points[i]).collect())
+}
+
+/// Points whose temperatures lie within this of the next colder point's are one
+/// calibration set, K. A choice: a board drifts a few degrees while a set is taken (more
+/// on a bench that warms up with it), and a second set worth taking lies ten or more
+/// degrees away.
+pub const SET_GAP_K: f64 = 5.0;
+
+/// The points' calibration sets, coldest first: each set's mean temperature and the
+/// indices of its points (see [`SET_GAP_K`]).
+pub fn temperature_groups(kelvins: &[f64]) -> Vec<(f64, Vec<usize>)> {
+    let mut order: Vec<usize> = (0..kelvins.len()).collect();
+    order.sort_by(|&a, &b| kelvins[a].total_cmp(&kelvins[b]));
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    for i in order {
+        match groups.last_mut() {
+            Some(set) if kelvins[i] - kelvins[set[set.len() - 1]] <= SET_GAP_K => set.push(i),
+            _ => groups.push(vec![i]),
+        }
+    }
+    groups
+        .into_iter()
+        .map(|mut set| {
+            let mean = set.iter().map(|&i| kelvins[i]).sum::<f64>() / set.len() as f64;
+            set.sort_unstable();
+            (mean, set)
+        })
+        .collect()
+}
+
+/// The lowest and highest of the temperatures, K.
+pub fn temperature_span(kelvins: &[f64]) -> (f64, f64) {
+    kelvins
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &k| {
+            (lo.min(k), hi.max(k))
+        })
+}
+
+/// The points in order (by temperature, then level) with their temperatures, after the
+/// checks of [`ordered_points`] within each temperature: a level may repeat across
+/// temperatures, never within one. Each temperature needs the points of a table (two),
+/// or of a log-amp line (three); all together, the model's own minimum. Indices in errors
+/// refer to the order given.
+pub fn ordered_at(
+    points: &[CalPoint],
+    kelvins: &[f64],
+    model: ModelKind,
+) -> Result<(Vec<CalPoint>, Vec<f64>), ModelError> {
+    let groups = temperature_groups(kelvins);
+    if points.len() < model.min_points() {
+        return Err(ModelError::TooFewPoints {
+            model,
+            need: model.min_points(),
+            got: points.len(),
+        });
+    }
+    let per_set = match model {
+        _ if groups.len() <= 1 => model,
+        ModelKind::Log => ModelKind::Log,
+        ModelKind::Table | ModelKind::Diode => ModelKind::Table,
+    };
+    let mut sorted = Vec::with_capacity(points.len());
+    let mut sorted_kelvins = Vec::with_capacity(points.len());
+    for (_, mut members) in groups {
+        let set: Vec<CalPoint> = members.iter().map(|&i| points[i]).collect();
+        ordered_points(&set, per_set).map_err(|e| to_given(e, &members))?;
+        members.sort_by(|&a, &b| points[a].dbm.total_cmp(&points[b].dbm));
+        sorted.extend(members.iter().map(|&i| points[i]));
+        sorted_kelvins.extend(members.iter().map(|&i| kelvins[i]));
+    }
+    Ok((sorted, sorted_kelvins))
+}
+
+/// An error about a group's points, its indices made those of the points given.
+fn to_given(err: ModelError, members: &[usize]) -> ModelError {
+    let given = |i: usize| members.get(i).copied().unwrap_or(i);
+    match err {
+        ModelError::DuplicateLevel { first, second, dbm } => ModelError::DuplicateLevel {
+            first: given(first),
+            second: given(second),
+            dbm,
+        },
+        ModelError::NotMonotone { index, dbm, volts } => ModelError::NotMonotone {
+            index: given(index),
+            dbm,
+            volts,
+        },
+        ModelError::NonPositiveOutput {
+            index,
+            volts,
+            model,
+        } => ModelError::NonPositiveOutput {
+            index: given(index),
+            volts,
+            model,
+        },
+        other => other,
+    }
 }
 
 /// Of two neighbours out of order, the one that disagrees with the overall trend most.
