@@ -20,7 +20,7 @@ use crate::units::dbm_to_watts;
 mod compensation;
 mod table;
 
-pub use compensation::{Compensation, RETABLE_STEP_K};
+pub use compensation::{Compensation, RETABLE_STEP_DB, RETABLE_STEP_K};
 
 pub use table::{
     untally, CodeEntry, CodeRuns, CodeTable, TableTotals, CODE_BLOCK, TABLE_MAX_CODES,

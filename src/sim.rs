@@ -205,6 +205,8 @@ pub struct Simulator {
     noise: Normal<f64>,
     index: u64,
     knots: (f64, f64, f64, f64),
+    /// The model step and the sensor's ideal count in it.
+    sensor_ideal: Option<(f64, f64)>,
 }
 
 /// How often the exact forward model is evaluated, seconds of simulated time; between
@@ -250,6 +252,7 @@ impl Simulator {
             noise: Normal::new(0.0, NOISE_COUNTS).expect("a positive constant deviation"),
             index: 0,
             knots: (f64::NAN, f64::NAN, f64::NAN, f64::NAN),
+            sensor_ideal: None,
         }
     }
 
@@ -313,8 +316,18 @@ impl Simulator {
     /// What the board's sensor reads at `t`, with the ADC's noise (a sensor that sends
     /// degrees is not held to the ADC's full scale).
     fn sensor_count(&mut self, sensor: &TemperatureChannel, t: f64) -> u32 {
-        let kelvin = self.board_kelvin(t).unwrap_or(DEFAULT_BOARD_K);
-        let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
+        // The board moves slowly: its sensor's ideal count is worked out once a model
+        // step (a board that warms 6 K in 15 min moves 0.1 mK in one).
+        let step = (t / MODEL_STEP_S).floor();
+        let ideal = match self.sensor_ideal {
+            Some((at, ideal)) if at == step => ideal,
+            _ => {
+                let kelvin = self.board_kelvin(step * MODEL_STEP_S).unwrap_or(DEFAULT_BOARD_K);
+                let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
+                self.sensor_ideal = Some((step, ideal));
+                ideal
+            }
+        };
         let noisy = ideal + self.noise.sample(&mut self.rng);
         let top = match sensor.sensor {
             Sensor::Degrees { .. } => f64::from(u32::MAX),
@@ -393,6 +406,7 @@ impl Simulator {
     pub fn with_board(mut self, board: BoardTemperature) -> Self {
         self.board = board;
         self.knots = (f64::NAN, f64::NAN, f64::NAN, f64::NAN);
+        self.sensor_ideal = None;
         self
     }
 
