@@ -205,8 +205,10 @@ pub struct Simulator {
     noise: Normal<f64>,
     index: u64,
     knots: (f64, f64, f64, f64),
-    /// The model step and the sensor's ideal count in it.
+    /// The start of the model step the sensor's ideal count is of, and that count.
     sensor_ideal: Option<(f64, f64)>,
+    /// The detector's counts of a fill, before they are laid out in frames.
+    scratch: Vec<u32>,
 }
 
 /// How often the exact forward model is evaluated, seconds of simulated time; between
@@ -253,6 +255,7 @@ impl Simulator {
             index: 0,
             knots: (f64::NAN, f64::NAN, f64::NAN, f64::NAN),
             sensor_ideal: None,
+            scratch: Vec::new(),
         }
     }
 
@@ -296,20 +299,18 @@ impl Simulator {
         let Some(sensor) = self.sensor else {
             return self.fill_detector(n, out);
         };
-        let mut power = Vec::with_capacity(n);
+        let mut power = std::mem::take(&mut self.scratch);
+        power.clear();
         let t0 = self.fill_detector(n, &mut power);
         let width = self.channels();
-        out.reserve(n * width);
-        for (k, count) in power.into_iter().enumerate() {
-            let temperature = self.sensor_count(&sensor, t0 + k as f64 / self.rate_hz);
-            out.extend((0..width).map(|ch| {
-                if ch == sensor.channel {
-                    temperature
-                } else {
-                    count
-                }
-            }));
+        let start = out.len();
+        out.resize(start + n * width, 0);
+        let dt = 1.0 / self.rate_hz;
+        for (k, frame) in out[start..].chunks_exact_mut(width).enumerate() {
+            frame.fill(power[k]);
+            frame[sensor.channel] = self.sensor_count(&sensor, t0 + k as f64 * dt);
         }
+        self.scratch = power;
         t0
     }
 
@@ -318,13 +319,13 @@ impl Simulator {
     fn sensor_count(&mut self, sensor: &TemperatureChannel, t: f64) -> u32 {
         // The board moves slowly: its sensor's ideal count is worked out once a model
         // step (a board that warms 6 K in 15 min moves 0.1 mK in one).
-        let step = (t / MODEL_STEP_S).floor();
         let ideal = match self.sensor_ideal {
-            Some((at, ideal)) if at == step => ideal,
+            Some((start, ideal)) if t >= start && t < start + MODEL_STEP_S => ideal,
             _ => {
-                let kelvin = self.board_kelvin(step * MODEL_STEP_S).unwrap_or(DEFAULT_BOARD_K);
+                let start = (t / MODEL_STEP_S).floor() * MODEL_STEP_S;
+                let kelvin = self.board_kelvin(start).unwrap_or(DEFAULT_BOARD_K);
                 let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
-                self.sensor_ideal = Some((step, ideal));
+                self.sensor_ideal = Some((start, ideal));
                 ideal
             }
         };

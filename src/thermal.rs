@@ -460,8 +460,9 @@ impl TemperatureWindow {
 pub const TEMPERATURE_TICK_S: f64 = 0.1;
 
 /// The board's temperature as a stream gives it, frame by frame: each sample of the
-/// temperature channel into the window, and for each frame the temperature its power
-/// samples are read at, taken from the window at fixed ticks of source time.
+/// temperature channel into the mean of its tick of [`TEMPERATURE_TICK_S`], the ticks'
+/// means into the window, and for each frame the temperature its power samples are read
+/// at: the window's mean as the frame's tick began.
 #[derive(Debug, Clone)]
 pub struct BoardReader {
     channel: TemperatureChannel,
@@ -469,9 +470,27 @@ pub struct BoardReader {
     /// Each ADC code's temperature or fault, worked out once (empty for a sensor that
     /// sends degrees, whose codes are not the ADC's).
     by_code: Vec<Result<f64, SensorFault>>,
+    /// The means of the ticks of the last `window_s` seconds, each at its tick's start.
     window: TemperatureWindow,
-    /// The tick now running and the temperature its frames are read at, K.
-    tick: Option<(i64, Option<f64>)>,
+    tick: Option<Tick>,
+}
+
+/// Ticks a second (the inverse of [`TEMPERATURE_TICK_S`]).
+const TICKS_PER_S: f64 = 10.0;
+
+/// The tick of source time now running.
+#[derive(Debug, Clone, Copy)]
+struct Tick {
+    /// Its number: t·[`TICKS_PER_S`] rounded down, held as a whole float so that the test
+    /// of a frame against it agrees with the rounding down of the frame's own.
+    number: f64,
+    /// The temperature its frames are read at, K.
+    held: Option<f64>,
+    /// The window was empty as it began: its first reading is the one held.
+    first_held: bool,
+    /// Its good readings' sum, °C, and their number.
+    sum: f64,
+    readings: u32,
 }
 
 impl BoardReader {
@@ -498,35 +517,57 @@ impl BoardReader {
     }
 
     /// Takes the temperature sample `code` of the frame at `t`. Gives the temperature the
-    /// frame's power samples are read at, K (the window's mean as the frame's tick of
-    /// [`TEMPERATURE_TICK_S`] began; with an empty window then, the tick's first
-    /// reading; None while unknown), and the sample's fault, if it shows one.
+    /// frame's power samples are read at, K (the window's mean as the frame's tick began;
+    /// with an empty window then, the tick's first reading; None while unknown), and the
+    /// sample's fault, if it shows one.
     pub fn frame(&mut self, t: f64, code: u32) -> (Option<f64>, Option<SensorFault>) {
-        let tick = (t / TEMPERATURE_TICK_S).floor() as i64;
-        let running = self.tick.filter(|(at, _)| *at == tick);
-        let before = running.map_or_else(|| self.kelvin(), |(_, held)| held);
         let read = match self.by_code.get(code as usize) {
             Some(read) => *read,
             None => self.channel.celsius(&self.adc, code),
         };
-        let fault = match read {
+        let at = t * TICKS_PER_S;
+        let tick = match self.tick {
+            Some(tick) if at >= tick.number && at < tick.number + 1.0 => self.tick.as_mut(),
+            _ => Some(self.begin_tick(at.floor())),
+        }
+        .expect("a tick runs");
+        match read {
             Ok(celsius) => {
-                self.window.push(t, celsius);
-                None
+                tick.sum += celsius;
+                tick.readings += 1;
+                if tick.first_held {
+                    tick.held = Some(celsius + CELSIUS_ZERO_K);
+                    tick.first_held = false;
+                }
+                (tick.held, None)
             }
-            Err(fault) => Some(fault),
-        };
-        let held = match running {
-            Some((_, held)) => held,
-            None => before.or_else(|| self.kelvin()),
-        };
-        self.tick = Some((tick, held));
-        (held, fault)
+            Err(fault) => (tick.held, Some(fault)),
+        }
     }
 
-    /// The window's mean now, K; None before a good reading.
+    /// Closes the tick that ran (its mean into the window, at its start) and begins the
+    /// tick `number`.
+    fn begin_tick(&mut self, number: f64) -> &mut Tick {
+        if let Some(done) = self.tick.filter(|done| done.readings > 0) {
+            let mean = done.sum / f64::from(done.readings);
+            self.window.push(done.number / TICKS_PER_S, mean);
+        }
+        let held = self.window.mean().map(|c| c + CELSIUS_ZERO_K);
+        self.tick.insert(Tick {
+            number,
+            held,
+            first_held: held.is_none(),
+            sum: 0.0,
+            readings: 0,
+        })
+    }
+
+    /// The board's temperature now, K: the window's mean with the running tick's
+    /// readings; None before a good reading.
     pub fn kelvin(&self) -> Option<f64> {
-        self.window.mean().map(|c| c + CELSIUS_ZERO_K)
+        let running = self.tick.filter(|t| t.readings > 0);
+        let now = running.map(|t| t.sum / f64::from(t.readings));
+        self.window.mean().or(now).map(|c| c + CELSIUS_ZERO_K)
     }
 
     /// Forgets every reading (the source was restarted).
