@@ -12,9 +12,11 @@ use std::io::{self, Write as _};
 use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
+use dbtrail::detector::thermal::SET_GAP_K;
 use dbtrail::detector::{rms, table::leave_one_out_db, Axis, ModelKind};
 use dbtrail::procedure::{MeasureError, Measured, Session, SessionError, SessionPoint};
 use dbtrail::profile::raw::RawLimits;
+use dbtrail::thermal::PLAUSIBLE_C;
 use dbtrail::units::{parse_frequency, parse_level, Si, UnitError};
 
 use bench::{Applied, Measuring};
@@ -85,6 +87,11 @@ pub enum Said {
     },
     /// The ADC zero was measured with RF off.
     Zero(Measured),
+    /// `temp C`: the board temperature the following points are tagged with.
+    BoardTemperature {
+        /// °C.
+        celsius: f64,
+    },
     /// A limit was set.
     Limit {
         /// Which.
@@ -181,6 +188,10 @@ pub enum Refusal {
     Measure(MeasureError),
     /// The points could not be kept at `quit`.
     NotKept(anyhow::Error),
+    /// A board temperature that is not a number of °C in the plausible range.
+    Temperature(String),
+    /// A board temperature typed after points taken without one.
+    Untagged(Vec<usize>),
 }
 
 impl From<SessionError> for Refusal {
@@ -251,6 +262,9 @@ pub struct Desk {
     pub source: String,
     /// The last line was a `quit` that warned of unsaved points.
     quit_warned: bool,
+    /// The board temperature typed for the following points, °C (`temp`), used when the
+    /// stream carries no sensor.
+    pub board_c: Option<f64>,
 }
 
 type Answer = Result<Said, Refusal>;
@@ -267,6 +281,7 @@ impl Desk {
             reference_hz,
             source,
             quit_warned: false,
+            board_c: None,
         }
     }
 
@@ -292,6 +307,7 @@ impl Desk {
                 })
             }
             ("limit", [which, level]) => self.set_limit(which, level),
+            ("temp", [celsius]) => self.set_board_temperature(celsius),
             ("delete" | "del", [n]) => self.delete(n),
             ("redo", [n]) => return self.redo(n, line),
             ("model", [name]) => self.set_model(name),
@@ -322,6 +338,11 @@ impl Desk {
             }
             Err(e) => return Outcome::Continue(Said::Refused(Refusal::Measure(e))),
         };
+        // The sensor's mean when the stream carries one, else the temperature typed.
+        let measured = Measured {
+            temp_c: measured.temp_c.or(self.board_c),
+            ..measured
+        };
         let answer = match request.then {
             Then::Zero => Ok(self.set_zero(measured)),
             Then::Level(text) => self.add_level(&text, measured),
@@ -345,6 +366,24 @@ impl Desk {
             self.stage = Stage::Levels;
         }
         Said::Zero(measured)
+    }
+
+    /// `temp C`: the board temperature for the points that follow, when the stream
+    /// does not carry the board's sensor. Refused while points without one exist, since a
+    /// profile's sets are told apart by temperature.
+    fn set_board_temperature(&mut self, text: &str) -> Answer {
+        let number = text.trim_end_matches("°C").trim_end_matches(['C', 'c']);
+        let celsius = number
+            .parse::<f64>()
+            .ok()
+            .filter(|c| (PLAUSIBLE_C.0..=PLAUSIBLE_C.1).contains(c))
+            .ok_or_else(|| Refusal::Temperature(text.to_string()))?;
+        let untagged = self.session.untagged();
+        if !untagged.is_empty() {
+            return Err(Refusal::Untagged(untagged));
+        }
+        self.board_c = Some(celsius);
+        Ok(Said::BoardTemperature { celsius })
     }
 
     fn set_limit(&mut self, which: &str, level: &str) -> Answer {
@@ -403,15 +442,18 @@ impl Desk {
         }
     }
 
-    /// Adds a level's point, or replaces the point already taken at that level.
+    /// Adds a level's point, or replaces the point already taken at that level in the
+    /// same calibration set (a set at another board temperature may repeat the level).
     fn add_level(&mut self, text: &str, measured: Measured) -> Answer {
         let (_, dbm) = self.session.parse_level(text)?;
         let ohms = self.session.ohms();
-        let same = self
-            .session
-            .points
-            .iter()
-            .position(|p| (p.level.power(ohms).dbm() - dbm).abs() < 1e-6);
+        let same_set = |c: Option<f64>| match (c, measured.temp_c) {
+            (Some(a), Some(b)) => (a - b).abs() <= SET_GAP_K,
+            (a, b) => a.is_none() && b.is_none(),
+        };
+        let same = self.session.points.iter().position(|p| {
+            (p.level.power(ohms).dbm() - dbm).abs() < 1e-6 && same_set(p.measured.temp_c)
+        });
         if let Some(index) = same {
             return self.replace(index + 1, measured);
         }
@@ -660,6 +702,7 @@ pub(crate) mod tests {
             counts,
             std_counts: 0.5,
             samples: 100,
+            temp_c: None,
         }
     }
 

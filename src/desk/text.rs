@@ -6,7 +6,9 @@
 use std::fmt::Write as _;
 use std::path::Path;
 
+use dbtrail::detector::thermal::SET_GAP_K;
 use dbtrail::procedure::{MeasureError, Measured, Session};
+use dbtrail::thermal::PLAUSIBLE_C;
 use dbtrail::units::Si;
 
 use super::{Desk, Ending, Limit, Refusal, Said, Stage};
@@ -22,7 +24,7 @@ the same level again replaces its point. Commands:
   redo N   measure point N again       delete N   remove point N
   model NAME   save the table, diode or log model    list   show the fits
   freq LEVEL   frequency stage at LEVEL, then each frequency (e.g. 146MHz)
-  levels       back to the level stage
+  levels   back to the level stage   temp C   board °C of the next points
   save [FILE]  write the profile and its points CSV      quit   leave
 Safety: stay within the detector's, the load's and the attenuator's ratings;
 RF burns; transmit only as your licence and local regulations allow.";
@@ -69,6 +71,10 @@ pub fn message(desk: &Desk, said: &Said) -> String {
             "{}\nthe ADC zero is {:.2} counts with RF off; it is saved as zero_counts in [adc]\n{LIMITS_HINT}",
             describe(m),
             m.counts
+        ),
+        Said::BoardTemperature { celsius } => format!(
+            "the next points are tagged temp_c = {celsius} (the board's temperature, °C); a \
+             set {SET_GAP_K} K or more away is a calibration set of its own"
         ),
         Said::Limit { limit, dbm } => format!(
             "{}: {dbm:.2} dBm, saved in [limits]; readings above it are flagged (the limits \
@@ -140,6 +146,19 @@ fn refusal(why: &Refusal) -> String {
         Refusal::Session(e) => with_causes(e),
         Refusal::Measure(e) => with_causes(e),
         Refusal::NotKept(e) => format!("{e:#}"),
+        Refusal::Temperature(text) => format!(
+            "`temp {text}`: give the board's temperature in °C, from {} to {} (e.g. `temp 25`)",
+            PLAUSIBLE_C.0, PLAUSIBLE_C.1
+        ),
+        Refusal::Untagged(numbers) => format!(
+            "point(s) {} were taken without a board temperature: a profile tells its sets \
+             apart by temperature, so `delete` them or give `temp` before the first point",
+            numbers
+                .iter()
+                .map(ToString::to_string)
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
     }
 }
 
@@ -187,8 +206,11 @@ fn counted_points(n: usize) -> String {
 }
 
 fn describe(m: &Measured) -> String {
+    let board = m
+        .temp_c
+        .map_or(String::new(), |c| format!(", board {c:.2} °C"));
     format!(
-        "settled: {:.2} counts (±{:.2}, {} samples)",
+        "settled: {:.2} counts (±{:.2}, {} samples{board})",
         m.counts, m.std_counts, m.samples
     )
 }
@@ -197,7 +219,11 @@ fn describe(m: &Measured) -> String {
 pub fn table(desk: &Desk) -> String {
     let session = &desk.session;
     let fits = desk.fits();
+    let tagged = session.points.iter().any(|p| p.measured.temp_c.is_some());
     let mut out = String::from(" #  applied          counts      ±std       n");
+    if tagged {
+        out.push_str("      °C");
+    }
     for fit in &fits {
         let _ = write!(out, "  {:>9}", format!("{} dB", fit.kind.name()));
     }
@@ -213,6 +239,9 @@ pub fn table(desk: &Desk) -> String {
             m.std_counts,
             m.samples
         );
+        if tagged {
+            let _ = write!(out, " {:>7}", shown(m.temp_c.map(|c| format!("{c:.2}"))));
+        }
         for fit in &fits {
             let cell = fit
                 .errors
@@ -223,7 +252,8 @@ pub fn table(desk: &Desk) -> String {
         }
         out.push('\n');
     }
-    let _ = write!(out, "    RMS error{:>32}", "");
+    let pad = if tagged { 40 } else { 32 };
+    let _ = write!(out, "    RMS error{:>pad$}", "");
     for fit in &fits {
         let _ = write!(out, "  {:>9}", shown(fit.rms.map(|r| format!("{r:.3}"))));
     }
