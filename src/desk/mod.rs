@@ -12,8 +12,8 @@ use std::io::{self, Write as _};
 use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
-use dbtrail::detector::thermal::SET_GAP_K;
-use dbtrail::detector::{rms, table::leave_one_out_db, Axis, ModelKind};
+use dbtrail::detector::thermal::{temperature_groups, SET_GAP_K};
+use dbtrail::detector::{rms, table::leave_one_out_db, Axis, CalPoint, ModelKind};
 use dbtrail::procedure::{MeasureError, Measured, Session, SessionError, SessionPoint};
 use dbtrail::profile::raw::RawLimits;
 use dbtrail::thermal::PLAUSIBLE_C;
@@ -531,7 +531,7 @@ impl Desk {
             .map(|kind| {
                 let errors = match kind {
                     ModelKind::Table => Some(
-                        leave_one_out_db(&cal_points, Axis::LogVolts)
+                        table_errors(&cal_points, session.kelvins().as_deref())
                             .iter()
                             .map(|e| e.unwrap_or(f64::NAN))
                             .collect(),
@@ -646,6 +646,22 @@ impl Desk {
     }
 }
 
+/// The table model's error at each point with that point left out, within its
+/// calibration set when the points carry board temperatures (each set is a curve).
+fn table_errors(points: &[CalPoint], kelvins: Option<&[f64]>) -> Vec<Option<f64>> {
+    let Some(kelvins) = kelvins else {
+        return leave_one_out_db(points, Axis::LogVolts);
+    };
+    let mut errors = vec![None; points.len()];
+    for (_, members) in temperature_groups(kelvins) {
+        let set: Vec<CalPoint> = members.iter().map(|&i| points[i]).collect();
+        for (&i, error) in members.iter().zip(leave_one_out_db(&set, Axis::LogVolts)) {
+            errors[i] = error;
+        }
+    }
+    errors
+}
+
 /// A step done at once, the session going on.
 fn done(answer: Answer) -> Step {
     Step::Done(Outcome::Continue(answer.unwrap_or_else(Said::Refused)))
@@ -758,6 +774,42 @@ pub(crate) mod tests {
         assert_eq!(limit, Limit::Load);
         assert!((dbm - 36.99).abs() < 0.005, "{dbm}");
         assert_eq!(desk.limits().reference_max_dbm, Some(dbm));
+    }
+
+    // Source: docs/calibration.md (calibrate, a second set): the table model's error is
+    // each point's with it left out of its own set, so two sets of the same counts give
+    // the errors one set alone gives (the plain leave-one-out as the reference), and
+    // points more than SET_GAP_K apart are two sets.
+    #[test]
+    fn a_repeated_set_at_another_temperature_gets_the_table_errors_of_one_set() {
+        let mut desk = desk();
+        desk.plan("temp 25");
+        let levels = [
+            ("-20dBm", 100.0),
+            ("-10dBm", 300.0),
+            ("0dBm", 900.0),
+            ("10dBm", 2500.0),
+        ];
+        for (level, counts) in levels {
+            measured(&mut desk, level, counts);
+        }
+        let one_set = leave_one_out_db(&desk.session.cal_points(), Axis::LogVolts);
+        desk.plan("temp 40");
+        for (level, counts) in levels {
+            let said = measured(&mut desk, level, counts);
+            assert!(
+                matches!(said, Said::Added(m) if m.temp_c == Some(40.0)),
+                "{said:?}"
+            );
+        }
+        let Some(errors) = desk.fits()[0].errors.clone() else {
+            panic!("the table has errors");
+        };
+        for (i, expected) in one_set.iter().chain(&one_set).enumerate() {
+            let got = Some(errors[i]).filter(|e| e.is_finite());
+            assert_eq!(got, *expected, "point {}", i + 1);
+        }
+        assert!(one_set.iter().any(Option::is_some));
     }
 
     // Source: issue 16's decision: kept points never overwrite an existing file; the
