@@ -230,3 +230,19 @@ fn the_help_lists_the_zero_key_with_the_rf_note() {
         "{lines:#?}"
     );
 }
+
+// Source: docs/screen.md (zero): the zero taken is kept through a later `f`; the demo's
+// 146 MHz row corrects by +0.6 dB (profiles/demo-diode.toml).
+#[test]
+fn a_zero_taken_is_kept_through_a_new_frequency() {
+    let mut app = demo();
+    keys(&mut app, "z");
+    let commands = frames(&mut app, 0.0, 2.5, RF_OFF, CODE_25C);
+    assert!(
+        matches!(commands.first(), Some(Command::Rezero { .. })),
+        "{commands:?}"
+    );
+    assert_eq!(keys(&mut app, "f146MHz\n"), [Command::Recalibrated]);
+    assert_eq!(app.cal.adc().zero_counts(), f64::from(RF_OFF));
+    assert!((app.cal.correction_db() - 0.6).abs() < 1e-9);
+}
