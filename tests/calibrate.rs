@@ -495,6 +495,15 @@ fn fit_on_calibrates_points_file_gives_the_saved_model() {
 /// The levels of one calibration set.
 const SET: [&str; 3] = ["-10dBm", "0dBm", "10dBm"];
 
+/// Runs `script` on the diode demo bench, saving to `profile`; its standard output, once
+/// the run has succeeded.
+fn demo_session(profile: &Path, script: &[&str]) -> String {
+    let out = calibrate(&["--demo", "--out", path(profile)], script);
+    let stdout = text(&out.stdout);
+    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    stdout
+}
+
 // Source: docs/profiles.md ("Temperature"): points carry `temp_c`; a second set taken ten
 // or more degrees away may repeat the levels of the first, and the model then holds over
 // the temperatures the points were taken at: 25 and 45 °C are 298.15 and 318.15 K
@@ -508,9 +517,7 @@ fn a_second_set_at_another_board_temperature_repeats_the_levels() {
     script.push("temp 45C");
     script.extend(SET);
     script.extend(["0dBm", "save"]);
-    let out = calibrate(&["--demo", "--out", path(&profile)], &script);
-    let stdout = text(&out.stdout);
-    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    let stdout = demo_session(&profile, &script);
     assert!(stdout.contains("board 45.00 °C"), "{stdout}");
     // Only the last 0dBm, in the 45 °C set, replaced a point: point 5.
     assert_eq!(stdout.matches("replaced point").count(), 1, "{stdout}");
@@ -544,9 +551,7 @@ fn a_board_temperature_after_untagged_points_is_refused() {
     let tmp = scratch("untagged");
     let profile = tmp.path().join("u.toml");
     let script = ["-10dBm", "temp 25", "temp 200", "0dBm", "10dBm", "save"];
-    let out = calibrate(&["--demo", "--out", path(&profile)], &script);
-    let stdout = text(&out.stdout);
-    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    let stdout = demo_session(&profile, &script);
     assert!(
         stdout.contains("point(s) 1 were taken without a board temperature"),
         "{stdout}"
@@ -569,9 +574,7 @@ fn a_zero_taken_later_sets_the_written_zero() {
     let mut script = vec!["skip", "temp 30"];
     script.extend(SET);
     script.extend(["zero", "save"]);
-    let out = calibrate(&["--demo", "--out", path(&profile)], &script);
-    let stdout = text(&out.stdout);
-    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    let stdout = demo_session(&profile, &script);
     assert!(
         stdout.contains("zero skipped: zero_counts stays 0"),
         "{stdout}"

@@ -1003,10 +1003,7 @@ impl App {
         let Some(counts) = self.last.map(|r| r.counts) else {
             return;
         };
-        self.last = Some(match self.board.as_mut() {
-            Some(board) => board.reading(counts),
-            None => self.cal.reading(counts),
-        });
+        self.last = Some(read_counts(self.board.as_mut(), &self.cal, counts));
     }
 
     /// Keys while a zero is taken: Esc cancels it, `q` quits as ever, others wait.
@@ -1032,10 +1029,7 @@ impl App {
             return;
         };
         take.push(t, code, reading);
-        let outcome = take.outcome(|counts| match self.board.as_mut() {
-            Some(board) => board.reading(counts),
-            None => self.cal.reading(counts),
-        });
+        let outcome = take.outcome(|counts| read_counts(self.board.as_mut(), &self.cal, counts));
         match outcome {
             ZeroOutcome::Collecting => {}
             ZeroOutcome::Refused(why) => {
@@ -1088,6 +1082,15 @@ impl App {
             }
             _ => self.notice = Some("no valid reading to take as the reference".into()),
         }
+    }
+}
+
+/// Fractional counts read at the board's temperature now, or through `cal` without a
+/// board.
+fn read_counts(board: Option<&mut Board>, cal: &Calibration, counts: f64) -> Reading {
+    match board {
+        Some(board) => board.reading(counts),
+        None => cal.reading(counts),
     }
 }
 
