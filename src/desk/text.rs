@@ -43,7 +43,11 @@ pub fn prompt(desk: &Desk) -> String {
     match (desk.stage, &desk.session.freq_level) {
         (Stage::Zero, _) => ZERO_PROMPT.into(),
         (Stage::Frequencies, Some((level, _))) => format!("frequency at {level}> "),
-        _ => "level> ".into(),
+        // The temperature typed tags each point that follows: keep it in view.
+        _ => match desk.board_c {
+            Some(celsius) => format!("level (board {celsius} °C)> "),
+            None => "level> ".into(),
+        },
     }
 }
 
