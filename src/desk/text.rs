@@ -223,29 +223,29 @@ fn describe(m: &Measured) -> String {
 pub fn table(desk: &Desk) -> String {
     let session = &desk.session;
     let fits = desk.fits();
+    // With board temperatures, their column takes the place of the samples' (each
+    // point's line says how many), so that the table still fits 80 columns.
     let tagged = session.points.iter().any(|p| p.measured.temp_c.is_some());
-    let mut out = String::from(" #  applied          counts      ±std       n");
-    if tagged {
-        out.push_str("      °C");
-    }
+    let last = if tagged { "°C" } else { "n" };
+    let mut out = format!(" #  applied          counts      ±std {last:>7}");
     for fit in &fits {
         let _ = write!(out, "  {:>9}", format!("{} dB", fit.kind.name()));
     }
     out.push('\n');
     for (i, p) in session.points.iter().enumerate() {
         let m = &p.measured;
+        let last = match tagged {
+            true => shown(m.temp_c.map(|c| format!("{c:.2}"))),
+            false => m.samples.to_string(),
+        };
         let _ = write!(
             out,
-            "{:>2}  {:<12} {:>10.2} {:>9.2} {:>7}",
+            "{:>2}  {:<12} {:>10.2} {:>9.2} {last:>7}",
             i + 1,
             p.applied,
             m.counts,
             m.std_counts,
-            m.samples
         );
-        if tagged {
-            let _ = write!(out, " {:>7}", shown(m.temp_c.map(|c| format!("{c:.2}"))));
-        }
         for fit in &fits {
             let cell = fit
                 .errors
@@ -256,8 +256,7 @@ pub fn table(desk: &Desk) -> String {
         }
         out.push('\n');
     }
-    let pad = if tagged { 40 } else { 32 };
-    let _ = write!(out, "    RMS error{:>pad$}", "");
+    let _ = write!(out, "    RMS error{:>32}", "");
     for fit in &fits {
         let _ = write!(out, "  {:>9}", shown(fit.rms.map(|r| format!("{r:.3}"))));
     }

@@ -488,8 +488,18 @@ mod tests {
         };
         screen.update(ScreenEvent::Bench(BenchEvent::Done(Ok(at(2000.0)))));
         assert_eq!(screen.desk.session.points[0].measured.temp_c, Some(31.5));
-        let table = rows(&screen, 100, 30).join("\n");
-        assert!(table.contains("°C") && table.contains("31.50"), "{table}");
+        // At 80 columns the row stays whole (not wrapped), its °C in place of the count.
+        let shown = rows(&screen, 80, 24);
+        assert!(
+            shown.iter().any(|r| r.contains("±std      °C")),
+            "{shown:#?}"
+        );
+        assert!(
+            shown
+                .iter()
+                .any(|r| r.contains(" 1  0dBm ") && r.contains("2000.00") && r.contains("31.50")),
+            "{shown:#?}"
+        );
     }
 
     // Source: issue 16's decision: a cancelled measurement adds no point and says so.
