@@ -10,6 +10,7 @@ use thiserror::Error;
 
 use crate::adc::Adc;
 use crate::calibration::Calibration;
+use crate::detector::thermal::ordered_at;
 use crate::detector::{ordered_points, CalPoint, ModelError, ModelKind, PointU};
 use crate::maths::numeric::fit_line;
 use crate::profile::raw::{
@@ -17,7 +18,7 @@ use crate::profile::raw::{
 };
 use crate::profile::{parse_profile, render_profile, Profile, ProfileError};
 use crate::stats::{Averaging, CountMoments};
-use crate::units::{format_frequency, parse_level, Level, UnitError};
+use crate::units::{format_frequency, parse_level, Level, UnitError, CELSIUS_ZERO_K};
 
 /// When a level counts as settled.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -88,6 +89,9 @@ pub struct Measured {
     pub std_counts: f64,
     /// Samples averaged.
     pub samples: u64,
+    /// The board's temperature over them, °C: the sensor's mean when the stream carries
+    /// it, else one typed for the points, else unknown.
+    pub temp_c: Option<f64>,
 }
 
 /// Waits for `samples` (time in seconds, counts) to settle under `rule`, then averages
@@ -209,6 +213,7 @@ fn average(
                 counts: moments.mean().unwrap_or(c),
                 std_counts: moments.variance().unwrap_or(0.0).sqrt(),
                 samples: moments.n,
+                temp_c: None,
             });
         }
     }
@@ -365,6 +370,33 @@ impl Session {
         Ok(parse_profile(&text, "(calibration in progress)")?)
     }
 
+    /// The board temperatures of the points, K, when every point has one.
+    pub fn kelvins(&self) -> Option<Vec<f64>> {
+        self.points
+            .iter()
+            .map(|p| p.measured.temp_c.map(|c| c + CELSIUS_ZERO_K))
+            .collect()
+    }
+
+    /// The points taken without a board temperature, numbered from 1.
+    pub fn untagged(&self) -> Vec<usize> {
+        (1..=self.points.len())
+            .filter(|&n| self.points[n - 1].measured.temp_c.is_none())
+            .collect()
+    }
+
+    /// Checks the points' order within each calibration set (all points one set
+    /// without temperatures): a level may repeat in another set.
+    fn order_check(&self) -> Result<(), ModelError> {
+        let points = self.cal_points();
+        match self.kelvins() {
+            Some(kelvins) if !points.is_empty() => {
+                ordered_at(&points, &kelvins, ModelKind::Table).map(|_| ())
+            }
+            _ => ordered_points(&points, ModelKind::Table).map(|_| ()),
+        }
+    }
+
     /// Warnings about the points: order, clip, coarse resolution.
     pub fn warnings(&self) -> Vec<String> {
         let mut warnings = Vec::new();
@@ -372,7 +404,7 @@ impl Session {
         if let Err(
             ModelError::NotMonotone { index, .. }
             | ModelError::DuplicateLevel { second: index, .. },
-        ) = ordered_points(&self.cal_points(), ModelKind::Table)
+        ) = self.order_check()
         {
             warnings.push(format!(
                 "point {} ({}) is not in order with the rest: the counts must rise (or fall) steadily with level; redo or delete it",
@@ -481,12 +513,20 @@ impl Session {
             out.push_str(&format!("# model.temperature = {kelvin}\n"));
         }
         out.push_str(&format!("# ohms = {}\n", self.ohms()));
-        out.push_str("applied,counts,std_counts,samples\n");
+        let tagged = self.points.iter().any(|p| p.measured.temp_c.is_some());
+        out.push_str("applied,counts,std_counts,samples");
+        out.push_str(if tagged { ",temp_c\n" } else { "\n" });
         for p in &self.points {
+            let m = &p.measured;
             out.push_str(&format!(
-                "{},{},{},{}\n",
-                p.applied, p.measured.counts, p.measured.std_counts, p.measured.samples
+                "{},{},{},{}",
+                p.applied, m.counts, m.std_counts, m.samples
             ));
+            match (tagged, m.temp_c) {
+                (true, Some(c)) => out.push_str(&format!(",{c}\n")),
+                (true, None) => out.push_str(",\n"),
+                (false, _) => out.push('\n'),
+            }
         }
         out
     }
@@ -528,7 +568,7 @@ impl Session {
                     counts: p.measured.counts,
                     std_counts: Some(p.measured.std_counts),
                     samples: Some(p.measured.samples),
-                    temp_c: None,
+                    temp_c: p.measured.temp_c,
                 })
                 .collect(),
         };
@@ -678,6 +718,7 @@ mod tests {
             counts,
             std_counts: 0.5,
             samples: 100,
+            temp_c: None,
         }
     }
 

@@ -491,3 +491,98 @@ fn fit_on_calibrates_points_file_gives_the_saved_model() {
         "{stderr}"
     );
 }
+
+/// The levels of one calibration set.
+const SET: [&str; 3] = ["-10dBm", "0dBm", "10dBm"];
+
+/// Runs `script` on the diode demo bench, saving to `profile`; its standard output, once
+/// the run has succeeded.
+fn demo_session(profile: &Path, script: &[&str]) -> String {
+    let out = calibrate(&["--demo", "--out", path(profile)], script);
+    let stdout = text(&out.stdout);
+    assert!(out.status.success(), "{stdout}{}", text(&out.stderr));
+    stdout
+}
+
+// Source: docs/profiles.md ("Temperature"): points carry `temp_c`; a second set taken ten
+// or more degrees away may repeat the levels of the first, and the model then holds over
+// the temperatures the points were taken at: 25 and 45 °C are 298.15 and 318.15 K
+// (T/K = t/°C + 273.15, SI). The same level again within a set replaces its point.
+#[test]
+fn a_second_set_at_another_board_temperature_repeats_the_levels() {
+    let tmp = scratch("two-sets");
+    let profile = tmp.path().join("t.toml");
+    let mut script = vec!["zero", "temp 25"];
+    script.extend(SET);
+    script.push("temp 45C");
+    script.extend(SET);
+    script.extend(["0dBm", "save"]);
+    let stdout = demo_session(&profile, &script);
+    assert!(stdout.contains("board 45.00 °C"), "{stdout}");
+    // Only the last 0dBm, in the 45 °C set, replaced a point: point 5.
+    assert_eq!(stdout.matches("replaced point").count(), 1, "{stdout}");
+    assert!(stdout.contains("replaced point 5 (was "), "{stdout}");
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    let temps: Vec<Option<f64>> = saved.raw.model.points.iter().map(|p| p.temp_c).collect();
+    let expected = [25.0, 25.0, 25.0, 45.0, 45.0, 45.0].map(Some);
+    assert_eq!(temps, expected);
+    let thermal = saved
+        .model
+        .thermal
+        .as_ref()
+        .expect("a model across temperature");
+    let (lo, hi) = thermal.range_k();
+    assert!(
+        (lo - 298.15).abs() < 1e-9 && (hi - 318.15).abs() < 1e-9,
+        "{lo} {hi}"
+    );
+    let csv = std::fs::read_to_string(tmp.path().join("t.points.csv")).unwrap();
+    assert!(
+        csv.contains("applied,counts,std_counts,samples,temp_c\n"),
+        "{csv}"
+    );
+    assert!(csv.lines().last().unwrap().ends_with(",45"), "{csv}");
+}
+
+// Source: docs/profiles.md: a profile tells its calibration sets apart by `temp_c`, so a
+// board temperature typed after points taken without one is refused, nothing changed.
+#[test]
+fn a_board_temperature_after_untagged_points_is_refused() {
+    let tmp = scratch("untagged");
+    let profile = tmp.path().join("u.toml");
+    let script = ["-10dBm", "temp 25", "temp 200", "0dBm", "10dBm", "save"];
+    let stdout = demo_session(&profile, &script);
+    assert!(
+        stdout.contains("point(s) 1 were taken without a board temperature"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("`temp 200`: give the board's temperature in °C"),
+        "{stdout}"
+    );
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    assert!(saved.raw.model.points.iter().all(|p| p.temp_c.is_none()));
+}
+
+// Source: the simulated bench's invented ADC offset (sim::BENCH_ZERO_COUNTS, 3 counts)
+// under noise of mean zero, as in the test of the first zero above: a `zero` taken later
+// in the session, with the RF off, still sets the written profile's [adc] zero_counts.
+#[test]
+fn a_zero_taken_later_sets_the_written_zero() {
+    let tmp = scratch("late-zero");
+    let profile = tmp.path().join("z.toml");
+    let mut script = vec!["skip", "temp 30"];
+    script.extend(SET);
+    script.extend(["zero", "save"]);
+    let stdout = demo_session(&profile, &script);
+    assert!(
+        stdout.contains("zero skipped: zero_counts stays 0"),
+        "{stdout}"
+    );
+    let saved = dbtrail::profile::load_profile(&profile).unwrap();
+    let zero = saved.adc.zero_counts();
+    assert!(
+        (zero - dbtrail::sim::BENCH_ZERO_COUNTS).abs() < 0.1,
+        "{zero}"
+    );
+}

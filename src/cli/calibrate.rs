@@ -17,7 +17,7 @@ use dbtrail::sim::{BenchDetector, SignalBench};
 use dbtrail::stats::Averaging;
 
 use super::{parse_frequency_arg, parse_ohms, BadInput, Failure, Runtime};
-use crate::desk::bench::{Bench, Measuring, Worker};
+use crate::desk::bench::{Bench, BoardSensor, Measuring, Worker};
 use crate::desk::{points_path, text, Desk, Outcome, Output, Said, Step};
 use crate::source::{open_port, SerialSpec};
 
@@ -124,6 +124,15 @@ fn set_up(args: &Args) -> Result<(Desk, Bench), Failure> {
         }
     });
     let model = ModelKind::from_name(&args.model).unwrap_or(ModelKind::Table);
+    let loaded_base = match &args.base {
+        Some(path) => Some(load_profile(path).bad_input()?),
+        None => None,
+    };
+    // The board's sensor, when the base profile names its channel.
+    let sensor = loaded_base.as_ref().and_then(|base| {
+        base.temperature
+            .map(|channel| BoardSensor::new(channel, base.adc.clone()))
+    });
     let (bench, demo_adc, source) = match demo {
         Some(kind) => {
             let bench = SignalBench::new(kind, 1000.0, args.seed);
@@ -146,14 +155,14 @@ fn set_up(args: &Args) -> Result<(Desk, Bench), Failure> {
                 format: Format::Auto,
             };
             (
-                Bench::Port(spec.start(port)),
+                Bench::Port(spec.start(port), sensor),
                 None,
                 format!("serial port {path}"),
             )
         }
     };
-    let mut base = match &args.base {
-        Some(path) => load_profile(path).bad_input()?.raw,
+    let mut base = match loaded_base {
+        Some(loaded) => loaded.raw,
         None => {
             let bits = args
                 .adc_bits

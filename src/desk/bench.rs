@@ -8,10 +8,12 @@ use std::sync::mpsc::{self, Receiver, Sender};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
+use dbtrail::adc::Adc;
 use dbtrail::events::Event;
 use dbtrail::procedure::{measure_watched, MeasureError, Measured, Progress, SettleRule};
 use dbtrail::sim::SignalBench;
 use dbtrail::stats::Averaging;
+use dbtrail::thermal::TemperatureChannel;
 
 use crate::source::Running;
 
@@ -19,8 +21,41 @@ use crate::source::Running;
 pub enum Bench {
     /// A simulated generator and detector, in simulated time.
     Demo(SignalBench),
-    /// A real board; the user sets the generator by hand.
-    Port(Running),
+    /// A real board; the user sets the generator by hand. With the base profile's
+    /// `[temperature]`, the board's sensor is read beside the power channel.
+    Port(Running, Option<BoardSensor>),
+}
+
+/// The board's temperature sensor as a stream carries it, and what it read for each
+/// power sample the measurement took.
+pub struct BoardSensor {
+    channel: TemperatureChannel,
+    adc: Adc,
+    /// °C for each sample taken, None where the sensor showed a fault.
+    readings: Vec<Option<f64>>,
+}
+
+impl BoardSensor {
+    /// The sensor on `channel`, whose codes are those of `adc`.
+    pub fn new(channel: TemperatureChannel, adc: Adc) -> Self {
+        BoardSensor {
+            channel,
+            adc,
+            readings: Vec::new(),
+        }
+    }
+
+    /// The frame index of the power channel: the first that is not the sensor's.
+    fn power_channel(&self) -> usize {
+        usize::from(self.channel.channel == 0)
+    }
+
+    /// The mean of the good readings over the last `samples` samples taken, °C.
+    fn mean_over_last(&self, samples: u64) -> Option<f64> {
+        let from = self.readings.len().saturating_sub(samples as usize);
+        let good: Vec<f64> = self.readings[from..].iter().flatten().copied().collect();
+        (!good.is_empty()).then(|| good.iter().sum::<f64>() / good.len() as f64)
+    }
 }
 
 /// How each level is measured: the settle rule and the averaging.
@@ -52,18 +87,30 @@ impl Bench {
                     (t, f64::from(c))
                 }))
             }
-            Bench::Port(source) => {
+            Bench::Port(source, sensor) => {
                 let deadline = Instant::now() + limit;
                 let mut pending = VecDeque::new();
+                let power = sensor.as_ref().map_or(0, BoardSensor::power_channel);
+                if let Some(sensor) = sensor.as_mut() {
+                    sensor.readings.clear();
+                }
                 Box::new(std::iter::from_fn(move || loop {
-                    if let Some(sample) = pending.pop_front() {
-                        return Some(sample);
+                    if let Some((t, code, celsius)) = pending.pop_front() {
+                        // Kept as the sample is taken, so they line up with the average.
+                        if let Some(sensor) = sensor.as_mut() {
+                            sensor.readings.push(celsius);
+                        }
+                        return Some((t, code));
                     }
                     if let Some(Event::Samples(chunk)) = source.next_event() {
-                        pending.extend(
-                            (0..chunk.len())
-                                .map(|i| (chunk.time(i), f64::from(chunk.counts(i)[0]))),
-                        );
+                        pending.extend((0..chunk.len()).filter_map(|i| {
+                            let counts = chunk.counts(i);
+                            let code = f64::from(*counts.get(power)?);
+                            let celsius = sensor
+                                .as_ref()
+                                .and_then(|s| s.channel.celsius_in_frame(&s.adc, counts)?.ok());
+                            Some((chunk.time(i), code, celsius))
+                        }));
                         continue;
                     }
                     // A silent port must not hold a cancelled measurement until the deadline.
@@ -78,7 +125,7 @@ impl Bench {
 
     /// Drops samples that arrived while the user was typing.
     fn discard_backlog(&mut self) {
-        if let Bench::Port(source) = self {
+        if let Bench::Port(source, _) = self {
             while source.next_event().is_some() {}
         }
     }
@@ -106,7 +153,14 @@ impl Bench {
         if cancel.load(Relaxed) {
             return Err(MeasureError::Cancelled);
         }
-        result
+        let board = match self {
+            Bench::Port(_, Some(sensor)) => Some(sensor),
+            _ => None,
+        };
+        result.map(|m| Measured {
+            temp_c: board.and_then(|s| s.mean_over_last(m.samples)),
+            ..m
+        })
     }
 }
 
@@ -252,5 +306,40 @@ mod tests {
         );
         let next = worker.measure(None).unwrap();
         assert!(next.is_ok(), "{next:?}");
+    }
+
+    const DEMO_DIODE: &str = include_str!("../../profiles/demo-diode.toml");
+
+    // Source: the β equation worked by hand for the demo's divider (10 kΩ, β 3950 K NTC to
+    // ground under 10 kΩ, 12-bit ratiometric, full scale 4095): code 2047 reads
+    // 25.0110 °C and 2048 reads 24.9890 °C, so the two alternating average 25.0000 °C.
+    // The power channel is the first that is not the sensor's (docs/calibration.md).
+    #[test]
+    fn a_port_with_the_board_sensor_tags_the_point_with_its_mean() {
+        let profile = dbtrail::profile::parse_profile(DEMO_DIODE, "demo-diode.toml").unwrap();
+        let sensor = BoardSensor::new(profile.temperature.unwrap(), profile.adc.clone());
+        let frames = move |sender: &mut crate::source::EventSender, _| {
+            for i in 0..20_000u32 {
+                let t = f64::from(i) / 1000.0;
+                if !sender.send(Event::sample(t, &[500, 2047 + i % 2])) {
+                    break;
+                }
+            }
+        };
+        let source = crate::source::spawn(
+            "frames".into(),
+            false,
+            crate::source::WhenFull::Wait(64),
+            frames,
+        );
+        let measuring = Measuring {
+            rule: SettleRule::default(),
+            averaging: Averaging::Samples(100),
+        };
+        let worker = Worker::start(Bench::Port(source, Some(sensor)), measuring);
+        let measured = worker.measure(Some((0.0, 10e6))).unwrap().unwrap();
+        assert_eq!(measured.counts, 500.0);
+        let celsius = measured.temp_c.expect("the sensor was read");
+        assert!((celsius - 25.0).abs() < 1e-3, "{celsius}");
     }
 }

@@ -12,9 +12,11 @@ use std::io::{self, Write as _};
 use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, Context};
-use dbtrail::detector::{rms, table::leave_one_out_db, Axis, ModelKind};
+use dbtrail::detector::thermal::{temperature_groups, SET_GAP_K};
+use dbtrail::detector::{rms, table::leave_one_out_db, Axis, CalPoint, ModelKind};
 use dbtrail::procedure::{MeasureError, Measured, Session, SessionError, SessionPoint};
 use dbtrail::profile::raw::RawLimits;
+use dbtrail::thermal::PLAUSIBLE_C;
 use dbtrail::units::{parse_frequency, parse_level, Si, UnitError};
 
 use bench::{Applied, Measuring};
@@ -85,6 +87,11 @@ pub enum Said {
     },
     /// The ADC zero was measured with RF off.
     Zero(Measured),
+    /// `temp C`: the board temperature the following points are tagged with.
+    BoardTemperature {
+        /// °C.
+        celsius: f64,
+    },
     /// A limit was set.
     Limit {
         /// Which.
@@ -181,6 +188,10 @@ pub enum Refusal {
     Measure(MeasureError),
     /// The points could not be kept at `quit`.
     NotKept(anyhow::Error),
+    /// A board temperature that is not a number of °C in the plausible range.
+    Temperature(String),
+    /// A board temperature typed after points taken without one.
+    Untagged(Vec<usize>),
 }
 
 impl From<SessionError> for Refusal {
@@ -251,6 +262,9 @@ pub struct Desk {
     pub source: String,
     /// The last line was a `quit` that warned of unsaved points.
     quit_warned: bool,
+    /// The board temperature typed for the following points, °C (`temp`), used when the
+    /// stream carries no sensor.
+    pub board_c: Option<f64>,
 }
 
 type Answer = Result<Said, Refusal>;
@@ -267,6 +281,7 @@ impl Desk {
             reference_hz,
             source,
             quit_warned: false,
+            board_c: None,
         }
     }
 
@@ -292,6 +307,7 @@ impl Desk {
                 })
             }
             ("limit", [which, level]) => self.set_limit(which, level),
+            ("temp", [celsius]) => self.set_board_temperature(celsius),
             ("delete" | "del", [n]) => self.delete(n),
             ("redo", [n]) => return self.redo(n, line),
             ("model", [name]) => self.set_model(name),
@@ -322,6 +338,11 @@ impl Desk {
             }
             Err(e) => return Outcome::Continue(Said::Refused(Refusal::Measure(e))),
         };
+        // The sensor's mean when the stream carries one, else the temperature typed.
+        let measured = Measured {
+            temp_c: measured.temp_c.or(self.board_c),
+            ..measured
+        };
         let answer = match request.then {
             Then::Zero => Ok(self.set_zero(measured)),
             Then::Level(text) => self.add_level(&text, measured),
@@ -345,6 +366,24 @@ impl Desk {
             self.stage = Stage::Levels;
         }
         Said::Zero(measured)
+    }
+
+    /// `temp C`: the board temperature for the points that follow, when the stream
+    /// does not carry the board's sensor. Refused while points without one exist, since a
+    /// profile's sets are told apart by temperature.
+    fn set_board_temperature(&mut self, text: &str) -> Answer {
+        let number = text.trim_end_matches("°C").trim_end_matches(['C', 'c']);
+        let celsius = number
+            .parse::<f64>()
+            .ok()
+            .filter(|c| (PLAUSIBLE_C.0..=PLAUSIBLE_C.1).contains(c))
+            .ok_or_else(|| Refusal::Temperature(text.to_string()))?;
+        let untagged = self.session.untagged();
+        if !untagged.is_empty() {
+            return Err(Refusal::Untagged(untagged));
+        }
+        self.board_c = Some(celsius);
+        Ok(Said::BoardTemperature { celsius })
     }
 
     fn set_limit(&mut self, which: &str, level: &str) -> Answer {
@@ -403,15 +442,18 @@ impl Desk {
         }
     }
 
-    /// Adds a level's point, or replaces the point already taken at that level.
+    /// Adds a level's point, or replaces the point already taken at that level in the
+    /// same calibration set (a set at another board temperature may repeat the level).
     fn add_level(&mut self, text: &str, measured: Measured) -> Answer {
         let (_, dbm) = self.session.parse_level(text)?;
         let ohms = self.session.ohms();
-        let same = self
-            .session
-            .points
-            .iter()
-            .position(|p| (p.level.power(ohms).dbm() - dbm).abs() < 1e-6);
+        let same_set = |c: Option<f64>| match (c, measured.temp_c) {
+            (Some(a), Some(b)) => (a - b).abs() <= SET_GAP_K,
+            (a, b) => a.is_none() && b.is_none(),
+        };
+        let same = self.session.points.iter().position(|p| {
+            (p.level.power(ohms).dbm() - dbm).abs() < 1e-6 && same_set(p.measured.temp_c)
+        });
         if let Some(index) = same {
             return self.replace(index + 1, measured);
         }
@@ -489,7 +531,7 @@ impl Desk {
             .map(|kind| {
                 let errors = match kind {
                     ModelKind::Table => Some(
-                        leave_one_out_db(&cal_points, Axis::LogVolts)
+                        table_errors(&cal_points, session.kelvins().as_deref())
                             .iter()
                             .map(|e| e.unwrap_or(f64::NAN))
                             .collect(),
@@ -604,6 +646,22 @@ impl Desk {
     }
 }
 
+/// The table model's error at each point with that point left out, within its
+/// calibration set when the points carry board temperatures (each set is a curve).
+fn table_errors(points: &[CalPoint], kelvins: Option<&[f64]>) -> Vec<Option<f64>> {
+    let Some(kelvins) = kelvins else {
+        return leave_one_out_db(points, Axis::LogVolts);
+    };
+    let mut errors = vec![None; points.len()];
+    for (_, members) in temperature_groups(kelvins) {
+        let set: Vec<CalPoint> = members.iter().map(|&i| points[i]).collect();
+        for (&i, error) in members.iter().zip(leave_one_out_db(&set, Axis::LogVolts)) {
+            errors[i] = error;
+        }
+    }
+    errors
+}
+
 /// A step done at once, the session going on.
 fn done(answer: Answer) -> Step {
     Step::Done(Outcome::Continue(answer.unwrap_or_else(Said::Refused)))
@@ -660,6 +718,7 @@ pub(crate) mod tests {
             counts,
             std_counts: 0.5,
             samples: 100,
+            temp_c: None,
         }
     }
 
@@ -715,6 +774,42 @@ pub(crate) mod tests {
         assert_eq!(limit, Limit::Load);
         assert!((dbm - 36.99).abs() < 0.005, "{dbm}");
         assert_eq!(desk.limits().reference_max_dbm, Some(dbm));
+    }
+
+    // Source: docs/calibration.md (calibrate, a second set): the table model's error is
+    // each point's with it left out of its own set, so two sets of the same counts give
+    // the errors one set alone gives (the plain leave-one-out as the reference), and
+    // points more than SET_GAP_K apart are two sets.
+    #[test]
+    fn a_repeated_set_at_another_temperature_gets_the_table_errors_of_one_set() {
+        let mut desk = desk();
+        desk.plan("temp 25");
+        let levels = [
+            ("-20dBm", 100.0),
+            ("-10dBm", 300.0),
+            ("0dBm", 900.0),
+            ("10dBm", 2500.0),
+        ];
+        for (level, counts) in levels {
+            measured(&mut desk, level, counts);
+        }
+        let one_set = leave_one_out_db(&desk.session.cal_points(), Axis::LogVolts);
+        desk.plan("temp 40");
+        for (level, counts) in levels {
+            let said = measured(&mut desk, level, counts);
+            assert!(
+                matches!(said, Said::Added(m) if m.temp_c == Some(40.0)),
+                "{said:?}"
+            );
+        }
+        let Some(errors) = desk.fits()[0].errors.clone() else {
+            panic!("the table has errors");
+        };
+        for (i, expected) in one_set.iter().chain(&one_set).enumerate() {
+            let got = Some(errors[i]).filter(|e| e.is_finite());
+            assert_eq!(got, *expected, "point {}", i + 1);
+        }
+        assert!(one_set.iter().any(Option::is_some));
     }
 
     // Source: issue 16's decision: kept points never overwrite an existing file; the

@@ -6,7 +6,9 @@
 use std::fmt::Write as _;
 use std::path::Path;
 
+use dbtrail::detector::thermal::SET_GAP_K;
 use dbtrail::procedure::{MeasureError, Measured, Session};
+use dbtrail::thermal::PLAUSIBLE_C;
 use dbtrail::units::Si;
 
 use super::{Desk, Ending, Limit, Refusal, Said, Stage};
@@ -22,7 +24,7 @@ the same level again replaces its point. Commands:
   redo N   measure point N again       delete N   remove point N
   model NAME   save the table, diode or log model    list   show the fits
   freq LEVEL   frequency stage at LEVEL, then each frequency (e.g. 146MHz)
-  levels       back to the level stage
+  levels   back to the level stage   temp C   board °C of the next points
   save [FILE]  write the profile and its points CSV      quit   leave
 Safety: stay within the detector's, the load's and the attenuator's ratings;
 RF burns; transmit only as your licence and local regulations allow.";
@@ -41,7 +43,11 @@ pub fn prompt(desk: &Desk) -> String {
     match (desk.stage, &desk.session.freq_level) {
         (Stage::Zero, _) => ZERO_PROMPT.into(),
         (Stage::Frequencies, Some((level, _))) => format!("frequency at {level}> "),
-        _ => "level> ".into(),
+        // The temperature typed tags each point that follows: keep it in view.
+        _ => match desk.board_c {
+            Some(celsius) => format!("level (board {celsius} °C)> "),
+            None => "level> ".into(),
+        },
     }
 }
 
@@ -69,6 +75,10 @@ pub fn message(desk: &Desk, said: &Said) -> String {
             "{}\nthe ADC zero is {:.2} counts with RF off; it is saved as zero_counts in [adc]\n{LIMITS_HINT}",
             describe(m),
             m.counts
+        ),
+        Said::BoardTemperature { celsius } => format!(
+            "the next points are tagged temp_c = {celsius} (the board's temperature, °C); a \
+             set {SET_GAP_K} K or more away is a calibration set of its own"
         ),
         Said::Limit { limit, dbm } => format!(
             "{}: {dbm:.2} dBm, saved in [limits]; readings above it are flagged (the limits \
@@ -140,6 +150,19 @@ fn refusal(why: &Refusal) -> String {
         Refusal::Session(e) => with_causes(e),
         Refusal::Measure(e) => with_causes(e),
         Refusal::NotKept(e) => format!("{e:#}"),
+        Refusal::Temperature(text) => format!(
+            "`temp {text}`: give the board's temperature in °C, from {} to {} (e.g. `temp 25`)",
+            PLAUSIBLE_C.0, PLAUSIBLE_C.1
+        ),
+        Refusal::Untagged(numbers) => format!(
+            "point(s) {} were taken without a board temperature: a profile tells its sets \
+             apart by temperature, so `delete` them or give `temp` before the first point",
+            numbers
+                .iter()
+                .map(ToString::to_string)
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
     }
 }
 
@@ -187,8 +210,11 @@ fn counted_points(n: usize) -> String {
 }
 
 fn describe(m: &Measured) -> String {
+    let board = m
+        .temp_c
+        .map_or(String::new(), |c| format!(", board {c:.2} °C"));
     format!(
-        "settled: {:.2} counts (±{:.2}, {} samples)",
+        "settled: {:.2} counts (±{:.2}, {} samples{board})",
         m.counts, m.std_counts, m.samples
     )
 }
@@ -197,21 +223,28 @@ fn describe(m: &Measured) -> String {
 pub fn table(desk: &Desk) -> String {
     let session = &desk.session;
     let fits = desk.fits();
-    let mut out = String::from(" #  applied          counts      ±std       n");
+    // With board temperatures, their column takes the place of the samples' (each
+    // point's line says how many), so that the table still fits 80 columns.
+    let tagged = session.points.iter().any(|p| p.measured.temp_c.is_some());
+    let last = if tagged { "°C" } else { "n" };
+    let mut out = format!(" #  applied          counts      ±std {last:>7}");
     for fit in &fits {
         let _ = write!(out, "  {:>9}", format!("{} dB", fit.kind.name()));
     }
     out.push('\n');
     for (i, p) in session.points.iter().enumerate() {
         let m = &p.measured;
+        let last = match tagged {
+            true => shown(m.temp_c.map(|c| format!("{c:.2}"))),
+            false => m.samples.to_string(),
+        };
         let _ = write!(
             out,
-            "{:>2}  {:<12} {:>10.2} {:>9.2} {:>7}",
+            "{:>2}  {:<12} {:>10.2} {:>9.2} {last:>7}",
             i + 1,
             p.applied,
             m.counts,
             m.std_counts,
-            m.samples
         );
         for fit in &fits {
             let cell = fit

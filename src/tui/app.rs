@@ -4,12 +4,16 @@
 //! [`draw`] is a child of it so that it can read them, and takes `&App`, so it cannot
 //! change them.
 
+pub mod board;
 pub mod coupled;
 #[cfg(test)]
 mod coupled_tests;
 pub mod draw;
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod thermal_tests;
+pub mod zero;
 
 use std::path::PathBuf;
 use std::sync::Arc;
@@ -27,7 +31,9 @@ use dbtrail::units::{parse_db, parse_frequency};
 
 use super::line::LineEdit;
 use super::noise::{CountWindow, ReadingSpread};
+use board::Board;
 use coupled::CoupledRun;
+use zero::{ZeroOutcome, ZeroTake, COUPLER_ZERO_REFUSED};
 
 /// Everything that can happen to the screen.
 #[derive(Debug, Clone)]
@@ -88,6 +94,14 @@ pub enum Command {
     StopLog,
     /// The calibration changed (frequency or offset); a log notes it.
     Recalibrated,
+    /// A zero was taken with the RF off: from source time `t` the run's ADC zero is
+    /// `zero_counts`; an open log writes a `# zero:` line and goes on.
+    Rezero {
+        /// Source time of the zero's last sample, seconds.
+        t: f64,
+        /// The new zero, counts.
+        zero_counts: f64,
+    },
 }
 
 /// The unit of the main reading.
@@ -186,6 +200,9 @@ pub enum Plusminus {
     /// Counts over the ADC's full scale came within the warnings' hold time: the samples
     /// around them are not to be trusted.
     OverFullScale,
+    /// The board is outside the calibrated temperatures: the model is carried beyond
+    /// what was measured, so no budget holds.
+    TempOutside,
     /// The budget at the shown level, with the noise of the averaging window.
     Budget(Budget),
 }
@@ -258,6 +275,8 @@ pub enum Mode {
     },
     /// `q` was pressed while a log is open: a second `q` quits, any other key stays.
     ConfirmQuit,
+    /// Taking a zero with the RF off: the power channel's counts so far.
+    Zeroing(ZeroTake),
 }
 
 /// The state of the live screen.
@@ -327,6 +346,12 @@ pub struct App {
     view: View,
     /// Both arms and their match, in a coupler run.
     coupled: Option<CoupledRun>,
+    /// The board's temperature and the calibration at it, when the profile reads one.
+    board: Option<Board>,
+    /// The ADC zero taken on this screen, counts; kept through a new frequency or offset.
+    zero_counts: Option<f64>,
+    /// Commands raised while samples were taken in (a zero finished), for `update` to return.
+    pending: Vec<Command>,
 }
 
 impl App {
@@ -354,6 +379,9 @@ impl App {
         source: String,
     ) -> Self {
         App {
+            board: Board::of(&cal),
+            zero_counts: None,
+            pending: Vec::new(),
             uncertainty,
             profile,
             cal,
@@ -417,6 +445,8 @@ impl App {
             source,
         );
         app.coupled = Some(CoupledRun::new(coupler, cal, app.averager.mode()));
+        // Each arm's profile is its own: the arms are read as they were calibrated.
+        app.board = None;
         app
     }
 
@@ -518,8 +548,16 @@ impl App {
             Shown::Level(_) if self.active_warnings().contains(Flags::OVER_FULL_SCALE) => {
                 Plusminus::OverFullScale
             }
+            Shown::Level(_)
+                if self
+                    .last
+                    .is_some_and(|r| r.flags.contains(Flags::TEMP_OUTSIDE)) =>
+            {
+                Plusminus::TempOutside
+            }
             Shown::Level(dbm) => {
-                Plusminus::Budget(self.uncertainty.budget(dbm, self.counts.noise()))
+                let kelvin = self.board.as_ref().and_then(Board::kelvin);
+                Plusminus::Budget(self.uncertainty.budget_at(dbm, self.counts.noise(), kelvin))
             }
         }
     }
@@ -606,11 +644,11 @@ impl App {
         let limits = self.over_limits();
         let limit_raised =
             (limits.swr && !limits_before.swr) || (limits.reflected && !limits_before.reflected);
-        if raised.is_empty() && !limit_raised {
-            Vec::new()
-        } else {
-            vec![Command::Bell]
+        let mut commands = std::mem::take(&mut self.pending);
+        if !raised.is_empty() || limit_raised {
+            commands.push(Command::Bell);
         }
+        commands
     }
 
     /// The transmitter's limits the match is past now (none in a plain run).
@@ -628,8 +666,13 @@ impl App {
             let (t, counts) = (chunk.time(i), chunk.counts(i));
             match self.coupled.as_mut() {
                 None => {
-                    if let Some(&code) = counts.first() {
-                        self.sample(t, code);
+                    let read = match self.board.as_mut() {
+                        Some(board) => board.read(t, counts),
+                        None => counts.first().map(|&c| (c, self.cal.reading_code(c))),
+                    };
+                    if let Some((code, reading)) = read {
+                        self.take_zero_sample(t, code, &reading);
+                        self.sample(t, code, reading);
                     }
                 }
                 Some(run) => match run.codes(counts) {
@@ -638,7 +681,8 @@ impl App {
                         // The reflected detector has its ratings and its clip too.
                         let reflected = run.cal.reflected.reading_code(codes.1).flags;
                         self.raise_warnings(reflected, t);
-                        self.sample(t, codes.0);
+                        let reading = self.cal.reading_code(codes.0);
+                        self.sample(t, codes.0, reading);
                     }
                     None => {
                         self.notice = Some(self.too_few_channels(counts.len()));
@@ -661,8 +705,8 @@ impl App {
         )
     }
 
-    fn sample(&mut self, t: f64, code: u32) {
-        let reading = self.cal.reading_code(code);
+    /// One power sample, `code`, and its reading.
+    fn sample(&mut self, t: f64, code: u32, reading: Reading) {
         self.now = self.now.max(t);
         self.last_sample_t = Some(t);
         if !reading.flags.contains(Flags::OVER_FULL_SCALE) {
@@ -764,6 +808,7 @@ impl App {
                 Vec::new()
             }
             Mode::Prompt { ask, line, error } => self.prompt_key(ask, line, error, key),
+            Mode::Zeroing(_) => self.zeroing_key(key),
             Mode::Normal => self.normal_key(key),
         }
     }
@@ -809,6 +854,8 @@ impl App {
                 }
             }
             ' ' => self.freeze(),
+            'z' if self.coupled.is_some() => self.notice = Some(COUPLER_ZERO_REFUSED.into()),
+            'z' => self.mode = Mode::Zeroing(ZeroTake::default()),
             _ => {}
         }
         Vec::new()
@@ -924,7 +971,11 @@ impl App {
                 self.uncertainty = run.cal.forward_budget.clone();
             }
             None => {
-                self.cal = Calibration::new(&self.profile, freq_hz, extra_offset_db);
+                let cal = Calibration::new(&self.profile, freq_hz, extra_offset_db);
+                self.cal = match self.zero_counts {
+                    Some(zero) => cal.with_zero(zero),
+                    None => cal,
+                };
                 // The budget's terms depend on the level at the detector and the frequency.
                 self.uncertainty = Uncertainty::new(&self.profile, &self.cal);
             }
@@ -939,8 +990,79 @@ impl App {
             trend.shift_db(shift);
         }
         self.best_dbm = self.best_dbm.map(|b| b + shift);
-        self.last = self.last.map(|r| self.cal.reading(r.counts));
+        self.reread_last();
         vec![Command::Recalibrated]
+    }
+
+    /// The last reading again through the calibration now in use (and the board's
+    /// temperature now).
+    fn reread_last(&mut self) {
+        if let Some(board) = self.board.as_mut() {
+            board.recalibrate(&self.cal);
+        }
+        let Some(counts) = self.last.map(|r| r.counts) else {
+            return;
+        };
+        self.last = Some(read_counts(self.board.as_mut(), &self.cal, counts));
+    }
+
+    /// Keys while a zero is taken: Esc cancels it, `q` quits as ever, others wait.
+    fn zeroing_key(&mut self, key: KeyEvent) -> Vec<Command> {
+        match key.code {
+            KeyCode::Esc => {
+                self.mode = Mode::Normal;
+                self.notice = Some("zero cancelled, nothing changed".into());
+            }
+            KeyCode::Char('q') => {
+                self.mode = Mode::Normal;
+                return self.quit_key();
+            }
+            _ => {}
+        }
+        Vec::new()
+    }
+
+    /// A power sample into the zero being taken, if one is; the zero ends when it has
+    /// its time's worth.
+    fn take_zero_sample(&mut self, t: f64, code: u32, reading: &Reading) {
+        let Mode::Zeroing(take) = &mut self.mode else {
+            return;
+        };
+        take.push(t, code, reading);
+        let outcome = take.outcome(|counts| read_counts(self.board.as_mut(), &self.cal, counts));
+        match outcome {
+            ZeroOutcome::Collecting => {}
+            ZeroOutcome::Refused(why) => {
+                self.mode = Mode::Normal;
+                self.notice = Some(why);
+            }
+            ZeroOutcome::Taken {
+                zero_counts,
+                samples,
+            } => {
+                self.mode = Mode::Normal;
+                self.set_zero(t, zero_counts, samples);
+            }
+        }
+    }
+
+    /// The run's ADC zero becomes `zero_counts`: the calibration, its budget and the
+    /// compensation are rebuilt with it, and an open log is told.
+    fn set_zero(&mut self, t: f64, zero_counts: f64, samples: u64) {
+        let before = self.cal.adc().zero_counts();
+        self.cal = self.cal.with_zero(zero_counts);
+        self.uncertainty = self.uncertainty.clone().with_calibration(&self.cal);
+        self.zero_counts = Some(zero_counts);
+        // Readings before the zero were read with the old one.
+        self.averager.clear();
+        self.spread.clear();
+        self.counts.clear();
+        self.settle.clear();
+        self.reread_last();
+        self.notice = Some(format!(
+            "zero set: {zero_counts:.2} counts (was {before:.2}), mean of {samples} samples"
+        ));
+        self.pending.push(Command::Rezero { t, zero_counts });
     }
 
     fn reset_holds(&mut self) {
@@ -960,6 +1082,15 @@ impl App {
             }
             _ => self.notice = Some("no valid reading to take as the reference".into()),
         }
+    }
+}
+
+/// Fractional counts read at the board's temperature now, or through `cal` without a
+/// board.
+fn read_counts(board: Option<&mut Board>, cal: &Calibration, counts: f64) -> Reading {
+    match board {
+        Some(board) => board.reading(counts),
+        None => cal.reading(counts),
     }
 }
 

@@ -472,6 +472,36 @@ mod tests {
         );
     }
 
+    // Source: docs/calibration.md (calibrate, board temperature): `temp C` tags the
+    // points that follow; the screen keeps the temperature in the prompt, the point is
+    // tagged with it, and the table shows its °C column.
+    #[test]
+    fn a_typed_board_temperature_is_in_the_prompt_and_tags_the_next_point() {
+        let mut screen = typing(desk(), "");
+        assert_eq!(enter(&mut screen, "skip"), None);
+        assert_eq!(enter(&mut screen, "temp 31.5"), None);
+        let shown = words(&rows(&screen, 80, 24));
+        assert!(shown.contains("tagged temp_c = 31.5"), "{shown}");
+        assert!(shown.contains("level (board 31.5 °C)>"), "{shown}");
+        let Some(Command::Measure(_)) = enter(&mut screen, "0dBm") else {
+            panic!("a level asks for a measurement");
+        };
+        screen.update(ScreenEvent::Bench(BenchEvent::Done(Ok(at(2000.0)))));
+        assert_eq!(screen.desk.session.points[0].measured.temp_c, Some(31.5));
+        // At 80 columns the row stays whole (not wrapped), its °C in place of the count.
+        let shown = rows(&screen, 80, 24);
+        assert!(
+            shown.iter().any(|r| r.contains("±std      °C")),
+            "{shown:#?}"
+        );
+        assert!(
+            shown
+                .iter()
+                .any(|r| r.contains(" 1  0dBm ") && r.contains("2000.00") && r.contains("31.50")),
+            "{shown:#?}"
+        );
+    }
+
     // Source: issue 16's decision: a cancelled measurement adds no point and says so.
     #[test]
     fn a_cancelled_measurement_adds_no_point() {

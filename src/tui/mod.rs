@@ -220,12 +220,26 @@ fn carry_out(
             Command::StopLog => close_log(log, setup, LogEnd::Stopped),
             // A log keeps one calibration per file.
             Command::Recalibrated => close_log(log, setup, LogEnd::Recalibrated),
+            Command::Rezero { t, zero_counts } => rezero_log(log, setup, t, zero_counts),
         };
         if let Some(event) = effect {
             app.update(event);
         }
     }
     false
+}
+
+/// Tells the open log, if any, of a zero taken at `t`; a log that cannot take it is closed.
+fn rezero_log(
+    log: &mut Option<Log>,
+    setup: &ScreenSetup,
+    t: f64,
+    zero_counts: f64,
+) -> Option<AppEvent> {
+    let written = log.as_mut()?.recorder.rezero(t, zero_counts);
+    let error = written.err()?;
+    let why = LogEnd::Failed(format!("cannot write the zero line: {error}"));
+    close_log(log, setup, why)
 }
 
 /// Closes the open log, if any, with its last partial interval.

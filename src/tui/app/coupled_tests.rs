@@ -281,6 +281,28 @@ fn the_offset_key_is_refused_in_a_coupler_run() {
     );
 }
 
+// Source: docs/screen.md (zero): in a coupler run `z` is refused with a notice and
+// nothing changes; each arm's zero is its profile's.
+#[test]
+fn the_zero_key_is_refused_in_a_coupler_run() {
+    let mut app = coupled_app();
+    pair(&mut app, 0.0, 50.0, 36.0);
+    let zero = app.calibration().adc().zero_counts();
+    let commands = keys(&mut app, "z");
+    assert!(commands.is_empty());
+    assert_eq!(app.mode, Mode::Normal);
+    assert_eq!(app.calibration().adc().zero_counts(), zero);
+    let lines = screen(&app, 100, 30);
+    assert!(
+        words(&lines).contains("no zero in a coupler run"),
+        "{lines:#?}"
+    );
+    assert!(
+        !words(&lines).contains("board"),
+        "no board line: {lines:#?}"
+    );
+}
+
 #[test]
 fn a_new_frequency_rebuilds_both_arms_and_the_match() {
     let mut app = coupled_app();

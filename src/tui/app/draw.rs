@@ -12,7 +12,9 @@ use dbtrail::printable::{fields_to_keep, wrap_words};
 use dbtrail::uncertainty::COVERAGE_K;
 use dbtrail::units::{Power, Si, VoltageForm};
 
-use super::{App, Mode, Plusminus, Shown, Units, View, TREND_WINDOWS};
+use super::board::fault_check;
+use super::zero::ZERO_TAKE_S;
+use super::{App, Mode, Plusminus, Shown, Units, View, TREND_WINDOWS, WARNING_HOLD_S};
 use crate::tui::digits;
 use crate::tui::line::LineEdit;
 
@@ -38,13 +40,15 @@ pub fn draw(app: &App, frame: &mut Frame) {
         } if error.chars().count() + 1 > usize::from(area.width) => 2,
         _ => 1,
     };
-    let [title, banner, reading, forms, _, bar, markers, holds, peak, _, trend, status, hints] =
+    // The board's line takes the blank row under the other forms.
+    let board_rows = u16::from(full || app.board.is_some());
+    let [title, banner, reading, forms, board, bar, markers, holds, peak, _, trend, status, hints] =
         Layout::vertical([
             Constraint::Length(1),
             Constraint::Length(1),
             Constraint::Length(reading_rows),
             Constraint::Length(1),
-            Constraint::Length(u16::from(full)),
+            Constraint::Length(board_rows),
             Constraint::Length(1),
             Constraint::Length(1),
             Constraint::Length(1),
@@ -75,6 +79,9 @@ pub fn draw(app: &App, frame: &mut Frame) {
             title_bar(app, title, buf);
             main_reading(app, reading, full, buf);
             Paragraph::new(other_forms(app)).render(forms, buf);
+            if let Some(line) = board_line(app) {
+                Paragraph::new(line).render(board, buf);
+            }
             level_bar(app, bar, markers, buf);
             Paragraph::new(holds_line(app)).render(holds, buf);
             Paragraph::new(peak_line(app)).render(peak, buf);
@@ -243,6 +250,7 @@ fn warnings_now(app: &App) -> Vec<&'static Warning> {
     if app.is_rejecting() {
         list.push(&REJECTING);
     }
+    list.extend(board_warnings(app));
     let reflected_off_table = app.coupled.as_ref().is_some_and(|run| {
         let flags = run.cal.reflected.fixed_flags();
         flags.contains(Flags::FREQ_OUTSIDE)
@@ -251,6 +259,32 @@ fn warnings_now(app: &App) -> Vec<&'static Warning> {
         list.push(&OFF_TABLE);
     }
     list
+}
+
+/// The board's warnings: its sensor's fault, a temperature outside the calibrated ones,
+/// or one not known while samples come.
+fn board_warnings(app: &App) -> Option<&'static Warning> {
+    const FAULT: Warning = warning(
+        "TEMPERATURE SENSOR FAULT: see the board line",
+        "SENSOR FAULT",
+        Weight::Caution,
+    );
+    const OUTSIDE: Warning = warning(
+        "BOARD OUTSIDE CALIBRATED TEMPERATURES",
+        "BOARD TEMP OUT",
+        Weight::Caution,
+    );
+    const UNKNOWN: Warning = warning("BOARD TEMPERATURE UNKNOWN", "TEMP UNKNOWN", Weight::Caution);
+    let board = app.board.as_ref()?;
+    if board.fault(app.now, WARNING_HOLD_S).is_some() {
+        Some(&FAULT)
+    } else if board.is_outside() {
+        Some(&OUTSIDE)
+    } else if board.kelvin().is_none() && app.last_sample_t.is_some() {
+        Some(&UNKNOWN)
+    } else {
+        None
+    }
 }
 
 /// The text of each warning as shown in `width` cells: long forms while they all fit,
@@ -420,6 +454,7 @@ fn beside(app: &App) -> Beside {
         Plusminus::Waiting => return Beside::default(),
         Plusminus::Bound => return marker("· a bound, no ±"),
         Plusminus::OverFullScale => return marker("no ±: counts over ADC full scale"),
+        Plusminus::TempOutside => return marker("no ±: board outside its calibrated temperatures"),
         Plusminus::Budget(budget) => budget,
     };
     let u_db = budget.expanded_db();
@@ -583,6 +618,50 @@ fn beside_digits(app: &App, beside: &Beside, area: Rect, buf: &mut Buffer) {
             .map(|l| Line::styled(l, paint(app, Color::Gray, None))),
     );
     Paragraph::new(lines).render(area, buf);
+}
+
+/// The board's temperature and whether readings are compensated at it: None in a run
+/// without a board.
+fn board_line(app: &App) -> Option<Line<'static>> {
+    let board = app.board.as_ref()?;
+    let (lo, hi) = board.range_c();
+    let caution = paint(app, Color::Yellow, None).add_modifier(Modifier::BOLD);
+    let Some(kelvin) = board.kelvin() else {
+        let text = match app.last_sample_t {
+            None => "  board temperature: waiting for samples".to_string(),
+            Some(_) => format!(
+                "  {WARNING_MARK} board temperature unknown: read at the calibration's {:.2} °C",
+                board.reference_c()
+            ),
+        };
+        return Some(Line::styled(text, caution));
+    };
+    let shown = format!(
+        "  board {:.2} °C   ",
+        kelvin - dbtrail::units::CELSIUS_ZERO_K
+    );
+    let (note, style) = match board.fault(app.now, WARNING_HOLD_S) {
+        Some(fault) => (
+            format!(
+                "{WARNING_MARK} {}: {}",
+                fault.short_name(),
+                fault_check(fault)
+            ),
+            caution,
+        ),
+        None if board.is_outside() => (
+            format!("{WARNING_MARK} outside the calibrated {lo:.2} to {hi:.2} °C: no ±"),
+            caution,
+        ),
+        None => (
+            format!("compensated; calibrated {lo:.2} to {hi:.2} °C"),
+            paint(app, Color::Gray, None),
+        ),
+    };
+    Some(Line::from(vec![
+        Span::raw(shown),
+        Span::styled(note, style),
+    ]))
 }
 
 fn other_forms(app: &App) -> Line<'static> {
@@ -847,6 +926,17 @@ fn bottom_line(app: &App, area: Rect, buf: &mut Buffer) -> Option<(u16, u16)> {
             area,
             buf,
         )),
+        Mode::Zeroing(take) => {
+            let text = format!(
+                " ZERO: keep the RF OFF · {:.1} of {ZERO_TAKE_S:.0} s, {} samples · Esc cancels",
+                take.collected_s().min(ZERO_TAKE_S),
+                take.samples()
+            );
+            Paragraph::new(text)
+                .style(paint(app, Color::Yellow, None).add_modifier(Modifier::BOLD))
+                .render(area, buf);
+            None
+        }
         Mode::ConfirmQuit => {
             Paragraph::new(confirm_quit_text(app, usize::from(area.width)))
                 .style(Style::new().add_modifier(Modifier::BOLD))
@@ -973,9 +1063,9 @@ pub const HELP_KEYS: &[&str] = &[
     "u        cycle units: dBm, W, Vrms, Vpk, Vpp, dB relative",
     "t        cycle the trend window: 10 s, 1 min, 10 min, 1 h",
     "r        reset min/max hold and the peak",
-    "s / c    set the reference to the reading / clear it",
-    "space    freeze the reading (press again to go on)",
+    "s / c    set the reference to the reading / clear it   space  freeze",
     "l        start or stop logging to a CSV file (as `record` writes)",
+    "z        zero the ADC with the RF OFF (2 s; RF present is refused)",
     "q        quit (asks first while a log is open)     Esc  cancel a prompt",
 ];
 
