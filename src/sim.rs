@@ -22,6 +22,12 @@ pub mod matching;
 
 use matching::{ArmDrive, MatchBench};
 
+/// How often the simulated board reads its temperature sensor, seconds: a thermistor
+/// moves far slower than the detector, and a board that reads it once a millisecond sends
+/// that reading with every frame until the next (at 1000 frames/s or fewer, every frame
+/// has its own).
+pub const SENSOR_READ_S: f64 = 1e-3;
+
 /// The board's temperature for a profile that says nothing of its own, K.
 const DEFAULT_BOARD_K: f64 = 300.0;
 
@@ -205,10 +211,10 @@ pub struct Simulator {
     noise: Normal<f64>,
     index: u64,
     knots: (f64, f64, f64, f64),
-    /// The start of the model step the sensor's ideal count is of, and that count.
-    sensor_ideal: Option<(f64, f64)>,
     /// The detector's counts of a fill, before they are laid out in frames.
     scratch: Vec<u32>,
+    /// The board sensor's latest reading, sent again until the next.
+    sensor_last: Option<u32>,
 }
 
 /// How often the exact forward model is evaluated, seconds of simulated time; between
@@ -254,8 +260,8 @@ impl Simulator {
             noise: Normal::new(0.0, NOISE_COUNTS).expect("a positive constant deviation"),
             index: 0,
             knots: (f64::NAN, f64::NAN, f64::NAN, f64::NAN),
-            sensor_ideal: None,
             scratch: Vec::new(),
+            sensor_last: None,
         }
     }
 
@@ -303,38 +309,57 @@ impl Simulator {
         power.clear();
         let t0 = self.fill_detector(n, &mut power);
         let width = self.channels();
-        let start = out.len();
-        out.resize(start + n * width, 0);
+        out.reserve(n * width);
         let dt = 1.0 / self.rate_hz;
-        for (k, frame) in out[start..].chunks_exact_mut(width).enumerate() {
-            frame.fill(power[k]);
-            frame[sensor.channel] = self.sensor_count(&sensor, t0 + k as f64 * dt);
-        }
-        self.scratch = power;
-        t0
-    }
-
-    /// What the board's sensor reads at `t`, with the ADC's noise (a sensor that sends
-    /// degrees is not held to the ADC's full scale).
-    fn sensor_count(&mut self, sensor: &TemperatureChannel, t: f64) -> u32 {
-        // The board moves slowly: its sensor's ideal count is worked out once a model
-        // step (a board that warms 6 K in 15 min moves 0.1 mK in one).
-        let ideal = match self.sensor_ideal {
-            Some((start, ideal)) if t >= start && t < start + MODEL_STEP_S => ideal,
-            _ => {
-                let start = (t / MODEL_STEP_S).floor() * MODEL_STEP_S;
-                let kelvin = self.board_kelvin(start).unwrap_or(DEFAULT_BOARD_K);
-                let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
-                self.sensor_ideal = Some((start, ideal));
-                ideal
-            }
-        };
-        let noisy = ideal + self.noise.sample(&mut self.rng);
         let top = match sensor.sensor {
             Sensor::Degrees { .. } => f64::from(u32::MAX),
             _ => self.adc.full_scale(),
         };
-        (noisy.clamp(0.0, top) + 0.5) as u32
+        // The index of the first frame, for the sensor's own rhythm.
+        let first = self.index - n as u64;
+        let every = self.frames_per_sensor_read();
+        let mut temperature = self.sensor_last;
+        let mut k = 0;
+        while k < n {
+            // The board moves slowly: its sensor's ideal count is worked out once a model
+            // step (a board that warms 6 K in 15 min moves 0.1 mK in one).
+            let t = t0 + k as f64 * dt;
+            let step = (t / MODEL_STEP_S).floor();
+            let kelvin = self
+                .board_kelvin(step * MODEL_STEP_S)
+                .unwrap_or(DEFAULT_BOARD_K);
+            let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
+            let step_end = ((step + 1.0) * MODEL_STEP_S - t0) / dt;
+            let until = (step_end.ceil().max(k as f64 + 1.0) as usize).min(n);
+            for (j, &count) in power[k..until].iter().enumerate() {
+                if temperature.is_none() || (first + (k + j) as u64).is_multiple_of(every) {
+                    let noisy = ideal + self.noise.sample(&mut self.rng);
+                    temperature = Some((noisy.clamp(0.0, top) + 0.5) as u32);
+                }
+                let temperature = temperature.unwrap_or_default();
+                match (width, sensor.channel) {
+                    (2, 1) => out.extend_from_slice(&[count, temperature]),
+                    (2, 0) => out.extend_from_slice(&[temperature, count]),
+                    _ => out.extend((0..width).map(|ch| {
+                        if ch == sensor.channel {
+                            temperature
+                        } else {
+                            count
+                        }
+                    })),
+                }
+            }
+            k = until;
+        }
+        self.scratch = power;
+        self.sensor_last = temperature;
+        t0
+    }
+
+    /// Frames a reading of the board's sensor lasts: the board reads it once every
+    /// [`SENSOR_READ_S`] (every frame when frames come slower).
+    fn frames_per_sensor_read(&self) -> u64 {
+        ((self.rate_hz * SENSOR_READ_S).round() as u64).max(1)
     }
 
     /// The detector's next `n` counts.
@@ -407,7 +432,6 @@ impl Simulator {
     pub fn with_board(mut self, board: BoardTemperature) -> Self {
         self.board = board;
         self.knots = (f64::NAN, f64::NAN, f64::NAN, f64::NAN);
-        self.sensor_ideal = None;
         self
     }
 
