@@ -203,6 +203,9 @@ pub enum Plusminus {
     /// The board is outside the calibrated temperatures: the model is carried beyond
     /// what was measured, so no budget holds.
     TempOutside,
+    /// The board's temperature is not known: the reading is as calibrated, and how far
+    /// off that is is not known either.
+    TempUnknown,
     /// The budget at the shown level, with the noise of the averaging window.
     Budget(Budget),
 }
@@ -554,6 +557,13 @@ impl App {
                     .is_some_and(|r| r.flags.contains(Flags::TEMP_OUTSIDE)) =>
             {
                 Plusminus::TempOutside
+            }
+            Shown::Level(_)
+                if self
+                    .last
+                    .is_some_and(|r| r.flags.contains(Flags::TEMP_UNKNOWN)) =>
+            {
+                Plusminus::TempUnknown
             }
             Shown::Level(dbm) => {
                 let kelvin = self.board.as_ref().and_then(Board::kelvin);

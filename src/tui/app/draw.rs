@@ -455,6 +455,7 @@ fn beside(app: &App) -> Beside {
         Plusminus::Bound => return marker("· a bound, no ±"),
         Plusminus::OverFullScale => return marker("no ±: counts over ADC full scale"),
         Plusminus::TempOutside => return marker("no ±: board outside its calibrated temperatures"),
+        Plusminus::TempUnknown => return marker("no ±: board temperature unknown"),
         Plusminus::Budget(budget) => budget,
     };
     let u_db = budget.expanded_db();

@@ -152,6 +152,9 @@ fn a_stream_without_the_sensor_says_the_temperature_is_unknown() {
         "{lines:#?}"
     );
     assert!(has(&lines, "BOARD TEMPERATURE UNKNOWN"), "{lines:#?}");
+    // As in a log (docs/recording.md): no uncertainty is stated for such a reading.
+    assert_eq!(app.plusminus(), Plusminus::TempUnknown);
+    assert!(has(&lines, "no ±: board temperature unknown"), "{lines:#?}");
 }
 
 // Source: docs/screen.md (zero): z says to keep the RF off and collects 2 s of source
