@@ -1121,6 +1121,61 @@ mod tests {
         String::from_utf8(r.out.into_inner().unwrap()).unwrap()
     }
 
+    // Source: worked example on the demo log-amp, a line V = slope·(P − intercept): a
+    // zero that rises by Δ counts, left untaken, reads every level Δ·(volts per count)/
+    // slope dB high; here Δ = 2.5 counts of 3.3 V/4095. The rows after the zero read
+    // through it: the same count then reads that much lower.
+    #[test]
+    fn a_zero_taken_is_written_with_its_change_and_read_from_then_on() {
+        let mut r = recorder(1.0);
+        let slope = {
+            let profile = parse_profile(
+                include_str!("../profiles/demo-logamp.toml"),
+                "demo-logamp.toml",
+            )
+            .unwrap();
+            profile.model.param("slope").unwrap()
+        };
+        let shift_db = 2.5 * (3.3 / 4095.0) / slope;
+        for i in 0..10 {
+            r.handle(&sample(f64::from(i) * 0.1, 2000)).unwrap();
+        }
+        r.rezero(1.0, 2.5).unwrap();
+        for i in 10..20 {
+            r.handle(&sample(f64::from(i) * 0.1, 2000)).unwrap();
+        }
+        r.finish(2.0).unwrap();
+        let out = text(r);
+        let zeros: Vec<&str> = out.lines().filter(|l| l.starts_with("# zero:")).collect();
+        assert_eq!(zeros[0], "# zero: time_s=0.000 counts=0.000 source=profile");
+        let taken = zeros[1];
+        assert!(
+            taken.starts_with("# zero: time_s=1.000 counts=2.500 change_counts=+2.500"),
+            "{taken}"
+        );
+        let field = |key: &str| -> f64 {
+            let start = taken.find(key).unwrap() + key.len();
+            taken[start..].split(' ').next().unwrap().parse().unwrap()
+        };
+        assert!(
+            (field("change_db_at_span_bottom=") - shift_db).abs() < 1e-3,
+            "{taken}"
+        );
+        let rows: Vec<Vec<&str>> = out
+            .lines()
+            .filter(|l| !l.starts_with('#') && !l.starts_with("time_s"))
+            .map(|l| l.split(',').collect())
+            .collect();
+        let mean = |row: &Vec<&str>| -> f64 { row[3].parse().unwrap() };
+        assert!(
+            (mean(&rows[0]) - mean(&rows[1]) - shift_db).abs() < 1e-3,
+            "{rows:?}"
+        );
+        // The zero line sits between the two rows.
+        let at = |needle: &str| out.find(needle).unwrap();
+        assert!(at("1.000000,") > at(taken) && at(taken) > at("0.000000,"));
+    }
+
     /// The rows of the demo diode's soak (its board streamed as channel 2) for 30 s at
     /// 1 kHz, fed in chunks of `chunk_len` frames, every `every` seconds.
     fn board_rows(every: f64, chunk_len: usize) -> Vec<Vec<String>> {

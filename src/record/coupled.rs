@@ -300,6 +300,18 @@ mod tests {
         (recorder, cal)
     }
 
+    // Source: the rule in docs/recording.md ("The zero"): a coupler's arms take their
+    // zeros from their profiles, so a zero is refused and nothing is written.
+    #[test]
+    fn a_zero_is_refused_in_a_coupler_run() {
+        let (mut r, _) = recorder(1.0);
+        let before = r.get_ref().len();
+        let err = r.rezero(1.0, 4.0).unwrap_err();
+        assert_eq!(err.kind(), std::io::ErrorKind::InvalidInput);
+        assert!(err.to_string().contains("one-detector run only"), "{err}");
+        assert_eq!(r.get_ref().len(), before);
+    }
+
     /// The rows as cells by column name.
     fn rows(r: Recorder<Vec<u8>>) -> Vec<std::collections::HashMap<String, String>> {
         let text = String::from_utf8(r.out.into_inner().unwrap()).unwrap();
