@@ -37,6 +37,7 @@ pub mod events;
 pub mod link;
 pub mod matching;
 pub mod maths;
+pub mod metrics;
 pub mod points;
 pub mod printable;
 pub mod procedure;
