@@ -5,7 +5,7 @@
 
 use std::sync::atomic::AtomicU64;
 
-use prometheus_client::encoding::text::encode;
+use prometheus_client::encoding::text::encode as encode_registry;
 use prometheus_client::metrics::counter::Counter;
 use prometheus_client::metrics::family::Family;
 use prometheus_client::metrics::gauge::Gauge;
@@ -106,7 +106,7 @@ pub fn encode_openmetrics(snapshot: &Snapshot) -> String {
         );
     }
     let mut text = String::new();
-    encode(&mut text, &registry).expect("writing to a String cannot fail");
+    encode_registry(&mut text, &registry).expect("writing to a String cannot fail");
     text
 }
 
@@ -224,4 +224,90 @@ fn register_link(registry: &mut Registry, link: &LinkSnapshot, station: &(String
         Unit::Seconds,
         age,
     );
+}
+
+/// The content type of the older Prometheus text format (version 0.0.4).
+pub const PROMETHEUS_TEXT_CONTENT_TYPE: &str = "text/plain; version=0.0.4; charset=utf-8";
+
+/// Which text format a scraper asked for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// OpenMetrics 1.0 text.
+    OpenMetrics,
+    /// The older Prometheus text format.
+    PrometheusText,
+}
+
+impl Format {
+    /// The format an `Accept` header asks for: OpenMetrics when it names
+    /// `application/openmetrics-text` (or there is no header), the older text format when it
+    /// asks only for `text/plain` or anything else.
+    pub fn of_accept(accept: Option<&str>) -> Format {
+        match accept {
+            None => Format::OpenMetrics,
+            Some(accept) if accept.contains("application/openmetrics-text") => Format::OpenMetrics,
+            Some(_) => Format::PrometheusText,
+        }
+    }
+
+    /// The content type of a response in this format.
+    pub fn content_type(self) -> &'static str {
+        match self {
+            Format::OpenMetrics => OPENMETRICS_CONTENT_TYPE,
+            Format::PrometheusText => PROMETHEUS_TEXT_CONTENT_TYPE,
+        }
+    }
+}
+
+/// The snapshot in the format asked for.
+pub fn encode(snapshot: &Snapshot, format: Format) -> String {
+    let text = encode_openmetrics(snapshot);
+    match format {
+        Format::OpenMetrics => text,
+        Format::PrometheusText => to_prometheus_text(&text),
+    }
+}
+
+/// OpenMetrics text as the older Prometheus text format says the same: no `# UNIT` lines
+/// and no `# EOF`; a counter's family named as its `_total` samples are; an info family
+/// a gauge named as its `_info` samples are.
+fn to_prometheus_text(open_metrics: &str) -> String {
+    let mut renamed: Vec<(String, String)> = Vec::new();
+    for line in open_metrics.lines() {
+        if let Some(rest) = line.strip_prefix("# TYPE ") {
+            if let Some((name, kind)) = rest.split_once(' ') {
+                match kind {
+                    "counter" => renamed.push((name.to_string(), format!("{name}_total"))),
+                    "info" => renamed.push((name.to_string(), format!("{name}_info"))),
+                    _ => {}
+                }
+            }
+        }
+    }
+    let rename = |name: &str| {
+        renamed
+            .iter()
+            .find(|(from, _)| from == name)
+            .map_or(name.to_string(), |(_, to)| to.clone())
+    };
+    let mut out = String::with_capacity(open_metrics.len());
+    for line in open_metrics.lines() {
+        if line.starts_with("# UNIT ") || line == "# EOF" {
+            continue;
+        }
+        let described = ["# HELP ", "# TYPE "]
+            .iter()
+            .find_map(|lead| line.strip_prefix(lead).map(|rest| (*lead, rest)));
+        match described.and_then(|(lead, rest)| rest.split_once(' ').map(|(n, r)| (lead, n, r))) {
+            Some((lead, name, rest)) => {
+                let rest = if rest == "info" { "gauge" } else { rest };
+                out.push_str(&format!("{lead}{} {rest}\n", rename(name)));
+            }
+            None => {
+                out.push_str(line);
+                out.push('\n');
+            }
+        }
+    }
+    out
 }
