@@ -239,14 +239,18 @@ pub enum Format {
 }
 
 impl Format {
-    /// The format an `Accept` header asks for: OpenMetrics when it names
-    /// `application/openmetrics-text` (or there is no header), the older text format when it
-    /// asks only for `text/plain` or anything else.
+    /// The format an `Accept` header asks for: the older text format when it names
+    /// `text/plain` and not `application/openmetrics-text`; OpenMetrics otherwise (no
+    /// header, `*/*`, or OpenMetrics named).
     pub fn of_accept(accept: Option<&str>) -> Format {
         match accept {
-            None => Format::OpenMetrics,
-            Some(accept) if accept.contains("application/openmetrics-text") => Format::OpenMetrics,
-            Some(_) => Format::PrometheusText,
+            Some(accept)
+                if accept.contains("text/plain")
+                    && !accept.contains("application/openmetrics-text") =>
+            {
+                Format::PrometheusText
+            }
+            _ => Format::OpenMetrics,
         }
     }
 

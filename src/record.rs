@@ -9,6 +9,7 @@ use std::time::{Duration, SystemTime};
 use crate::calibration::{Calibration, Compensation, Flags};
 use crate::coupler::{CouplerCalibration, CouplerSetup};
 use crate::events::{Chunk, Event};
+use crate::metrics::{ChannelSnapshot, Power};
 use crate::printable::escape_controls;
 use crate::stats::{Bound, Figures, PowerStats};
 use crate::uncertainty::{Noise, TermKind, Uncertainty};
@@ -127,6 +128,10 @@ pub struct Recorder<W: Write> {
     uncompensated: Vec<PowerStats>,
     /// The ADC zero the run started with, counts.
     start_zero: f64,
+    /// The last interval row's figures, each power channel's, for a metrics snapshot.
+    latest: Vec<ChannelSnapshot>,
+    /// The board temperature of the last interval row, °C.
+    latest_board_c: Option<f64>,
 }
 
 /// How a recording begins: a new file, or more rows for an earlier recording.
@@ -244,6 +249,8 @@ impl<W: Write> Recorder<W> {
         };
         Ok(Recorder {
             start_zero: chains[0].cal.adc().zero_counts(),
+            latest: Vec::new(),
+            latest_board_c: None,
             board,
             uncompensated: Vec::new(),
             // Never quoted: the cells are numbers, times and flag names, and `#` lines go
@@ -316,6 +323,17 @@ impl<W: Write> Recorder<W> {
         if self.every > 0.0 {
             self.interval = Some((t.max(0.0) / self.every).floor() as u64);
         }
+    }
+
+    /// The last interval row's figures, each power channel's (a coupler's two arms), for
+    /// a metrics snapshot; empty before the first row and for one row per sample.
+    pub fn latest(&self) -> &[ChannelSnapshot] {
+        &self.latest
+    }
+
+    /// The board temperature the last interval row was read at, °C.
+    pub fn latest_board_c(&self) -> Option<f64> {
+        self.latest_board_c
     }
 
     /// Rows written so far.
@@ -728,10 +746,12 @@ impl<W: Write> Recorder<W> {
         let mut row = vec![seconds(start), calendar_time(self.started, start)];
         let mut arms = Vec::with_capacity(2);
         let kelvin = self.board.as_ref().and_then(Board::row_kelvin);
+        self.latest_board_c = kelvin.map(|k| k - crate::units::CELSIUS_ZERO_K);
+        self.latest.clear();
         let mut uncompensated = std::mem::take(&mut self.uncompensated);
         uncompensated.resize(self.groups(), PowerStats::default());
         for (g, stats) in std::mem::take(&mut self.stats).into_iter().enumerate() {
-            let c = self.source_of(g).1;
+            let (ch, c) = self.source_of(g);
             let chain = &mut self.chains[c];
             let mut row_flags = flags | stats.totals.flags;
             if stats.totals.samples == 0 {
@@ -753,6 +773,15 @@ impl<W: Write> Recorder<W> {
                 chain.interval_u_db(&figures, kelvin)
             };
             row.push(u_cell(u_db));
+            self.latest.push(ChannelSnapshot {
+                channel: ch + 1,
+                power: figures
+                    .mean_dbm
+                    .zip(figures.mean_w)
+                    .filter(|_| figures.bound == Bound::Exact)
+                    .map(|(dbm, watts)| Power { dbm, watts, u_db }),
+                flags: row_flags,
+            });
             if self.board.is_some() {
                 let plain = uncompensated[g].figures(&chain.cal);
                 row.push(number(

@@ -181,7 +181,8 @@ fn the_older_text_format_says_the_same_in_its_own_words() {
 
 // Source: HTTP content negotiation as scrapers use it (a Prometheus server sends an
 // Accept header naming `application/openmetrics-text` first, from memory): OpenMetrics
-// when asked for or when nothing is asked; the older text format otherwise.
+// when asked for, or when nothing in particular is; the older text format when only it
+// is named.
 #[test]
 fn the_accept_header_chooses_the_format() {
     use dbtrail::metrics::Format;
@@ -189,6 +190,7 @@ fn the_accept_header_chooses_the_format() {
                    version=0.0.1;q=0.75,text/plain;version=0.0.4;q=0.5,*/*;q=0.1";
     assert_eq!(Format::of_accept(Some(scraper)), Format::OpenMetrics);
     assert_eq!(Format::of_accept(None), Format::OpenMetrics);
+    assert_eq!(Format::of_accept(Some("*/*")), Format::OpenMetrics);
     assert_eq!(
         Format::of_accept(Some("text/plain;version=0.0.4")),
         Format::PrometheusText

@@ -15,11 +15,13 @@ use dbtrail::record::{
 };
 use dbtrail::resume::LogShape;
 
+use super::metrics_serve::{MetricsArgs, MetricsEndpoint};
 use super::run_plan::{RunPlan, SourcePlan, StartedRun};
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
 use crate::logs::{Durable, IfExists, LogFile, LogKeeper, LogOpenError, LogTampered};
 use crate::source::Running;
+use dbtrail::metrics::{LinkSnapshot as MetricsLink, Snapshot};
 
 #[derive(clap::Args)]
 pub struct Args {
@@ -44,6 +46,8 @@ pub struct Args {
     /// Replace an existing file
     #[arg(long, conflicts_with = "append")]
     force: bool,
+    #[command(flatten)]
+    metrics: MetricsArgs,
 }
 
 /// Events taken from the ring between flushes.
@@ -52,6 +56,7 @@ const BATCH: usize = 1 << 16;
 pub fn run(args: Args) -> Result<(), Failure> {
     let plan = RunPlan::from_args(&args.source, &args.link, &args.reading);
     check_interval(args.every, &plan)?;
+    let endpoint = args.metrics.start().bad_input()?;
     let until = args.duration.map(|d| d.as_secs_f64());
     let run = plan.start(until)?;
     // Opened once the source and the profile are known good, so a bad one leaves no
@@ -88,6 +93,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let mut recorder = recorder
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
+    let metrics = endpoint.map(|endpoint| Published::new(endpoint, &context, &recorder));
     let pumped = pump(
         &mut source,
         &mut recorder,
@@ -95,6 +101,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         until,
         1.0 / plan.rate_hz,
         args.out == "-" && io::stdout().is_terminal(),
+        metrics.as_ref(),
     );
     let link = source.counters.snapshot();
     drop(source);
@@ -119,6 +126,7 @@ fn pump(
     until: Option<f64>,
     sample_period: f64,
     rows_on_terminal: bool,
+    metrics: Option<&Published>,
 ) -> io::Result<()> {
     let mut status = Status::new(rows_on_terminal, until);
     let mut keeper = LogKeeper::new();
@@ -142,6 +150,9 @@ fn pump(
             reached = until;
         }
         keeper.after_batch(recorder, live_clock)?;
+        if let Some(metrics) = metrics {
+            metrics.publish(source, recorder);
+        }
         status.show(source, recorder.rows());
         if let Some(end) = reached {
             break end;
@@ -169,6 +180,52 @@ fn pump(
         }
     };
     LogKeeper::finish(recorder, end_t)
+}
+
+/// The metrics endpoint of a run and what its snapshots always say.
+struct Published {
+    endpoint: MetricsEndpoint,
+    base: Snapshot,
+}
+
+impl Published {
+    fn new<W: std::io::Write>(
+        endpoint: MetricsEndpoint,
+        context: &RunContext,
+        recorder: &Recorder<W>,
+    ) -> Self {
+        let mut base = endpoint
+            .snapshot
+            .read()
+            .map(|s| s.clone())
+            .unwrap_or_default();
+        base.profile = context.profile.clone();
+        base.profile_hash = context.profile_hash.clone();
+        base.frequency_hz = recorder.calibration().freq_hz();
+        Published { endpoint, base }
+    }
+
+    /// The recorder's last row and the link's state, in place of the last snapshot.
+    fn publish<W: std::io::Write>(&self, source: &Running, recorder: &Recorder<W>) {
+        let link = source.counters.snapshot();
+        let age = (source.live && link.last_sample_ns > 0)
+            .then(|| (source.now() - link.last_sample_ns as f64 * 1e-9).max(0.0));
+        self.endpoint.publish(Snapshot {
+            channels: recorder.latest().to_vec(),
+            board_c: recorder.latest_board_c(),
+            link: MetricsLink {
+                samples: link.samples,
+                bad_lines: link.bad_lines,
+                crc_errors: link.crc_errors,
+                dropped_frames: link.dropped_frames,
+                ring_overruns: link.overruns,
+                reconnects: link.reconnects,
+                up: link.connected,
+                last_sample_age_s: age,
+            },
+            ..self.base.clone()
+        });
+    }
 }
 
 /// Hands one event to the recorder, cut at the end of the duration; the end when the

@@ -1,0 +1,168 @@
+//! `--metrics ADDR`: a station's latest readings served at `GET /metrics` for a
+//! time-series engine to scrape, from a thread of its own running a small tokio runtime,
+//! so that a slow or stuck scraper holds up neither the reader nor the recorder: they
+//! only swap a snapshot in, and a scrape encodes the one it finds.
+
+use std::net::{IpAddr, Ipv4Addr, SocketAddr, TcpListener};
+use std::sync::{Arc, RwLock};
+
+use anyhow::{anyhow, Context, Result};
+use axum::extract::State;
+use axum::http::{header, HeaderMap, StatusCode};
+use axum::response::IntoResponse;
+use axum::routing::get;
+use axum::Router;
+use dbtrail::metrics::{encode, Format, Snapshot};
+
+/// Where `--metrics` serves: a bare port is on loopback; another address only when
+/// `anywhere` says so.
+pub fn parse_address(text: &str, anywhere: bool) -> Result<SocketAddr> {
+    let addr = match text.parse::<u16>() {
+        Ok(port) => SocketAddr::new(IpAddr::V4(Ipv4Addr::LOCALHOST), port),
+        Err(_) => text.parse::<SocketAddr>().map_err(|_| {
+            anyhow!(
+                "--metrics `{text}` is not an address: give a port (9464, served on \
+                 127.0.0.1) or an address and port (127.0.0.1:9464)"
+            )
+        })?,
+    };
+    if !addr.ip().is_loopback() && !anywhere {
+        return Err(anyhow!(
+            "--metrics {addr} would serve beyond this machine; add --metrics-anywhere to \
+             mean it (and see docs/lab.md on exposing it safely), or serve on 127.0.0.1"
+        ));
+    }
+    Ok(addr)
+}
+
+/// A running metrics endpoint and the snapshot it serves.
+pub struct MetricsEndpoint {
+    /// The snapshot the consumer keeps up to date.
+    pub snapshot: Arc<RwLock<Snapshot>>,
+    /// Where it listens (the port chosen when 0 was asked for).
+    pub addr: SocketAddr,
+}
+
+impl MetricsEndpoint {
+    /// Binds `addr` at once (so that a port in use is refused before the run starts) and
+    /// serves `snapshot` from a thread of its own.
+    pub fn start(addr: SocketAddr, snapshot: Snapshot) -> Result<Self> {
+        let listener = TcpListener::bind(addr)
+            .with_context(|| format!("cannot serve metrics on {addr}: choose another port"))?;
+        listener
+            .set_nonblocking(true)
+            .context("cannot set up the metrics listener")?;
+        let addr = listener
+            .local_addr()
+            .context("cannot read the metrics address")?;
+        let snapshot = Arc::new(RwLock::new(snapshot));
+        let shared = Arc::clone(&snapshot);
+        std::thread::Builder::new()
+            .name("dbtrail-metrics".into())
+            .spawn(move || serve(listener, shared))
+            .context("cannot start the metrics thread")?;
+        Ok(MetricsEndpoint { snapshot, addr })
+    }
+
+    /// Puts a new snapshot in place of the old one.
+    pub fn publish(&self, snapshot: Snapshot) {
+        if let Ok(mut held) = self.snapshot.write() {
+            *held = snapshot;
+        }
+    }
+}
+
+/// The endpoint's own runtime: one thread, for a handful of scrapers.
+fn serve(listener: TcpListener, snapshot: Arc<RwLock<Snapshot>>) {
+    let runtime = match tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .build()
+    {
+        Ok(runtime) => runtime,
+        Err(e) => {
+            eprintln!("dbtrail: the metrics endpoint could not start: {e}");
+            return;
+        }
+    };
+    runtime.block_on(async move {
+        let Ok(listener) = tokio::net::TcpListener::from_std(listener) else {
+            eprintln!("dbtrail: the metrics endpoint could not take its listener");
+            return;
+        };
+        let app = Router::new()
+            .route("/metrics", get(metrics))
+            .with_state(snapshot);
+        if let Err(e) = axum::serve(listener, app).await {
+            eprintln!("dbtrail: the metrics endpoint stopped: {e}");
+        }
+    });
+}
+
+/// `GET /metrics`: the snapshot in the format the `Accept` header asks for.
+async fn metrics(
+    State(snapshot): State<Arc<RwLock<Snapshot>>>,
+    headers: HeaderMap,
+) -> impl IntoResponse {
+    let accept = headers.get(header::ACCEPT).and_then(|v| v.to_str().ok());
+    let format = Format::of_accept(accept);
+    let body = match snapshot.read() {
+        Ok(held) => encode(&held, format),
+        // A consumer that panicked while publishing: nothing trustworthy to serve.
+        Err(_) => {
+            return (
+                StatusCode::SERVICE_UNAVAILABLE,
+                [(header::CONTENT_TYPE, "text/plain")],
+                String::new(),
+            )
+        }
+    };
+    (
+        StatusCode::OK,
+        [(header::CONTENT_TYPE, format.content_type())],
+        body,
+    )
+}
+
+/// The `--metrics` options of `record`.
+#[derive(clap::Args)]
+pub struct MetricsArgs {
+    /// Serve the latest readings for a time-series engine at http://ADDR/metrics (a bare
+    /// port serves on 127.0.0.1; 0 picks a free one)
+    #[arg(long, value_name = "ADDR")]
+    pub metrics: Option<String>,
+    /// Allow --metrics on an address beyond this machine
+    #[arg(long, requires = "metrics")]
+    pub metrics_anywhere: bool,
+    /// The station's name in the metrics (default: the host name)
+    #[arg(long, requires = "metrics")]
+    pub station: Option<String>,
+}
+
+impl MetricsArgs {
+    /// The endpoint, started, when `--metrics` was given; the address is checked and bound
+    /// before anything else runs.
+    pub fn start(&self) -> Result<Option<MetricsEndpoint>> {
+        let Some(text) = &self.metrics else {
+            return Ok(None);
+        };
+        let addr = parse_address(text, self.metrics_anywhere)?;
+        let snapshot = Snapshot {
+            station: self.station.clone().unwrap_or_else(host_name),
+            version: env!("CARGO_PKG_VERSION").to_string(),
+            ..Snapshot::default()
+        };
+        let endpoint = MetricsEndpoint::start(addr, snapshot)?;
+        eprintln!("dbtrail: metrics at http://{}/metrics", endpoint.addr);
+        Ok(Some(endpoint))
+    }
+}
+
+/// This machine's name, for a station not named otherwise.
+fn host_name() -> String {
+    std::fs::read_to_string("/proc/sys/kernel/hostname")
+        .or_else(|_| std::fs::read_to_string("/etc/hostname"))
+        .map(|name| name.trim().to_string())
+        .ok()
+        .filter(|name| !name.is_empty())
+        .unwrap_or_else(|| "dbtrail".to_string())
+}
