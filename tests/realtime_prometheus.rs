@@ -1,0 +1,191 @@
+//! A real time-series engine end to end: the distribution's `prometheus` started on
+//! loopback, scraping a running `record --metrics` every second; what it stored is
+//! queried through its HTTP API and held against the rows the same run wrote to its CSV.
+//! `.ci/run` installs the package; without it this test fails in CI (CI=true) and says
+//! so loudly elsewhere.
+
+mod common;
+
+use std::io::{BufRead, BufReader, Read, Write};
+use std::net::TcpStream;
+use std::path::Path;
+use std::process::{Command, Stdio};
+use std::time::Duration;
+
+use common::{bin, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop};
+
+/// The engine's program, when installed.
+fn prometheus() -> Option<&'static str> {
+    let found = Command::new("prometheus")
+        .arg("--version")
+        .output()
+        .is_ok_and(|out| out.status.success());
+    if found {
+        return Some("prometheus");
+    }
+    assert!(
+        std::env::var("CI").is_err(),
+        "the `prometheus` package is not installed: .ci/run installs it from the \
+         distribution's packages, so in CI this test fails rather than pass unchecked"
+    );
+    eprintln!("SKIPPED, NOT CHECKED: install the distribution's `prometheus` package to run it");
+    None
+}
+
+/// Percent-encodes a query for a URL.
+fn encoded(query: &str) -> String {
+    query
+        .bytes()
+        .map(|b| match b {
+            b'a'..=b'z' | b'A'..=b'Z' | b'0'..=b'9' | b'_' | b'.' | b'-' => (b as char).to_string(),
+            _ => format!("%{b:02X}"),
+        })
+        .collect()
+}
+
+/// The body of a GET of `path` at `addr`.
+fn get(addr: &str, path: &str) -> Result<String, String> {
+    let mut stream = TcpStream::connect(addr).map_err(|e| e.to_string())?;
+    stream
+        .set_read_timeout(Some(Duration::from_secs(5)))
+        .map_err(|e| e.to_string())?;
+    let request = format!("GET {path} HTTP/1.1\r\nHost: {addr}\r\nConnection: close\r\n\r\n");
+    stream
+        .write_all(request.as_bytes())
+        .map_err(|e| e.to_string())?;
+    let mut response = String::new();
+    stream
+        .read_to_string(&mut response)
+        .map_err(|e| e.to_string())?;
+    let (_, body) = response.split_once("\r\n\r\n").ok_or("no header end")?;
+    // Chunked bodies: the JSON lies between the first and last chunk lines.
+    let json = body
+        .find('{')
+        .zip(body.rfind('}'))
+        .map(|(a, b)| &body[a..=b])
+        .ok_or_else(|| format!("no JSON in {body}"))?;
+    Ok(json.to_string())
+}
+
+/// The result of an instant query to the engine's API.
+fn query(engine: &str, q: &str) -> Result<serde_json::Value, String> {
+    let body = get(engine, &format!("/api/v1/query?query={}", encoded(q)))?;
+    let value: serde_json::Value = serde_json::from_str(&body).map_err(|e| e.to_string())?;
+    if value["status"] != "success" {
+        return Err(format!("{q}: {body}"));
+    }
+    Ok(value["data"]["result"].clone())
+}
+
+/// The address a child names on a line of its standard error that holds `lead`, read
+/// until `word` ends it; the rest of what it says is drained on a thread.
+fn address_said(child: &mut std::process::Child, lead: &str, end: &str) -> String {
+    let mut said = BufReader::new(child.stderr.take().unwrap());
+    let mut line = String::new();
+    loop {
+        line.clear();
+        assert!(
+            said.read_line(&mut line).unwrap() > 0,
+            "it never said {lead}"
+        );
+        if let Some(at) = line.find(lead) {
+            let rest = &line[at + lead.len()..];
+            let addr = rest.split(end).next().unwrap().trim().to_string();
+            std::thread::spawn(move || std::io::copy(&mut said, &mut std::io::sink()));
+            return addr;
+        }
+    }
+}
+
+/// The engine started on loopback with a 1 s scrape of `target`; its address.
+fn start_engine(program: &str, dir: &Path, target: &str) -> (KillOnDrop, String) {
+    let config = dir.join("engine.yml");
+    std::fs::write(
+        &config,
+        format!(
+            "global:\n  scrape_interval: 1s\n  evaluation_interval: 1s\nscrape_configs:\n  \
+             - job_name: dbtrail\n    scrape_interval: 1s\n    static_configs:\n      \
+             - targets: [\"{target}\"]\n"
+        ),
+    )
+    .unwrap();
+    let mut command = Command::new(program);
+    command
+        .arg(format!("--config.file={}", config.display()))
+        .arg(format!(
+            "--storage.tsdb.path={}",
+            dir.join("data").display()
+        ))
+        .arg("--web.listen-address=127.0.0.1:0")
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped());
+    let mut child = spawn(&mut command);
+    let addr = address_said(&mut child, "msg=\"Listening on\" address=", "\n");
+    (KillOnDrop::new(child), addr)
+}
+
+// Source: the engine itself (the distribution's prometheus, its HTTP API's
+// /api/v1/query, as its documentation describes it): the target is up, a few scrapes
+// landed, and every power it stored is one of the rows the run wrote (mean_dbm, to the
+// row's 4 decimals).
+#[test]
+fn a_real_engine_scrapes_a_run_and_stores_its_rows() {
+    let Some(program) = prometheus() else {
+        return;
+    };
+    let dir = scratch("engine");
+    let log = dir.path().join("run.csv");
+    let mut command = bin();
+    command
+        .args([
+            "record",
+            "--demo",
+            "soak",
+            "--every",
+            "1s",
+            "--duration",
+            "60s",
+        ])
+        .args(["--metrics", "0", "--station", "lab-1", "--out"])
+        .arg(&log)
+        .stderr(Stdio::piped());
+    let mut recorder = spawn(&mut command);
+    let target = address_said(&mut recorder, "metrics at http://", "/metrics");
+    let recorder = KillOnDrop::new(recorder);
+    let (_engine, engine) = start_engine(program, dir.path(), &target);
+
+    wait_until(Duration::from_secs(40), || {
+        let up = query(&engine, "up{job=\"dbtrail\"}")?;
+        match up[0]["value"][1].as_str() {
+            Some("1") => Ok(()),
+            _ => Err(format!("not up yet: {up}")),
+        }
+    });
+    let stored = wait_until(Duration::from_secs(40), || {
+        let got = query(&engine, "dbtrail_power_dbm{station=\"lab-1\"}[1m]")?;
+        let values: Vec<f64> = got[0]["values"]
+            .as_array()
+            .map(|v| {
+                v.iter()
+                    .filter_map(|p| p[1].as_str()?.parse().ok())
+                    .collect()
+            })
+            .unwrap_or_default();
+        if values.len() >= 4 {
+            Ok(values)
+        } else {
+            Err(format!("{} scrapes stored so far", values.len()))
+        }
+    });
+    signal(&recorder, "INT");
+    assert!(wait(recorder.release(), Duration::from_secs(10)).success());
+    let (header, rows) = rows(&log);
+    let mean = common::column(&header, "mean_dbm");
+    let logged: Vec<f64> = rows.iter().filter_map(|r| r[mean].parse().ok()).collect();
+    for value in &stored {
+        assert!(
+            logged.iter().any(|m| (m - value).abs() <= 5e-5),
+            "stored {value} dBm is no row of the run: {logged:?}"
+        );
+    }
+}
