@@ -189,3 +189,75 @@ fn a_real_engine_scrapes_a_run_and_stores_its_rows() {
         );
     }
 }
+
+/// The latest value of an instant query's first series, when there is one.
+fn latest(engine: &str, q: &str) -> Result<f64, String> {
+    let got = query(engine, q)?;
+    got[0]["value"][1]
+        .as_str()
+        .and_then(|v| v.parse().ok())
+        .ok_or_else(|| format!("{q}: nothing yet ({got})"))
+}
+
+// Source: the engine itself, as above: a port that is unplugged shows in what it stored:
+// the link goes down (dbtrail_link_up 0) and the power is left out, so its series goes
+// stale; plugged in again, the reconnect counter rises.
+#[test]
+fn a_real_engine_sees_the_source_unplugged_and_back() {
+    use common::{pty_pair, repoint, write_lines, write_profile};
+    let Some(program) = prometheus() else {
+        return;
+    };
+    let dir = scratch("engine-unplug");
+    let profile = write_profile(dir.path());
+    let link = dir.path().join("port");
+    let (mut master, slave) = pty_pair();
+    repoint(&link, &slave);
+    let mut command = bin();
+    command
+        .args(["record", "--port", link.to_str().unwrap()])
+        .args(["--profile", profile.to_str().unwrap(), "--every", "200ms"])
+        .args(["--metrics", "0", "--station", "lab-2", "--out"])
+        .arg(dir.path().join("live.csv"))
+        .stderr(Stdio::piped());
+    let mut recorder = spawn(&mut command);
+    let target = address_said(&mut recorder, "metrics at http://", "/metrics");
+    let recorder = KillOnDrop::new(recorder);
+    let (_engine, engine) = start_engine(program, dir.path(), &target);
+    let feeding = |master: &mut serialport::TTYPort| {
+        write_lines(master, (0..200).map(|i| 1000 + i % 50));
+    };
+    wait_until(Duration::from_secs(40), || {
+        feeding(&mut master);
+        match latest(&engine, "dbtrail_link_up{station=\"lab-2\"}")? {
+            up if up == 1.0 => latest(&engine, "dbtrail_power_dbm{station=\"lab-2\"}").map(|_| ()),
+            up => Err(format!("link_up {up}")),
+        }
+    });
+    drop((master, slave));
+    wait_until(Duration::from_secs(40), || {
+        match latest(&engine, "dbtrail_link_up{station=\"lab-2\"}")? {
+            down if down == 0.0 => Ok(()),
+            up => Err(format!("still up ({up})")),
+        }
+    });
+    // A scrape without the series marks it stale at once: no power is read any more.
+    wait_until(Duration::from_secs(40), || {
+        let power = query(&engine, "dbtrail_power_dbm{station=\"lab-2\"}")?;
+        match power.as_array().map(Vec::len) {
+            Some(0) => Ok(()),
+            _ => Err(format!("power still read: {power}")),
+        }
+    });
+    let (mut master, slave) = pty_pair();
+    repoint(&link, &slave);
+    wait_until(Duration::from_secs(40), || {
+        feeding(&mut master);
+        match latest(&engine, "dbtrail_link_reconnects_total{station=\"lab-2\"}")? {
+            n if n >= 1.0 => Ok(()),
+            n => Err(format!("{n} reconnects")),
+        }
+    });
+    signal(&recorder, "INT");
+    assert!(wait(recorder.release(), Duration::from_secs(15)).success());
+}
