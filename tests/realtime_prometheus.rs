@@ -229,16 +229,19 @@ fn a_real_engine_sees_the_source_unplugged_and_back() {
     };
     wait_until(Duration::from_secs(40), || {
         feeding(&mut master);
-        match latest(&engine, "dbtrail_link_up{station=\"lab-2\"}")? {
-            up if up == 1.0 => latest(&engine, "dbtrail_power_dbm{station=\"lab-2\"}").map(|_| ()),
-            up => Err(format!("link_up {up}")),
+        let up = latest(&engine, "dbtrail_link_up{station=\"lab-2\"}")?;
+        if up != 1.0 {
+            return Err(format!("link_up {up}"));
         }
+        latest(&engine, "dbtrail_power_dbm{station=\"lab-2\"}").map(|_| ())
     });
     drop((master, slave));
     wait_until(Duration::from_secs(40), || {
-        match latest(&engine, "dbtrail_link_up{station=\"lab-2\"}")? {
-            down if down == 0.0 => Ok(()),
-            up => Err(format!("still up ({up})")),
+        let up = latest(&engine, "dbtrail_link_up{station=\"lab-2\"}")?;
+        if up == 0.0 {
+            Ok(())
+        } else {
+            Err(format!("still up ({up})"))
         }
     });
     // A scrape without the series marks it stale at once: no power is read any more.
@@ -253,9 +256,11 @@ fn a_real_engine_sees_the_source_unplugged_and_back() {
     repoint(&link, &slave);
     wait_until(Duration::from_secs(40), || {
         feeding(&mut master);
-        match latest(&engine, "dbtrail_link_reconnects_total{station=\"lab-2\"}")? {
-            n if n >= 1.0 => Ok(()),
-            n => Err(format!("{n} reconnects")),
+        let reconnects = latest(&engine, "dbtrail_link_reconnects_total{station=\"lab-2\"}")?;
+        if reconnects >= 1.0 {
+            Ok(())
+        } else {
+            Err(format!("{reconnects} reconnects"))
         }
     });
     signal(&recorder, "INT");
