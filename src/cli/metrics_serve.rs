@@ -5,6 +5,7 @@
 
 use std::net::{IpAddr, Ipv4Addr, SocketAddr, TcpListener};
 use std::sync::{Arc, RwLock};
+use std::time::Duration;
 
 use anyhow::{anyhow, Context, Result};
 use axum::extract::State;
@@ -13,6 +14,15 @@ use axum::response::IntoResponse;
 use axum::routing::get;
 use axum::Router;
 use dbtrail::metrics::{encode, Format, Snapshot};
+
+/// The longest a scraper may take to send its request's head.
+const HEAD_TIMEOUT: Duration = Duration::from_secs(5);
+
+/// The longest one connection is kept, however it is used.
+const CONNECTION_TIMEOUT: Duration = Duration::from_secs(60);
+
+/// Connections served at once; more wait to be accepted.
+const MAX_CONNECTIONS: usize = 256;
 
 /// Where `--metrics` serves: a bare port is on loopback; another address only when
 /// `anywhere` says so.
@@ -92,10 +102,34 @@ fn serve(listener: TcpListener, snapshot: Arc<RwLock<Snapshot>>) {
         let app = Router::new()
             .route("/metrics", get(metrics))
             .with_state(snapshot);
-        if let Err(e) = axum::serve(listener, app).await {
-            eprintln!("dbtrail: the metrics endpoint stopped: {e}");
-        }
+        accept_loop(listener, app).await;
     });
+}
+
+/// Takes connections for as long as the run lasts: each served on a task of its own,
+/// its request head bounded in time ([`HEAD_TIMEOUT`]; hyper bounds its size), and no
+/// more than [`MAX_CONNECTIONS`] at once, so that a scraper that stalls, or many at
+/// once, cost a bounded amount and hold up nothing else.
+async fn accept_loop(listener: tokio::net::TcpListener, app: Router) {
+    let open = Arc::new(tokio::sync::Semaphore::new(MAX_CONNECTIONS));
+    loop {
+        let Ok(permit) = Arc::clone(&open).acquire_owned().await else {
+            return;
+        };
+        let Ok((stream, _)) = listener.accept().await else {
+            continue;
+        };
+        let service = hyper_util::service::TowerToHyperService::new(app.clone());
+        tokio::spawn(async move {
+            let connection = hyper::server::conn::http1::Builder::new()
+                .timer(hyper_util::rt::TokioTimer::new())
+                .header_read_timeout(HEAD_TIMEOUT)
+                .serve_connection(hyper_util::rt::TokioIo::new(stream), service);
+            // A connection's own failure (a reset, a stalled head) ends only it.
+            let _ = tokio::time::timeout(CONNECTION_TIMEOUT, connection).await;
+            drop(permit);
+        });
+    }
 }
 
 /// `GET /metrics`: the snapshot in the format the `Accept` header asks for.
