@@ -53,7 +53,7 @@ mod board;
 mod coupled;
 
 use board::Board;
-pub use board::{BoardChannel, BOARD_COLUMNS, TEMP_UNKNOWN, UNCOMPENSATED_COLUMN};
+pub use board::{BoardChannel, BOARD_COLUMNS, UNCOMPENSATED_COLUMN};
 use coupled::Coupled;
 pub use coupled::{
     coupler_context_lines, coupler_header, CouplerChannels, COUPLER_MATCH_COLUMNS,
@@ -95,10 +95,20 @@ impl Chain {
 
     /// The calibration for a board at `kelvin` (the plain one without compensation).
     fn cal_at(&mut self, kelvin: Option<f64>) -> &Calibration {
-        match &mut self.compensation {
-            Some(compensation) => compensation.at(kelvin),
-            None => &self.cal,
-        }
+        cal_at(&mut self.compensation, &self.cal, kelvin)
+    }
+}
+
+/// The calibration of a chain for a board at `kelvin`: `compensation`'s, or `plain`
+/// without one. Apart from the chain so that its budget can be read beside it.
+fn cal_at<'c>(
+    compensation: &'c mut Option<Compensation>,
+    plain: &'c Calibration,
+    kelvin: Option<f64>,
+) -> &'c Calibration {
+    match compensation {
+        Some(compensation) => compensation.at(kelvin),
+        None => plain,
     }
 }
 
@@ -597,11 +607,7 @@ impl<W: Write> Recorder<W> {
                 continue;
             };
             let chain = &mut self.chains[c];
-            let cal = match &mut chain.compensation {
-                Some(compensation) => compensation.at(kelvin),
-                None => &chain.cal,
-            };
-            row.extend(sample_cells(cal, chain.budget.as_ref(), code, kelvin));
+            row.extend(chain.sample_cells_at(code, kelvin));
             let plain = one_reading(&chain.cal, code);
             let level = plain.mean_dbm().filter(|_| plain.bound() == Bound::Exact);
             row.push(level.map_or(String::new(), |dbm| format!("{dbm:.4}")));
@@ -617,6 +623,12 @@ impl Chain {
     /// A sample's cells after the time (see [`sample_cells`]).
     fn sample_cells(&self, code: u32) -> SampleCells {
         sample_cells(&self.cal, self.budget.as_ref(), code, None)
+    }
+
+    /// A sample's cells after the time with the board at `kelvin`.
+    fn sample_cells_at(&mut self, code: u32, kelvin: Option<f64>) -> SampleCells {
+        let cal = cal_at(&mut self.compensation, &self.cal, kelvin);
+        sample_cells(cal, self.budget.as_ref(), code, kelvin)
     }
 
     /// The expanded uncertainty of an interval's mean: none for a bound, or without the

@@ -339,11 +339,6 @@ impl TemperatureChannel {
         self.sensor.celsius(adc, f64::from(code))
     }
 
-    /// °C for a fractional count (a mean of codes), or the fault it shows.
-    pub fn celsius_of_counts(&self, adc: &Adc, counts: f64) -> Result<f64, SensorFault> {
-        self.sensor.celsius(adc, counts)
-    }
-
     /// °C from a frame's counts (one per channel); `None` when the frame has no such
     /// channel.
     pub fn celsius_in_frame(&self, adc: &Adc, counts: &[u32]) -> Option<Result<f64, SensorFault>> {
@@ -560,20 +555,6 @@ impl BoardReader {
             sum: 0.0,
             readings: 0,
         })
-    }
-
-    /// The board's temperature now, K: the window's mean with the running tick's
-    /// readings; None before a good reading.
-    pub fn kelvin(&self) -> Option<f64> {
-        let running = self.tick.filter(|t| t.readings > 0);
-        let now = running.map(|t| t.sum / f64::from(t.readings));
-        self.window.mean().or(now).map(|c| c + CELSIUS_ZERO_K)
-    }
-
-    /// Forgets every reading (the source was restarted).
-    pub fn clear(&mut self) {
-        self.window.clear();
-        self.tick = None;
     }
 }
 

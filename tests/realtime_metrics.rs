@@ -3,32 +3,18 @@
 
 mod common;
 
-use std::io::{BufRead, BufReader, Read, Write};
+use std::io::{Read, Write};
 use std::net::TcpStream;
 use std::process::Stdio;
 use std::time::Duration;
 
-use common::{bin, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop};
+use common::{
+    address_said, bin, http_get, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop,
+};
 
-/// A GET of `path` with `accept`: the status line, the headers and the body.
+/// A GET of `path` with `accept`.
 fn get(addr: &str, path: &str, accept: &str) -> Result<(String, String, String), String> {
-    let mut stream = TcpStream::connect(addr).map_err(|e| e.to_string())?;
-    stream
-        .set_read_timeout(Some(Duration::from_secs(5)))
-        .map_err(|e| e.to_string())?;
-    let request = format!(
-        "GET {path} HTTP/1.1\r\nHost: {addr}\r\nAccept: {accept}\r\nConnection: close\r\n\r\n"
-    );
-    stream
-        .write_all(request.as_bytes())
-        .map_err(|e| e.to_string())?;
-    let mut response = String::new();
-    stream
-        .read_to_string(&mut response)
-        .map_err(|e| e.to_string())?;
-    let (head, body) = response.split_once("\r\n\r\n").ok_or("no header end")?;
-    let (status, headers) = head.split_once("\r\n").unwrap_or((head, ""));
-    Ok((status.to_string(), headers.to_lowercase(), body.to_string()))
+    http_get(addr, path, Some(accept))
 }
 
 /// A `record --demo soak --metrics 0` run writing `log`, and the address it serves on.
@@ -48,17 +34,7 @@ fn serving(log: &std::path::Path) -> (KillOnDrop, String) {
         .arg(log)
         .stderr(Stdio::piped());
     let mut child = spawn(&mut command);
-    let mut said = BufReader::new(child.stderr.take().unwrap());
-    let mut first = String::new();
-    said.read_line(&mut first).unwrap();
-    let addr = first
-        .trim()
-        .strip_prefix("dbtrail: metrics at http://")
-        .and_then(|rest| rest.strip_suffix("/metrics"))
-        .unwrap_or_else(|| panic!("{first}"))
-        .to_string();
-    // Keep reading what it says, so that its standard error never fills.
-    std::thread::spawn(move || std::io::copy(&mut said, &mut std::io::sink()));
+    let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
     (KillOnDrop::new(child), addr)
 }
 

@@ -6,13 +6,13 @@
 
 mod common;
 
-use std::io::{BufRead, BufReader, Read, Write};
-use std::net::TcpStream;
 use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::Duration;
 
-use common::{bin, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop};
+use common::{
+    address_said, bin, http_get, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop,
+};
 
 /// The engine's program, when installed.
 fn prometheus() -> Option<&'static str> {
@@ -43,21 +43,9 @@ fn encoded(query: &str) -> String {
         .collect()
 }
 
-/// The body of a GET of `path` at `addr`.
+/// The JSON body of a GET of `path` at `addr`.
 fn get(addr: &str, path: &str) -> Result<String, String> {
-    let mut stream = TcpStream::connect(addr).map_err(|e| e.to_string())?;
-    stream
-        .set_read_timeout(Some(Duration::from_secs(5)))
-        .map_err(|e| e.to_string())?;
-    let request = format!("GET {path} HTTP/1.1\r\nHost: {addr}\r\nConnection: close\r\n\r\n");
-    stream
-        .write_all(request.as_bytes())
-        .map_err(|e| e.to_string())?;
-    let mut response = String::new();
-    stream
-        .read_to_string(&mut response)
-        .map_err(|e| e.to_string())?;
-    let (_, body) = response.split_once("\r\n\r\n").ok_or("no header end")?;
+    let (_, _, body) = http_get(addr, path, None)?;
     // Chunked bodies: the JSON lies between the first and last chunk lines.
     let json = body
         .find('{')
@@ -75,26 +63,6 @@ fn query(engine: &str, q: &str) -> Result<serde_json::Value, String> {
         return Err(format!("{q}: {body}"));
     }
     Ok(value["data"]["result"].clone())
-}
-
-/// The address a child names on a line of its standard error that holds `lead`, read
-/// until `word` ends it; the rest of what it says is drained on a thread.
-fn address_said(child: &mut std::process::Child, lead: &str, end: &str) -> String {
-    let mut said = BufReader::new(child.stderr.take().unwrap());
-    let mut line = String::new();
-    loop {
-        line.clear();
-        assert!(
-            said.read_line(&mut line).unwrap() > 0,
-            "it never said {lead}"
-        );
-        if let Some(at) = line.find(lead) {
-            let rest = &line[at + lead.len()..];
-            let addr = rest.split(end).next().unwrap().trim().to_string();
-            std::thread::spawn(move || std::io::copy(&mut said, &mut std::io::sink()));
-            return addr;
-        }
-    }
 }
 
 /// The engine started on loopback with a 1 s scrape of `target`; its address.

@@ -85,28 +85,6 @@ impl Compensation {
         }
         &self.current.as_ref().expect("made ready above").1
     }
-
-    /// How far the board moves before the calibration is made ready again, K.
-    pub fn step_k(&self) -> f64 {
-        self.step_k
-    }
-
-    /// The calibration at the model's reference temperature, without compensation.
-    pub fn uncompensated(&self) -> &Calibration {
-        &self.reference
-    }
-
-    /// The model across temperature.
-    pub fn model(&self) -> &ThermalModel {
-        &self.model
-    }
-
-    /// How much a reading at the reference-plane level `dbm` moves per kelvin of error in
-    /// the board temperature `kelvin`, dB/K.
-    pub fn db_per_kelvin(&self, dbm: f64, kelvin: f64) -> f64 {
-        let detector_dbm = dbm - self.reference.correction_db() - self.reference.offset_db();
-        self.model.db_per_kelvin(detector_dbm, kelvin)
-    }
 }
 
 /// The board's move, K, that shifts no reading by more than [`RETABLE_STEP_DB`]: the

@@ -48,7 +48,9 @@ pub fn parse_address(text: &str, anywhere: bool) -> Result<SocketAddr> {
 /// A running metrics endpoint and the snapshot it serves.
 pub struct MetricsEndpoint {
     /// The snapshot the consumer keeps up to date.
-    pub snapshot: Arc<RwLock<Snapshot>>,
+    snapshot: Arc<RwLock<Snapshot>>,
+    /// What it started with (the station and the version), for every later snapshot.
+    pub base: Snapshot,
     /// Where it listens (the port chosen when 0 was asked for).
     pub addr: SocketAddr,
 }
@@ -65,13 +67,18 @@ impl MetricsEndpoint {
         let addr = listener
             .local_addr()
             .context("cannot read the metrics address")?;
+        let base = snapshot.clone();
         let snapshot = Arc::new(RwLock::new(snapshot));
         let shared = Arc::clone(&snapshot);
         std::thread::Builder::new()
             .name("dbtrail-metrics".into())
             .spawn(move || serve(listener, shared))
             .context("cannot start the metrics thread")?;
-        Ok(MetricsEndpoint { snapshot, addr })
+        Ok(MetricsEndpoint {
+            snapshot,
+            base,
+            addr,
+        })
     }
 
     /// Puts a new snapshot in place of the old one.

@@ -194,11 +194,7 @@ impl Published {
         context: &RunContext,
         recorder: &Recorder<W>,
     ) -> Self {
-        let mut base = endpoint
-            .snapshot
-            .read()
-            .map(|s| s.clone())
-            .unwrap_or_default();
+        let mut base = endpoint.base.clone();
         base.profile = context.profile.clone();
         base.profile_hash = context.profile_hash.clone();
         base.frequency_hz = recorder.calibration().freq_hz();

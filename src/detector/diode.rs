@@ -119,11 +119,6 @@ impl DiodeDetector {
         }
     }
 
-    /// The saturation law it follows.
-    pub fn law(&self) -> SaturationLaw {
-        self.law
-    }
-
     /// The same detector, carrying the covariance that `points` give its parameters
     /// (n, ln V_L) at their present values, with the weighting the points allow. For a
     /// fit this is the fit's own covariance; for parameters given from elsewhere it is what

@@ -3,7 +3,7 @@
 //! and the sensor faults met on the way.
 
 use crate::adc::Adc;
-use crate::calibration::ThermalSetup;
+use crate::calibration::{Flags, ThermalSetup};
 use crate::thermal::{BoardReader, SensorFault};
 use crate::units::CELSIUS_ZERO_K;
 
@@ -11,8 +11,6 @@ use crate::units::CELSIUS_ZERO_K;
 pub const UNCOMPENSATED_COLUMN: &str = "uncomp_dbm";
 /// The columns a run with a temperature channel adds at the end of each row.
 pub const BOARD_COLUMNS: [&str; 2] = ["temp_c", "temp_flags"];
-/// A `temp_flags` name: some samples were read without a known board temperature.
-pub const TEMP_UNKNOWN: &str = "temp-unknown";
 
 /// Faults in the order their names are written.
 const FAULTS: [SensorFault; 4] = [
@@ -89,7 +87,8 @@ impl Board {
             .map(|(f, _)| f.short_name())
             .collect();
         if self.unknown > 0 {
-            names.push(TEMP_UNKNOWN);
+            // Said with the readings' own flag name.
+            names.extend(Flags::TEMP_UNKNOWN.names());
         }
         let cells = [temp_c, names.join("|")];
         self.applied = (0.0, 0);

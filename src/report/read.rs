@@ -12,6 +12,7 @@ use std::time::SystemTime;
 use super::compensation::{parse_zero, RowCompensation, RunCompensation, Temperatures, Zero};
 use super::reduce::{Folder, Reduction};
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
+use crate::record::{BOARD_COLUMNS, UNCOMPENSATED_COLUMN};
 use crate::stats::Bound;
 
 /// The range of power a cell may hold, dBm: no detector reads outside it (thermal noise in
@@ -654,8 +655,8 @@ fn columns(
         bound: find("bound"),
         averaged: find("averaged"),
         u_db: find("u_db"),
-        uncomp: find("uncomp_dbm"),
-        temp: names.iter().position(|h| h == "temp_c"),
+        uncomp: find(UNCOMPENSATED_COLUMN),
+        temp: names.iter().position(|h| h == BOARD_COLUMNS[0]),
         names,
     })
 }

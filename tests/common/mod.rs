@@ -313,3 +313,52 @@ pub fn floats(v: &serde_json::Value) -> Vec<f64> {
         .map(|x| x.as_f64().unwrap())
         .collect()
 }
+
+/// A GET of `path` at `addr` by hand (HTTP/1.1, the connection closed after), with an
+/// `Accept` header when given: the status line, the headers (lower case) and the body.
+pub fn http_get(
+    addr: &str,
+    path: &str,
+    accept: Option<&str>,
+) -> Result<(String, String, String), String> {
+    use std::io::Read;
+    let mut stream = std::net::TcpStream::connect(addr).map_err(|e| e.to_string())?;
+    stream
+        .set_read_timeout(Some(Duration::from_secs(5)))
+        .map_err(|e| e.to_string())?;
+    let accept = accept.map_or(String::new(), |a| format!("Accept: {a}\r\n"));
+    let request =
+        format!("GET {path} HTTP/1.1\r\nHost: {addr}\r\n{accept}Connection: close\r\n\r\n");
+    stream
+        .write_all(request.as_bytes())
+        .map_err(|e| e.to_string())?;
+    let mut response = String::new();
+    stream
+        .read_to_string(&mut response)
+        .map_err(|e| e.to_string())?;
+    let (head, body) = response.split_once("\r\n\r\n").ok_or("no header end")?;
+    let (status, headers) = head.split_once("\r\n").unwrap_or((head, ""));
+    Ok((status.to_string(), headers.to_lowercase(), body.to_string()))
+}
+
+/// The address a spawned child names on the first line of its standard error that holds
+/// `lead`, up to `end`; the rest of what it says is drained on a thread, so that its
+/// standard error never fills.
+pub fn address_said(child: &mut Child, lead: &str, end: &str) -> String {
+    use std::io::BufRead;
+    let mut said = std::io::BufReader::new(child.stderr.take().expect("a piped stderr"));
+    let mut line = String::new();
+    loop {
+        line.clear();
+        assert!(
+            said.read_line(&mut line).unwrap() > 0,
+            "it never said {lead}"
+        );
+        if let Some(at) = line.find(lead) {
+            let rest = &line[at + lead.len()..];
+            let addr = rest.split(end).next().unwrap().trim().to_string();
+            std::thread::spawn(move || std::io::copy(&mut said, &mut std::io::sink()));
+            return addr;
+        }
+    }
+}
