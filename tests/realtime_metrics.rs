@@ -5,37 +5,18 @@ mod common;
 
 use std::io::{Read, Write};
 use std::net::TcpStream;
-use std::process::Stdio;
 use std::time::Duration;
 
-use common::{
-    address_said, bin, http_get, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop,
-};
+use common::{http_get, rows, scratch, serving_metrics, signal, wait, wait_until, KillOnDrop};
 
 /// A GET of `path` with `accept`.
 fn get(addr: &str, path: &str, accept: &str) -> Result<(String, String, String), String> {
     http_get(addr, path, Some(accept))
 }
 
-/// A `record --demo soak --metrics 0` run writing `log`, and the address it serves on.
+/// A `record --demo soak --metrics 0` run of station bench-7 writing `log`.
 fn serving(log: &std::path::Path) -> (KillOnDrop, String) {
-    let mut command = bin();
-    command
-        .args([
-            "record",
-            "--demo",
-            "soak",
-            "--every",
-            "1s",
-            "--duration",
-            "60s",
-        ])
-        .args(["--metrics", "0", "--station", "bench-7", "--out"])
-        .arg(log)
-        .stderr(Stdio::piped());
-    let mut child = spawn(&mut command);
-    let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
-    (KillOnDrop::new(child), addr)
+    serving_metrics(log, "bench-7")
 }
 
 /// What the endpoint answers to `request` sent raw: the start of its response, or empty

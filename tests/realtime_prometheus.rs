@@ -11,7 +11,8 @@ use std::process::{Command, Stdio};
 use std::time::Duration;
 
 use common::{
-    address_said, bin, http_get, rows, scratch, signal, spawn, wait, wait_until, KillOnDrop,
+    address_said, bin, http_get, rows, scratch, serving_metrics, signal, spawn, wait, wait_until,
+    KillOnDrop,
 };
 
 /// The engine's program, when installed.
@@ -103,23 +104,7 @@ fn a_real_engine_scrapes_a_run_and_stores_its_rows() {
     };
     let dir = scratch("engine");
     let log = dir.path().join("run.csv");
-    let mut command = bin();
-    command
-        .args([
-            "record",
-            "--demo",
-            "soak",
-            "--every",
-            "1s",
-            "--duration",
-            "60s",
-        ])
-        .args(["--metrics", "0", "--station", "lab-1", "--out"])
-        .arg(&log)
-        .stderr(Stdio::piped());
-    let mut recorder = spawn(&mut command);
-    let target = address_said(&mut recorder, "metrics at http://", "/metrics");
-    let recorder = KillOnDrop::new(recorder);
+    let (recorder, target) = serving_metrics(&log, "lab-1");
     let (_engine, engine) = start_engine(program, dir.path(), &target);
 
     wait_until(Duration::from_secs(40), || {

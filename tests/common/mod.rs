@@ -362,3 +362,25 @@ pub fn address_said(child: &mut Child, lead: &str, end: &str) -> String {
         }
     }
 }
+
+/// A `record --demo soak --every 1s --duration 60s --metrics 0` run of `station`
+/// writing `log`, and the address its metrics are served on.
+pub fn serving_metrics(log: &Path, station: &str) -> (KillOnDrop, String) {
+    let mut command = bin();
+    command
+        .args([
+            "record",
+            "--demo",
+            "soak",
+            "--every",
+            "1s",
+            "--duration",
+            "60s",
+        ])
+        .args(["--metrics", "0", "--station", station, "--out"])
+        .arg(log)
+        .stderr(Stdio::piped());
+    let mut child = spawn(&mut command);
+    let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
+    (KillOnDrop::new(child), addr)
+}
