@@ -135,7 +135,7 @@ pub enum MatchState {
 
 impl MatchState {
     /// The state's name in a log's flags cell.
-    pub fn flag(self) -> &'static str {
+    pub const fn flag(self) -> &'static str {
         match self {
             MatchState::Value => "",
             MatchState::ReturnLossAtLeast => "rl-at-least",
@@ -147,18 +147,19 @@ impl MatchState {
         }
     }
 
+    /// Every state but a value: those a log's flags cell names.
+    pub const FLAGGED: [MatchState; 6] = [
+        MatchState::ReturnLossAtLeast,
+        MatchState::ReturnLossAtMost,
+        MatchState::Unresolved,
+        MatchState::Reversed,
+        MatchState::NoForward,
+        MatchState::Unknown,
+    ];
+
     /// The state a log's flag names (none for a plain value's empty cell).
     pub fn from_flag(flag: &str) -> Option<Self> {
-        [
-            MatchState::ReturnLossAtLeast,
-            MatchState::ReturnLossAtMost,
-            MatchState::Unresolved,
-            MatchState::Reversed,
-            MatchState::NoForward,
-            MatchState::Unknown,
-        ]
-        .into_iter()
-        .find(|s| s.flag() == flag)
+        Self::FLAGGED.into_iter().find(|s| s.flag() == flag)
     }
 
     /// What it means, in plain words.

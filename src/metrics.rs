@@ -40,6 +40,36 @@ pub struct Snapshot {
     pub link: LinkSnapshot,
     /// The board's temperature, °C, when the profile reads one.
     pub board_c: Option<f64>,
+    /// A coupler run's match of its latest interval.
+    pub matching: Option<MatchSnapshot>,
+}
+
+/// A coupler's match over its latest interval, as the log's match columns give it.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct MatchSnapshot {
+    /// SWR, return loss and mismatch loss when both arms' means are values and so is their
+    /// ratio; None for a bound, a reversed pair or no forward power.
+    pub value: Option<MatchValue>,
+    /// Net power to the load, watts, when both arms' means are values.
+    pub net_w: Option<f64>,
+    /// The return loss's expanded uncertainty (k = 2), dB.
+    pub u_return_loss_db: Option<f64>,
+    /// The lowest and highest return loss the coupler's directivity leaves, dB (the
+    /// highest infinite when the leakage could hide the whole reflection).
+    pub return_loss_range_db: Option<(f64, f64)>,
+    /// Every mark the log's `match` cell may carry, and whether this interval's does.
+    pub marks: Vec<(&'static str, bool)>,
+}
+
+/// The match figures of an interval whose ratio is a value.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MatchValue {
+    /// Standing-wave ratio.
+    pub swr: f64,
+    /// Return loss, dB.
+    pub return_loss_db: f64,
+    /// Mismatch loss, dB.
+    pub mismatch_loss_db: f64,
 }
 
 /// One power channel's latest interval.
@@ -47,6 +77,9 @@ pub struct Snapshot {
 pub struct ChannelSnapshot {
     /// The stream channel, from 1.
     pub channel: usize,
+    /// A coupler's arm (`forward`, `reflected`), as the `arm` label; None for a detector
+    /// of its own.
+    pub arm: Option<&'static str>,
     /// Its mean as a value; None for a bound or no reading.
     pub power: Option<Power>,
     /// The interval's flags.
@@ -95,9 +128,12 @@ pub fn encode_openmetrics(snapshot: &Snapshot) -> String {
     register_info(&mut registry, snapshot, &station);
     register_power(&mut registry, snapshot, &station);
     register_link(&mut registry, &snapshot.link, &station);
+    if let Some(matching) = &snapshot.matching {
+        register_match(&mut registry, matching, snapshot, &station);
+    }
     if let Some(celsius) = snapshot.board_c {
         let board = Family::<Labels, Value>::default();
-        board.get_or_create(&vec![station.clone()]).set(celsius);
+        set_finite(&board, &vec![station.clone()], celsius);
         registry.register_with_unit(
             "board_temperature",
             "The detector board's temperature that readings are compensated at",
@@ -134,16 +170,19 @@ fn register_power(registry: &mut Registry, snapshot: &Snapshot, station: &(Strin
         Family::<Labels, Value>::default(),
     );
     for channel in &snapshot.channels {
-        let labels: Labels = vec![
+        let mut labels: Labels = vec![
             station.clone(),
             ("channel".into(), channel.channel.to_string()),
             ("profile".into(), snapshot.profile.clone()),
         ];
+        if let Some(arm) = channel.arm {
+            labels.push(("arm".into(), arm.to_string()));
+        }
         if let Some(power) = channel.power.filter(|_| snapshot.link.up) {
-            dbm.get_or_create(&labels).set(power.dbm);
-            watts.get_or_create(&labels).set(power.watts);
+            set_finite(&dbm, &labels, power.dbm);
+            set_finite(&watts, &labels, power.watts);
             if let Some(u) = power.u_db {
-                u_db.get_or_create(&labels).set(u);
+                set_finite(&u_db, &labels, u);
             }
         }
         for flag in Flags::all().iter() {
@@ -177,6 +216,103 @@ fn register_power(registry: &mut Registry, snapshot: &Snapshot, station: &(Strin
         "reading_flag",
         "1 when the latest interval carries the flag",
         flags,
+    );
+}
+
+/// Sets the gauge of `labels` in `family` to `value` when it is finite; the text format
+/// has no word for the infinities the crate would write, and the engine marks a missing
+/// sample stale, which is what a value that is not one should look like.
+fn set_finite(family: &Family<Labels, Value>, labels: &Labels, value: f64) {
+    if value.is_finite() {
+        family.get_or_create(labels).set(value);
+    }
+}
+
+/// A coupler's match: its figures when they are values (none on a dead link), the
+/// directivity's range, and every mark of the `match` cell as 0 or 1.
+fn register_match(
+    registry: &mut Registry,
+    matching: &MatchSnapshot,
+    snapshot: &Snapshot,
+    station: &(String, String),
+) {
+    let labels: Labels = vec![
+        station.clone(),
+        ("profile".into(), snapshot.profile.clone()),
+    ];
+    let up = snapshot.link.up;
+    let gauge = |value: Option<f64>| {
+        let family = Family::<Labels, Value>::default();
+        if let Some(value) = value.filter(|_| up) {
+            set_finite(&family, &labels, value);
+        }
+        family
+    };
+    let value = matching.value;
+    let range = matching.return_loss_range_db;
+    let unit = |name: &str| Unit::Other(name.to_string());
+    let with_units = [
+        (
+            "swr",
+            "The standing-wave ratio of the latest interval's means",
+            None,
+            value.map(|v| v.swr),
+        ),
+        (
+            "return_loss",
+            "The return loss of the latest interval's means",
+            Some("db"),
+            value.map(|v| v.return_loss_db),
+        ),
+        (
+            "return_loss_uncertainty",
+            "The expanded uncertainty (k = 2) of the return loss",
+            Some("db"),
+            matching.u_return_loss_db.filter(|_| value.is_some()),
+        ),
+        (
+            "return_loss_lowest",
+            "The lowest return loss the coupler's directivity leaves",
+            Some("db"),
+            range.map(|r| r.0),
+        ),
+        (
+            "return_loss_highest",
+            "The highest return loss the coupler's directivity leaves (absent when unbounded)",
+            Some("db"),
+            range.map(|r| r.1),
+        ),
+        (
+            "mismatch_loss",
+            "The mismatch loss of the latest interval's means",
+            Some("db"),
+            value.map(|v| v.mismatch_loss_db),
+        ),
+        (
+            "net_power",
+            "Forward less reflected power: the power the load takes",
+            Some("watts"),
+            matching.net_w,
+        ),
+    ];
+    for (name, help, unit_name, value) in with_units {
+        match unit_name {
+            Some(unit_name) => {
+                registry.register_with_unit(name, help, unit(unit_name), gauge(value))
+            }
+            None => registry.register(name, help, gauge(value)),
+        }
+    }
+    let marks = Family::<Labels, Value>::default();
+    for (mark, set) in &matching.marks {
+        let mut labels = labels.clone();
+        labels.push(("flag".into(), mark.to_string()));
+        marks.get_or_create(&labels).set(f64::from(u8::from(*set)));
+    }
+    registry.register(
+        "match_flag",
+        "1 when the latest interval's match carries the flag",
+        marks,
     );
 }
 

@@ -9,7 +9,7 @@ use std::time::{Duration, SystemTime};
 use crate::calibration::{Calibration, Compensation, Flags};
 use crate::coupler::{CouplerCalibration, CouplerSetup};
 use crate::events::{Chunk, Event};
-use crate::metrics::{ChannelSnapshot, Power};
+use crate::metrics::{ChannelSnapshot, MatchSnapshot, Power};
 use crate::printable::escape_controls;
 use crate::stats::{Bound, Figures, PowerStats};
 use crate::uncertainty::{Noise, TermKind, Uncertainty};
@@ -54,11 +54,11 @@ mod coupled;
 
 use board::Board;
 pub use board::{BoardChannel, BOARD_COLUMNS, UNCOMPENSATED_COLUMN};
-use coupled::Coupled;
 pub use coupled::{
     coupler_context_lines, coupler_header, CouplerChannels, COUPLER_MATCH_COLUMNS,
     OVER_REFLECTED_LIMIT, OVER_SWR_LIMIT,
 };
+use coupled::{Coupled, ARMS};
 
 /// One detector's chain as rows read it: its calibration, its budget, and the per-sample
 /// cells of each code it has met.
@@ -142,6 +142,8 @@ pub struct Recorder<W: Write> {
     latest: Vec<ChannelSnapshot>,
     /// The board temperature of the last interval row, °C.
     latest_board_c: Option<f64>,
+    /// A coupler run's match in the last interval row.
+    latest_match: Option<MatchSnapshot>,
 }
 
 /// How a recording begins: a new file, or more rows for an earlier recording.
@@ -261,6 +263,7 @@ impl<W: Write> Recorder<W> {
             start_zero: chains[0].cal.adc().zero_counts(),
             latest: Vec::new(),
             latest_board_c: None,
+            latest_match: None,
             board,
             uncompensated: Vec::new(),
             // Never quoted: the cells are numbers, times and flag names, and `#` lines go
@@ -344,6 +347,11 @@ impl<W: Write> Recorder<W> {
     /// The board temperature the last interval row was read at, °C.
     pub fn latest_board_c(&self) -> Option<f64> {
         self.latest_board_c
+    }
+
+    /// A coupler run's match in the last interval row.
+    pub fn latest_match(&self) -> Option<&MatchSnapshot> {
+        self.latest_match.as_ref()
     }
 
     /// Rows written so far.
@@ -787,6 +795,7 @@ impl<W: Write> Recorder<W> {
             row.push(u_cell(u_db));
             self.latest.push(ChannelSnapshot {
                 channel: ch + 1,
+                arm: self.coupled.as_ref().map(|_| ARMS[g]),
                 power: figures
                     .mean_dbm
                     .zip(figures.mean_w)
@@ -803,7 +812,9 @@ impl<W: Write> Recorder<W> {
             arms.push(figures);
         }
         if let (Some(coupled), [forward, reflected]) = (&self.coupled, arms.as_slice()) {
-            row.extend(coupled.interval_cells(&self.chains, forward, reflected));
+            let (cells, matching) = coupled.interval(&self.chains, forward, reflected);
+            row.extend(cells);
+            self.latest_match = Some(matching);
         }
         if let Some(board) = &mut self.board {
             row.extend(board.take_cells());

@@ -5,7 +5,9 @@
 //! that unit; label values are quoted with `\`, `"` and line feeds escaped.
 
 use dbtrail::calibration::Flags;
-use dbtrail::metrics::{encode_openmetrics, ChannelSnapshot, LinkSnapshot, Power, Snapshot};
+use dbtrail::metrics::{
+    encode_openmetrics, ChannelSnapshot, LinkSnapshot, MatchSnapshot, MatchValue, Power, Snapshot,
+};
 
 fn snapshot() -> Snapshot {
     Snapshot {
@@ -17,6 +19,7 @@ fn snapshot() -> Snapshot {
         channels: vec![
             ChannelSnapshot {
                 channel: 1,
+                arm: None,
                 power: Some(Power {
                     dbm: 29.7139,
                     watts: 0.9361,
@@ -26,6 +29,7 @@ fn snapshot() -> Snapshot {
             },
             ChannelSnapshot {
                 channel: 3,
+                arm: None,
                 power: None,
                 flags: Flags::BELOW_SPAN,
             },
@@ -41,6 +45,43 @@ fn snapshot() -> Snapshot {
             last_sample_age_s: Some(0.02),
         },
         board_c: Some(32.85),
+        matching: None,
+    }
+}
+
+/// A coupler station: forward and reflected arms and their match, SWR 1.5 over the limit,
+/// the directivity leaving the return loss between 12.1 dB and unbounded.
+fn coupler_snapshot() -> Snapshot {
+    let arm = |channel, arm, dbm: f64| ChannelSnapshot {
+        channel,
+        arm: Some(arm),
+        power: Some(Power {
+            dbm,
+            watts: 10f64.powf(dbm / 10.0) * 1e-3,
+            u_db: Some(0.3),
+        }),
+        flags: Flags::empty(),
+    };
+    Snapshot {
+        station: "match-bench".into(),
+        profile: "demo-coupler".into(),
+        channels: vec![arm(1, "forward", 40.0), arm(2, "reflected", 26.0206)],
+        link: LinkSnapshot {
+            up: true,
+            ..LinkSnapshot::default()
+        },
+        matching: Some(MatchSnapshot {
+            value: Some(MatchValue {
+                swr: 1.5,
+                return_loss_db: 13.9794,
+                mismatch_loss_db: 0.1773,
+            }),
+            net_w: Some(9.6),
+            u_return_loss_db: Some(0.42),
+            return_loss_range_db: Some((12.1, f64::INFINITY)),
+            marks: vec![("rl-at-least", false), ("over-swr-limit", true)],
+        }),
+        ..Snapshot::default()
     }
 }
 
@@ -132,6 +173,94 @@ fn a_bound_leaves_the_power_out_and_its_flag_says_why() {
     let text = encode_openmetrics(&dead);
     assert!(samples(&text, "dbtrail_power_dbm").is_empty(), "{text}");
     assert_eq!(samples(&text, "dbtrail_link_up")[0].1, 0.0);
+}
+
+// Source: the issue's rules (forward, reflected, SWR and return loss when present; the
+// labels station, channel, profile) and OpenMetrics 1.0, which writes infinities as `+Inf`
+// (from memory; the crate would write `inf`, so an unbounded end is left out). The values
+// are the snapshot's: SWR 1.5 is a return loss of 20·log10(2.5/0.5) = 13.98 dB
+// (common practice).
+#[test]
+fn a_coupler_serves_its_arms_and_its_match() {
+    let text = encode_openmetrics(&coupler_snapshot());
+    let power = samples(&text, "dbtrail_power_dbm");
+    assert_eq!(power.len(), 2, "{text}");
+    let of_arm = |arm: &str| {
+        let arm = format!("arm=\"{arm}\"");
+        power
+            .iter()
+            .find(|(l, _)| l.contains(&arm))
+            .copied()
+            .unwrap()
+    };
+    assert!(of_arm("forward").0.contains("channel=\"1\""));
+    assert_eq!(of_arm("forward").1, 40.0);
+    assert!(of_arm("reflected").0.contains("channel=\"2\""));
+    assert_eq!(of_arm("reflected").1, 26.0206);
+    assert_eq!(samples(&text, "dbtrail_swr")[0].1, 1.5);
+    assert_eq!(samples(&text, "dbtrail_return_loss_db")[0].1, 13.9794);
+    assert!(samples(&text, "dbtrail_return_loss_db")[0]
+        .0
+        .contains("profile=\"demo-coupler\""));
+    assert_eq!(
+        samples(&text, "dbtrail_return_loss_uncertainty_db")[0].1,
+        0.42
+    );
+    assert_eq!(samples(&text, "dbtrail_return_loss_lowest_db")[0].1, 12.1);
+    assert!(
+        samples(&text, "dbtrail_return_loss_highest_db").is_empty(),
+        "{text}"
+    );
+    let infinite = |l: &&str| !l.starts_with('#') && l.to_lowercase().ends_with("inf");
+    assert!(!text.lines().any(|l| infinite(&l)), "{text}");
+    assert_eq!(samples(&text, "dbtrail_mismatch_loss_db")[0].1, 0.1773);
+    assert_eq!(samples(&text, "dbtrail_net_power_watts")[0].1, 9.6);
+    let marks = samples(&text, "dbtrail_match_flag");
+    assert_eq!(marks.len(), 2);
+    let over: Vec<f64> = marks
+        .iter()
+        .filter(|(l, _)| l.contains("flag=\"over-swr-limit\""))
+        .map(|(_, v)| *v)
+        .collect();
+    assert_eq!(over, [1.0]);
+    assert!(
+        text.contains("# UNIT dbtrail_return_loss_db db\n"),
+        "{text}"
+    );
+    assert!(!text.contains("# UNIT dbtrail_swr"), "{text}");
+}
+
+// Source: the issue's rule, as for the power: a match that is a bound, or a dead link,
+// leaves its figures out while its flags say why.
+#[test]
+fn a_bound_match_or_a_dead_link_leaves_the_match_out() {
+    let mut bound = coupler_snapshot();
+    let matching = bound.matching.as_mut().unwrap();
+    matching.value = None;
+    matching.marks = vec![("rl-at-least", true), ("over-swr-limit", false)];
+    let text = encode_openmetrics(&bound);
+    assert!(samples(&text, "dbtrail_swr").is_empty(), "{text}");
+    assert!(
+        samples(&text, "dbtrail_return_loss_db").is_empty(),
+        "{text}"
+    );
+    assert!(samples(&text, "dbtrail_return_loss_uncertainty_db").is_empty());
+    let at_least: Vec<f64> = samples(&text, "dbtrail_match_flag")
+        .into_iter()
+        .filter(|(l, _)| l.contains("rl-at-least"))
+        .map(|(_, v)| v)
+        .collect();
+    assert_eq!(at_least, [1.0]);
+    let mut dead = coupler_snapshot();
+    dead.link.up = false;
+    let text = encode_openmetrics(&dead);
+    for name in [
+        "dbtrail_swr",
+        "dbtrail_return_loss_db",
+        "dbtrail_net_power_watts",
+    ] {
+        assert!(samples(&text, name).is_empty(), "{name}: {text}");
+    }
 }
 
 // Source: OpenMetrics 1.0: label values are in double quotes with `\\`, `\"` and `\n`
@@ -268,4 +397,17 @@ fn an_independent_openmetrics_parser_reads_the_text_back() {
         family("dbtrail_last_sample_age_seconds")["samples"][0]["value"],
         0.02
     );
+    let Some(families) = parsed_by_python(&encode_openmetrics(&coupler_snapshot())) else {
+        return;
+    };
+    assert_eq!(families["dbtrail_swr"]["samples"][0]["value"], 1.5);
+    assert_eq!(families["dbtrail_return_loss_db"]["unit"], "db");
+    let marks = families["dbtrail_match_flag"]["samples"]
+        .as_array()
+        .unwrap();
+    let over = marks
+        .iter()
+        .find(|m| m["labels"]["flag"] == "over-swr-limit")
+        .unwrap();
+    assert_eq!(over["value"], 1.0);
 }

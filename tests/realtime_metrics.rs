@@ -7,7 +7,10 @@ use std::io::{Read, Write};
 use std::net::TcpStream;
 use std::time::Duration;
 
-use common::{http_get, rows, scratch, serving_metrics, signal, wait, wait_until, KillOnDrop};
+use common::{
+    address_said, bin, column, http_get, rows, rows_so_far, scratch, screen_terminal,
+    serving_metrics, signal, spawn, wait, wait_until, KillOnDrop,
+};
 
 /// A GET of `path` with `accept`.
 fn get(addr: &str, path: &str, accept: &str) -> Result<(String, String, String), String> {
@@ -128,4 +131,128 @@ fn the_served_power_is_a_row_of_the_same_run() {
         logged.iter().any(|m| (m - served).abs() <= 5e-5),
         "served {served} dBm; rows {logged:?}"
     );
+}
+
+/// The value of the first sample of `name` in `body` whose labels hold `label`.
+fn served(body: &str, name: &str, label: &str) -> Option<f64> {
+    body.lines()
+        .filter(|l| l.starts_with(&format!("{name}{{")) && l.contains(label))
+        .find_map(|l| l.rsplit(' ').next()?.parse().ok())
+}
+
+/// Scrapes `addr` until the text holds `name` (a gauge that says a row is in), then until
+/// `log` holds the row it was served from; the body and the log's rows.
+fn scraped_with_its_row(
+    addr: &str,
+    name: &str,
+    log: &std::path::Path,
+    matches: impl Fn(&str, &[String], &[String]) -> bool,
+) -> String {
+    let body = wait_until(Duration::from_secs(20), || {
+        let (_, _, body) = get(addr, "/metrics", "application/openmetrics-text")?;
+        if body.contains(&format!("{name}{{")) {
+            Ok(body)
+        } else {
+            Err(format!("no {name} yet: {body}"))
+        }
+    });
+    wait_until(Duration::from_secs(20), || {
+        let (header, rows) = rows_so_far(log);
+        if rows.iter().any(|row| matches(&body, &header, row)) {
+            Ok(())
+        } else {
+            Err(format!("no row of {} matches {body}", log.display()))
+        }
+    });
+    body
+}
+
+/// Whether the cell `name` of `row` is, to its 4 decimals, `value`.
+fn cell_is(header: &[String], row: &[String], name: &str, value: Option<f64>) -> bool {
+    let cell: Option<f64> = row.get(column(header, name)).and_then(|c| c.parse().ok());
+    cell.zip(value).is_some_and(|(c, v)| (c - v).abs() <= 5e-5)
+}
+
+// Source: the rules (forward, reflected, SWR and return loss served when present,
+// labelled by station, channel and profile) and docs/lab.md: a coupler station serves its
+// arms' powers and the match of the same interval row its CSV holds (4 decimals).
+#[test]
+fn a_coupler_station_serves_the_match_of_a_row_of_its_log() {
+    let dir = scratch("metrics-match");
+    let log = dir.path().join("match.csv");
+    let mut command = bin();
+    command
+        .args([
+            "record",
+            "--demo",
+            "match",
+            "--every",
+            "1s",
+            "--duration",
+            "60s",
+        ])
+        .args(["--metrics", "0", "--station", "match-bench", "--out"])
+        .arg(&log)
+        .stderr(std::process::Stdio::piped());
+    let mut child = spawn(&mut command);
+    let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
+    let child = KillOnDrop::new(child);
+    let body = scraped_with_its_row(&addr, "dbtrail_swr", &log, |body, header, row| {
+        let forward = served(body, "dbtrail_power_dbm", "arm=\"forward\"");
+        let reflected = served(body, "dbtrail_power_dbm", "arm=\"reflected\"");
+        cell_is(header, row, "fwd_dbm", forward)
+            && cell_is(header, row, "ref_dbm", reflected)
+            && cell_is(header, row, "swr", served(body, "dbtrail_swr", ""))
+            && cell_is(
+                header,
+                row,
+                "return_loss_db",
+                served(body, "dbtrail_return_loss_db", ""),
+            )
+    });
+    assert!(body.contains("profile=\"demo coupler\""), "{body}");
+    assert!(body.contains("channel=\"2\",profile=\"demo coupler\",arm=\"reflected\""));
+    signal(&child, "INT");
+    assert!(wait(child.release(), Duration::from_secs(10)).success());
+}
+
+// Source: the rule that `watch` serves as `record` does: the screen, run on a
+// terminal of its own, serves the power of a row its own --log holds (4 decimals), and
+// quits on its key (pressed twice: the first asks, as a log is open).
+#[test]
+fn watch_serves_a_row_of_its_log_and_quits_on_its_key() {
+    let dir = scratch("metrics-watch");
+    let log = dir.path().join("watch.csv");
+    let (mut master, slave) = screen_terminal(100, 30);
+    let mut command = bin();
+    command
+        .args([
+            "watch",
+            "--demo",
+            "soak",
+            "--metrics",
+            "0",
+            "--station",
+            "screen-3",
+        ])
+        .arg("--log")
+        .arg(&log)
+        .stdin(slave.try_clone().unwrap())
+        .stdout(slave)
+        .stderr(std::process::Stdio::piped());
+    let mut child = spawn(&mut command);
+    let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
+    let child = KillOnDrop::new(child);
+    let body = scraped_with_its_row(&addr, "dbtrail_power_dbm", &log, |body, header, row| {
+        cell_is(
+            header,
+            row,
+            "mean_dbm",
+            served(body, "dbtrail_power_dbm", ""),
+        )
+    });
+    assert!(body.contains("station=\"screen-3\""), "{body}");
+    assert!(body.contains("profile=\"demo-diode\""), "{body}");
+    master.write_all(b"qq").unwrap();
+    assert!(wait(child.release(), Duration::from_secs(10)).success());
 }

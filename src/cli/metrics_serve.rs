@@ -13,7 +13,10 @@ use axum::http::{header, HeaderMap, StatusCode};
 use axum::response::IntoResponse;
 use axum::routing::get;
 use axum::Router;
-use dbtrail::metrics::{encode, Format, Snapshot};
+use dbtrail::metrics::{encode, Format, LinkSnapshot, Snapshot};
+use dbtrail::record::{Recorder, RunContext};
+
+use crate::source::Running;
 
 /// The longest a scraper may take to send its request's head.
 const HEAD_TIMEOUT: Duration = Duration::from_secs(5);
@@ -86,6 +89,48 @@ impl MetricsEndpoint {
         if let Ok(mut held) = self.snapshot.write() {
             *held = snapshot;
         }
+    }
+}
+
+/// A run's metrics endpoint and what its snapshots always say.
+pub struct Published {
+    endpoint: MetricsEndpoint,
+    base: Snapshot,
+}
+
+impl Published {
+    /// The endpoint of a run reading through `profile` (its name: a profile's, or a
+    /// coupler set-up's), described by `context`.
+    pub fn new(endpoint: MetricsEndpoint, profile: &str, context: &RunContext) -> Self {
+        let mut base = endpoint.base.clone();
+        base.profile = profile.to_string();
+        base.profile_hash = context.profile_hash.clone();
+        Published { endpoint, base }
+    }
+
+    /// The recorder's last row and the link's state, in place of the last snapshot.
+    pub fn publish<W: std::io::Write>(&self, source: &Running, recorder: &Recorder<W>) {
+        let link = source.counters.snapshot();
+        let age = (source.live && link.last_sample_ns > 0)
+            .then(|| (source.now() - link.last_sample_ns as f64 * 1e-9).max(0.0));
+        self.endpoint.publish(Snapshot {
+            // The recorder's own, as the screen may change the frequency while it runs.
+            frequency_hz: recorder.calibration().freq_hz(),
+            channels: recorder.latest().to_vec(),
+            board_c: recorder.latest_board_c(),
+            matching: recorder.latest_match().cloned(),
+            link: LinkSnapshot {
+                samples: link.samples,
+                bad_lines: link.bad_lines,
+                crc_errors: link.crc_errors,
+                dropped_frames: link.dropped_frames,
+                ring_overruns: link.overruns,
+                reconnects: link.reconnects,
+                up: link.connected,
+                last_sample_age_s: age,
+            },
+            ..self.base.clone()
+        });
     }
 }
 
@@ -164,7 +209,7 @@ async fn metrics(
     )
 }
 
-/// The `--metrics` options of `record`.
+/// The `--metrics` options of `record` and `watch`.
 #[derive(clap::Args)]
 pub struct MetricsArgs {
     /// Serve the latest readings for a time-series engine at http://ADDR/metrics (a bare

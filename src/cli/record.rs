@@ -15,13 +15,12 @@ use dbtrail::record::{
 };
 use dbtrail::resume::LogShape;
 
-use super::metrics_serve::{MetricsArgs, MetricsEndpoint};
+use super::metrics_serve::{MetricsArgs, Published};
 use super::run_plan::{RunPlan, SourcePlan, StartedRun};
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
 use crate::logs::{Durable, IfExists, LogFile, LogKeeper, LogOpenError, LogTampered};
 use crate::source::Running;
-use dbtrail::metrics::{LinkSnapshot as MetricsLink, Snapshot};
 
 #[derive(clap::Args)]
 pub struct Args {
@@ -74,6 +73,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         Some(shape) => resume(shape, &args.out, &run, &context)?,
         None => Opening::Fresh,
     };
+    let profile_name = run.profile_name();
     let target = if args.out == "-" {
         "standard output".to_string()
     } else {
@@ -93,7 +93,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
     let mut recorder = recorder
         .with_context(|| format!("cannot write to {target}"))
         .runtime()?;
-    let metrics = endpoint.map(|endpoint| Published::new(endpoint, &context, &recorder));
+    let metrics = endpoint.map(|endpoint| Published::new(endpoint, &profile_name, &context));
     let pumped = pump(
         &mut source,
         &mut recorder,
@@ -180,48 +180,6 @@ fn pump(
         }
     };
     LogKeeper::finish(recorder, end_t)
-}
-
-/// The metrics endpoint of a run and what its snapshots always say.
-struct Published {
-    endpoint: MetricsEndpoint,
-    base: Snapshot,
-}
-
-impl Published {
-    fn new<W: std::io::Write>(
-        endpoint: MetricsEndpoint,
-        context: &RunContext,
-        recorder: &Recorder<W>,
-    ) -> Self {
-        let mut base = endpoint.base.clone();
-        base.profile = context.profile.clone();
-        base.profile_hash = context.profile_hash.clone();
-        base.frequency_hz = recorder.calibration().freq_hz();
-        Published { endpoint, base }
-    }
-
-    /// The recorder's last row and the link's state, in place of the last snapshot.
-    fn publish<W: std::io::Write>(&self, source: &Running, recorder: &Recorder<W>) {
-        let link = source.counters.snapshot();
-        let age = (source.live && link.last_sample_ns > 0)
-            .then(|| (source.now() - link.last_sample_ns as f64 * 1e-9).max(0.0));
-        self.endpoint.publish(Snapshot {
-            channels: recorder.latest().to_vec(),
-            board_c: recorder.latest_board_c(),
-            link: MetricsLink {
-                samples: link.samples,
-                bad_lines: link.bad_lines,
-                crc_errors: link.crc_errors,
-                dropped_frames: link.dropped_frames,
-                ring_overruns: link.overruns,
-                reconnects: link.reconnects,
-                up: link.connected,
-                last_sample_age_s: age,
-            },
-            ..self.base.clone()
-        });
-    }
 }
 
 /// Hands one event to the recorder, cut at the end of the duration; the end when the

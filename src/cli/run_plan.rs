@@ -372,6 +372,15 @@ pub struct StartedRun {
 }
 
 impl StartedRun {
+    /// The name the metrics' `profile` label carries: the coupler set-up's, or the
+    /// profile's.
+    pub fn profile_name(&self) -> String {
+        match &self.coupled {
+            Some(run) => run.coupler.setup.name.clone(),
+            None => self.loaded.profile.name.clone(),
+        }
+    }
+
     /// The context a log's header is written from, for rows every `every` (zero: one row
     /// per sample), for a run that starts now.
     pub fn context(&self, every: Duration) -> RunContext {

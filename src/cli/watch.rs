@@ -7,6 +7,7 @@ use std::time::Duration;
 
 use anyhow::anyhow;
 
+use super::metrics_serve::{MetricsArgs, Published};
 use super::run_plan::RunPlan;
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{BadInput, Failure, Runtime};
@@ -30,6 +31,8 @@ pub struct Args {
     /// Replace an existing --log file
     #[arg(long, requires = "log", conflicts_with = "append")]
     force: bool,
+    #[command(flatten)]
+    metrics: MetricsArgs,
 }
 
 pub fn run(args: Args) -> Result<(), Failure> {
@@ -44,8 +47,11 @@ pub fn run(args: Args) -> Result<(), Failure> {
         .bad_input();
     }
     let plan = RunPlan::from_args(&args.source, &args.link, &args.reading).paced_as_the_present();
+    let endpoint = args.metrics.start().bad_input()?;
     let run = plan.start(None)?;
     let context = run.context(Duration::from_secs(1));
+    let metrics_at = endpoint.as_ref().map(|endpoint| endpoint.addr);
+    let metrics = endpoint.map(|endpoint| Published::new(endpoint, &run.profile_name(), &context));
     let color = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
     let app = match run.coupled {
         Some(coupled) => {
@@ -60,6 +66,10 @@ pub fn run(args: Args) -> Result<(), Failure> {
         ),
     }
     .with_color(color);
+    let app = match metrics_at {
+        Some(addr) => app.with_metrics_at(addr),
+        None => app,
+    };
     let log = args.log.map(|path| {
         let if_exists = if args.append {
             IfExists::Append
@@ -74,6 +84,7 @@ pub fn run(args: Args) -> Result<(), Failure> {
         context,
         source: run.source,
         log,
+        metrics,
     };
     tui::run(app, setup).runtime()
 }

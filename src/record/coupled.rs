@@ -8,6 +8,7 @@ use std::io;
 use crate::calibration::Calibration;
 use crate::coupler::{arm_power, CouplerCalibration, CouplerSetup, MatchLimits};
 use crate::matching::{MatchInterval, MatchState};
+use crate::metrics::{MatchSnapshot, MatchValue};
 use crate::printable::escape_controls;
 use crate::stats::{Bound, Figures};
 use crate::units::format_frequency;
@@ -36,10 +37,27 @@ pub const OVER_REFLECTED_LIMIT: &str = "over-reflected-limit";
 /// The `match` cell of a row in which the forward arm had no sample at all (a gap).
 pub const NO_SAMPLES: &str = "gap";
 
+/// Every mark a `match` cell may carry: the states that are not a value, a gap, and the
+/// limits.
+const MATCH_MARKS: [&str; 9] = [
+    MatchState::FLAGGED[0].flag(),
+    MatchState::FLAGGED[1].flag(),
+    MatchState::FLAGGED[2].flag(),
+    MatchState::FLAGGED[3].flag(),
+    MatchState::FLAGGED[4].flag(),
+    MatchState::FLAGGED[5].flag(),
+    NO_SAMPLES,
+    OVER_SWR_LIMIT,
+    OVER_REFLECTED_LIMIT,
+];
+
 /// Whether an arm's figures come from no sample at all.
 fn no_samples(figures: &Figures) -> bool {
     figures.averaged == 0 && figures.mean_w.is_none()
 }
+
+/// The coupler's arms as the metrics' `arm` label names them, forward first.
+pub(super) const ARMS: [&str; 2] = ["forward", "reflected"];
 
 /// The prefixes of the forward and the reflected arm's columns.
 const ARM_PREFIXES: [&str; 2] = ["fwd_", "ref_"];
@@ -92,12 +110,40 @@ impl Coupled {
         forward: &Figures,
         reflected: &Figures,
     ) -> Vec<String> {
+        self.interval(chains, forward, reflected).0
+    }
+
+    /// An interval's match cells and the same match for a metrics snapshot.
+    pub(super) fn interval(
+        &self,
+        chains: &[Chain],
+        forward: &Figures,
+        reflected: &Figures,
+    ) -> (Vec<String>, MatchSnapshot) {
         let m = MatchInterval::new(
             arm_power(forward, chains[0].budget.as_ref()),
             arm_power(reflected, chains[1].budget.as_ref()),
             self.leakage,
         );
-        self.cells(&m, forward, reflected)
+        let marks = self.marks(&m, forward, reflected);
+        let snapshot = MatchSnapshot {
+            value: m
+                .figures
+                .filter(|_| m.state == MatchState::Value)
+                .map(|f| MatchValue {
+                    swr: f.swr,
+                    return_loss_db: f.return_loss_db,
+                    mismatch_loss_db: f.mismatch_loss_db,
+                }),
+            net_w: m.net_w,
+            u_return_loss_db: m.u_return_loss_db,
+            return_loss_range_db: m.return_loss_range_db,
+            marks: MATCH_MARKS
+                .iter()
+                .map(|&mark| (mark, marks.contains(&mark)))
+                .collect(),
+        };
+        (self.cells(&m, &marks), snapshot)
     }
 
     /// The match cells of one sample of each arm (no noise is known: no uncertainty).
@@ -116,7 +162,7 @@ impl Coupled {
         }
     }
 
-    fn cells(&self, m: &MatchInterval, forward: &Figures, reflected: &Figures) -> Vec<String> {
+    fn cells(&self, m: &MatchInterval, marks: &[&'static str]) -> Vec<String> {
         let fixed = |v: Option<f64>, digits: usize| {
             v.map_or(String::new(), |v| {
                 if v.is_infinite() {
@@ -134,7 +180,7 @@ impl Coupled {
             fixed(figures.map(|f| f.swr), 4),
             fixed(figures.map(|f| f.return_loss_db), 4),
             fixed(figures.map(|f| f.mismatch_loss_db), 4),
-            self.marks(m, forward, reflected).join("|"),
+            marks.join("|"),
             fixed(m.u_return_loss_db, 4),
             fixed(range.map(|r| r.0), 4),
             fixed(range.map(|r| r.1), 4),

@@ -296,6 +296,8 @@ pub struct App {
     source: String,
     /// Whether colours may be used.
     color: bool,
+    /// Where `--metrics` serves, as the status line names it.
+    metrics_at: Option<String>,
     /// The mode.
     mode: Mode,
     /// The unit of the main reading.
@@ -391,6 +393,7 @@ impl App {
             extra_offset_db,
             source,
             color: true,
+            metrics_at: None,
             mode: Mode::Normal,
             units: Units::Dbm,
             reference_dbm: None,
@@ -497,6 +500,16 @@ impl App {
             }
             AppEvent::Tick { now } => self.tick(now),
         }
+    }
+
+    /// Names where `--metrics` serves on the status line: the port alone on loopback.
+    pub fn with_metrics_at(mut self, addr: std::net::SocketAddr) -> Self {
+        self.metrics_at = Some(if addr.ip().is_loopback() {
+            format!("metrics :{}", addr.port())
+        } else {
+            format!("metrics {addr}")
+        });
+        self
     }
 
     /// Whether colours may be used (`NO_COLOR` unset).

@@ -25,6 +25,7 @@ use dbtrail::events::Event;
 use dbtrail::record::{Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
+use crate::cli::metrics_serve::Published;
 use crate::logs::{IfExists, LogFile, LogKeeper, LogOpenError};
 use crate::source::Running;
 use app::{App, AppEvent, Command, LogEnd};
@@ -41,6 +42,8 @@ pub struct ScreenSetup {
     /// What a log's header says of the run; a log opened later starts its clock at the
     /// source's start.
     pub context: RunContext,
+    /// The metrics endpoint (`--metrics`), served the rows a log would hold.
+    pub metrics: Option<Published>,
 }
 
 /// Runs the screen until the user quits or a signal arrives; the terminal is restored on
@@ -75,6 +78,39 @@ struct Log {
     keeper: LogKeeper,
 }
 
+/// The metrics endpoint and the rows it is served from: a recorder of its own, whose rows
+/// go nowhere, so that it serves what a log would hold whether one is open or not.
+struct Watched {
+    published: Published,
+    recorder: Recorder<io::Sink>,
+    keeper: LogKeeper,
+}
+
+impl Watched {
+    fn new(published: Published, app: &App, setup: &ScreenSetup) -> Result<Self> {
+        let recorder = recorder_for(app, setup, io::sink(), Opening::Fresh)
+            .context("cannot start the metrics' figures")?;
+        Ok(Watched {
+            published,
+            recorder,
+            keeper: LogKeeper::new(),
+        })
+    }
+
+    fn take(&mut self, batch: &[Event], source: &Running) {
+        // The rows go nowhere: writing them cannot fail.
+        let _ = feed(&mut self.recorder, &mut self.keeper, batch, source);
+        self.published.publish(source, &self.recorder);
+    }
+
+    /// Figures from now on through the app's calibration as it now is.
+    fn recalibrated(&mut self, app: &App, setup: &ScreenSetup) {
+        if let Ok(recorder) = recorder_for(app, setup, io::sink(), Opening::Fresh) {
+            self.recorder = recorder;
+        }
+    }
+}
+
 /// Keys as they come, a frame (samples drained, the link's counters, a tick,
 /// a draw) every 1/[`FRAMES_PER_SECOND`] s, and the signal flag between the two.
 fn event_loop(
@@ -87,6 +123,10 @@ fn event_loop(
     let panic_at = test_panic_frame();
     let mut frames = 0u64;
     let mut log: Option<Log> = None;
+    let mut watched = match setup.metrics.take() {
+        Some(published) => Some(Watched::new(published, &app, &setup)?),
+        None => None,
+    };
     if let Some((path, if_exists)) = setup.log.clone() {
         let opened = start_log(&mut log, &app, &setup, &path, if_exists);
         app.update(opened);
@@ -101,7 +141,7 @@ fn event_loop(
         let commands = if now >= next_frame {
             // A frame missed (the machine busy) is skipped, not caught up.
             next_frame = (next_frame + period).max(now);
-            let commands = frame(&mut app, &mut setup, &mut log);
+            let commands = frame(&mut app, &mut setup, &mut log, watched.as_mut());
             if let Err(e) = terminal.draw(|frame| app::draw::draw(&app, frame)) {
                 break Err(e).context("cannot draw the screen");
             }
@@ -119,7 +159,7 @@ fn event_loop(
                 }
             }
         };
-        if carry_out(commands, &mut app, &mut log, &setup) {
+        if carry_out(commands, &mut app, &mut log, &setup, watched.as_mut()) {
             break Ok(());
         }
     };
@@ -154,8 +194,13 @@ fn spawn_key_reader() -> mpsc::Receiver<KeyEvent> {
 }
 
 /// What a frame feeds the app: what the source sent, its link's counters, its end, the time.
-fn frame(app: &mut App, setup: &mut ScreenSetup, log: &mut Option<Log>) -> Vec<Command> {
-    let mut commands = drain(app, &mut setup.source, log);
+fn frame(
+    app: &mut App,
+    setup: &mut ScreenSetup,
+    log: &mut Option<Log>,
+    watched: Option<&mut Watched>,
+) -> Vec<Command> {
+    let mut commands = drain(app, &mut setup.source, log, watched);
     app.update(AppEvent::Link(setup.source.counters.snapshot()));
     if !setup.source.live && setup.source.exhausted() && !app.ended() {
         app.update(AppEvent::SourceEnded);
@@ -167,10 +212,18 @@ fn frame(app: &mut App, setup: &mut ScreenSetup, log: &mut Option<Log>) -> Vec<C
 }
 
 /// Moves what the source has sent to the log and the app.
-fn drain(app: &mut App, source: &mut Running, log: &mut Option<Log>) -> Vec<Command> {
+fn drain(
+    app: &mut App,
+    source: &mut Running,
+    log: &mut Option<Log>,
+    watched: Option<&mut Watched>,
+) -> Vec<Command> {
     let mut batch = Vec::new();
     while let Some(event) = source.next_event() {
         batch.push(event);
+    }
+    if let Some(watched) = watched {
+        watched.take(&batch, source);
     }
     if let Some(open) = log.as_mut() {
         let written = log_batch(open, &batch, source);
@@ -193,11 +246,21 @@ fn drain(app: &mut App, source: &mut Running, log: &mut Option<Log>) -> Vec<Comm
 }
 
 fn log_batch(log: &mut Log, batch: &[Event], source: &Running) -> io::Result<()> {
+    feed(&mut log.recorder, &mut log.keeper, batch, source)
+}
+
+/// Hands a batch to a recorder, and a live source's clock after it.
+fn feed<W: crate::logs::Durable>(
+    recorder: &mut Recorder<W>,
+    keeper: &mut LogKeeper,
+    batch: &[Event],
+    source: &Running,
+) -> io::Result<()> {
     for event in batch {
-        log.recorder.handle(event)?;
+        recorder.handle(event)?;
     }
     let live_clock = source.live.then(|| source.now());
-    log.keeper.after_batch(&mut log.recorder, live_clock)
+    keeper.after_batch(recorder, live_clock)
 }
 
 /// Carries out commands, telling the app what became of them; true when the screen
@@ -207,8 +270,18 @@ fn carry_out(
     app: &mut App,
     log: &mut Option<Log>,
     setup: &ScreenSetup,
+    mut watched: Option<&mut Watched>,
 ) -> bool {
     for command in commands {
+        if let Some(watched) = watched.as_deref_mut() {
+            match command {
+                Command::Recalibrated => watched.recalibrated(app, setup),
+                Command::Rezero { t, zero_counts } => {
+                    let _ = watched.recorder.rezero(t, zero_counts);
+                }
+                _ => {}
+            }
+        }
         let effect = match command {
             Command::Quit => return true,
             Command::Bell => {
@@ -276,27 +349,39 @@ fn start_log(
 fn open_log(app: &App, setup: &ScreenSetup, path: &Path, if_exists: IfExists) -> Result<Log> {
     let board = app.coupler().is_none() && app.calibration().thermal().is_some();
     let (file, opening) = open_log_file(path, if_exists, app.coupler().is_some(), board)?;
-    let context = RunContext {
-        started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
-        ..setup.context.clone()
-    };
-    let recorder = match (app.coupler(), app.coupler_calibration()) {
-        (Some(coupler), Some(cal)) => {
-            Recorder::for_coupler(file, cal.clone(), &coupler.setup, &context, opening)
-        }
-        _ => {
-            let budget = Some(app.uncertainty().clone());
-            let cal = app.calibration().clone();
-            Recorder::with_uncertainty(file, cal, budget, &context, opening)
-        }
-    };
-    let mut recorder = recorder.with_context(|| format!("cannot write {}", path.display()))?;
-    recorder.begin_at(setup.source.now());
+    let recorder = recorder_for(app, setup, file, opening)
+        .with_context(|| format!("cannot write {}", path.display()))?;
     Ok(Log {
         recorder,
         path: path.to_path_buf(),
         keeper: LogKeeper::new(),
     })
+}
+
+/// A recorder of the screen's rows to `out` through the app's calibration as it now is,
+/// its first interval the one the source is in.
+fn recorder_for<W: Write>(
+    app: &App,
+    setup: &ScreenSetup,
+    out: W,
+    opening: Opening,
+) -> io::Result<Recorder<W>> {
+    let context = RunContext {
+        started: SystemTime::now() - Duration::from_secs_f64(setup.source.now()),
+        ..setup.context.clone()
+    };
+    let mut recorder = match (app.coupler(), app.coupler_calibration()) {
+        (Some(coupler), Some(cal)) => {
+            Recorder::for_coupler(out, cal.clone(), &coupler.setup, &context, opening)
+        }
+        _ => {
+            let budget = Some(app.uncertainty().clone());
+            let cal = app.calibration().clone();
+            Recorder::with_uncertainty(out, cal, budget, &context, opening)
+        }
+    }?;
+    recorder.begin_at(setup.source.now());
+    Ok(recorder)
 }
 
 /// Opens the log's file as `if_exists` says, locked against a second recorder (as

@@ -179,6 +179,35 @@ pub fn pty_pair() -> (TTYPort, TTYPort) {
     (master, slave)
 }
 
+/// A terminal of `cols` × `rows` for a spawned screen: its master (what the screen draws
+/// is read from it and drained on a thread; keys are written to it) and its slave, for
+/// the child's standard input and output. Both close on exec, as [`pty_pair`]'s do.
+pub fn screen_terminal(cols: u16, rows: u16) -> (std::fs::File, std::fs::File) {
+    use nix::fcntl::{fcntl, FcntlArg, FdFlag};
+    use std::os::fd::FromRawFd;
+    let _guard = SPAWNING.lock().unwrap_or_else(|e| e.into_inner());
+    let size = nix::pty::Winsize {
+        ws_row: rows,
+        ws_col: cols,
+        ws_xpixel: 0,
+        ws_ypixel: 0,
+    };
+    let pty = nix::pty::openpty(Some(&size), None).unwrap();
+    for fd in [pty.master, pty.slave] {
+        fcntl(fd, FcntlArg::F_SETFD(FdFlag::FD_CLOEXEC)).unwrap();
+    }
+    // Safety: openpty has just opened both, and nothing else owns them.
+    let (master, slave) = unsafe {
+        (
+            std::fs::File::from_raw_fd(pty.master),
+            std::fs::File::from_raw_fd(pty.slave),
+        )
+    };
+    let mut drained = master.try_clone().unwrap();
+    std::thread::spawn(move || std::io::copy(&mut drained, &mut std::io::sink()));
+    (master, slave)
+}
+
 /// Writes one line per item (counts, or `a,b` lines of two channels), in batches of 50.
 pub fn write_lines(master: &mut TTYPort, lines: impl Iterator<Item = impl std::fmt::Display>) {
     let mut batch = Vec::new();

@@ -902,6 +902,9 @@ fn status_line(app: &App, width: usize) -> Line<'static> {
         fields.push((3, Span::raw(format!("{:.1} s ago", (app.now - t).max(0.0)))));
     }
     fields.push((7, Span::raw(log)));
+    if let Some(at) = &app.metrics_at {
+        fields.push((5, Span::raw(at.clone())));
+    }
     let widths: Vec<(u8, usize)> = fields.iter().map(|(p, s)| (*p, s.width())).collect();
     let kept = fields_to_keep(&widths, 3, width.saturating_sub(1));
     let mut spans = Vec::new();

@@ -1172,6 +1172,25 @@ fn the_warning_line_abbreviates_by_rule_and_never_cuts_a_word() {
     );
 }
 
+// Source: the rule of the metrics issue that binding beyond loopback is asked for
+// explicitly: the screen names where it serves, the port alone on loopback and the whole
+// address otherwise, and at 100 columns the other fields stay.
+#[test]
+fn the_status_line_names_where_metrics_are_served() {
+    let loopback = "127.0.0.1:9464".parse().unwrap();
+    let mut app = app().with_metrics_at(loopback);
+    sample(&mut app, 0.0, 1500);
+    let lines = screen(&app, 100, 30);
+    let status = lines.iter().find(|l| l.contains("log off")).unwrap();
+    assert!(status.contains("│ metrics :9464"), "{status:?}");
+    assert!(status.contains("s ago"), "{status:?}");
+    let anywhere = "192.168.5.20:9464".parse().unwrap();
+    let app = self::app().with_metrics_at(anywhere);
+    let lines = screen(&app, 100, 30);
+    assert!(has(&lines, "metrics 192.168.5.20:9464"), "{lines:?}");
+    assert!(!has(&screen(&self::app(), 100, 30), "metrics"));
+}
+
 // Source: the rule of issue 16: the status line keeps the connection state whole and
 // drops lower-priority fields whole; before, it ended "… │ DISCONNECTE" at 80 columns.
 #[test]
