@@ -66,13 +66,17 @@ fn query(engine: &str, q: &str) -> Result<serde_json::Value, String> {
     Ok(value["data"]["result"].clone())
 }
 
-/// The engine started on loopback with a 1 s scrape of `target`; its address.
+/// The engine started on loopback with a 1 s scrape of `target`, and the lab page's
+/// alerting rules evaluated every second; its address.
 fn start_engine(program: &str, dir: &Path, target: &str) -> (KillOnDrop, String) {
     let config = dir.join("engine.yml");
+    let rules = common::lab_page_block("yaml", "# lab-alerts.yml");
+    std::fs::write(dir.join("lab-alerts.yml"), rules).unwrap();
     std::fs::write(
         &config,
         format!(
-            "global:\n  scrape_interval: 1s\n  evaluation_interval: 1s\nscrape_configs:\n  \
+            "global:\n  scrape_interval: 1s\n  evaluation_interval: 1s\n\
+             rule_files: [lab-alerts.yml]\nscrape_configs:\n  \
              - job_name: dbtrail\n    scrape_interval: 1s\n    static_configs:\n      \
              - targets: [\"{target}\"]\n"
         ),
@@ -130,6 +134,31 @@ fn a_real_engine_scrapes_a_run_and_stores_its_rows() {
             Err(format!("{} scrapes stored so far", values.len()))
         }
     });
+    // The lab page's rules load and are evaluated on the live run without error, and its
+    // drift query answers for the station.
+    wait_until(Duration::from_secs(40), || {
+        let body = get(&engine, "/api/v1/rules")?;
+        let rules: serde_json::Value = serde_json::from_str(&body).map_err(|e| e.to_string())?;
+        let rules = rules["data"]["groups"][0]["rules"]
+            .as_array()
+            .cloned()
+            .unwrap_or_default();
+        let evaluated = rules
+            .iter()
+            // A rule never evaluated says the zero time, 0001-01-01.
+            .filter(|r| {
+                let at = r["lastEvaluation"].as_str().unwrap_or("0001");
+                r["health"] == "ok" && !at.starts_with("0001")
+            })
+            .count();
+        if rules.len() == 4 && evaluated == 4 {
+            Ok(())
+        } else {
+            Err(format!("rules not all evaluated yet: {rules:?}"))
+        }
+    });
+    let drift = query(&engine, "deriv(dbtrail_power_dbm[1h]) * 3600").unwrap();
+    assert_eq!(drift[0]["metric"]["station"], "lab-1", "{drift}");
     signal(&recorder, "INT");
     assert!(wait(recorder.release(), Duration::from_secs(10)).success());
     let (header, rows) = rows(&log);
@@ -203,6 +232,17 @@ fn a_real_engine_sees_the_source_unplugged_and_back() {
         match power.as_array().map(Vec::len) {
             Some(0) => Ok(()),
             _ => Err(format!("power still read: {power}")),
+        }
+    });
+    // The lab page's rule sees it: its alert is pending (held 30 s before it fires).
+    wait_until(Duration::from_secs(40), || {
+        let alert = query(
+            &engine,
+            "ALERTS{alertname=\"StationLinkDead\",station=\"lab-2\"}",
+        )?;
+        match alert[0]["metric"]["alertstate"].as_str() {
+            Some("pending" | "firing") => Ok(()),
+            _ => Err(format!("no StationLinkDead alert yet: {alert}")),
         }
     });
     let (mut master, slave) = pty_pair();

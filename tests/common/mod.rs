@@ -413,3 +413,16 @@ pub fn serving_metrics(log: &Path, station: &str) -> (KillOnDrop, String) {
     let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
     (KillOnDrop::new(child), addr)
 }
+
+/// The fenced block of `lang` on the lab page (docs/lab.md) whose first line starts with
+/// `lead`: the page's own rules and queries, for the tests that check them.
+pub fn lab_page_block(lang: &str, lead: &str) -> String {
+    let page = include_str!("../../docs/lab.md");
+    let fence = format!("```{lang}\n");
+    page.split(&fence)
+        .skip(1)
+        .filter_map(|rest| rest.split_once("```").map(|(body, _)| body))
+        .find(|body| body.starts_with(lead))
+        .unwrap_or_else(|| panic!("docs/lab.md has no ```{lang} block opening with {lead}"))
+        .to_string()
+}
