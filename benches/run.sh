@@ -58,6 +58,18 @@ port=$(head -1 "$work/pty")
 wait "$sim" || true
 echo "live pty, binary, 1 M samples/s for $live_s s: $(grep -o 'link: .*' "$work/live.err")"
 
+# The same, scraped ten times a second through --metrics while it runs.
+"$bin" sim --scenario soak --rate 1M --format binary --seconds "$live_s" --profile "$profile" --pty > "$work/pty2" &
+sim=$!
+sleep 0.3
+port=$(head -1 "$work/pty2")
+"$bin" record --port "$port" --profile "$profile" --format binary --every 1s --duration "$((live_s + 2))s" --out "$work/live2.csv" --metrics 0 2> "$work/live2.err" &
+rec=$!
+scraped=$(python3 benches/scrape.py "$work/live2.err" "$live_s" 10)
+wait "$rec"
+wait "$sim" || true
+echo "live pty, binary, 1 M samples/s for $live_s s, scraped 10/s: $(grep -o 'link: .*' "$work/live2.err"); $scraped"
+
 python3 benches/latency.py "$bin" "$profile" 10 1000
 
 if command -v tmux >/dev/null; then
