@@ -63,6 +63,37 @@ fn bad_requests_are_refused_and_a_stalled_one_is_cut_off() {
     assert!(after.starts_with("HTTP/1.1 200"), "{after}");
 }
 
+// Source: the issue's rule that requests are bounded in time, against a slow-loris
+// client: one that keeps its request head coming a header line at a time, never ending it.
+// The head's 5 s bound counts from its start, not from the last byte (docs/lab.md), so
+// the trickle is cut off, and the endpoint answers others meanwhile.
+#[test]
+fn a_request_head_trickled_a_line_at_a_time_is_cut_off() {
+    let dir = scratch("metrics-loris");
+    let (_child, addr) = serving(&dir.path().join("loris.csv"));
+    let mut stream = TcpStream::connect(&addr).unwrap();
+    stream
+        .write_all(b"GET /metrics HTTP/1.1\r\nHost: x\r\n")
+        .unwrap();
+    let started = std::time::Instant::now();
+    let cut_off = loop {
+        std::thread::sleep(Duration::from_millis(250));
+        if stream.write_all(b"X-Trickle: a\r\n").is_err() {
+            break started.elapsed();
+        }
+        let answered = get(&addr, "/metrics", "application/openmetrics-text");
+        assert!(answered.is_ok_and(|(status, _, _)| status.contains("200")));
+        assert!(
+            started.elapsed() < Duration::from_secs(30),
+            "a trickled head still open after 30 s"
+        );
+    };
+    assert!(
+        cut_off >= Duration::from_secs(4),
+        "cut off early: {cut_off:?}"
+    );
+}
+
 // Source: the rule of the issue: 100 concurrent scrapers are served without error.
 #[test]
 fn a_hundred_scrapers_at_once_are_all_served() {
