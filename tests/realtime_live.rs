@@ -148,12 +148,26 @@ fn sigint_mid_interval_leaves_a_valid_csv_with_the_partial_row() {
             "--out",
             out.to_str().unwrap(),
         ])
-        .stderr(Stdio::null());
-    let child = KillOnDrop::new(spawn(child));
-    wait_for_log_start(EFFECT_LIMIT, &out);
-    // The test's input, not a wait for an effect: the signal comes over a second into the
-    // 10 s interval, so the partial row holds over a thousand samples.
-    std::thread::sleep(Duration::from_millis(1200));
+        .args(["--metrics", "0"])
+        .stderr(Stdio::piped());
+    let mut child = spawn(child);
+    let addr = address_said(&mut child, "metrics at http://", "/metrics");
+    let child = KillOnDrop::new(child);
+    // The signal comes once over a thousand samples are in, by the recorder's own count
+    // (its metrics), part-way through the 10 s interval.
+    wait_until(EFFECT_LIMIT, || {
+        let (_, _, body) = http_get(&addr, "/metrics", None)?;
+        let samples: f64 = body
+            .lines()
+            .find_map(|l| l.strip_prefix("dbtrail_link_samples_total{"))
+            .and_then(|l| l.rsplit(' ').next()?.parse().ok())
+            .ok_or("no sample count yet")?;
+        if samples >= 1100.0 {
+            Ok(())
+        } else {
+            Err(format!("{samples} samples so far"))
+        }
+    });
     signal(&child, "INT");
     assert!(wait(child.release(), Duration::from_secs(10)).success());
     let (header, rows) = rows(&out);
