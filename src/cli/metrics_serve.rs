@@ -62,8 +62,12 @@ impl MetricsEndpoint {
     /// Binds `addr` at once (so that a port in use is refused before the run starts) and
     /// serves `snapshot` from a thread of its own.
     pub fn start(addr: SocketAddr, snapshot: Snapshot) -> Result<Self> {
-        let listener = TcpListener::bind(addr)
-            .with_context(|| format!("cannot serve metrics on {addr}: choose another port"))?;
+        let listener = TcpListener::bind(addr).map_err(|e| {
+            anyhow!(
+                "cannot serve metrics on {addr} ({e}): choose another port for --metrics \
+                     (0 picks a free one), or stop what holds this one"
+            )
+        })?;
         listener
             .set_nonblocking(true)
             .context("cannot set up the metrics listener")?;
