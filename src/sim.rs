@@ -318,6 +318,9 @@ impl Simulator {
         // The index of the first frame, for the sensor's own rhythm.
         let first = self.index - n as u64;
         let every = self.frames_per_sensor_read();
+        // Frames until the sensor is read again (0: this one), counted down rather than
+        // taken modulo `every` each frame.
+        let mut until_read = (every - first % every) % every;
         let mut temperature = self.sensor_last;
         let mut k = 0;
         while k < n {
@@ -331,11 +334,12 @@ impl Simulator {
             let ideal = sensor.counts_for(&self.adc, kelvin - CELSIUS_ZERO_K);
             let step_end = ((step + 1.0) * MODEL_STEP_S - t0) / dt;
             let until = (step_end.ceil().max(k as f64 + 1.0) as usize).min(n);
-            for (j, &count) in power[k..until].iter().enumerate() {
-                if temperature.is_none() || (first + (k + j) as u64).is_multiple_of(every) {
+            for &count in &power[k..until] {
+                if temperature.is_none() || until_read == 0 {
                     let noisy = ideal + self.noise.sample(&mut self.rng);
                     temperature = Some((noisy.clamp(0.0, top) + 0.5) as u32);
                 }
+                until_read = if until_read == 0 { every } else { until_read } - 1;
                 let temperature = temperature.unwrap_or_default();
                 match (width, sensor.channel) {
                     (2, 1) => out.extend_from_slice(&[count, temperature]),
