@@ -309,6 +309,14 @@ pub enum SensorFault {
 }
 
 impl SensorFault {
+    /// Every fault, in the order a log's `temp_flags` cell names them.
+    pub const ALL: [SensorFault; 4] = [
+        SensorFault::Open,
+        SensorFault::Shorted,
+        SensorFault::AtRail,
+        SensorFault::Implausible,
+    ];
+
     /// A short name for a log cell or a screen.
     pub fn short_name(self) -> &'static str {
         match self {

@@ -1995,6 +1995,38 @@ fn the_drift_without_compensation_is_read_from_its_own_column() {
     assert!(drift_at < uncomp_at && uncomp_at < whole_at, "{table}");
 }
 
+// Source: the log's own `# temperature:` line, as `record` wrote it for the bundled demo
+// board (a thermistor on channel 2): the report's text says it under "board sensor",
+// word for word, so that a reader sees which sensor and range the rows were read with.
+#[test]
+fn the_report_names_the_board_sensor_the_log_was_read_with() {
+    let tmp = scratch("board-sensor");
+    let log = tmp.path().join("board.csv");
+    let recorded = dbtrail(&[
+        "record",
+        "--demo",
+        "soak",
+        "--fast",
+        "--duration",
+        "20s",
+        "--out",
+        log.to_str().unwrap(),
+    ]);
+    assert!(
+        recorded.status.success(),
+        "{}",
+        String::from_utf8_lossy(&recorded.stderr)
+    );
+    let text = std::fs::read_to_string(&log).unwrap();
+    let said = text
+        .lines()
+        .find_map(|l| l.strip_prefix("# temperature: "))
+        .expect("the demo board's log has a # temperature: line");
+    assert!(said.starts_with("channel 2, "), "{said}");
+    let table = text_of(&dbtrail(&["report", log.to_str().unwrap()]));
+    assert_eq!(text_line(&table, "board sensor"), said, "{table}");
+}
+
 /// Eight 10 s rows whose temperatures are worked by hand below: two without one (a
 /// sensor fault and an unknown), one read outside the calibrated temperature range.
 fn temperature_log() -> String {
@@ -2040,6 +2072,12 @@ fn the_temperature_range_and_its_unknown_rows_come_from_temp_c() {
         "{range}"
     );
     assert_eq!(range["rows_unknown"], 2, "{range}");
+    // The row at 20 s names `sensor-open` in its temp_flags; the one at 50 s no fault.
+    let faults = &range["sensor_fault_rows"];
+    assert_eq!(faults["sensor-open"], 1, "{range}");
+    for other in ["sensor-short", "sensor-rail", "sensor-implausible"] {
+        assert_eq!(faults[other], 0, "{other}: {range}");
+    }
     assert_eq!(value["flagged_rows"]["temp-outside"], 1, "{value}");
     assert_eq!(value["flagged_rows"]["temp-unknown"], 2, "{value}");
     assert!(value["mean_u_db"].is_null(), "{value}");
@@ -2074,12 +2112,13 @@ fn the_temperature_range_and_its_unknown_rows_come_from_temp_c() {
         "{range}"
     );
     assert_eq!(range["rows_unknown"], 1, "{range}");
+    assert_eq!(range["sensor_fault_rows"]["sensor-open"], 0, "{range}");
 
     let table = text_of(&report_on(dir, "t.csv", &text, &[]));
     assert_eq!(
         text_line(&table, "temperature"),
         "23.50 to 31.25 °C on the board, 24.00 °C at the span's start and 30.50 °C at its \
-         end; 2 rows with no temperature"
+         end; 2 rows with no temperature (sensor-open in 1)"
     );
     assert!(
         text_line(&table, "flagged rows").contains("temp-outside 1"),

@@ -13,12 +13,7 @@ pub const UNCOMPENSATED_COLUMN: &str = "uncomp_dbm";
 pub const BOARD_COLUMNS: [&str; 2] = ["temp_c", "temp_flags"];
 
 /// Faults in the order their names are written.
-const FAULTS: [SensorFault; 4] = [
-    SensorFault::Open,
-    SensorFault::Shorted,
-    SensorFault::AtRail,
-    SensorFault::Implausible,
-];
+const FAULTS: [SensorFault; 4] = SensorFault::ALL;
 
 /// The temperature channel of a run and what it has read.
 #[derive(Debug, Clone)]

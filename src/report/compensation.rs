@@ -8,6 +8,7 @@ use serde::Serialize;
 
 use super::soak::{self, Drift, SoakFit};
 use super::{bad, LogError, LogRow, ReportOptions, Run};
+use crate::thermal::SensorFault;
 use crate::units::{dbm_to_watts, watts_to_dbm};
 
 /// The board's temperatures over a row (or a folded interval of rows), °C.
@@ -55,6 +56,9 @@ pub struct RowCompensation {
     pub temp_c: Option<Temperatures>,
     /// Rows as logged whose `temp_c` is empty.
     pub unknown_rows: u64,
+    /// Rows as logged whose `temp_flags` name each sensor fault, in the order of
+    /// [`SensorFault::ALL`].
+    pub fault_rows: [u64; 4],
 }
 
 impl RowCompensation {
@@ -66,6 +70,9 @@ impl RowCompensation {
             (a, b) => a.or(b),
         };
         self.unknown_rows = self.unknown_rows.saturating_add(other.unknown_rows);
+        for (mine, theirs) in self.fault_rows.iter_mut().zip(other.fault_rows) {
+            *mine = mine.saturating_add(theirs);
+        }
     }
 }
 
@@ -237,6 +244,20 @@ pub struct TemperatureRange {
     pub last: Option<f64>,
     /// Rows (as logged) of the span whose `temp_c` is empty.
     pub rows_unknown: u64,
+    /// Rows (as logged) of the span whose `temp_flags` name each sensor fault: every
+    /// fault's name (`sensor-open`, …) with its count, zeros included.
+    #[serde(serialize_with = "fault_names")]
+    pub sensor_fault_rows: [u64; 4],
+}
+
+/// The fault counts as an object keyed by the faults' own names.
+fn fault_names<S: serde::Serializer>(rows: &[u64; 4], out: S) -> Result<S::Ok, S::Error> {
+    use serde::ser::SerializeMap;
+    let mut map = out.serialize_map(Some(rows.len()))?;
+    for (fault, n) in SensorFault::ALL.iter().zip(rows) {
+        map.serialize_entry(fault.short_name(), n)?;
+    }
+    map.end()
 }
 
 /// How far the zero moved (JSON `zero`): from the run's starting zero to the last zero
@@ -325,6 +346,9 @@ pub fn temperature_range(pairs: &[(&LogRow, &RowCompensation)]) -> TemperatureRa
         first: known.map(|k| k.first),
         last: known.map(|k| k.last),
         rows_unknown: pairs.iter().map(|(_, c)| c.unknown_rows).sum(),
+        sensor_fault_rows: std::array::from_fn(|i| {
+            pairs.iter().map(|(_, c)| c.fault_rows[i]).sum()
+        }),
     }
 }
 

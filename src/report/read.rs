@@ -14,6 +14,7 @@ use super::reduce::{Folder, Reduction};
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
 use crate::record::{BOARD_COLUMNS, UNCOMPENSATED_COLUMN};
 use crate::stats::Bound;
+use crate::thermal::SensorFault;
 
 /// The range of power a cell may hold, dBm: no detector reads outside it (thermal noise in
 /// 1 Hz at 290 K is −174 dBm; +200 dBm is 10^17 W).
@@ -61,6 +62,8 @@ struct Columns {
     uncomp: Option<usize>,
     /// The board's temperature, one for all channels.
     temp: Option<usize>,
+    /// The sensor's faults over the row.
+    temp_flags: Option<usize>,
     names: Vec<String>,
 }
 
@@ -657,6 +660,7 @@ fn columns(
         u_db: find("u_db"),
         uncomp: find(UNCOMPENSATED_COLUMN),
         temp: names.iter().position(|h| h == BOARD_COLUMNS[0]),
+        temp_flags: names.iter().position(|h| h == BOARD_COLUMNS[1]),
         names,
     })
 }
@@ -790,6 +794,7 @@ fn parse_row(
         uncomp_dbm: cols.uncomp.map_or(Ok(None), dbm)?,
         temp_c: temp_c.map(Temperatures::at),
         unknown_rows: u64::from(cols.temp.is_some() && temp_c.is_none()),
+        fault_rows: cols.temp_flags.map_or([0; 4], |i| fault_rows(cell(i))),
     };
     let row = LogRow {
         t,
@@ -849,6 +854,13 @@ fn samples(text: &str, name: &str, line: u64, origin: &str) -> Result<u64, LogEr
 }
 
 /// The value of a context line such as `started: …`.
+/// Which sensor faults a `temp_flags` cell names, as 0 or 1 in the order of
+/// [`SensorFault::ALL`]; other names in it (the readings' `temp-unknown`) are not faults.
+fn fault_rows(cell: &str) -> [u64; 4] {
+    let named: Vec<&str> = cell.split('|').collect();
+    SensorFault::ALL.map(|fault| u64::from(named.contains(&fault.short_name())))
+}
+
 pub(super) fn context_value<'a>(context: &'a [String], key: &str) -> Option<&'a str> {
     context
         .iter()

@@ -8,6 +8,7 @@ use dbtrail::report::matched::{MatchSummary, PowerSpread, RowMatch};
 use dbtrail::report::soak::SoakModel;
 use dbtrail::report::{span_rows, Report, ReportOptions, Run, Spacing};
 use dbtrail::stats::Bound;
+use dbtrail::thermal::SensorFault;
 use dbtrail::units::{format_clock, Si};
 
 use super::Together;
@@ -334,6 +335,10 @@ fn context_lines(run: &Run) -> String {
             out.push_str(&labelled(key.trim_end_matches(':'), value));
         }
     }
+    // The board's sensor and the range it was calibrated over, as the log says them.
+    if let Some(value) = run.context_value("temperature:") {
+        out.push_str(&labelled("board sensor", value));
+    }
     if !run.resumed_lines.is_empty() {
         let lines: Vec<String> = run.resumed_lines.iter().map(u64::to_string).collect();
         out.push_str(&labelled(
@@ -427,10 +432,21 @@ fn uncompensated_words(drift: &UncompensatedDrift) -> String {
 
 /// The board's temperature over the span, and how many rows had none.
 fn temperature_words(range: &TemperatureRange) -> String {
+    let faults: Vec<String> = SensorFault::ALL
+        .iter()
+        .zip(range.sensor_fault_rows)
+        .filter(|(_, n)| *n > 0)
+        .map(|(fault, n)| format!("{} in {n}", fault.short_name()))
+        .collect();
+    let faults = if faults.is_empty() {
+        String::new()
+    } else {
+        format!(" ({})", faults.join(", "))
+    };
     let unknown = match range.rows_unknown {
         0 => String::new(),
-        1 => "; 1 row with no temperature".into(),
-        n => format!("; {n} rows with no temperature"),
+        1 => format!("; 1 row with no temperature{faults}"),
+        n => format!("; {n} rows with no temperature{faults}"),
     };
     match (range.min, range.max, range.first, range.last) {
         (Some(min), Some(max), Some(first), Some(last)) => format!(
