@@ -406,6 +406,7 @@ mod tests {
                 last: temps[temps.len() - 1].last,
             }),
             unknown_rows: pairs.iter().map(|(_, c)| c.unknown_rows).sum(),
+            fault_rows: std::array::from_fn(|i| pairs.iter().map(|(_, c)| c.fault_rows[i]).sum()),
         }
     }
 
@@ -451,6 +452,8 @@ mod tests {
                             uncomp_dbm: uncomp,
                             temp_c: temp.map(Temperatures::at),
                             unknown_rows: u64::from(temp.is_none()),
+                            // A row without a temperature as an open sensor gives it.
+                            fault_rows: [u64::from(temp.is_none()), 0, 0, 0],
                         };
                         let row = LogRow {
                             t,
