@@ -143,7 +143,33 @@ pub fn encode_openmetrics(snapshot: &Snapshot) -> String {
     }
     let mut text = String::new();
     encode_registry(&mut text, &registry).expect("writing to a String cannot fail");
-    text
+    samples_sorted(&text)
+}
+
+/// The text with each family's samples in the order of their lines, so that the same
+/// snapshot always reads the same (the crate keeps a family's label sets in a hash map,
+/// whose order changes from run to run); the `#` lines stay where they are.
+fn samples_sorted(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    let mut samples: Vec<&str> = Vec::new();
+    let flush = |samples: &mut Vec<&str>, out: &mut String| {
+        samples.sort_unstable();
+        for line in samples.drain(..) {
+            out.push_str(line);
+            out.push('\n');
+        }
+    };
+    for line in text.lines() {
+        if line.starts_with('#') {
+            flush(&mut samples, &mut out);
+            out.push_str(line);
+            out.push('\n');
+        } else {
+            samples.push(line);
+        }
+    }
+    flush(&mut samples, &mut out);
+    out
 }
 
 fn register_info(registry: &mut Registry, snapshot: &Snapshot, station: &(String, String)) {

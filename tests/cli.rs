@@ -680,3 +680,24 @@ fn a_reader_that_stops_early_ends_every_command_quietly() {
         assert!(!said.contains("error"), "{args:?}: {said}");
     }
 }
+
+// Source: `sim --help`: the simulated time is --seconds or, as `record` and `watch` name
+// theirs, --duration, in either a number or a duration: 2 s at 100 samples/s is 200
+// samples (one line each), the same lines whichever name is used.
+#[test]
+fn sim_takes_its_time_as_duration_too() {
+    let sim = |args: &[&str]| {
+        let out = common::succeeded(
+            ["sim", "--scenario", "tune", "--rate", "100"]
+                .iter()
+                .chain(args),
+        );
+        String::from_utf8(out.stdout).unwrap()
+    };
+    let by_duration = sim(&["--duration", "2s"]);
+    assert_eq!(
+        by_duration.lines().filter(|l| !l.starts_with('#')).count(),
+        200
+    );
+    assert_eq!(by_duration, sim(&["--seconds", "2"]));
+}

@@ -109,6 +109,25 @@ fn the_text_ends_in_eof_and_every_line_in_a_line_feed() {
     assert!(!text.contains("\r"));
 }
 
+// Source: OpenMetrics 1.0 groups a family's samples together and leaves their order free
+// (from memory); ours are sorted, so one snapshot always reads the same and a person can
+// find a flag: `above` before `below` before `clip`, channel 1 before channel 3.
+#[test]
+fn a_familys_samples_are_in_sorted_order_and_the_text_is_the_same_each_time() {
+    let text = encode_openmetrics(&snapshot());
+    for _ in 0..5 {
+        assert_eq!(encode_openmetrics(&snapshot()), text);
+    }
+    let flags: Vec<&str> = text
+        .lines()
+        .filter(|l| l.starts_with("dbtrail_reading_flag{"))
+        .collect();
+    let mut sorted = flags.clone();
+    sorted.sort_unstable();
+    assert_eq!(flags, sorted);
+    assert!(flags[0].contains("channel=\"1\"") && flags[0].contains("flag=\"above\""));
+}
+
 // Source: OpenMetrics 1.0: a counter's sample carries the `_total` suffix, and its
 // `# TYPE` line names the family without it (from memory).
 #[test]

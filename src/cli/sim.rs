@@ -25,8 +25,9 @@ pub struct Args {
     /// Wire format: ascii or binary
     #[arg(long, default_value = "ascii", value_parser = ["ascii", "binary"])]
     format: String,
-    /// Seconds of simulated time (default 10, or until stopped with --pty)
-    #[arg(long, allow_hyphen_values = true, value_parser = parse_seconds)]
+    /// Simulated time, e.g. 10, 90s, 2h (default 10 s, or until stopped with --pty); also
+    /// --duration, as `record` and `watch` call it
+    #[arg(long, visible_alias = "duration", allow_hyphen_values = true, value_parser = parse_seconds)]
     seconds: Option<f64>,
     /// Seed of the noise
     #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
