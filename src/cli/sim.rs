@@ -25,8 +25,7 @@ pub struct Args {
     /// Wire format: ascii or binary
     #[arg(long, default_value = "ascii", value_parser = ["ascii", "binary"])]
     format: String,
-    /// Simulated time, e.g. 10, 90s, 2h (default 10 s, or until stopped with --pty); also
-    /// --duration, as `record` and `watch` call it
+    /// Simulated time, e.g. 10, 90s, 2h (default 10 s, or until stopped with --pty)
     #[arg(long, visible_alias = "duration", allow_hyphen_values = true, value_parser = parse_seconds)]
     seconds: Option<f64>,
     /// Seed of the noise
