@@ -8,6 +8,7 @@ compile_error!("dbtrail builds on POSIX systems only, and is tested on Linux: se
 
 mod cli;
 mod desk;
+mod endpoint;
 mod logs;
 mod signals;
 mod source;

@@ -16,7 +16,7 @@ mod check;
 mod convert;
 mod files;
 mod fit;
-pub mod metrics_serve;
+mod metrics_serve;
 mod ports;
 mod record;
 mod report;

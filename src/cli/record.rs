@@ -15,10 +15,11 @@ use dbtrail::record::{
 };
 use dbtrail::resume::LogShape;
 
-use super::metrics_serve::{MetricsArgs, Published};
+use super::metrics_serve::MetricsArgs;
 use super::run_plan::{RunPlan, SourcePlan, StartedRun};
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{parse_duration_arg, BadInput, Failure, Runtime};
+use crate::endpoint::Published;
 use crate::logs::{Durable, IfExists, LogFile, LogKeeper, LogOpenError, LogTampered};
 use crate::source::Running;
 

@@ -7,10 +7,11 @@ use std::time::Duration;
 
 use anyhow::anyhow;
 
-use super::metrics_serve::{MetricsArgs, Published};
+use super::metrics_serve::MetricsArgs;
 use super::run_plan::RunPlan;
 use super::source_args::{LinkArgs, ReadingArgs, SourceArgs};
 use super::{BadInput, Failure, Runtime};
+use crate::endpoint::Published;
 use crate::logs::IfExists;
 use crate::tui::{self, app::App, ScreenSetup};
 

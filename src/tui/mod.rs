@@ -25,7 +25,7 @@ use dbtrail::events::Event;
 use dbtrail::record::{Opening, Recorder, RunContext};
 use dbtrail::resume::LogShape;
 
-use crate::cli::metrics_serve::Published;
+use crate::endpoint::Published;
 use crate::logs::{IfExists, LogFile, LogKeeper, LogOpenError};
 use crate::source::Running;
 use app::{App, AppEvent, Command, LogEnd};
