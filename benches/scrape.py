@@ -3,8 +3,8 @@
 engine would, for the load figure in docs/performance.md.
 
 Usage: benches/scrape.py STDERR_FILE SECONDS [PER_SECOND]
-Waits for the recorder to name its address on its standard error (STDERR_FILE), then
-GETs /metrics PER_SECOND times a second (default 10) for SECONDS, and prints how many
+Waits for the recorder to name its address on its standard error (STDERR_FILE) and to
+serve its first snapshot, then GETs /metrics PER_SECOND times a second (default 10) for SECONDS, and prints how many
 scrapes were answered with a whole OpenMetrics text (ending in `# EOF`), how many
 failed, how many held a power, and the p50, p99 and max time to an answer in milliseconds.
 """
@@ -20,6 +20,13 @@ while addr is None and time.monotonic() < deadline:
     addr = m.group(1) if m else time.sleep(0.05)
 if addr is None:
     sys.exit("the recorder never named its metrics address")
+# Until the run's first batch the endpoint answers 503: the count starts once it serves.
+while time.monotonic() < deadline:
+    try:
+        with urllib.request.urlopen(addr, timeout=5):
+            break
+    except OSError:
+        time.sleep(0.05)
 times, failed, with_power = [], 0, 0
 start = time.monotonic()
 n = int(seconds * per_second)

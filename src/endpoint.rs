@@ -27,10 +27,13 @@ const CONNECTION_TIMEOUT: Duration = Duration::from_secs(60);
 /// Connections served at once; more wait to be accepted.
 const MAX_CONNECTIONS: usize = 256;
 
+/// The snapshot the endpoint serves, shared with the consumer that puts it in place.
+type Shared = Arc<RwLock<Option<Snapshot>>>;
+
 /// A running metrics endpoint and the snapshot it serves.
 pub struct MetricsEndpoint {
-    /// The snapshot the consumer keeps up to date.
-    snapshot: Arc<RwLock<Snapshot>>,
+    /// The snapshot the consumer keeps up to date; none until its first.
+    snapshot: Shared,
     /// What it started with (the station and the version), for every later snapshot.
     pub base: Snapshot,
     /// Where it listens (the port chosen when 0 was asked for).
@@ -39,7 +42,8 @@ pub struct MetricsEndpoint {
 
 impl MetricsEndpoint {
     /// Binds `addr` at once (so that a port in use is refused before the run starts) and
-    /// serves `snapshot` from a thread of its own.
+    /// serves from a thread of its own what is published, `snapshot` being what every
+    /// snapshot starts from ([`MetricsEndpoint::base`]).
     pub fn start(addr: SocketAddr, snapshot: Snapshot) -> Result<Self> {
         let listener = TcpListener::bind(addr).map_err(|e| {
             anyhow!(
@@ -53,8 +57,8 @@ impl MetricsEndpoint {
         let addr = listener
             .local_addr()
             .context("cannot read the metrics address")?;
-        let base = snapshot.clone();
-        let snapshot = Arc::new(RwLock::new(snapshot));
+        let base = snapshot;
+        let snapshot: Shared = Arc::new(RwLock::new(None));
         let shared = Arc::clone(&snapshot);
         std::thread::Builder::new()
             .name("dbtrail-metrics".into())
@@ -70,7 +74,7 @@ impl MetricsEndpoint {
     /// Puts a new snapshot in place of the old one.
     pub fn publish(&self, snapshot: Snapshot) {
         if let Ok(mut held) = self.snapshot.write() {
-            *held = snapshot;
+            *held = Some(snapshot);
         }
     }
 }
@@ -118,7 +122,7 @@ impl Published {
 }
 
 /// The endpoint's own runtime: one thread, for a handful of scrapers.
-fn serve(listener: TcpListener, snapshot: Arc<RwLock<Snapshot>>) {
+fn serve(listener: TcpListener, snapshot: Shared) {
     let runtime = match tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()
@@ -167,27 +171,69 @@ async fn accept_loop(listener: tokio::net::TcpListener, app: Router) {
     }
 }
 
-/// `GET /metrics`: the snapshot in the format the `Accept` header asks for.
-async fn metrics(
-    State(snapshot): State<Arc<RwLock<Snapshot>>>,
-    headers: HeaderMap,
-) -> impl IntoResponse {
+/// `GET /metrics`: the snapshot in the format the `Accept` header asks for; 503 before
+/// the run's first (the profile, its hash and the link not known yet), so that a scrape
+/// then stores nothing rather than an empty station.
+async fn metrics(State(snapshot): State<Shared>, headers: HeaderMap) -> impl IntoResponse {
     let accept = headers.get(header::ACCEPT).and_then(|v| v.to_str().ok());
     let format = Format::of_accept(accept);
-    let body = match snapshot.read() {
-        Ok(held) => encode(&held, format),
-        // A consumer that panicked while publishing: nothing trustworthy to serve.
-        Err(_) => {
-            return (
-                StatusCode::SERVICE_UNAVAILABLE,
-                [(header::CONTENT_TYPE, "text/plain")],
-                String::new(),
-            )
+    let body = match snapshot.read().as_deref() {
+        Ok(Some(held)) => encode(held, format),
+        Ok(None) => {
+            return unavailable("dbtrail is starting: no reading yet; scrape again shortly\n")
         }
+        // A consumer that panicked while publishing: nothing trustworthy to serve.
+        Err(_) => return unavailable("dbtrail's recorder stopped publishing\n"),
     };
     (
         StatusCode::OK,
         [(header::CONTENT_TYPE, format.content_type())],
         body,
     )
+}
+
+/// A 503 saying why, in plain text.
+fn unavailable(why: &'static str) -> (StatusCode, [(header::HeaderName, &'static str); 1], String) {
+    (
+        StatusCode::SERVICE_UNAVAILABLE,
+        [(header::CONTENT_TYPE, "text/plain; charset=utf-8")],
+        why.to_string(),
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use std::io::{Read, Write};
+
+    use super::*;
+
+    /// The status line of a GET of /metrics at `addr`.
+    fn status(addr: SocketAddr) -> String {
+        let mut stream = std::net::TcpStream::connect(addr).unwrap();
+        stream
+            .write_all(b"GET /metrics HTTP/1.1\r\nHost: x\r\nConnection: close\r\n\r\n")
+            .unwrap();
+        let mut answer = String::new();
+        stream.read_to_string(&mut answer).unwrap();
+        answer.lines().next().unwrap_or_default().to_string()
+    }
+
+    // Source: RFC 9110's 503 (Service Unavailable) for a server not ready to answer: before
+    // the run's first snapshot the endpoint says so rather than serve an empty station
+    // (no profile, no hash, frequency 0); once one is published, 200.
+    #[test]
+    fn before_the_first_snapshot_the_endpoint_is_unavailable() {
+        let base = Snapshot {
+            station: "bench-9".into(),
+            ..Snapshot::default()
+        };
+        let endpoint = MetricsEndpoint::start("127.0.0.1:0".parse().unwrap(), base).unwrap();
+        assert!(
+            status(endpoint.addr).contains(" 503 "),
+            "{}",
+            status(endpoint.addr)
+        );
+        endpoint.publish(endpoint.base.clone());
+        assert!(status(endpoint.addr).contains(" 200 "));
+    }
 }

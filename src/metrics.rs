@@ -54,9 +54,12 @@ pub struct MatchSnapshot {
     pub net_w: Option<f64>,
     /// The return loss's expanded uncertainty (k = 2), dB.
     pub u_return_loss_db: Option<f64>,
-    /// The lowest and highest return loss the coupler's directivity leaves, dB (the
-    /// highest infinite when the leakage could hide the whole reflection).
-    pub return_loss_range_db: Option<(f64, f64)>,
+    /// The lowest return loss the coupler's directivity leaves, dB, when that end holds:
+    /// for a value, a match below the directivity, or a return loss at least the one read.
+    pub return_loss_lowest_db: Option<f64>,
+    /// The highest, when that end holds (a value, below the directivity, or a return loss
+    /// at most the one read); infinite when the leakage could hide the whole reflection.
+    pub return_loss_highest_db: Option<f64>,
     /// Every mark the log's `match` cell may carry, and whether this interval's does.
     pub marks: Vec<(&'static str, bool)>,
 }
@@ -275,7 +278,6 @@ fn register_match(
         family
     };
     let value = matching.value;
-    let range = matching.return_loss_range_db;
     let unit = |name: &str| Unit::Other(name.to_string());
     let with_units = [
         (
@@ -300,13 +302,13 @@ fn register_match(
             "return_loss_lowest",
             "The lowest return loss the coupler's directivity leaves",
             Some("db"),
-            range.map(|r| r.0),
+            matching.return_loss_lowest_db,
         ),
         (
             "return_loss_highest",
             "The highest return loss the coupler's directivity leaves (absent when unbounded)",
             Some("db"),
-            range.map(|r| r.1),
+            matching.return_loss_highest_db,
         ),
         (
             "mismatch_loss",

@@ -78,7 +78,8 @@ fn coupler_snapshot() -> Snapshot {
             }),
             net_w: Some(9.6),
             u_return_loss_db: Some(0.42),
-            return_loss_range_db: Some((12.1, f64::INFINITY)),
+            return_loss_lowest_db: Some(12.1),
+            return_loss_highest_db: Some(f64::INFINITY),
             marks: vec![("rl-at-least", false), ("over-swr-limit", true)],
         }),
         ..Snapshot::default()
@@ -126,6 +127,25 @@ fn a_familys_samples_are_in_sorted_order_and_the_text_is_the_same_each_time() {
     sorted.sort_unstable();
     assert_eq!(flags, sorted);
     assert!(flags[0].contains("channel=\"1\"") && flags[0].contains("flag=\"above\""));
+}
+
+// Source: OpenMetrics 1.0 (from memory): a histogram's buckets must run in order of
+// `le`, and a counter's `_created` line belongs with its `_total`; sorting a family's
+// lines keeps every rule only while families are gauges, info metrics, and counters of
+// `_total` samples alone. This holds that precondition of the sorting.
+#[test]
+fn every_family_is_of_a_kind_whose_lines_may_be_sorted() {
+    for snapshot in [snapshot(), coupler_snapshot()] {
+        let text = encode_openmetrics(&snapshot);
+        for kind in text.lines().filter_map(|l| l.strip_prefix("# TYPE ")) {
+            let (_, kind) = kind.split_once(' ').unwrap();
+            assert!(
+                ["gauge", "counter", "info"].contains(&kind),
+                "{kind}: {text}"
+            );
+        }
+        assert!(!text.contains("_created"), "{text}");
+    }
 }
 
 // Source: OpenMetrics 1.0: a counter's sample carries the `_total` suffix, and its

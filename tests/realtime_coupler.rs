@@ -120,6 +120,16 @@ fn a_coupler_board_on_a_port_gives_the_rows_its_replay_gives() {
             "{rl} against {expected}: {row:?}"
         );
     }
+    let marks = col("match");
+    for kind in [
+        "rl-at-least",
+        "rl-at-most",
+        "below-directivity",
+        "match-unknown",
+    ] {
+        let seen = from_port.iter().filter(|r| r[marks] == kind).count();
+        assert!(seen > 0, "no row marked {kind}");
+    }
     assert!(
         values > 200,
         "only {values} rows with a match that is a value"

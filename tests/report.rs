@@ -2023,6 +2023,31 @@ fn the_report_names_the_board_sensor_the_log_was_read_with() {
     assert_eq!(text_line(&table, "board sensor"), said, "{table}");
 }
 
+// Source: worked by hand: of three rows, all with a temperature, the second names
+// `sensor-short` (a fault for a moment, the window's temperature kept): no row lacks a
+// temperature, and the fault is still said, once, in the text and the JSON.
+#[test]
+fn a_fault_in_a_row_that_kept_its_temperature_is_still_said() {
+    let tmp = common::scratch("fault-kept");
+    let mut rows = vec![
+        row(0.0, 10.0, 10.1, "24.000"),
+        row(10.0, 10.0, 10.1, "24.100"),
+        row(20.0, 10.0, 10.1, "24.200"),
+    ];
+    rows[1].temp_flags = "sensor-short";
+    let text = log_of(10.0, &rows);
+    let table = text_of(&report_on(tmp.path(), "k.csv", &text, &[]));
+    assert_eq!(
+        text_line(&table, "temperature"),
+        "24.00 to 24.20 °C on the board, 24.00 °C at the span's start and 24.20 °C at its \
+         end; sensor faults: sensor-short in 1 row"
+    );
+    let value = json_of(&report_on(tmp.path(), "k.csv", &text, &["--json"]));
+    let range = &value["temperature_c"];
+    assert_eq!(range["rows_unknown"], 0, "{range}");
+    assert_eq!(range["sensor_fault_rows"]["sensor-short"], 1, "{range}");
+}
+
 /// Eight 10 s rows whose temperatures are worked by hand below: two without one (a
 /// sensor fault and an unknown), one read outside the calibrated temperature range.
 fn temperature_log() -> String {
@@ -2114,7 +2139,7 @@ fn the_temperature_range_and_its_unknown_rows_come_from_temp_c() {
     assert_eq!(
         text_line(&table, "temperature"),
         "23.50 to 31.25 °C on the board, 24.00 °C at the span's start and 30.50 °C at its \
-         end; 2 rows with no temperature (sensor-open in 1)"
+         end; 2 rows with no temperature; sensor faults: sensor-open in 1 row"
     );
     assert!(
         text_line(&table, "flagged rows").contains("temp-outside 1"),

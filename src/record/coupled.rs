@@ -51,6 +51,25 @@ const MATCH_MARKS: [&str; 9] = [
     OVER_REFLECTED_LIMIT,
 ];
 
+/// Whether the lowest return loss of the directivity's range holds in `state`: the range
+/// is worked from the measured |Γ|, which a return loss at most the one read (reflected
+/// clipped) understates, so that its low end could be too high.
+fn lowest_holds(state: MatchState) -> bool {
+    matches!(
+        state,
+        MatchState::Value | MatchState::Unresolved | MatchState::ReturnLossAtLeast
+    )
+}
+
+/// Whether the highest holds: a return loss at least the one read (reflected below its
+/// span, or forward clipped) overstates |Γ|, so that the high end could be too low.
+fn highest_holds(state: MatchState) -> bool {
+    matches!(
+        state,
+        MatchState::Value | MatchState::Unresolved | MatchState::ReturnLossAtMost
+    )
+}
+
 /// Whether an arm's figures come from no sample at all.
 fn no_samples(figures: &Figures) -> bool {
     figures.averaged == 0 && figures.mean_w.is_none()
@@ -137,7 +156,14 @@ impl Coupled {
                 }),
             net_w: m.net_w,
             u_return_loss_db: m.u_return_loss_db,
-            return_loss_range_db: m.return_loss_range_db,
+            return_loss_lowest_db: m
+                .return_loss_range_db
+                .filter(|_| lowest_holds(m.state))
+                .map(|r| r.0),
+            return_loss_highest_db: m
+                .return_loss_range_db
+                .filter(|_| highest_holds(m.state))
+                .map(|r| r.1),
             marks: MATCH_MARKS
                 .iter()
                 .map(|&mark| (mark, marks.contains(&mark)))
@@ -379,6 +405,46 @@ mod tests {
             cal.forward.counts_for(forward_dbm).round() as u32,
             cal.reflected.counts_for(reflected_dbm).round() as u32,
         ]
+    }
+
+    /// The match a recorder would serve after one interval of `counts`.
+    fn served(counts: [u32; 2]) -> MatchSnapshot {
+        let (mut r, _) = recorder(1.0);
+        r.handle(&Event::sample(0.1, &counts)).unwrap();
+        r.finish(1.0).unwrap();
+        r.latest_match().cloned().expect("a coupler run's match")
+    }
+
+    fn marked(m: &MatchSnapshot) -> Vec<&'static str> {
+        m.marks
+            .iter()
+            .filter(|(_, set)| *set)
+            .map(|(n, _)| *n)
+            .collect()
+    }
+
+    // Source: the definitions of the bounds (docs/calibration.md, "Forward and reflected
+    // power"): with the reflected arm clipped the true |Γ| is at least the one read, so
+    // the directivity's lowest return loss, worked from it, could be too high and is left
+    // out; with it below its span |Γ| is at most the one read and the highest is left out.
+    // A value keeps both ends and its SWR; neither bound has an SWR.
+    #[test]
+    fn a_bound_match_serves_only_the_end_of_the_range_that_holds() {
+        let (_, cal) = recorder(1.0);
+        let value = served(frame(&cal, 40.0, 25.0));
+        assert!(value.value.is_some() && marked(&value).is_empty());
+        assert!(value.return_loss_lowest_db.is_some() && value.return_loss_highest_db.is_some());
+        let forward = cal.forward.counts_for(50.0).round() as u32;
+        let clipped = served([forward, 4095]);
+        assert_eq!(marked(&clipped), ["rl-at-most"]);
+        assert!(clipped.value.is_none());
+        assert!(clipped.return_loss_lowest_db.is_none());
+        assert!(clipped.return_loss_highest_db.is_some());
+        let silent = served([forward, 0]);
+        assert_eq!(marked(&silent), ["rl-at-least"]);
+        assert!(silent.value.is_none());
+        assert!(silent.return_loss_lowest_db.is_some());
+        assert!(silent.return_loss_highest_db.is_none());
     }
 
     // An interval in which nothing came is a gap: the match says so, not "no forward".

@@ -46,6 +46,9 @@ impl Temperatures {
     }
 }
 
+/// The kinds of sensor fault a row's `temp_flags` can name.
+pub const FAULT_KINDS: usize = SensorFault::ALL.len();
+
 /// What one row (or folded interval) adds to its power figures.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct RowCompensation {
@@ -58,7 +61,7 @@ pub struct RowCompensation {
     pub unknown_rows: u64,
     /// Rows as logged whose `temp_flags` name each sensor fault, in the order of
     /// [`SensorFault::ALL`].
-    pub fault_rows: [u64; 4],
+    pub fault_rows: [u64; FAULT_KINDS],
 }
 
 impl RowCompensation {
@@ -247,11 +250,11 @@ pub struct TemperatureRange {
     /// Rows (as logged) of the span whose `temp_flags` name each sensor fault: every
     /// fault's name (`sensor-open`, …) with its count, zeros included.
     #[serde(serialize_with = "fault_names")]
-    pub sensor_fault_rows: [u64; 4],
+    pub sensor_fault_rows: [u64; FAULT_KINDS],
 }
 
 /// The fault counts as an object keyed by the faults' own names.
-fn fault_names<S: serde::Serializer>(rows: &[u64; 4], out: S) -> Result<S::Ok, S::Error> {
+fn fault_names<S: serde::Serializer>(rows: &[u64; FAULT_KINDS], out: S) -> Result<S::Ok, S::Error> {
     use serde::ser::SerializeMap;
     let mut map = out.serialize_map(Some(rows.len()))?;
     for (fault, n) in SensorFault::ALL.iter().zip(rows) {

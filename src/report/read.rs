@@ -9,6 +9,7 @@
 use std::io::BufRead;
 use std::time::SystemTime;
 
+use super::compensation::FAULT_KINDS;
 use super::compensation::{parse_zero, RowCompensation, RunCompensation, Temperatures, Zero};
 use super::reduce::{Folder, Reduction};
 use super::{bad, Log, LogError, LogRow, Run, Spacing};
@@ -853,14 +854,14 @@ fn samples(text: &str, name: &str, line: u64, origin: &str) -> Result<u64, LogEr
     ))
 }
 
-/// The value of a context line such as `started: …`.
 /// Which sensor faults a `temp_flags` cell names, as 0 or 1 in the order of
 /// [`SensorFault::ALL`]; other names in it (the readings' `temp-unknown`) are not faults.
-fn fault_rows(cell: &str) -> [u64; 4] {
+fn fault_rows(cell: &str) -> [u64; FAULT_KINDS] {
     let named: Vec<&str> = cell.split('|').collect();
     SensorFault::ALL.map(|fault| u64::from(named.contains(&fault.short_name())))
 }
 
+/// The value of a context line such as `started: …`.
 pub(super) fn context_value<'a>(context: &'a [String], key: &str) -> Option<&'a str> {
     context
         .iter()

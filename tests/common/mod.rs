@@ -393,7 +393,7 @@ pub fn address_said(child: &mut Child, lead: &str, end: &str) -> String {
 }
 
 /// A `record --demo soak --every 1s --duration 60s --metrics 0` run of `station`
-/// writing `log`, and the address its metrics are served on.
+/// writing `log`, and the address its metrics are served on, once they are.
 pub fn serving_metrics(log: &Path, station: &str) -> (KillOnDrop, String) {
     let mut command = bin();
     command
@@ -411,7 +411,17 @@ pub fn serving_metrics(log: &Path, station: &str) -> (KillOnDrop, String) {
         .stderr(Stdio::piped());
     let mut child = spawn(&mut command);
     let addr = address_said(&mut child, "dbtrail: metrics at http://", "/metrics");
-    (KillOnDrop::new(child), addr)
+    let child = KillOnDrop::new(child);
+    // Until its first batch the endpoint answers 503 (docs/lab.md): it serves once 200.
+    wait_until(Duration::from_secs(20), || {
+        let (status, _, _) = http_get(&addr, "/metrics", None)?;
+        if status.contains(" 200 ") {
+            Ok(())
+        } else {
+            Err(format!("not serving yet: {status}"))
+        }
+    });
+    (child, addr)
 }
 
 /// The fenced block of `lang` on the lab page (docs/lab.md) whose first line starts with

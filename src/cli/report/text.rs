@@ -432,21 +432,23 @@ fn uncompensated_words(drift: &UncompensatedDrift) -> String {
 
 /// The board's temperature over the span, and how many rows had none.
 fn temperature_words(range: &TemperatureRange) -> String {
+    let unknown = match range.rows_unknown {
+        0 => String::new(),
+        1 => "; 1 row with no temperature".into(),
+        n => format!("; {n} rows with no temperature"),
+    };
+    // Apart from the unknown rows: a fault for a moment leaves the window's temperature
+    // in place, so a row can name a fault and still have one.
     let faults: Vec<String> = SensorFault::ALL
         .iter()
         .zip(range.sensor_fault_rows)
         .filter(|(_, n)| *n > 0)
-        .map(|(fault, n)| format!("{} in {n}", fault.short_name()))
+        .map(|(fault, n)| format!("{} in {n} {}", fault.short_name(), rows_word(n)))
         .collect();
-    let faults = if faults.is_empty() {
-        String::new()
+    let unknown = if faults.is_empty() {
+        unknown
     } else {
-        format!(" ({})", faults.join(", "))
-    };
-    let unknown = match range.rows_unknown {
-        0 => String::new(),
-        1 => format!("; 1 row with no temperature{faults}"),
-        n => format!("; {n} rows with no temperature{faults}"),
+        format!("{unknown}; sensor faults: {}", faults.join(", "))
     };
     match (range.min, range.max, range.first, range.last) {
         (Some(min), Some(max), Some(first), Some(last)) => format!(
@@ -454,6 +456,15 @@ fn temperature_words(range: &TemperatureRange) -> String {
              {last:.2} °C at its end{unknown}"
         ),
         _ => format!("not known: no row of the span gives one{unknown}"),
+    }
+}
+
+/// "row" or "rows".
+fn rows_word(n: u64) -> &'static str {
+    if n == 1 {
+        "row"
+    } else {
+        "rows"
     }
 }
 
