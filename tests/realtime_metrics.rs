@@ -76,9 +76,22 @@ fn a_request_head_trickled_a_line_at_a_time_is_cut_off() {
         .write_all(b"GET /metrics HTTP/1.1\r\nHost: x\r\n")
         .unwrap();
     let started = std::time::Instant::now();
+    // Waiting for the effect, the server ending the connection, at most 250 ms at a time;
+    // each wait that ends without it trickles another line.
+    stream
+        .set_read_timeout(Some(Duration::from_millis(250)))
+        .unwrap();
     let cut_off = loop {
-        std::thread::sleep(Duration::from_millis(250));
-        if stream.write_all(b"X-Trickle: a\r\n").is_err() {
+        let mut byte = [0u8; 1];
+        // Closed, or answered (the head never ended, so never with the metrics).
+        let closed = match stream.read(&mut byte) {
+            Ok(_) => true,
+            Err(e) => !matches!(
+                e.kind(),
+                std::io::ErrorKind::WouldBlock | std::io::ErrorKind::TimedOut
+            ),
+        };
+        if closed || stream.write_all(b"X-Trickle: a\r\n").is_err() {
             break started.elapsed();
         }
         let answered = get(&addr, "/metrics", "application/openmetrics-text");
